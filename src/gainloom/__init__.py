@@ -1,0 +1,22 @@
+"""gainloom: gain-scheduled controller design across operating points.
+
+Public names are re-exported here; modules behind them are private to the
+package layout and may move.
+"""
+
+from __future__ import annotations
+
+__version__ = "0.1.0"
+
+from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
+from .lti.loop import Loop
+
+__all__ = [
+    "__version__",
+    "GainloomError",
+    "InputError",
+    "ScheduleError",
+    "DesignError",
+    "CodegenError",
+    "Loop",
+]

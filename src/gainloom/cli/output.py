@@ -1,0 +1,58 @@
+"""Shared printing for the commands: aligned text tables and JSON."""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+from collections.abc import Sequence
+from typing import Any, TextIO
+
+import numpy as np
+
+__all__ = ["to_jsonable", "print_json", "format_table", "format_number"]
+
+
+def to_jsonable(value: Any) -> Any:
+    """Convert numpy scalars/arrays, tuples and complex numbers to plain JSON types.
+
+    Complex numbers become ``[re, im]``; non-finite floats become ``None`` so
+    the output is strict JSON.
+    """
+    if isinstance(value, dict):
+        return {str(k): to_jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [to_jsonable(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return to_jsonable(value.tolist())
+    if isinstance(value, (complex, np.complexfloating)):
+        return [to_jsonable(float(value.real)), to_jsonable(float(value.imag))]
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        value = float(value)
+        return value if math.isfinite(value) else None
+    return value
+
+
+def print_json(value: Any, stream: TextIO | None = None) -> None:
+    """Print ``value`` as sorted, indented strict JSON."""
+    json.dump(to_jsonable(value), stream or sys.stdout, indent=2, sort_keys=True, allow_nan=False)
+    (stream or sys.stdout).write("\n")
+
+
+def format_number(value: float, digits: int = 6) -> str:
+    """Format a float compactly with ``digits`` significant digits."""
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        return "-" if value is None else str(value)
+    return f"{value:.{digits}g}"
+
+
+def format_table(headers: Sequence[str], rows: Sequence[Sequence[Any]]) -> str:
+    """Return a plain-text table, columns left-aligned, floats formatted."""
+    cells = [[format_number(c) if isinstance(c, float) else str(c) for c in row] for row in rows]
+    widths = [max([len(h)] + [len(r[i]) for r in cells]) for i, h in enumerate(headers)]
+    lines = ["  ".join(h.ljust(w) for h, w in zip(headers, widths)).rstrip()]
+    lines.append("  ".join("-" * w for w in widths))
+    lines += ["  ".join(c.ljust(w) for c, w in zip(row, widths)).rstrip() for row in cells]
+    return "\n".join(lines)

@@ -1,0 +1,1 @@
+"""codegen layer (see DEVELOPERS.md)."""

@@ -1,0 +1,1 @@
+"""design layer (see DEVELOPERS.md)."""

@@ -1,0 +1,92 @@
+"""Batched polynomial helpers shared by the whole math core.
+
+Polynomials are coefficient arrays in descending powers, batched along the
+leading axes: shape ``(..., n + 1)``.  Nothing here loops in Python over the
+batch.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["as_poly_batch", "pad_left", "batched_roots", "characteristic"]
+
+
+def as_poly_batch(coeffs: object) -> np.ndarray:
+    """Return ``coeffs`` as a float array of at least two dimensions.
+
+    A 1-D coefficient list becomes a batch of one: shape ``(1, n + 1)``.
+    """
+    array = np.asarray(coeffs, dtype=float)
+    if array.ndim == 0:
+        array = array.reshape(1, 1)
+    elif array.ndim == 1:
+        array = array[np.newaxis, :]
+    return array
+
+
+def pad_left(coeffs: np.ndarray, length: int) -> np.ndarray:
+    """Prepend zeros on the last axis so it has ``length`` coefficients.
+
+    Padding with leading zeros keeps the polynomial's value: it only raises
+    the nominal degree, which is how numerators are aligned with
+    denominators.
+    """
+    coeffs = np.asarray(coeffs, dtype=float)
+    extra = length - coeffs.shape[-1]
+    if extra < 0:
+        raise ValueError(f"cannot pad {coeffs.shape[-1]} coefficients down to {length}")
+    pad = [(0, 0)] * (coeffs.ndim - 1) + [(extra, 0)]
+    return np.pad(coeffs, pad)
+
+
+def batched_roots(coeffs: np.ndarray) -> np.ndarray:
+    """Roots of many polynomials of one degree at once.
+
+    Parameters
+    ----------
+    coeffs : ndarray, shape (..., n + 1)
+        Descending coefficients; the leading coefficient must be non-zero
+        in every polynomial of the batch.
+
+    Returns
+    -------
+    ndarray of complex, shape (..., n)
+        Eigenvalues of the companion matrices, in no particular order.
+    """
+    coeffs = np.asarray(coeffs, dtype=float)
+    n = coeffs.shape[-1] - 1
+    batch = coeffs.shape[:-1]
+    if n == 0:
+        return np.zeros(batch + (0,), dtype=complex)
+    lead = coeffs[..., :1]
+    if np.any(lead == 0):
+        raise ValueError("leading coefficient is zero in part of the batch")
+    companion = np.zeros(batch + (n, n))
+    companion[..., 0, :] = -coeffs[..., 1:] / lead
+    if n > 1:
+        companion[..., np.arange(1, n), np.arange(n - 1)] = 1.0
+    return np.linalg.eigvals(companion).astype(complex)
+
+
+def characteristic(num: np.ndarray, den: np.ndarray, gains: np.ndarray) -> np.ndarray:
+    """Closed-loop characteristic polynomials ``D + K N`` for many gains.
+
+    Parameters
+    ----------
+    num : ndarray, shape (..., m + 1)
+        Loop numerator(s), ``m <= n``.
+    den : ndarray, shape (..., n + 1)
+        Loop denominator(s).
+    gains : ndarray, shape (G,)
+        Loop gains ``K``.
+
+    Returns
+    -------
+    ndarray, shape (..., G, n + 1)
+    """
+    num = np.asarray(num, dtype=float)
+    den = np.asarray(den, dtype=float)
+    gains = np.asarray(gains, dtype=float)
+    num = pad_left(num, den.shape[-1])
+    return den[..., np.newaxis, :] + gains[:, np.newaxis] * num[..., np.newaxis, :]

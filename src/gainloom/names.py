@@ -1,0 +1,63 @@
+"""Frozen registries of the names users may write.
+
+Validation, error messages, ``--help`` and the docs all read these tuples, so a
+name is added in exactly one place.  Every layer may import this module.
+"""
+
+from __future__ import annotations
+
+from difflib import get_close_matches
+
+__all__ = [
+    "HOLD_METHODS",
+    "CONTROLLER_STRUCTURES",
+    "NUMBER_FORMATS",
+    "INTERPOLATIONS",
+    "CONTROLLER_COEFFICIENTS",
+    "unknown_name_message",
+]
+
+#: Discretisation methods: zero-order hold, first-order (triangle) hold,
+#: Tustin (bilinear, optional prewarp), matched pole-zero, impulse invariant.
+HOLD_METHODS: tuple[str, ...] = ("zoh", "foh", "tustin", "matched", "impulse")
+
+#: Controller structures the scheduler can tune.
+CONTROLLER_STRUCTURES: tuple[str, ...] = ("p", "pi", "pd", "pid", "lead", "lag", "leadlag")
+
+#: Difference-equation coefficients each structure stores per table point,
+#: in table order.  The discrete forms are defined in DEVELOPERS.md
+#: ("Discrete controller forms"); design, codegen and simulation all follow it.
+CONTROLLER_COEFFICIENTS: dict[str, tuple[str, ...]] = {
+    "p": ("kp",),
+    "pi": ("kp", "ki_ts"),
+    "pd": ("kp", "kd_b", "kd_a"),
+    "pid": ("kp", "ki_ts", "kd_b", "kd_a"),
+    "lead": ("kc", "zc", "pc"),
+    "lag": ("kc", "zc", "pc"),
+    "leadlag": ("kc", "zc1", "pc1", "zc2", "pc2"),
+}
+
+#: Number formats of the emitted C tables.
+NUMBER_FORMATS: tuple[str, ...] = ("float32", "q15", "q31")
+
+#: How firmware interpolates between table points.
+INTERPOLATIONS: tuple[str, ...] = ("linear", "bilinear")
+
+
+def unknown_name_message(kind: str, name: str, known: tuple[str, ...]) -> str:
+    """Return "unknown <kind> 'x'; known: a, b (did you mean 'a'?)".
+
+    Parameters
+    ----------
+    kind : str
+        What the name is meant to be, e.g. ``"hold method"``.
+    name : str
+        The name the user wrote.
+    known : tuple of str
+        The registry it should come from.
+    """
+    message = f"unknown {kind} {name!r}; known: {', '.join(known)}"
+    close = get_close_matches(str(name), known, n=1)
+    if close:
+        message += f" (did you mean {close[0]!r}?)"
+    return message

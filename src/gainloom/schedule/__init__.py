@@ -1,0 +1,1 @@
+"""schedule layer (see DEVELOPERS.md)."""

@@ -1,0 +1,19 @@
+"""The public API is pinned: adding or removing a name is a deliberate act."""
+
+import gainloom
+
+EXPECTED_PUBLIC_NAMES = {
+    "__version__",
+    "GainloomError",
+    "InputError",
+    "ScheduleError",
+    "DesignError",
+    "CodegenError",
+    "Loop",
+}
+
+
+def test_public_names_are_pinned():
+    assert set(gainloom.__all__) == EXPECTED_PUBLIC_NAMES
+    for name in gainloom.__all__:
+        assert hasattr(gainloom, name), name
