@@ -50,6 +50,13 @@ class Loop:
         (continuous loops only; discretisation absorbs it into ``delay``).
     prewarp : float, optional
         Tustin prewarp frequency in rad/s that was used, if any.
+    delta_num, delta_den : array_like, shape (P, n + 1), optional
+        The same discrete loop in the delta operator ``g = (z - 1) / ts``.
+        At fast sampling the poles crowd near ``z = 1`` and expanded
+        z-coefficients lose most of their digits; coefficients in ``g`` stay
+        close to the continuous ones.  Discretisers fill these where they can
+        compute them without passing through z (e.g. ZOH via the matrix
+        exponential), and root computations prefer them when present.
     """
 
     num: np.ndarray
@@ -59,6 +66,8 @@ class Loop:
     delay: np.ndarray = field(default_factory=lambda: np.zeros(1))
     dead_time: np.ndarray = field(default_factory=lambda: np.zeros(1))
     prewarp: float | None = None
+    delta_num: np.ndarray | None = None
+    delta_den: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         num = as_poly_batch(self.num)
@@ -94,6 +103,15 @@ class Loop:
             object.__setattr__(self, "ts", _readonly(ts))
         elif np.any(self.delay != 0):
             raise InputError("a continuous loop carries dead_time in seconds, not delay in samples")
+        if (self.delta_num is None) != (self.delta_den is None):
+            raise InputError("delta_num and delta_den come together")
+        if self.delta_den is not None:
+            if self.ts is None:
+                raise InputError("only a discrete loop has a delta-operator form")
+            delta_den = np.broadcast_to(as_poly_batch(self.delta_den), den.shape)
+            delta_num = np.broadcast_to(pad_left(as_poly_batch(self.delta_num), den.shape[1]), den.shape)
+            object.__setattr__(self, "delta_num", _readonly(delta_num))
+            object.__setattr__(self, "delta_den", _readonly(delta_den))
 
     @property
     def points(self) -> int:
@@ -120,6 +138,8 @@ class Loop:
             ts=None if self.ts is None else self.ts[index],
             delay=self.delay[index],
             dead_time=self.dead_time[index],
+            delta_num=None if self.delta_num is None else self.delta_num[index],
+            delta_den=None if self.delta_den is None else self.delta_den[index],
         )
 
     def to_control(self, index: int = 0):
