@@ -415,7 +415,8 @@ def discretize_loop(
         Continuous plant batch (``ts is None``); its ``dead_time`` (seconds)
         is absorbed into the delay.
     ts : float or array_like, shape (P,)
-        Sample period in seconds, per point or shared.
+        Sample period in seconds, per point or shared.  A plant batch of one
+        point is repeated to match per-point ``ts`` or ``delay``.
     method : str
         One of :data:`gainloom.names.HOLD_METHODS`.
     delay : float or array_like, shape (P,)
@@ -446,6 +447,11 @@ def discretize_loop(
     in the module docstring of :mod:`gainloom.lti.discretize` and in
     ``docs/discretisation.md``.
     """
+    if isinstance(plant, Loop) and plant.points == 1:
+        # One plant sampled at several periods (or delays): repeat it.
+        sizes = {np.size(ts), np.size(delay)} - {1}
+        if len(sizes) == 1:
+            plant = plant.select(np.zeros(sizes.pop(), dtype=int))
     ts, total, prewarp = _validate(plant, ts, method, delay, prewarp)
     num = np.array(plant.num)
     den = np.array(plant.den)
