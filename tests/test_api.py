@@ -10,6 +10,7 @@ EXPECTED_PUBLIC_NAMES = {
     "DesignError",
     "CodegenError",
     "Loop",
+    "discretize",
 }
 
 
