@@ -211,10 +211,11 @@ def _check(tree: ast.AST, node: Node, text: str, names: set[str]) -> None:
         _check(tree.operand, node, text, names)
         return
     if isinstance(tree, ast.Call):
-        if not isinstance(tree.func, ast.Name) or tree.func.id not in FUNCTIONS:
-            name = tree.func.id if isinstance(tree.func, ast.Name) else "this"
-            hint = did_you_mean(name, FUNCTIONS) if isinstance(tree.func, ast.Name) else ""
-            raise refuse(f"unknown function {name!r}; known: {', '.join(FUNCTIONS)}{hint}", tree)
+        if not isinstance(tree.func, ast.Name):
+            raise refuse(f"only calls of the functions {', '.join(FUNCTIONS)} are allowed", tree)
+        if tree.func.id not in FUNCTIONS:
+            hint = did_you_mean(tree.func.id, FUNCTIONS)
+            raise refuse(f"unknown function {tree.func.id!r}; known: {', '.join(FUNCTIONS)}{hint}", tree)
         if tree.keywords:
             raise refuse(f"function {tree.func.id!r} takes no keyword arguments", tree)
         _, arity = FUNCTIONS[tree.func.id]

@@ -155,9 +155,8 @@ class Family:
         if positive and np.any(value <= 0):
             bad = value <= 0
             index = int(np.flatnonzero(bad)[0])
-            raise expression.node.error(
-                f"{what} must be positive; {expression.source!r} = {value[index]:g} {self._first_bad(bad, points)}"
-            )
+            shown = f"found {value[index]:g}" if expression.constant else f"{expression.source!r} = {value[index]:g}"
+            raise expression.node.error(f"{what} must be positive; {shown} {self._first_bad(bad, points)}")
         if non_negative and np.any(value < 0):
             bad = value < 0
             index = int(np.flatnonzero(bad)[0])

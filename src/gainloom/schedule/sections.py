@@ -255,7 +255,7 @@ def read_table_checks(node: Node | None, structure: str) -> TableChecks:
         for name, direction in keys["monotone"].mapping().items():
             if name not in coefficients:
                 raise Node(direction.raw, direction.path, direction.file).error(
-                    names.unknown_name_message(f"coefficient of structure {structure!r}", name, coefficients)
+                    names.unknown_name_message(f"{structure} coefficient", name, coefficients)
                 )
             monotone[name] = direction.choice("monotone direction", names.MONOTONE_DIRECTIONS)
     between = 3
