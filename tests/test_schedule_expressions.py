@@ -111,3 +111,37 @@ def test_non_finite_results_are_returned_not_warned():
     # pytest runs with filterwarnings=error: a floating-point warning here would fail the test
     values = _evaluate('"1 / (x - 1)"', x=X)
     assert np.isinf(values[1]) and np.all(np.isfinite(values[[0, 2, 3]]))
+
+
+# -- property: random arithmetic agrees with sympy (an independent parser and evaluator) --------
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+_leaf = st.one_of(
+    st.just("x"),
+    st.floats(min_value=0.5, max_value=9.5, allow_nan=False).map(lambda v: f"{v:.3f}"),
+)
+
+
+def _combine(children):
+    return st.one_of(
+        st.tuples(children, st.sampled_from(["+", "-", "*", "/"]), children).map(lambda t: f"({t[0]} {t[1]} {t[2]})"),
+        children.map(lambda c: f"-{c}"),
+        children.map(lambda c: f"sqrt(abs({c}))"),
+        st.tuples(children, children).map(lambda t: f"max({t[0]}, {t[1]})"),
+    )
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.recursive(_leaf, _combine, max_leaves=8), st.floats(min_value=0.1, max_value=5.0))
+def test_random_expressions_agree_with_sympy(text, x):
+    import sympy
+
+    # reference: sympy parses and evaluates the same text independently (Max/Abs/sqrt map by name)
+    reference = sympy.sympify(text.replace("max(", "Max(").replace("abs(", "Abs("), locals={"x": sympy.Symbol("x")})
+    expected = complex(reference.subs("x", x).evalf(30))
+    got = _evaluate(f'"{text}"', x=np.array([x]))[0]
+    if not np.isfinite(got) or abs(expected) > 1e12:
+        return  # division by (near) zero: both sides blow up; finiteness is checked elsewhere
+    assert abs(expected.imag) < 1e-9
+    assert got == pytest.approx(expected.real, rel=1e-9, abs=1e-9)
