@@ -19,6 +19,7 @@ __all__ = ["main", "COMMANDS"]
 #: Registered commands, in the order ``--help`` lists them.
 COMMANDS: tuple[str, ...] = (
     "discretize",
+    "inspect",
 )
 
 
