@@ -11,6 +11,7 @@ EXPECTED_PUBLIC_NAMES = {
     "CodegenError",
     "Loop",
     "discretize",
+    "discretize_loop",
 }
 
 

@@ -10,7 +10,7 @@ __version__ = "0.1.0"
 
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
-from .lti.discretize import discretize
+from .lti.discretize import discretize, discretize_loop
 
 __all__ = [
     "__version__",
@@ -21,4 +21,5 @@ __all__ = [
     "CodegenError",
     "Loop",
     "discretize",
+    "discretize_loop",
 ]
