@@ -292,3 +292,19 @@ def test_batch_with_per_point_ts_and_delay_equals_per_point_results():
                 rtol=1e-9,
                 atol=1e-14,
             )
+
+
+def test_foh_double_integrator_closed_form():
+    ts = 0.05
+    num_z, den_z = discretize([1.0], [1.0, 0.0, 0.0], ts, "foh")
+    # Closed form (triangle-hold equivalent of 1/s^2, from memory):
+    #   ts^2 (z^2 + 4 z + 1) / (6 (z - 1)^2).
+    np.testing.assert_allclose(den_z, [1.0, -2.0, 1.0], rtol=1e-15)
+    np.testing.assert_allclose(num_z, ts**2 / 6 * np.array([1.0, 4.0, 1.0]), rtol=1e-12)
+
+
+def test_one_plant_is_repeated_for_per_point_sample_periods():
+    loop = discretize_loop(Loop([2.0], [1.0, 2.0]), np.array([1e-3, 1e-2]), "zoh")
+    # Closed form (as above): 2/(s+2) -> (1 - e^{-2 ts})/(z - e^{-2 ts}).
+    np.testing.assert_allclose(loop.den[:, 1], -np.exp(-2 * np.array([1e-3, 1e-2])), rtol=1e-12)
+    assert loop.points == 2

@@ -387,9 +387,8 @@ def _matched(num, den, ts) -> _Rational:
     pole_part = np.prod(_phi(poles, t), axis=1)
     zero_part = np.prod(np.where(finite, _phi(zfin, t), 1.0), axis=1)
     k_disc = (gain * pole_part / zero_part).real / 2.0**r
-    with np.errstate(invalid="ignore"):
-        z_zeros = np.where(finite, np.exp(zfin * t), -1.0 + 0j)
-        d_zeros = np.where(finite, np.expm1(zfin * t) / t, -2.0 / t + 0j)
+    z_zeros = np.where(finite, np.exp(zfin * t), -1.0 + 0j)
+    d_zeros = np.where(finite, np.expm1(zfin * t) / t, -2.0 / t + 0j)
     z_poles = np.exp(poles * t)
     d_poles = np.expm1(poles * t) / t
     num_z = poly_from_roots(z_zeros) * k_disc[:, None]
@@ -415,7 +414,8 @@ def discretize_loop(
         Continuous plant batch (``ts is None``); its ``dead_time`` (seconds)
         is absorbed into the delay.
     ts : float or array_like, shape (P,)
-        Sample period in seconds, per point or shared.
+        Sample period in seconds, per point or shared.  A plant batch of one
+        point is repeated to match per-point ``ts`` or ``delay``.
     method : str
         One of :data:`gainloom.names.HOLD_METHODS`.
     delay : float or array_like, shape (P,)
@@ -446,6 +446,11 @@ def discretize_loop(
     in the module docstring of :mod:`gainloom.lti.discretize` and in
     ``docs/discretisation.md``.
     """
+    if isinstance(plant, Loop) and plant.points == 1:
+        # One plant sampled at several periods (or delays): repeat it.
+        sizes = {np.size(ts), np.size(delay)} - {1}
+        if len(sizes) == 1:
+            plant = plant.select(np.zeros(sizes.pop(), dtype=int))
     ts, total, prewarp = _validate(plant, ts, method, delay, prewarp)
     num = np.array(plant.num)
     den = np.array(plant.den)
