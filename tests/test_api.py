@@ -13,6 +13,7 @@ EXPECTED_PUBLIC_NAMES = {
     "load_schedule",
     "Schedule",
     "discretize",
+    "discretize_loop",
 }
 
 

@@ -11,7 +11,7 @@ __version__ = "0.1.0"
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
 from .schedule import Schedule, load_schedule
-from .lti.discretize import discretize
+from .lti.discretize import discretize, discretize_loop
 
 __all__ = [
     "__version__",
@@ -24,4 +24,5 @@ __all__ = [
     "load_schedule",
     "Schedule",
     "discretize",
+    "discretize_loop",
 ]

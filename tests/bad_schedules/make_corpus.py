@@ -42,7 +42,7 @@ CASES = [
  ("missing_period", [("  period: 1.0e-4\n", "")], "missing required key 'period'", "sampling.period", "method: zoh", True),
  ("values_wrong_type", [("values: [0, 1000, 2000, 3000]", "values: fast")], "expected a list", "variables[0].values", "fast", True),
  ("expression_syntax", [('"2.0e-4 * (1 + speed / 6000)"', '"2.0e-4 * (1 + speed / "')], "cannot parse expression", "parameters.J", '"2.0e-4 * (1', False),
- ("unknown_name", [('["J", "B"]', '["Jx", "B"]')], "did you mean 'J'", "plant.transfer_function.denominator[0]", '"Jx"', True),
+ ("unknown_name", [('["J", "B"]', '["Jx", "B"]')], "did you mean 'J'", "plant.transfer_function.denominator[0]", 'Jx"', True),
  ("circular_parameters", [("  B: 1.0e-4", '  B: "1.0e-4 * C"\n  C: "2 * B"')], "circular parameter definitions: B -> C -> B", "parameters.B", '"1.0e-4 * C"', True),
  ("division_by_zero", [("  B: 1.0e-4", '  B: "1.0e-4 / (speed - 2000)"')], "speed=2000 rpm", "parameters.B", '"1.0e-4 / (speed', True),
  ("sqrt_negative", [("  B: 1.0e-4", '  B: "sqrt(1000 - speed) * 1e-5"')], "not a number", "parameters.B", '"sqrt(1000', True),
@@ -71,7 +71,7 @@ CASES = [
  ("duplicate_key", [("  B: 1.0e-4", "  B: 1.0e-4\n  Kt: 0.06")], "duplicate key 'Kt'", "parameters.Kt", "Kt: 0.06", True),
  ("forbidden_call", [("  B: 1.0e-4", "  B: \"__import__('os').getpid()\"")], "only calls of the functions", "parameters.B", "\"__import__", False),
  ("caret_power", [('"2.0e-4 * (1 + speed / 6000)"', '"2.0e-4 * (1 + speed^2)"')], "use ** for powers", "parameters.J", '"2.0e-4 * (1 + speed^2)"', False),
- ("ts_in_parameter", [("  B: 1.0e-4", '  B: "1.0e-4 * ts / 1e-4"')], "available only in sampling.delay and plant.dead_time", "parameters.B", '"1.0e-4 * ts', True),
+ ("ts_in_parameter", [("  B: 1.0e-4", '  B: "1.0e-4 * ts / 1e-4"')], "available only in sampling.delay and plant.dead_time", "parameters.B", 'ts / 1e-4', True),
  ("too_many_variables", [("parameters:", "  - name: load\n    values: [0, 1]\n  - name: temp\n    values: [0, 1]\nparameters:")], "at most 2 scheduling variables", "variables", "- name: speed", True),
  ("monotone_unknown_coefficient", [("codegen:", "table:\n  monotone: {kd_b: increasing}\ncodegen:")], "unknown pi coefficient 'kd_b'", "table.monotone.kd_b", "increasing}", True),
  ("reserved_variable_name", [("  - name: speed", "  - name: pi"), ("speed / 6000", "pi / 6000")], "reserved", "variables[0].name", "pi\n", True),
@@ -83,6 +83,7 @@ CASES = [
  ("two_plant_forms", [('    denominator: ["J", "B"]\n', '    denominator: ["J", "B"]\n  zpk: {poles: [-1], gain: 1}\n')], "exactly one of transfer_function, zpk, state_space; found transfer_function and zpk", "plant", "transfer_function:", True),
  ("nonfinite_number", [("  Kt: 0.05", "  Kt: .inf")], "finite number", "parameters.Kt", ".inf", True),
  ("bad_schedule_name", [("name: corpus-base", "name: 2-corpus")], "must start with a letter", "name", "2-corpus", True),
+ ("p_without_zero", [("structure: pi", "structure: p")], "structure 'p' has none", "controller.strategy", "pole-cancel", True),
  ("unsupported_tag", [("  Kt: 0.05", "  Kt: !!python/object:os.system 0.05")], "unsupported YAML tag", "parameters.Kt", "!!python", True),
 ]
 out = os.path.dirname(os.path.abspath(__file__))
