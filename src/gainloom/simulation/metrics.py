@@ -16,15 +16,18 @@ Definitions
   reference step, or of the largest ``|r|`` when there is no step, else
   of the peak deviation itself).
 - Instability (first criterion that fires):
-  ``diverged``: a non-finite value or ``|e| > 1e6 * scale``, where scale is
-  the largest of ``|r|``, the reference step and ``|y|`` in the first
-  eighth of the run;
+  ``diverged``: a non-finite value (a run is stopped once ``|y|`` passes
+  1e100) or ``|e| > 1e6 * scale``, where scale is the largest of ``|r|``
+  and of ``|y|`` over the first 3 samples after each event (the start, a
+  reference breakpoint, a load step): the size of the run's excitation;
   ``growing``: the run cut into 8 equal time windows, the peak ``|e|`` in
   each of the last three windows is at least 1.5 times that of the window
   before, and the last peak exceeds ``1e-6 * scale`` (geometric growth;
   linear or quadratic drift under a ramp does not fire);
   ``limit_cycle``: in each of the last two windows the controller output
-  is pushed beyond both limits (a saturated oscillation).
+  changes between unsaturated, low rail and high rail at least 4 times (a
+  saturated oscillation; a steady saturation at one rail is not flagged
+  here, it shows in the saturation time).
   A loop whose growth is slower than 1.5 times per eighth of the run is
   not flagged: lengthen the run to see it.
 """
@@ -208,7 +211,7 @@ def measure(
     low, high = limits
     saturated = (unsaturated > high) | (unsaturated < low)
     saturation_time = float(np.sum(periods[saturated & np.isfinite(unsaturated)]))
-    instability = detect_instability(times, periods, reference, output, unsaturated, limits)
+    instability = detect_instability(times, periods, reference, output, unsaturated, limits, [0.0] + events)
     return SimulationMetrics(
         rms_error=rms,
         max_error=peak,
@@ -230,17 +233,22 @@ def detect_instability(
     output: np.ndarray,
     unsaturated: np.ndarray,
     limits: tuple[float, float],
+    events: list[float] | tuple[float, ...] = (0.0,),
 ) -> Instability:
-    """Apply the three criteria of the module docstring in order."""
+    """Apply the three criteria of the module docstring in order.
+
+    ``events`` are the times (s) of the start, reference breakpoints and
+    load steps; the output just after them sets the divergence scale.
+    """
     error = reference - output
     span = float(times[-1] + periods[-1])
     edges = np.linspace(0.0, span, GROWTH_WINDOWS + 1)
-    first = times < edges[1]
-    early = output[first & np.isfinite(output)]
+    starts = np.searchsorted(times, np.asarray(events, dtype=float))
+    early = np.unique(np.clip(starts[:, np.newaxis] + np.arange(3), 0, times.size - 1))
+    early_output = output[early]
     scale = max(
         float(np.max(np.abs(reference))),
-        float(np.max(np.abs(np.diff(reference)), initial=0.0)),
-        float(np.max(np.abs(early), initial=0.0)),
+        float(np.max(np.abs(early_output[np.isfinite(early_output)]), initial=0.0)),
         1e-12,
     )
     bad = np.flatnonzero(~np.isfinite(error) | (np.abs(np.nan_to_num(error, nan=np.inf)) > DIVERGENCE_FACTOR * scale))
@@ -269,15 +277,17 @@ def detect_instability(
                 + f" over the last {GROWTH_RUN} of {GROWTH_WINDOWS} windows (criterion: each >= {GROWTH_RATIO}x)",
             )
         low, high = limits
-        both = [
-            bool(np.any(unsaturated[which == w] > high) and np.any(unsaturated[which == w] < low))
+        rail = np.where(unsaturated > high, 1, np.where(unsaturated < low, -1, 0))
+        toggles = [
+            int(np.count_nonzero(np.diff(rail[which == w])))
             for w in (GROWTH_WINDOWS - 2, GROWTH_WINDOWS - 1)
         ]
-        if all(both):
+        if min(toggles) >= 4:
             return Instability(
                 True,
                 "limit_cycle",
                 float(edges[GROWTH_WINDOWS - 2]),
-                "the controller output was driven beyond both limits in each of the last 2 windows",
+                f"the controller output changed between the rails and the linear range {toggles[0]} and {toggles[1]} times "
+                "in the last 2 windows (criterion: at least 4 each)",
             )
     return Instability(False, None, None, "no divergence, growth or saturated oscillation detected")

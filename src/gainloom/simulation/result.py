@@ -10,6 +10,23 @@ from .metrics import SimulationMetrics
 
 __all__ = ["SpecCheck", "SimulationResult", "REALISATION"]
 
+
+def _plain(value):
+    """Arrays and floats as JSON values: non-finite numbers become ``None``."""
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return _plain(value.tolist())
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return float(value) if np.isfinite(value) else None
+    return value
+
 #: The plant realisation the simulator carries the state in (see plant.py).
 REALISATION = "controllable canonical (scipy.signal.tf2ss convention), one realisation for every point"
 
@@ -90,7 +107,8 @@ class SimulationResult:
         return self.stable and all(check.passed for check in self.checks)
 
     def to_dict(self, series: bool = True) -> dict:
-        """JSON-ready plain data; ``series=False`` leaves out the per-sample arrays."""
+        """JSON-ready plain data (non-finite numbers as ``None``); ``series=False``
+        leaves out the per-sample arrays."""
         data = {
             "number_format": self.number_format,
             "structure": self.structure,
@@ -109,18 +127,18 @@ class SimulationResult:
         }
         if series:
             data["series"] = {
-                "time": self.time.tolist(),
-                "sample_period": self.sample_period.tolist(),
-                "points": {name: self.points[:, i].tolist() for i, name in enumerate(self.axis_names)},
-                "reference": self.reference.tolist(),
-                "output": self.output.tolist(),
-                "control": self.control.tolist(),
-                "unsaturated": self.unsaturated.tolist(),
-                "disturbance": self.disturbance.tolist(),
-                "gains": {name: values.tolist() for name, values in self.gains.items()},
-                "states": {name: values.tolist() for name, values in self.states.items()},
+                "time": self.time,
+                "sample_period": self.sample_period,
+                "points": {name: self.points[:, i] for i, name in enumerate(self.axis_names)},
+                "reference": self.reference,
+                "output": self.output,
+                "control": self.control,
+                "unsaturated": self.unsaturated,
+                "disturbance": self.disturbance,
+                "gains": self.gains,
+                "states": self.states,
             }
-        return data
+        return _plain(data)
 
     def summary(self) -> list[str]:
         """Human-readable lines: verdict, metrics, checks, warnings."""
