@@ -10,6 +10,9 @@ EXPECTED_PUBLIC_NAMES = {
     "DesignError",
     "CodegenError",
     "Loop",
+    "load_schedule",
+    "Schedule",
+    "discretize",
 }
 
 

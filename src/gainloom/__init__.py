@@ -10,6 +10,8 @@ __version__ = "0.1.0"
 
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
+from .schedule import Schedule, load_schedule
+from .lti.discretize import discretize
 
 __all__ = [
     "__version__",
@@ -19,4 +21,7 @@ __all__ = [
     "DesignError",
     "CodegenError",
     "Loop",
+    "load_schedule",
+    "Schedule",
+    "discretize",
 ]
