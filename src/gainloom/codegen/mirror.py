@@ -31,7 +31,7 @@ from ..errors import CodegenError
 from .layout import AxisLayout, TableLayout
 from .qformat import STATE_FRAC, lerp_fixed, mul_frac, rshift_round, saturate
 
-__all__ = ["state_fields", "locate", "lookup_gains", "StepTrace", "run_steps"]
+__all__ = ["state_fields", "locate", "lookup_gains", "StepTrace", "run_steps", "output_code"]
 
 _STATE_FIELDS = {
     "p": ("e1",),
@@ -182,6 +182,15 @@ def run_steps(layout: TableLayout, gains: dict[str, np.ndarray], errors) -> Step
     return _run_float(layout, gains, np.asarray(errors, dtype=np.float32))
 
 
+def output_code(layout: TableLayout, u: int) -> int:
+    """Fixed-point output integer for an internal Q3.28 value ``u`` (as the C
+    ``return`` of the step function: rounded and saturated to Q15/Q31)."""
+    shift = layout.fmt.signal_frac - STATE_FRAC
+    if shift < 0:
+        return saturate(rshift_round(int(u), -shift), layout.fmt.bits)
+    return saturate(int(u) * (1 << shift), layout.fmt.bits)
+
+
 def _run_fixed(layout: TableLayout, gains: dict[str, np.ndarray], errors: np.ndarray) -> StepTrace:
     fmt = layout.fmt
     structure = layout.structure
@@ -228,12 +237,7 @@ def _run_fixed(layout: TableLayout, gains: dict[str, np.ndarray], errors: np.nda
             else:
                 u = saturate(proportional + derivative, 32)
         state["e1"] = es
-        u = min(max(u, u_min), u_max)
-        if to_state_shift < 0:
-            out = saturate(rshift_round(u, -to_state_shift), fmt.bits)
-        else:
-            out = saturate(u * (1 << to_state_shift), fmt.bits)
-        outputs.append(out)
+        outputs.append(output_code(layout, min(max(u, u_min), u_max)))
         for name in fields:
             history[name].append(state[name])
     return StepTrace(
