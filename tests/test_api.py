@@ -12,6 +12,7 @@ EXPECTED_PUBLIC_NAMES = {
     "Loop",
     "load_schedule",
     "Schedule",
+    "discretize",
 }
 
 

@@ -11,6 +11,7 @@ __version__ = "0.1.0"
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
 from .schedule import Schedule, load_schedule
+from .lti.discretize import discretize
 
 __all__ = [
     "__version__",
@@ -22,4 +23,5 @@ __all__ = [
     "Loop",
     "load_schedule",
     "Schedule",
+    "discretize",
 ]
