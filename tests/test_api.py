@@ -10,6 +10,9 @@ EXPECTED_PUBLIC_NAMES = {
     "DesignError",
     "CodegenError",
     "Loop",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
 }
 
 

@@ -10,6 +10,8 @@ __version__ = "0.1.0"
 
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
+from .lti.closed_loop import closed_loop_poles
+from .lti.margins import Margins, loop_margins
 
 __all__ = [
     "__version__",
@@ -19,4 +21,7 @@ __all__ = [
     "DesignError",
     "CodegenError",
     "Loop",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
 ]
