@@ -13,6 +13,9 @@ EXPECTED_PUBLIC_NAMES = {
     "load_schedule",
     "Schedule",
     "discretize",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
 }
 
 
