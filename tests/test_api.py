@@ -10,6 +10,12 @@ EXPECTED_PUBLIC_NAMES = {
     "DesignError",
     "CodegenError",
     "Loop",
+    "load_schedule",
+    "Schedule",
+    "discretize",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
 }
 
 

@@ -10,6 +10,10 @@ __version__ = "0.1.0"
 
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
+from .schedule import Schedule, load_schedule
+from .lti.discretize import discretize
+from .lti.closed_loop import closed_loop_poles
+from .lti.margins import Margins, loop_margins
 
 __all__ = [
     "__version__",
@@ -19,4 +23,10 @@ __all__ = [
     "DesignError",
     "CodegenError",
     "Loop",
+    "load_schedule",
+    "Schedule",
+    "discretize",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
 ]

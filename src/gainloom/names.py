@@ -15,6 +15,11 @@ __all__ = [
     "INTERPOLATIONS",
     "CONTROLLER_COEFFICIENTS",
     "unknown_name_message",
+    "DESIGN_STRATEGIES",
+    "SWEEP_OBJECTIVES",
+    "CANCEL_TARGETS",
+    "TOLERANCE_SAMPLINGS",
+    "MONOTONE_DIRECTIONS",
 ]
 
 #: Discretisation methods: zero-order hold, first-order (triangle) hold,
@@ -42,6 +47,21 @@ NUMBER_FORMATS: tuple[str, ...] = ("float32", "q15", "q31")
 
 #: How firmware interpolates between table points.
 INTERPOLATIONS: tuple[str, ...] = ("linear", "bilinear")
+
+#: How the scheduler picks gains at each point (schedule key controller.strategy).
+DESIGN_STRATEGIES: tuple[str, ...] = ("pole-cancel", "dominant-pair", "shape-sweep")
+
+#: What shape-sweep optimises over the swept controller-zero locations.
+SWEEP_OBJECTIVES: tuple[str, ...] = ("fastest", "most-damped", "nearest-target")
+
+#: Which plant pole the pole-cancel strategy places the controller zero on.
+CANCEL_TARGETS: tuple[str, ...] = ("slowest", "fastest")
+
+#: How tolerance combinations are sampled (tolerances.samples).
+TOLERANCE_SAMPLINGS: tuple[str, ...] = ("corners", "space_filling")
+
+#: Required direction of a coefficient along each table axis (table.monotone).
+MONOTONE_DIRECTIONS: tuple[str, ...] = ("increasing", "decreasing")
 
 
 def unknown_name_message(kind: str, name: str, known: tuple[str, ...]) -> str:

@@ -1,0 +1,322 @@
+"""The loaded schedule as plain frozen data.
+
+Section dataclasses mirror the YAML keys (snake_case, defaults filled) so the
+design, codegen and report layers read one validated object instead of the
+file.  The operating-point family itself (parameters, plant, sampling) is kept
+as a compiled recipe so it can be evaluated at any point, not just the grid.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from ..lti.loop import Loop
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .family import Family
+
+__all__ = [
+    "Axis",
+    "Sampling",
+    "Target",
+    "Sweep",
+    "ControllerSection",
+    "SpecOverride",
+    "SpecSection",
+    "TableChecks",
+    "Tolerances",
+    "CodegenSection",
+    "PointModels",
+    "Schedule",
+]
+
+
+@dataclass(frozen=True, eq=False)
+class Axis:
+    """One scheduling variable.
+
+    Parameters
+    ----------
+    name : str
+        Identifier used in expressions.
+    unit : str
+        Unit for display only (``""`` when not given).
+    values : ndarray, shape (n,)
+        Grid values, strictly increasing, at least two.
+    """
+
+    name: str
+    unit: str
+    values: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
+class Sampling:
+    """Sampling of the loop at every grid point.
+
+    Parameters
+    ----------
+    period : ndarray, shape (P,)
+        Sample period in seconds.
+    method : str
+        Hold/discretisation method, one of :data:`gainloom.names.HOLD_METHODS`.
+    delay : ndarray, shape (P,)
+        Computation delay in samples (fractional only with ``zoh``).
+    prewarp : float or None
+        Tustin prewarp frequency in rad/s.
+    """
+
+    period: np.ndarray
+    method: str
+    delay: np.ndarray
+    prewarp: float | None
+
+
+@dataclass(frozen=True)
+class Target:
+    """Desired dominant closed-loop pair: damping ratio and natural frequency (rad/s)."""
+
+    damping: float
+    natural_frequency: float
+
+
+@dataclass(frozen=True)
+class Sweep:
+    """Range of the controller-zero location in z swept by ``shape-sweep``.
+
+    Parameters
+    ----------
+    range : tuple of float
+        ``(low, high)``, ``-1 < low < high < 1``.
+    count : int
+        Number of locations, at least 2.
+    """
+
+    range: tuple[float, float]
+    count: int
+
+
+@dataclass(frozen=True)
+class ControllerSection:
+    """The ``controller`` section, defaults filled.
+
+    ``objective`` is set only for ``shape-sweep``, ``zero_on`` only for
+    ``pole-cancel``, ``sweep`` only for ``shape-sweep`` (defaulted), ``target``
+    for ``dominant-pair`` and ``nearest-target``; ``derivative_filter``
+    (seconds) only for ``pd``/``pid``.  ``output_limits`` is ``(low, high)``
+    in actuator units.
+    """
+
+    structure: str
+    strategy: str
+    output_limits: tuple[float, float]
+    objective: str | None = None
+    zero_on: str | None = None
+    target: Target | None = None
+    sweep: Sweep | None = None
+    derivative_filter: float | None = None
+    compare_continuous: bool = False
+
+
+@dataclass(frozen=True)
+class SpecOverride:
+    """One ``specs.overrides`` entry.
+
+    Parameters
+    ----------
+    where : dict of str to (float, float)
+        Closed range per scheduling variable; a point matches when it is in
+        every range.
+    set : dict of str to value
+        Spec keys and their values in that region (``None`` = not required
+        there; ``natural_frequency`` is a ``(min, max)`` pair).
+    """
+
+    where: dict[str, tuple[float, float]]
+    set: dict[str, Any]
+
+
+@dataclass(frozen=True)
+class SpecSection:
+    """The ``specs`` section: ``None`` means "not required".
+
+    Units: ``max_overshoot`` percent, ``max_settling_time`` s (2 %),
+    ``natural_frequency`` rad/s ``(min, max)`` (either may be ``None``),
+    ``min_gain_margin`` dB, ``min_phase_margin`` degrees,
+    ``min_delay_margin`` s, ``max_sensitivity_peak`` absolute,
+    ``max_gain`` in the units of the controller coefficients.
+    """
+
+    min_damping: float | None = None
+    max_overshoot: float | None = None
+    max_settling_time: float | None = None
+    natural_frequency: tuple[float | None, float | None] | None = None
+    max_pole_radius: float | None = None
+    min_gain_margin: float | None = None
+    min_phase_margin: float | None = None
+    min_delay_margin: float | None = None
+    max_sensitivity_peak: float | None = None
+    system_type: int | None = None
+    max_gain: float | None = None
+    overrides: tuple[SpecOverride, ...] = ()
+
+
+@dataclass(frozen=True)
+class TableChecks:
+    """The ``table`` section (whole-table checks).
+
+    Parameters
+    ----------
+    max_relative_step : float or None
+        Largest allowed relative change of a coefficient between neighbours.
+    monotone : dict of str to str
+        Coefficient name -> ``"increasing"`` or ``"decreasing"``.
+    between_points : int
+        Intermediate points checked per grid interval (default 3).
+    refine_max_inserted : int
+        ``table.refine.max_inserted``: bound on automatically inserted grid
+        points; 0 = refinement off (default).
+    """
+
+    max_relative_step: float | None = None
+    monotone: dict[str, str] = field(default_factory=dict)
+    between_points: int = 3
+    refine_max_inserted: int = 0
+
+
+@dataclass(frozen=True)
+class Tolerances:
+    """The ``tolerances`` section.
+
+    Parameters
+    ----------
+    parameters : dict of str to (float, float)
+        Independent parameter -> ``(minus, plus)`` relative magnitudes: the
+        parameter ranges over ``[1 - minus, 1 + plus]`` times its nominal value.
+    samples : str or (int, int)
+        ``"corners"`` or ``(count, seed)`` for space-filling samples.
+    """
+
+    parameters: dict[str, tuple[float, float]] = field(default_factory=dict)
+    samples: str | tuple[int, int] = "corners"
+
+
+@dataclass(frozen=True)
+class CodegenSection:
+    """The ``codegen`` section: C identifier prefix and number format."""
+
+    prefix: str
+    format: str
+
+
+@dataclass(frozen=True, eq=False)
+class PointModels:
+    """Everything the schedule says at a set of operating points.
+
+    Parameters
+    ----------
+    points : ndarray, shape (Q, n_axes)
+        The operating points (scheduling-variable values).
+    parameters : dict of str to ndarray, shape (Q,)
+        Every parameter, tolerance scale applied.
+    plant : Loop
+        Continuous plant, batched over the points, ``dead_time`` set (s).
+    sample_period : ndarray, shape (Q,)
+        Sample period in seconds.
+    delay : ndarray, shape (Q,)
+        Computation delay in samples.
+    """
+
+    points: np.ndarray
+    parameters: dict[str, np.ndarray]
+    plant: Loop
+    sample_period: np.ndarray
+    delay: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
+class Schedule:
+    """A validated schedule file.
+
+    Build it with :func:`gainloom.load_schedule`.  Grid arrays are indexed by
+    operating point ``p`` in product order, first axis slowest
+    (``points.reshape(grid_shape + (n_axes,))`` recovers the grid).
+    """
+
+    path: str
+    sha256: str
+    name: str
+    description: str
+    axes: tuple[Axis, ...]
+    points: np.ndarray
+    grid_shape: tuple[int, ...]
+    parameters: dict[str, np.ndarray]
+    plant: Loop
+    sampling: Sampling
+    controller: ControllerSection
+    specs: SpecSection
+    table_checks: TableChecks
+    tolerances: Tolerances
+    codegen: CodegenSection
+    warnings: tuple[str, ...]
+    family: "Family" = field(repr=False)
+
+    @property
+    def axis_names(self) -> tuple[str, ...]:
+        """Names of the scheduling variables, slowest first."""
+        return tuple(axis.name for axis in self.axes)
+
+    def describe_point(self, point: np.ndarray) -> str:
+        """Return e.g. ``"speed=3000 rpm, load=0.5"`` for one operating point."""
+        return self.family.describe(np.asarray(point, dtype=float))
+
+    def evaluate(self, points: np.ndarray, scale: dict[str, float] | None = None) -> PointModels:
+        """Evaluate parameters, plant and sampling at arbitrary operating points.
+
+        Parameters
+        ----------
+        points : ndarray, shape (Q, n_axes)
+            Scheduling-variable values (units as in the schedule), e.g.
+            points between grid points.
+        scale : dict of str to float, optional
+            Factors applied to named independent parameters before any
+            dependent expression is evaluated (tolerance corners).
+
+        Returns
+        -------
+        PointModels
+
+        Raises
+        ------
+        ScheduleError
+            An expression is not finite at one of the points, or tabulated
+            data do not cover it (the message names the point).
+        InputError
+            Bad ``points`` shape or a scale on an unknown or dependent parameter.
+        """
+        return self.family.evaluate(points, scale)
+
+    def spec_values(self, points: np.ndarray) -> dict[str, np.ndarray]:
+        """Spec bounds at each point with overrides resolved.
+
+        Parameters
+        ----------
+        points : ndarray, shape (Q, n_axes)
+
+        Returns
+        -------
+        dict of str to ndarray, shape (Q,)
+            Keys: ``min_damping`` (the stricter of the written damping and the
+            one implied by ``max_overshoot``), ``max_overshoot`` (percent),
+            ``max_settling_time``, ``min_natural_frequency``,
+            ``max_natural_frequency``, ``max_pole_radius``,
+            ``min_gain_margin``, ``min_phase_margin``, ``min_delay_margin``,
+            ``max_sensitivity_peak``, ``system_type``, ``max_gain``.  NaN
+            where a spec is not required.
+        """
+        from .specs import resolve_specs
+
+        return resolve_specs(self.specs, self.axis_names, np.asarray(points, dtype=float))

@@ -1,0 +1,360 @@
+"""Readers for the sections that hold settings, not plant data:
+``controller``, ``specs``, ``table``, ``tolerances`` and ``codegen``.
+
+Each takes the section's :class:`~gainloom.schedule.nodes.Node` and returns
+the frozen dataclass of :mod:`gainloom.schedule.model`, raising
+:class:`~gainloom.errors.ScheduleError` at the offending key.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable
+from typing import Any
+
+from .. import names
+from .model import (
+    CodegenSection,
+    ControllerSection,
+    SpecOverride,
+    SpecSection,
+    Sweep,
+    TableChecks,
+    Target,
+    Tolerances,
+)
+from .nodes import Node
+
+__all__ = [
+    "read_controller",
+    "read_specs",
+    "read_table_checks",
+    "read_tolerances",
+    "read_codegen",
+    "valid_c_prefix",
+    "SPEC_KEYS",
+]
+
+CONTROLLER_KEYS = (
+    "structure",
+    "strategy",
+    "objective",
+    "zero_on",
+    "target",
+    "sweep",
+    "derivative_filter",
+    "output_limits",
+    "compare_continuous",
+)
+
+#: Default controller-zero sweep of shape-sweep: location in z and count.
+DEFAULT_SWEEP = Sweep(range=(0.5, 0.999), count=60)
+
+# C99 keywords plus common reserved words a prefix must not be.
+_C_KEYWORDS = frozenset(
+    "auto break case char const continue default do double else enum extern float for goto if inline int "
+    "long register restrict return short signed sizeof static struct switch typedef union unsigned void "
+    "volatile while _Bool _Complex _Imaginary bool true false".split()
+)
+_C_IDENTIFIER = re.compile(r"[A-Za-z][A-Za-z0-9_]*\Z")
+#: Longest prefix accepted: leaves room for "_<op>_<format>" within the 63
+#: significant characters C99 guarantees for internal identifiers.
+MAX_PREFIX_LENGTH = 31
+
+
+def _positive(node: Node, what: str) -> float:
+    value = node.number()
+    if value <= 0:
+        raise node.error(f"{what} must be positive; found {value:g}")
+    return value
+
+
+def _in_range(node: Node, what: str, low: float, high: float, *, open_low: bool = True, open_high: bool = False) -> float:
+    value = node.number()
+    too_low = value <= low if open_low else value < low
+    too_high = value >= high if open_high else value > high
+    if too_low or too_high:
+        left = "(" if open_low else "["
+        right = ")" if open_high else "]"
+        raise node.error(f"{what} must be in {left}{low:g}, {high:g}{right}; found {value:g}")
+    return value
+
+
+def _pair(node: Node, what: str, allow_null: bool = False) -> tuple[float | None, float | None]:
+    items = node.sequence()
+    if len(items) != 2:
+        raise node.error(f"{what} must be a list of two numbers [low, high]; found {len(items)} entries")
+    values = [None if (allow_null and item.is_null) else item.number() for item in items]
+    if all(v is not None for v in values) and not values[0] < values[1]:
+        raise node.error(f"{what} must be [low, high] with low < high; found [{values[0]:g}, {values[1]:g}]")
+    return values[0], values[1]
+
+
+def read_controller(node: Node) -> ControllerSection:
+    """Read the ``controller`` section (structure, strategy, output limits required)."""
+    keys = node.mapping(CONTROLLER_KEYS, required=("structure", "strategy", "output_limits"))
+    structure = keys["structure"].choice("controller structure", names.CONTROLLER_STRUCTURES)
+    strategy = keys["strategy"].choice("design strategy", names.DESIGN_STRATEGIES)
+
+    def only_for(key: str, allowed: bool, condition: str) -> None:
+        if key in keys and not allowed:
+            raise keys[key].error(f"{key} applies only when {condition}; strategy is {strategy!r}")
+
+    only_for("objective", strategy == "shape-sweep", "strategy is 'shape-sweep'")
+    only_for("zero_on", strategy == "pole-cancel", "strategy is 'pole-cancel'")
+    only_for("sweep", strategy == "shape-sweep", "strategy is 'shape-sweep'")
+    objective = zero_on = None
+    sweep = None
+    if strategy == "shape-sweep":
+        objective = keys["objective"].choice("sweep objective", names.SWEEP_OBJECTIVES) if "objective" in keys else "fastest"
+        sweep = _read_sweep(keys["sweep"]) if "sweep" in keys else DEFAULT_SWEEP
+    if strategy == "pole-cancel":
+        zero_on = keys["zero_on"].choice("cancel target", names.CANCEL_TARGETS) if "zero_on" in keys else "slowest"
+    needs_target = strategy == "dominant-pair" or objective == "nearest-target"
+    target = None
+    if needs_target:
+        if "target" not in keys:
+            raise node.error(
+                f"missing required key 'target' ({{damping, natural_frequency}}) for "
+                f"{'strategy dominant-pair' if strategy == 'dominant-pair' else 'objective nearest-target'}",
+                path=node.child_path("target"),
+            )
+        target = _read_target(keys["target"])
+    elif "target" in keys:
+        raise keys["target"].error("target applies only to strategy 'dominant-pair' or objective 'nearest-target'")
+    derivative_filter = None
+    if structure in ("pd", "pid"):
+        if "derivative_filter" not in keys:
+            raise node.error(
+                f"missing required key 'derivative_filter' (filter time constant in s) for structure {structure!r}",
+                path=node.child_path("derivative_filter"),
+            )
+        derivative_filter = _positive(keys["derivative_filter"], "derivative filter time constant")
+    elif "derivative_filter" in keys:
+        raise keys["derivative_filter"].error(f"derivative_filter applies only to pd and pid, not {structure!r}")
+    low, high = _pair(keys["output_limits"], "output_limits")
+    compare = keys["compare_continuous"].boolean() if "compare_continuous" in keys else False
+    return ControllerSection(
+        structure=structure,
+        strategy=strategy,
+        output_limits=(low, high),
+        objective=objective,
+        zero_on=zero_on,
+        target=target,
+        sweep=sweep,
+        derivative_filter=derivative_filter,
+        compare_continuous=compare,
+    )
+
+
+def _read_target(node: Node) -> Target:
+    keys = node.mapping(("damping", "natural_frequency"), required=("damping", "natural_frequency"))
+    damping = _in_range(keys["damping"], "target damping ratio", 0.0, 1.0)
+    frequency = _positive(keys["natural_frequency"], "target natural frequency (rad/s)")
+    return Target(damping=damping, natural_frequency=frequency)
+
+
+def _read_sweep(node: Node) -> Sweep:
+    keys = node.mapping(("range", "count"))
+    low, high = _pair(keys["range"], "sweep range") if "range" in keys else DEFAULT_SWEEP.range
+    if "range" in keys and not (-1.0 < low and high < 1.0):
+        raise keys["range"].error(
+            f"sweep range is a controller-zero location in z and must lie inside (-1, 1); found [{low:g}, {high:g}]"
+        )
+    count = DEFAULT_SWEEP.count
+    if "count" in keys:
+        count = keys["count"].integer()
+        if count < 2:
+            raise keys["count"].error(f"sweep count must be at least 2; found {count}")
+    return Sweep(range=(low, high), count=count)
+
+
+# -- specs ----------------------------------------------------------------------
+
+def _read_natural_frequency(node: Node) -> tuple[float | None, float | None]:
+    low, high = _pair(node, "natural_frequency [min, max] (rad/s)", allow_null=True)
+    for value in (low, high):
+        if value is not None and value <= 0:
+            raise node.error(f"natural frequency bounds must be positive (rad/s); found {value:g}")
+    return low, high
+
+
+def _read_system_type(node: Node) -> int:
+    value = node.integer()
+    if value not in (0, 1):
+        raise node.error(f"system_type must be 0 (finite step error) or 1 (zero step error); found {value}")
+    return value
+
+
+#: Spec key -> reader of its value (shared by specs and specs.overrides[].set).
+SPEC_KEYS: dict[str, Callable[[Node], Any]] = {
+    "min_damping": lambda n: _in_range(n, "min_damping", 0.0, 1.0),
+    "max_overshoot": lambda n: _in_range(n, "max_overshoot (percent)", 0.0, 100.0, open_high=True),
+    "max_settling_time": lambda n: _positive(n, "max_settling_time (s)"),
+    "natural_frequency": _read_natural_frequency,
+    "max_pole_radius": lambda n: _in_range(n, "max_pole_radius", 0.0, 1.0),
+    "min_gain_margin": lambda n: _positive(n, "min_gain_margin (dB)"),
+    "min_phase_margin": lambda n: _in_range(n, "min_phase_margin (degrees)", 0.0, 180.0, open_high=True),
+    "min_delay_margin": lambda n: _positive(n, "min_delay_margin (s)"),
+    "max_sensitivity_peak": lambda n: _in_range(n, "max_sensitivity_peak", 1.0, float("inf"), open_high=True),
+    "system_type": _read_system_type,
+    "max_gain": lambda n: _positive(n, "max_gain"),
+}
+
+
+def read_specs(node: Node | None, axis_names: tuple[str, ...]) -> SpecSection:
+    """Read the optional ``specs`` section; overrides name scheduling variables."""
+    if node is None or node.is_null:
+        return SpecSection()
+    keys = node.mapping(tuple(SPEC_KEYS) + ("overrides",))
+    values = {key: None if child.is_null else SPEC_KEYS[key](child) for key, child in keys.items() if key != "overrides"}
+    overrides: list[SpecOverride] = []
+    if "overrides" in keys:
+        for item in keys["overrides"].sequence():
+            entry = item.mapping(("where", "set"), required=("where", "set"))
+            where: dict[str, tuple[float, float]] = {}
+            for name, range_node in entry["where"].mapping().items():
+                if name not in axis_names:
+                    raise range_node.error(names.unknown_name_message("scheduling variable", name, axis_names))
+                where[name] = _pair_closed(range_node, name)
+            settings = entry["set"].mapping(tuple(SPEC_KEYS))
+            if not settings:
+                raise entry["set"].error("set names no spec")
+            overrides.append(
+                SpecOverride(
+                    where=where,
+                    set={k: None if v.is_null else SPEC_KEYS[k](v) for k, v in settings.items()},
+                )
+            )
+    return SpecSection(**values, overrides=tuple(overrides))
+
+
+def _pair_closed(node: Node, name: str) -> tuple[float, float]:
+    items = node.sequence()
+    if len(items) != 2:
+        raise node.error(f"region of {name!r} must be a closed range [low, high]; found {len(items)} entries")
+    low, high = items[0].number(), items[1].number()
+    if low > high:
+        raise node.error(f"region of {name!r} must be [low, high] with low <= high; found [{low:g}, {high:g}]")
+    return low, high
+
+
+# -- table, tolerances, codegen -------------------------------------------------
+
+def read_table_checks(node: Node | None, structure: str) -> TableChecks:
+    """Read the optional ``table`` section; monotone names the structure's coefficients."""
+    if node is None or node.is_null:
+        return TableChecks()
+    keys = node.mapping(("max_relative_step", "monotone", "between_points", "refine"))
+    step = None
+    if "max_relative_step" in keys and not keys["max_relative_step"].is_null:
+        step = _positive(keys["max_relative_step"], "max_relative_step")
+    monotone: dict[str, str] = {}
+    if "monotone" in keys:
+        coefficients = names.CONTROLLER_COEFFICIENTS[structure]
+        for name, direction in keys["monotone"].mapping().items():
+            if name not in coefficients:
+                raise Node(direction.raw, direction.path, direction.file).error(
+                    names.unknown_name_message(f"coefficient of structure {structure!r}", name, coefficients)
+                )
+            monotone[name] = direction.choice("monotone direction", names.MONOTONE_DIRECTIONS)
+    between = 3
+    if "between_points" in keys:
+        between = keys["between_points"].integer()
+        if between < 0:
+            raise keys["between_points"].error(f"between_points must be 0 or more; found {between}")
+    inserted = 0
+    if "refine" in keys:
+        refine = keys["refine"].mapping(("max_inserted",), required=("max_inserted",))
+        inserted = refine["max_inserted"].integer()
+        if inserted < 0:
+            raise refine["max_inserted"].error(f"max_inserted must be 0 (off) or more; found {inserted}")
+    return TableChecks(max_relative_step=step, monotone=monotone, between_points=between, refine_max_inserted=inserted)
+
+
+def read_tolerances(node: Node | None, independent: dict[str, bool]) -> Tolerances:
+    """Read the optional ``tolerances`` section.
+
+    Parameters
+    ----------
+    independent : dict of str to bool
+        Every parameter name -> whether it is independent (names no other
+        parameter).  Tolerances apply only to independent parameters.
+    """
+    if node is None or node.is_null:
+        return Tolerances()
+    keys = node.mapping(("parameters", "samples"))
+    parameters: dict[str, tuple[float, float]] = {}
+    if "parameters" in keys:
+        for name, value in keys["parameters"].mapping().items():
+            if name not in independent:
+                raise value.error(names.unknown_name_message("parameter", name, tuple(independent)))
+            if not independent[name]:
+                raise value.error(
+                    f"tolerance on {name!r} refused: it is computed from other parameters; "
+                    "put the tolerance on the parameters it depends on"
+                )
+            if value.is_sequence:
+                items = value.sequence()
+                if len(items) != 2:
+                    raise value.error(f"tolerance must be a number or [minus, plus]; found {len(items)} entries")
+                minus, plus = items[0].number(), items[1].number()
+                if minus > 0 or plus < 0:
+                    raise value.error(
+                        f"tolerance [minus, plus] is written [-0.1, 0.05] (minus <= 0 <= plus); found [{minus:g}, {plus:g}]"
+                    )
+                minus = -minus
+            else:
+                minus = plus = value.number()
+                if minus < 0:
+                    raise value.error(f"symmetric tolerance must be 0 or more; found {minus:g}")
+            if minus >= 1:
+                raise value.error(f"relative tolerance below nominal must be less than 1 (100 %); found {minus:g}")
+            parameters[name] = (minus, plus)
+    samples: str | tuple[int, int] = "corners"
+    if "samples" in keys:
+        sample_node = keys["samples"]
+        if sample_node.is_mapping:
+            entry = sample_node.mapping(("space_filling", "seed"), required=("space_filling",))
+            count = entry["space_filling"].integer()
+            if count < 1:
+                raise entry["space_filling"].error(f"space_filling sample count must be at least 1; found {count}")
+            seed = entry["seed"].integer() if "seed" in entry else 0
+            if seed < 0:
+                raise entry["seed"].error(f"seed must be 0 or more; found {seed}")
+            samples = (count, seed)
+        else:
+            samples = sample_node.choice("tolerance sampling", ("corners",))
+    return Tolerances(parameters=parameters, samples=samples)
+
+
+def valid_c_prefix(prefix: str) -> str | None:
+    """Return why ``prefix`` is not a usable C identifier prefix, or ``None`` if it is."""
+    if not _C_IDENTIFIER.match(prefix):
+        return "must start with a letter and contain only letters, digits and underscores (a C identifier)"
+    if "__" in prefix:
+        return "must not contain a double underscore (reserved in C)"
+    if prefix.endswith("_"):
+        return "must not end with an underscore (names are joined with '_')"
+    if prefix in _C_KEYWORDS:
+        return "is a C keyword"
+    if len(prefix) > MAX_PREFIX_LENGTH:
+        return f"is longer than {MAX_PREFIX_LENGTH} characters"
+    return None
+
+
+def read_codegen(node: Node | None, schedule_name: str, name_node: Node) -> CodegenSection:
+    """Read the optional ``codegen`` section (prefix defaults to the schedule name, format to float32)."""
+    keys = {} if node is None or node.is_null else node.mapping(("prefix", "format"))
+    if "prefix" in keys:
+        prefix_node = keys["prefix"]
+        prefix = prefix_node.text()
+    else:
+        prefix_node = name_node
+        prefix = re.sub(r"[^A-Za-z0-9]+", "_", schedule_name).strip("_")
+    problem = valid_c_prefix(prefix)
+    if problem:
+        origin = "" if "prefix" in keys else " (derived from the schedule name; set codegen.prefix)"
+        raise prefix_node.error(f"C prefix {prefix!r} {problem}{origin}")
+    number_format = keys["format"].choice("number format", names.NUMBER_FORMATS) if "format" in keys else "float32"
+    return CodegenSection(prefix=prefix, format=number_format)
