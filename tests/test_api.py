@@ -16,6 +16,9 @@ EXPECTED_PUBLIC_NAMES = {
     "closed_loop_poles",
     "Margins",
     "loop_margins",
+    "emit_c",
+    "check_generated_c",
+    "HarnessResult",
 }
 
 

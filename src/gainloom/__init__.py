@@ -14,6 +14,7 @@ from .schedule import Schedule, load_schedule
 from .lti.discretize import discretize
 from .lti.closed_loop import closed_loop_poles
 from .lti.margins import Margins, loop_margins
+from .codegen import HarnessResult, check_generated_c, emit_c
 
 __all__ = [
     "__version__",
@@ -29,4 +30,7 @@ __all__ = [
     "closed_loop_poles",
     "Margins",
     "loop_margins",
+    "emit_c",
+    "check_generated_c",
+    "HarnessResult",
 ]
