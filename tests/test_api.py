@@ -13,6 +13,12 @@ EXPECTED_PUBLIC_NAMES = {
     "load_schedule",
     "Schedule",
     "discretize",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
+    "emit_c",
+    "check_generated_c",
+    "HarnessResult",
 }
 
 

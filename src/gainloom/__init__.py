@@ -12,6 +12,9 @@ from .errors import CodegenError, DesignError, GainloomError, InputError, Schedu
 from .lti.loop import Loop
 from .schedule import Schedule, load_schedule
 from .lti.discretize import discretize
+from .lti.closed_loop import closed_loop_poles
+from .lti.margins import Margins, loop_margins
+from .codegen import HarnessResult, check_generated_c, emit_c
 
 __all__ = [
     "__version__",
@@ -24,4 +27,10 @@ __all__ = [
     "load_schedule",
     "Schedule",
     "discretize",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
+    "emit_c",
+    "check_generated_c",
+    "HarnessResult",
 ]
