@@ -19,6 +19,7 @@ EXPECTED_PUBLIC_NAMES = {
     "emit_c",
     "check_generated_c",
     "HarnessResult",
+    "discretize_loop",
 }
 
 

@@ -275,3 +275,37 @@ def test_schedule_error_is_a_gainloom_error(tmp_path):
     path.write_bytes(b"name: caf\xe9\n")
     with pytest.raises(ScheduleError, match="not UTF-8"):
         load_schedule(path)
+
+
+def test_table_over_a_parameter_is_evaluated_after_it(tmp_path):
+    # the table is written before the parameter it reads: order in the file does not matter
+    text = edited(
+        ("  Kt: 0.05\n", "  Kt: {table: {over: flux, x: [0.5, 1.0], y: [0.02, 0.06]}}\n  flux: \"1 - speed / 6000\"\n")
+    )
+    schedule = load_schedule(write(tmp_path, text))
+    flux = 1 - schedule.points[:, 0] / 6000
+    # reference: numpy.interp on the same data, written out here
+    np.testing.assert_allclose(schedule.parameters["Kt"], np.interp(flux, [0.5, 1.0], [0.02, 0.06]), rtol=1e-14)
+    assert not schedule.family.parameters[[p.name for p in schedule.family.parameters].index("Kt")].independent
+
+
+def test_later_override_wins_and_open_frequency_bounds(tmp_path):
+    text = BASE + (
+        "specs:\n  min_damping: 0.7\n  natural_frequency: [null, 800]\n  overrides:\n"
+        "    - where: {speed: [0, 2000]}\n      set: {min_damping: 0.6}\n"
+        "    - where: {speed: [2000, 3000]}\n      set: {min_damping: 0.5, natural_frequency: [10, null]}\n"
+    )
+    specs = load_schedule(write(tmp_path, text)).spec_values(np.array([0.0, 1000.0, 2000.0, 3000.0]))
+    np.testing.assert_array_equal(specs["min_damping"], [0.6, 0.6, 0.5, 0.5])
+    np.testing.assert_array_equal(specs["min_natural_frequency"][2:], [10, 10])
+    assert np.all(np.isnan(specs["min_natural_frequency"][:2]))
+    np.testing.assert_array_equal(specs["max_natural_frequency"][:2], [800, 800])
+    assert np.all(np.isnan(specs["max_natural_frequency"][2:]))
+
+
+def test_two_axis_point_description_in_errors():
+    schedule = load_schedule(ROOT / "schedules" / "winding_current.yaml")
+    with pytest.raises(ScheduleError) as caught:
+        schedule.evaluate(np.array([[10.0, 20.0], [45.0, 60.0]]))
+    assert "current=45 A, temperature=60 degC" in caught.value.message
+    assert caught.value.key_path == "parameters.L.table.x"

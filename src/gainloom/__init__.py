@@ -11,7 +11,7 @@ __version__ = "0.1.0"
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
 from .schedule import Schedule, load_schedule
-from .lti.discretize import discretize
+from .lti.discretize import discretize, discretize_loop
 from .lti.closed_loop import closed_loop_poles
 from .lti.margins import Margins, loop_margins
 from .codegen import HarnessResult, check_generated_c, emit_c
@@ -33,4 +33,5 @@ __all__ = [
     "emit_c",
     "check_generated_c",
     "HarnessResult",
+    "discretize_loop",
 ]

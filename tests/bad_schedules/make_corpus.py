@@ -83,6 +83,7 @@ CASES = [
  ("two_plant_forms", [('    denominator: ["J", "B"]\n', '    denominator: ["J", "B"]\n  zpk: {poles: [-1], gain: 1}\n')], "exactly one of transfer_function, zpk, state_space; found transfer_function and zpk", "plant", "transfer_function:", True),
  ("nonfinite_number", [("  Kt: 0.05", "  Kt: .inf")], "finite number", "parameters.Kt", ".inf", True),
  ("bad_schedule_name", [("name: corpus-base", "name: 2-corpus")], "must start with a letter", "name", "2-corpus", True),
+ ("p_without_zero", [("structure: pi", "structure: p")], "structure 'p' has none", "controller.strategy", "pole-cancel", True),
  ("unsupported_tag", [("  Kt: 0.05", "  Kt: !!python/object:os.system 0.05")], "unsupported YAML tag", "parameters.Kt", "!!python", True),
 ]
 out = os.path.dirname(os.path.abspath(__file__))

@@ -179,12 +179,13 @@ def _text(data: dict) -> str:
                 _s_text(p["continuous"]["zeros"]),
                 format_number(p["discrete"]["total_delay_samples"]),
                 _z_text(p["discrete"]["poles"]),
+                _z_text(p["discrete"]["zeros"]),
             ]
         )
     lines.append("poles and zeros (continuous in rad/s; discrete as |z| at angle in rad, after hold and delay)")
     lines.append(
         format_table(
-            ["#"] + axis_headers + ["s poles", "s zeros", "total delay", "z poles"],
+            ["#"] + axis_headers + ["s poles", "s zeros", "total delay", "z poles", "z zeros"],
             rows,
         )
     )

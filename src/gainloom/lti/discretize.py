@@ -387,9 +387,8 @@ def _matched(num, den, ts) -> _Rational:
     pole_part = np.prod(_phi(poles, t), axis=1)
     zero_part = np.prod(np.where(finite, _phi(zfin, t), 1.0), axis=1)
     k_disc = (gain * pole_part / zero_part).real / 2.0**r
-    with np.errstate(invalid="ignore"):
-        z_zeros = np.where(finite, np.exp(zfin * t), -1.0 + 0j)
-        d_zeros = np.where(finite, np.expm1(zfin * t) / t, -2.0 / t + 0j)
+    z_zeros = np.where(finite, np.exp(zfin * t), -1.0 + 0j)
+    d_zeros = np.where(finite, np.expm1(zfin * t) / t, -2.0 / t + 0j)
     z_poles = np.exp(poles * t)
     d_poles = np.expm1(poles * t) / t
     num_z = poly_from_roots(z_zeros) * k_disc[:, None]

@@ -124,6 +124,8 @@ def load_schedule(path: str | Path) -> Schedule:
     tolerances = read_tolerances(keys.get("tolerances"), {p.name: p.independent for p in parameters})
     codegen = read_codegen(keys.get("codegen"), name, keys["name"])
 
+    for array in (points, models.sample_period, models.delay, *models.parameters.values()):
+        array.setflags(write=False)  # the Schedule is frozen; so are its arrays
     sampling = Sampling(period=models.sample_period, method=method, delay=models.delay, prewarp=prewarp_value)
     return Schedule(
         path=file,
