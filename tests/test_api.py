@@ -16,6 +16,12 @@ EXPECTED_PUBLIC_NAMES = {
     "closed_loop_poles",
     "Margins",
     "loop_margins",
+    "design",
+    "verify",
+    "DesignResult",
+    "VerifyResult",
+    "read_gains",
+    "write_gains",
 }
 
 

@@ -14,6 +14,9 @@ from .schedule import Schedule, load_schedule
 from .lti.discretize import discretize
 from .lti.closed_loop import closed_loop_poles
 from .lti.margins import Margins, loop_margins
+from .design.engine import design, verify  # noqa: E402 - the function shadows the subpackage name on purpose
+from .design.results import DesignResult, VerifyResult
+from .design.gainsfile import read_gains, write_gains
 
 __all__ = [
     "__version__",
@@ -29,4 +32,10 @@ __all__ = [
     "closed_loop_poles",
     "Margins",
     "loop_margins",
+    "design",
+    "verify",
+    "DesignResult",
+    "VerifyResult",
+    "read_gains",
+    "write_gains",
 ]

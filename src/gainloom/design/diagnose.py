@@ -110,11 +110,8 @@ def _exact_alone(plant, shapes: Shapes, p: int, name: str, limits: SpecLimits) -
             found = stable_gain_intervals(loops.num, loops.den, ts=loops.ts, delta=delta)
     else:
         value = float(getattr(limits, name)[p])
-        region = {
-            "min_damping": SpecRegion(min_damping=value),
-            "min_decay": SpecRegion(min_decay=value),
-            "max_pole_radius": SpecRegion(max_pole_radius=value),
-        }[name]
+        keyword = {"min_damping": "min_damping", "min_decay": "min_decay", "max_pole_radius": "max_pole_radius"}[name]
+        region = SpecRegion(**{keyword: value})
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
             found = spec_gain_intervals(loops.num, loops.den, region, ts=loops.ts, delta=delta)
     return any(len(f) > 0 for f in found)
