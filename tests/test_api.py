@@ -20,6 +20,12 @@ EXPECTED_PUBLIC_NAMES = {
     "check_generated_c",
     "HarnessResult",
     "discretize_loop",
+    "design",
+    "verify",
+    "DesignResult",
+    "VerifyResult",
+    "read_gains",
+    "write_gains",
 }
 
 

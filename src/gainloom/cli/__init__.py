@@ -21,6 +21,8 @@ COMMANDS: tuple[str, ...] = (
     "discretize",
     "inspect",
     "emit",
+    "design",
+    "verify",
 )
 
 

@@ -6,7 +6,8 @@ pole-region bounds for the design (the verification re-checks both on a
 discrete step response, because zeros and extra poles move the real values):
 
 * percent overshoot -> damping ratio (exact for an underdamped second-order
-  system without zeros)::
+  system without zeros; computed by ``schedule.specs.overshoot_to_damping``
+  when the schedule resolves its specs)::
 
       zeta = -ln(OS) / sqrt(pi**2 + ln(OS)**2),   OS = overshoot / 100
 
@@ -27,7 +28,6 @@ from dataclasses import dataclass, fields
 import numpy as np
 
 __all__ = [
-    "damping_from_overshoot",
     "overshoot_from_damping",
     "decay_from_settling",
     "SETTLING_CONSTANT",
@@ -61,27 +61,6 @@ SPEC_ORDER: tuple[str, ...] = (
     "max_overshoot",
     "max_settling_time",
 )
-
-
-def damping_from_overshoot(overshoot_percent: np.ndarray | float) -> np.ndarray:
-    """Damping ratio whose second-order step response overshoots by ``OS``.
-
-    Parameters
-    ----------
-    overshoot_percent : array_like
-        Percent overshoot, ``0 < OS < 100``; 0 gives ``zeta = 1``.
-
-    Returns
-    -------
-    ndarray
-        ``zeta = -ln(OS) / sqrt(pi^2 + ln(OS)^2)`` with ``OS`` as a fraction
-        (standard second-order relation).
-    """
-    os_ = np.asarray(overshoot_percent, dtype=float) / 100.0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        log = np.log(np.where(os_ > 0, os_, 1.0))
-        zeta = -log / np.sqrt(np.pi**2 + log**2)
-    return np.where(os_ <= 0, 1.0, zeta)
 
 
 def overshoot_from_damping(zeta: np.ndarray | float) -> np.ndarray:
@@ -164,9 +143,9 @@ class SpecLimits:
         with np.errstate(divide="ignore", invalid="ignore"):
             decay = decay_from_settling(settle)
         overshoot = _array(values, "max_overshoot", count)
+        # spec_values already gives the stricter of min_damping and the
+        # damping implied by max_overshoot (schedule.specs.overshoot_to_damping)
         damping = _array(values, "min_damping", count)
-        implied = damping_from_overshoot(overshoot)
-        damping = np.where(np.isnan(overshoot), damping, np.fmax(damping, implied))
         return cls(
             min_damping=damping,
             min_decay=decay,
