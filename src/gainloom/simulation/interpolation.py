@@ -1,20 +1,17 @@
-"""Gain-table interpolation as the firmware does it, in its number format.
+"""Gain-table interpolation in float64: the ideal reference.
 
-For each axis the segment is found and the position in it taken as a
-fraction ``t``, clamped to the table's ends::
+The firmware formats (float32, Q15, Q31) are looked up by the
+code-generation layer's mirror of the C (:func:`gainloom.codegen.mirror.lookup_gains`);
+this module serves the ``float64`` reference run and the sample-period
+comparison.  Per axis the segment is found and the position in it taken as
+a fraction ``t``, clamped to the table's ends::
 
     i = segment with values[i] <= x < values[i+1]   (first/last at the ends)
     t = (x - values[i]) / (values[i+1] - values[i]),  clamped to [0, 1]
 
 1-D:  ``c = c[i] + t (c[i+1] - c[i])``.
-2-D (bilinear, second axis first):
-``c0 = c[i, j] + tj (c[i, j+1] - c[i, j])``, ``c1`` likewise on row
-``i + 1``, then ``c = c0 + ti (c1 - c0)``.
-
-Every operation is rounded in the chosen float type (numpy float32
-arithmetic is IEEE single, one rounding per operation, no fused
-multiply-add), so the result is bit for bit what a C compiler produces from
-the same expressions with ``-ffp-contract=off``.
+2-D (bilinear, second axis first, as the C): ``c0`` and ``c1`` along the
+second axis on rows ``i`` and ``i + 1``, then ``c = c0 + ti (c1 - c0)``.
 """
 
 from __future__ import annotations

@@ -8,8 +8,9 @@ import numpy as np
 
 from ..design.table import GainTable
 from ..errors import InputError
-from .controller import STATE_NAMES, float_type, make_controller
-from .interpolation import interpolate_grid, interpolate_table
+from ..names import unknown_name_message
+from .controller import SIMULATION_FORMATS, TableController
+from .interpolation import interpolate_grid
 from .metrics import measure
 from .plant import sample_plant
 from .result import SimulationResult, SpecCheck
@@ -56,7 +57,13 @@ def _check_specs(scenario: Scenario, metrics) -> tuple[SpecCheck, ...]:
 
 
 def run_scenario(
-    schedule: ScheduleLike, table: GainTable, scenario: Scenario, number_format: str = "float32"
+    schedule: ScheduleLike,
+    table: GainTable,
+    scenario: Scenario,
+    number_format: str = "float32",
+    *,
+    error_full_scale: float | None = None,
+    output_full_scale: float | None = None,
 ) -> SimulationResult:
     """Simulate the closed loop while the scheduling variables follow the scenario.
 
@@ -87,6 +94,12 @@ def run_scenario(
         Controller arithmetic, one of
         :data:`gainloom.simulation.SIMULATION_FORMATS` (default
         ``"float32"``).
+    error_full_scale, output_full_scale : float, optional
+        ``q15``/``q31`` only: physical error (output units) and controller
+        output that full scale stands for, as for
+        :func:`gainloom.codegen.layout_table` (defaults 1 and
+        ``max(|u_min|, |u_max|)``).  Errors beyond full scale saturate, as
+        they would in the firmware.
 
     Returns
     -------
@@ -103,7 +116,8 @@ def run_scenario(
         raise InputError(f"table must be a GainTable; got {type(table).__name__}")
     if not isinstance(scenario, Scenario):
         raise InputError(f"scenario must be a Scenario; got {type(scenario).__name__}")
-    dtype = float_type(number_format)
+    if number_format not in SIMULATION_FORMATS:
+        raise InputError(unknown_name_message("number format", str(number_format), SIMULATION_FORMATS))
     schedule_axes = _axis_names(schedule.axes)
     table_axes = tuple(axis.name for axis in table.axes)
     unknown = [name for name in table_axes if name not in schedule_axes]
@@ -160,12 +174,11 @@ def run_scenario(
             "(exact at a frozen point, an approximation while it moves)"
         )
 
-    gains = interpolate_table(table, table_points, dtype)
-    controller = make_controller(number_format, table.structure, gains, table.output_limits)
+    controller = TableController(table, number_format, table_points, error_full_scale, output_full_scale)
     reference = scenario.reference(times)
     disturbance = scenario.disturbance(times)
     output, control, unsaturated = (np.full(count, np.nan) for _ in range(3))
-    state_names = STATE_NAMES[table.structure]
+    state_names = controller.state_names
     states = np.full((count, len(state_names)), np.nan)
 
     phi, late, early, load = sampled.phi, sampled.late, sampled.early, sampled.load
@@ -176,9 +189,8 @@ def run_scenario(
         y = float(c[k] @ x + d[k] * previous_input)
         if not np.isfinite(y) or abs(y) > _STOP_MAGNITUDE:
             break
-        u, v = controller.step(k, reference[k], y)
-        output[k], control[k], unsaturated[k] = y, float(u), float(v)
-        states[k] = [float(s) for s in controller.states()]
+        output[k], (control[k], unsaturated[k]) = y, controller.step(k, reference[k], y)
+        states[k] = controller.states()
         lag = k - whole[k]
         newer = control[lag] if lag >= 0 else 0.0
         older = control[lag - 1] if lag >= 1 else 0.0
@@ -188,12 +200,12 @@ def run_scenario(
             output[k + 1:] = np.inf
             break
 
-    metrics = measure(times, period, reference, output, unsaturated, table.output_limits, scenario)
+    metrics = measure(times, period, reference, output, unsaturated, controller.limits, scenario)
     return SimulationResult(
         number_format=number_format,
         structure=table.structure,
         axis_names=schedule_axes,
-        output_limits=table.output_limits,
+        output_limits=controller.limits,
         time=times,
         sample_period=np.array(period),
         points=points,
@@ -203,7 +215,7 @@ def run_scenario(
         control=control,
         unsaturated=unsaturated,
         disturbance=disturbance,
-        gains={name: values.astype(float) for name, values in gains.items()},
+        gains={name: np.asarray(values, dtype=float) for name, values in controller.gains.items()},
         states={name: states[:, i] for i, name in enumerate(state_names)},
         metrics=metrics,
         checks=_check_specs(scenario, metrics),
