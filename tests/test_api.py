@@ -13,7 +13,19 @@ EXPECTED_PUBLIC_NAMES = {
     "load_schedule",
     "Schedule",
     "discretize",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
+    "emit_c",
+    "check_generated_c",
+    "HarnessResult",
     "discretize_loop",
+    "design",
+    "verify",
+    "DesignResult",
+    "VerifyResult",
+    "read_gains",
+    "write_gains",
 }
 
 

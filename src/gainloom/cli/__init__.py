@@ -20,6 +20,9 @@ __all__ = ["main", "COMMANDS"]
 COMMANDS: tuple[str, ...] = (
     "discretize",
     "inspect",
+    "emit",
+    "design",
+    "verify",
 )
 
 
