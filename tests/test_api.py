@@ -10,6 +10,8 @@ EXPECTED_PUBLIC_NAMES = {
     "DesignError",
     "CodegenError",
     "Loop",
+    "LocusFacts",
+    "locus_facts",
 }
 
 

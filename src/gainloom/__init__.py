@@ -10,6 +10,7 @@ __version__ = "0.1.0"
 
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
+from .lti.facts import LocusFacts, locus_facts
 
 __all__ = [
     "__version__",
@@ -19,4 +20,6 @@ __all__ = [
     "DesignError",
     "CodegenError",
     "Loop",
+    "LocusFacts",
+    "locus_facts",
 ]
