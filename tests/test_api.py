@@ -12,6 +12,7 @@ EXPECTED_PUBLIC_NAMES = {
     "Loop",
     "LocusFacts",
     "locus_facts",
+    "discretize",
 }
 
 

@@ -11,6 +11,7 @@ __version__ = "0.1.0"
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
 from .lti.facts import LocusFacts, locus_facts
+from .lti.discretize import discretize
 
 __all__ = [
     "__version__",
@@ -22,4 +23,5 @@ __all__ = [
     "Loop",
     "LocusFacts",
     "locus_facts",
+    "discretize",
 ]
