@@ -35,6 +35,15 @@ def test_three_pole_type_one_loop():
     assert brk.point == pytest.approx(-1 + 1 / math.sqrt(3), abs=1e-12)
     assert brk.gain == pytest.approx(2 / (3 * math.sqrt(3)), rel=1e-12)  # 0.3849
     assert brk.kind == "breakaway"
+    # Imaginary-axis crossing at w = sqrt(2) with K = 6 (Routh: 3 * 2 = K;
+    # standard result, from memory), so the stable gains are 0 < K < 6.
+    (cross,) = facts.crossings
+    assert cross.omega == pytest.approx(math.sqrt(2), rel=1e-12)
+    assert cross.point == pytest.approx(1j * math.sqrt(2), rel=1e-12)
+    assert cross.gain == pytest.approx(6.0, rel=1e-12)
+    assert cross.theta is None
+    ((lo, hi),) = facts.stable_gain_intervals
+    assert lo == 0.0 and hi == pytest.approx(6.0, rel=1e-12)
 
 
 def test_complex_poles_with_real_zero():
@@ -151,6 +160,40 @@ def test_z_plane_breakaway_and_break_in_against_sympy():
     assert facts.segments == ((-math.inf, -0.5), (0.5, 1.0))
 
 
+def test_unit_circle_crossings_against_closed_form():
+    # D + K N = z^2 + (K - 1.5) z + 0.5 + 0.5 K.  Complex roots on |z| = 1
+    # need a product of roots 0.5 + 0.5 K = 1, so K = 1 and
+    # cos(theta) = -(K - 1.5)/2 = 0.25; a root at z = -1 needs
+    # 1 - (K - 1.5) + 0.5 + 0.5 K = 0, so K = 6 (closed form, Jury-type
+    # boundary conditions).
+    ts = 0.01
+    facts = locus_facts([1.0, 0.5], [1.0, -1.5, 0.5], ts=ts)
+    got = sorted((c.gain, c.theta, c.omega) for c in facts.crossings)
+    assert len(got) == 2
+    assert got[0][0] == pytest.approx(1.0, rel=1e-12)
+    assert got[0][1] == pytest.approx(math.acos(0.25), rel=1e-12)
+    assert got[0][2] == pytest.approx(math.acos(0.25) / ts, rel=1e-12)
+    assert got[1][0] == pytest.approx(6.0, rel=1e-12)
+    assert got[1][1] == pytest.approx(math.pi, rel=1e-12)
+    # The pole at z = 1 moves inside at once (segment (0.5, 1)), so the loop
+    # is stable for 0 < K < 1.
+    ((lo, hi),) = facts.stable_gain_intervals
+    assert lo == 0.0 and hi == pytest.approx(1.0, rel=1e-12)
+
+
+def test_delta_form_gives_the_same_facts_at_moderate_sampling():
+    # z = 1 + ts g applied to the loop above: N(z) = z + 0.5 becomes
+    # ts g + 1.5, D(z) = (z - 1)(z - 0.5) becomes ts g (ts g + 0.5)
+    # (exact substitution); divide both by ts^2 to make D monic in g.
+    ts = 0.01
+    delta_num = np.array([ts, 1.5]) / ts**2
+    delta_den = np.polymul([ts, 0.0], [ts, 0.5]) / ts**2
+    plain = locus_facts([1.0, 0.5], [1.0, -1.5, 0.5], ts=ts)
+    with_delta = locus_facts([1.0, 0.5], [1.0, -1.5, 0.5], ts=ts, delta=(delta_num, delta_den))
+    assert [p.value for p in with_delta.poles] == pytest.approx([p.value for p in plain.poles], abs=1e-12)
+    assert [c.gain for c in with_delta.crossings] == pytest.approx([c.gain for c in plain.crossings], rel=1e-9)
+
+
 def test_off_axis_breakaways_of_symmetric_four_pole_loop():
     # K/((s^2 + 2s + 2)(s^2 + 2s + 5))... here the classic symmetric case
     # K/(s (s+2) (s^2 + 2 s + 2)) has N'D - ND' = -(4 s^3 + 12 s^2 + 12 s + 4)
@@ -255,6 +298,30 @@ def test_breakaways_are_double_roots_of_the_closed_loop(loop):
         scale = max(1.0, abs(brk.point))
         near = np.sort(np.abs(roots - brk.point))
         assert near[1] < 1e-4 * scale * max(1.0, np.max(np.abs(roots))), (brk, roots)
+
+
+@given(random_loops(), st.booleans())
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.filter_too_much])
+def test_crossings_are_closed_loop_roots(loop, sampled):
+    num, den, negative = loop
+    ts = None
+    if sampled:
+        # Reuse the random polynomial as a z-plane loop (scaled into and
+        # around the unit disc, so crossings exist).
+        den = den * (0.25 ** np.arange(den.size))
+        num = num * (0.25 ** np.arange(den.size - num.size, den.size))
+        ts = 0.05
+    facts = locus_facts(num, den, ts=ts, negative=negative)
+    for cross in facts.crossings:
+        assert (cross.gain < 0) == negative
+        if ts is None:
+            assert cross.point.real == 0.0
+        else:
+            assert abs(cross.point) == pytest.approx(1.0, abs=1e-14)
+            assert cross.omega == pytest.approx(cross.theta / ts)
+        # Independent: numpy roots of D + K N contain the reported point.
+        roots = np.roots(np.polyadd(den, cross.gain * num))
+        assert np.min(np.abs(roots - cross.point)) < 1e-6 * max(1.0, np.max(np.abs(roots))), (cross, roots)
 
 
 @given(random_loops())

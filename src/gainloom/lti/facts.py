@@ -32,6 +32,8 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
+from .boundary import imaginary_axis_crossings, unit_circle_crossings
+from .intervals import stable_gain_intervals
 
 __all__ = [
     "CLUSTER_KAPPA",
@@ -341,6 +343,14 @@ def _roots(poly: np.ndarray) -> np.ndarray:
     return np.roots(poly).astype(complex)
 
 
+def _mapped(roots: tuple[RepeatedRoot, ...], ts: float) -> tuple[RepeatedRoot, ...]:
+    """Delta-operator roots ``g`` mapped to ``z = 1 + ts g``."""
+    mapped = [
+        RepeatedRoot(complex(1.0 + ts * r.value.real, ts * r.value.imag), r.multiplicity) for r in roots
+    ]
+    return tuple(sorted(mapped, key=lambda r: (r.value.real, r.value.imag)))
+
+
 def _close(a: complex, b: complex, size: int) -> bool:
     scale = max(abs(a), abs(b), 1e-300)
     return abs(a - b) <= (CLUSTER_KAPPA * _EPS) ** (1.0 / size) * scale
@@ -458,7 +468,14 @@ def _direction_angles(
     return tuple(result)
 
 
-def locus_facts(num: object, den: object, ts: float | None = None, negative: bool = False) -> LocusFacts:
+def locus_facts(
+    num: object,
+    den: object,
+    ts: float | None = None,
+    negative: bool = False,
+    *,
+    delta: tuple[object, object] | None = None,
+) -> LocusFacts:
     """Root-locus facts of the loop ``K N/D`` for ``K > 0`` (or ``K < 0``).
 
     Parameters
@@ -474,6 +491,11 @@ def locus_facts(num: object, den: object, ts: float | None = None, negative: boo
         are reported on the unit circle.  None: polynomials in ``s``.
     negative : bool
         Describe the locus for ``K < 0`` instead of ``K > 0``.
+    delta : (array_like, array_like), optional
+        The same discrete loop in ``g = (z - 1)/ts`` (``Loop.delta_num``,
+        ``Loop.delta_den``).  At fast sampling the z-coefficients have lost
+        digits; poles, zeros, crossings and stable gain intervals are then
+        computed from the delta form (``z = 1 + ts g``).
 
     Returns
     -------
@@ -508,8 +530,18 @@ def locus_facts(num: object, den: object, ts: float | None = None, negative: boo
     sign = -1.0 if negative else 1.0
     lead_sign = math.copysign(1.0, n_poly[0] / d_poly[0])
 
-    poles = cluster_roots(_roots(d_poly))
-    zeros = cluster_roots(_roots(n_poly))
+    delta_pair = None
+    if delta is not None:
+        if ts is None:
+            raise InputError("the delta form is for discrete loops; give the sample period ts")
+        delta_pair = (_trim(delta[0], "delta numerator"), _trim(delta[1], "delta denominator"))
+        # Roots cluster better in g (spread over the loop's own scale) and
+        # map exactly enough by z = 1 + ts g.
+        poles = _mapped(cluster_roots(_roots(delta_pair[1])), ts)
+        zeros = _mapped(cluster_roots(_roots(delta_pair[0])), ts)
+    else:
+        poles = cluster_roots(_roots(d_poly))
+        zeros = cluster_roots(_roots(n_poly))
     warnings: list[str] = []
 
     # Near pole-zero cancellations: angles there are undefined.
@@ -541,7 +573,7 @@ def locus_facts(num: object, den: object, ts: float | None = None, negative: boo
     departures = _direction_angles(poles, poles, zeros, phase, True, skip)
     arrivals = _direction_angles(zeros, zeros, poles, phase, False, skip)
 
-    crossings, intervals = _boundary_facts(n_poly, d_poly, ts, negative)
+    crossings, intervals = _boundary_facts(n_poly, d_poly, ts, negative, delta_pair, warnings)
 
     return LocusFacts(
         num=tuple(float(c) for c in n_poly),
@@ -563,10 +595,61 @@ def locus_facts(num: object, den: object, ts: float | None = None, negative: boo
 
 
 def _boundary_facts(
-    num: np.ndarray, den: np.ndarray, ts: float | None, negative: bool
+    num: np.ndarray,
+    den: np.ndarray,
+    ts: float | None,
+    negative: bool,
+    delta: tuple[np.ndarray, np.ndarray] | None,
+    warnings: list[str],
 ) -> tuple[tuple[Crossing, ...], tuple[tuple[float, float], ...]]:
-    """Crossings of the stability boundary and stable gain intervals."""
-    return (), ()
+    """Crossings of the stability boundary and stable gain intervals.
+
+    Both come from the exact boundary solver (:mod:`gainloom.lti.boundary`,
+    :func:`gainloom.lti.intervals.stable_gain_intervals`).  Crossings at
+    ``K = 0`` (open-loop poles on the boundary) are where branches start,
+    not crossings; they become a warning.
+    """
+    sign = -1.0 if negative else 1.0
+    if ts is None:
+        found = imaginary_axis_crossings(num, den)
+        points = found.points
+    elif delta is not None:
+        found = unit_circle_crossings(delta[0], delta[1], ts=ts, delta=True)
+        points = 1.0 + ts * found.points
+    else:
+        found = unit_circle_crossings(num, den)
+        points = found.points
+    gain_scale = float(np.max(np.abs(den)) / np.max(np.abs(num)))
+    crossings = []
+    for gain, point in zip(found.gains, points):
+        if abs(gain) <= 1e-12 * gain_scale:
+            warnings.append(
+                f"open-loop pole on the stability boundary at {_fmt(complex(point))} (a branch starts there at K = 0)"
+            )
+            continue
+        if sign * gain <= 0:
+            continue
+        if ts is None:
+            point = complex(0.0, abs(point.imag))  # on the axis by construction
+            crossings.append(Crossing(point=point, gain=float(gain), omega=point.imag, theta=None))
+        else:
+            theta = abs(float(np.angle(point)))
+            crossings.append(
+                Crossing(point=complex(np.exp(1j * theta)), gain=float(gain), omega=theta / ts, theta=theta)
+            )
+    for fixed in found.fixed_points:
+        fixed = complex(fixed) if delta is None or ts is None else complex(1.0 + ts * fixed)
+        warnings.append(
+            f"a closed-loop root stays on the stability boundary at {_fmt(fixed)} for every gain "
+            "(numerator and denominator share that root)"
+        )
+    crossings.sort(key=lambda c: (abs(c.gain), c.omega))
+
+    intervals = stable_gain_intervals(num, den, ts=ts, negative=negative, delta=delta)
+    chosen = [
+        (float(i.low), float(i.high)) for i in intervals if (i.high <= 0 if negative else i.low >= 0)
+    ]
+    return tuple(crossings), tuple(chosen)
 
 
 def _fmt(value: complex) -> str:
