@@ -64,8 +64,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--plot", metavar="FILE.png", help="draw the locus into this PNG file")
 
 
-def _loop_polynomials(args: argparse.Namespace) -> tuple[np.ndarray, np.ndarray, float | None, str]:
-    """Return (num, den, ts, how) of the loop to analyse."""
+def _loop_polynomials(
+    args: argparse.Namespace,
+) -> tuple[np.ndarray, np.ndarray, float | None, str, tuple[np.ndarray, np.ndarray] | None]:
+    """Return (num, den, ts, how, delta form or None) of the loop to analyse."""
     num = parse_coefficients(args.num, "num")
     den = parse_coefficients(args.den, "den")
     if args.discrete and args.ts is None:
@@ -75,13 +77,13 @@ def _loop_polynomials(args: argparse.Namespace) -> tuple[np.ndarray, np.ndarray,
                                        ("--prewarp", args.prewarp, None)):
             if value != default:
                 raise InputError(f"{option} only applies when sampling; give --ts")
-        return num, den, None, "continuous"
+        return num, den, None, "continuous", None
     if not (math.isfinite(args.ts) and args.ts > 0):
         raise InputError(f"--ts must be a positive sample period in seconds; got {args.ts}")
     if args.discrete:
         if args.delay != 0.0 or args.prewarp is not None or args.method != "zoh":
             raise InputError("--discrete loops are used as given; --method/--delay/--prewarp do not apply")
-        return num, den, args.ts, "given in z"
+        return num, den, args.ts, "given in z", None
     if args.method not in HOLD_METHODS:
         raise InputError(unknown_name_message("hold method", args.method, HOLD_METHODS))
     from ..lti.discretize import discretize_loop
@@ -95,7 +97,8 @@ def _loop_polynomials(args: argparse.Namespace) -> tuple[np.ndarray, np.ndarray,
     how = f"{args.method}, ts = {args.ts:g} s, delay = {loop.delay[0]:g} samples"
     if args.prewarp is not None:
         how += f", prewarp {args.prewarp:g} rad/s"
-    return loop.num[0], loop.den[0], args.ts, how
+    delta = None if loop.delta_den is None else (loop.delta_num[0], loop.delta_den[0])
+    return loop.num[0], loop.den[0], args.ts, how, delta
 
 
 def _cx(value: complex) -> str:
@@ -196,15 +199,22 @@ def _branches(facts: LocusFacts) -> tuple[np.ndarray, np.ndarray]:
     return gains[: roots.shape[0]], roots
 
 
-def _damping_curves(zetas: list[float], ts: float | None) -> list[tuple[str, np.ndarray]]:
-    if not zetas:
-        return []
-    from ..lti.regions import SpecRegion  # type: ignore[attr-defined]
+def _damping_curves(zetas: list[float], facts: LocusFacts) -> list[tuple[str, np.ndarray]]:
+    """Constant-damping contours (rays in s, log-spirals in z) for the plot."""
+    from ..lti.regions import SpecRegion
 
+    # Rays are drawn well past the interesting points; the plot clips them.
+    reach = [abs(r.value) for r in facts.poles + facts.zeros] + [abs(c.point) for c in facts.crossings]
+    extent = 10.0 * max(reach + [1.0])
     curves = []
     for zeta in zetas:
-        region = SpecRegion(min_damping=zeta)
-        for curve in region.boundary_curves(ts=ts):
+        if zeta == 0:
+            continue  # zeta = 0 is the stability boundary, drawn anyway
+        region = SpecRegion(min_damping=zeta, ts=facts.ts)
+        found = region.boundary_curves(extent=extent if facts.ts is None else None)
+        # boundary_curves lists the decay (here: stability) boundary first,
+        # then the two constant-damping curves.
+        for curve in found[1:3]:
             curves.append((f"ζ={zeta:g}", curve))
     return curves
 
@@ -214,8 +224,8 @@ def run(args: argparse.Namespace) -> int:
     for zeta in args.damping:
         if not (0.0 <= zeta < 1.0):
             raise InputError(f"--damping {zeta:g} is outside [0, 1); expected a damping ratio such as 0.7")
-    num, den, ts, how = _loop_polynomials(args)
-    facts = locus_facts(num, den, ts=ts, negative=args.negative)
+    num, den, ts, how, delta = _loop_polynomials(args)
+    facts = locus_facts(num, den, ts=ts, negative=args.negative, delta=delta)
     if args.json:
         data = facts.to_dict()
         data["discretization"] = how
@@ -226,7 +236,7 @@ def run(args: argparse.Namespace) -> int:
         from ..report.locus_plot import plot_locus
 
         gains, branches = _branches(facts)
-        plot_locus(facts, gains, branches, args.plot, damping_curves=_damping_curves(args.damping, ts))
+        plot_locus(facts, gains, branches, args.plot, damping_curves=_damping_curves(args.damping, facts))
         if not args.json:
             print(f"plot written to {args.plot}")
     return 0

@@ -58,14 +58,15 @@ def _view(facts: LocusFacts, branches: np.ndarray) -> tuple[float, float, float,
     if values.size == 0:
         values = np.array([0.0j])
     lo_re, hi_re = values.real.min(), values.real.max()
-    lo_im, hi_im = values.imag.min(), values.imag.max()
-    span = max(hi_re - lo_re, hi_im - lo_im, 1e-3 * max(1.0, float(np.max(np.abs(values)))))
+    # The locus is symmetric about the real axis: centre the view on it.
+    top = float(np.max(np.abs(values.imag)))
+    span = max(hi_re - lo_re, 2 * top, 1e-3 * max(1.0, float(np.max(np.abs(values)))))
     if facts.ts is None:
         span = max(span, 0.5)
-    pad = 0.35 * span
-    # Make the view about as tall as it is wide so angles look like angles.
+    pad = 0.3 * span
+    # As tall as wide (equal aspect), so angles look like angles.
     half = 0.5 * span + pad
-    mid_re, mid_im = 0.5 * (lo_re + hi_re), 0.5 * (lo_im + hi_im)
+    mid_re, mid_im = 0.5 * (lo_re + hi_re), 0.0
     if facts.ts is None:
         # Keep the imaginary axis in view: stability is judged against it.
         if mid_re - half > -0.1 * half:
@@ -161,15 +162,15 @@ def plot_locus(
 
     for label, curve in damping_curves:
         curve = np.asarray(curve, dtype=complex)
-        ax.plot(curve.real, curve.imag, color=_DAMPING, lw=0.9, ls=(0, (4, 3)), zorder=2)
-        # Label where the contour leaves the view's upper half, inside it.
+        ax.plot(curve.real, curve.imag, color=_DAMPING, lw=1.0, ls=(0, (1, 2)), zorder=2)
+        # Label each contour once, on its upper half, well inside the view.
         inside = np.flatnonzero(
-            np.isfinite(curve) & (curve.real > x0) & (curve.real < x1) & (curve.imag > 0) & (curve.imag < y1)
+            np.isfinite(curve) & (curve.real > x0) & (curve.real < x1) & (curve.imag > 0) & (curve.imag < 0.92 * y1)
         )
         if inside.size:
-            spot = curve[inside[-1]] if not discrete else curve[inside[len(inside) // 2]]
+            spot = curve[inside[int(0.8 * (inside.size - 1))]] if not discrete else curve[inside[inside.size // 2]]
             ax.annotate(label, (spot.real, spot.imag), fontsize=7.5, color=_DAMPING,
-                        xytext=(2, 2), textcoords="offset points", zorder=6)
+                        xytext=(3, 0), textcoords="offset points", zorder=6)
 
     # Asymptotes from the centroid, out to the edge of the view.
     if facts.centroid is not None and facts.asymptote_angles:
@@ -213,8 +214,9 @@ def plot_locus(
     for crossing in facts.crossings:
         if not in_view(crossing.point):
             continue
-        ax.plot([crossing.point.real], [crossing.point.imag], marker="s", ms=6.5, color=_CROSSING,
-                mec="white", mew=0.8, ls="none", zorder=6)
+        # Closed-loop roots come in conjugate pairs: mark both, label one.
+        ax.plot([crossing.point.real] * 2, [crossing.point.imag, -crossing.point.imag], marker="s", ms=6.5,
+                color=_CROSSING, mec="white", mew=0.8, ls="none", zorder=6)
         if crossing.point.imag >= 0:
             ax.annotate(_fmt_gain(crossing.gain), (crossing.point.real, crossing.point.imag), fontsize=8,
                         color=_CROSSING, xytext=(7, 4), textcoords="offset points", zorder=7,
@@ -243,7 +245,7 @@ def plot_locus(
     if facts.asymptote_angles:
         handles.append(Line2D([], [], color=_ASYMPTOTE, lw=0.9, ls=(0, (7, 4)), label="asymptotes from centroid"))
     if damping_curves:
-        handles.append(Line2D([], [], color=_DAMPING, lw=0.9, ls=(0, (4, 3)), label="constant damping ratio"))
+        handles.append(Line2D([], [], color=_DAMPING, lw=1.0, ls=(0, (1, 2)), label="constant damping ratio"))
     handles.append(Line2D([], [], color=_STABLE_FILL, lw=6, label="stable region"))
     figure.legend(handles=handles, loc="lower center", ncol=3, fontsize=8, frameon=False,
                   bbox_to_anchor=(0.5, 0.035))
