@@ -218,7 +218,7 @@ class LocusFacts:
             "real_axis_segments": [interval(s) for s in self.segments],
             "asymptotes": {
                 "angles_deg": [float(a) for a in self.asymptote_angles],
-                "centroid": None if self.centroid is None else float(self.centroid),
+                "centroid": None if self.centroid is None else _plain(self.centroid),
             },
             "breakaways": [{**cx(b.point), "gain": float(b.gain), "kind": b.kind} for b in self.breakaways],
             "crossings": [
@@ -565,7 +565,7 @@ def locus_facts(
         # of computed roots.
         pole_sum = -d_poly[1] / d_poly[0]
         zero_sum = -n_poly[1] / n_poly[0] if n_poly.size > 1 else 0.0
-        centroid: float | None = float((pole_sum - zero_sum) / excess)
+        centroid: float | None = float((pole_sum - zero_sum) / excess) + 0.0  # no -0.0
     else:
         asymptote_angles, centroid = (), None
 
@@ -634,9 +634,9 @@ def _boundary_facts(
             crossings.append(Crossing(point=point, gain=float(gain), omega=point.imag, theta=None))
         else:
             theta = abs(float(np.angle(point)))
-            crossings.append(
-                Crossing(point=complex(np.exp(1j * theta)), gain=float(gain), omega=theta / ts, theta=theta)
-            )
+            # On the circle by construction; the real-axis ends exactly.
+            on_circle = -1.0 + 0j if theta == math.pi else (1.0 + 0j if theta == 0 else complex(np.exp(1j * theta)))
+            crossings.append(Crossing(point=on_circle, gain=float(gain), omega=theta / ts, theta=theta))
     for fixed in found.fixed_points:
         fixed = complex(fixed) if delta is None or ts is None else complex(1.0 + ts * fixed)
         warnings.append(
