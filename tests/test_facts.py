@@ -360,3 +360,19 @@ def test_real_axis_segments_agree_with_real_gain_sign(loop):
     for lo, hi in facts.segments:
         inside |= (xs > lo) & (xs < hi)
     assert np.array_equal(on, inside)
+
+
+@pytest.mark.parametrize("m", [2, 3])
+def test_repeated_pole_angles_match_small_gain_root_motion(m):
+    # Independent numeric check: roots of D + K N at a tiny gain (numpy)
+    # leave a pole of multiplicity m along m rays.  L = K (s + 2)/((s + 1)^m (s + 4)).
+    num = np.array([1.0, 2.0])
+    den = np.poly([-1.0] * m + [-4.0])
+    facts = locus_facts(num, den)
+    (dep,) = [d for d in facts.departures if d.multiplicity == m]
+    k = 1e-9
+    roots = np.roots(np.polyadd(den, k * num))
+    near = roots[np.argsort(np.abs(roots + 1.0))[:m]]
+    observed = sorted(float(normalize_angle(math.degrees(np.angle(r + 1.0)))) for r in near)
+    for got, want in zip(observed, dep.angles):
+        assert angles_close(got, want, tol=1.0), (observed, dep.angles)
