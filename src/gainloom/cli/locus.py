@@ -9,7 +9,9 @@ import re
 import numpy as np
 
 from ..errors import InputError
+from ..lti.discretize import discretize_loop
 from ..lti.facts import LocusFacts, locus_facts
+from ..lti.loop import Loop
 from ..lti.poles import damping_and_frequency
 from ..names import HOLD_METHODS, unknown_name_message
 from .output import format_number, format_table, print_json
@@ -64,10 +66,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--plot", metavar="FILE.png", help="draw the locus into this PNG file")
 
 
-def _loop_polynomials(
-    args: argparse.Namespace,
-) -> tuple[np.ndarray, np.ndarray, float | None, str, tuple[np.ndarray, np.ndarray] | None]:
-    """Return (num, den, ts, how, delta form or None) of the loop to analyse."""
+def _build_loop(args: argparse.Namespace) -> tuple[Loop, str]:
+    """Return the loop to analyse (one point) and how it was made."""
     num = parse_coefficients(args.num, "num")
     den = parse_coefficients(args.den, "den")
     if args.discrete and args.ts is None:
@@ -77,28 +77,27 @@ def _loop_polynomials(
                                        ("--prewarp", args.prewarp, None)):
             if value != default:
                 raise InputError(f"{option} only applies when sampling; give --ts")
-        return num, den, None, "continuous", None
+        return Loop(num=num, den=den), "continuous"
     if not (math.isfinite(args.ts) and args.ts > 0):
         raise InputError(f"--ts must be a positive sample period in seconds; got {args.ts}")
     if args.discrete:
         if args.delay != 0.0 or args.prewarp is not None or args.method != "zoh":
             raise InputError("--discrete loops are used as given; --method/--delay/--prewarp do not apply")
-        return num, den, args.ts, "given in z", None
+        return Loop(num=num, den=den, ts=args.ts), "given in z"
     if args.method not in HOLD_METHODS:
         raise InputError(unknown_name_message("hold method", args.method, HOLD_METHODS))
-    from ..lti.discretize import discretize_loop
-    from ..lti.loop import Loop
-
-    if num.size > den.size:
-        raise InputError(
-            f"improper loop: numerator has {num.size} coefficients, denominator only {den.size}"
-        )
     loop = discretize_loop(Loop(num=num, den=den), args.ts, args.method, args.delay, args.prewarp)
     how = f"{args.method}, ts = {args.ts:g} s, delay = {loop.delay[0]:g} samples"
     if args.prewarp is not None:
         how += f", prewarp {args.prewarp:g} rad/s"
+    return loop, how
+
+
+def loop_facts(loop: Loop, negative: bool) -> LocusFacts:
+    """Facts of the first point of ``loop`` (delta form used when present)."""
     delta = None if loop.delta_den is None else (loop.delta_num[0], loop.delta_den[0])
-    return loop.num[0], loop.den[0], args.ts, how, delta
+    ts = None if loop.ts is None else float(loop.ts[0])
+    return locus_facts(loop.num[0], loop.den[0], ts=ts, negative=negative, delta=delta)
 
 
 def _cx(value: complex) -> str:
@@ -224,8 +223,8 @@ def run(args: argparse.Namespace) -> int:
     for zeta in args.damping:
         if not (0.0 <= zeta < 1.0):
             raise InputError(f"--damping {zeta:g} is outside [0, 1); expected a damping ratio such as 0.7")
-    num, den, ts, how, delta = _loop_polynomials(args)
-    facts = locus_facts(num, den, ts=ts, negative=args.negative, delta=delta)
+    loop, how = _build_loop(args)
+    facts = loop_facts(loop, args.negative)
     if args.json:
         data = facts.to_dict()
         data["discretization"] = how
