@@ -289,37 +289,32 @@ def cluster_roots(roots: object) -> tuple[RepeatedRoot, ...]:
     if not values:
         return ()
     floor = 1e-12 * max(abs(v) for v in values)
-    def merge_ratio(group: list[complex]) -> float:
-        size = len(group)
-        scale = max(max(abs(v) for v in group), floor)
-        if scale == 0:
-            return 0.0
-        diameter = max(abs(a - b) for a in group for b in group)
-        return diameter / ((CLUSTER_KAPPA * _EPS) ** (1.0 / size) * scale)
 
     # Largest admissible group first: a seed and its m - 1 nearest roots
     # (intermediate sizes may fail the test where the full group passes, so
-    # pairwise agglomeration would miss triple and higher roots).  Orders
-    # are small (tens), so the cubic cost does not matter.
+    # pairwise agglomeration would miss triple and higher roots).  The
+    # diameter of each nearest-first prefix grows incrementally: O(n^2) per
+    # seed, and orders are small (tens).
     pending = list(values)
     groups: list[list[complex]] = []
     while len(pending) > 1:
         best: tuple[int, float, list[int]] | None = None
         for seed in range(len(pending)):
             order = sorted(range(len(pending)), key=lambda k: (abs(pending[k] - pending[seed]), k))
-            for size in range(len(pending), 1, -1):
-                if best is not None and size < best[0]:
-                    break
-                members = order[:size]
-                ratio = merge_ratio([pending[k] for k in members])
-                if ratio <= 1.0:
-                    if best is None or size > best[0] or ratio < best[1]:
-                        best = (size, ratio, members)
-                    break
+            diameter, magnitude = 0.0, abs(pending[seed])
+            for size in range(2, len(pending) + 1):
+                new = pending[order[size - 1]]
+                diameter = max([diameter] + [abs(new - pending[k]) for k in order[: size - 1]])
+                magnitude = max(magnitude, abs(new))
+                limit = (CLUSTER_KAPPA * _EPS) ** (1.0 / size) * max(magnitude, floor)
+                ratio = diameter / limit if limit > 0 else (0.0 if diameter == 0 else math.inf)
+                if ratio <= 1.0 and (best is None or size > best[0] or (size == best[0] and ratio < best[1])):
+                    best = (size, ratio, order[:size])
         if best is None:
             break
+        chosen = set(best[2])
         groups.append([pending[k] for k in best[2]])
-        pending = [v for k, v in enumerate(pending) if k not in set(best[2])]
+        pending = [v for k, v in enumerate(pending) if k not in chosen]
     groups += [[v] for v in pending]
 
     result = []
