@@ -12,6 +12,8 @@ EXPECTED_PUBLIC_NAMES = {
     "Loop",
     "load_schedule",
     "Schedule",
+    "LocusFacts",
+    "locus_facts",
     "discretize",
     "closed_loop_poles",
     "Margins",

@@ -10,6 +10,7 @@ __version__ = "0.1.0"
 
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
+from .lti.facts import LocusFacts, locus_facts
 from .schedule import Schedule, load_schedule
 from .lti.discretize import discretize, discretize_loop
 from .lti.closed_loop import closed_loop_poles
@@ -29,6 +30,8 @@ __all__ = [
     "Loop",
     "load_schedule",
     "Schedule",
+    "LocusFacts",
+    "locus_facts",
     "discretize",
     "closed_loop_poles",
     "Margins",
