@@ -132,7 +132,8 @@ class QuantisationResult:
         that negative is worse).
     broken : list of dict
         Every spec broken by rounding: ``{where, point, spec}`` with
-        ``where`` in ``grid``, ``between``, ``tolerance``.
+        ``where`` in ``grid``, ``between``, ``tolerance``, ``smoothness``,
+        ``monotone``.
     axis_offsets : dict of str to float
         Largest ``|stored - designed|`` breakpoint per axis (axis units).
     coefficient_errors : dict of str to float
@@ -281,6 +282,14 @@ def check_quantisation(
         for point, spec in sorted(new):
             label = ", ".join(f"{k} = {v:.6g}" for k, v in point)
             broken.append({"where": where, "point": label, "spec": spec})
+    # Rounding can also reorder two nearly equal neighbours (monotone) or
+    # widen a step past the smoothness limit.
+    for where in ("smoothness", "monotone"):
+        def keys(report):
+            return {(e["coefficient"], e["axis"], tuple(e["index"])) for e in getattr(report, where)}
+
+        for coefficient, axis, index in sorted(keys(rounded.table_report) - keys(original.table_report)):
+            broken.append({"where": where, "point": f"{axis} index {list(index)}", "spec": f"{where} of {coefficient}"})
 
     worst: dict[str, dict[str, Any]] = {}
     for label, attribute, unit, sense in COMPARED:
