@@ -1,0 +1,259 @@
+"""``verification.md``: the verification log for a human reviewer.
+
+Rendered from the same plain document as ``verification.json`` (never from
+the live objects), so both always say the same thing.  Order: verdict and
+failed points first, then the per-point table, worst cases, whole-table
+checks, quantisation, C check, simulation, warnings, safety cautions,
+inputs with their SHA-256 and tool versions, plots.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+__all__ = ["render_markdown", "number"]
+
+
+def number(value: Any, digits: int = 4) -> str:
+    """A logged number for reading: ``digits`` significant digits, ``-`` for missing."""
+    if value is None:
+        return "-"
+    if isinstance(value, str):
+        return {"inf": "∞", "-inf": "-∞", "nan": "-"}.get(value, value)
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, int):
+        return str(value)
+    value = float(value)
+    if value == 0:
+        return "0"
+    if math.isfinite(value) and (abs(value) >= 1e5 or abs(value) < 1e-3):
+        return f"{value:.{digits - 1}e}"
+    return f"{value:.{digits}g}"
+
+
+def _cell(text: Any) -> str:
+    return str(text).replace("|", "\\|").replace("\n", " ")
+
+
+def _table(headers: list[str], rows: list[list[Any]]) -> list[str]:
+    lines = ["| " + " | ".join(headers) + " |", "|" + "|".join("---" for _ in headers) + "|"]
+    lines += ["| " + " | ".join(_cell(c) for c in row) + " |" for row in rows]
+    return lines + [""]
+
+
+def _verdict_word(value: Any) -> str:
+    return {True: "pass", False: "FAIL", None: "not checked"}[value]
+
+
+def _summary(doc: dict[str, Any]) -> list[str]:
+    verdict = doc["verdict"]
+    lines = [f"# Verification log: {doc['inputs']['schedule']['path']}", ""]
+    word = "PASS" if verdict["passed"] else "FAIL"
+    lines.append(f"**Verdict: {word}.**" + ("" if verdict["passed"] else " " + "; ".join(verdict["reasons"]) + "."))
+    lines.append("")
+    lines += _table(
+        ["check", "result"],
+        [
+            ["design at every grid point and whole-table checks", _verdict_word(verdict["design"])],
+            ["coefficients rounded to the number format", _verdict_word(verdict["quantisation"])],
+            ["generated C (compile + host harness)", _verdict_word(verdict["c_check"])],
+            ["time-domain simulation", _verdict_word(verdict["simulation"])],
+        ],
+    )
+    if verdict["not_checked"]:
+        lines += [f"Not checked in this run: {', '.join(verdict['not_checked'])}.", ""]
+    if verdict["failed_points"]:
+        lines += ["## Failed points", ""]
+        rows = []
+        for f in verdict["failed_points"]:
+            rows.append([f["index"], f["label"], f["binding"] or "-", number(f["value"]), number(f["limit"]),
+                         ", ".join(f["failed"]), " ".join(f["notes"]) or "-"])
+        lines += _table(["#", "point", "binding spec", "value", "limit", "all failed specs",
+                         "best reachable / notes"], rows)
+    return lines
+
+
+def _inputs(doc: dict[str, Any]) -> list[str]:
+    inputs, tools = doc["inputs"], doc["tools"]
+    lines = ["## Inputs and tools", ""]
+    rows = [["schedule file", inputs["schedule"]["path"], f"`{inputs['schedule']['sha256']}`"]]
+    if inputs["gains"] is not None:
+        rows.append(["gains file", inputs["gains"]["path"], f"`{inputs['gains']['sha256']}`"])
+    lines += _table(["input", "file", "SHA-256"], rows)
+    lines.append("Tools: " + ", ".join(f"{k} {v}" for k, v in sorted(tools.items()) if v is not None) + ".")
+    if tools.get("c_compiler") is None:
+        lines.append("No C compiler result in this log.")
+    lines.append("")
+    sampling = doc["sampling"]
+    lines.append(
+        f"Sampled plant: hold `{sampling['hold']}`"
+        + (f", prewarp {number(sampling['prewarp_rad_s'])} rad/s" if sampling["prewarp_rad_s"] is not None else "")
+        + "; sample period and computation delay per point in the table below. "
+        "How every number was computed: `method` in verification.json."
+    )
+    if doc["options"]:
+        lines.append("")
+        lines.append("Options: " + ", ".join(f"`{k}` = {v}" for k, v in sorted(doc["options"].items())) + ".")
+    if "timestamp" in doc:
+        lines += ["", f"Written {doc['timestamp']}."]
+    return lines + [""]
+
+
+def _points(doc: dict[str, Any]) -> list[str]:
+    names = doc["table"]["coefficient_names"]
+    lines = ["## Per-point table", ""]
+    headers = ["#", "point", "status", "ts [s]", "delay"] + names + [
+        "ζ min", "ωn [rad/s]", "max abs(z)", "GM [dB]", "PM [deg]", "DM [s]", "Ms", "OS [%]", "Ts [s]"]
+    rows = []
+    for e in doc["points"]:
+        status = "pass" if e["status"] == "pass" else f"FAIL ({e['binding']})"
+        rows.append([e["index"], e["label"], status, number(e["sample_period_s"]), number(e["delay_samples"])]
+                    + [number(e["coefficients"][n], 6) for n in names]
+                    + [number(e[k]) for k in ("damping", "natural_frequency", "pole_radius", "gain_margin_db",
+                                              "phase_margin_deg", "delay_margin_s", "sensitivity_peak",
+                                              "overshoot_percent", "settling_time_s")])
+    lines += _table(headers, rows)
+    lines.append("Closed-loop poles in z and s of every point, physical gains and each spec's value, limit and "
+                 "pass: `points` in verification.json.")
+    return lines + [""]
+
+
+def _worst(doc: dict[str, Any]) -> list[str]:
+    lines = ["## Worst case per spec", ""]
+    rows = []
+    for name, w in doc["worst_cases"].items():
+        bound = "≥" if w["bound"] == "lower" else "≤"
+        if name == "stable":
+            bound = "<"
+        rows.append([name, f"{bound} {number(w['limit'])}", number(w["value"]), number(w["margin"]),
+                     number(w["relative_margin"], 3), f"{w['index']}: {w['label']}",
+                     "pass" if w["pass"] else f"FAIL at {w['failing_points']} point(s)"])
+    lines += _table(["spec", "limit", "worst value", "distance to limit", "relative", "at point", "result"], rows)
+    lines.append("Distance to limit is positive on the passing side (for `stable`: 1 - largest |z|).")
+    return lines + [""]
+
+
+def _table_checks(doc: dict[str, Any]) -> list[str]:
+    checks = doc["table_checks"]
+    lines = ["## Whole-table checks", ""]
+    between = checks["between_points"]
+    tol = checks["tolerances"]
+    rows = [
+        ["smoothness (coefficient steps)", "pass" if not checks["smoothness"] else f"FAIL: {len(checks['smoothness'])} step(s)"],
+        ["monotone coefficients", "pass" if not checks["monotone"] else f"FAIL: {len(checks['monotone'])} step(s)"],
+        [f"between points ({between['checked']} intermediate points)",
+         "pass" if not between["failing"] else f"FAIL at {len(between['failing'])} point(s)"],
+        [f"tolerances ({tol['samples_per_point']} samples per point)",
+         "pass" if not tol["failing"] else f"FAIL at {len(tol['failing'])} point(s)"],
+    ]
+    lines += _table(["check", "result"], rows)
+    for entry in checks["smoothness"][:10]:
+        lines.append(f"- step of {entry['coefficient']} along {entry['axis']} at {entry['index']}: "
+                     f"{number(entry['step'])} > {number(entry['limit'])}")
+    for entry in checks["monotone"][:10]:
+        lines.append(f"- {entry['coefficient']} not {entry['direction']} along {entry['axis']} at {entry['index']}")
+    for entry in between["failing"][:10]:
+        at = ", ".join(f"{k} = {number(v)}" for k, v in entry["point"].items())
+        lines.append(f"- between points at {at}: {', '.join(entry['failed'])}")
+    for entry in tol["failing"][:10]:
+        at = ", ".join(f"{k} = {number(v)}" for k, v in entry["point"].items())
+        scale = ", ".join(f"{k} x{number(v)}" for k, v in entry["scale"].items())
+        lines.append(f"- tolerance corner ({scale}) at {at}: {', '.join(entry['failed'])}")
+    for note in checks["smoothing"]:
+        lines.append(f"- {note}")
+    if checks["inserted"]:
+        lines.append("- breakpoints inserted: " + ", ".join(f"{i['axis']} = {number(i['value'])}"
+                                                             for i in checks["inserted"]))
+    return lines + [""]
+
+
+def _quantisation(doc: dict[str, Any]) -> list[str]:
+    q = doc["quantisation"]
+    lines = ["## Quantisation", ""]
+    if q is None:
+        return lines + ["Not checked in this run.", ""]
+    word = "pass: rounding breaks no spec" if q["passed"] else "FAIL: rounding breaks a spec"
+    lines += [f"Format `{q['number_format']}`: **{word}**. Largest closed-loop pole shift "
+              f"max abs(dz) = {number(q['max_pole_shift'])}.", ""]
+    lines += _table(["coefficient", "fraction bits", "scale", "largest rounding error"],
+                    [[c["name"], "-" if c["frac"] is None else c["frac"], number(c["scale"]),
+                      number(c["max_abs_error"])] for c in q["coefficients"]])
+    rows = []
+    for name, w in q["worst"].items():
+        if name == "pole_shift":
+            continue
+        rows.append([name, "-" if w["label"] is None else w["label"], number(w["before"], 8), number(w["after"], 8),
+                     number(w["change"])])
+    lines += _table(["quantity", "worst point", "before", "after", "change (negative: worse)"], rows)
+    for b in q["broken"]:
+        lines.append(f"- broken by rounding ({b['where']}): {b['spec']} at {b['point']}")
+    offsets = ", ".join(f"{k} {number(v)}" for k, v in q["axis_offsets"].items())
+    lines.append(f"Stored axis breakpoints differ from the designed ones by at most: {offsets} (axis units).")
+    return lines + [""]
+
+
+def _c_check(doc: dict[str, Any]) -> list[str]:
+    c = doc["c_check"]
+    lines = ["## Generated C", ""]
+    if c is None:
+        return lines + ["Not checked in this run.", ""]
+    lines.append(f"Status **{c['status']}**: {c['message']}")
+    lines.append("")
+    if c["compiler"] is not None:
+        lines += _table(["item", "value"], [
+            ["compiler", f"{c['compiler']} ({c['compiler_version']})"],
+            ["flags", " ".join(c["flags"])],
+            ["sanitizers", number(c["sanitizers"])],
+            ["lookups / steps compared", f"{c['points']} / {c['steps']}"],
+            ["worst gain error (tolerance)", f"{number(c['worst_gain_error'])} ({number(c['gain_tolerance'])})"],
+            ["worst step error (tolerance)", f"{number(c['worst_step_error'])} ({number(c['step_tolerance'])})"],
+        ])
+    return lines
+
+
+def _simulation(doc: dict[str, Any]) -> list[str]:
+    s = doc["simulation"]
+    lines = ["## Simulation", ""]
+    if s is None:
+        return lines + ["Not run.", ""]
+    word = "pass" if s["passed"] else "FAIL"
+    lines.append(f"**{word}**: {s['structure']} controller in {s['number_format']}, {s['samples']} samples, "
+                 f"{'stable' if s['stable'] else 'UNSTABLE'}.")
+    lines.append("")
+    if s["checks"]:
+        lines += _table(["scenario spec", "limit", "value", "result"],
+                        [[c["name"], number(c["limit"]), number(c["value"]), "pass" if c["passed"] else "FAIL"]
+                         for c in s["checks"]])
+    return lines
+
+
+def _warnings(doc: dict[str, Any]) -> list[str]:
+    lines = ["## Warnings", ""]
+    if not doc["warnings"]:
+        return lines + ["None.", ""]
+    return lines + [f"- {w}" for w in doc["warnings"]] + [""]
+
+
+def _cautions(doc: dict[str, Any]) -> list[str]:
+    return ["## Safety", ""] + [f"- {c}" for c in doc["cautions"]] + [""]
+
+
+def _plots(doc: dict[str, Any]) -> list[str]:
+    if not doc["plots"]:
+        return []
+    lines = ["## Plots", ""]
+    for name in doc["plots"]:
+        lines += [f"![{name}]({name})", ""]
+    return lines
+
+
+def render_markdown(doc: dict[str, Any]) -> str:
+    """The reviewer's log from the plain verification document."""
+    lines: list[str] = []
+    for part in (_summary, _points, _worst, _table_checks, _quantisation, _c_check, _simulation,
+                 _warnings, _cautions, _inputs, _plots):
+        lines += part(doc)
+    text = "\n".join(line.rstrip() for line in lines).rstrip() + "\n"
+    return text

@@ -1,0 +1,457 @@
+"""PNG plots of the verification log, rendered to bytes.
+
+Drawing only; every number comes from the design result and the sampled
+plant.  Output is deterministic: Agg canvas (no display, no pyplot state),
+fixed size and resolution, no software or date entries in the PNG metadata
+(``metadata={"Software": None}``), so the same input gives the same bytes.
+
+Plots
+-----
+* ``gains.png``: each table coefficient against the first scheduling
+  variable; 2-D tables draw one line per value of the second variable.
+* ``margins.png``: damping, dominant natural frequency, gain and phase
+  margin, delay margin and sensitivity peak against the first variable,
+  with each spec limit drawn (a step line, since overrides may change it per
+  point) and failing points circled.
+* ``step.png``: the sampled loop's unit step response at the chosen points.
+* ``locus_<n>.png``: root locus of the sampled loop ``K L(z)`` at a chosen
+  point, the gain ``K`` a multiple of the designed loop gain (``K = 1`` is
+  the table's design), in the z-plane (layers drawn by
+  :mod:`gainloom.report.locus_plot`) and the same poles mapped to the
+  s-plane by ``s = ln(z)/ts``, with the spec region of that point.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from typing import Any
+
+import numpy as np
+import scipy.signal
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+
+from ..lti.closed_loop import closed_loop_poles
+from ..lti.facts import locus_facts
+from ..lti.loop import Loop
+from ..lti.regions import SpecRegion
+
+__all__ = [
+    "DPI",
+    "png_bytes",
+    "plot_gains",
+    "plot_margins",
+    "plot_steps",
+    "plot_locus_point",
+    "chosen_points",
+    "LOCUS_GAINS",
+]
+
+#: Resolution of every plot, dots per inch.
+DPI = 110
+
+#: Multiples of the designed loop gain swept for the loci (K = 1: design).
+LOCUS_GAINS = np.concatenate([np.geomspace(1e-3, 1e3, 481), [1.0]])
+
+# Our look: one accent per role, muted series colours.
+_SERIES = ("#1f6f8b", "#b5562d", "#5b8c2a", "#7b4f9d", "#c29a1a", "#2f4858", "#a23b72", "#3e8e7e")
+_LIMIT = "#c0262d"
+_FAIL = "#c0262d"
+_DESIGN = "#111111"
+_CLOUD = "#7a99b8"
+_REGION = "#2b7a3d"
+
+
+def png_bytes(figure: Figure) -> bytes:
+    """Render a figure to PNG bytes without software or time metadata."""
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=DPI, metadata={"Software": None})
+    return buffer.getvalue()
+
+
+def _figure(size: tuple[float, float]) -> Figure:
+    figure = Figure(figsize=size, dpi=DPI)
+    FigureCanvasAgg(figure)
+    return figure
+
+
+def _axis_label(axis: Any) -> str:
+    return f"{axis.name} [{axis.unit}]" if axis.unit else axis.name
+
+
+def _lines_2d(table: Any, grid: np.ndarray):
+    """(label, x, y, flat indices) per line of a 1-D or 2-D grid."""
+    x = table.axes[0].values
+    if len(table.axes) == 1:
+        yield None, x, grid, np.arange(x.size)
+        return
+    second = table.axes[1]
+    flat = np.arange(grid.size).reshape(grid.shape)
+    for j, value in enumerate(second.values):
+        unit = f" {second.unit}" if second.unit else ""
+        yield f"{second.name} = {value:.4g}{unit}", x, grid[:, j], flat[:, j]
+
+
+def plot_gains(table: Any, status: tuple[str, ...]) -> bytes:
+    """Table coefficients against the scheduling variable(s).
+
+    Parameters
+    ----------
+    table : GainTable
+    status : tuple of str
+        ``"pass"``/``"fail"`` per point (grid order); failing points are
+        circled.
+    """
+    names = table.coefficient_names
+    columns = 2 if len(names) > 1 else 1
+    rows = math.ceil(len(names) / columns)
+    figure = _figure((9.0, 2.6 * rows + 1.2))
+    failed = np.array([s != "pass" for s in status])
+    for k, name in enumerate(names):
+        ax = figure.add_subplot(rows, columns, k + 1)
+        grid = np.asarray(table.coefficients[name])
+        for n, (label, x, y, flat) in enumerate(_lines_2d(table, grid)):
+            colour = _SERIES[n % len(_SERIES)]
+            ax.plot(x, y, marker="o", ms=3.5, lw=1.4, color=colour, label=label)
+            bad = failed[flat]
+            if bad.any():
+                ax.plot(x[bad], y[bad], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4)
+        ax.set_title(f"{name}", fontsize=10, loc="left")
+        ax.set_xlabel(_axis_label(table.axes[0]), fontsize=8.5)
+        ax.grid(True, color="#e4e4e4", lw=0.6)
+        ax.tick_params(labelsize=8)
+        ax.ticklabel_format(axis="y", style="sci", scilimits=(-3, 4), useOffset=False)
+    handles, labels = figure.axes[0].get_legend_handles_labels()
+    extra = [Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4,
+                    label="point fails a spec")] if failed.any() else []
+    figure.legend(handles=[h for h, lab in zip(handles, labels) if lab] + extra, loc="lower center",
+                  ncol=min(5, len(handles) + 1), fontsize=8, frameon=False)
+    figure.suptitle(f"Table coefficients ({table.structure}): difference-equation values at each breakpoint",
+                    fontsize=11, x=0.01, ha="left")
+    # fixed margins (tight_layout is slow and its result depends on text extents)
+    figure.subplots_adjust(left=0.08, right=0.98, top=1 - 0.75 / (2.6 * rows + 1.2), bottom=0.08 + 0.5 / (2.6 * rows + 1.2),
+                           hspace=0.55, wspace=0.25)
+    return png_bytes(figure)
+
+
+#: Panels of ``margins.png``: (point key, spec names (lower, upper), title, unit, log y).
+_MARGIN_PANELS = (
+    ("damping", ("min_damping", None), "smallest damping ratio ζ", "", False),
+    ("natural_frequency", ("min_natural_frequency", "max_natural_frequency"),
+     "dominant natural frequency ωn", "rad/s", True),
+    ("gain_margin_db", ("min_gain_margin", None), "gain margin", "dB", False),
+    ("phase_margin_deg", ("min_phase_margin", None), "phase margin", "deg", False),
+    ("delay_margin_s", ("min_delay_margin", None), "delay margin", "s", True),
+    ("sensitivity_peak", (None, "max_sensitivity_peak"), "sensitivity peak Ms", "", False),
+)
+
+
+def _finite(values: np.ndarray) -> np.ndarray:
+    return np.where(np.isfinite(values), values, np.nan)
+
+
+def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
+    """Damping, natural frequency and margins against the scheduling variable(s).
+
+    Parameters
+    ----------
+    table : GainTable
+    points : list of dict
+        The log's per-point entries (grid order).
+    """
+    figure = _figure((9.0, 8.4))
+    shape = table.shape
+    for k, (key, (low, high), title, unit, log) in enumerate(_MARGIN_PANELS):
+        ax = figure.add_subplot(3, 2, k + 1)
+        values = np.array([_as_float(e[key]) for e in points]).reshape(shape)
+        for n, (label, x, y, flat) in enumerate(_lines_2d(table, values)):
+            colour = _SERIES[n % len(_SERIES)]
+            ax.plot(x, _finite(y), marker="o", ms=3.2, lw=1.3, color=colour, label=label)
+            for spec, sense in ((low, +1), (high, -1)):
+                if spec is None:
+                    continue
+                limits = np.array([_as_float(points[i]["specs"][spec]["limit"]) if spec in points[i]["specs"]
+                                   else np.nan for i in flat])
+                if np.all(np.isnan(limits)):
+                    continue
+                ax.step(x, limits, where="mid", color=_LIMIT, lw=1.1, ls=(0, (5, 3)),
+                        label="spec limit" if n == 0 else None)
+                bad = np.array([spec in points[i]["specs"] and not points[i]["specs"][spec]["pass"] for i in flat])
+                if bad.any():
+                    ax.plot(x[bad], _finite(y[bad]), ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4)
+        infinite = [i for i, e in enumerate(points) if _as_float(e[key]) == math.inf]
+        if infinite:
+            ax.text(0.99, 0.02, f"∞ at {len(infinite)} point(s) (no crossover): not drawn", transform=ax.transAxes,
+                    ha="right", va="bottom", fontsize=7, color="#555555")
+        _y_axis(ax, log)
+        ax.set_title(title + (f"  [{unit}]" if unit else ""), fontsize=9.5, loc="left")
+        ax.set_xlabel(_axis_label(table.axes[0]), fontsize=8.5)
+        ax.grid(True, color="#e4e4e4", lw=0.6)
+        ax.tick_params(labelsize=8)
+    handles = [Line2D([], [], color=_SERIES[0], marker="o", ms=3.2, lw=1.3, label="designed table"),
+               Line2D([], [], color=_LIMIT, lw=1.1, ls=(0, (5, 3)), label="spec limit (per point)"),
+               Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4, label="spec fails")]
+    if len(table.axes) == 2:
+        handles[0] = Line2D([], [], color="#777777", lw=1.3, label="one colour per " + table.axes[1].name)
+        handles += [Line2D([], [], color=_SERIES[n % len(_SERIES)], lw=1.3, label=label)
+                    for n, (label, *_rest) in enumerate(_lines_2d(table, np.zeros(table.shape)))]
+    figure.legend(handles=handles, loc="lower center", ncol=min(4, len(handles)), fontsize=8, frameon=False)
+    figure.suptitle("Closed-loop damping and margins of the sampled loop", fontsize=11, x=0.01, ha="left")
+    figure.subplots_adjust(left=0.08, right=0.98, top=0.92, bottom=0.12 + 0.025 * (len(handles) > 4),
+                           hspace=0.6, wspace=0.25)
+    return png_bytes(figure)
+
+
+def _y_axis(ax: Any, log: bool) -> None:
+    """Log scale only over a wide range; never an offset; flat data keep a readable span."""
+    low, high = ax.dataLim.y0, ax.dataLim.y1
+    if log and np.isfinite(low) and low > 0 and high / low > 20:
+        ax.set_yscale("log")
+        return
+    ax.ticklabel_format(axis="y", useOffset=False, style="plain")
+    middle, span = 0.5 * (low + high), high - low
+    if np.isfinite(span) and span < 0.02 * abs(middle):
+        half = 0.05 * abs(middle)
+        ax.set_ylim(middle - half, middle + half)
+
+
+def _as_float(value: Any) -> float:
+    if isinstance(value, str):
+        return float(value)
+    return float("nan") if value is None else float(value)
+
+
+def step_response(loop: Loop, p: int, samples: int) -> np.ndarray:
+    """Unit step response of the unity-feedback loop ``N/(D + N)`` at point ``p``.
+
+    Parameters
+    ----------
+    loop : Loop
+        Discrete open loop ``L = C P`` (batched).
+    p : int
+        Point index.
+    samples : int
+        Number of samples.
+    """
+    num, den = loop.num[p], loop.den[p]
+    return scipy.signal.lfilter(num, den + num, np.ones(samples))
+
+
+def plot_steps(loop: Loop, chosen: list[tuple[int, str]], points: list[dict[str, Any]]) -> bytes:
+    """Sampled step responses at the chosen points (stairs, one per point).
+
+    The horizon is three times the slowest logged settling time (at least
+    60 samples), so the settled tail is visible.
+    """
+    figure = _figure((9.0, 4.8))
+    ax = figure.add_axes((0.08, 0.22, 0.9, 0.68))
+    horizon = []
+    for p, _ in chosen:
+        settle = _as_float(points[p]["settling_time_s"])
+        ts = float(loop.ts[p])
+        horizon.append(3 * settle / ts if math.isfinite(settle) and settle > 0 else 200)
+    samples = int(min(20000, max(60, max(horizon, default=60))))
+    overshoot_limits = set()
+    for n, (p, label) in enumerate(chosen):
+        ts = float(loop.ts[p])
+        y = step_response(loop, p, samples)
+        t = np.arange(samples) * ts
+        colour = _SERIES[n % len(_SERIES)]
+        # later lines dashed so that identical responses stay visible
+        ax.step(t, np.where(np.isfinite(y), y, np.nan), where="post", lw=1.6 - 0.3 * n, color=colour,
+                ls=("-", (0, (6, 3)), (0, (2, 2)))[n % 3], label=f"{label}: {points[p]['label']}")
+        spec = points[p]["specs"].get("max_overshoot")
+        if spec is not None:
+            overshoot_limits.add(_as_float(spec["limit"]))
+    final = [float(np.sum(loop.num[p]) / np.sum(loop.den[p] + loop.num[p])) for p, _ in chosen]
+    if final and all(math.isfinite(f) for f in final) and np.ptp(final) < 1e-9 * max(1.0, abs(final[0])):
+        level = final[0]
+        ax.axhspan(level * 0.98, level * 1.02, color="#dcebdc", zorder=0, label="±2 % settling band")
+        for limit in sorted(overshoot_limits):
+            ax.axhline(level * (1 + limit / 100), color=_LIMIT, lw=1.0, ls=(0, (5, 3)),
+                       label=f"overshoot limit {limit:g} %")
+    ax.set_xlabel("time [s]", fontsize=9)
+    ax.set_ylabel("output y / reference step", fontsize=9)
+    ax.grid(True, color="#e4e4e4", lw=0.6)
+    ax.tick_params(labelsize=8)
+    ax.set_title("Unit step response of the sampled closed loop (controller output not saturated)", fontsize=10,
+                 loc="left")
+    figure.legend(loc="lower center", ncol=2, fontsize=8, frameon=False)
+    return png_bytes(figure)
+
+
+def chosen_points(points: list[dict[str, Any]]) -> list[tuple[int, str]]:
+    """First, last and worst point (smallest relative distance to a spec limit).
+
+    Returns ``(index, role)`` pairs without repeats; a failing point is
+    always worst (most failed specs first).
+    """
+    count = len(points)
+    if count == 0:
+        return []
+
+    def score(e: dict[str, Any]) -> tuple[float, float]:
+        rel = []
+        for spec in e["specs"].values():
+            margin, limit = _as_float(spec["margin"]), _as_float(spec["limit"])
+            if math.isnan(margin):
+                continue
+            rel.append(margin / abs(limit) if limit not in (0.0,) and math.isfinite(limit) else margin)
+        return (-len(e["failed"]), min(rel, default=math.inf))
+
+    worst = min(range(count), key=lambda i: (score(points[i]), i))
+    out: list[tuple[int, str]] = []
+    for index, role in ((0, "first"), (count - 1, "last"), (worst, "worst")):
+        if all(index != i for i, _ in out):
+            out.append((index, role))
+        else:
+            out = [(i, r + " and " + role if i == index else r) for i, r in out]
+    return out
+
+
+def _region(spec: dict[str, Any], ts: float | None) -> list[tuple[str, np.ndarray]]:
+    """Labelled boundary curves of a point's spec region in the s- or z-plane."""
+
+    def limit(name: str) -> float | None:
+        entry = spec.get(name)
+        if entry is None:
+            return None
+        value = _as_float(entry["limit"])
+        return value if math.isfinite(value) else None
+
+    curves: list[tuple[str, np.ndarray]] = []
+    zeta, decay = limit("min_damping"), limit("min_decay")
+    low, high = limit("min_natural_frequency"), limit("max_natural_frequency")
+    radius = limit("max_pole_radius")
+    reach = [v for v in (decay, low, high) if v]
+    extent = 3.0 * max(reach) if reach else None
+    if zeta and 0 < zeta < 1:
+        found = SpecRegion(min_damping=zeta, ts=ts).boundary_curves(extent=extent if ts is None else None)
+        curves += [(f"ζ ≥ {zeta:.3g}", c) for c in found[1:3]]
+    if decay and decay > 0:
+        curves.append((f"decay ≥ {decay:.4g}/s", SpecRegion(min_decay=decay, ts=ts).boundary_curves(
+            extent=extent if ts is None else None)[0]))
+    for value, sign in ((low, "≥"), (high, "≤")):
+        if value and value > 0:
+            lo, hi = (value, math.inf) if sign == "≥" else (0.0, value)
+            found = SpecRegion(wn_range=(lo, hi), ts=ts).boundary_curves(extent=extent if ts is None else None)
+            curves += [(f"dominant ωn {sign} {value:.4g} rad/s", c) for c in found[1:]]
+    if radius and ts is not None:
+        curves.append((f"|z| ≤ {radius:.4g}", SpecRegion(max_pole_radius=radius, ts=ts).boundary_curves()[-1]))
+    return curves
+
+
+def _locus_layers():
+    # The z-plane layers (stability boundary, open-loop poles and zeros,
+    # asymptotes, breakaways, crossings with their gains) are the locus
+    # helper's drawing; reused so both plots read the same.
+    from . import locus_plot
+
+    return locus_plot._draw, locus_plot._view
+
+
+def _s_half_width(entry: dict[str, Any]) -> float:
+    """Half-width (rad/s) of the s-plane view: the dominant pole and the low spec limits."""
+    reach = [_as_float(entry["natural_frequency"])]
+    for key in ("min_decay", "min_natural_frequency"):
+        if key in entry["specs"]:
+            reach.append(_as_float(entry["specs"][key]["limit"]))
+    reach = [v for v in reach if math.isfinite(v) and v > 0]
+    return 2.5 * max(reach) if reach else 10.0
+
+
+def _mark_design(ax: Any, poles: np.ndarray) -> None:
+    ax.plot(poles.real, poles.imag, ls="none", marker="*", ms=13, mfc="#ffd23f", mec=_DESIGN, mew=0.9, zorder=8)
+
+
+def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> bytes:
+    """Root locus of ``K L(z)`` at point ``p``: z-plane, z near 1 magnified, s-plane.
+
+    Parameters
+    ----------
+    loop : Loop
+        Discrete open loop ``L = C P`` with the table's coefficients.
+    p : int
+        Point index.
+    entry : dict
+        The log's entry for that point (spec limits, label, poles).
+    role : str
+        Why the point was chosen (``first``, ``last``, ``worst``).
+    """
+    ts = float(loop.ts[p])
+    one = loop.select(np.array([p]))
+    delta = None if one.delta_num is None else (one.delta_num[0], one.delta_den[0])
+    facts = locus_facts(one.num[0], one.den[0], ts, delta=delta)
+    cloud = closed_loop_poles(one, LOCUS_GAINS[None, :])[0]  # (G, n)
+    design = cloud[-1]
+    cloud = cloud[:-1].ravel()
+    cloud = cloud[np.isfinite(cloud)]
+    draw, view_of = _locus_layers()
+    no_branches = np.zeros((0, 0), dtype=complex)
+    half_s = _s_half_width(entry)
+    # Near z = 1, z ~ 1 + s ts: the magnified z view matches the s view.
+    half_z = min(1.2, half_s * ts)
+    zoom = (1.0 - 1.6 * half_z, 1.0 + 0.4 * half_z, -half_z, half_z)
+
+    figure = _figure((15.0, 6.0))
+    panels = [figure.add_axes((0.045 + 0.33 * k, 0.24, 0.28, 0.64)) for k in range(3)]
+    full, near, splane = panels
+    for ax, view, title in ((full, view_of(facts, no_branches), f"z-plane, ts = {ts:.4g} s"),
+                            (near, zoom, "z-plane near z = 1, magnified")):
+        draw(ax, facts, no_branches, [], view, quiet=zoom if ax is full else None)
+        for _label, curve in _region(entry["specs"], ts):
+            ax.plot(curve.real, curve.imag, color=_REGION, lw=1.2, ls=(0, (3, 2)), zorder=2)
+        ax.plot(cloud.real, cloud.imag, ls="none", marker=".", ms=2.2, color=_CLOUD, zorder=3)
+        _mark_design(ax, design)
+        ax.set_title(title, fontsize=10, loc="left")
+        ax.set_xlabel("Re(z)")
+        ax.set_ylabel("Im(z)")
+    full.add_patch(_box(zoom))
+
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s_cloud = np.log(cloud) / ts
+        s_design = np.log(design) / ts
+    s_cloud = s_cloud[np.isfinite(s_cloud)]
+    shown = np.isfinite(s_design)
+    splane.axvspan(-20 * half_s, 0, color="#eef5ee", zorder=0)
+    splane.axvline(0.0, color="#44546a", lw=1.1, zorder=1)
+    splane.axhline(0.0, color="#c8c8c8", lw=0.8, zorder=1)
+    for _label, curve in _region(entry["specs"], None):
+        splane.plot(curve.real, curve.imag, color=_REGION, lw=1.2, ls=(0, (3, 2)), zorder=2)
+    splane.plot(s_cloud.real, s_cloud.imag, ls="none", marker=".", ms=2.2, color=_CLOUD, zorder=3)
+    _mark_design(splane, s_design[shown])
+    splane.set_xlim(-1.6 * half_s, 0.4 * half_s)
+    splane.set_ylim(-half_s, half_s)
+    splane.set_aspect("equal", adjustable="box")
+    splane.grid(True, color="#e2e2e2", lw=0.6, zorder=0)
+    outside = int(np.count_nonzero(shown & (np.abs(s_design) > 1.6 * half_s)))
+    if outside:
+        splane.text(0.02, 0.02, f"{outside} faster designed pole(s) outside this view", transform=splane.transAxes,
+                    fontsize=7.5, color="#444444")
+    splane.set_title("s = ln(z)/ts", fontsize=10, loc="left")
+    splane.set_xlabel("Re(s)  [rad/s]")
+    splane.set_ylabel("Im(s)  [rad/s]")
+
+    handles = [
+        Line2D([], [], ls="none", marker=".", ms=6, color=_CLOUD, label="closed-loop poles for K = 0.001 ... 1000"),
+        Line2D([], [], ls="none", marker="*", ms=12, mfc="#ffd23f", mec=_DESIGN, label="designed closed-loop poles (K = 1)"),
+        Line2D([], [], color=_REGION, lw=1.2, ls=(0, (3, 2)), label="spec region boundary at this point"),
+        Line2D([], [], marker="x", ms=8, mew=2, color="#202020", ls="none", label="open-loop pole"),
+        Line2D([], [], marker="o", ms=7, mfc="white", mec="#202020", ls="none", label="open-loop zero"),
+        Line2D([], [], marker="s", ms=6, color="#c0262d", ls="none", label="|z| = 1 crossing at K (= gain margin)"),
+        Line2D([], [], marker="^", ms=7, color="#d98c00", mec="#202020", mew=0.6, ls="none",
+               label="breakaway / break-in at K"),
+    ]
+    figure.legend(handles=handles, loc="lower center", ncol=4, fontsize=8, frameon=False)
+    figure.suptitle(f"Root locus of K·L(z) at the {role} point: {entry['label']}   "
+                    "(K multiplies the designed loop gain)", fontsize=11, x=0.01, ha="left")
+    return png_bytes(figure)
+
+
+def _box(view: tuple[float, float, float, float]):
+    from matplotlib.patches import Rectangle
+
+    x0, x1, y0, y1 = view
+    return Rectangle((x0, y0), x1 - x0, y1 - y0, fill=False, ec="#555555", lw=0.8, ls="-", zorder=9)
