@@ -84,11 +84,13 @@ def _run(folder: Path, out: str, *, full: bool = True, damping: float = 0.6, **e
     gains = folder / "gains.yaml"
     gainloom.write_gains(result, gains)
     quant = check_quantisation(schedule, result.table, "q15") if full else None
-    simulation = None
+    simulation = harness = None
     if full:
         simulation = run_scenario(schedule, result.table, Scenario(0.02, {"speed": 1500.0}), "float32")
+        files = gainloom.emit_c(result.table, folder / "c", "q15", "spd", result.schedule_sha256, force=True)
+        harness = gainloom.check_generated_c(files, result.table, number_format="q15", prefix="spd")
     paths = write_verification(folder / out, schedule=schedule, result=result, table=result.table,
-                               gains_path=gains, quantisation=quant, simulation=simulation,
+                               gains_path=gains, quantisation=quant, simulation=simulation, harness=harness,
                                options={"number_format": "q15"}, **extra)
     return paths, result
 
@@ -133,6 +135,9 @@ def test_inputs_are_hashed_and_versions_recorded(logged):
     assert document["tools"]["control"] == control.__version__
     assert document["tools"]["numpy"] == np.__version__
     assert document["sampling"]["hold"] == "zoh"
+    assert document["simulation"]["number_format"] == "float32"
+    assert document["c_check"]["status"] in ("passed", "no-compiler")
+    assert document["tools"]["c_compiler"] == document["c_check"]["compiler_version"]
     assert len(document["cautions"]) >= 3 and any("hardware" in c for c in document["cautions"])
 
 
@@ -260,3 +265,18 @@ def test_timestamp_only_when_asked_and_no_overwrite_of_foreign_files(tmp_path):
     with pytest.raises(OutputConflictError):
         _run(tmp_path, "other", full=False, plots=False)
     assert (foreign / "verification.md").read_text(encoding="utf-8") == "someone else's notes\n"
+
+
+def test_a_verify_result_is_logged_with_the_gains_file_hash(logged, tmp_path):
+    import hashlib
+
+    folder, _paths, _result, _document = logged
+    schedule = gainloom.load_schedule(folder / "speed.yaml")
+    checked = gainloom.verify(schedule, folder / "gains.yaml")
+    paths = write_verification(tmp_path / "log", schedule=schedule, result=checked, table=checked.table,
+                               gains_path=folder / "gains.yaml", plots=False)
+    document = json.loads(paths[0].read_text(encoding="utf-8"))
+    assert validate(document) == []
+    assert document["inputs"]["gains"]["sha256"] == hashlib.sha256((folder / "gains.yaml").read_bytes()).hexdigest()
+    assert document["verdict"]["passed"] is checked.passed
+    assert document["verdict"]["not_checked"] == ["quantisation", "generated C", "simulation"]

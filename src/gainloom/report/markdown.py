@@ -90,7 +90,7 @@ def _inputs(doc: dict[str, Any]) -> list[str]:
     lines.append(
         f"Sampled plant: hold `{sampling['hold']}`"
         + (f", prewarp {number(sampling['prewarp_rad_s'])} rad/s" if sampling["prewarp_rad_s"] is not None else "")
-        + "; sample period and computation delay per point in the table below. "
+        + "; sample period and computation delay per point in the per-point table. "
         "How every number was computed: `method` in verification.json."
     )
     if doc["options"]:
@@ -105,7 +105,7 @@ def _points(doc: dict[str, Any]) -> list[str]:
     names = doc["table"]["coefficient_names"]
     lines = ["## Per-point table", ""]
     headers = ["#", "point", "status", "ts [s]", "delay"] + names + [
-        "ζ min", "ωn [rad/s]", "max abs(z)", "GM [dB]", "PM [deg]", "DM [s]", "Ms", "OS [%]", "Ts [s]"]
+        "ζ min", "ωn [rad/s]", "max \\|z\\|", "GM [dB]", "PM [deg]", "DM [s]", "Ms", "OS [%]", "Ts [s]"]
     rows = []
     for e in doc["points"]:
         status = "pass" if e["status"] == "pass" else f"FAIL ({e['binding']})"
@@ -149,18 +149,28 @@ def _table_checks(doc: dict[str, Any]) -> list[str]:
          "pass" if not tol["failing"] else f"FAIL at {len(tol['failing'])} point(s)"],
     ]
     lines += _table(["check", "result"], rows)
-    for entry in checks["smoothness"][:10]:
+    shown = 10
+
+    def more(items: list) -> None:
+        if len(items) > shown:
+            lines.append(f"- ... and {len(items) - shown} more (verification.json `table_checks`)")
+
+    for entry in checks["smoothness"][:shown]:
         lines.append(f"- step of {entry['coefficient']} along {entry['axis']} at {entry['index']}: "
                      f"{number(entry['step'])} > {number(entry['limit'])}")
-    for entry in checks["monotone"][:10]:
+    more(checks["smoothness"])
+    for entry in checks["monotone"][:shown]:
         lines.append(f"- {entry['coefficient']} not {entry['direction']} along {entry['axis']} at {entry['index']}")
-    for entry in between["failing"][:10]:
+    more(checks["monotone"])
+    for entry in between["failing"][:shown]:
         at = ", ".join(f"{k} = {number(v)}" for k, v in entry["point"].items())
         lines.append(f"- between points at {at}: {', '.join(entry['failed'])}")
-    for entry in tol["failing"][:10]:
+    more(between["failing"])
+    for entry in tol["failing"][:shown]:
         at = ", ".join(f"{k} = {number(v)}" for k, v in entry["point"].items())
         scale = ", ".join(f"{k} x{number(v)}" for k, v in entry["scale"].items())
         lines.append(f"- tolerance corner ({scale}) at {at}: {', '.join(entry['failed'])}")
+    more(tol["failing"])
     for note in checks["smoothing"]:
         lines.append(f"- {note}")
     if checks["inserted"]:
@@ -176,7 +186,7 @@ def _quantisation(doc: dict[str, Any]) -> list[str]:
         return lines + ["Not checked in this run.", ""]
     word = "pass: rounding breaks no spec" if q["passed"] else "FAIL: rounding breaks a spec"
     lines += [f"Format `{q['number_format']}`: **{word}**. Largest closed-loop pole shift "
-              f"max abs(dz) = {number(q['max_pole_shift'])}.", ""]
+              f"largest |dz| = {number(q['max_pole_shift'])}.", ""]
     lines += _table(["coefficient", "fraction bits", "scale", "largest rounding error"],
                     [[c["name"], "-" if c["frac"] is None else c["frac"], number(c["scale"]),
                       number(c["max_abs_error"])] for c in q["coefficients"]])

@@ -176,8 +176,9 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
                                    else np.nan for i in flat])
                 if np.all(np.isnan(limits)):
                     continue
-                ax.step(x, limits, where="mid", color=_LIMIT, lw=1.1, ls=(0, (5, 3)),
-                        label="spec limit" if n == 0 else None)
+                # 1-D: one red limit; 2-D: each line's limit in its own colour
+                ax.step(x, limits, where="mid", color=_LIMIT if label is None else colour, lw=1.1,
+                        ls=(0, (5, 3)), label="spec limit" if n == 0 else None)
                 bad = np.array([spec in points[i]["specs"] and not points[i]["specs"][spec]["pass"] for i in flat])
                 if bad.any():
                     ax.plot(x[bad], _finite(y[bad]), ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4)
@@ -194,9 +195,11 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
                Line2D([], [], color=_LIMIT, lw=1.1, ls=(0, (5, 3)), label="spec limit (per point)"),
                Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4, label="spec fails")]
     if len(table.axes) == 2:
-        handles[0] = Line2D([], [], color="#777777", lw=1.3, label="one colour per " + table.axes[1].name)
-        handles += [Line2D([], [], color=_SERIES[n % len(_SERIES)], lw=1.3, label=label)
-                    for n, (label, *_rest) in enumerate(_lines_2d(table, np.zeros(table.shape)))]
+        handles = [Line2D([], [], color=_SERIES[n % len(_SERIES)], marker="o", ms=3.2, lw=1.3, label=label)
+                   for n, (label, *_rest) in enumerate(_lines_2d(table, np.zeros(table.shape)))]
+        handles += [Line2D([], [], color="#555555", lw=1.1, ls=(0, (5, 3)),
+                           label="dashed: spec limit of the line in the same colour"),
+                    Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4, label="spec fails")]
     figure.legend(handles=handles, loc="lower center", ncol=min(4, len(handles)), fontsize=8, frameon=False)
     figure.suptitle("Closed-loop damping and margins of the sampled loop", fontsize=11, x=0.01, ha="left")
     figure.subplots_adjust(left=0.08, right=0.98, top=0.92, bottom=0.12 + 0.025 * (len(handles) > 4),
@@ -208,7 +211,11 @@ def _y_axis(ax: Any, log: bool) -> None:
     """Log scale only over a wide range; never an offset; flat data keep a readable span."""
     low, high = ax.dataLim.y0, ax.dataLim.y1
     if log and np.isfinite(low) and low > 0 and high / low > 20:
+        from matplotlib.ticker import LogLocator, NullFormatter
+
         ax.set_yscale("log")
+        ax.yaxis.set_major_locator(LogLocator(base=10.0))
+        ax.yaxis.set_minor_formatter(NullFormatter())
         return
     ax.ticklabel_format(axis="y", useOffset=False, style="plain")
     middle, span = 0.5 * (low + high), high - low
@@ -294,7 +301,12 @@ def chosen_points(points: list[dict[str, Any]]) -> list[tuple[int, str]]:
 
     def score(e: dict[str, Any]) -> tuple[float, float]:
         rel = []
-        for spec in e["specs"].values():
+        for name, spec in e["specs"].items():
+            if name in ("stable", "system_type"):
+                # |z| < 1 sits near its limit at any fast sampling, and the
+                # system type is met with equality: neither tells which
+                # point is closest to trouble.
+                continue
             margin, limit = _as_float(spec["margin"]), _as_float(spec["limit"])
             if math.isnan(margin):
                 continue
