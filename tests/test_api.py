@@ -28,6 +28,9 @@ EXPECTED_PUBLIC_NAMES = {
     "VerifyResult",
     "read_gains",
     "write_gains",
+    "check_quantisation",
+    "QuantisationResult",
+    "write_verification",
 }
 
 

@@ -19,6 +19,8 @@ from .codegen import HarnessResult, check_generated_c, emit_c
 from .design.engine import design, verify  # noqa: E402 - the function shadows the subpackage name on purpose
 from .design.results import DesignResult, VerifyResult
 from .design.gainsfile import read_gains, write_gains
+from .codegen.quantisation import QuantisationResult, check_quantisation
+from .report import write_verification
 
 __all__ = [
     "__version__",
@@ -46,4 +48,7 @@ __all__ = [
     "VerifyResult",
     "read_gains",
     "write_gains",
+    "check_quantisation",
+    "QuantisationResult",
+    "write_verification",
 ]

@@ -57,7 +57,7 @@ def _summary(doc: dict[str, Any]) -> list[str]:
         ["check", "result"],
         [
             ["design at every grid point and whole-table checks", _verdict_word(verdict["design"])],
-            ["coefficients rounded to the number format", _verdict_word(verdict["quantisation"])],
+            ["rounding to the number format breaks no spec that held", _verdict_word(verdict["quantisation"])],
             ["generated C (compile + host harness)", _verdict_word(verdict["c_check"])],
             ["time-domain simulation", _verdict_word(verdict["simulation"])],
         ],
