@@ -280,3 +280,19 @@ def test_a_verify_result_is_logged_with_the_gains_file_hash(logged, tmp_path):
     assert document["inputs"]["gains"]["sha256"] == hashlib.sha256((folder / "gains.yaml").read_bytes()).hexdigest()
     assert document["verdict"]["passed"] is checked.passed
     assert document["verdict"]["not_checked"] == ["quantisation", "generated C", "simulation"]
+
+
+def test_rounding_that_breaks_a_spec_fails_the_run():
+    from types import SimpleNamespace
+
+    from gainloom.report.document import _verdict
+
+    # Stand-ins with only what the verdict reads: a passing design and a
+    # quantisation check that reports a broken spec.
+    result = SimpleNamespace(passed=True, table_report=SimpleNamespace(passed=True))
+    entries = [{"index": 0, "label": "p0", "status": "pass", "binding": None, "failed": [], "specs": {},
+                "notes": []}]
+    verdict = _verdict(result, entries, SimpleNamespace(passed=False), None, None)
+    assert verdict["passed"] is False and verdict["quantisation"] is False
+    assert any("rounding" in reason for reason in verdict["reasons"])
+    assert _verdict(result, entries, SimpleNamespace(passed=True), None, None)["passed"] is True

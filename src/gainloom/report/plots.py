@@ -33,6 +33,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
+from ..errors import GainloomError
 from ..lti.closed_loop import closed_loop_poles
 from ..lti.facts import locus_facts
 from ..lti.loop import Loop
@@ -395,7 +396,10 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     ts = float(loop.ts[p])
     one = loop.select(np.array([p]))
     delta = None if one.delta_num is None else (one.delta_num[0], one.delta_den[0])
-    facts = locus_facts(one.num[0], one.den[0], ts, delta=delta)
+    try:
+        facts = locus_facts(one.num[0], one.den[0], ts, delta=delta)
+    except GainloomError:
+        facts = None  # e.g. a loop the facts cannot describe: draw poles and region only
     cloud = closed_loop_poles(one, LOCUS_GAINS[None, :])[0]  # (G, n)
     design = cloud[-1]
     cloud = cloud[:-1].ravel()
@@ -410,9 +414,17 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     figure = _figure((15.0, 6.0))
     panels = [figure.add_axes((0.045 + 0.33 * k, 0.24, 0.28, 0.64)) for k in range(3)]
     full, near, splane = panels
-    for ax, view, title in ((full, view_of(facts, no_branches), f"z-plane, ts = {ts:.4g} s"),
+    full_view = view_of(facts, no_branches) if facts is not None else (-1.3, 1.3, -1.3, 1.3)
+    for ax, view, title in ((full, full_view, f"z-plane, ts = {ts:.4g} s"),
                             (near, zoom, "z-plane near z = 1, magnified")):
-        draw(ax, facts, no_branches, [], view, quiet=zoom if ax is full else None)
+        if facts is not None:
+            draw(ax, facts, no_branches, [], view, quiet=zoom if ax is full else None)
+        else:
+            circle = np.exp(1j * np.linspace(0.0, 2 * math.pi, 721))
+            ax.plot(circle.real, circle.imag, color="#44546a", lw=1.1)
+            ax.set_xlim(view[0], view[1])
+            ax.set_ylim(view[2], view[3])
+            ax.set_aspect("equal", adjustable="box")
         for _label, curve in _region(entry["specs"], ts):
             ax.plot(curve.real, curve.imag, color=_REGION, lw=1.2, ls=(0, (3, 2)), zorder=2)
         ax.plot(cloud.real, cloud.imag, ls="none", marker=".", ms=2.2, color=_CLOUD, zorder=3)
