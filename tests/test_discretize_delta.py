@@ -82,7 +82,7 @@ def test_delta_poles_beat_z_polynomial_roots_at_fast_sampling():
     from_z = batched_roots(loop.den)[0] - 1.0
     delta_error = _relative_errors(from_delta, reference)
     z_error = _relative_errors(from_z, reference)
-    assert delta_error.max() < 1e-8
+    assert delta_error.max() < 1e-10
     # The z polynomial has lost (nearly) all digits of z - 1 at this rate.
     assert z_error.max() > 1e-3
     assert delta_error.max() < 1e-6 * z_error.max()

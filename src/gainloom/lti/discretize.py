@@ -206,7 +206,7 @@ def _ss_num(A: np.ndarray, B: np.ndarray, C: np.ndarray, D: np.ndarray, den: np.
 
 def _state_space_hold(num, den, ts, method) -> _Rational:
     """zoh, foh and impulse: all via the augmented matrix exponential."""
-    A, B, C, D = tf_to_ss(num, den)
+    A, B, C, D = tf_to_ss(num, den, scaled=True)
     points, n = A.shape[0], A.shape[-1]
     if method == "impulse" and np.any(D != 0):
         bad = int(np.flatnonzero(D != 0)[0])
@@ -256,7 +256,7 @@ def _zoh_fractional(num, den, ts, frac) -> _Rational:
     Augmenting the state with ``u[k-1]`` gives order ``n + 1``; its
     transfer function is the modified z-transform of the ZOH equivalent.
     """
-    A, B, C, D = tf_to_ss(num, den)
+    A, B, C, D = tf_to_ss(num, den, scaled=True)
     points, n = A.shape[0], A.shape[-1]
     origin = _origin_poles(den)
     horizons = np.concatenate([(1.0 - frac) * ts, frac * ts])
