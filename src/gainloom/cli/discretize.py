@@ -144,8 +144,10 @@ def run(args: argparse.Namespace) -> int:
         "",
     ]
     for title in ("poles", "zeros"):
+        # Ten digits: poles near z = 1 differ only in the later digits.
         rows = [
-            [i + 1, r["real"], r["imag"], r["magnitude"], r["angle_rad"]] for i, r in enumerate(result[title])
+            [i + 1] + [format_number(r[key], 10) for key in ("real", "imag", "magnitude", "angle_rad")]
+            for i, r in enumerate(result[title])
         ]
         lines.append(f"{title} (z):" if rows else f"{title} (z): none finite")
         if rows:
