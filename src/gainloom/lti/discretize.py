@@ -64,7 +64,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import expm
 
 from ..errors import InputError
 from ..names import HOLD_METHODS, unknown_name_message
@@ -166,6 +165,10 @@ def _integrals(A: np.ndarray, h: np.ndarray, ramp: bool = False):
     (Van Loan): its blocks in the first row are ``Phi``, ``Gamma`` and
     ``Lambda = integral_0^h e^{A (h - r)} (r / h) dr``.
     """
+    # Imported here: scipy.linalg is most of the package's import time and
+    # `import gainloom` (and every CLI error path) should not pay for it.
+    from scipy.linalg import expm
+
     points, n = A.shape[0], A.shape[-1]
     size = 3 * n if ramp else 2 * n
     eye = np.eye(n)
