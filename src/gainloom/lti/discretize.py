@@ -68,6 +68,7 @@ import numpy as np
 from ..errors import InputError
 from ..names import HOLD_METHODS, unknown_name_message
 from .convert import poly_from_roots, roots_with_origin, ss_to_tf, tf_to_ss, tf_to_zpk
+from .expm import batched_expm
 from .loop import Loop
 
 __all__ = ["discretize", "discretize_loop", "total_delay", "discrete_roots"]
@@ -165,10 +166,6 @@ def _integrals(A: np.ndarray, h: np.ndarray, ramp: bool = False):
     (Van Loan): its blocks in the first row are ``Phi``, ``Gamma`` and
     ``Lambda = integral_0^h e^{A (h - r)} (r / h) dr``.
     """
-    # Imported here: scipy.linalg is most of the package's import time and
-    # `import gainloom` (and every CLI error path) should not pay for it.
-    from scipy.linalg import expm
-
     points, n = A.shape[0], A.shape[-1]
     size = 3 * n if ramp else 2 * n
     eye = np.eye(n)
@@ -177,7 +174,7 @@ def _integrals(A: np.ndarray, h: np.ndarray, ramp: bool = False):
     block[:, :n, n : 2 * n] = eye * h[:, None, None]
     if ramp:
         block[:, n : 2 * n, 2 * n :] = eye
-    big = expm(block)
+    big = batched_expm(block)
     phi = big[:, :n, :n]
     gamma = big[:, :n, n : 2 * n]
     lam = big[:, :n, 2 * n :] if ramp else None
