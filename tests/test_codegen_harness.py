@@ -5,7 +5,6 @@ the host harness and compare with the Python mirror."""
 import os
 from concurrent.futures import ThreadPoolExecutor
 from itertools import product
-from pathlib import Path
 
 import pytest
 
@@ -102,7 +101,8 @@ def test_a_warning_fails_the_build(tmp_path):
     table = make_table("pi", dims=1)
     files = emit_c(table, tmp_path, "q31", "motor_ctl", None)
     source = tmp_path / "motor_ctl.c"
-    source.write_text(source.read_text() + "int16_t motor_ctl_narrow(int32_t v);\nint16_t motor_ctl_narrow(int32_t v) { return v; }\n")
+    narrowing = "int16_t motor_ctl_narrow(int32_t v);\nint16_t motor_ctl_narrow(int32_t v) { return v; }\n"
+    source.write_text(source.read_text() + narrowing)
     result = check_generated_c(files, table, number_format="q31", prefix="motor_ctl")
     assert result.status == "failed" and "does not compile" in result.message
     assert "conversion" in result.diagnostics
@@ -116,3 +116,26 @@ def test_no_compiler_is_reported_not_passed(tmp_path, monkeypatch):
     result = check_generated_c(files, table, number_format="q15", prefix="motor_ctl")
     assert result.status == "no-compiler" and result.passed is None
     assert "NOT checked" in result.message
+
+
+@needs_cc
+@skip_no_cc
+@pytest.mark.parametrize("number_format", ["float32", "q31"])
+def test_two_breakpoint_axes_and_negative_coefficients(tmp_path, number_format):
+    # Edge cases: a one-segment axis on each side, negative breakpoints and
+    # coefficients of both signs (a reverse-acting proportional term, a
+    # negative zero in a lead section would be the same code path).
+    import numpy as np
+
+    from gainloom.design.table import GainTable, TableAxis
+
+    axes = (TableAxis("temp", "degC", np.array([-40.0, 125.0])), TableAxis("vbus", "V", np.array([-1.0, 0.5, 48.0])))
+    coefficients = {
+        "kp": np.array([[-0.8, 1.2, 2.0], [0.3, -1.5, 0.9]]),
+        "ki_ts": np.array([[0.01, -0.02, 0.03], [0.04, 0.05, -0.06]]),
+    }
+    table = GainTable("pi", axes, coefficients, 5e-5, (-3.0, 3.0))
+    scale = None if number_format == "float32" else 10.0
+    files = emit_c(table, tmp_path, number_format, "edge", None, error_full_scale=scale)
+    result = check_generated_c(files, table, number_format=number_format, prefix="edge", error_full_scale=scale)
+    assert result.status == "passed", result.message + "\n" + result.diagnostics

@@ -107,7 +107,8 @@ def test_step_matches_lfilter_of_the_transfer_function_when_unsaturated(number_f
     # using the stored coefficients; a small error keeps |u| far from the limits.
     table = make_table(structure, dims=1, limits=(-1000.0, 1000.0))
     fixed = number_format != "float32"
-    layout = layout_table(table, number_format, error_full_scale=1.0 if fixed else None, output_full_scale=1000.0 if fixed else None)
+    scales = {"error_full_scale": 1.0, "output_full_scale": 1000.0} if fixed else {}
+    layout = layout_table(table, number_format, **scales)
     steps = 400
     k = np.arange(steps)
     error_physical = 0.3 * np.sin(2 * np.pi * k / 37) + 0.2 * np.sign(np.sin(2 * np.pi * k / 90))

@@ -27,7 +27,9 @@ print(len(files["motor.c"]))
 
 
 @pytest.mark.slow
-@pytest.mark.skipif(importlib.util.find_spec("hatchling") is None, reason="hatchling (the build back-end) is not installed")
+@pytest.mark.skipif(
+    importlib.util.find_spec("hatchling") is None, reason="hatchling (the build back-end) is not installed"
+)
 def test_installed_package_finds_its_templates(tmp_path):
     # Build from a copy of the project so no build artefacts land in the checkout.
     project = tmp_path / "project"

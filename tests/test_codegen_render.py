@@ -23,7 +23,8 @@ def test_same_input_gives_byte_identical_files(number_format):
     second = render_files(make_table("pid", dims=2), number_format, "motor", SHA, {"gains_file": "g.yaml"})
     assert first == second
     other = render_files(make_table("pid", dims=2), number_format, "motor", "f" * 64, {"gains_file": "g.yaml"})
-    changed = [i for i, (a, b) in enumerate(zip(first["motor.c"].splitlines(), other["motor.c"].splitlines())) if a != b]
+    pairs = zip(first["motor.c"].splitlines(), other["motor.c"].splitlines())
+    changed = [i for i, (a, b) in enumerate(pairs) if a != b]
     assert len(changed) == 1  # only the banner's schedule hash differs
 
 
@@ -137,8 +138,16 @@ def test_templates_are_strict():
         render_template("banner.j2", {"banner": ["x"]})
 
 
-def test_templates_found_in_the_source_checkout():
-    # PYTHONPATH=src run: gainloom/codegen_templates is absent, the
-    # repository's top-level folder is used.
+def test_templates_found_installed_or_in_the_source_checkout():
+    # Installed (non-editable): gainloom/codegen_templates inside the package;
+    # PYTHONPATH=src checkout: the repository's top-level folder.
+    import importlib.resources
+    from pathlib import Path
+
     found = templates_dir()
+    packaged = importlib.resources.files("gainloom") / "codegen_templates"
+    if packaged.is_dir():
+        assert found == Path(str(packaged))
+    else:
+        assert found == Path(__file__).resolve().parents[1] / "codegen_templates"
     assert (found / "table.c.j2").is_file() and (found / "table.h.j2").is_file()

@@ -26,7 +26,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("gains", help="gains file written by 'gainloom design' (YAML or JSON)")
     parser.add_argument("--out", required=True, metavar="DIR", help="output folder (created if missing)")
     parser.add_argument(
-        "--format", dest="number_format", choices=NUMBER_FORMATS, default="float32", help="number format (default float32)"
+        "--format",
+        dest="number_format",
+        choices=NUMBER_FORMATS,
+        default="float32",
+        help="number format (default float32)",
     )
     parser.add_argument(
         "--prefix", default="ctl", help="start of every C identifier and of the file names (default ctl)"

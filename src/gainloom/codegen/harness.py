@@ -330,7 +330,9 @@ def check_generated_c(
         raise CodegenError(f"expected a generated .h and .c; got {[str(f) for f in files]}")
     command = compiler or find_compiler()
     if command is None:
-        return HarnessResult("no-compiler", "no C compiler found ($CC, cc, gcc, clang): the generated C was NOT checked")
+        return HarnessResult(
+            "no-compiler", "no C compiler found ($CC, cc, gcc, clang): the generated C was NOT checked"
+        )
     version, sanitizers = _compiler_facts(tuple(command))
     layout = layout_table(
         table, number_format, error_full_scale=error_full_scale, output_full_scale=output_full_scale

@@ -88,7 +88,8 @@ def validate_prefix(prefix: str) -> str:
         raise CodegenError(f"prefix {prefix!r} is a C keyword; choose another name")
     if _LIBRARY_RESERVED.match(prefix):
         raise CodegenError(
-            f"prefix {prefix!r} starts a name the C standard library reserves (is*, to*, str*, mem*, wcs*, E*, int*_t); "
+            f"prefix {prefix!r} starts a name the C standard library reserves "
+            "(is*, to*, str*, mem*, wcs*, E*, int*_t); "
             "choose another name"
         )
     return prefix

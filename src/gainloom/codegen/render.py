@@ -260,7 +260,9 @@ def _context(layout: TableLayout, prefix: str, source_sha256: str, options: dict
     }
 
 
-def render_c(layout: TableLayout, prefix: str, source_sha256: str | None, options: dict | None = None) -> dict[str, str]:
+def render_c(
+    layout: TableLayout, prefix: str, source_sha256: str | None, options: dict | None = None
+) -> dict[str, str]:
     """Render ``<prefix>.h`` and ``<prefix>.c`` for a laid-out table.
 
     Parameters
