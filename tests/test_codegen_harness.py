@@ -8,6 +8,7 @@ from itertools import product
 
 import pytest
 
+from gainloom import CodegenError
 from gainloom.codegen.emit import emit_c
 from gainloom.codegen.harness import WARNING_FLAGS, check_generated_c, find_compiler
 from test_codegen_cases import make_table
@@ -139,3 +140,13 @@ def test_two_breakpoint_axes_and_negative_coefficients(tmp_path, number_format):
     files = emit_c(table, tmp_path, number_format, "edge", None, error_full_scale=scale)
     result = check_generated_c(files, table, number_format=number_format, prefix="edge", error_full_scale=scale)
     assert result.status == "passed", result.message + "\n" + result.diagnostics
+
+
+def test_harness_reads_its_settings_from_the_banner(tmp_path):
+    # The banner records format, prefix and full scales; contradicting it is refused.
+    table = make_table("pi", dims=1)
+    files = emit_c(table, tmp_path, "q15", "motor_ctl", None, error_full_scale=20.0)
+    with pytest.raises(CodegenError, match="error_full_scale 5.0 contradicts"):
+        check_generated_c(files, table, error_full_scale=5.0)
+    with pytest.raises(CodegenError, match="format 'q31' contradicts"):
+        check_generated_c(files, table, number_format="q31")

@@ -1,10 +1,15 @@
 """Python mirror of the generated C: gain lookup and controller step.
 
 Same operations in the same order as the templates in
-``codegen_templates/``: integer arithmetic from :mod:`.qformat` for Q15/Q31
-(bit-identical to the C) and float32 arithmetic (numpy ``float32``, each
-operation rounded to single precision as C does with ``FLT_EVAL_METHOD == 0``)
-for the float32 variant.
+``codegen_templates/``.  Q15/Q31: the lookup uses the numpy ``int64``
+helpers of :mod:`.qformat` (vectorised over points); the step loop uses
+Python integers with the same rounding and saturation, inlined for speed.
+Both are bit-identical to the C because no intermediate of the C reaches
+``2**63`` (products of a coefficient and a 32-bit signal stay below
+``2**62``, sums of three 32-bit values below ``2**34``, interpolation
+products below ``2**62``), so 64-bit and unbounded integers agree.
+float32: numpy ``float32`` arithmetic, each operation rounded to single
+precision as C does with ``FLT_EVAL_METHOD == 0``.
 
 Lookup rules (both variants)
 ----------------------------
