@@ -19,6 +19,12 @@ EXPECTED_PUBLIC_NAMES = {
     "emit_c",
     "check_generated_c",
     "HarnessResult",
+    "design",
+    "verify",
+    "DesignResult",
+    "VerifyResult",
+    "read_gains",
+    "write_gains",
 }
 
 

@@ -15,6 +15,9 @@ from .lti.discretize import discretize
 from .lti.closed_loop import closed_loop_poles
 from .lti.margins import Margins, loop_margins
 from .codegen import HarnessResult, check_generated_c, emit_c
+from .design.engine import design, verify  # noqa: E402 - the function shadows the subpackage name on purpose
+from .design.results import DesignResult, VerifyResult
+from .design.gainsfile import read_gains, write_gains
 
 __all__ = [
     "__version__",
@@ -33,4 +36,10 @@ __all__ = [
     "emit_c",
     "check_generated_c",
     "HarnessResult",
+    "design",
+    "verify",
+    "DesignResult",
+    "VerifyResult",
+    "read_gains",
+    "write_gains",
 ]

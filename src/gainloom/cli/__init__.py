@@ -17,7 +17,11 @@ from ..errors import GainloomError
 __all__ = ["main", "COMMANDS"]
 
 #: Registered commands, in the order ``--help`` lists them.
-COMMANDS: tuple[str, ...] = ("emit",)
+COMMANDS: tuple[str, ...] = (
+    "design",
+    "verify",
+    "emit",
+)
 
 
 def build_parser() -> argparse.ArgumentParser:

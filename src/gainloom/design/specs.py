@@ -6,7 +6,8 @@ pole-region bounds for the design (the verification re-checks both on a
 discrete step response, because zeros and extra poles move the real values):
 
 * percent overshoot -> damping ratio (exact for an underdamped second-order
-  system without zeros)::
+  system without zeros; computed by ``schedule.specs.overshoot_to_damping``
+  when the schedule resolves its specs)::
 
       zeta = -ln(OS) / sqrt(pi**2 + ln(OS)**2),   OS = overshoot / 100
 
@@ -27,7 +28,6 @@ from dataclasses import dataclass, fields
 import numpy as np
 
 __all__ = [
-    "damping_from_overshoot",
     "overshoot_from_damping",
     "decay_from_settling",
     "SETTLING_CONSTANT",
@@ -43,6 +43,14 @@ SETTLING_CONSTANT = 4.0
 #: ``2 pi / ts`` (common practice, no source: sample 10x or more faster than
 #: the closed-loop bandwidth).
 SAMPLING_FRACTION = 0.1
+
+#: Design back-off: how far inside each bound the scheduler aims (damping
+#: +0.01, relative bounds 2 %, gain margin +0.5 dB, phase margin +0.5 deg).
+#: Our choice (no source): enough to survive interpolation between
+#: refined points and float32 rounding, small against engineering margins.
+#: Points that meet the specs only on the boundary are designed there and
+#: say so in their notes.
+BACKOFF = {"damping": 0.01, "relative": 0.02, "gain_margin_db": 0.5, "phase_margin_deg": 0.5}
 
 #: Every spec a point is judged on, in report order.
 SPEC_ORDER: tuple[str, ...] = (
@@ -61,27 +69,6 @@ SPEC_ORDER: tuple[str, ...] = (
     "max_overshoot",
     "max_settling_time",
 )
-
-
-def damping_from_overshoot(overshoot_percent: np.ndarray | float) -> np.ndarray:
-    """Damping ratio whose second-order step response overshoots by ``OS``.
-
-    Parameters
-    ----------
-    overshoot_percent : array_like
-        Percent overshoot, ``0 < OS < 100``; 0 gives ``zeta = 1``.
-
-    Returns
-    -------
-    ndarray
-        ``zeta = -ln(OS) / sqrt(pi^2 + ln(OS)^2)`` with ``OS`` as a fraction
-        (standard second-order relation).
-    """
-    os_ = np.asarray(overshoot_percent, dtype=float) / 100.0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        log = np.log(np.where(os_ > 0, os_, 1.0))
-        zeta = -log / np.sqrt(np.pi**2 + log**2)
-    return np.where(os_ <= 0, 1.0, zeta)
 
 
 def overshoot_from_damping(zeta: np.ndarray | float) -> np.ndarray:
@@ -164,9 +151,9 @@ class SpecLimits:
         with np.errstate(divide="ignore", invalid="ignore"):
             decay = decay_from_settling(settle)
         overshoot = _array(values, "max_overshoot", count)
+        # spec_values already gives the stricter of min_damping and the
+        # damping implied by max_overshoot (schedule.specs.overshoot_to_damping)
         damping = _array(values, "min_damping", count)
-        implied = damping_from_overshoot(overshoot)
-        damping = np.where(np.isnan(overshoot), damping, np.fmax(damping, implied))
         return cls(
             min_damping=damping,
             min_decay=decay,
@@ -191,6 +178,31 @@ class SpecLimits:
     def select(self, index: np.ndarray) -> "SpecLimits":
         """Limits at a subset (or repetition) of the points."""
         return SpecLimits(**{f.name: getattr(self, f.name)[index] for f in fields(self)})
+
+    def tightened(self) -> "SpecLimits":
+        """The limits moved inside by the design back-off (see ``BACKOFF``).
+
+        The scheduler picks gains against these so that a design is not left
+        exactly on a spec boundary, where the firmware's interpolation
+        between points and rounding would tip it over; the verdicts always
+        use the limits as written.
+        """
+        b = BACKOFF
+        return SpecLimits(
+            min_damping=np.minimum(self.min_damping + b["damping"], 0.999),
+            min_decay=self.min_decay * (1 + b["relative"]),
+            min_natural_frequency=self.min_natural_frequency * (1 + b["relative"]),
+            max_natural_frequency=self.max_natural_frequency / (1 + b["relative"]),
+            max_pole_radius=self.max_pole_radius - b["relative"] * (1 - self.max_pole_radius),
+            min_gain_margin=self.min_gain_margin + b["gain_margin_db"],
+            min_phase_margin=self.min_phase_margin + b["phase_margin_deg"],
+            min_delay_margin=self.min_delay_margin * (1 + b["relative"]),
+            max_sensitivity_peak=self.max_sensitivity_peak / (1 + b["relative"]),
+            max_gain=self.max_gain,
+            system_type=self.system_type,
+            max_overshoot=self.max_overshoot,
+            max_settling_time=self.max_settling_time,
+        )
 
     def radius_bound(self, ts: np.ndarray) -> np.ndarray:
         """Pole-radius bound in z: the stricter of ``max_pole_radius`` and ``exp(-sigma ts)``."""
