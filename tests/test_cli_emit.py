@@ -73,3 +73,55 @@ def test_emit_check_compiles_and_compares(tmp_path, gains):
 
     report = json.loads(result.stdout)
     assert report["check"]["status"] == "passed" and report["check"]["worst_step_error"] == 0
+
+
+# A scenario of our own: a first-order plant whose gain doubles across x,
+# proportional control; sampled with one sample of computation delay.
+SCHEDULE = """
+name: emit-check
+variables:
+  - name: x
+    values: [0.0, 0.5, 1.0]
+parameters:
+  k: "2.0 + 2.0 * x"
+plant:
+  transfer_function:
+    numerator: ["k"]
+    denominator: ["0.05", "1"]
+sampling:
+  period: 0.002
+  method: zoh
+  delay: 1
+controller:
+  structure: p
+  strategy: pole-cancel
+  output_limits: [-4, 6]
+specs:
+  min_damping: 0.6
+codegen:
+  prefix: emitcheck
+  format: q15
+"""
+
+
+@pytest.mark.slow
+def test_emit_rechecks_the_stored_table_on_the_schedule(tmp_path, capsys):
+    # In-process (the design step is the cost): design, then emit with
+    # --schedule, which takes prefix and format from the schedule's codegen
+    # section and verifies the Q15-rounded table.
+    import json
+
+    from gainloom.cli import main
+
+    schedule = tmp_path / "s.yaml"
+    schedule.write_text(SCHEDULE)
+    assert main(["design", str(schedule), "--out", str(tmp_path), "--quiet", "--json"]) == 0
+    capsys.readouterr()
+    code = main(["emit", str(tmp_path / "gains.yaml"), "--out", str(tmp_path / "c"), "--schedule", str(schedule),
+                 "--json"])
+    report = json.loads(capsys.readouterr().out)
+    assert code == 0, report
+    assert report["format"] == "q15" and report["prefix"] == "emitcheck"
+    assert (tmp_path / "c" / "emitcheck.h").is_file()
+    assert report["stored_table"]["passed"] is True
+    assert report["stored_table"]["points_passing"] == report["stored_table"]["points"] == 3
