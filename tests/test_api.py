@@ -14,6 +14,18 @@ EXPECTED_PUBLIC_NAMES = {
     "Schedule",
     "discretize",
     "discretize_loop",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
+    "emit_c",
+    "check_generated_c",
+    "HarnessResult",
+    "design",
+    "verify",
+    "DesignResult",
+    "VerifyResult",
+    "read_gains",
+    "write_gains",
 }
 
 

@@ -12,6 +12,12 @@ from .errors import CodegenError, DesignError, GainloomError, InputError, Schedu
 from .lti.loop import Loop
 from .schedule import Schedule, load_schedule
 from .lti.discretize import discretize, discretize_loop
+from .lti.closed_loop import closed_loop_poles
+from .lti.margins import Margins, loop_margins
+from .codegen import HarnessResult, check_generated_c, emit_c
+from .design.engine import design, verify  # noqa: E402 - the function shadows the subpackage name on purpose
+from .design.results import DesignResult, VerifyResult
+from .design.gainsfile import read_gains, write_gains
 
 __all__ = [
     "__version__",
@@ -25,4 +31,16 @@ __all__ = [
     "Schedule",
     "discretize",
     "discretize_loop",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
+    "emit_c",
+    "check_generated_c",
+    "HarnessResult",
+    "design",
+    "verify",
+    "DesignResult",
+    "VerifyResult",
+    "read_gains",
+    "write_gains",
 ]

@@ -18,8 +18,11 @@ __all__ = ["main", "COMMANDS"]
 
 #: Registered commands, in the order ``--help`` lists them.
 COMMANDS: tuple[str, ...] = (
-    "discretize",
     "inspect",
+    "discretize",
+    "design",
+    "verify",
+    "emit",
 )
 
 

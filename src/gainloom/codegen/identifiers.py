@@ -1,0 +1,119 @@
+"""C identifiers built from user-chosen names: validated, never rewritten.
+
+Every identifier in the generated C is ``<prefix>_<something>`` (or the
+upper-case form for macros), where ``<something>`` is a fixed word, an axis
+name or a coefficient name.  A name that would make a reserved, ambiguous or
+over-long identifier is refused with :class:`~gainloom.errors.CodegenError`;
+gainloom never silently changes a name the user chose.
+
+Rules (C99 7.1.3 "Reserved identifiers" and 6.4.2.1, from memory):
+
+- letters, digits and underscores, starting with a letter (a leading
+  underscore is reserved);
+- no double underscore anywhere and no trailing underscore (``<prefix>_x``
+  would then contain ``__``);
+- not a keyword of C99, C11 or C23;
+- not in a name space the standard library reserves for future use:
+  ``is``/``to`` + lower-case letter (``<ctype.h>``), ``str``/``mem``/``wcs``
+  + lower-case letter (``<string.h>``, ``<stdlib.h>``), ``E`` + digit or
+  upper-case letter (``<errno.h>``), ``int``/``uint`` names ending in ``_t``
+  (``<stdint.h>``);
+- at most :data:`MAX_PREFIX_LENGTH` characters for the prefix, so the longest
+  external name (``<prefix>_reset_f32``) stays within the 31 significant
+  initial characters C99 5.2.4.1 guarantees for external identifiers.
+"""
+
+from __future__ import annotations
+
+import re
+
+from ..errors import CodegenError
+
+__all__ = ["C_KEYWORDS", "MAX_PREFIX_LENGTH", "MAX_FRAGMENT_LENGTH", "validate_prefix", "validate_fragment"]
+
+#: Keywords of C99, C11 and C23 (ISO/IEC 9899 section 6.4.1, from memory).
+C_KEYWORDS: frozenset[str] = frozenset(
+    """auto break case char const continue default do double else enum extern float for goto if
+    inline int long register restrict return short signed sizeof static struct switch typedef union
+    unsigned void volatile while alignas alignof bool constexpr false nullptr static_assert
+    thread_local true typeof typeof_unqual""".split()
+)
+
+#: Longest prefix accepted: 31 significant characters minus the longest
+#: suffix gainloom appends to an external name (``_reset_f32``, 10 characters),
+#: with one to spare.
+MAX_PREFIX_LENGTH = 20
+
+#: Longest axis or coefficient name accepted inside an identifier.
+MAX_FRAGMENT_LENGTH = 24
+
+_SHAPE = re.compile(r"[A-Za-z][A-Za-z0-9_]*\Z")
+_FRAGMENT_SHAPE = re.compile(r"[A-Za-z0-9][A-Za-z0-9_]*\Z")
+_LIBRARY_RESERVED = re.compile(r"(?:(?:is|to|str|mem|wcs)[a-z]|E[0-9A-Z]|u?int[A-Za-z0-9_]*_t\Z)")
+
+
+def _common_checks(kind: str, name: str, limit: int) -> None:
+    if "__" in name:
+        raise CodegenError(f"{kind} {name!r} contains a double underscore, which C reserves; choose another name")
+    if name.endswith("_"):
+        raise CodegenError(f"{kind} {name!r} ends with an underscore (joined names would contain '__'); drop it")
+    if len(name) > limit:
+        raise CodegenError(f"{kind} {name!r} has {len(name)} characters; at most {limit} are accepted")
+
+
+def validate_prefix(prefix: str) -> str:
+    """Return ``prefix`` unchanged if it can start every generated C name.
+
+    Parameters
+    ----------
+    prefix : str
+        User-chosen name, e.g. ``"motor_speed"``.
+
+    Returns
+    -------
+    str
+        The same string.
+
+    Raises
+    ------
+    CodegenError
+        With the rule that the name breaks; the name is never rewritten.
+    """
+    if not isinstance(prefix, str) or not _SHAPE.match(prefix):
+        raise CodegenError(
+            f"prefix {prefix!r} is not a C identifier: expected a letter followed by letters, digits or underscores"
+        )
+    _common_checks("prefix", prefix, MAX_PREFIX_LENGTH)
+    if prefix in C_KEYWORDS:
+        raise CodegenError(f"prefix {prefix!r} is a C keyword; choose another name")
+    if _LIBRARY_RESERVED.match(prefix):
+        raise CodegenError(
+            f"prefix {prefix!r} starts a name the C standard library reserves "
+            "(is*, to*, str*, mem*, wcs*, E*, int*_t); "
+            "choose another name"
+        )
+    return prefix
+
+
+def validate_fragment(kind: str, name: str) -> str:
+    """Return ``name`` unchanged if it can follow ``<prefix>_`` in a C name.
+
+    Parameters
+    ----------
+    kind : str
+        What the name is, for the message (e.g. ``"axis name"``).
+    name : str
+        Axis or coefficient name.
+
+    Raises
+    ------
+    CodegenError
+        When the joined identifier would be invalid or reserved.
+    """
+    if not isinstance(name, str) or not _FRAGMENT_SHAPE.match(name):
+        raise CodegenError(
+            f"{kind} {name!r} cannot appear in a C identifier: expected letters, digits or underscores, "
+            "starting with a letter or digit"
+        )
+    _common_checks(kind, name, MAX_FRAGMENT_LENGTH)
+    return name

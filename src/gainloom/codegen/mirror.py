@@ -1,0 +1,311 @@
+"""Python mirror of the generated C: gain lookup and controller step.
+
+Same operations in the same order as the templates in
+``codegen_templates/``.  Q15/Q31: the lookup uses the numpy ``int64``
+helpers of :mod:`.qformat` (vectorised over points); the step loop uses
+Python integers with the same rounding and saturation, inlined for speed.
+Both are bit-identical to the C because no intermediate of the C reaches
+``2**63`` (products of a coefficient and a 32-bit signal stay below
+``2**62``, sums of three 32-bit values below ``2**34``, interpolation
+products below ``2**62``), so 64-bit and unbounded integers agree.
+float32: numpy ``float32`` arithmetic, each operation rounded to single
+precision as C does with ``FLT_EVAL_METHOD == 0``.
+
+Lookup rules (both variants)
+----------------------------
+- An input at or below the first breakpoint (and, for float32, NaN) uses the
+  first segment with weight 0: the result is the first breakpoint's values.
+- An input at or above the last breakpoint uses the last segment with weight
+  1: the last breakpoint's values.  No extrapolation.
+- Inside, segment ``i`` satisfies ``a[i] <= x < a[i+1]``; the weight is
+  ``t = (x - a[i]) / (a[i+1] - a[i])`` (fixed point: ``floor`` of that times
+  ``2**interp_frac``).
+- float32 interpolation: ``(1 - t) * g0 + t * g1`` (exact at both ends).
+  Fixed point: ``g0 + round((g1 - g0) * t / 2**interp_frac)``.
+- 2-D: interpolate along the second (fast) axis at rows ``i`` and ``i + 1``,
+  then along the first axis.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import CodegenError
+from .layout import AxisLayout, TableLayout
+from .qformat import STATE_FRAC, lerp_fixed, rshift_round, saturate
+
+__all__ = ["state_fields", "locate", "lookup_gains", "StepTrace", "run_steps", "output_code"]
+
+_STATE_FIELDS = {
+    "p": ("e1",),
+    "pi": ("e1", "x"),
+    "pd": ("e1", "d"),
+    "pid": ("e1", "x", "d"),
+    "lead": ("e1", "v"),
+    "lag": ("e1", "v"),
+    "leadlag": ("e1", "v1", "v2"),
+}
+
+
+def state_fields(structure: str) -> tuple[str, ...]:
+    """Fields of ``<prefix>_state_t`` for a structure, in declaration order.
+
+    ``e1`` is the previous error (state format), ``x`` the integrator, ``d``
+    the filtered derivative, ``v``/``v1``/``v2`` the lead/lag section outputs.
+    """
+    return _STATE_FIELDS[structure]
+
+
+def locate(axis: AxisLayout, fmt_is_fixed: bool, interp_frac: int, x) -> tuple[np.ndarray, np.ndarray]:
+    """Segment index and weight for inputs ``x`` on one axis.
+
+    Parameters
+    ----------
+    axis : AxisLayout
+        The stored axis.
+    fmt_is_fixed : bool
+        Fixed-point (integer inputs in the axis format) or float32 inputs.
+    interp_frac : int
+        Fraction bits of the weight (fixed point).
+    x : array_like
+        Inputs: int (axis format) or float32 (physical units).
+
+    Returns
+    -------
+    index : ndarray of int64
+    weight : ndarray
+        int64 in ``[0, 2**interp_frac]`` or float32 in ``[0, 1]``.
+    """
+    a = axis.stored
+    n = a.size
+    if fmt_is_fixed:
+        x = np.asarray(x, dtype=np.int64)
+        if np.any((x < -(2**31)) | (x > 2**31 - 1)):
+            raise CodegenError("fixed-point axis inputs must be int32 values")
+        low = x <= a[0]
+        high = x >= a[-1]
+        index = np.clip(np.searchsorted(a, x, side="right") - 1, 0, n - 2)
+        one = np.int64(1) << interp_frac
+        inside = ~(low | high)
+        # floor division of non-negative numbers = C99 truncating division
+        numerator = np.where(inside, x - a[index], 0) * one
+        weight = numerator // (a[index + 1] - a[index])
+        index = np.where(low, 0, np.where(high, n - 2, index))
+        weight = np.where(low, 0, np.where(high, one, weight)).astype(np.int64)
+        return index.astype(np.int64), weight
+    x = np.asarray(x, dtype=np.float32)
+    with np.errstate(invalid="ignore"):
+        low = ~(x > a[0])  # NaN lands here, as in the C
+        high = x >= a[-1]
+    index = np.clip(np.searchsorted(a, np.where(low | high, a[0], x), side="right") - 1, 0, n - 2)
+    inside = ~(low | high)
+    safe_x = np.where(inside, x, a[index])
+    weight = (safe_x - a[index]) / (a[index + 1] - a[index])
+    index = np.where(low, 0, np.where(high, n - 2, index))
+    weight = np.where(low, np.float32(0), np.where(high, np.float32(1), weight)).astype(np.float32)
+    return index.astype(np.int64), weight
+
+
+def _lerp(a, b, t, layout: TableLayout):
+    if layout.fmt.is_fixed:
+        return lerp_fixed(a, b, t, layout.fmt.interp_frac)
+    return (np.float32(1) - t) * a + t * b
+
+
+def lookup_gains(layout: TableLayout, *inputs) -> dict[str, np.ndarray]:
+    """Interpolated coefficients at the given scheduling inputs, as stored.
+
+    Parameters
+    ----------
+    layout : TableLayout
+        The stored table.
+    *inputs : array_like
+        One array per axis (broadcast together): integers in each axis's
+        format (fixed point) or float32 physical values.
+
+    Returns
+    -------
+    dict of str to ndarray
+        Coefficient name to int64 (stored integers) or float32 values.
+    """
+    if len(inputs) != len(layout.axes):
+        raise CodegenError(f"table has {len(layout.axes)} axes; got {len(inputs)} inputs")
+    inputs = np.broadcast_arrays(*[np.asarray(v) for v in inputs])
+    located = [locate(axis, layout.fmt.is_fixed, layout.fmt.interp_frac, x) for axis, x in zip(layout.axes, inputs)]
+    result = {}
+    for coefficient in layout.coefficients:
+        table = coefficient.stored
+        if len(located) == 1:
+            (i, t), = located
+            value = _lerp(table[i], table[i + 1], t, layout)
+        else:
+            (i, t0), (j, t1) = located
+            row0 = _lerp(table[i, j], table[i, j + 1], t1, layout)
+            row1 = _lerp(table[i + 1, j], table[i + 1, j + 1], t1, layout)
+            value = _lerp(row0, row1, t0, layout)
+        result[coefficient.name] = value.astype(np.int64 if layout.fmt.is_fixed else np.float32)
+    return result
+
+
+@dataclass(frozen=True)
+class StepTrace:
+    """Outputs and states of a run of the controller step.
+
+    Parameters
+    ----------
+    output : ndarray
+        ``u`` per step: int64 (Q15/Q31 integers) or float32.
+    states : dict of str to ndarray
+        Each state field after each step (fixed point: Q3.28 integers).
+    """
+
+    output: np.ndarray
+    states: dict[str, np.ndarray]
+
+
+def run_steps(layout: TableLayout, gains: dict[str, np.ndarray], errors) -> StepTrace:
+    """Run the controller step from a reset state, one step per error sample.
+
+    Parameters
+    ----------
+    layout : TableLayout
+        The stored table (structure, format, limits, fraction bits).
+    gains : dict of str to ndarray
+        Coefficients per step, as returned by :func:`lookup_gains`.
+    errors : array_like
+        Error input per step: Q15/Q31 integers or float32 (physical units;
+        non-finite samples count as 0).
+
+    Returns
+    -------
+    StepTrace
+    """
+    if layout.fmt.is_fixed:
+        return _run_fixed(layout, gains, np.asarray(errors, dtype=np.int64))
+    return _run_float(layout, gains, np.asarray(errors, dtype=np.float32))
+
+
+def output_code(layout: TableLayout, u: int) -> int:
+    """Fixed-point output integer for an internal Q3.28 value ``u`` (as the C
+    ``return`` of the step function: rounded and saturated to Q15/Q31)."""
+    shift = layout.fmt.signal_frac - STATE_FRAC
+    if shift < 0:
+        return saturate(rshift_round(int(u), -shift), layout.fmt.bits)
+    return saturate(int(u) * (1 << shift), layout.fmt.bits)
+
+
+def _run_fixed(layout: TableLayout, gains: dict[str, np.ndarray], errors: np.ndarray) -> StepTrace:
+    fmt = layout.fmt
+    structure = layout.structure
+    fields = state_fields(structure)
+    frac = {c.name: c.frac for c in layout.coefficients}
+    g = {name: [int(v) for v in values] for name, values in gains.items()}
+    u_min, u_max = layout.limits
+    state = dict.fromkeys(fields, 0)
+    outputs = []
+    history = {name: [] for name in fields}
+    to_state_shift = fmt.signal_frac - STATE_FRAC  # 3 for Q31, -13 for Q15
+
+    low32, high32 = -(2**31), 2**31 - 1
+
+    def sat32(value):
+        return low32 if value < low32 else high32 if value > high32 else value
+
+    def mul(name, k, signal):
+        # qformat.mul_frac inlined on Python ints (the hot loop of the harness)
+        product = g[name][k] * signal
+        shift = frac[name]
+        if shift:
+            half = 1 << (shift - 1)
+            product = (product + half) >> shift if product >= 0 else -((half - product) >> shift)
+        return sat32(product)
+
+    for k, error in enumerate(int(e) for e in errors):
+        es = error * (1 << -to_state_shift) if to_state_shift < 0 else rshift_round(error, to_state_shift)
+        if structure in ("lead", "lag"):
+            w = sat32(es - mul("zc", k, state["e1"]))
+            state["v"] = sat32(mul("pc", k, state["v"]) + mul("kc", k, w))
+            u = state["v"]
+        elif structure == "leadlag":
+            w1 = sat32(es - mul("zc1", k, state["e1"]))
+            v1 = sat32(mul("pc1", k, state["v1"]) + mul("kc", k, w1))
+            w2 = sat32(v1 - mul("zc2", k, state["v1"]))
+            state["v2"] = sat32(mul("pc2", k, state["v2"]) + w2)
+            state["v1"] = v1
+            u = state["v2"]
+        else:
+            proportional = mul("kp", k, es)
+            derivative = 0
+            if "d" in fields:
+                derivative = sat32(mul("kd_a", k, state["d"]) + mul("kd_b", k, sat32(es - state["e1"])))
+                state["d"] = derivative
+            if "x" in fields:
+                increment = mul("ki_ts", k, es)
+                candidate = sat32(state["x"] + increment)
+                trial = sat32(proportional + candidate + derivative)
+                if not ((trial > u_max and increment > 0) or (trial < u_min and increment < 0)):
+                    state["x"] = candidate
+                u = sat32(proportional + state["x"] + derivative)
+            else:
+                u = sat32(proportional + derivative)
+        state["e1"] = es
+        outputs.append(output_code(layout, min(max(u, u_min), u_max)))
+        for name in fields:
+            history[name].append(state[name])
+    return StepTrace(
+        np.array(outputs, dtype=np.int64), {name: np.array(v, dtype=np.int64) for name, v in history.items()}
+    )
+
+
+def _run_float(layout: TableLayout, gains: dict[str, np.ndarray], errors: np.ndarray) -> StepTrace:
+    structure = layout.structure
+    fields = state_fields(structure)
+    g = {name: np.asarray(values, dtype=np.float32) for name, values in gains.items()}
+    u_min, u_max = (np.float32(v) for v in layout.limits)
+    zero = np.float32(0)
+    state = dict.fromkeys(fields, zero)
+    # The sums are written term by term, left to right, exactly as the C
+    # evaluates them: float addition is not associative.
+    outputs = []
+    history = {name: [] for name in fields}
+    with np.errstate(all="ignore"):  # overflow to inf is float32 behaviour the C shares
+        for k, error in enumerate(errors):
+            e = error if np.isfinite(error) else zero
+            if structure in ("lead", "lag"):
+                state["v"] = g["pc"][k] * state["v"] + g["kc"][k] * (e - g["zc"][k] * state["e1"])
+                u = state["v"]
+            elif structure == "leadlag":
+                v1 = g["pc1"][k] * state["v1"] + g["kc"][k] * (e - g["zc1"][k] * state["e1"])
+                state["v2"] = g["pc2"][k] * state["v2"] + (v1 - g["zc2"][k] * state["v1"])
+                state["v1"] = v1
+                u = state["v2"]
+            else:
+                proportional = g["kp"][k] * e
+                if "d" in fields:
+                    state["d"] = g["kd_a"][k] * state["d"] + g["kd_b"][k] * (e - state["e1"])
+                if "x" in fields:
+                    increment = g["ki_ts"][k] * e
+                    candidate = state["x"] + increment
+                    trial = proportional + candidate
+                    if "d" in fields:
+                        trial = trial + state["d"]
+                    if not ((trial > u_max and increment > zero) or (trial < u_min and increment < zero)):
+                        state["x"] = candidate
+                    u = proportional + state["x"]
+                else:
+                    u = proportional
+                if "d" in fields:
+                    u = u + state["d"]
+            state["e1"] = e
+            if u > u_max:
+                u = u_max
+            elif u < u_min:
+                u = u_min
+            outputs.append(np.float32(u))
+            for name in fields:
+                history[name].append(state[name])
+    return StepTrace(
+        np.array(outputs, dtype=np.float32), {name: np.array(v, dtype=np.float32) for name, v in history.items()}
+    )

@@ -1,0 +1,480 @@
+"""``design`` and ``verify``: the whole scheduler run on a schedule.
+
+The design is done on the *sampled* loop: the schedule's continuous plant
+discretised at each point with its hold, sample period and computation delay
+(:func:`gainloom.lti.discretize.discretize_loop`).
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Callable
+
+import numpy as np
+
+from ..errors import DesignError, InputError
+from ..lti.discretize import discretize_loop
+from ..lti.loop import Loop
+from ..names import DESIGN_STRATEGIES, SWEEP_OBJECTIVES, unknown_name_message
+from .analysis import PointAnalysis, analyse, pole_metrics, step_metrics
+from .diagnose import diagnose, compromise
+from .results import DesignResult, TableReport, VerifyResult
+from .search import OBJECTIVE_TEXT, Choice, choose_gains, shape_loops
+from .specs import SAMPLING_FRACTION, SpecLimits
+from .strategies import make_shapes
+from .structures import LocusForm, coefficients_from_locus, open_loop
+from .table import GainTable, TableAxis
+
+__all__ = ["design", "verify", "PointDesign", "design_points", "sampled_plant", "limits_at", "Progress"]
+
+#: Candidates re-tried on the step response when the chosen design's
+#: overshoot or settling time misses its spec.
+STEP_RETRIES = 24
+
+Progress = Callable[[str, int, int], None]
+
+
+def _load(schedule: Any):
+    from ..schedule import Schedule, load_schedule
+
+    if isinstance(schedule, Schedule):
+        return schedule
+    if isinstance(schedule, (str, Path)):
+        return load_schedule(schedule)
+    raise InputError(f"expected a Schedule or a path to a schedule file; got {type(schedule).__name__}")
+
+
+def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = None) -> Loop:
+    """The discretised plant (hold, sample period, computation delay) at ``points``."""
+    models = sched.evaluate(np.asarray(points, dtype=float), scale=scale)
+    return discretize_loop(models.plant, models.sample_period, sched.sampling.method, models.delay, sched.sampling.prewarp)
+
+
+def limits_at(sched, points: np.ndarray) -> SpecLimits:
+    """Specs per point (overrides resolved)."""
+    points = np.asarray(points, dtype=float)
+    return SpecLimits.from_values(sched.spec_values(points), points.shape[0])
+
+
+def _objective(controller) -> str:
+    if controller.strategy == "shape-sweep":
+        return controller.objective or "fastest"
+    if controller.strategy == "dominant-pair":
+        return "nearest-target"
+    return "fastest"
+
+
+def _target(controller) -> tuple[float, float] | None:
+    if controller.target is None:
+        return None
+    return (float(controller.target.damping), float(controller.target.natural_frequency))
+
+
+@dataclass(frozen=True, eq=False)
+class PointDesign:
+    """Per-point design at arbitrary operating points (before table checks)."""
+
+    points: np.ndarray
+    plant: Loop
+    limits: SpecLimits
+    coefficients: dict[str, np.ndarray]
+    analysis: PointAnalysis
+    feasible: np.ndarray
+    status: tuple[str, ...]
+    binding: tuple[str | None, ...]
+    notes: tuple[tuple[str, ...], ...]
+    intervals: list
+    shape_params: np.ndarray
+
+
+def _coefficients(structure: str, shapes, shape_index: np.ndarray, gain: np.ndarray) -> dict[str, np.ndarray]:
+    P = shape_index.size
+    rows = np.arange(P)
+    form = LocusForm(gain=gain, zeros=shapes.zeros[rows, shape_index], poles=shapes.poles[rows, shape_index])
+    return coefficients_from_locus(structure, form)
+
+
+def _step_retry(plant, structure, shapes, choice: Choice, coefficients, limits, objective, target, failing):
+    """Re-pick among sampled gains of the chosen shape where the step response fails."""
+    notes = {}
+    for p in failing:
+        intervals = choice.intervals[p]
+        if not intervals:
+            continue
+        from .search import _samples_in
+
+        gains = _samples_in(intervals, STEP_RETRIES)
+        gains = gains[np.isfinite(gains)]
+        if gains.size == 0:
+            continue
+        s = int(choice.shape[p])
+        count = gains.size
+        sub_plant = plant.select(np.full(count, p))
+        form = LocusForm(gain=gains, zeros=np.broadcast_to(shapes.zeros[p, s], (count,) + shapes.zeros.shape[2:]),
+                         poles=np.broadcast_to(shapes.poles[p, s], (count,) + shapes.poles.shape[2:]))
+        coefs = coefficients_from_locus(structure, form)
+        trial = analyse(sub_plant, structure, coefs, limits.select(np.full(count, p)))
+        good = np.flatnonzero(trial.passed)
+        if good.size == 0:
+            continue
+        from .search import objective_values
+
+        scores = objective_values(trial.poles_z[good], trial.sample_period[good, None], objective, target)
+        k = good[np.argmax(scores)]
+        for name in coefficients:
+            coefficients[name][p] = coefs[name][k]
+        notes[p] = (
+            f"step response of the objective's best gain missed overshoot/settling; "
+            f"took K = {gains[k]:.6g}, the best of {count} sampled gains that passes"
+        )
+    return notes
+
+
+def _merge_choice(first: Choice, second: Choice, rows: np.ndarray) -> Choice:
+    """``first`` with the entries at ``rows`` taken from ``second``."""
+    shape, gain, feasible = first.shape.copy(), first.gain.copy(), first.feasible.copy()
+    intervals, notes = list(first.intervals), [list(n) for n in first.notes]
+    for r in rows:
+        shape[r], gain[r], feasible[r] = second.shape[r], second.gain[r], second.feasible[r]
+        intervals[r] = second.intervals[r]
+        notes[r] = list(second.notes[r])
+        if second.feasible[r]:
+            notes[r].append("met the specs only without the design back-off (on the spec boundary)")
+    samples = dict(first.samples)
+    samples["grid"] = first.samples["grid"].copy()
+    samples["metrics"] = {k: v.copy() for k, v in first.samples["metrics"].items()}
+    for r in rows:
+        samples["grid"][r] = second.samples["grid"][r]
+        for k in samples["metrics"]:
+            samples["metrics"][k][r] = second.samples["metrics"][k][r]
+    return Choice(shape=shape, gain=gain, feasible=feasible, intervals=intervals, notes=notes, samples=samples)
+
+
+def design_points(sched, points: np.ndarray, progress: Progress | None = None) -> PointDesign:
+    """Design gains at arbitrary operating points of a schedule.
+
+    Parameters
+    ----------
+    sched : Schedule
+    points : ndarray, shape (P, n_axes)
+    progress : callable, optional
+        ``progress(stage, done, total)`` for a progress display.
+
+    Returns
+    -------
+    PointDesign
+    """
+    controller = sched.controller
+    if controller.strategy not in DESIGN_STRATEGIES:
+        raise DesignError(unknown_name_message("design strategy", controller.strategy, DESIGN_STRATEGIES))
+    objective = _objective(controller)
+    if objective not in SWEEP_OBJECTIVES:
+        raise DesignError(unknown_name_message("objective", objective, SWEEP_OBJECTIVES))
+    target = _target(controller)
+    points = np.asarray(points, dtype=float)
+    P = points.shape[0]
+    plant = sampled_plant(sched, points)
+    limits = limits_at(sched, points)
+    structure = controller.structure
+    sweep = None if controller.sweep is None else (tuple(controller.sweep.range), int(controller.sweep.count))
+    shapes = make_shapes(
+        plant,
+        structure,
+        controller.strategy,
+        zero_on=controller.zero_on,
+        sweep=sweep,
+        target=target,
+        derivative_filter=controller.derivative_filter,
+    )
+    notes: list[list[str]] = [[] for _ in range(P)]
+    chunk = 64
+    choices = []
+    for start in range(0, P, chunk):
+        rows = np.arange(start, min(P, start + chunk))
+        sub_shapes = type(shapes)(
+            zeros=shapes.zeros[rows], poles=shapes.poles[rows], valid=shapes.valid[rows],
+            gain=shapes.gain[rows], params=shapes.params[rows],
+        )
+        sub_plant = plant.select(rows)
+        first = choose_gains(sub_plant, sub_shapes, limits.select(rows).tightened(), objective, target)
+        retry = np.flatnonzero(~first.feasible)
+        if retry.size:
+            # no design inside the tightened specs: search the specs as written
+            second = choose_gains(sub_plant, sub_shapes, limits.select(rows), objective, target)
+            first = _merge_choice(first, second, retry)
+        choices.append(first)
+        if progress is not None:
+            progress("design", int(rows[-1]) + 1, P)
+    choice = Choice(
+        shape=np.concatenate([c.shape for c in choices]),
+        gain=np.concatenate([c.gain for c in choices]),
+        feasible=np.concatenate([c.feasible for c in choices]),
+        intervals=sum((c.intervals for c in choices), []),
+        notes=sum((c.notes for c in choices), []),
+        samples={
+            "grid": np.concatenate([c.samples["grid"] for c in choices]),
+            "metrics": {k: np.concatenate([c.samples["metrics"][k] for c in choices]) for k in choices[0].samples["metrics"]},
+            "valid": np.concatenate([c.samples["valid"] for c in choices]),
+        },
+    )
+    for p in range(P):
+        notes[p].extend(choice.notes[p])
+    if controller.strategy == "dominant-pair":
+        asked = shapes.gain[np.arange(P), np.maximum(choice.shape, 0)]
+        moved = choice.feasible & ~np.isclose(choice.gain, asked, rtol=1e-12)
+        for p in np.flatnonzero(moved):
+            notes[p].append(
+                f"the magnitude-condition gain K = {asked[p]:.6g} misses a spec; "
+                f"chose K = {choice.gain[p]:.6g} nearest the target inside the feasible set"
+            )
+    # infeasible points: best compromise so the table stays complete
+    shape_index = choice.shape.copy()
+    gain = choice.gain.copy()
+    infeasible = np.flatnonzero(~choice.feasible)
+    if infeasible.size:
+        s_best, k_best = compromise(choice.samples, limits, infeasible)
+        shape_index[infeasible] = s_best
+        gain[infeasible] = k_best
+    coefficients = _coefficients(structure, shapes, shape_index, gain)
+    analysis = analyse(plant, structure, coefficients, limits)
+    step_fail = np.flatnonzero(
+        choice.feasible & ~(analysis.verdicts["max_overshoot"] & analysis.verdicts["max_settling_time"])
+    )
+    if step_fail.size:
+        retry_notes = _step_retry(plant, structure, shapes, choice, coefficients, limits, objective, target, step_fail)
+        for p, text in retry_notes.items():
+            notes[p].append(text)
+        if retry_notes:
+            analysis = analyse(plant, structure, coefficients, limits)
+    passed = analysis.passed
+    binding: list[str | None] = [None] * P
+    failed = np.flatnonzero(~passed)
+    if failed.size:
+        found = diagnose(plant, shapes, choice, analysis, limits, failed)
+        for p, (name, text) in found.items():
+            binding[p] = name
+            notes[p].append(text)
+    for p in range(P):
+        if passed[p] and controller.strategy != "dominant-pair":
+            params = shapes.params[p, shape_index[p]]
+            if params.size:
+                notes[p].insert(0, "zero(s) at z = " + ", ".join(f"{v:.6g}" for v in np.ravel(params)))
+    status = tuple("pass" if ok else "fail" for ok in passed)
+    return PointDesign(
+        points=points,
+        plant=plant,
+        limits=limits,
+        coefficients=coefficients,
+        analysis=analysis,
+        feasible=choice.feasible,
+        status=status,
+        binding=tuple(binding),
+        notes=tuple(tuple(n) for n in notes),
+        intervals=choice.intervals,
+        shape_params=shapes.params[np.arange(P), shape_index],
+    )
+
+
+def sampling_warnings(sched, points: np.ndarray, plant: Loop, analysis: PointAnalysis | None = None) -> list[str]:
+    """Warn where requested or achieved natural frequencies exceed a fraction of the sampling rate.
+
+    Threshold: ``SAMPLING_FRACTION * 2 pi / ts`` (common practice, no source).
+    """
+    out = []
+    ts = np.asarray(plant.ts, float)
+    limit = SAMPLING_FRACTION * 2 * math.pi / ts
+    values = sched.spec_values(points)
+    requested = {
+        "specs natural_frequency max": values.get("max_natural_frequency"),
+        "specs natural_frequency min": values.get("min_natural_frequency"),
+    }
+    if sched.controller.target is not None:
+        requested["controller target natural_frequency"] = np.full(ts.shape, sched.controller.target.natural_frequency)
+    for label, value in requested.items():
+        if value is None:
+            continue
+        value = np.asarray(value, float)
+        over = np.flatnonzero(np.isfinite(value) & (value > limit))
+        if over.size:
+            p = over[0]
+            out.append(
+                f"{label} = {value[p]:.6g} rad/s exceeds {SAMPLING_FRACTION:g} x the sampling rate "
+                f"({limit[p]:.6g} rad/s at ts = {ts[p]:.6g} s) at {over.size} point(s), first at "
+                f"{sched.describe_point(points[p])}; sampled-data effects dominate there (common practice, no source)"
+            )
+    if analysis is not None:
+        over = np.flatnonzero(np.isfinite(analysis.natural_frequency) & (analysis.natural_frequency > limit))
+        if over.size:
+            p = over[0]
+            out.append(
+                f"designed dominant natural frequency {analysis.natural_frequency[p]:.6g} rad/s exceeds "
+                f"{SAMPLING_FRACTION:g} x the sampling rate at {over.size} point(s), first at "
+                f"{sched.describe_point(points[p])} (common practice, no source)"
+            )
+    return out
+
+
+def _table(sched, points_shape, axes_values, coefficients, plant) -> GainTable:
+    axes = tuple(
+        TableAxis(name=axis.name, unit=axis.unit, values=np.asarray(values, float))
+        for axis, values in zip(sched.axes, axes_values)
+    )
+    shape = tuple(len(v) for v in axes_values)
+    return GainTable(
+        structure=sched.controller.structure,
+        axes=axes,
+        coefficients={k: np.asarray(v, float).reshape(shape) for k, v in coefficients.items()},
+        sample_period=np.asarray(plant.ts, float).reshape(shape),
+        output_limits=tuple(sched.controller.output_limits),
+    )
+
+
+def _grid_points(axes_values: list[np.ndarray]) -> np.ndarray:
+    mesh = np.meshgrid(*axes_values, indexing="ij")
+    return np.stack([m.ravel() for m in mesh], axis=-1)
+
+
+def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
+    """Design the gain table of a schedule.
+
+    Parameters
+    ----------
+    schedule : Schedule or str or Path
+        A loaded schedule or the path of a schedule file.
+    progress : callable, optional
+        ``progress(stage, done, total)``; the CLI draws a counter on stderr.
+
+    Returns
+    -------
+    DesignResult
+        Gains (physical and coefficients), per-point analysis, status and
+        binding spec of failed points, whole-table checks and warnings.
+    """
+    from .table_checks import run_table_checks
+
+    sched = _load(schedule)
+    axes_values = [np.asarray(a.values, float) for a in sched.axes]
+    points = _grid_points(axes_values)
+    point_design = design_points(sched, points, progress)
+    report, point_design, axes_values = run_table_checks(sched, point_design, axes_values, progress=progress)
+    table = _table(sched, None, axes_values, point_design.coefficients, point_design.plant)
+    warnings = list(sched.warnings)
+    warnings += sampling_warnings(sched, point_design.points, point_design.plant, point_design.analysis)
+    warnings += list(point_design.analysis.warnings)
+    continuous = None
+    if sched.controller.compare_continuous:
+        from .continuous import compare_continuous
+
+        continuous = compare_continuous(sched, point_design)
+    controller = sched.controller
+    strategy = {
+        "structure": controller.structure,
+        "strategy": controller.strategy,
+        "objective": _objective(controller),
+        "objective_meaning": OBJECTIVE_TEXT[_objective(controller)],
+        "zero_on": controller.zero_on,
+        "target": None if controller.target is None else {
+            "damping": controller.target.damping, "natural_frequency": controller.target.natural_frequency},
+        "sweep": None if controller.sweep is None else {
+            "range": list(controller.sweep.range), "count": controller.sweep.count},
+        "derivative_filter": controller.derivative_filter,
+        "sampling": {"method": sched.sampling.method, "prewarp": sched.sampling.prewarp},
+    }
+    return DesignResult(
+        table=table,
+        analysis=point_design.analysis,
+        status=point_design.status,
+        notes=point_design.notes,
+        binding=point_design.binding,
+        table_report=report,
+        warnings=tuple(warnings),
+        schedule_path=str(sched.path),
+        schedule_sha256=str(sched.sha256),
+        strategy=strategy,
+        points=point_design.points,
+        point_labels=tuple(sched.describe_point(p) for p in point_design.points),
+        continuous=continuous,
+    )
+
+
+def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> VerifyResult:
+    """Re-check a gains file (or a GainTable) against a schedule.
+
+    The table's own breakpoints are analysed on the schedule's sampled plant
+    (its current sample periods, hold and delay), followed by the
+    whole-table checks (smoothness, between points, tolerances).  A table
+    tuned by hand is judged the same way as a designed one.
+
+    Parameters
+    ----------
+    schedule : Schedule or str or Path
+    gains : str or Path or GainTable
+    progress : callable, optional
+
+    Returns
+    -------
+    VerifyResult
+    """
+    from .gainsfile import read_gains
+    from .table_checks import run_table_checks
+
+    sched = _load(schedule)
+    if isinstance(gains, GainTable):
+        table, gains_path = gains, ""
+    else:
+        table, _meta = read_gains(gains)
+        gains_path = str(gains)
+    warnings = list(sched.warnings)
+    names = tuple(a.name for a in sched.axes)
+    if tuple(a.name for a in table.axes) != names:
+        raise InputError(f"the gains file's axes {[a.name for a in table.axes]} are not the schedule's {list(names)}")
+    if table.structure != sched.controller.structure:
+        warnings.append(
+            f"gains file structure {table.structure!r} differs from the schedule's {sched.controller.structure!r}; "
+            "checked as written in the gains file"
+        )
+    axes_values = [a.values for a in table.axes]
+    points = _grid_points(axes_values)
+    plant = sampled_plant(sched, points)
+    limits = limits_at(sched, points)
+    coefficients = {k: v.ravel() for k, v in table.coefficients.items()}
+    if progress is not None:
+        progress("verify", 0, points.shape[0])
+    analysis = analyse(plant, table.structure, coefficients, limits)
+    if progress is not None:
+        progress("verify", points.shape[0], points.shape[0])
+    stored_ts = table.sample_period.ravel()
+    changed = np.flatnonzero(~np.isclose(stored_ts, plant.ts, rtol=1e-12, atol=0))
+    if changed.size:
+        p = changed[0]
+        warnings.append(
+            f"sample period differs from the gains file at {changed.size} point(s), first at "
+            f"{sched.describe_point(points[p])}: file {stored_ts[p]:.6g} s, schedule {plant.ts[p]:.6g} s; "
+            "checked with the schedule's period (the coefficients are per-sample quantities)"
+        )
+    status = tuple("pass" if ok else "fail" for ok in analysis.passed)
+    point_design = PointDesign(
+        points=points, plant=plant, limits=limits, coefficients=coefficients, analysis=analysis,
+        feasible=analysis.passed, status=status, binding=tuple([None] * points.shape[0]),
+        notes=tuple(() for _ in range(points.shape[0])), intervals=[[] for _ in range(points.shape[0])],
+        shape_params=np.zeros((points.shape[0], 0)),
+    )
+    report, _, _ = run_table_checks(sched, point_design, axes_values, progress=progress, redesign=False,
+                                    structure=table.structure)
+    warnings += sampling_warnings(sched, points, plant, analysis)
+    warnings += list(analysis.warnings)
+    return VerifyResult(
+        table=table,
+        analysis=analysis,
+        status=status,
+        table_report=report,
+        warnings=tuple(warnings),
+        schedule_path=str(sched.path),
+        schedule_sha256=str(sched.sha256),
+        gains_path=gains_path,
+        points=points,
+        point_labels=tuple(sched.describe_point(p) for p in points),
+    )

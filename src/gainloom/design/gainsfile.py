@@ -1,0 +1,396 @@
+"""The gains file: our own versioned format (``format: gainloom-gains/1``).
+
+Written as YAML (``.yaml``/``.yml``) or JSON (``.json``), deterministically:
+keys in a fixed order, floats as shortest round-trip decimals, no
+timestamps.  See ``docs/gains-format.md`` for the layout.  Both are read
+with a YAML safe loader (standard JSON is valid YAML here), which gives line
+numbers for every error.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import yaml
+
+from ..errors import ScheduleError
+from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
+from .table import GainTable, TableAxis
+
+__all__ = ["GAINS_FORMAT", "write_gains", "read_gains", "gains_document", "GainsMetadata"]
+
+#: Format tag of the gains file.
+GAINS_FORMAT = "gainloom-gains/1"
+
+#: Top-level keys, in the order written.
+_KEYS = (
+    "format",
+    "generator",
+    "schedule",
+    "structure",
+    "axes",
+    "coefficients",
+    "sample_period",
+    "output_limits",
+    "design",
+    "passed",
+    "points",
+    "table_checks",
+    "warnings",
+    "continuous",
+)
+
+
+def _grid(array: np.ndarray) -> Any:
+    """Nested lists in grid order (first axis slowest)."""
+    return np.asarray(array, dtype=float).tolist()
+
+
+def gains_document(
+    table: GainTable,
+    *,
+    schedule_path: str | None = None,
+    schedule_sha256: str | None = None,
+    design: dict[str, Any] | None = None,
+    body: dict[str, Any] | None = None,
+) -> dict[str, Any]:
+    """The gains file as plain data (before serialisation).
+
+    Parameters
+    ----------
+    table : GainTable
+    schedule_path, schedule_sha256 : str, optional
+        Provenance of the schedule the table was designed for.
+    design : dict, optional
+        Structure, strategy and options used.
+    body : dict, optional
+        ``passed``, ``points``, ``table_checks``, ``warnings``, ``continuous``
+        (``DesignResult.as_document()``).
+    """
+    from .. import __version__
+
+    doc: dict[str, Any] = {
+        "format": GAINS_FORMAT,
+        "generator": f"gainloom {__version__}",
+        "schedule": {"path": schedule_path, "sha256": schedule_sha256},
+        "structure": table.structure,
+        "axes": [{"name": a.name, "unit": a.unit, "values": a.values.tolist()} for a in table.axes],
+        "coefficients": {name: _grid(table.coefficients[name]) for name in table.coefficient_names},
+        "sample_period": _grid(table.sample_period),
+        "output_limits": [float(table.output_limits[0]), float(table.output_limits[1])],
+    }
+    if design is not None:
+        doc["design"] = design
+    for key, value in (body or {}).items():
+        doc[key] = value
+    return {k: doc[k] for k in _KEYS if k in doc}
+
+
+class _Dumper(yaml.SafeDumper):
+    """Block mappings; lists of scalars (coefficient rows, poles) in flow style."""
+
+
+def _represent_list(dumper: yaml.SafeDumper, data: list) -> yaml.Node:
+    def scalar(v: Any) -> bool:
+        return not isinstance(v, (dict, list))
+
+    flow = bool(data) and all(scalar(v) or (isinstance(v, list) and all(scalar(x) for x in v)) for v in data)
+    return dumper.represent_sequence("tag:yaml.org,2002:seq", data, flow_style=flow)
+
+
+def _represent_float(dumper: yaml.SafeDumper, data: float) -> yaml.Node:
+    if math.isnan(data):
+        text = ".nan"
+    elif math.isinf(data):
+        text = ".inf" if data > 0 else "-.inf"
+    else:
+        text = repr(float(data))
+        if "e" in text and "." not in text:
+            # YAML 1.1 resolvers need a dot to read 1e-05 as a float
+            mantissa, exponent = text.split("e")
+            text = f"{mantissa}.0e{exponent}"
+    return dumper.represent_scalar("tag:yaml.org,2002:float", text)
+
+
+_Dumper.add_representer(list, _represent_list)
+_Dumper.add_representer(float, _represent_float)
+
+
+def _plain(value: Any) -> Any:
+    """numpy scalars and tuples to plain Python (floats stay floats)."""
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return _plain(value.tolist())
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return float(value)
+    if isinstance(value, (complex, np.complexfloating)):
+        return [float(value.real), float(value.imag)]
+    return value
+
+
+def _json_safe(value: Any) -> Any:
+    if isinstance(value, dict):
+        return {k: _json_safe(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_json_safe(v) for v in value]
+    if isinstance(value, float) and not math.isfinite(value):
+        # JSON has no inf/nan: written as strings, read back as floats.
+        return "nan" if math.isnan(value) else ("inf" if value > 0 else "-inf")
+    return value
+
+
+def write_gains(result: Any, path: str | Path) -> Path:
+    """Write a design result (or a bare GainTable) as a gains file.
+
+    Parameters
+    ----------
+    result : DesignResult or GainTable
+        What to write; a DesignResult adds the per-point analysis.
+    path : str or Path
+        ``.json`` writes JSON; anything else YAML.
+
+    Returns
+    -------
+    Path
+        The file written.
+    """
+    path = Path(path)
+    if not isinstance(result, GainTable) and hasattr(result, "as_document") and hasattr(result, "strategy"):
+        doc = gains_document(
+            result.table,
+            schedule_path=result.schedule_path,
+            schedule_sha256=result.schedule_sha256,
+            design=result.strategy,
+            body=result.as_document(),
+        )
+    elif isinstance(result, GainTable):
+        doc = gains_document(result)
+    else:
+        raise TypeError(f"write_gains takes a DesignResult or GainTable; got {type(result).__name__}")
+    doc = _plain(doc)
+    if path.suffix.lower() == ".json":
+        text = json.dumps(_json_safe(doc), indent=2, allow_nan=False) + "\n"
+    else:
+        text = yaml.dump(doc, Dumper=_Dumper, sort_keys=False, allow_unicode=True, width=100)
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+# --- reading -----------------------------------------------------------------
+
+
+class _Loader(yaml.SafeLoader):
+    """Safe loader that also reads ``1e-05`` (JSON, YAML 1.2) as a float."""
+
+
+_Loader.yaml_implicit_resolvers = {k: list(v) for k, v in yaml.SafeLoader.yaml_implicit_resolvers.items()}
+_Loader.add_implicit_resolver(
+    "tag:yaml.org,2002:float",
+    re.compile(r"^[-+]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)[eE][-+]?[0-9]+$"),
+    list("-+0123456789."),
+)
+
+
+class GainsMetadata(dict):
+    """Everything in a gains file besides the table (a plain dict subclass).
+
+    Keys: ``format``, ``generator``, ``schedule`` (``path``, ``sha256``),
+    ``design``, ``passed``, ``points``, ``table_checks``, ``warnings``,
+    ``continuous``, ``path`` (the gains file read).
+    """
+
+
+def _node_at(node: yaml.Node, key: str) -> yaml.Node | None:
+    if isinstance(node, yaml.MappingNode):
+        for k, v in node.value:
+            if isinstance(k, yaml.ScalarNode) and k.value == key:
+                return v
+    return None
+
+
+class _Reader:
+    def __init__(self, path: Path, root: yaml.Node, data: Any) -> None:
+        self.path = path
+        self.root = root
+        self.data = data
+
+    def error(self, message: str, key_path: str, node: yaml.Node | None = None) -> ScheduleError:
+        if node is None:
+            node = self.root
+            for part in key_path.replace("]", "").replace("[", ".").split("."):
+                if not part:
+                    continue
+                if isinstance(node, yaml.SequenceNode) and part.isdigit() and int(part) < len(node.value):
+                    node = node.value[int(part)]
+                else:
+                    child = _node_at(node, part)
+                    if child is None:
+                        break
+                    node = child
+        line = node.start_mark.line + 1 if node is not None else None
+        column = node.start_mark.column + 1 if node is not None else None
+        return ScheduleError(message, file=str(self.path), line=line, column=column, key_path=key_path or None)
+
+    def get(self, mapping: Any, key: str, where: str, kinds: tuple[type, ...]) -> Any:
+        path = f"{where}.{key}" if where else key
+        if not isinstance(mapping, dict) or key not in mapping:
+            raise self.error(f"missing key {key!r}", where)
+        value = mapping[key]
+        if not isinstance(value, kinds) or isinstance(value, bool) and bool not in kinds:
+            names = " or ".join(k.__name__ for k in kinds)
+            raise self.error(f"expected {names}; found {type(value).__name__} {value!r}", path)
+        return value
+
+    def array(self, value: Any, path: str, shape: tuple[int, ...]) -> np.ndarray:
+        try:
+            array = np.array(_floats(value), dtype=float)
+        except (TypeError, ValueError):
+            raise self.error(f"expected numbers in an array of shape {shape}; found {value!r:.80}", path) from None
+        if array.shape != shape:
+            raise self.error(f"expected an array of shape {shape}; found shape {array.shape}", path)
+        if not np.all(np.isfinite(array)):
+            raise self.error("expected finite numbers", path)
+        return array
+
+
+def _floats(value: Any) -> Any:
+    if isinstance(value, list):
+        return [_floats(v) for v in value]
+    if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+        raise TypeError
+    if isinstance(value, str):
+        if value not in ("inf", "-inf", "nan"):
+            raise ValueError
+    return float(value)
+
+
+def _restore_nonfinite(value: Any) -> Any:
+    if isinstance(value, dict):
+        return {k: _restore_nonfinite(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_restore_nonfinite(v) for v in value]
+    if isinstance(value, str) and value in ("inf", "-inf", "nan"):
+        return float(value)
+    return value
+
+
+def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
+    """Read a gains file.
+
+    Parameters
+    ----------
+    path : str or Path
+        A YAML or JSON gains file (``format: gainloom-gains/1``).
+
+    Returns
+    -------
+    table : GainTable
+    metadata : GainsMetadata
+        Everything else in the file (provenance, per-point analysis).
+
+    Raises
+    ------
+    ScheduleError
+        Unreadable file, unknown format, or a key that is missing or malformed;
+        the message gives the file, line and key path.
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as error:
+        raise ScheduleError(f"cannot read gains file: {error.strerror}", file=str(path)) from None
+    try:
+        root = yaml.compose(text, Loader=_Loader)
+        data = yaml.load(text, Loader=_Loader)  # noqa: S506 - _Loader is a SafeLoader
+    except yaml.YAMLError as error:
+        mark = getattr(error, "problem_mark", None)
+        raise ScheduleError(
+            f"not valid YAML/JSON: {getattr(error, 'problem', error)}",
+            file=str(path),
+            line=None if mark is None else mark.line + 1,
+            column=None if mark is None else mark.column + 1,
+        ) from None
+    reader = _Reader(path, root, data)
+    if not isinstance(data, dict):
+        raise reader.error(f"a gains file is a mapping with 'format: {GAINS_FORMAT}'; found {type(data).__name__}", "")
+    fmt = reader.get(data, "format", "", (str,))
+    if fmt != GAINS_FORMAT:
+        raise reader.error(f"unknown gains format {fmt!r}; this gainloom reads {GAINS_FORMAT!r}", "format")
+    structure = reader.get(data, "structure", "", (str,))
+    if structure not in CONTROLLER_STRUCTURES:
+        raise reader.error(unknown_name_message("controller structure", structure, CONTROLLER_STRUCTURES), "structure")
+    axes_data = reader.get(data, "axes", "", (list,))
+    if len(axes_data) not in (1, 2):
+        raise reader.error(f"expected one or two axes; found {len(axes_data)}", "axes")
+    axes = []
+    for i, entry in enumerate(axes_data):
+        where = f"axes[{i}]"
+        name = reader.get(entry, "name", where, (str,))
+        unit = entry.get("unit", "") if isinstance(entry, dict) else ""
+        if unit is None:
+            unit = ""
+        if not isinstance(unit, str):
+            raise reader.error(f"expected a string unit; found {unit!r}", f"{where}.unit")
+        values = reader.get(entry, "values", where, (list,))
+        array = reader.array(values, f"{where}.values", (len(values),))
+        if array.size < 2 or not np.all(np.diff(array) > 0):
+            raise reader.error("expected two or more strictly increasing values", f"{where}.values")
+        axes.append(TableAxis(name=name, unit=unit, values=array))
+    shape = tuple(a.values.size for a in axes)
+    coefficients_data = reader.get(data, "coefficients", "", (dict,))
+    expected = CONTROLLER_COEFFICIENTS[structure]
+    unknown = [k for k in coefficients_data if k not in expected]
+    if unknown:
+        raise reader.error(
+            f"unknown coefficient {unknown[0]!r} for structure {structure}; expected {', '.join(expected)}",
+            f"coefficients.{unknown[0]}",
+        )
+    coefficients = {}
+    for name in expected:
+        value = reader.get(coefficients_data, name, "coefficients", (list,))
+        coefficients[name] = reader.array(value, f"coefficients.{name}", shape)
+    periods = reader.get(data, "sample_period", "", (list,))
+    ts = reader.array(periods, "sample_period", shape)
+    if not np.all(ts > 0):
+        raise reader.error("sample periods must be positive seconds", "sample_period")
+    limits = reader.get(data, "output_limits", "", (list,))
+    limits_array = reader.array(limits, "output_limits", (2,))
+    if not limits_array[0] < limits_array[1]:
+        raise reader.error(f"expected [u_min, u_max] with u_min < u_max; found {limits}", "output_limits")
+    table = GainTable(
+        structure=structure,
+        axes=tuple(axes),
+        coefficients=coefficients,
+        sample_period=ts,
+        output_limits=(float(limits_array[0]), float(limits_array[1])),
+    )
+    schedule = data.get("schedule") or {}
+    if not isinstance(schedule, dict):
+        raise reader.error("expected a mapping with path and sha256", "schedule")
+    metadata = GainsMetadata(
+        {
+            "format": fmt,
+            "generator": data.get("generator"),
+            "schedule": {"path": schedule.get("path"), "sha256": schedule.get("sha256")},
+            "design": data.get("design"),
+            "passed": data.get("passed"),
+            "points": _restore_nonfinite(data.get("points", [])),
+            "table_checks": _restore_nonfinite(data.get("table_checks")),
+            "warnings": list(data.get("warnings") or []),
+            "continuous": _restore_nonfinite(data.get("continuous")),
+            "path": str(path),
+        }
+    )
+    return table, metadata

@@ -1,0 +1,267 @@
+"""Result objects of ``design`` and ``verify``.
+
+Plain frozen data: the gain table, the per-point analysis, per-point status
+and notes (binding spec and best reachable value at failed points), the
+whole-table checks and warnings.  ``as_document`` gives the JSON/YAML-ready
+form written into the gains file.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from .specs import SPEC_ORDER
+from .table import GainTable
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .analysis import PointAnalysis
+
+__all__ = ["TableReport", "DesignResult", "VerifyResult", "point_document"]
+
+
+def _float(value: Any) -> Any:
+    value = float(value)
+    return value
+
+
+def _complex_list(values: np.ndarray) -> list[list[float]]:
+    return [[float(v.real), float(v.imag)] for v in np.ravel(values)]
+
+
+@dataclass(frozen=True, eq=False)
+class TableReport:
+    """Whole-table checks.
+
+    Attributes
+    ----------
+    smoothness : list of dict
+        Coefficient steps between neighbours beyond ``max_relative_step``
+        (after smoothing), each ``{coefficient, axis, index, step, limit}``.
+    monotone : list of dict
+        Monotonicity violations ``{coefficient, axis, index, direction}``.
+    smoothing : list of str
+        Where the smoothness/monotone limits forced a worse design.
+    between : list of dict
+        Intermediate operating points that fail with the interpolated
+        coefficients: ``{interval, point, failed}``.
+    between_checked : int
+        How many intermediate points were checked.
+    inserted : list of dict
+        Grid points inserted by refinement: ``{axis, value}``.
+    tolerances : list of dict
+        Per grid point with a failing tolerance corner: ``{point, worst_corner,
+        scale, failed}``.
+    tolerance_corners : int
+        How many corners/samples were checked per point.
+    """
+
+    smoothness: list[dict[str, Any]] = field(default_factory=list)
+    monotone: list[dict[str, Any]] = field(default_factory=list)
+    smoothing: list[str] = field(default_factory=list)
+    between: list[dict[str, Any]] = field(default_factory=list)
+    between_checked: int = 0
+    inserted: list[dict[str, Any]] = field(default_factory=list)
+    tolerances: list[dict[str, Any]] = field(default_factory=list)
+    tolerance_corners: int = 0
+    tolerance_worst: list[dict[str, Any]] = field(default_factory=list)
+
+    @property
+    def passed(self) -> bool:
+        """True when no whole-table check failed."""
+        return not (self.smoothness or self.monotone or self.between or self.tolerances)
+
+    def as_document(self) -> dict[str, Any]:
+        """Plain data for the gains file."""
+        return {
+            "passed": self.passed,
+            "smoothness": self.smoothness,
+            "monotone": self.monotone,
+            "smoothing": self.smoothing,
+            "between_points": {"checked": self.between_checked, "failing": self.between},
+            "inserted": self.inserted,
+            "tolerances": {
+                "samples_per_point": self.tolerance_corners,
+                "failing": self.tolerances,
+                "worst": self.tolerance_worst,
+            },
+        }
+
+
+def point_document(analysis: PointAnalysis, index: int) -> dict[str, Any]:
+    """Per-point analysis as plain data (one entry of the gains file's ``points``)."""
+    p = index
+    specs = {}
+    limits = analysis.limits.as_dict()
+    limit_keys = {
+        "stable": None,
+        "min_damping": "min_damping",
+        "min_decay": "min_decay",
+        "min_natural_frequency": "min_natural_frequency",
+        "max_natural_frequency": "max_natural_frequency",
+        "max_pole_radius": "max_pole_radius",
+        "min_gain_margin": "min_gain_margin",
+        "min_phase_margin": "min_phase_margin",
+        "min_delay_margin": "min_delay_margin",
+        "max_sensitivity_peak": "max_sensitivity_peak",
+        "max_gain": "max_gain",
+        "system_type": "system_type",
+        "max_overshoot": "max_overshoot",
+        "max_settling_time": "max_settling_time",
+    }
+    for name in SPEC_ORDER:
+        key = limit_keys[name]
+        limit = 1.0 if key is None else float(limits[key][p])
+        if key is not None and np.isnan(limit):
+            continue
+        specs[name] = {
+            "value": _float(analysis.values[name][p]),
+            "limit": limit,
+            "pass": bool(analysis.verdicts[name][p]),
+        }
+    return {
+        "coefficients": {k: _float(v[p]) for k, v in analysis.coefficients.items()},
+        "physical": {k: _float(v[p]) for k, v in analysis.physical.items()},
+        "gain": _float(analysis.gain[p]),
+        "poles_z": _complex_list(analysis.poles_z[p]),
+        "poles_s": _complex_list(analysis.poles_s[p]),
+        "damping": _float(analysis.damping[p]),
+        "natural_frequency": _float(analysis.natural_frequency[p]),
+        "decay": _float(analysis.decay[p]),
+        "pole_radius": _float(analysis.pole_radius[p]),
+        "gain_margin_db": _float(analysis.gain_margin_db[p]),
+        "phase_margin_deg": _float(analysis.phase_margin[p]),
+        "delay_margin_s": _float(analysis.delay_margin[p]),
+        "sensitivity_peak": _float(analysis.sensitivity_peak[p]),
+        "overshoot_percent": _float(analysis.overshoot[p]),
+        "settling_time_s": _float(analysis.settling_time[p]),
+        "system_type": int(analysis.system_type[p]),
+        "specs": specs,
+    }
+
+
+@dataclass(frozen=True, eq=False)
+class DesignResult:
+    """What :func:`gainloom.design` returns.
+
+    Attributes
+    ----------
+    table : GainTable
+        The coefficients on the schedule's grid.
+    analysis : PointAnalysis
+        Per-point analysis of the table on the sampled plant.
+    status : tuple of str
+        ``"pass"`` or ``"fail"`` per point.
+    notes : tuple of tuple of str
+        Per point: binding spec and best reachable values where it failed,
+        strategy remarks otherwise.
+    binding : tuple of str or None
+        Binding spec name per failed point (None where it passed).
+    table_report : TableReport
+        Whole-table checks.
+    warnings : tuple of str
+        Everything the engineer must read (data, not ``warnings.warn``).
+    schedule_path, schedule_sha256 : str
+    strategy : dict
+        The controller section used (structure, strategy, objective ...).
+    points : ndarray, shape (P, n_axes)
+        Operating points (grid order, first axis slowest).
+    point_labels : tuple of str
+        Human-readable operating point per index.
+    continuous : dict or None
+        The ``compare_continuous`` report.
+    """
+
+    table: GainTable
+    analysis: PointAnalysis
+    status: tuple[str, ...]
+    notes: tuple[tuple[str, ...], ...]
+    binding: tuple[str | None, ...]
+    table_report: TableReport
+    warnings: tuple[str, ...]
+    schedule_path: str
+    schedule_sha256: str
+    strategy: dict[str, Any]
+    points: np.ndarray
+    point_labels: tuple[str, ...]
+    continuous: dict[str, Any] | None = None
+
+    @property
+    def points_passed(self) -> bool:
+        """True when every grid point meets every spec."""
+        return all(s == "pass" for s in self.status)
+
+    @property
+    def passed(self) -> bool:
+        """True when every point passes and the whole-table checks pass."""
+        return self.points_passed and self.table_report.passed
+
+    @property
+    def exit_code(self) -> int:
+        """CLI exit code: 0 all pass, 1 some spec fails."""
+        return 0 if self.passed else 1
+
+    def as_document(self) -> dict[str, Any]:
+        """The per-point analysis and checks as plain data (gains-file body)."""
+        entries = []
+        for p in range(self.analysis.points):
+            entry = {
+                "index": p,
+                "at": {name: float(v) for name, v in zip((a.name for a in self.table.axes), self.points[p])},
+                "status": self.status[p],
+            }
+            if self.binding[p] is not None:
+                entry["binding"] = self.binding[p]
+            entry["notes"] = list(self.notes[p])
+            entry.update(point_document(self.analysis, p))
+            entries.append(entry)
+        return {
+            "passed": self.passed,
+            "points": entries,
+            "table_checks": self.table_report.as_document(),
+            "warnings": list(self.warnings),
+            "continuous": self.continuous,
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class VerifyResult:
+    """What :func:`gainloom.verify` returns: a gains file re-checked on a schedule.
+
+    Attributes
+    ----------
+    table : GainTable
+        The table read from the gains file.
+    analysis : PointAnalysis
+        Its analysis on the schedule's sampled plant at every grid point.
+    status : tuple of str
+    table_report : TableReport
+    warnings : tuple of str
+    schedule_path, schedule_sha256 : str
+    gains_path : str
+    points : ndarray
+    point_labels : tuple of str
+    """
+
+    table: GainTable
+    analysis: PointAnalysis
+    status: tuple[str, ...]
+    table_report: TableReport
+    warnings: tuple[str, ...]
+    schedule_path: str
+    schedule_sha256: str
+    gains_path: str
+    points: np.ndarray
+    point_labels: tuple[str, ...]
+
+    @property
+    def passed(self) -> bool:
+        """True when every point and every whole-table check passes."""
+        return all(s == "pass" for s in self.status) and self.table_report.passed
+
+    @property
+    def exit_code(self) -> int:
+        """CLI exit code: 0 all pass, 1 some spec fails."""
+        return 0 if self.passed else 1

@@ -1,0 +1,416 @@
+"""Whole-table checks: smoothness, monotone coefficients, between points,
+refinement and parameter tolerances.
+
+* Smoothness: relative step ``|a - b| / max(|a|, |b|)`` of every coefficient
+  between grid neighbours along every axis must stay within
+  ``table.max_relative_step``.  Where it does not, the design may move the
+  loop gain ``K`` of the later point (its shape kept) inside its exact
+  feasible set until the step fits; each such move is reported with the
+  objective it cost ("the limit forced a worse design").
+* Monotone: a coefficient must not decrease (increase) along each axis.
+* Between points: the coefficients are interpolated exactly as the firmware
+  does (linear in 1-D, bilinear in 2-D, on the axis values) and applied to
+  the plant evaluated at ``between_points`` intermediate points per interval
+  (2-D: on every cell edge and the cell centre), then checked against the
+  specs there.  With ``refine.max_inserted > 0`` a breakpoint is inserted in
+  the middle of the worst failing interval, designed, and the check repeated
+  until it passes or the budget is spent.
+* Tolerances: every corner of the declared parameter tolerances (or the
+  seeded space-filling sample) at every grid point, with the table's
+  coefficients; the worst corner per point is reported.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from typing import Any
+
+import numpy as np
+
+from .analysis import analyse, pole_metrics
+from .specs import SpecLimits
+
+__all__ = ["run_table_checks", "relative_steps", "interpolate", "between_points", "tolerance_scales"]
+
+#: Most tolerance samples checked per point before switching to a seeded
+#: space-filling sample of this size.
+MAX_CORNERS = 64
+
+
+def relative_steps(grid: np.ndarray, axis: int) -> np.ndarray:
+    """``|a - b| / max(|a|, |b|)`` between neighbours along ``axis`` (0 where both are 0)."""
+    a = np.take(grid, np.arange(grid.shape[axis] - 1), axis=axis)
+    b = np.take(grid, np.arange(1, grid.shape[axis]), axis=axis)
+    scale = np.maximum(np.abs(a), np.abs(b))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(scale > 0, np.abs(a - b) / np.where(scale > 0, scale, 1.0), 0.0)
+
+
+def interpolate(axes_values: list[np.ndarray], grids: dict[str, np.ndarray], points: np.ndarray) -> dict[str, np.ndarray]:
+    """Coefficients at ``points`` interpolated as the firmware does.
+
+    1-D: linear between breakpoints; 2-D: bilinear in the cell.  Points
+    outside the table are clamped to its edge (as the emitted lookup does).
+    """
+    points = np.asarray(points, float)
+    index = []
+    frac = []
+    for k, values in enumerate(axes_values):
+        x = np.clip(points[:, k], values[0], values[-1])
+        i = np.clip(np.searchsorted(values, x, side="right") - 1, 0, values.size - 2)
+        t = (x - values[i]) / (values[i + 1] - values[i])
+        index.append(i)
+        frac.append(t)
+    out = {}
+    for name, grid in grids.items():
+        if len(axes_values) == 1:
+            i, t = index[0], frac[0]
+            out[name] = grid[i] + t * (grid[i + 1] - grid[i])
+        else:
+            (i, j), (t, u) = index, frac
+            out[name] = (
+                (1 - t) * (1 - u) * grid[i, j]
+                + t * (1 - u) * grid[i + 1, j]
+                + (1 - t) * u * grid[i, j + 1]
+                + t * u * grid[i + 1, j + 1]
+            )
+    return out
+
+
+def between_points(axes_values: list[np.ndarray], count: int) -> tuple[np.ndarray, list[tuple[int, ...]]]:
+    """Intermediate operating points and the grid interval/cell each belongs to.
+
+    1-D: ``count`` evenly spaced interior points per interval.  2-D: the same
+    on every cell edge, plus the cell centre.
+    """
+    fractions = np.arange(1, count + 1) / (count + 1)
+    points, owner = [], []
+    if len(axes_values) == 1:
+        x = axes_values[0]
+        for i in range(x.size - 1):
+            for t in fractions:
+                points.append([x[i] + t * (x[i + 1] - x[i])])
+                owner.append((i,))
+        return np.asarray(points, float).reshape(-1, 1), owner
+    x, y = axes_values
+    for i in range(x.size - 1):
+        for j in range(y.size - 1):
+            x0, x1, y0, y1 = x[i], x[i + 1], y[j], y[j + 1]
+            for t in fractions:
+                xs = x0 + t * (x1 - x0)
+                ys = y0 + t * (y1 - y0)
+                points += [[xs, y0], [x0, ys]]
+                owner += [(i, j), (i, j)]
+                if j == y.size - 2:
+                    points.append([xs, y1])
+                    owner.append((i, j))
+                if i == x.size - 2:
+                    points.append([x1, ys])
+                    owner.append((i, j))
+            points.append([0.5 * (x0 + x1), 0.5 * (y0 + y1)])
+            owner.append((i, j))
+    return np.asarray(points, float), owner
+
+
+def tolerance_scales(tolerances) -> list[dict[str, float]]:
+    """Scale factors per tolerance sample: all corners, or a seeded space-filling sample.
+
+    Corners are ``1 - minus`` and ``1 + plus`` of every parameter.  With
+    ``samples: [count, seed]``, or more than ``MAX_CORNERS`` corners, a Latin
+    hypercube over the box (``numpy.random.default_rng(seed)``) is used.
+    """
+    names = sorted(tolerances.parameters)
+    if not names:
+        return []
+    bounds = [(1.0 - tolerances.parameters[n][0], 1.0 + tolerances.parameters[n][1]) for n in names]
+    samples = tolerances.samples
+    if samples == "corners" and 2 ** len(names) <= MAX_CORNERS:
+        return [dict(zip(names, corner)) for corner in itertools.product(*bounds)]
+    count, seed = (MAX_CORNERS, 0) if samples == "corners" else (int(samples[0]), int(samples[1]))
+    rng = np.random.default_rng(seed)
+    columns = []
+    for low, high in bounds:
+        strata = (rng.permutation(count) + rng.uniform(size=count)) / count
+        columns.append(low + strata * (high - low))
+    return [dict(zip(names, (float(c[k]) for c in columns))) for k in range(count)]
+
+
+def _check_smoothness(sched, grids: dict[str, np.ndarray], names: tuple[str, ...]) -> tuple[list, list]:
+    checks = sched.table_checks
+    smooth, mono = [], []
+    for name, grid in grids.items():
+        for axis in range(grid.ndim):
+            if checks.max_relative_step is not None:
+                steps = relative_steps(grid, axis)
+                for index in zip(*np.nonzero(steps > checks.max_relative_step * (1 + 1e-12))):
+                    smooth.append({
+                        "coefficient": name, "axis": names[axis], "index": [int(i) for i in index],
+                        "step": float(steps[index]), "limit": float(checks.max_relative_step),
+                    })
+        direction = checks.monotone.get(name)
+        if direction:
+            for axis in range(grid.ndim):
+                diff = np.diff(grid, axis=axis)
+                bad = diff < 0 if direction == "increasing" else diff > 0
+                for index in zip(*np.nonzero(bad)):
+                    mono.append({
+                        "coefficient": name, "axis": names[axis], "index": [int(i) for i in index],
+                        "direction": direction, "change": float(diff[index]),
+                    })
+    return smooth, mono
+
+
+def _smooth_gains(sched, point_design, shape, structure) -> tuple[dict[str, np.ndarray], list[str], Any]:
+    """Move K of later points along the first axis so every coefficient step fits the limit."""
+    limit = sched.table_checks.max_relative_step
+    notes: list[str] = []
+    coefficients = {k: v.copy() for k, v in point_design.coefficients.items()}
+    if limit is None:
+        return coefficients, notes, point_design.analysis
+    grids = {k: v.reshape(shape) for k, v in coefficients.items()}
+    flat_index = np.arange(int(np.prod(shape))).reshape(shape)
+    ratios = np.geomspace(1 / 8, 8, 801)
+    moved = []
+    for axis in range(len(shape)):
+        for idx in np.ndindex(*shape):
+            if idx[axis] == 0:
+                continue
+            prev = list(idx)
+            prev[axis] -= 1
+            prev = tuple(prev)
+            a = np.array([grids[k][prev] for k in grids])
+            b = np.array([grids[k][idx] for k in grids])
+            scale = np.maximum(np.abs(a), np.abs(b))
+            step = np.where(scale > 0, np.abs(a - b) / np.where(scale > 0, scale, 1), 0)
+            if np.all(step <= limit):
+                continue
+            p = int(flat_index[idx])
+            gain = float(point_design.analysis.gain[p])
+            if not np.isfinite(gain) or gain == 0:
+                continue
+            # coefficients scale with K for a fixed shape, except the filter/lead poles
+            scalable = np.array([k not in ("kd_a", "zc", "pc", "zc1", "pc1", "zc2", "pc2") for k in grids])
+            trial = b[None, :] * np.where(scalable, ratios[:, None], 1.0)
+            scale2 = np.maximum(np.abs(a[None, :]), np.abs(trial))
+            steps2 = np.where(scale2 > 0, np.abs(a[None, :] - trial) / np.where(scale2 > 0, scale2, 1), 0)
+            fits = np.all(steps2 <= limit, axis=1)
+            inside = np.array([any(lo < gain * r < hi for lo, hi in point_design.intervals[p]) for r in ratios])
+            usable = np.flatnonzero(fits & inside)
+            if usable.size == 0:
+                continue
+            r = ratios[usable[np.argmin(np.abs(np.log(ratios[usable])))]]
+            for j, k in enumerate(grids):
+                if scalable[j]:
+                    grids[k][idx] = b[j] * r
+            moved.append((p, gain, gain * r))
+    if not moved:
+        return coefficients, notes, point_design.analysis
+    coefficients = {k: v.ravel().copy() for k, v in grids.items()}
+    analysis = analyse(point_design.plant, structure, coefficients, point_design.limits)
+    for p, old, new in moved:
+        if analysis.passed[p] or not point_design.analysis.passed[p]:
+            before = pole_metrics(point_design.analysis.poles_z[p : p + 1], point_design.analysis.sample_period[p])
+            notes.append(
+                f"max_relative_step forced a worse design at {sched.describe_point(point_design.points[p])}: "
+                f"K {old:.6g} -> {new:.6g}; slowest decay {float(before['decay'][0]):.6g} -> "
+                f"{float(analysis.decay[p]):.6g} 1/s, damping {float(before['damping'][0]):.4g} -> "
+                f"{float(analysis.damping[p]):.4g}"
+            )
+        else:
+            for k in coefficients:
+                coefficients[k][p] = point_design.coefficients[k][p]
+    analysis = analyse(point_design.plant, structure, coefficients, point_design.limits)
+    return coefficients, notes, analysis
+
+
+def _between(sched, axes_values, grids, structure, count):
+    from .engine import limits_at, sampled_plant
+
+    if count <= 0:
+        return [], 0, None
+    points, owner = between_points(axes_values, count)
+    coefficients = interpolate(axes_values, grids, points)
+    plant = sampled_plant(sched, points)
+    limits = limits_at(sched, points)
+    analysis = analyse(plant, structure, coefficients, limits)
+    failing = []
+    for q in np.flatnonzero(~analysis.passed):
+        failing.append({
+            "interval": [int(i) for i in owner[q]],
+            "point": {a.name: float(v) for a, v in zip(sched.axes, points[q])},
+            "failed": analysis.failed_specs(int(q)),
+        })
+    return failing, int(points.shape[0]), (points, owner, analysis)
+
+
+def _tolerances(sched, points, structure, coefficients):
+    from .engine import limits_at, sampled_plant
+
+    scales = tolerance_scales(sched.tolerances)
+    if not scales:
+        return [], 0, []
+    limits = limits_at(sched, points)
+    P = points.shape[0]
+    fails = np.zeros((len(scales), P), dtype=int)
+    damping = np.zeros((len(scales), P))
+    failed_names: list[list[list[str]]] = []
+    for c, scale in enumerate(scales):
+        plant = sampled_plant(sched, points, scale=scale)
+        analysis = analyse(plant, structure, coefficients, limits)
+        names = [analysis.failed_specs(p) for p in range(P)]
+        failed_names.append(names)
+        fails[c] = [len(n) for n in names]
+        damping[c] = analysis.damping
+    failing, worst = [], []
+    for p in range(P):
+        # worst corner: most failed specs, then lowest damping
+        order = np.lexsort((damping[:, p], -fails[:, p]))
+        c = int(order[0])
+        entry = {
+            "point": {a.name: float(v) for a, v in zip(sched.axes, points[p])},
+            "worst_corner": c,
+            "scale": scales[c],
+            "damping": float(damping[c, p]),
+            "failed": failed_names[c][p],
+        }
+        worst.append(entry)
+        if fails[c, p] > 0:
+            failing.append(entry)
+    return failing, len(scales), worst
+
+
+def run_table_checks(sched, point_design, axes_values, progress=None, redesign: bool = True, structure: str | None = None):
+    """Run every whole-table check; may smooth gains and insert breakpoints (design only).
+
+    Returns
+    -------
+    (TableReport, PointDesign, axes_values)
+        The report, the (possibly smoothed/refined) point design, and the
+        (possibly refined) axis values.
+    """
+    from .engine import PointDesign, _grid_points, design_points
+    from .results import TableReport
+
+    structure = structure or sched.controller.structure
+    names = tuple(a.name for a in sched.axes)
+    axes_values = [np.asarray(v, float) for v in axes_values]
+    smoothing_notes: list[str] = []
+    inserted: list[dict[str, Any]] = []
+    if redesign and sched.table_checks.max_relative_step is not None:
+        shape = tuple(v.size for v in axes_values)
+        coefficients, smoothing_notes, analysis = _smooth_gains(sched, point_design, shape, structure)
+        point_design = PointDesign(
+            points=point_design.points, plant=point_design.plant, limits=point_design.limits,
+            coefficients=coefficients, analysis=analysis, feasible=point_design.feasible,
+            status=tuple("pass" if ok else "fail" for ok in analysis.passed), binding=point_design.binding,
+            notes=point_design.notes, intervals=point_design.intervals, shape_params=point_design.shape_params,
+        )
+    count = int(sched.table_checks.between_points)
+    budget = int(sched.table_checks.refine_max_inserted) if redesign else 0
+    while True:
+        shape = tuple(v.size for v in axes_values)
+        grids = {k: np.asarray(v).reshape(shape) for k, v in point_design.coefficients.items()}
+        if progress is not None:
+            progress("between points", 0, 1)
+        failing, checked, detail = _between(sched, axes_values, grids, structure, count)
+        if progress is not None:
+            progress("between points", 1, 1)
+        if not failing or budget <= 0:
+            break
+        # insert a breakpoint in the middle of the interval with most failures
+        counts: dict[tuple, int] = {}
+        for entry in failing:
+            counts[tuple(entry["interval"])] = counts.get(tuple(entry["interval"]), 0) + 1
+        worst = max(counts, key=lambda k: (counts[k], [-i for i in k]))
+        axis = 0
+        if len(axes_values) == 2:
+            widths = [(axes_values[a][worst[a] + 1] - axes_values[a][worst[a]]) / np.ptp(axes_values[a]) for a in (0, 1)]
+            axis = int(np.argmax(widths))
+        i = worst[axis]
+        value = 0.5 * (axes_values[axis][i] + axes_values[axis][i + 1])
+        new_axes = [v.copy() for v in axes_values]
+        new_axes[axis] = np.insert(new_axes[axis], i + 1, value)
+        new_points = _grid_points(new_axes)
+        # reuse the designs of existing points, design only the new ones
+        old_lookup = {tuple(p): q for q, p in enumerate(point_design.points)}
+        is_new = np.array([tuple(p) not in old_lookup for p in new_points])
+        fresh = design_points(sched, new_points[is_new])
+        point_design = _merge_designs(point_design, fresh, new_points, is_new, old_lookup, structure)
+        axes_values = new_axes
+        inserted.append({"axis": names[axis], "value": float(value)})
+        budget -= 1
+    smooth, mono = _check_smoothness(sched, {k: np.asarray(v).reshape(tuple(a.size for a in axes_values))
+                                            for k, v in point_design.coefficients.items()}, names)
+    if progress is not None:
+        progress("tolerances", 0, 1)
+    tol_fail, tol_count, tol_worst = _tolerances(sched, point_design.points, structure, point_design.coefficients)
+    if progress is not None:
+        progress("tolerances", 1, 1)
+    report = TableReport(
+        smoothness=smooth,
+        monotone=mono,
+        smoothing=smoothing_notes,
+        between=failing,
+        between_checked=checked,
+        inserted=inserted,
+        tolerances=tol_fail,
+        tolerance_corners=tol_count,
+        tolerance_worst=tol_worst,
+    )
+    return report, point_design, axes_values
+
+
+def _merge_designs(old, fresh, new_points, is_new, old_lookup, structure):
+    from .engine import PointDesign
+
+    P = new_points.shape[0]
+    source = []
+    fresh_index = np.cumsum(is_new) - 1
+    for q in range(P):
+        source.append(("new", int(fresh_index[q])) if is_new[q] else ("old", old_lookup[tuple(new_points[q])]))
+
+    def pick(old_array, new_array):
+        return np.stack([new_array[j] if kind == "new" else old_array[j] for kind, j in source])
+
+    coefficients = {k: pick(old.coefficients[k], fresh.coefficients[k]) for k in old.coefficients}
+    plant = _sched_plant(old, fresh, source)
+    limits = SpecLimits(**{k: pick(getattr(old.limits, k), getattr(fresh.limits, k)) for k in old.limits.as_dict()})
+    analysis = analyse(plant, structure, coefficients, limits)
+    return PointDesign(
+        points=new_points,
+        plant=plant,
+        limits=limits,
+        coefficients=coefficients,
+        analysis=analysis,
+        feasible=pick(old.feasible, fresh.feasible),
+        status=tuple("pass" if ok else "fail" for ok in analysis.passed),
+        binding=tuple(fresh.binding[j] if kind == "new" else old.binding[j] for kind, j in source),
+        notes=tuple(fresh.notes[j] if kind == "new" else old.notes[j] for kind, j in source),
+        intervals=[fresh.intervals[j] if kind == "new" else old.intervals[j] for kind, j in source],
+        shape_params=pick(old.shape_params, fresh.shape_params),
+    )
+
+
+def _sched_plant(old, fresh, source):
+    """Stack the sampled plants of old and new points in grid order."""
+    from ..lti.loop import Loop
+
+    def rows(loop_old, loop_new, attr):
+        a, b = getattr(loop_old, attr), getattr(loop_new, attr)
+        if a is None:
+            return None
+        return np.stack([b[j] if kind == "new" else a[j] for kind, j in source])
+
+    if old.plant.den.shape[1] != fresh.plant.den.shape[1]:
+        raise ValueError("plant order changed between grid points")
+    return Loop(
+        num=rows(old.plant, fresh.plant, "num"),
+        den=rows(old.plant, fresh.plant, "den"),
+        ts=rows(old.plant, fresh.plant, "ts"),
+        hold=old.plant.hold,
+        delay=rows(old.plant, fresh.plant, "delay"),
+        prewarp=old.plant.prewarp,
+        delta_num=rows(old.plant, fresh.plant, "delta_num"),
+        delta_den=rows(old.plant, fresh.plant, "delta_den"),
+    )

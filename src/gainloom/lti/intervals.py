@@ -1,0 +1,355 @@
+"""Exact gain intervals: stable gains and gains meeting a spec region.
+
+Method (see also docs/exact-intervals.md):
+
+1. Candidate gains are the gains at which a closed-loop root of ``D + K N``
+   lies on a boundary curve of the region (imaginary axis or unit circle for
+   plain stability; rays, lines, circles, log-spirals and ``wn`` contours for
+   specs), solved by :mod:`gainloom.lti.boundary` -- polynomial roots and
+   Newton polishing for lines and circles, bracketing (brentq) for the
+   transcendental z-plane curves; never read off a gain grid.  Gains where
+   the leading coefficient ``d0 + K n0`` vanishes (a root through infinity)
+   are candidates too.
+2. Between consecutive candidates (and beyond the last) no root crosses the
+   boundary, so membership is constant; it is decided at one interior gain
+   per sub-interval by batched closed-loop roots, all loops and all
+   sub-intervals in one eigenvalue call.
+3. Adjacent member sub-intervals are merged: a candidate where a root only
+   touches the boundary, or that belongs to a part of a curve that does not
+   bound the region, does not split an interval.
+
+Intervals are open.  Extra candidates cost one more root evaluation; a
+missed one could hide an unstable island, which is why the sampled curves
+use a fine grid (geometric near ``z = 1``).  A loop with a numerator and
+denominator root in common *on* a boundary curve has a closed-loop root
+pinned there for every gain; it is reported with no intervals.
+
+Cost: one Python pass per loop for the candidate gains (a few numpy calls
+per curve, plus one brentq per crossing of a sampled z-plane curve), then a
+single batched root computation for every loop together.
+
+Fast sampling: when the loop is also given in the delta operator
+``g = (z - 1)/ts`` (``delta=(delta_num, delta_den)``), every z-plane curve is
+solved in ``g`` (circles ``|z| = r`` become circles through
+``(r - 1)/ts`` and ``-(r + 1)/ts`` with ``r - 1`` formed by ``expm1``;
+spirals and ``wn`` contours are evaluated as ``expm1(s ts)/ts``) and
+membership uses roots in ``g`` mapped by ``s = log1p(ts g)/ts``, so poles
+crowding near ``z = 1`` keep their digits.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import InputError
+from .boundary import (
+    Crossings,
+    circle_crossings,
+    expm1_complex,
+    line_crossings,
+    log1p_complex,
+    sampled_crossings,
+)
+from .loop import Loop
+from .polynomials import batched_roots
+from .regions import SpecRegion, spiral_s, wn_contour_arcs
+
+__all__ = ["GainInterval", "stable_gain_intervals", "spec_gain_intervals"]
+
+#: Grid of the sampled curves: points per arc (uniform), plus geometric
+#: points towards the real-axis end of the spiral where poles crowd.
+_GRID_UNIFORM = 2001
+_GRID_GEOMETRIC = 600
+
+
+@dataclass(frozen=True)
+class GainInterval:
+    """An open interval of loop gains ``low < K < high``.
+
+    Attributes
+    ----------
+    low, high : float
+        Ends of the interval (``high`` may be ``inf``; ``low`` may be
+        ``-inf`` for negative gains).
+    """
+
+    low: float
+    high: float
+
+    def contains(self, gain: object) -> np.ndarray:
+        """Whether each gain lies strictly inside the interval."""
+        gain = np.asarray(gain, dtype=float)
+        return (gain > self.low) & (gain < self.high)
+
+    def to_dict(self) -> dict[str, float | None]:
+        """Plain dict; an unbounded end is ``None``."""
+        return {
+            "low": None if math.isinf(self.low) else float(self.low),
+            "high": None if math.isinf(self.high) else float(self.high),
+        }
+
+
+def _spiral_grid() -> np.ndarray:
+    grid = np.concatenate(
+        [math.pi * np.logspace(-12, 0, _GRID_GEOMETRIC), np.linspace(0.0, math.pi, _GRID_UNIFORM)]
+    )
+    return np.unique(grid)
+
+
+def _curve_crossings(num: np.ndarray, den: np.ndarray, region: SpecRegion, ts: float | None, delta: bool) -> list[Crossings]:
+    """Crossings of every boundary curve of ``region`` for one loop."""
+    zeta, sigma = region.min_damping, region.min_decay
+    low, high = region.wn_range
+    frequencies = [wn for wn in (low, high) if 0.0 < wn < math.inf]
+    found: list[Crossings] = []
+    if ts is None:
+        found.append(line_crossings(num, den, 0.0, 1j))
+        if sigma > 0:
+            found.append(line_crossings(num, den, -sigma, 1j))
+        if zeta > 0:
+            found.append(line_crossings(num, den, 0.0, complex(-zeta, math.sqrt(1.0 - zeta**2))))
+        for wn in frequencies:
+            found.append(circle_crossings(num, den, wn, -wn))
+        return found
+
+    # z-plane: map a point z = exp(s ts) into the polynomial's variable.
+    if delta:
+        def from_s(s: np.ndarray) -> np.ndarray:
+            return expm1_complex(np.asarray(s) * ts) / ts
+
+        def circle(right_minus_one: float, radius: float) -> Crossings:
+            return circle_crossings(num, den, right_minus_one / ts, -(1.0 + radius) / ts)
+    else:
+        def from_s(s: np.ndarray) -> np.ndarray:
+            return np.exp(np.asarray(s, dtype=complex) * ts)
+
+        def circle(right_minus_one: float, radius: float) -> Crossings:
+            return circle_crossings(num, den, radius, -radius)
+
+    found.append(circle(0.0, 1.0))
+    if sigma > 0:
+        found.append(circle(math.expm1(-sigma * ts), math.exp(-sigma * ts)))
+    if region.max_pole_radius is not None and region.max_pole_radius < 1.0:
+        r = region.max_pole_radius
+        found.append(circle(r - 1.0, r))
+    if zeta > 0:
+        grid = _spiral_grid()
+        ends = from_s(spiral_s(np.array([0.0, math.pi]), zeta, ts)).real
+        found.append(
+            sampled_crossings(num, den, lambda u: from_s(spiral_s(u, zeta, ts)), grid, real_points=ends)
+        )
+    for wn in frequencies:
+        for a, b in wn_contour_arcs(wn, ts):
+            grid = np.linspace(a, b, _GRID_UNIFORM)
+            ends = from_s(wn * np.exp(1j * np.array([a, b]))).real
+            found.append(
+                sampled_crossings(
+                    num, den, lambda psi, wn=wn: from_s(wn * np.exp(1j * np.asarray(psi))), grid, real_points=ends
+                )
+            )
+    return found
+
+
+def _candidates(num: np.ndarray, den: np.ndarray, crossings: list[Crossings], sign: float) -> np.ndarray | None:
+    """Sorted distinct candidate gains of one sign (as positive numbers), or None if pinned."""
+    if any(c.fixed for c in crossings):
+        return None
+    gains = np.concatenate([c.gains for c in crossings] + [np.zeros(0)]) * sign
+    if num[0] != 0.0:
+        gains = np.append(gains, -den[0] / num[0] * sign)
+    scale = float(np.max(np.abs(den)) / max(float(np.max(np.abs(num))), 1e-300))
+    gains = np.sort(gains[np.isfinite(gains) & (gains > 1e-13 * scale)])
+    if gains.size > 1:
+        keep = np.concatenate([[True], np.diff(gains) > 1e-12 * gains[1:]])
+        gains = gains[keep]
+    return gains
+
+
+def _test_gains(edges: np.ndarray, scale: float) -> np.ndarray:
+    """One interior gain per sub-interval of (0, e1, ..., em, inf)."""
+    if edges.size == 0:
+        return np.array([scale])
+    bounds = np.concatenate([[0.0], edges])
+    return np.concatenate([0.5 * (bounds[:-1] + bounds[1:]), [2.0 * edges[-1]]])
+
+
+def _merge(edges: np.ndarray, member: np.ndarray, sign: float) -> list[GainInterval]:
+    bounds = np.concatenate([[0.0], edges, [math.inf]])
+    intervals: list[tuple[float, float]] = []
+    start = None
+    for i, inside in enumerate(member):
+        if inside and start is None:
+            start = bounds[i]
+        if not inside and start is not None:
+            intervals.append((start, bounds[i]))
+            start = None
+    if start is not None:
+        intervals.append((start, math.inf))
+    if sign > 0:
+        return [GainInterval(float(a), float(b)) for a, b in intervals]
+    return [GainInterval(-float(b), -float(a) if a != 0 else 0.0) for a, b in reversed(intervals)]
+
+
+def _normalise(num: object, den: object, ts: object, delta: object) -> tuple[Loop, bool]:
+    num_a, den_a = np.asarray(num, dtype=float), np.asarray(den, dtype=float)
+    single = num_a.ndim <= 1 and den_a.ndim <= 1
+    if delta is not None:
+        try:
+            delta_num, delta_den = delta
+        except (TypeError, ValueError):
+            raise InputError("delta must be a pair (delta_num, delta_den)") from None
+        if ts is None:
+            raise InputError("the delta form (delta=...) is for discrete loops; give the sample period ts")
+    else:
+        delta_num = delta_den = None
+    loop = Loop(num=num_a, den=den_a, ts=ts, delta_num=delta_num, delta_den=delta_den)
+    if loop.delta_den is not None and not np.all(loop.delta_den[:, 0] != 0):
+        raise InputError("leading coefficient of delta_den is zero")
+    return loop, single
+
+
+def _intervals(
+    loop: Loop, region: SpecRegion, signs: tuple[float, ...]
+) -> list[list[GainInterval]]:
+    use_delta = loop.delta_den is not None
+    nums = loop.delta_num if use_delta else loop.num
+    dens = loop.delta_den if use_delta else loop.den
+    plans = []  # (loop index, sign, edges) per searched side
+    rows, gains = [], []
+    for i in range(loop.points):
+        ts = None if loop.ts is None else float(loop.ts[i])
+        crossings = _curve_crossings(nums[i], dens[i], region, ts, use_delta)
+        scale = float(np.max(np.abs(dens[i])) / max(float(np.max(np.abs(nums[i]))), 1e-300))
+        for sign in signs:
+            edges = _candidates(nums[i], dens[i], crossings, sign)
+            plans.append((i, sign, edges))
+            if edges is None:
+                continue
+            tests = _test_gains(edges, scale) * sign
+            rows.append(np.full(tests.size, i))
+            gains.append(tests)
+    member_all = np.zeros(0, dtype=bool)
+    if rows:
+        row_index = np.concatenate(rows)
+        test_gain = np.concatenate(gains)
+        polys = dens[row_index] + test_gain[:, None] * nums[row_index]
+        roots = batched_roots(polys)
+        if loop.ts is None:
+            member = region._contains_s(roots)
+        else:
+            ts_rows = loop.ts[row_index][:, None]
+            if use_delta:
+                s = log1p_complex(ts_rows * roots) / ts_rows
+                z_abs = np.abs(1.0 + ts_rows * roots)
+            else:
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    s = np.log(roots) / ts_rows
+                z_abs = np.abs(roots)
+            member = region._contains_s(s, z_abs=z_abs)
+        member_all = np.all(member, axis=-1)
+    results: list[list[GainInterval]] = [[] for _ in range(loop.points)]
+    offset = 0
+    for i, sign, edges in plans:
+        if edges is None:
+            continue
+        count = edges.size + 1
+        results[i].extend(_merge(edges, member_all[offset : offset + count], sign))
+        offset += count
+    for intervals in results:
+        intervals.sort(key=lambda interval: interval.low)
+    return results
+
+
+def spec_gain_intervals(
+    num: object,
+    den: object,
+    region: SpecRegion,
+    ts: object = None,
+    delta: tuple[object, object] | None = None,
+) -> list[GainInterval] | list[list[GainInterval]]:
+    """Gain intervals ``K > 0`` for which all closed-loop poles lie in ``region``.
+
+    Parameters
+    ----------
+    num, den : array_like, shape (n + 1,) or (P, n + 1)
+        Loop numerator(s) and denominator(s) of ``K N/D``, descending powers
+        of ``s`` or ``z``; a leading batch axis gives ``P`` loops.
+    region : SpecRegion
+        The spec region (damping, decay in 1/s, ``wn`` in rad/s, pole
+        radius).  Its ``ts`` is used when ``ts`` is not given.
+    ts : float or array_like of shape (P,), optional
+        Sample period(s) in seconds; ``None`` (and ``region.ts`` None) for
+        continuous loops.  Must agree with ``region.ts`` when both are given.
+    delta : (array_like, array_like), optional
+        The same discrete loop(s) in ``g = (z - 1)/ts``; when given, all
+        solving and root finding happens in ``g`` (fast sampling).
+
+    Returns
+    -------
+    list of GainInterval, or list (one per loop) of lists
+        Open intervals, sorted; empty when no positive gain works.
+
+    Notes
+    -----
+    Endpoints are solved on the region's boundary curves (see the module
+    docstring); membership between endpoints is decided by batched roots.
+    The Python work is one pass per loop for the endpoints; the roots of all
+    loops are computed in one call.
+    """
+    if not isinstance(region, SpecRegion):
+        raise InputError(f"region must be a SpecRegion; got {type(region).__name__}")
+    if ts is None:
+        ts = region.ts
+    elif region.ts is not None:
+        given = np.asarray(ts, dtype=float)
+        if not np.allclose(given, region.ts, rtol=1e-12, atol=0.0):
+            raise InputError(f"ts={given.tolist()} conflicts with the region's ts={region.ts}; give one of them")
+    loop, single = _normalise(num, den, ts, delta)
+    if loop.ts is None and region.max_pole_radius is not None:
+        raise InputError("max_pole_radius applies to discrete loops; these loops have no sample period")
+    results = _intervals(loop, region, (1.0,))
+    return results[0] if single else results
+
+
+def stable_gain_intervals(
+    num: object,
+    den: object,
+    ts: object = None,
+    negative: bool = False,
+    delta: tuple[object, object] | None = None,
+) -> list[GainInterval] | list[list[GainInterval]]:
+    """Gain intervals for which the closed loop ``D + K N`` is stable.
+
+    Parameters
+    ----------
+    num, den : array_like, shape (n + 1,) or (P, n + 1)
+        Loop numerator(s) and denominator(s), descending powers of ``s``
+        (``ts=None``) or ``z``; a leading batch axis gives ``P`` loops.
+    ts : float or array_like of shape (P,), optional
+        Sample period(s) in seconds for discrete loops.
+    negative : bool
+        Also return intervals of ``K < 0`` (as ``low < high <= 0``), listed
+        before the positive ones.  ``K = 0`` itself is never inside an
+        interval: a positive interval starts at 0 (exclusive) when the open
+        loop is stable.
+    delta : (array_like, array_like), optional
+        The discrete loop(s) in ``g = (z - 1)/ts``, for fast sampling.
+
+    Returns
+    -------
+    list of GainInterval, or list (one per loop) of lists
+
+    Notes
+    -----
+    Endpoints solve ``D(jw) + K N(jw) = 0`` (s) or the same on ``|z| = 1``
+    (z) exactly, with Newton polishing (about 1e-12 relative); stability
+    between endpoints is decided by batched roots at one gain per
+    sub-interval.
+    """
+    loop, single = _normalise(num, den, ts, delta)
+    signs = (-1.0, 1.0) if negative else (1.0,)
+    results = _intervals(loop, SpecRegion(), signs)
+    return results[0] if single else results
