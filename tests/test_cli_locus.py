@@ -27,7 +27,7 @@ def run_cli(*args, cwd=None):
 
 
 def test_table_output_names_the_facts():
-    result = run_cli("--num", "1", "--den", "1 3 2 0")
+    result = run_cli("--num", "1", "--den", "1 3 2 0", "--damping", "0.5")
     assert result.returncode == 0, result.stderr
     out = result.stdout
     for heading in ("Open-loop poles and zeros", "Real-axis segments", "Asymptotes", "Breakaway",
@@ -35,6 +35,11 @@ def test_table_output_names_the_facts():
         assert heading in out
     # Breakaway of K/(s(s+1)(s+2)) at -1 + 1/sqrt(3), K = 0.3849 (textbook, from memory).
     assert "-0.42265" in out and "0.3849" in out
+    # zeta = 0.5 ray meets the locus at s = -1/3 + j/sqrt(3) (angle condition,
+    # solved by hand: s(s+1)(s+2) real there), K = -s(s+1)(s+2) = 28/27.
+    s = complex(-1 / 3, 1 / math.sqrt(3))
+    assert abs((s * (s + 1) * (s + 2)).imag) < 1e-12
+    assert f"zeta >= 0.5: (0, {28 / 27:.6g})" in out
 
 
 def test_json_output_keys_and_values():

@@ -218,6 +218,25 @@ def _damping_curves(zetas: list[float], facts: LocusFacts) -> list[tuple[str, np
     return curves
 
 
+def _end(value: float) -> float | None:
+    return float(value) if math.isfinite(value) else None
+
+
+def damping_gain_intervals(loop: Loop, zetas: list[float]) -> dict[float, list[tuple[float, float]]]:
+    """Per damping ratio, the gains ``K > 0`` that put every closed-loop pole
+    in the stable region with at least that damping (exact boundary solver)."""
+    from ..lti.intervals import spec_gain_intervals
+    from ..lti.regions import SpecRegion
+
+    ts = None if loop.ts is None else float(loop.ts[0])
+    delta = None if loop.delta_den is None else (loop.delta_num[0], loop.delta_den[0])
+    found = {}
+    for zeta in zetas:
+        intervals = spec_gain_intervals(loop.num[0], loop.den[0], SpecRegion(min_damping=zeta, ts=ts), delta=delta)
+        found[zeta] = [(float(i.low), float(i.high)) for i in intervals]
+    return found
+
+
 def run(args: argparse.Namespace) -> int:
     """Compute, print and optionally plot; return the exit code."""
     for zeta in args.damping:
@@ -225,12 +244,26 @@ def run(args: argparse.Namespace) -> int:
             raise InputError(f"--damping {zeta:g} is outside [0, 1); expected a damping ratio such as 0.7")
     loop, how = _build_loop(args)
     facts = loop_facts(loop, args.negative)
+    damped = damping_gain_intervals(loop, args.damping) if not args.negative else {}
     if args.json:
         data = facts.to_dict()
         data["discretization"] = how
+        data["damping_gain_intervals"] = {
+            f"{zeta:g}": [[_end(lo), _end(hi)] for lo, hi in pairs] for zeta, pairs in damped.items()
+        }
         print_json(data)
     else:
-        print(format_facts(facts, how))
+        text = format_facts(facts, how)
+        if damped:
+            lines = [
+                f"  zeta >= {zeta:g}: " + (", ".join(_interval(p) for p in pairs) if pairs else "no gain")
+                for zeta, pairs in damped.items()
+            ]
+            extra = "Gains K > 0 with every closed-loop pole stable and damped at least\n" + "\n".join(lines) + "\n"
+            text = text.replace("\nCaution:", "\n" + extra + "\nCaution:", 1) if extra else text
+        elif args.damping and args.negative:
+            text = text.replace("\nCaution:", "\nDamping gain intervals are only computed for K > 0.\n\nCaution:", 1)
+        print(text)
     if args.plot:
         from ..report.locus_plot import plot_locus
 
