@@ -13,6 +13,8 @@ EXPECTED_PUBLIC_NAMES = {
     "closed_loop_poles",
     "Margins",
     "loop_margins",
+    "LocusBranches",
+    "trace_locus",
 }
 
 

@@ -12,6 +12,7 @@ from .errors import CodegenError, DesignError, GainloomError, InputError, Schedu
 from .lti.loop import Loop
 from .lti.closed_loop import closed_loop_poles
 from .lti.margins import Margins, loop_margins
+from .lti.trace import LocusBranches, trace_locus
 
 __all__ = [
     "__version__",
@@ -24,4 +25,6 @@ __all__ = [
     "closed_loop_poles",
     "Margins",
     "loop_margins",
+    "LocusBranches",
+    "trace_locus",
 ]
