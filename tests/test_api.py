@@ -13,6 +13,11 @@ EXPECTED_PUBLIC_NAMES = {
     "LocusFacts",
     "locus_facts",
     "discretize",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
+    "LocusBranches",
+    "trace_locus",
 }
 
 

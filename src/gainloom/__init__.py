@@ -12,6 +12,9 @@ from .errors import CodegenError, DesignError, GainloomError, InputError, Schedu
 from .lti.loop import Loop
 from .lti.facts import LocusFacts, locus_facts
 from .lti.discretize import discretize
+from .lti.closed_loop import closed_loop_poles
+from .lti.margins import Margins, loop_margins
+from .lti.trace import LocusBranches, trace_locus
 
 __all__ = [
     "__version__",
@@ -24,4 +27,9 @@ __all__ = [
     "LocusFacts",
     "locus_facts",
     "discretize",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
+    "LocusBranches",
+    "trace_locus",
 ]
