@@ -13,6 +13,7 @@ from ..lti.discretize import discretize_loop
 from ..lti.facts import LocusFacts, locus_facts
 from ..lti.loop import Loop
 from ..lti.poles import damping_and_frequency
+from ..lti.trace import trace_locus
 from ..names import HOLD_METHODS, unknown_name_message
 from .output import format_number, format_table, print_json
 
@@ -172,30 +173,19 @@ def format_facts(facts: LocusFacts, how: str) -> str:
     return "\n".join(out)
 
 
-def _branches(facts: LocusFacts) -> tuple[np.ndarray, np.ndarray]:
-    """Gains and continuous branches of closed-loop poles for the plot.
+def _branches(loop: Loop, facts: LocusFacts) -> tuple[np.ndarray, np.ndarray, tuple[str, ...]]:
+    """Gains, continuous branches and tracer warnings for the plot.
 
-    STOP-GAP until gainloom.lti.trace is merged: a plain log-spaced sweep
-    with nearest-neighbour matching.  To be replaced by the tracer.
+    The tracer's default gain range ends where the locus is asymptotic; it
+    is widened when a crossing or breakaway lies beyond it, so every
+    annotated point sits on a drawn branch.
     """
-    from scipy.optimize import linear_sum_assignment
-
-    from ..lti.polynomials import batched_roots, characteristic
-
-    num = np.asarray(facts.num, dtype=float)
-    den = np.asarray(facts.den, dtype=float)
-    scale = abs(den[-1] if den[-1] != 0 else den[0]) / max(abs(num[-1] if num[-1] != 0 else num[0]), 1e-300)
-    gains = np.concatenate([[0.0], np.geomspace(scale * 1e-6, scale * 1e4, 1500)])
-    if facts.negative:
-        gains = -gains
-    poly = characteristic(num, den, gains)
-    poly = poly[np.abs(poly[:, 0]) > 0]
-    roots = batched_roots(poly)
-    for k in range(1, roots.shape[0]):
-        cost = np.abs(roots[k - 1][:, None] - roots[k][None, :])
-        _, cols = linear_sum_assignment(cost)
-        roots[k] = roots[k][cols]
-    return gains[: roots.shape[0]], roots
+    special = [abs(c.gain) for c in facts.crossings] + [abs(b.gain) for b in facts.breakaways]
+    traced = trace_locus(loop, negative=facts.negative)
+    if special and 2.0 * max(special) > float(traced.k_max[0]):
+        traced = trace_locus(loop, k_max=2.0 * max(special), negative=facts.negative)
+    count = int(traced.counts[0])
+    return traced.gains[0, :count], traced.roots[0, :count], traced.warnings
 
 
 def _damping_curves(zetas: list[float], facts: LocusFacts) -> list[tuple[str, np.ndarray]]:
@@ -267,9 +257,11 @@ def run(args: argparse.Namespace) -> int:
     if args.plot:
         from ..report.locus_plot import plot_locus
 
-        gains, branches = _branches(facts)
+        gains, branches, notes = _branches(loop, facts)
         plot_locus(facts, gains, branches, args.plot, damping_curves=_damping_curves(args.damping, facts))
         if not args.json:
+            for note in notes:
+                print(f"plot note: {note}")
             print(f"plot written to {args.plot}")
     return 0
 
