@@ -40,6 +40,8 @@ def test_table_output_names_the_facts():
     s = complex(-1 / 3, 1 / math.sqrt(3))
     assert abs((s * (s + 1) * (s + 2)).imag) < 1e-12
     assert f"zeta >= 0.5: (0, {28 / 27:.6g})" in out
+    # Imaginary-axis crossing w = sqrt(2) at K = 6 (Routh, from memory).
+    assert "Crossings of the imaginary axis" in out and "1.41421" in out and "(0, 6)" in out
 
 
 def test_json_output_keys_and_values():

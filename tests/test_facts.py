@@ -376,3 +376,22 @@ def test_repeated_pole_angles_match_small_gain_root_motion(m):
     observed = sorted(float(normalize_angle(math.degrees(np.angle(r + 1.0)))) for r in near)
     for got, want in zip(observed, dep.angles):
         assert angles_close(got, want, tol=1.0), (observed, dep.angles)
+
+
+def test_departure_angle_matches_traced_branch():
+    # The tracer (gainloom.lti.trace, an independent path: batched roots
+    # matched along the gain) leaves -1 + j sqrt(2) of K(s+2)/(s^2+2s+3) in
+    # the reported direction.
+    from gainloom.lti.loop import Loop
+    from gainloom.lti.trace import trace_locus
+
+    facts = locus_facts([1.0, 2.0], [1.0, 2.0, 3.0])
+    traced = trace_locus(Loop(num=[1.0, 2.0], den=[1.0, 2.0, 3.0]))
+    roots = traced.roots[0, : int(traced.counts[0])]
+    pole = complex(-1.0, math.sqrt(2.0))
+    branch = int(np.argmin(np.abs(roots[0] - pole)))
+    moved = roots[1:, branch]
+    first = moved[np.abs(moved - pole) > 1e-9][0]
+    direction = math.degrees(np.angle(first - pole))
+    upper = [d for d in facts.departures if d.at.imag > 0][0]
+    assert angles_close(direction, upper.angles[0], tol=2.0), (direction, upper.angles)
