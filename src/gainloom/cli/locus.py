@@ -208,6 +208,17 @@ def _damping_curves(zetas: list[float], facts: LocusFacts) -> list[tuple[str, np
     return curves
 
 
+def _limit_marks(loop: Loop, damped: dict[float, list[tuple[float, float]]]) -> list[tuple[float, np.ndarray]]:
+    """Closed-loop poles at each finite end of the damping gain intervals."""
+    from ..lti.closed_loop import closed_loop_poles
+
+    ends = sorted({end for pairs in damped.values() for pair in pairs for end in pair if 0 < end < math.inf})
+    if not ends:
+        return []
+    poles = closed_loop_poles(loop, np.asarray(ends))[0]
+    return [(gain, poles[k]) for k, gain in enumerate(ends)]
+
+
 def _end(value: float) -> float | None:
     return float(value) if math.isfinite(value) else None
 
@@ -258,7 +269,11 @@ def run(args: argparse.Namespace) -> int:
         from ..report.locus_plot import plot_locus
 
         gains, branches, notes = _branches(loop, facts)
-        plot_locus(facts, gains, branches, args.plot, damping_curves=_damping_curves(args.damping, facts))
+        plot_locus(
+            facts, gains, branches, args.plot,
+            damping_curves=_damping_curves(args.damping, facts),
+            gain_marks=_limit_marks(loop, damped),
+        )
         if not args.json:
             for note in notes:
                 print(f"plot note: {note}")
