@@ -395,3 +395,14 @@ def test_departure_angle_matches_traced_branch():
     direction = math.degrees(np.angle(first - pole))
     upper = [d for d in facts.departures if d.at.imag > 0][0]
     assert angles_close(direction, upper.angles[0], tol=2.0), (direction, upper.angles)
+
+
+def test_three_branches_meet_at_one_real_point():
+    # D + K N = s^3 + 3 s^2 + 3 s + K = (s + 1)^3 + (K - 1): a triple
+    # closed-loop root at s = -1 when K = 1 (closed form), where three
+    # branches meet; neither a plain breakaway nor a break-in.
+    facts = locus_facts([1.0], [1.0, 3.0, 3.0, 0.0])
+    (brk,) = facts.breakaways
+    assert brk.point == pytest.approx(-1.0, abs=1e-6)
+    assert brk.gain == pytest.approx(1.0, rel=1e-9)
+    assert brk.kind == "meeting"
