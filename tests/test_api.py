@@ -18,6 +18,7 @@ EXPECTED_PUBLIC_NAMES = {
     "loop_margins",
     "LocusBranches",
     "trace_locus",
+    "discretize_loop",
 }
 
 

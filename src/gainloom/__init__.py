@@ -11,7 +11,7 @@ __version__ = "0.1.0"
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
 from .lti.facts import LocusFacts, locus_facts
-from .lti.discretize import discretize
+from .lti.discretize import discretize, discretize_loop
 from .lti.closed_loop import closed_loop_poles
 from .lti.margins import Margins, loop_margins
 from .lti.trace import LocusBranches, trace_locus
@@ -32,4 +32,5 @@ __all__ = [
     "loop_margins",
     "LocusBranches",
     "trace_locus",
+    "discretize_loop",
 ]

@@ -17,7 +17,10 @@ from ..errors import GainloomError
 __all__ = ["main", "COMMANDS"]
 
 #: Registered commands, in the order ``--help`` lists them.
-COMMANDS: tuple[str, ...] = ("locus",)
+COMMANDS: tuple[str, ...] = (
+    "locus",
+    "discretize",
+)
 
 
 def build_parser() -> argparse.ArgumentParser:

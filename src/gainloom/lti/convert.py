@@ -19,9 +19,10 @@ with the batch on the leading axis.  Conventions:
   sub-diagonal, ``B = e_1``, ``C = b_i - b_0 a_i``, ``D = b_0`` for the monic
   denominator ``s^n + a_1 s^(n-1) + ...``.  It is exact (no rounding beyond
   normalising by the leading coefficient) and needs no per-point
-  factorisation, which is why it is used instead of a balanced form; its
-  entries can span many decades for high-order plants, which bounds the
-  accuracy of anything built on it to roughly that of the polynomial roots.
+  factorisation, which is why it is used instead of a balanced form.  Its
+  entries can span many decades for high-order plants; ``scaled=True``
+  applies a diagonal frequency scaling that keeps them near the pole
+  magnitudes (used by discretisation).
   Shapes: ``A`` ``(P, n, n)``, ``B`` and ``C`` ``(P, n)``, ``D`` ``(P,)``.
 
 Conversions to python-control objects live on :class:`gainloom.lti.loop.Loop`
@@ -211,13 +212,23 @@ def zpk_to_tf(zeros: object, poles: object, gain: object) -> tuple[np.ndarray, n
     return num, np.broadcast_to(den, (points, den.shape[1])).copy()
 
 
-def tf_to_ss(num: object, den: object) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def tf_to_ss(
+    num: object, den: object, scaled: bool = False
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Controllable canonical realisations of a batch of transfer functions.
 
     Parameters
     ----------
     num, den : array_like, shape (P, m + 1), (P, n + 1)
         Descending coefficients, ``m <= n``; leading numerator zeros allowed.
+    scaled : bool
+        Apply the diagonal similarity ``T = diag(w^(n-1), ..., w, 1)`` with
+        ``w = max_k |a_k|^(1/k)`` (a bound on the pole magnitudes, 1 if every
+        ``a_k`` is zero), so ``A = w * companion(roots / w)``.  The transfer
+        function is unchanged; the entries of ``A`` stay near the pole
+        magnitudes instead of spanning ``w^n``, which helps the matrix
+        exponential's accuracy and speed.  ``False`` gives scipy's ``tf2ss``
+        form exactly.
 
     Returns
     -------
@@ -243,6 +254,16 @@ def tf_to_ss(num: object, den: object) -> tuple[np.ndarray, np.ndarray, np.ndarr
     if n:
         B[:, 0] = 1.0
     C = num[:, 1:] - d[:, np.newaxis] * den[:, 1:]
+    if scaled and n:
+        powers = np.arange(1, n + 1)
+        with np.errstate(divide="ignore"):
+            bound = np.max(np.abs(den[:, 1:]) ** (1.0 / powers), axis=1)
+        w = np.where(bound > 0, bound, 1.0)
+        # T^-1 A T has entries A_ij w^(i - j); B -> T^-1 B, C -> C T.
+        exponent = np.arange(n)[:, None] - np.arange(n)[None, :]
+        A = A * w[:, None, None] ** exponent
+        B = B * w[:, None] ** -(n - 1.0 - np.arange(n))
+        C = C * w[:, None] ** (n - 1.0 - np.arange(n))
     return A, B, C, d
 
 
@@ -251,8 +272,12 @@ def ss_to_tf(
 ) -> tuple[np.ndarray, np.ndarray]:
     """Transfer functions of a batch of SISO state-space systems.
 
-    Uses ``det(xI - A + B C) = det(xI - A) (1 + C (xI - A)^-1 B)``, so the
-    numerator is ``char(A - B C) - char(A) + D char(A)``.
+    The numerator comes from the Markov parameters ``h_0 = D``,
+    ``h_k = C A^(k-1) B``: since ``N(x) / den(x) = sum_k h_k x^-k``, the
+    numerator coefficients are ``N_i = sum_{j <= i} den_j h_(i-j)``.
+    Unlike the ``char(A - B C) - char(A)`` identity this keeps exact zeros
+    exact (a numerator of lower degree stays so, rather than gaining a
+    rounding residue that reads as a zero near infinity).
 
     Parameters
     ----------
@@ -274,6 +299,15 @@ def ss_to_tf(
     D = np.asarray(D, dtype=float)
     if den is None:
         den = char_poly(A)
-    closed = char_poly(A - B[..., :, np.newaxis] * C[..., np.newaxis, :])
-    num = closed - den + D[..., np.newaxis] * den
-    return num, np.asarray(den, dtype=float)
+    den = np.asarray(den, dtype=float)
+    n = A.shape[-1]
+    markov = [D]
+    vector = B
+    for _ in range(n):  # over the order, batched over points
+        markov.append(np.einsum("...i,...i->...", C, vector))
+        vector = np.einsum("...ij,...j->...i", A, vector)
+    markov = np.stack(markov, axis=-1)  # (..., n + 1)
+    num = np.zeros(np.broadcast_shapes(markov.shape, den.shape))
+    for i in range(n + 1):
+        num[..., i] = np.sum(den[..., : i + 1] * markov[..., i::-1], axis=-1)
+    return num, den
