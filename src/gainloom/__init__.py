@@ -10,6 +10,9 @@ __version__ = "0.1.0"
 
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
+from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
+from .lti.regions import SpecRegion
+from .lti.stability import jury_test, routh_array
 
 __all__ = [
     "__version__",
@@ -19,4 +22,10 @@ __all__ = [
     "DesignError",
     "CodegenError",
     "Loop",
+    "GainInterval",
+    "SpecRegion",
+    "stable_gain_intervals",
+    "spec_gain_intervals",
+    "routh_array",
+    "jury_test",
 ]
