@@ -118,7 +118,7 @@ def test_spiral_crossings_have_the_right_damping():
     ts, zeta = 0.01, 0.4
     grid = np.linspace(0.0, math.pi, 3001)
     ends = np.exp(spiral_s(np.array([0.0, math.pi]), zeta, ts) * ts).real
-    crossings = sampled_crossings(num, den, lambda u: np.exp(spiral_s(u, zeta, ts) * ts), grid, real_points=ends)
+    crossings = sampled_crossings(num, den, lambda u, rows: np.exp(spiral_s(u, zeta, ts) * ts), grid, real_points=ends)
     complex_points = crossings.points[np.abs(crossings.points.imag) > 1e-9]
     assert complex_points.size >= 1
     for gain, point in zip(crossings.gains, crossings.points):
