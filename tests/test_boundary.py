@@ -200,3 +200,19 @@ def test_bad_curves_are_refused():
         unit_circle_crossings([1.0], [1.0, 1.0], delta=True)
     with pytest.raises(InputError):
         imaginary_axis_crossings([1.0, 2.0, 3.0], [1.0, 1.0])
+
+
+def test_batched_input_matches_loop_by_loop():
+    # Same loops one at a time and as a (P, n+1) batch with per-loop circles.
+    rng = np.random.default_rng(11)
+    dens = np.stack([_real_poly(rng, 4) for _ in range(5)])
+    nums = np.stack([np.concatenate([[0.0, 0.0], _real_poly(rng, 2)]) for _ in range(5)])
+    radii = rng.uniform(0.5, 3.0, 5)
+    batch = circle_crossings(nums, dens, radii, -radii)
+    lines = line_crossings(nums, dens, -radii, 1j)
+    assert len(batch) == 5 and len(lines) == 5
+    for p in range(5):
+        one = circle_crossings(nums[p], dens[p], radii[p], -radii[p])
+        np.testing.assert_allclose(batch[p].gains, one.gains, rtol=1e-12, atol=1e-14)
+        one = line_crossings(nums[p], dens[p], -radii[p], 1j)
+        np.testing.assert_allclose(lines[p].gains, one.gains, rtol=1e-12, atol=1e-14)

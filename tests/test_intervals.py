@@ -402,3 +402,54 @@ def test_conflicting_and_bad_inputs_are_refused():
         stable_gain_intervals([1.0, 2.0, 3.0], [1.0, 1.0])
     with pytest.raises(InputError):
         spec_gain_intervals([1.0], [1.0, 1.0], region="fast")
+
+
+def test_fast_sampling_spec_region_with_delta_form():
+    # ZOH of 1/(s(s+1)(s+2)) at ts = 1e-5 in g (sympy, exact).  The decay
+    # spec sigma >= 0.1 first holds when the real pole passes s = -0.1, at
+    # K = -D(-0.1) = 0.1 * 0.9 * 1.9 = 0.171 for the continuous loop (by
+    # hand); the ZOH loop at this rate must agree to about ts.
+    ts = 1e-5
+    loop = _zoh_cubic_delta(ts)
+    dn = np.array([float(c) for c in loop["num_g"]])
+    dd = np.array([float(c) for c in loop["den_g"]])
+    region = SpecRegion(min_damping=0.5, min_decay=0.1, wn_range=(0.05, 50.0), ts=ts)
+    intervals = spec_gain_intervals(loop["num_z"], loop["den_z"], region, delta=(dn, dd))
+    assert len(intervals) == 1
+    low, high = intervals[0].low, intervals[0].high
+    assert abs(low - 0.171) < 1e-5 * 0.171 * 10
+    # zeta = 0.5 limit of the continuous loop, K ~ 1.037 (textbook, from memory).
+    assert abs(high - 1.037) < 1e-3
+    # Reference: 60-digit mpmath roots of the exact g polynomial, read
+    # through s = log(1 + ts g)/ts, on both sides of each end.
+    mpmath.mp.dps = 60
+    num_g = [mpmath.mpf(str(c)) for c in loop["num_g"]]
+    den_g = [mpmath.mpf(str(c)) for c in loop["den_g"]]
+    num_g = [mpmath.mpf(0)] * (len(den_g) - len(num_g)) + num_g
+
+    def inside(gain):
+        poly = [d + mpmath.mpf(gain) * n for d, n in zip(den_g, num_g)]
+        roots = mpmath.polyroots(poly, maxsteps=200, extraprec=200)
+        s = np.array([complex(mpmath.log(1 + mpmath.mpf(ts) * r) / ts) for r in roots])
+        return bool(np.all(region.with_period(None).contains(s)))
+
+    for end in (low, high):
+        assert inside(end * (1 - 1e-7)) != inside(end * (1 + 1e-7))
+    assert inside(0.5 * (low + high))
+
+
+def test_loop_object_is_accepted():
+    # The Loop carries ts and the delta form; same answer as the arrays.
+    from gainloom import Loop
+
+    loop = _zoh_cubic_delta(1e-4)
+    dn = np.array([float(c) for c in loop["num_g"]])
+    dd = np.array([float(c) for c in loop["den_g"]])
+    batch = Loop(num=loop["num_z"], den=loop["den_z"], ts=1e-4, delta_num=dn, delta_den=dd)
+    by_loop = stable_gain_intervals(batch)
+    by_arrays = stable_gain_intervals(loop["num_z"], loop["den_z"], ts=1e-4, delta=(dn, dd))
+    assert by_loop == [by_arrays]
+    with pytest.raises(InputError, match="conflicts"):
+        spec_gain_intervals(batch, None, SpecRegion(ts=2e-4))
+    with pytest.raises(InputError, match="dead time"):
+        stable_gain_intervals(Loop(num=[1.0], den=[1.0, 1.0], dead_time=0.01))

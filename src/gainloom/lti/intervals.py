@@ -226,6 +226,17 @@ def _merge(edges: np.ndarray, member: np.ndarray, sign: float) -> list[GainInter
 
 
 def _normalise(num: object, den: object, ts: object, delta: object) -> tuple[Loop, bool]:
+    if isinstance(num, Loop):
+        if den is not None or ts is not None or delta is not None:
+            raise InputError("given a Loop, leave den, ts and delta unset: they come from the loop")
+        if np.any(num.dead_time != 0):
+            raise InputError(
+                "the loop carries dead time outside its rational part; discretise it (or replace the "
+                "delay by a rational approximation) before asking for gain intervals"
+            )
+        return num, False
+    if den is None:
+        raise InputError("den is required unless num is a Loop")
     num_a, den_a = np.asarray(num, dtype=float), np.asarray(den, dtype=float)
     single = num_a.ndim <= 1 and den_a.ndim <= 1
     if delta is not None:
@@ -297,7 +308,7 @@ def _intervals(
 
 def spec_gain_intervals(
     num: object,
-    den: object,
+    den: object | None,
     region: SpecRegion,
     ts: object = None,
     delta: tuple[object, object] | None = None,
@@ -308,7 +319,10 @@ def spec_gain_intervals(
     ----------
     num, den : array_like, shape (n + 1,) or (P, n + 1)
         Loop numerator(s) and denominator(s) of ``K N/D``, descending powers
-        of ``s`` or ``z``; a leading batch axis gives ``P`` loops.
+        of ``s`` or ``z``; a leading batch axis gives ``P`` loops.  ``num``
+        may instead be a :class:`~gainloom.lti.loop.Loop` (``den=None``):
+        its sample periods and delta form are used, and one list per point
+        is returned.
     region : SpecRegion
         The spec region (damping, decay in 1/s, ``wn`` in rad/s, pole
         radius).  Its ``ts`` is used when ``ts`` is not given.
@@ -333,7 +347,12 @@ def spec_gain_intervals(
     """
     if not isinstance(region, SpecRegion):
         raise InputError(f"region must be a SpecRegion; got {type(region).__name__}")
-    if ts is None:
+    if isinstance(num, Loop):
+        own = num.ts
+        if region.ts is not None and (own is None or not np.allclose(own, region.ts, rtol=1e-12, atol=0.0)):
+            found = "a continuous loop" if own is None else f"ts={np.asarray(own).tolist()}"
+            raise InputError(f"the region's ts={region.ts} conflicts with the loop ({found})")
+    elif ts is None:
         ts = region.ts
     elif region.ts is not None:
         given = np.asarray(ts, dtype=float)
@@ -348,7 +367,7 @@ def spec_gain_intervals(
 
 def stable_gain_intervals(
     num: object,
-    den: object,
+    den: object | None = None,
     ts: object = None,
     negative: bool = False,
     delta: tuple[object, object] | None = None,
@@ -360,6 +379,9 @@ def stable_gain_intervals(
     num, den : array_like, shape (n + 1,) or (P, n + 1)
         Loop numerator(s) and denominator(s), descending powers of ``s``
         (``ts=None``) or ``z``; a leading batch axis gives ``P`` loops.
+        ``num`` may instead be a :class:`~gainloom.lti.loop.Loop`
+        (``den=None``): its sample periods and delta form are used, and one
+        list per point is returned.
     ts : float or array_like of shape (P,), optional
         Sample period(s) in seconds for discrete loops.
     negative : bool
