@@ -453,3 +453,13 @@ def test_loop_object_is_accepted():
         spec_gain_intervals(batch, None, SpecRegion(ts=2e-4))
     with pytest.raises(InputError, match="dead time"):
         stable_gain_intervals(Loop(num=[1.0], den=[1.0, 1.0], dead_time=0.01))
+
+
+def test_root_through_infinity_bounds_an_interval():
+    # K (3 - s)/(s + 1): (1 - K) s + 1 + 3K has its root at
+    # s = -(1 + 3K)/(1 - K): stable for -1/3 < K < 1, and at K = 1 the root
+    # passes through infinity (by hand).
+    intervals = stable_gain_intervals([-1.0, 3.0], [1.0, 1.0], negative=True)
+    assert len(intervals) == 2
+    np.testing.assert_allclose([intervals[0].low, intervals[0].high], [-1 / 3, 0.0], rtol=1e-12, atol=1e-15)
+    np.testing.assert_allclose([intervals[1].low, intervals[1].high], [0.0, 1.0], rtol=1e-12, atol=1e-15)
