@@ -427,6 +427,86 @@ def circle_crossings(num: object, den: object, right: object, left: object) -> C
     return _rational_crossings(num, den, top, bottom, np.stack([right, left], axis=1), single)
 
 
+def _local_dips(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(row, index) of interior local minima of |values| with no sign change either side."""
+    size = np.abs(values)
+    signs = np.sign(values)
+    with np.errstate(invalid="ignore"):
+        dip = (
+            (size[:, 1:-1] < size[:, :-2])
+            & (size[:, 1:-1] < size[:, 2:])
+            & (signs[:, 1:-1] == signs[:, :-2])
+            & (signs[:, 1:-1] == signs[:, 2:])
+        )
+    rows, index = np.nonzero(dip)
+    return rows, index + 1
+
+
+def _interesting(values: np.ndarray, grid: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Cells worth a closer look: sign changes (one cell) and dips (two cells).
+
+    Returns ``(rows, low, high, is_change)``.
+    """
+    signs = np.sign(values)
+    with np.errstate(invalid="ignore"):
+        change = signs[:, :-1] * signs[:, 1:] < 0
+    c_rows, c_index = np.nonzero(change)
+    d_rows, d_index = _local_dips(values)
+    rows = np.concatenate([c_rows, d_rows])
+    low = np.concatenate([grid[c_rows, c_index], grid[d_rows, d_index - 1]])
+    high = np.concatenate([grid[c_rows, c_index + 1], grid[d_rows, d_index + 1]])
+    is_change = np.concatenate([np.ones(c_rows.size, bool), np.zeros(d_rows.size, bool)])
+    return rows, low, high, is_change
+
+
+def _brackets(
+    values: np.ndarray,
+    grid: np.ndarray,
+    measure: Callable[[np.ndarray, np.ndarray], np.ndarray],
+    levels: int = 2,
+    points: int = 32,
+) -> list[tuple[int, float, float]]:
+    """Brackets of sign changes of ``values`` on ``grid``, resampled near trouble.
+
+    Several crossings inside one grid cell may show as one sign change (odd
+    count) or none at all (even count, a dip of ``|Im(D conj N)|``).  Every
+    sign-change cell and the two cells around every dip are resampled with
+    ``points`` points, ``levels`` times (all cells at once); the sign changes
+    of the last level are the brackets.  A dip that never reaches zero is a
+    tangency or nothing and is let go.
+    """
+    rows, low, high, _ = _interesting(values, grid)
+    share = np.linspace(0.0, 1.0, points + 1)
+    for _ in range(levels):
+        if rows.size == 0:
+            return []
+        fine = low[:, None] + (high - low)[:, None] * share
+        sampled = measure(fine, rows[:, None])
+        sub_rows, low, high, is_change = _interesting(sampled, fine)
+        rows = rows[sub_rows]
+    return [(int(p), float(a), float(b)) for p, a, b, c in zip(rows, low, high, is_change) if c]
+
+
+def _nudge_ends(grid: np.ndarray) -> np.ndarray:
+    """Move the ends of every run of finite grid points a hair inward.
+
+    The ends of a sampled curve are its real-axis points, where
+    ``Im(D conj N)`` is zero up to rounding: its sign there is noise and
+    would hide a crossing in the end cell.  The real points themselves are
+    evaluated exactly elsewhere.
+    """
+    grid = np.array(grid, dtype=float)
+    valid = np.isfinite(grid)
+    padded = np.pad(valid, ((0, 0), (1, 1)), constant_values=False)
+    starts = valid & ~padded[:, :-2] & padded[:, 2:]
+    stops = valid & ~padded[:, 2:] & padded[:, 1:-1] & padded[:, :-2]
+    rows, cols = np.nonzero(starts)
+    grid[rows, cols] += 1e-7 * (grid[rows, cols + 1] - grid[rows, cols])
+    rows, cols = np.nonzero(stops)
+    grid[rows, cols] -= 1e-7 * (grid[rows, cols] - grid[rows, cols - 1])
+    return grid
+
+
 def sampled_crossings(
     num: object,
     den: object,
@@ -445,9 +525,14 @@ def sampled_crossings(
         (integer array broadcasting with ``t``) to points of the curve's
         upper half, in the polynomial's variable.
     grid : ndarray of float, shape (G,) or (P, G)
-        Increasing parameters per loop; ``nan`` marks cells to skip.  A
+        Increasing parameters per loop; ``nan`` marks cells to skip.  The
+        ends of each run of finite values are taken as real-axis points of
+        the curve (give them in ``real_points``) and sampled a hair inside.  A
         crossing is found in each cell where ``Im(D conj N)`` changes sign
-        and refined by brentq to ``~1e-15`` relative in the parameter.
+        and refined by brentq to ``~1e-15`` relative in the parameter;
+        sign-change cells and dips of ``|Im(D conj N)|`` are resampled first
+        (32 points, two levels) so that several crossings in one cell are
+        found.
     real_points : array_like of float, shape (r,) or (P, r)
         The curve's points on the real axis (evaluated directly); ``nan``
         entries are skipped.
@@ -468,18 +553,16 @@ def sampled_crossings(
         with np.errstate(invalid="ignore"):
             return np.imag(d * np.conj(n)) / (np.abs(d) ** 2 + np.abs(n) ** 2)
 
+    grid = _nudge_ends(grid)
     values = measure(grid, all_rows)
-    signs = np.sign(values)
-    signs[~np.isfinite(values)] = np.nan
-    with np.errstate(invalid="ignore"):
-        change = signs[:, :-1] * signs[:, 1:] < 0
-        exact = signs[:, 1:-1] == 0.0
+    exact = values[:, 1:-1] == 0.0
     found_rows, found_t = [], []
     for p, i in zip(*np.nonzero(exact)):
         found_rows.append(p)
         found_t.append(grid[p, i + 1])
+    cells = _brackets(values, grid, measure)
     den_lists, num_lists = den.tolist(), num.tolist()
-    for p, i in zip(*np.nonzero(change)):
+    for p, left, right in cells:
         row = np.array([[p]])
         d_coeffs, n_coeffs = den_lists[p], num_lists[p]
 
@@ -493,7 +576,7 @@ def sampled_crossings(
             return (d * n.conjugate()).imag / (abs(d) ** 2 + abs(n) ** 2)
 
         found_rows.append(p)
-        found_t.append(brentq(scalar, grid[p, i], grid[p, i + 1], xtol=1e-300, rtol=1e-15))
+        found_t.append(brentq(scalar, left, right, xtol=1e-300, rtol=1e-15))
     rows = np.asarray(found_rows, dtype=int)
     t = np.asarray(found_t, dtype=float)
     points = curve(t, rows) if t.size else np.zeros(0, dtype=complex)
