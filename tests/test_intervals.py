@@ -463,3 +463,80 @@ def test_root_through_infinity_bounds_an_interval():
     assert len(intervals) == 2
     np.testing.assert_allclose([intervals[0].low, intervals[0].high], [-1 / 3, 0.0], rtol=1e-12, atol=1e-15)
     np.testing.assert_allclose([intervals[1].low, intervals[1].high], [0.0, 1.0], rtol=1e-12, atol=1e-15)
+
+
+def _to_delta(poly, ts):
+    """Coefficients in g of p(1 + ts g) (numpy polynomial composition)."""
+    out = np.zeros(1)
+    for c in poly:
+        out = np.polyadd(np.polymul(out, [ts, 1.0]), [c])
+    return out
+
+
+@settings(max_examples=25, deadline=None)
+@given(z_loops(), st.sampled_from([0.0, 0.3]), st.sampled_from([0.0, 2.0]))
+def test_delta_and_z_forms_agree_at_moderate_sampling(loop, zeta, sigma):
+    # At ts = 0.05 nothing crowds: the loop written in g = (z - 1)/ts
+    # (reference: numpy composition) must give the same intervals as in z.
+    num, den = loop
+    ts = 0.05
+    delta = (_to_delta(num, ts), _to_delta(den, ts))
+    region = SpecRegion(min_damping=zeta, min_decay=sigma, ts=ts)
+    in_z = spec_gain_intervals(num, den, region)
+    in_g = spec_gain_intervals(num, den, region, delta=delta)
+    assert len(in_z) == len(in_g)
+    for a, b in zip(in_z, in_g):
+        np.testing.assert_allclose([a.low, a.high], [b.low, b.high], rtol=1e-7)
+
+
+def _check_spec_by_gain_grid(num, den, region, intervals, span=(-4, 4), count=600):
+    # Independent reference: numpy roots and SpecRegion.contains on a dense
+    # log-spaced gain grid, skipping gains within 1e-5 of an end.
+    scale = float(np.max(np.abs(den)) / np.max(np.abs(num)))
+    ends = np.array([e for i in intervals for e in (i.low, i.high) if 0 < e < math.inf])
+    for gain in scale * np.logspace(*span, count):
+        if ends.size and np.min(np.abs(ends - gain)) <= 1e-5 * gain:
+            continue
+        inside = any(i.low < gain < i.high for i in intervals)
+        assert inside == bool(np.all(region.contains(_roots(num, den, gain)))), gain
+
+
+def test_wn_contour_clipped_to_the_principal_strip():
+    # K/((z + 0.6)(z - 0.4)) at ts = 0.05 with wn <= 65 rad/s: 65 ts > pi, so
+    # the z-plane contour is two arcs ending on the negative real axis at
+    # z = -a, ln a = -sqrt((65 ts)^2 - pi^2) (wn of -a is
+    # sqrt(ln^2 a + pi^2)/ts, principal log).  The pole leaving -0.6
+    # (wn 63.7) crosses -a on its way to the breakaway at -0.1, at
+    # K = -(z + 0.6)(z - 0.4) (by hand); the pair z = -0.1 +- jy comes back
+    # in where |ln z| = wn ts (solved with mpmath.findroot), with
+    # K = |z|^2 + 0.24, and leaves the unit circle at K = 1.24 (by hand).
+    ts, wn = 0.05, 65.0
+    num, den = [1.0], np.poly([-0.6, 0.4])
+    region = SpecRegion(wn_range=(1.0, wn), ts=ts)
+    intervals = spec_gain_intervals(num, den, region)
+    z_edge = -math.exp(-math.sqrt((wn * ts) ** 2 - math.pi**2))
+    first_high = -(z_edge + 0.6) * (z_edge - 0.4)
+    mpmath.mp.dps = 30
+    y = mpmath.findroot(lambda y: abs(mpmath.log(mpmath.mpc(-0.1, y))) - wn * ts, (0.01, 0.99), solver="illinois")
+    second_low = float(0.01 + y**2 + 0.24)
+    assert len(intervals) == 2
+    np.testing.assert_allclose(
+        [intervals[0].low, intervals[0].high, intervals[1].low, intervals[1].high],
+        [0.0, first_high, second_low, 1.24],
+        rtol=1e-10,
+    )
+    _check_spec_by_gain_grid(num, den, region, intervals)
+
+
+@pytest.mark.parametrize("wn_high", [40.0, 80.0, 200.0])
+def test_zoh_loop_spec_region_by_gain_grid(wn_high):
+    # ZOH of 20/(s(s+4)) via python-control (reference library), checked
+    # against roots on a dense gain grid.
+    ts = 0.05
+    sampled = control.c2d(control.tf([20.0], [1.0, 4.0, 0.0]), ts, "zoh")
+    num = np.asarray(sampled.num[0][0], float)
+    den = np.asarray(sampled.den[0][0], float)
+    region = SpecRegion(min_damping=0.1, wn_range=(1.0, wn_high), ts=ts)
+    intervals = spec_gain_intervals(num, den, region)
+    assert intervals
+    _check_spec_by_gain_grid(num, den, region, intervals)
