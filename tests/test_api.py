@@ -19,6 +19,12 @@ EXPECTED_PUBLIC_NAMES = {
     "LocusBranches",
     "trace_locus",
     "discretize_loop",
+    "GainInterval",
+    "SpecRegion",
+    "stable_gain_intervals",
+    "spec_gain_intervals",
+    "routh_array",
+    "jury_test",
 }
 
 

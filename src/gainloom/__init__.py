@@ -15,6 +15,9 @@ from .lti.discretize import discretize, discretize_loop
 from .lti.closed_loop import closed_loop_poles
 from .lti.margins import Margins, loop_margins
 from .lti.trace import LocusBranches, trace_locus
+from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
+from .lti.regions import SpecRegion
+from .lti.stability import jury_test, routh_array
 
 __all__ = [
     "__version__",
@@ -33,4 +36,10 @@ __all__ = [
     "LocusBranches",
     "trace_locus",
     "discretize_loop",
+    "GainInterval",
+    "SpecRegion",
+    "stable_gain_intervals",
+    "spec_gain_intervals",
+    "routh_array",
+    "jury_test",
 ]
