@@ -15,6 +15,8 @@ EXPECTED_PUBLIC_NAMES = {
     "loop_margins",
     "LocusBranches",
     "trace_locus",
+    "discretize",
+    "discretize_loop",
 }
 
 

@@ -13,6 +13,7 @@ from .lti.loop import Loop
 from .lti.closed_loop import closed_loop_poles
 from .lti.margins import Margins, loop_margins
 from .lti.trace import LocusBranches, trace_locus
+from .lti.discretize import discretize, discretize_loop
 
 __all__ = [
     "__version__",
@@ -27,4 +28,6 @@ __all__ = [
     "loop_margins",
     "LocusBranches",
     "trace_locus",
+    "discretize",
+    "discretize_loop",
 ]

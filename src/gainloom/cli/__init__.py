@@ -17,7 +17,9 @@ from ..errors import GainloomError
 __all__ = ["main", "COMMANDS"]
 
 #: Registered commands, in the order ``--help`` lists them.
-COMMANDS: tuple[str, ...] = ()
+COMMANDS: tuple[str, ...] = (
+    "discretize",
+)
 
 
 def build_parser() -> argparse.ArgumentParser:
