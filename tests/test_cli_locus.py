@@ -65,6 +65,7 @@ def test_sampled_loop_is_discretised_first():
     assert result.returncode == 0, result.stderr
     data = json.loads(result.stdout)
     assert data["plane"] == "z" and data["ts"] == 0.1
+    assert data["sampling"] == {"method": "zoh", "ts": 0.1, "delay_samples": 0.0, "prewarp": None}
     _, den_ref, _ = scipy.signal.cont2discrete(([1.0], [1.0, 1.0, 0.0]), 0.1, method="zoh")
     np.testing.assert_allclose(data["den"], den_ref, rtol=1e-9, atol=1e-12)
     poles = sorted(p["re"] for p in data["poles"])

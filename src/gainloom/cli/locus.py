@@ -249,6 +249,16 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         data = facts.to_dict()
         data["discretization"] = how
+        data["sampling"] = (
+            None
+            if loop.hold is None
+            else {
+                "method": loop.hold,
+                "ts": float(loop.ts[0]),
+                "delay_samples": float(loop.delay[0]),
+                "prewarp": None if loop.prewarp is None else float(loop.prewarp),
+            }
+        )
         data["damping_gain_intervals"] = {
             f"{zeta:g}": [[_end(lo), _end(hi)] for lo, hi in pairs] for zeta, pairs in damped.items()
         }
