@@ -299,6 +299,7 @@ def test_spec_intervals_properties(loop, zeta, sigma, wn_low, wn_high, ts):
                 continue
             assert boundary_distance(_roots(num, den, end)) <= 1e-6
             assert not inside(_roots(num, den, end * (1 + step * 1e-6))), (end, interval)
+    _check_spec_by_gain_grid(num, den, region, intervals, count=200)
 
 
 # -- batches, fast sampling, input errors ---------------------------------------

@@ -88,7 +88,7 @@ def polynomials_off_axis(draw, margin):
             roots += [re + 1j * im, re - 1j * im]
         else:
             roots.append(re)
-    return np.real(np.poly(roots)) * rng.uniform(0.2, 5.0), np.asarray(roots)
+    return np.real(np.poly(roots)) * rng.uniform(0.2, 5.0) * rng.choice([-1.0, 1.0]), np.asarray(roots)
 
 
 @settings(max_examples=120, deadline=None)

@@ -195,7 +195,7 @@ def _candidates(num: np.ndarray, den: np.ndarray, crossings: list[Crossings], si
     scale = float(np.max(np.abs(den)) / max(float(np.max(np.abs(num))), 1e-300))
     gains = np.sort(gains[np.isfinite(gains) & (gains > 1e-13 * scale)])
     if gains.size > 1:
-        keep = np.concatenate([[True], np.diff(gains) > 1e-12 * gains[1:]])
+        keep = np.concatenate([[True], np.diff(gains) > 1e-9 * gains[1:]])
         gains = gains[keep]
     return gains
 
