@@ -43,6 +43,9 @@ from .polynomials import batched_roots
 __all__ = ["LocusBranches", "trace_locus", "angle_residual"]
 
 _COARSE_DECADES = np.arange(-15.0, 16.0, 3.0)
+#: Beyond the plot scale the allowed step grows by this fraction of the
+#: distance past it (branches there run straight out along asymptotes).
+_FAR_GROWTH = 0.25
 
 
 @dataclass(frozen=True, eq=False)
@@ -137,8 +140,9 @@ def angle_residual(
     Returns
     -------
     ndarray, shape (C, k)
-        Residual in degrees, in ``[0, 180]``; ``nan`` at ``K = 0`` and at
-        infinite roots.
+        Residual in degrees, in ``[0, 180]``; ``nan`` where the angle is
+        undefined: at ``K = 0``, at infinite roots, and at roots equal to an
+        open-loop pole or zero to rounding (within 4 eps relative).
     """
     num = np.asarray(num, dtype=float)
     den = np.asarray(den, dtype=float)
@@ -159,14 +163,22 @@ def angle_residual(
         p_unit = poles * unit
         z_unit = zeros * unit
         phasor = np.ones(roots.shape, dtype=complex)
+        # A root that equals an open-loop pole or zero to rounding has no
+        # defined angle (the limits K -> 0 and K -> infinity).
+        on_feature = np.zeros(roots.shape, dtype=bool)
+        tiny = 4 * np.finfo(float).eps
         for j in range(poles.shape[1]):  # loops over the order only
-            phasor *= np.conj(r - p_unit[:, j : j + 1])
+            to_p = r - p_unit[:, j : j + 1]
+            on_feature |= np.abs(to_p) <= tiny * np.maximum(np.abs(r), np.abs(p_unit[:, j : j + 1]))
+            phasor *= np.conj(to_p)
             zj = z_unit[:, j : j + 1]
-            phasor *= np.where(np.isnan(zj), 1.0, r - zj)
+            to_z = np.where(np.isnan(zj), 1.0, r - zj)
+            on_feature |= ~np.isnan(zj) & (np.abs(to_z) <= tiny * np.maximum(np.abs(r), np.abs(zj)))
+            phasor *= to_z
         # -K L(r) must be a positive real number: its argument is the residual.
         phasor = phasor * np.sign(-gains * lead_n / den[:, 0])[:, np.newaxis]
         residual = np.abs(np.angle(phasor))
-    ok = finite & (gains[:, np.newaxis] != 0)
+    ok = finite & (gains[:, np.newaxis] != 0) & ~on_feature
     return np.where(ok, np.rad2deg(residual), np.nan)
 
 
@@ -191,37 +203,59 @@ def _roots(num: np.ndarray, den: np.ndarray, gains: np.ndarray) -> np.ndarray:
     return out
 
 
-def _roots_from_seeds(num, den, gains, seeds, scale):
-    """Roots of ``den + gains num`` by Newton's method from branch seeds.
+def _polish(poly, dpoly, seeds, scale, simultaneous, iterations=8):
+    """Newton (or Aberth-Ehrlich) iterations from seeds, and a verdict per row.
 
-    Seeds interpolated between matched neighbours are close to the roots, so
-    a few Newton steps per root are much cheaper than an eigenvalue problem.
-    Rows where Newton does not settle (a multiple root, a seed that slid to
-    a neighbour's root: caught by root separation and Vieta's sum) fall back
-    to the companion eigenvalues.
+    The verdict checks convergence, root separation (two seeds on one root)
+    and Vieta's sum of the roots.
     """
-    poly = den + gains[:, np.newaxis] * num
-    dpoly = _derivative(poly)
-    r = seeds.copy()
-    ok = np.all(np.isfinite(r), axis=1)
-    r = np.where(np.isfinite(r), r, 0.0)
+    r = np.where(np.isfinite(seeds), seeds, 0.0)
+    n = r.shape[1]
+    off = ~np.eye(n, dtype=bool)
     with np.errstate(all="ignore"):
-        for _ in range(6):
+        for _ in range(iterations):
             step = _horner_rows(poly, r) / _horner_rows(dpoly, r)
+            if simultaneous:
+                # Aberth-Ehrlich: Newton's step corrected by the other roots,
+                # so two seeds do not slide onto one root.
+                diff = r[:, :, np.newaxis] - r[:, np.newaxis, :]
+                repel = np.sum(np.divide(1.0, diff, where=off, out=np.zeros_like(diff)), axis=2)
+                aberth = step / (1.0 - step * repel)
+                step = np.where(np.isfinite(aberth), aberth, step)
             r = r - step
-        tiny = 1e-11 * np.maximum(np.abs(r), scale[:, np.newaxis])
-        ok &= np.all(np.abs(step) <= tiny, axis=1)
-        n = r.shape[1]
+        ok = np.all(np.isfinite(seeds), axis=1)
+        ok &= np.all(np.abs(step) <= 1e-11 * np.maximum(np.abs(r), scale[:, np.newaxis]), axis=1)
         if n > 1:
             gap = np.abs(r[:, :, np.newaxis] - r[:, np.newaxis, :])
             gap[:, np.arange(n), np.arange(n)] = np.inf
             ok &= np.min(gap, axis=(1, 2)) > 1e-6 * scale
         vieta = -poly[:, 1] / poly[:, 0]
         ok &= np.abs(r.sum(axis=1) - vieta) <= 1e-9 * (np.sum(np.abs(r), axis=1) + scale)
+    return r, ok
+
+
+def _roots_from_seeds(num, den, gains, seeds, scale):
+    """Roots of ``den + gains num`` from branch seeds, cheaply.
+
+    Seeds interpolated between matched neighbours are close to the roots, so
+    a few Newton steps per root are much cheaper than an eigenvalue problem.
+    Rows where Newton does not settle (a multiple root, a seed that slid to a
+    neighbour's root: caught by root separation and Vieta's sum) are retried
+    with Aberth-Ehrlich iteration, and what still fails falls back to the
+    companion eigenvalues.
+    """
+    poly = den + gains[:, np.newaxis] * num
+    dpoly = _derivative(poly)
+    r, ok = _polish(poly, dpoly, seeds, scale, simultaneous=False)
     ok &= np.abs(poly[:, 0]) > 8 * np.finfo(float).eps * (np.abs(den[:, 0]) + np.abs(gains * num[:, 0]))
     if not np.all(ok):
-        bad = ~ok
-        r[bad] = _roots(num[bad], den[bad], gains[bad])
+        bad = np.flatnonzero(~ok)
+        r2, ok2 = _polish(poly[bad], dpoly[bad], seeds[bad], scale[bad], simultaneous=True)
+        ok2 &= np.abs(poly[bad, 0]) > 8 * np.finfo(float).eps * (np.abs(den[bad, 0]) + np.abs(gains[bad] * num[bad, 0]))
+        r[bad[ok2]] = r2[ok2]
+        worst = bad[~ok2]
+        if worst.size:
+            r[worst] = _roots(num[worst], den[worst], gains[worst])
     return r
 
 
@@ -282,13 +316,13 @@ def _allowed_step(roots_a, roots_b, scale, max_step):
     """Largest allowed move of each root between neighbouring samples.
 
     ``max_step`` plot scales inside the plot region; beyond it the bound
-    grows with the distance (a tenth of the distance past the plot scale),
+    grows with the distance (a quarter of the distance past the plot scale),
     because a branch running out along an asymptote is a straight line.
     """
     local = np.minimum(np.abs(roots_a), np.abs(roots_b))
     local = np.where(np.isfinite(local), local, np.inf)
     s = scale[:, np.newaxis]
-    return np.maximum(max_step * s, 0.1 * (local - s))
+    return np.maximum(max_step * s, _FAR_GROWTH * (local - s))
 
 
 def _match(num, den, k_a, k_b, r_a, r_b, allowed):
@@ -456,7 +490,7 @@ def trace_locus(
         the loop's plot scale (the largest magnitude among open-loop poles,
         finite zeros and the centroid; measured from ``s = 0``, from ``z = 0``,
         or from ``z = 1`` for delta-form discrete loops, which are traced in
-        ``g = (z - 1)/ts``).  Beyond the plot scale the bound grows by a tenth
+        ``g = (z - 1)/ts``).  Beyond the plot scale the bound grows by a quarter
         of the distance past it.
     zero_tol, far_factor, asymptote_tol : float
         Asymptotic-regime criterion (fractions of the plot scale; degrees).
