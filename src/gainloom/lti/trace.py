@@ -156,8 +156,7 @@ def angle_residual(
     with np.errstate(all="ignore"):
         finite = np.isfinite(roots)
         # The product of the factors has the summed angle (one arctan per
-        # root); dividing every factor by a positive per-row scale changes no
-        # angle and keeps the product far from overflow.
+        # root); positive rescaling changes no angle.
         unit = 1.0 / np.maximum(np.max(np.abs(poles), axis=1), 1e-300)[:, np.newaxis]
         r = np.where(finite, roots, 0.0) * unit
         p_unit = poles * unit
@@ -175,6 +174,9 @@ def angle_residual(
             to_z = np.where(np.isnan(zj), 1.0, r - zj)
             on_feature |= ~np.isnan(zj) & (np.abs(to_z) <= tiny * np.maximum(np.abs(r), np.abs(zj)))
             phasor *= to_z
+            # Keep the running product at unit size (no underflow/overflow).
+            size = np.abs(phasor)
+            phasor = np.where(size > 0, phasor / np.where(size > 0, size, 1.0), phasor)
         # -K L(r) must be a positive real number: its argument is the residual.
         phasor = phasor * np.sign(-gains * lead_n / den[:, 0])[:, np.newaxis]
         residual = np.abs(np.angle(phasor))
