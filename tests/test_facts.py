@@ -298,6 +298,15 @@ def test_breakaways_are_double_roots_of_the_closed_loop(loop):
         scale = max(1.0, abs(brk.point))
         near = np.sort(np.abs(roots - brk.point))
         assert near[1] < 1e-4 * scale * max(1.0, np.max(np.abs(roots))), (brk, roots)
+        if brk.kind in ("breakaway", "break-in"):
+            # |K(x)| = |D/N| along the real axis peaks at a breakaway and dips
+            # at a break-in (magnitude condition, evaluated directly).
+            x, h = brk.point.real, 1e-3 * max(1.0, abs(brk.point.real))
+            side = np.abs(np.polyval(den, [x - h, x + h]) / np.polyval(num, [x - h, x + h]))
+            if brk.kind == "breakaway":
+                assert np.all(side < abs(brk.gain)), (brk, side)
+            else:
+                assert np.all(side > abs(brk.gain)), (brk, side)
 
 
 @given(random_loops(), st.booleans())
