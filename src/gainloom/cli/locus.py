@@ -114,8 +114,24 @@ def _interval(pair: tuple[float, float]) -> str:
     return f"({left}, {right})"
 
 
-def format_facts(facts: LocusFacts, how: str) -> str:
-    """Readable multi-section text of the facts."""
+def format_facts(
+    facts: LocusFacts,
+    how: str,
+    damped: dict[float, list[tuple[float, float]]] | None = None,
+    damping_asked: bool = False,
+) -> str:
+    """Readable multi-section text of the facts.
+
+    Parameters
+    ----------
+    facts : LocusFacts
+    how : str
+        How the analysed loop was made (continuous, given in z, hold used).
+    damped : dict, optional
+        Damping ratio -> gain intervals meeting it (``K > 0``).
+    damping_asked : bool
+        Damping ratios were requested (explains their absence for ``K < 0``).
+    """
     plane = facts.plane
     sign = "K < 0" if facts.negative else "K > 0"
     out = [f"Root locus of K N/D in the {plane}-plane for {sign} ({how})", ""]
@@ -167,6 +183,13 @@ def format_facts(facts: LocusFacts, how: str) -> str:
         out += ["Stable gain intervals: " + ", ".join(_interval(s) for s in facts.stable_gain_intervals), ""]
     else:
         out += [f"Stable gain intervals: none for {sign}", ""]
+    if damped:
+        out.append("Gains K > 0 with every closed-loop pole stable and damped at least")
+        for zeta, pairs in damped.items():
+            out.append(f"  zeta >= {zeta:g}: " + (", ".join(_interval(p) for p in pairs) if pairs else "no gain"))
+        out.append("")
+    elif damping_asked and facts.negative:
+        out += ["Damping gain intervals are only computed for K > 0.", ""]
     for warning in facts.warnings:
         out.append(f"warning: {warning}")
     out.append(CAUTION)
@@ -264,17 +287,7 @@ def run(args: argparse.Namespace) -> int:
         }
         print_json(data)
     else:
-        text = format_facts(facts, how)
-        if damped:
-            lines = [
-                f"  zeta >= {zeta:g}: " + (", ".join(_interval(p) for p in pairs) if pairs else "no gain")
-                for zeta, pairs in damped.items()
-            ]
-            extra = "Gains K > 0 with every closed-loop pole stable and damped at least\n" + "\n".join(lines) + "\n"
-            text = text.replace("\nCaution:", "\n" + extra + "\nCaution:", 1) if extra else text
-        elif args.damping and args.negative:
-            text = text.replace("\nCaution:", "\nDamping gain intervals are only computed for K > 0.\n\nCaution:", 1)
-        print(text)
+        print(format_facts(facts, how, damped, damping_asked=bool(args.damping)))
     if args.plot:
         from ..report.locus_plot import plot_locus
 
