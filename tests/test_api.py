@@ -26,6 +26,16 @@ EXPECTED_PUBLIC_NAMES = {
     "VerifyResult",
     "read_gains",
     "write_gains",
+    "LocusFacts",
+    "locus_facts",
+    "LocusBranches",
+    "trace_locus",
+    "GainInterval",
+    "SpecRegion",
+    "stable_gain_intervals",
+    "spec_gain_intervals",
+    "routh_array",
+    "jury_test",
 }
 
 

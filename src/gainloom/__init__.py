@@ -18,6 +18,11 @@ from .codegen import HarnessResult, check_generated_c, emit_c
 from .design.engine import design, verify  # noqa: E402 - the function shadows the subpackage name on purpose
 from .design.results import DesignResult, VerifyResult
 from .design.gainsfile import read_gains, write_gains
+from .lti.facts import LocusFacts, locus_facts
+from .lti.trace import LocusBranches, trace_locus
+from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
+from .lti.regions import SpecRegion
+from .lti.stability import jury_test, routh_array
 
 __all__ = [
     "__version__",
@@ -43,4 +48,14 @@ __all__ = [
     "VerifyResult",
     "read_gains",
     "write_gains",
+    "LocusFacts",
+    "locus_facts",
+    "LocusBranches",
+    "trace_locus",
+    "GainInterval",
+    "SpecRegion",
+    "stable_gain_intervals",
+    "spec_gain_intervals",
+    "routh_array",
+    "jury_test",
 ]

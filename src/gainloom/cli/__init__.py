@@ -20,6 +20,7 @@ __all__ = ["main", "COMMANDS"]
 COMMANDS: tuple[str, ...] = (
     "inspect",
     "discretize",
+    "locus",
     "design",
     "verify",
     "emit",
