@@ -26,7 +26,7 @@ from gainloom.simulation import (
     run_scenario,
 )
 from gainloom.simulation.interpolation import interpolate_grid
-from gainloom.simulation.plant import controllable_canonical, split_delay
+from gainloom.simulation.plant import split_delay
 from gainloom.simulation.timeline import sample_times
 
 
@@ -418,25 +418,14 @@ def test_sample_times_with_a_constant_period():
 # ------------------------------------------------------------------- building blocks
 
 
-def test_controllable_canonical_matches_scipy_tf2ss():
-    # Reference: scipy.signal.tf2ss (controller canonical form).
-    num = np.array([[0.0, 2.0, 3.0, 1.0], [1.0, 0.5, 0.0, 4.0]])
-    den = np.array([[2.0, 3.0, 5.0, 7.0], [1.0, 0.2, 0.3, 0.4]])
-    A, B, C, D = controllable_canonical(num, den)
-    for p in range(2):
-        a, b, c, d = scipy.signal.tf2ss(np.trim_zeros(num[p], "f"), den[p])
-        np.testing.assert_allclose(A[p], a, atol=1e-15)
-        np.testing.assert_allclose(B[p], b[:, 0], atol=1e-15)
-        np.testing.assert_allclose(C[p], c[0], atol=1e-15)
-        np.testing.assert_allclose(D[p], d[0, 0], atol=1e-15)
-
-
-def test_split_delay_snaps_whole_samples():
-    # Reference: arithmetic (1 sample + 0 s is exactly 1 whole sample; 1.4 samples
-    # is 1 whole sample and 0.4 T).
-    whole, fraction = split_delay(np.array([1e-4, 1.4e-4, 3e-4]), np.array([1e-4, 1e-4, 1e-4]))
+def test_split_delay_into_whole_samples_and_remainder():
+    # Reference: arithmetic (1 sample is 1 whole sample and 0 s; 1.4 samples of
+    # 0.1 ms are 1 whole sample and 0.04 ms).
+    whole, fraction = split_delay(np.array([1.0, 1.4, 3.0]), np.array([1e-4, 1e-4, 1e-4]))
     assert whole.tolist() == [1, 1, 3]
     np.testing.assert_allclose(fraction, [0.0, 0.4e-4, 0.0], atol=1e-18)
+    with pytest.raises(InputError, match="finite and >= 0"):
+        split_delay(np.array([-1.0]), np.array([1e-4]))
 
 
 def test_piecewise_linear_signal():

@@ -28,7 +28,7 @@ def _plain(value):
     return value
 
 #: The plant realisation the simulator carries the state in (see plant.py).
-REALISATION = "controllable canonical (scipy.signal.tf2ss convention), one realisation for every point"
+REALISATION = "controllable canonical (lti.convert.tf_to_ss, the scipy.signal.tf2ss convention), one realisation for every point"
 
 
 @dataclass(frozen=True)

@@ -150,7 +150,7 @@ def run_scenario(
     plant = plant if plant.points == count else plant.select(np.zeros(count, dtype=int))
     period = np.broadcast_to(np.asarray(models.sample_period, dtype=float), (count,))
     delay = np.broadcast_to(np.asarray(models.delay, dtype=float), (count,))
-    sampled = sample_plant(plant.num, plant.den, period, plant.dead_time, delay)
+    sampled = sample_plant(plant, period, delay)
 
     warnings: list[str] = []
     table_points = scenario.points(table_axes, times)
