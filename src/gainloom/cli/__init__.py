@@ -23,6 +23,7 @@ COMMANDS: tuple[str, ...] = (
     "emit",
     "design",
     "verify",
+    "simulate",
 )
 
 
