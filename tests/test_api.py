@@ -26,6 +26,12 @@ EXPECTED_PUBLIC_NAMES = {
     "VerifyResult",
     "read_gains",
     "write_gains",
+    "run_scenario",
+    "Scenario",
+    "ScenarioSpecs",
+    "PiecewiseLinear",
+    "LoadStep",
+    "SimulationResult",
 }
 
 

@@ -18,6 +18,7 @@ from .codegen import HarnessResult, check_generated_c, emit_c
 from .design.engine import design, verify  # noqa: E402 - the function shadows the subpackage name on purpose
 from .design.results import DesignResult, VerifyResult
 from .design.gainsfile import read_gains, write_gains
+from .simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
 
 __all__ = [
     "__version__",
@@ -43,4 +44,10 @@ __all__ = [
     "VerifyResult",
     "read_gains",
     "write_gains",
+    "run_scenario",
+    "Scenario",
+    "ScenarioSpecs",
+    "PiecewiseLinear",
+    "LoadStep",
+    "SimulationResult",
 ]

@@ -160,7 +160,12 @@ class SimulationResult:
                 f"(band {self.scenario['settle_band'] * 100:g} %)"
             )
         for load in m.load_responses:
-            recovery = num(load.recovery_time, " s") if load.recovery_time is not None else "not recovered"
+            if load.recovery_time is None:
+                recovery = "not recovered"
+            elif load.recovery_time == 0.0:
+                recovery = "stayed within the settling band"
+            else:
+                recovery = num(load.recovery_time, " s")
             lines.append(
                 f"load step of {load.amplitude:g} at {load.time:g} s: peak deviation {num(load.peak_deviation)}, "
                 f"recovery {recovery}"

@@ -174,6 +174,12 @@ def run_scenario(
             "(exact at a frozen point, an approximation while it moves)"
         )
 
+    method = getattr(getattr(schedule, "sampling", None), "method", "zoh")
+    if method != "zoh":
+        warnings.append(
+            f"the schedule designs with the {method} hold equivalent; the simulation integrates the plant exactly "
+            "under a zero-order hold (what a PWM or DAC output does)"
+        )
     controller = TableController(table, number_format, table_points, error_full_scale, output_full_scale)
     reference = scenario.reference(times)
     disturbance = scenario.disturbance(times)
