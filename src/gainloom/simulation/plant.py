@@ -41,9 +41,10 @@ import numpy as np
 from ..errors import InputError
 from ..lti.convert import tf_to_ss
 from ..lti.discretize import total_delay
+from ..lti.expm import batched_expm
 from ..lti.loop import Loop
 
-__all__ = ["SampledPlant", "sample_plant", "split_delay", "batched_expm"]
+__all__ = ["SampledPlant", "sample_plant", "split_delay"]
 
 def split_delay(total: np.ndarray, period: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Split a delay in samples into whole samples and a remainder in seconds.
@@ -93,50 +94,10 @@ class SampledPlant:
         return self.phi.shape[-1]
 
 
-_TAYLOR_DEGREE = 14
-_TAYLOR_NORM = 0.25
-
-
-def batched_expm(matrices: np.ndarray) -> np.ndarray:
-    """Matrix exponential of a stack of small matrices.
-
-    Scaling and squaring with a truncated Taylor series: each matrix is
-    scaled by ``2**-s`` until its 1-norm is at most 0.25, the series is
-    summed to degree 14 (truncation below ``0.25**15 / 15!``, about 1e-21
-    relative), and the result squared ``s`` times.  All steps are stacked
-    ``numpy.matmul`` calls.  ``scipy.linalg.expm`` works one slice at a time
-    and, for the tens of thousands of 3x3 to 5x5 blocks of a long run, its
-    per-call cost dominates; its results are the test reference.
-
-    Parameters
-    ----------
-    matrices : ndarray, shape (K, n, n)
-
-    Returns
-    -------
-    ndarray, shape (K, n, n)
-    """
-    matrices = np.asarray(matrices, dtype=float)
-    count, size = matrices.shape[0], matrices.shape[-1]
-    norms = np.max(np.sum(np.abs(matrices), axis=-2), axis=-1) if size else np.zeros(count)
-    if not np.all(np.isfinite(norms)):
-        raise InputError("the plant matrices along the path are not finite")
-    with np.errstate(divide="ignore"):
-        squarings = np.maximum(0, np.ceil(np.log2(norms / _TAYLOR_NORM))).astype(int)
-    scaled = matrices * np.ldexp(1.0, -squarings)[:, np.newaxis, np.newaxis]
-    identity = np.broadcast_to(np.eye(size), matrices.shape)
-    result = identity + scaled / _TAYLOR_DEGREE
-    for degree in range(_TAYLOR_DEGREE - 1, 0, -1):
-        result = identity + (scaled @ result) / degree
-    for round_ in range(int(squarings.max(initial=0))):
-        more = squarings > round_
-        result[more] = result[more] @ result[more]
-    return result
-
-
 def _zoh_blocks(A: np.ndarray, B: np.ndarray, steps: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``Phi(h)`` and ``Gamma(h)`` for a batch, from the exponential of the
-    augmented matrix ``[[A, B], [0, 0]] h`` (Van Loan's block form)."""
+    augmented matrix ``[[A, B], [0, 0]] h`` (Van Loan's block form), all
+    samples in one stacked call of :func:`gainloom.lti.expm.batched_expm`."""
     points, order = B.shape
     augmented = np.zeros((points, order + 1, order + 1))
     augmented[:, :order, :order] = A * steps[:, np.newaxis, np.newaxis]
