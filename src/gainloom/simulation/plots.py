@@ -79,9 +79,14 @@ def write_plots(result: SimulationResult, directory: str | Path) -> list[Path]:
         control.set_ylim(min(bottom, low) - 0.05 * span, max(top, high) + 0.05 * span)
         control.set_ylabel("control")
 
-        for column, name in enumerate(result.axis_names):
-            schedule.plot(t, result.points[:, column], label=name)
-        schedule.set_ylabel("scheduling")
+        schedule.plot(t, result.points[:, 0], label=result.axis_names[0])
+        schedule.set_ylabel(result.axis_names[0])
+        if len(result.axis_names) > 1:
+            # A second variable has its own range: its own scale on the right.
+            second = schedule.twinx()
+            second.plot(t, result.points[:, 1], color="C1", label=result.axis_names[1])
+            second.set_ylabel(result.axis_names[1])
+            second.legend(loc="lower right", fontsize="small")
 
         for name, values in result.gains.items():
             gains.plot(t, values, drawstyle="steps-post", label=name)
