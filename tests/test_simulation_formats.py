@@ -133,6 +133,7 @@ def test_fixed_point_error_saturates_at_full_scale():
         schedule, table, Scenario(0.01, {"speed": 0.0}), "q15", error_full_scale=0.1, output_full_scale=5.0
     )
     assert result.control[0] == pytest.approx(0.31 * 0.1 * (1 - 2**-15), abs=2 * 5.0 / 32768)
+    assert any("beyond the error full scale 0.1" in w for w in result.warnings)
 
 
 def test_full_scale_only_for_fixed_point():

@@ -206,6 +206,17 @@ def run_scenario(
             output[k + 1:] = np.inf
             break
 
+    layout = controller.layout
+    if layout is not None and layout.fmt.is_fixed:
+        error = np.abs(reference - output)
+        beyond = np.isfinite(error) & (error > layout.error_full_scale)
+        if np.any(beyond):
+            warnings.append(
+                f"|r - y| reached {np.nanmax(error[np.isfinite(error)]):.4g}, beyond the error full scale "
+                f"{layout.error_full_scale:g}, at {np.count_nonzero(beyond)} of {count} samples: the controller "
+                "saw a saturated error there (raise --error-full-scale if the firmware scales it otherwise)"
+            )
+
     metrics = measure(times, period, reference, output, unsaturated, controller.limits, scenario)
     return SimulationResult(
         number_format=number_format,
