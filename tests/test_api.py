@@ -20,6 +20,7 @@ EXPECTED_PUBLIC_NAMES = {
     "emit_c",
     "check_generated_c",
     "HarnessResult",
+    "discretize_loop",
     "design",
     "verify",
     "DesignResult",
@@ -36,6 +37,12 @@ EXPECTED_PUBLIC_NAMES = {
     "spec_gain_intervals",
     "routh_array",
     "jury_test",
+    "run_scenario",
+    "Scenario",
+    "ScenarioSpecs",
+    "PiecewiseLinear",
+    "LoadStep",
+    "SimulationResult",
 }
 
 

@@ -23,6 +23,7 @@ from .lti.trace import LocusBranches, trace_locus
 from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
 from .lti.regions import SpecRegion
 from .lti.stability import jury_test, routh_array
+from .simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
 
 __all__ = [
     "__version__",
@@ -42,6 +43,7 @@ __all__ = [
     "emit_c",
     "check_generated_c",
     "HarnessResult",
+    "discretize_loop",
     "design",
     "verify",
     "DesignResult",
@@ -58,4 +60,10 @@ __all__ = [
     "spec_gain_intervals",
     "routh_array",
     "jury_test",
+    "run_scenario",
+    "Scenario",
+    "ScenarioSpecs",
+    "PiecewiseLinear",
+    "LoadStep",
+    "SimulationResult",
 ]

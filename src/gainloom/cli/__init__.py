@@ -24,6 +24,7 @@ COMMANDS: tuple[str, ...] = (
     "design",
     "verify",
     "emit",
+    "simulate",
 )
 
 
