@@ -27,7 +27,7 @@ def run_cli(*args, cwd=None):
 
 
 def test_table_output_names_the_facts():
-    result = run_cli("--num", "1", "--den", "1 3 2 0")
+    result = run_cli("--num", "1", "--den", "1 3 2 0", "--damping", "0.5")
     assert result.returncode == 0, result.stderr
     out = result.stdout
     for heading in ("Open-loop poles and zeros", "Real-axis segments", "Asymptotes", "Breakaway",
@@ -35,12 +35,20 @@ def test_table_output_names_the_facts():
         assert heading in out
     # Breakaway of K/(s(s+1)(s+2)) at -1 + 1/sqrt(3), K = 0.3849 (textbook, from memory).
     assert "-0.42265" in out and "0.3849" in out
+    # zeta = 0.5 ray meets the locus at s = -1/3 + j/sqrt(3) (angle condition,
+    # solved by hand: s(s+1)(s+2) real there), K = -s(s+1)(s+2) = 28/27.
+    s = complex(-1 / 3, 1 / math.sqrt(3))
+    assert abs((s * (s + 1) * (s + 2)).imag) < 1e-12
+    assert f"zeta >= 0.5: (0, {28 / 27:.6g})" in out
+    # Imaginary-axis crossing w = sqrt(2) at K = 6 (Routh, from memory).
+    assert "Crossings of the imaginary axis" in out and "1.41421" in out and "(0, 6)" in out
 
 
-def test_json_output_keys_and_values():
-    result = run_cli("--num", "1,2", "--den", "[1, 2, 3]", "--json")
-    assert result.returncode == 0, result.stderr
-    data = json.loads(result.stdout)
+def test_json_output_keys_and_values(capsys):
+    from gainloom.cli import main
+
+    assert main(["locus", "--num", "1,2", "--den", "[1, 2, 3]", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
     for key in ("plane", "poles", "zeros", "real_axis_segments", "asymptotes", "breakaways", "crossings",
                 "departure_angles", "arrival_angles", "stable_gain_intervals", "discretization"):
         assert key in data
@@ -57,34 +65,44 @@ def test_sampled_loop_is_discretised_first():
     assert result.returncode == 0, result.stderr
     data = json.loads(result.stdout)
     assert data["plane"] == "z" and data["ts"] == 0.1
+    assert data["sampling"] == {"method": "zoh", "ts": 0.1, "delay_samples": 0.0, "prewarp": None}
     _, den_ref, _ = scipy.signal.cont2discrete(([1.0], [1.0, 1.0, 0.0]), 0.1, method="zoh")
     np.testing.assert_allclose(data["den"], den_ref, rtol=1e-9, atol=1e-12)
     poles = sorted(p["re"] for p in data["poles"])
     assert poles == pytest.approx([math.exp(-0.1), 1.0], abs=1e-9)
 
 
-def test_discrete_flag_takes_z_polynomials_as_given():
-    result = run_cli("--num", "1 0.5", "--den", "1 -1.5 0.5", "--ts", "0.01", "--discrete", "--json")
-    assert result.returncode == 0, result.stderr
-    data = json.loads(result.stdout)
+def test_discrete_flag_takes_z_polynomials_as_given(capsys):
+    from gainloom.cli import main
+
+    assert main(["locus", "--num", "1 0.5", "--den", "1 -1.5 0.5", "--ts", "0.01", "--discrete", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
     assert data["den"] == [1.0, -1.5, 0.5]
 
 
-def test_plot_is_a_png(tmp_path):
+def test_plot_is_a_png(tmp_path, capsys):
+    # In-process (matplotlib is slow to import; the subprocess path is
+    # covered below).
+    from gainloom.cli import main
+
     target = tmp_path / "locus.png"
-    result = run_cli("--num", "1", "--den", "1 3 2 0", "--plot", str(target))
-    assert result.returncode == 0, result.stderr
+    assert main(["locus", "--num", "1", "--den", "1 3 2 0", "--damping", "0.5", "--plot", str(target)]) == 0
+    assert "plot written" in capsys.readouterr().out
     assert target.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG specification)
 
 
-def test_z_plot_with_damping_contours_is_deterministic(tmp_path):
+def test_z_plot_is_byte_identical_across_processes(tmp_path, capsys):
+    from gainloom.cli import main
+
+    args = ["--num", "1", "--den", "1 1 0", "--ts", "0.1", "--delay", "1", "--damping", "0.5", "0.7", "--plot"]
     first, second = tmp_path / "a.png", tmp_path / "b.png"
-    for target in (first, second):
-        result = run_cli("--num", "1", "--den", "1 1 0", "--ts", "0.1", "--delay", "1", "--damping", "0.5",
-                         "0.7", "--plot", str(target))
-        assert result.returncode == 0, result.stderr
+    result = run_cli(*args, str(first))
+    assert result.returncode == 0, result.stderr
+    assert main(["locus", *args, str(second)]) == 0
+    capsys.readouterr()
+    assert first.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert first.read_bytes() == second.read_bytes()
-    assert b"Software" not in first.read_bytes()
+    assert b"Software" not in first.read_bytes() and b"matplotlib" not in first.read_bytes()
 
 
 def test_bad_input_exits_2_with_one_line_in_a_subprocess():

@@ -107,7 +107,8 @@ def test_step_matches_lfilter_of_the_transfer_function_when_unsaturated(number_f
     # using the stored coefficients; a small error keeps |u| far from the limits.
     table = make_table(structure, dims=1, limits=(-1000.0, 1000.0))
     fixed = number_format != "float32"
-    layout = layout_table(table, number_format, error_full_scale=1.0 if fixed else None, output_full_scale=1000.0 if fixed else None)
+    scales = {"error_full_scale": 1.0, "output_full_scale": 1000.0} if fixed else {}
+    layout = layout_table(table, number_format, **scales)
     steps = 400
     k = np.arange(steps)
     error_physical = 0.3 * np.sin(2 * np.pi * k / 37) + 0.2 * np.sign(np.sin(2 * np.pi * k / 90))
@@ -179,3 +180,24 @@ def test_conditional_integration_clamps_the_integrator(number_format):
     assert 3.0 - ki * 0.9 - 4 * lsb <= u[299] <= 3.0
     assert x[299] < 3.0 - kp * 0.9 + 2 * ki  # integrator stopped near the limit, not wound up
     assert u[300] < 3.0  # leaves saturation on the first reversed sample
+
+
+def test_fixed_point_weight_is_the_floor_of_the_exact_fraction():
+    # Reference: brute force with Python integers: the last breakpoint <= x
+    # gives the segment, floor((x - a_i) 2**F / (a_{i+1} - a_i)) the weight.
+    from gainloom.codegen.mirror import locate
+
+    layout = layout_table(make_table("pi", dims=2, uniform=False), "q31")
+    rng = np.random.default_rng(9)
+    for axis in layout.axes:
+        a = [int(v) for v in axis.stored]
+        xs = rng.integers(a[0] - 50, a[-1] + 50, size=400)
+        index, weight = locate(axis, True, 30, xs)
+        for x, i, t in zip(xs.tolist(), index.tolist(), weight.tolist()):
+            if x <= a[0]:
+                assert (i, t) == (0, 0)
+            elif x >= a[-1]:
+                assert (i, t) == (len(a) - 2, 2**30)
+            else:
+                segment = max(k for k in range(len(a) - 1) if a[k] <= x)
+                assert (i, t) == (segment, ((x - a[segment]) << 30) // (a[segment + 1] - a[segment]))

@@ -298,6 +298,15 @@ def test_breakaways_are_double_roots_of_the_closed_loop(loop):
         scale = max(1.0, abs(brk.point))
         near = np.sort(np.abs(roots - brk.point))
         assert near[1] < 1e-4 * scale * max(1.0, np.max(np.abs(roots))), (brk, roots)
+        if brk.kind in ("breakaway", "break-in"):
+            # |K(x)| = |D/N| along the real axis peaks at a breakaway and dips
+            # at a break-in (magnitude condition, evaluated directly).
+            x, h = brk.point.real, 1e-3 * max(1.0, abs(brk.point.real))
+            side = np.abs(np.polyval(den, [x - h, x + h]) / np.polyval(num, [x - h, x + h]))
+            if brk.kind == "breakaway":
+                assert np.all(side < abs(brk.gain)), (brk, side)
+            else:
+                assert np.all(side > abs(brk.gain)), (brk, side)
 
 
 @given(random_loops(), st.booleans())
@@ -376,3 +385,33 @@ def test_repeated_pole_angles_match_small_gain_root_motion(m):
     observed = sorted(float(normalize_angle(math.degrees(np.angle(r + 1.0)))) for r in near)
     for got, want in zip(observed, dep.angles):
         assert angles_close(got, want, tol=1.0), (observed, dep.angles)
+
+
+def test_departure_angle_matches_traced_branch():
+    # The tracer (gainloom.lti.trace, an independent path: batched roots
+    # matched along the gain) leaves -1 + j sqrt(2) of K(s+2)/(s^2+2s+3) in
+    # the reported direction.
+    from gainloom.lti.loop import Loop
+    from gainloom.lti.trace import trace_locus
+
+    facts = locus_facts([1.0, 2.0], [1.0, 2.0, 3.0])
+    traced = trace_locus(Loop(num=[1.0, 2.0], den=[1.0, 2.0, 3.0]))
+    roots = traced.roots[0, : int(traced.counts[0])]
+    pole = complex(-1.0, math.sqrt(2.0))
+    branch = int(np.argmin(np.abs(roots[0] - pole)))
+    moved = roots[1:, branch]
+    first = moved[np.abs(moved - pole) > 1e-9][0]
+    direction = math.degrees(np.angle(first - pole))
+    upper = [d for d in facts.departures if d.at.imag > 0][0]
+    assert angles_close(direction, upper.angles[0], tol=2.0), (direction, upper.angles)
+
+
+def test_three_branches_meet_at_one_real_point():
+    # D + K N = s^3 + 3 s^2 + 3 s + K = (s + 1)^3 + (K - 1): a triple
+    # closed-loop root at s = -1 when K = 1 (closed form), where three
+    # branches meet; neither a plain breakaway nor a break-in.
+    facts = locus_facts([1.0], [1.0, 3.0, 3.0, 0.0])
+    (brk,) = facts.breakaways
+    assert brk.point == pytest.approx(-1.0, abs=1e-6)
+    assert brk.gain == pytest.approx(1.0, rel=1e-9)
+    assert brk.kind == "meeting"

@@ -133,6 +133,7 @@ def test_fixed_point_error_saturates_at_full_scale():
         schedule, table, Scenario(0.01, {"speed": 0.0}), "q15", error_full_scale=0.1, output_full_scale=5.0
     )
     assert result.control[0] == pytest.approx(0.31 * 0.1 * (1 - 2**-15), abs=2 * 5.0 / 32768)
+    assert any("beyond the error full scale 0.1" in w for w in result.warnings)
 
 
 def test_full_scale_only_for_fixed_point():
@@ -141,3 +142,33 @@ def test_full_scale_only_for_fixed_point():
     table = GainTable("p", (axis,), {"kp": np.full(2, 0.3)}, 1e-3, (-5.0, 5.0))
     with pytest.raises(Exception, match="full-scale values apply to q15 and q31 only"):
         run_scenario(schedule, table, Scenario(0.01, {"speed": 0.0}), "float32", error_full_scale=2.0)
+
+
+@pytest.mark.parametrize("number_format,tolerance", [("float64", 1e-12), ("float32", 2e-6), ("q31", 1e-7)])
+def test_two_axis_run_interpolates_bilinearly(number_format, tolerance):
+    # Reference: scipy RegularGridInterpolator (method="linear") on the 2-D table at
+    # the path's points, clipped to the table (clamping at the ends).
+    from scipy.interpolate import RegularGridInterpolator
+
+    from gainloom.simulation import PiecewiseLinear
+
+    rng = np.random.default_rng(21)
+    speed = np.array([0.0, 2000.0, 6000.0])
+    load = np.array([0.0, 0.5, 1.0, 2.0])
+    kp = rng.uniform(0.2, 0.4, size=(3, 4))
+    ki = rng.uniform(0.005, 0.01, size=(3, 4))
+    table = GainTable(
+        "pi", (TableAxis("speed", "rpm", speed), TableAxis("load", "", load)), {"kp": kp, "ki_ts": ki}, 1e-3, (-5, 5)
+    )
+    schedule = FunctionSchedule(constant_plant(*SECOND_ORDER), period=1e-3, delay=1.0, axes=("speed", "load"))
+    scenario = Scenario(
+        0.3,
+        {"speed": PiecewiseLinear.ramp(-100.0, 6500.0, 0.0, 0.3), "load": PiecewiseLinear([0.0, 0.3], [2.5, 0.1])},
+    )
+    kw = {"error_full_scale": 2.0} if number_format == "q31" else {}
+    result = run_scenario(schedule, table, scenario, number_format, **kw)
+    clipped = np.column_stack([np.clip(result.points[:, 0], 0, 6000), np.clip(result.points[:, 1], 0, 2)])
+    for name, grid in (("kp", kp), ("ki_ts", ki)):
+        expected = RegularGridInterpolator((speed, load), grid)(clipped)
+        np.testing.assert_allclose(result.gains[name], expected, rtol=0, atol=tolerance)
+    assert any("clamped" in w for w in result.warnings)

@@ -10,7 +10,6 @@ __version__ = "0.1.0"
 
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
-from .lti.facts import LocusFacts, locus_facts
 from .schedule import Schedule, load_schedule
 from .lti.discretize import discretize, discretize_loop
 from .lti.closed_loop import closed_loop_poles
@@ -19,6 +18,12 @@ from .codegen import HarnessResult, check_generated_c, emit_c
 from .design.engine import design, verify  # noqa: E402 - the function shadows the subpackage name on purpose
 from .design.results import DesignResult, VerifyResult
 from .design.gainsfile import read_gains, write_gains
+from .lti.facts import LocusFacts, locus_facts
+from .lti.trace import LocusBranches, trace_locus
+from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
+from .lti.regions import SpecRegion
+from .lti.stability import jury_test, routh_array
+from .simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
 from .codegen.quantisation import QuantisationResult, check_quantisation
 from .report import write_verification
 
@@ -32,9 +37,8 @@ __all__ = [
     "Loop",
     "load_schedule",
     "Schedule",
-    "LocusFacts",
-    "locus_facts",
     "discretize",
+    "discretize_loop",
     "closed_loop_poles",
     "Margins",
     "loop_margins",
@@ -48,6 +52,22 @@ __all__ = [
     "VerifyResult",
     "read_gains",
     "write_gains",
+    "LocusFacts",
+    "locus_facts",
+    "LocusBranches",
+    "trace_locus",
+    "GainInterval",
+    "SpecRegion",
+    "stable_gain_intervals",
+    "spec_gain_intervals",
+    "routh_array",
+    "jury_test",
+    "run_scenario",
+    "Scenario",
+    "ScenarioSpecs",
+    "PiecewiseLinear",
+    "LoadStep",
+    "SimulationResult",
     "check_quantisation",
     "QuantisationResult",
     "write_verification",

@@ -18,12 +18,13 @@ __all__ = ["main", "COMMANDS"]
 
 #: Registered commands, in the order ``--help`` lists them.
 COMMANDS: tuple[str, ...] = (
-    "discretize",
     "inspect",
-    "emit",
+    "discretize",
+    "locus",
     "design",
     "verify",
-    "locus",
+    "emit",
+    "simulate",
 )
 
 

@@ -26,10 +26,17 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("gains", help="gains file written by 'gainloom design' (YAML or JSON)")
     parser.add_argument("--out", required=True, metavar="DIR", help="output folder (created if missing)")
     parser.add_argument(
-        "--format", dest="number_format", choices=NUMBER_FORMATS, default="float32", help="number format (default float32)"
+        "--format",
+        dest="number_format",
+        choices=NUMBER_FORMATS,
+        default=None,
+        help="number format (default: the schedule's codegen.format with --schedule, else float32)",
     )
     parser.add_argument(
-        "--prefix", default="ctl", help="start of every C identifier and of the file names (default ctl)"
+        "--prefix",
+        default=None,
+        help="start of every C identifier and of the file names "
+        "(default: the schedule's codegen.prefix with --schedule, else ctl)",
     )
     parser.add_argument(
         "--error-full-scale",
@@ -50,6 +57,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         action="store_true",
         help="compile the result with strict warnings and compare a host run with the Python mirror",
     )
+    parser.add_argument(
+        "--schedule",
+        metavar="SCHEDULE",
+        default=None,
+        help="re-check the table as stored (rounded to the format) against this schedule; "
+        "its codegen section gives the default prefix and format",
+    )
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
     parser.add_argument(
         "--force", action="store_true", help="overwrite files in DIR that gainloom did not write or that were edited"
@@ -57,9 +71,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    """Emit, optionally check; exit 0, or 1 when the check fails."""
+    """Emit, optionally check and re-verify; exit 0, or 1 when a check fails."""
     gains_path = Path(args.gains)
     table, metadata = read_gains(gains_path)
+    schedule = None
+    if args.schedule is not None:
+        from ..schedule import load_schedule
+
+        schedule = load_schedule(args.schedule)
+        args.number_format = args.number_format or schedule.codegen.format
+        args.prefix = args.prefix or schedule.codegen.prefix
+    args.number_format = args.number_format or "float32"
+    args.prefix = args.prefix or "ctl"
     source_sha256 = (metadata.get("schedule") or {}).get("sha256")
     gains_sha256 = hashlib.sha256(gains_path.read_bytes()).hexdigest()
     written = emit_c(
@@ -76,18 +99,32 @@ def run(args: argparse.Namespace) -> int:
     report: dict = {"files": [str(p) for p in written], "format": args.number_format, "prefix": args.prefix}
     code = 0
     if args.check:
-        result = check_generated_c(
-            written,
-            table,
-            number_format=args.number_format,
-            prefix=args.prefix,
-            error_full_scale=args.error_full_scale,
-            output_full_scale=args.output_full_scale,
-        )
+        # format, prefix and full-scale values are read back from the banner
+        result = check_generated_c(written, table)
         report["check"] = result.summary()
         if result.passed is False:
             code = 1
             print(result.diagnostics, file=sys.stderr)
+    if schedule is not None:
+        from ..codegen.layout import layout_table
+        from ..design.engine import verify
+
+        stored = layout_table(
+            table,
+            args.number_format,
+            error_full_scale=args.error_full_scale,
+            output_full_scale=args.output_full_scale,
+        ).stored_table()
+        checked = verify(schedule, stored)
+        report["stored_table"] = {
+            "passed": checked.passed,
+            "points_passing": sum(s == "pass" for s in checked.status),
+            "points": len(checked.status),
+            "table_checks_passed": checked.table_report.passed,
+            "failed_specs": [checked.analysis.failed_specs(p) for p in range(checked.analysis.points)],
+        }
+        if not checked.passed:
+            code = 1
     if metadata.get("passed") is False:
         report["warning"] = "the gains file records a design that did not meet every spec"
     if args.json:
@@ -101,6 +138,14 @@ def run(args: argparse.Namespace) -> int:
                 f"check: {check['status']}: {check['message']}"
                 + (f" [{check['compiler_version']}, sanitizers {'on' if check['sanitizers'] else 'off'}]"
                    if check["compiler_version"] else "")
+            )
+        if "stored_table" in report:
+            stored_report = report["stored_table"]
+            print(
+                f"stored table ({args.number_format}) on {args.schedule}: "
+                f"{'PASS' if stored_report['passed'] else 'FAIL'}: {stored_report['points_passing']}/"
+                f"{stored_report['points']} points meet every spec; whole-table checks "
+                f"{'pass' if stored_report['table_checks_passed'] else 'fail'}"
             )
         if "warning" in report:
             print(f"warning: {report['warning']}", file=sys.stderr)

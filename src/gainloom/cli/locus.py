@@ -13,6 +13,7 @@ from ..lti.discretize import discretize_loop
 from ..lti.facts import LocusFacts, locus_facts
 from ..lti.loop import Loop
 from ..lti.poles import damping_and_frequency
+from ..lti.trace import trace_locus
 from ..names import HOLD_METHODS, unknown_name_message
 from .output import format_number, format_table, print_json
 
@@ -113,8 +114,24 @@ def _interval(pair: tuple[float, float]) -> str:
     return f"({left}, {right})"
 
 
-def format_facts(facts: LocusFacts, how: str) -> str:
-    """Readable multi-section text of the facts."""
+def format_facts(
+    facts: LocusFacts,
+    how: str,
+    damped: dict[float, list[tuple[float, float]]] | None = None,
+    damping_asked: bool = False,
+) -> str:
+    """Readable multi-section text of the facts.
+
+    Parameters
+    ----------
+    facts : LocusFacts
+    how : str
+        How the analysed loop was made (continuous, given in z, hold used).
+    damped : dict, optional
+        Damping ratio -> gain intervals meeting it (``K > 0``).
+    damping_asked : bool
+        Damping ratios were requested (explains their absence for ``K < 0``).
+    """
     plane = facts.plane
     sign = "K < 0" if facts.negative else "K > 0"
     out = [f"Root locus of K N/D in the {plane}-plane for {sign} ({how})", ""]
@@ -166,36 +183,32 @@ def format_facts(facts: LocusFacts, how: str) -> str:
         out += ["Stable gain intervals: " + ", ".join(_interval(s) for s in facts.stable_gain_intervals), ""]
     else:
         out += [f"Stable gain intervals: none for {sign}", ""]
+    if damped:
+        out.append("Gains K > 0 with every closed-loop pole stable and damped at least")
+        for zeta, pairs in damped.items():
+            out.append(f"  zeta >= {zeta:g}: " + (", ".join(_interval(p) for p in pairs) if pairs else "no gain"))
+        out.append("")
+    elif damping_asked and facts.negative:
+        out += ["Damping gain intervals are only computed for K > 0.", ""]
     for warning in facts.warnings:
         out.append(f"warning: {warning}")
     out.append(CAUTION)
     return "\n".join(out)
 
 
-def _branches(facts: LocusFacts) -> tuple[np.ndarray, np.ndarray]:
-    """Gains and continuous branches of closed-loop poles for the plot.
+def _branches(loop: Loop, facts: LocusFacts) -> tuple[np.ndarray, np.ndarray, tuple[str, ...]]:
+    """Gains, continuous branches and tracer warnings for the plot.
 
-    STOP-GAP until gainloom.lti.trace is merged: a plain log-spaced sweep
-    with nearest-neighbour matching.  To be replaced by the tracer.
+    The tracer's default gain range ends where the locus is asymptotic; it
+    is widened when a crossing or breakaway lies beyond it, so every
+    annotated point sits on a drawn branch.
     """
-    from scipy.optimize import linear_sum_assignment
-
-    from ..lti.polynomials import batched_roots, characteristic
-
-    num = np.asarray(facts.num, dtype=float)
-    den = np.asarray(facts.den, dtype=float)
-    scale = abs(den[-1] if den[-1] != 0 else den[0]) / max(abs(num[-1] if num[-1] != 0 else num[0]), 1e-300)
-    gains = np.concatenate([[0.0], np.geomspace(scale * 1e-6, scale * 1e4, 1500)])
-    if facts.negative:
-        gains = -gains
-    poly = characteristic(num, den, gains)
-    poly = poly[np.abs(poly[:, 0]) > 0]
-    roots = batched_roots(poly)
-    for k in range(1, roots.shape[0]):
-        cost = np.abs(roots[k - 1][:, None] - roots[k][None, :])
-        _, cols = linear_sum_assignment(cost)
-        roots[k] = roots[k][cols]
-    return gains[: roots.shape[0]], roots
+    special = [abs(c.gain) for c in facts.crossings] + [abs(b.gain) for b in facts.breakaways]
+    traced = trace_locus(loop, negative=facts.negative)
+    if special and 2.0 * max(special) > float(traced.k_max[0]):
+        traced = trace_locus(loop, k_max=2.0 * max(special), negative=facts.negative)
+    count = int(traced.counts[0])
+    return traced.gains[0, :count], traced.roots[0, :count], traced.warnings
 
 
 def _damping_curves(zetas: list[float], facts: LocusFacts) -> list[tuple[str, np.ndarray]]:
@@ -218,6 +231,36 @@ def _damping_curves(zetas: list[float], facts: LocusFacts) -> list[tuple[str, np
     return curves
 
 
+def _limit_marks(loop: Loop, damped: dict[float, list[tuple[float, float]]]) -> list[tuple[float, np.ndarray]]:
+    """Closed-loop poles at each finite end of the damping gain intervals."""
+    from ..lti.closed_loop import closed_loop_poles
+
+    ends = sorted({end for pairs in damped.values() for pair in pairs for end in pair if 0 < end < math.inf})
+    if not ends:
+        return []
+    poles = closed_loop_poles(loop, np.asarray(ends))[0]
+    return [(gain, poles[k]) for k, gain in enumerate(ends)]
+
+
+def _end(value: float) -> float | None:
+    return float(value) if math.isfinite(value) else None
+
+
+def damping_gain_intervals(loop: Loop, zetas: list[float]) -> dict[float, list[tuple[float, float]]]:
+    """Per damping ratio, the gains ``K > 0`` that put every closed-loop pole
+    in the stable region with at least that damping (exact boundary solver)."""
+    from ..lti.intervals import spec_gain_intervals
+    from ..lti.regions import SpecRegion
+
+    ts = None if loop.ts is None else float(loop.ts[0])
+    delta = None if loop.delta_den is None else (loop.delta_num[0], loop.delta_den[0])
+    found = {}
+    for zeta in zetas:
+        intervals = spec_gain_intervals(loop.num[0], loop.den[0], SpecRegion(min_damping=zeta, ts=ts), delta=delta)
+        found[zeta] = [(float(i.low), float(i.high)) for i in intervals]
+    return found
+
+
 def run(args: argparse.Namespace) -> int:
     """Compute, print and optionally plot; return the exit code."""
     for zeta in args.damping:
@@ -225,18 +268,38 @@ def run(args: argparse.Namespace) -> int:
             raise InputError(f"--damping {zeta:g} is outside [0, 1); expected a damping ratio such as 0.7")
     loop, how = _build_loop(args)
     facts = loop_facts(loop, args.negative)
+    damped = damping_gain_intervals(loop, args.damping) if not args.negative else {}
     if args.json:
         data = facts.to_dict()
         data["discretization"] = how
+        data["sampling"] = (
+            None
+            if loop.hold is None
+            else {
+                "method": loop.hold,
+                "ts": float(loop.ts[0]),
+                "delay_samples": float(loop.delay[0]),
+                "prewarp": None if loop.prewarp is None else float(loop.prewarp),
+            }
+        )
+        data["damping_gain_intervals"] = {
+            f"{zeta:g}": [[_end(lo), _end(hi)] for lo, hi in pairs] for zeta, pairs in damped.items()
+        }
         print_json(data)
     else:
-        print(format_facts(facts, how))
+        print(format_facts(facts, how, damped, damping_asked=bool(args.damping)))
     if args.plot:
         from ..report.locus_plot import plot_locus
 
-        gains, branches = _branches(facts)
-        plot_locus(facts, gains, branches, args.plot, damping_curves=_damping_curves(args.damping, facts))
+        gains, branches, notes = _branches(loop, facts)
+        plot_locus(
+            facts, gains, branches, args.plot,
+            damping_curves=_damping_curves(args.damping, facts),
+            gain_marks=_limit_marks(loop, damped),
+        )
         if not args.json:
+            for note in notes:
+                print(f"plot note: {note}")
             print(f"plot written to {args.plot}")
     return 0
 

@@ -282,12 +282,30 @@ def _difference(c_values: np.ndarray, mirror: np.ndarray) -> np.ndarray:
     return np.where(np.isnan(diff), np.inf, diff)
 
 
+def _banner_options(header: Path) -> dict[str, str]:
+    """``key=value`` pairs of the banner's ``options:`` line (empty if none)."""
+    for line in header.read_text(encoding="utf-8").splitlines()[:12]:
+        text = line.lstrip(" */")
+        if text.startswith("options: "):
+            return dict(item.split("=", 1) for item in text[len("options: ") :].split() if "=" in item)
+    return {}
+
+
+def _agree(key: str, given, recorded):
+    """The given value, else the recorded one; refuse a contradiction."""
+    if given is None:
+        return recorded
+    if recorded is not None and given != recorded:
+        raise CodegenError(f"{key} {given!r} contradicts the generated files' banner ({key}={recorded})")
+    return given
+
+
 def check_generated_c(
     files: Iterable[str | os.PathLike],
     table: GainTable,
     *,
-    number_format: str,
-    prefix: str,
+    number_format: str | None = None,
+    prefix: str | None = None,
     error_full_scale: float | None = None,
     output_full_scale: float | None = None,
     points: int = 1200,
@@ -303,10 +321,11 @@ def check_generated_c(
         The generated ``<prefix>.h`` and ``<prefix>.c``.
     table : GainTable
         The table the files were generated from.
-    number_format, prefix : str
-        As given to the emitter.
+    number_format, prefix : str, optional
+        As given to the emitter; default: read from the header's banner.
     error_full_scale, output_full_scale : float, optional
-        As given to the emitter (fixed point).
+        As given to the emitter (fixed point); default: read from the
+        header's banner.  A value that contradicts the banner is refused.
     points : int
         Gain lookups to compare (at least 1000).
     steps : int
@@ -328,9 +347,23 @@ def check_generated_c(
     headers = [f for f in files if f.suffix == ".h"]
     if not sources or not headers:
         raise CodegenError(f"expected a generated .h and .c; got {[str(f) for f in files]}")
+    recorded = _banner_options(headers[0])
+    number_format = _agree("format", number_format, recorded.get("format"))
+    prefix = _agree("prefix", prefix, recorded.get("prefix"))
+    for key, value in (("error_full_scale", error_full_scale), ("output_full_scale", output_full_scale)):
+        banner_value = float(recorded[key]) if key in recorded else None
+        agreed = _agree(key, value, banner_value)
+        if key == "error_full_scale":
+            error_full_scale = agreed
+        else:
+            output_full_scale = agreed
+    if number_format is None or prefix is None:
+        raise CodegenError(f"{headers[0]}: no gainloom banner; pass number_format and prefix")
     command = compiler or find_compiler()
     if command is None:
-        return HarnessResult("no-compiler", "no C compiler found ($CC, cc, gcc, clang): the generated C was NOT checked")
+        return HarnessResult(
+            "no-compiler", "no C compiler found ($CC, cc, gcc, clang): the generated C was NOT checked"
+        )
     version, sanitizers = _compiler_facts(tuple(command))
     layout = layout_table(
         table, number_format, error_full_scale=error_full_scale, output_full_scale=output_full_scale

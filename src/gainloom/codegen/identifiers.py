@@ -84,11 +84,12 @@ def validate_prefix(prefix: str) -> str:
             f"prefix {prefix!r} is not a C identifier: expected a letter followed by letters, digits or underscores"
         )
     _common_checks("prefix", prefix, MAX_PREFIX_LENGTH)
-    if prefix.lower() in C_KEYWORDS or prefix in C_KEYWORDS:
+    if prefix in C_KEYWORDS:
         raise CodegenError(f"prefix {prefix!r} is a C keyword; choose another name")
     if _LIBRARY_RESERVED.match(prefix):
         raise CodegenError(
-            f"prefix {prefix!r} starts a name the C standard library reserves (is*, to*, str*, mem*, wcs*, E*, int*_t); "
+            f"prefix {prefix!r} starts a name the C standard library reserves "
+            "(is*, to*, str*, mem*, wcs*, E*, int*_t); "
             "choose another name"
         )
     return prefix

@@ -1,10 +1,15 @@
 """Python mirror of the generated C: gain lookup and controller step.
 
 Same operations in the same order as the templates in
-``codegen_templates/``: integer arithmetic from :mod:`.qformat` for Q15/Q31
-(bit-identical to the C) and float32 arithmetic (numpy ``float32``, each
-operation rounded to single precision as C does with ``FLT_EVAL_METHOD == 0``)
-for the float32 variant.
+``codegen_templates/``.  Q15/Q31: the lookup uses the numpy ``int64``
+helpers of :mod:`.qformat` (vectorised over points); the step loop uses
+Python integers with the same rounding and saturation, inlined for speed.
+Both are bit-identical to the C because no intermediate of the C reaches
+``2**63`` (products of a coefficient and a 32-bit signal stay below
+``2**62``, sums of three 32-bit values below ``2**34``, interpolation
+products below ``2**62``), so 64-bit and unbounded integers agree.
+float32: numpy ``float32`` arithmetic, each operation rounded to single
+precision as C does with ``FLT_EVAL_METHOD == 0``.
 
 Lookup rules (both variants)
 ----------------------------
@@ -29,7 +34,7 @@ import numpy as np
 
 from ..errors import CodegenError
 from .layout import AxisLayout, TableLayout
-from .qformat import STATE_FRAC, lerp_fixed, mul_frac, rshift_round, saturate
+from .qformat import STATE_FRAC, lerp_fixed, rshift_round, saturate
 
 __all__ = ["state_fields", "locate", "lookup_gains", "StepTrace", "run_steps", "output_code"]
 
@@ -203,39 +208,48 @@ def _run_fixed(layout: TableLayout, gains: dict[str, np.ndarray], errors: np.nda
     history = {name: [] for name in fields}
     to_state_shift = fmt.signal_frac - STATE_FRAC  # 3 for Q31, -13 for Q15
 
+    low32, high32 = -(2**31), 2**31 - 1
+
+    def sat32(value):
+        return low32 if value < low32 else high32 if value > high32 else value
+
     def mul(name, k, signal):
-        return mul_frac(g[name][k], signal, frac[name], 32)
+        # qformat.mul_frac inlined on Python ints (the hot loop of the harness)
+        product = g[name][k] * signal
+        shift = frac[name]
+        if shift:
+            half = 1 << (shift - 1)
+            product = (product + half) >> shift if product >= 0 else -((half - product) >> shift)
+        return sat32(product)
 
     for k, error in enumerate(int(e) for e in errors):
         es = error * (1 << -to_state_shift) if to_state_shift < 0 else rshift_round(error, to_state_shift)
         if structure in ("lead", "lag"):
-            w = saturate(es - mul("zc", k, state["e1"]), 32)
-            state["v"] = saturate(mul("pc", k, state["v"]) + mul("kc", k, w), 32)
+            w = sat32(es - mul("zc", k, state["e1"]))
+            state["v"] = sat32(mul("pc", k, state["v"]) + mul("kc", k, w))
             u = state["v"]
         elif structure == "leadlag":
-            w1 = saturate(es - mul("zc1", k, state["e1"]), 32)
-            v1 = saturate(mul("pc1", k, state["v1"]) + mul("kc", k, w1), 32)
-            w2 = saturate(v1 - mul("zc2", k, state["v1"]), 32)
-            state["v2"] = saturate(mul("pc2", k, state["v2"]) + w2, 32)
+            w1 = sat32(es - mul("zc1", k, state["e1"]))
+            v1 = sat32(mul("pc1", k, state["v1"]) + mul("kc", k, w1))
+            w2 = sat32(v1 - mul("zc2", k, state["v1"]))
+            state["v2"] = sat32(mul("pc2", k, state["v2"]) + w2)
             state["v1"] = v1
             u = state["v2"]
         else:
             proportional = mul("kp", k, es)
             derivative = 0
             if "d" in fields:
-                derivative = saturate(
-                    mul("kd_a", k, state["d"]) + mul("kd_b", k, saturate(es - state["e1"], 32)), 32
-                )
+                derivative = sat32(mul("kd_a", k, state["d"]) + mul("kd_b", k, sat32(es - state["e1"])))
                 state["d"] = derivative
             if "x" in fields:
                 increment = mul("ki_ts", k, es)
-                candidate = saturate(state["x"] + increment, 32)
-                trial = saturate(proportional + candidate + derivative, 32)
+                candidate = sat32(state["x"] + increment)
+                trial = sat32(proportional + candidate + derivative)
                 if not ((trial > u_max and increment > 0) or (trial < u_min and increment < 0)):
                     state["x"] = candidate
-                u = saturate(proportional + state["x"] + derivative, 32)
+                u = sat32(proportional + state["x"] + derivative)
             else:
-                u = saturate(proportional + derivative, 32)
+                u = sat32(proportional + derivative)
         state["e1"] = es
         outputs.append(output_code(layout, min(max(u, u_min), u_max)))
         for name in fields:

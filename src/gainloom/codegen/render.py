@@ -10,6 +10,7 @@ time or machine: the same inputs give byte-identical files.
 
 from __future__ import annotations
 
+import functools
 import importlib.resources
 import math
 import re
@@ -64,6 +65,7 @@ def _fail(message: str) -> None:
     raise CodegenError(f"template check failed: {message}")
 
 
+@functools.lru_cache(maxsize=1)
 def _environment() -> jinja2.Environment:
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(templates_dir())),
@@ -258,7 +260,9 @@ def _context(layout: TableLayout, prefix: str, source_sha256: str, options: dict
     }
 
 
-def render_c(layout: TableLayout, prefix: str, source_sha256: str | None, options: dict | None = None) -> dict[str, str]:
+def render_c(
+    layout: TableLayout, prefix: str, source_sha256: str | None, options: dict | None = None
+) -> dict[str, str]:
     """Render ``<prefix>.h`` and ``<prefix>.c`` for a laid-out table.
 
     Parameters

@@ -133,6 +133,26 @@ def _step_retry(plant, structure, shapes, choice: Choice, coefficients, limits, 
     return notes
 
 
+def _merge_choice(first: Choice, second: Choice, rows: np.ndarray) -> Choice:
+    """``first`` with the entries at ``rows`` taken from ``second``."""
+    shape, gain, feasible = first.shape.copy(), first.gain.copy(), first.feasible.copy()
+    intervals, notes = list(first.intervals), [list(n) for n in first.notes]
+    for r in rows:
+        shape[r], gain[r], feasible[r] = second.shape[r], second.gain[r], second.feasible[r]
+        intervals[r] = second.intervals[r]
+        notes[r] = list(second.notes[r])
+        if second.feasible[r]:
+            notes[r].append("met the specs only without the design back-off (on the spec boundary)")
+    samples = dict(first.samples)
+    samples["grid"] = first.samples["grid"].copy()
+    samples["metrics"] = {k: v.copy() for k, v in first.samples["metrics"].items()}
+    for r in rows:
+        samples["grid"][r] = second.samples["grid"][r]
+        for k in samples["metrics"]:
+            samples["metrics"][k][r] = second.samples["metrics"][k][r]
+    return Choice(shape=shape, gain=gain, feasible=feasible, intervals=intervals, notes=notes, samples=samples)
+
+
 def design_points(sched, points: np.ndarray, progress: Progress | None = None) -> PointDesign:
     """Design gains at arbitrary operating points of a schedule.
 
@@ -178,7 +198,14 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
             zeros=shapes.zeros[rows], poles=shapes.poles[rows], valid=shapes.valid[rows],
             gain=shapes.gain[rows], params=shapes.params[rows],
         )
-        choices.append(choose_gains(plant.select(rows), sub_shapes, limits.select(rows), objective, target))
+        sub_plant = plant.select(rows)
+        first = choose_gains(sub_plant, sub_shapes, limits.select(rows).tightened(), objective, target)
+        retry = np.flatnonzero(~first.feasible)
+        if retry.size:
+            # no design inside the tightened specs: search the specs as written
+            second = choose_gains(sub_plant, sub_shapes, limits.select(rows), objective, target)
+            first = _merge_choice(first, second, retry)
+        choices.append(first)
         if progress is not None:
             progress("design", int(rows[-1]) + 1, P)
     choice = Choice(

@@ -41,11 +41,13 @@ from .structures import _roots_poly, _z_to_delta, polymul
 __all__ = ["Shapes", "Choice", "shape_loops", "choose_gains", "objective_values", "OBJECTIVE_TEXT"]
 
 #: Coarse gain samples per shape (ranking only).
-COARSE_SAMPLES = 40
+COARSE_SAMPLES = 44
 #: Decades spanned by the coarse grid around the loop's coefficient scale.
-COARSE_DECADES = (-5.0, 3.0)
+COARSE_DECADES = (-7.0, 3.0)
 #: Exact-interval evaluations per point (best shapes by the coarse ranking).
 EXACT_SHAPES = 2
+#: Rounds of exact evaluation over the ranked shapes (``EXACT_SHAPES`` each).
+MAX_ROUNDS = 4
 #: Samples inside the exact feasible set per shape.
 FINE_SAMPLES = 48
 #: Golden-section iterations of the final refinement.
@@ -329,25 +331,60 @@ def choose_gains(
     # damping they reach, so an infeasible point still gets a best attempt
     order = np.argsort(-best_per_shape, axis=1, kind="stable")
     take = min(exact_shapes, S)
-    chosen_shapes = order[:, :take]
     samples = {
         "grid": grid.reshape(P, S, -1),
         "metrics": {k: v.reshape(P, S, -1) for k, v in metrics.items()},
         "valid": shapes.valid,
     }
 
-    # 2. exact intervals for the best shapes
-    sel_rows = (np.arange(P)[:, None] * S + chosen_shapes).ravel()
-    sel_points = rows_p[sel_rows]
-    sub = loops.select(sel_rows)
-    feasible_sets = exact_feasible(sub, limits, sel_points)
-    valid_sel = flat(shapes.valid)[sel_rows]
-    feasible_sets = [f if v else [] for f, v in zip(feasible_sets, valid_sel)]
+    result_gain = np.full(P, np.nan)
+    result_shape = order[:, 0].copy()
+    result_feasible = np.zeros(P, dtype=bool)
+    result_sets: list = [[] for _ in range(P)]
+    notes: list[list[str]] = [[] for _ in range(P)]
+    pending = np.arange(P)
+    rounds = 0
+    # rounds over the ranked shapes: the best ``take`` first, the next ones
+    # only for points where margins or the exact set ruled those out
+    while pending.size and rounds * take < S and rounds < MAX_ROUNDS:
+        cols = order[pending, rounds * take : (rounds + 1) * take]
+        gain, shape_col, feasible, sets, round_notes = _resolve(
+            loops, shapes, limits, objective, target, pending, cols, S
+        )
+        for j, p in enumerate(pending):
+            if feasible[j] or rounds == 0:
+                result_gain[p] = gain[j]
+                result_shape[p] = shape_col[j]
+                result_feasible[p] = feasible[j]
+                result_sets[p] = sets[j]
+                notes[p] = list(round_notes[j])
+            if feasible[j] and rounds > 0:
+                notes[p].append(f"the {take * rounds} best-ranked shape(s) missed the margins; used shape rank {rounds * take + 1}+")
+        pending = pending[~feasible]
+        rounds += 1
+    return Choice(
+        shape=result_shape,
+        gain=np.where(result_feasible, result_gain, np.nan),
+        feasible=result_feasible,
+        intervals=result_sets,
+        notes=notes,
+        samples=samples,
+    )
 
-    # 3. samples inside the exact set, objective, golden refinement
+
+def _resolve(loops, shapes, limits, objective, target, points, cols, S):
+    """Exact intervals, fine samples, refinement and margin checks for shape columns ``cols`` of ``points``."""
+    n, take = cols.shape
+    sel_rows = (points[:, None] * S + cols).ravel()
+    sel_points = np.repeat(points, take)
+    sub = loops.select(sel_rows)
+    flat_valid = shapes.valid.reshape(-1)
+    feasible_sets = exact_feasible(sub, limits, sel_points)
+    feasible_sets = [f if flat_valid[r] else [] for f, r in zip(feasible_sets, sel_rows)]
+
     fine = np.stack([_samples_in(f, FINE_SAMPLES) for f in feasible_sets])
-    asked = flat(shapes.gain)[sel_rows]
-    fine = np.concatenate([fine, asked[:, None]], axis=1)  # strategy's own gain, if any
+    asked = shapes.gain.reshape(-1)[sel_rows]
+    fine = np.concatenate([fine, asked[:, None]], axis=1)  # the strategy's own gain, if any
     in_set = np.array([[any(lo < g < hi for lo, hi in f) for g in row] for f, row in zip(feasible_sets, fine)])
     fine = np.where(in_set, fine, np.nan)
     fine_poles = _poles_at(sub, fine)
@@ -360,10 +397,10 @@ def choose_gains(
     # the strategy's own gain wins when it is feasible (dominant-pair)
     best_idx = np.where(has_asked, fine.shape[1] - 1, np.argmax(score_f, axis=1))
     best_score = score_f[np.arange(R), best_idx]
-    by_point = best_score.reshape(P, take)
+    by_point = best_score.reshape(n, take)
     pick = np.argmax(by_point, axis=1)
-    row_pick = np.arange(P) * take + pick
-    feasible = np.isfinite(by_point[np.arange(P), pick])
+    row_pick = np.arange(n) * take + pick
+    feasible = np.isfinite(by_point[np.arange(n), pick])
     gain = fine[row_pick, best_idx[row_pick]]
     refine = feasible & ~has_asked[row_pick]
     if np.any(refine):
@@ -372,51 +409,43 @@ def choose_gains(
                                [feasible_sets[r] for r in row_pick[refine]], limits, sel_points[row_pick[refine]],
                                objective, target, gain[refine])
 
-    # 4. margins other than GM at the choice; fall back on samples
+    # margins other than GM at the choice; fall back on the samples
     need = ~(np.isnan(limits.min_phase_margin) & np.isnan(limits.min_delay_margin) & np.isnan(limits.max_sensitivity_peak))
-    notes: list[list[str]] = [[] for _ in range(P)]
-    check = np.flatnonzero(feasible & need)
+    notes: list[list[str]] = [[] for _ in range(n)]
+    check = np.flatnonzero(feasible & need[points])
     if check.size:
         margins = loop_margins(sub.select(row_pick[check]), gain[check])
-        good = _margins_ok(margins, limits, check)
+        good = _margins_ok(margins, limits, points[check])
         bad = check[~good]
         if bad.size:
-            # every fine sample of every exact shape of those points
             rows_b = (bad[:, None] * take + np.arange(take)[None, :]).ravel()
             gains_b = fine[rows_b]
             flat_rows = np.repeat(rows_b, gains_b.shape[1])
             flat_gain = gains_b.ravel()
             usable = np.isfinite(flat_gain) & ok_f[rows_b].ravel()
-            pts_b = sel_points[flat_rows]
-            fallback_gain = np.full(bad.size, np.nan)
-            fallback_row = np.full(bad.size, -1)
+            owner = np.repeat(np.repeat(bad, take), gains_b.shape[1])
+            chosen_row = np.full(bad.size, -1)
+            chosen_gain = np.full(bad.size, np.nan)
             if np.any(usable):
                 m = loop_margins(sub.select(flat_rows[usable]), flat_gain[usable])
-                good_b = _margins_ok(m, limits, pts_b[usable])
+                good_b = _margins_ok(m, limits, sel_points[flat_rows[usable]])
                 scores = score_f[rows_b].ravel()[usable]
-                for j, p in enumerate(bad):
-                    mask = (pts_b[usable] == p) & good_b
+                for j, q in enumerate(bad):
+                    mask = (owner[usable] == q) & good_b
                     if np.any(mask):
                         k = np.flatnonzero(mask)[np.argmax(scores[mask])]
-                        fallback_gain[j] = flat_gain[usable][k]
-                        fallback_row[j] = flat_rows[usable][k]
-            for j, p in enumerate(bad):
-                if fallback_row[j] >= 0:
-                    gain[p] = fallback_gain[j]
-                    pick[p] = fallback_row[j] - p * take
-                    notes[p].append("margins (PM/delay/Ms) ruled out the objective's best gain; took the best sample meeting them")
+                        chosen_row[j] = flat_rows[usable][k]
+                        chosen_gain[j] = flat_gain[usable][k]
+            for j, q in enumerate(bad):
+                if chosen_row[j] >= 0:
+                    gain[q] = chosen_gain[j]
+                    pick[q] = chosen_row[j] - q * take
+                    notes[q].append("margins (PM/delay/Ms) ruled out the objective's best gain; took the best sample meeting them")
                 else:
-                    feasible[p] = False
-    shape_index = np.where(feasible | np.isfinite(gain), chosen_shapes[np.arange(P), pick], chosen_shapes[:, 0])
-    row_final = np.arange(P) * take + pick
-    return Choice(
-        shape=shape_index,
-        gain=np.where(feasible, gain, np.nan),
-        feasible=feasible,
-        intervals=[feasible_sets[r] for r in row_final],
-        notes=notes,
-        samples=samples | {"exact_sets": [feasible_sets[r] for r in row_final]},
-    )
+                    feasible[q] = False
+    row_final = np.arange(n) * take + pick
+    shape_col = cols[np.arange(n), pick]
+    return gain, shape_col, feasible, [feasible_sets[r] for r in row_final], notes
 
 
 def _margins_ok(margins, limits: SpecLimits, points: np.ndarray) -> np.ndarray:

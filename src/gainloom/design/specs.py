@@ -44,6 +44,14 @@ SETTLING_CONSTANT = 4.0
 #: the closed-loop bandwidth).
 SAMPLING_FRACTION = 0.1
 
+#: Design back-off: how far inside each bound the scheduler aims (damping
+#: +0.01, relative bounds 2 %, gain margin +0.5 dB, phase margin +0.5 deg).
+#: Our choice (no source): enough to survive interpolation between
+#: refined points and float32 rounding, small against engineering margins.
+#: Points that meet the specs only on the boundary are designed there and
+#: say so in their notes.
+BACKOFF = {"damping": 0.01, "relative": 0.02, "gain_margin_db": 0.5, "phase_margin_deg": 0.5}
+
 #: Every spec a point is judged on, in report order.
 SPEC_ORDER: tuple[str, ...] = (
     "stable",
@@ -170,6 +178,31 @@ class SpecLimits:
     def select(self, index: np.ndarray) -> "SpecLimits":
         """Limits at a subset (or repetition) of the points."""
         return SpecLimits(**{f.name: getattr(self, f.name)[index] for f in fields(self)})
+
+    def tightened(self) -> "SpecLimits":
+        """The limits moved inside by the design back-off (see ``BACKOFF``).
+
+        The scheduler picks gains against these so that a design is not left
+        exactly on a spec boundary, where the firmware's interpolation
+        between points and rounding would tip it over; the verdicts always
+        use the limits as written.
+        """
+        b = BACKOFF
+        return SpecLimits(
+            min_damping=np.minimum(self.min_damping + b["damping"], 0.999),
+            min_decay=self.min_decay * (1 + b["relative"]),
+            min_natural_frequency=self.min_natural_frequency * (1 + b["relative"]),
+            max_natural_frequency=self.max_natural_frequency / (1 + b["relative"]),
+            max_pole_radius=self.max_pole_radius - b["relative"] * (1 - self.max_pole_radius),
+            min_gain_margin=self.min_gain_margin + b["gain_margin_db"],
+            min_phase_margin=self.min_phase_margin + b["phase_margin_deg"],
+            min_delay_margin=self.min_delay_margin * (1 + b["relative"]),
+            max_sensitivity_peak=self.max_sensitivity_peak / (1 + b["relative"]),
+            max_gain=self.max_gain,
+            system_type=self.system_type,
+            max_overshoot=self.max_overshoot,
+            max_settling_time=self.max_settling_time,
+        )
 
     def radius_bound(self, ts: np.ndarray) -> np.ndarray:
         """Pole-radius bound in z: the stricter of ``max_pole_radius`` and ``exp(-sigma ts)``."""

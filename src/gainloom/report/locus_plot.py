@@ -80,16 +80,16 @@ def _crowded_view(facts: LocusFacts) -> tuple[float, float, float, float] | None
     """A magnified view near z = 1 when the poles there crowd together.
 
     Returns None unless the poles, zeros, breakaways and crossings within
-    0.3 of ``z = 1`` span less than 0.3 (under 15 % of the unit circle's
+    0.45 of ``z = 1`` span less than 0.6 (under 30 % of the unit circle's
     width), which is where a full-circle view hides the locus.
     """
     points = [r.value for r in facts.poles + facts.zeros]
     points += [b.point for b in facts.breakaways] + [c.point for c in facts.crossings]
-    near = np.array([p for p in points if abs(p - 1.0) < 0.3], dtype=complex)
+    near = np.array([p for p in points if abs(p - 1.0) < 0.45], dtype=complex)
     if near.size < 2:
         return None
     half_width = 0.5 * max(near.real.max() - near.real.min(), 2 * np.abs(near.imag).max())
-    if not 0 < half_width < 0.15:
+    if not 0 < half_width < 0.3:
         return None
     half = 1.4 * half_width
     middle = 0.5 * (near.real.max() + near.real.min())
@@ -112,7 +112,8 @@ def _poly_text(coeffs: tuple[float, ...], var: str) -> str:
 
 def _loop_caption(facts: LocusFacts) -> str:
     var = "s" if facts.ts is None else "z"
-    text = f"L = K ({_poly_text(facts.num, var)}) / ({_poly_text(facts.den, var)})"
+    top = "K" if facts.num == (1.0,) else f"K ({_poly_text(facts.num, var)})"
+    text = f"L = {top} / ({_poly_text(facts.den, var)})"
     if len(text) > 150:
         text = text[:147] + "..."
     if facts.ts is not None:
@@ -129,6 +130,7 @@ def _draw(
     facts: LocusFacts,
     branches: np.ndarray,
     damping_curves: Sequence[tuple[str, np.ndarray]],
+    gain_marks: Sequence[tuple[float, np.ndarray]],
     view: tuple[float, float, float, float],
     quiet: tuple[float, float, float, float] | None = None,
 ) -> None:
@@ -213,6 +215,18 @@ def _draw(
             ax.annotate(_fmt_gain(brk.gain), (brk.point.real, brk.point.imag), fontsize=8, color="#7a4f00",
                         xytext=(5, 7), textcoords="offset points", zorder=7)
 
+    for gain, points in gain_marks:
+        points = np.asarray(points, dtype=complex)
+        points = points[[in_view(p) for p in points]] if points.size else points
+        if not points.size:
+            continue
+        ax.plot(points.real, points.imag, marker="o", ms=5.5, color=_DAMPING, mec="white", mew=0.8,
+                ls="none", zorder=6)
+        top = points[np.argmax(points.imag)]
+        if labelled(top):
+            ax.annotate(_fmt_gain(gain), (top.real, top.imag), fontsize=7.5, color=_DAMPING,
+                        xytext=(-8, 6), textcoords="offset points", ha="right", zorder=7)
+
     for crossing in facts.crossings:
         if not in_view(crossing.point):
             continue
@@ -232,6 +246,7 @@ def plot_locus(
     branches: np.ndarray,
     path: str | Path,
     damping_curves: Sequence[tuple[str, np.ndarray]] = (),
+    gain_marks: Sequence[tuple[float, np.ndarray]] = (),
     title: str | None = None,
 ) -> Path:
     """Draw the locus and its facts into a PNG file.
@@ -250,6 +265,9 @@ def plot_locus(
     damping_curves : sequence of (label, ndarray of complex)
         Contours of constant damping ratio to draw, e.g. from
         ``SpecRegion.boundary_curves()``; NaN entries break a curve.
+    gain_marks : sequence of (gain, ndarray of complex)
+        Closed-loop poles to mark at a gain of interest (e.g. where the
+        locus meets a damping contour), labelled with the gain.
     title : str, optional
         Figure title; a default names the plane and gain sign.
 
@@ -266,12 +284,12 @@ def plot_locus(
     view = _view(facts, branches)
     discrete = facts.ts is not None
     zoom = _crowded_view(facts) if discrete else None
-    _draw(ax, facts, branches, damping_curves, view, quiet=zoom)
+    _draw(ax, facts, branches, damping_curves, gain_marks, view, quiet=zoom)
     if zoom is not None:
         # Fast sampling crowds the poles near z = 1: a magnified inset shows
         # the same layers there (labels only in the inset).
         inset = ax.inset_axes((0.60, 0.60, 0.38, 0.38))
-        _draw(inset, facts, branches, damping_curves, zoom)
+        _draw(inset, facts, branches, damping_curves, gain_marks, zoom)
         inset.set_xticks([])
         inset.set_yticks([])
         inset.text(0.03, 0.03, "near z = 1, magnified", transform=inset.transAxes, fontsize=7, color="#333333",
@@ -301,6 +319,9 @@ def plot_locus(
         handles.append(Line2D([], [], color=_ASYMPTOTE, lw=0.9, ls=(0, (7, 4)), label="asymptotes from centroid"))
     if damping_curves:
         handles.append(Line2D([], [], color=_DAMPING, lw=1.0, ls=(0, (1, 2)), label="constant damping ratio"))
+    if gain_marks:
+        handles.append(Line2D([], [], marker="o", ms=5.5, color=_DAMPING, mec="white", ls="none",
+                              label="poles at the damping-limit gain K"))
     handles.append(Line2D([], [], color=_STABLE_FILL, lw=6, label="stable region"))
     figure.legend(handles=handles, loc="lower center", ncol=3, fontsize=8, frameon=False,
                   bbox_to_anchor=(0.5, 0.035))

@@ -11,8 +11,8 @@ poles), so a jump of the gain makes the output jump at once; a form with the
 gain in ``B`` would make it change only through the dynamics.  The true
 answer depends on the physics (which quantities are states of the machine);
 a transfer-function schedule does not say.  gainloom uses the controllable
-canonical form (the same convention as ``scipy.signal.tf2ss``) for every
-point and states so in the log.
+canonical form of :func:`gainloom.lti.convert.tf_to_ss` (the convention of
+``scipy.signal.tf2ss``) for every point and states so in the log.
 
 Delays
 ------
@@ -39,61 +39,21 @@ from dataclasses import dataclass
 
 import numpy as np
 from ..errors import InputError
-from ..lti.polynomials import pad_left
+from ..lti.convert import tf_to_ss
+from ..lti.discretize import total_delay
+from ..lti.expm import batched_expm
+from ..lti.loop import Loop
 
-__all__ = ["controllable_canonical", "SampledPlant", "sample_plant", "split_delay", "batched_expm"]
-
-# Delays within this many samples of an integer are taken as that integer, so
-# that 1 sample of computation delay stays exactly 1 sample after the
-# division L / T in floating point.
-_DELAY_SNAP = 1e-9
-
-
-def controllable_canonical(num: np.ndarray, den: np.ndarray):
-    """Batched controllable canonical realisation of ``num/den``.
-
-    Parameters
-    ----------
-    num : ndarray, shape (P, m + 1)
-        Numerators, descending powers of ``s``, ``m <= n``.
-    den : ndarray, shape (P, n + 1)
-        Denominators, descending powers, non-zero leading coefficient.
-
-    Returns
-    -------
-    A : ndarray, shape (P, n, n)
-    B : ndarray, shape (P, n)
-    C : ndarray, shape (P, n)
-    D : ndarray, shape (P,)
-        ``A`` has ``-den[1:]/den[0]`` in its first row and ones on the
-        subdiagonal, ``B = e_1``, as ``scipy.signal.tf2ss`` builds it.
-    """
-    den = np.asarray(den, dtype=float)
-    num = pad_left(np.asarray(num, dtype=float), den.shape[-1])
-    points, width = den.shape
-    order = width - 1
-    lead = den[:, :1]
-    a = den / lead
-    b = num / lead
-    d = b[:, 0]
-    A = np.zeros((points, order, order))
-    if order:
-        A[:, 0, :] = -a[:, 1:]
-        A[:, np.arange(1, order), np.arange(order - 1)] = 1.0
-    B = np.zeros((points, order))
-    if order:
-        B[:, 0] = 1.0
-    C = b[:, 1:] - d[:, np.newaxis] * a[:, 1:]
-    return A, B, C, d
-
+__all__ = ["SampledPlant", "sample_plant", "split_delay"]
 
 def split_delay(total: np.ndarray, period: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Split a delay in seconds into whole samples and a remainder.
+    """Split a delay in samples into whole samples and a remainder in seconds.
 
     Parameters
     ----------
     total : ndarray, shape (K,)
-        Delay in seconds (``>= 0``).
+        Total loop delay in samples (``>= 0``), already snapped to whole
+        numbers where within rounding of one (``lti.discretize.total_delay``).
     period : ndarray, shape (K,)
         Sample period in seconds.
 
@@ -104,15 +64,11 @@ def split_delay(total: np.ndarray, period: np.ndarray) -> tuple[np.ndarray, np.n
     fraction : ndarray, shape (K,)
         ``theta``, the remainder in seconds, ``0 <= theta < period``.
     """
-    ratio = np.asarray(total, dtype=float) / np.asarray(period, dtype=float)
-    if np.any(ratio < -_DELAY_SNAP) or not np.all(np.isfinite(ratio)):
-        raise InputError(f"delays must be finite and >= 0; got {np.min(ratio)} samples")
-    ratio = np.maximum(ratio, 0.0)
-    nearest = np.rint(ratio)
-    snapped = np.where(np.abs(ratio - nearest) < _DELAY_SNAP, nearest, ratio)
-    whole = np.floor(snapped)
-    fraction = (snapped - whole) * period
-    return whole.astype(int), fraction
+    total = np.asarray(total, dtype=float)
+    if not np.all(np.isfinite(total)) or np.any(total < 0):
+        raise InputError(f"loop delays must be finite and >= 0 samples; got minimum {np.min(total)}")
+    whole = np.floor(total)
+    return whole.astype(int), (total - whole) * np.asarray(period, dtype=float)
 
 
 @dataclass(frozen=True, eq=False)
@@ -138,50 +94,10 @@ class SampledPlant:
         return self.phi.shape[-1]
 
 
-_TAYLOR_DEGREE = 14
-_TAYLOR_NORM = 0.25
-
-
-def batched_expm(matrices: np.ndarray) -> np.ndarray:
-    """Matrix exponential of a stack of small matrices.
-
-    Scaling and squaring with a truncated Taylor series: each matrix is
-    scaled by ``2**-s`` until its 1-norm is at most 0.25, the series is
-    summed to degree 14 (truncation below ``0.25**15 / 15!``, about 1e-21
-    relative), and the result squared ``s`` times.  All steps are stacked
-    ``numpy.matmul`` calls.  ``scipy.linalg.expm`` works one slice at a time
-    and, for the tens of thousands of 3x3 to 5x5 blocks of a long run, its
-    per-call cost dominates; its results are the test reference.
-
-    Parameters
-    ----------
-    matrices : ndarray, shape (K, n, n)
-
-    Returns
-    -------
-    ndarray, shape (K, n, n)
-    """
-    matrices = np.asarray(matrices, dtype=float)
-    count, size = matrices.shape[0], matrices.shape[-1]
-    norms = np.max(np.sum(np.abs(matrices), axis=-2), axis=-1) if size else np.zeros(count)
-    if not np.all(np.isfinite(norms)):
-        raise InputError("the plant matrices along the path are not finite")
-    with np.errstate(divide="ignore"):
-        squarings = np.maximum(0, np.ceil(np.log2(norms / _TAYLOR_NORM))).astype(int)
-    scaled = matrices * np.ldexp(1.0, -squarings)[:, np.newaxis, np.newaxis]
-    identity = np.broadcast_to(np.eye(size), matrices.shape)
-    result = identity + scaled / _TAYLOR_DEGREE
-    for degree in range(_TAYLOR_DEGREE - 1, 0, -1):
-        result = identity + (scaled @ result) / degree
-    for round_ in range(int(squarings.max(initial=0))):
-        more = squarings > round_
-        result[more] = result[more] @ result[more]
-    return result
-
-
 def _zoh_blocks(A: np.ndarray, B: np.ndarray, steps: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``Phi(h)`` and ``Gamma(h)`` for a batch, from the exponential of the
-    augmented matrix ``[[A, B], [0, 0]] h`` (Van Loan's block form)."""
+    augmented matrix ``[[A, B], [0, 0]] h`` (Van Loan's block form), all
+    samples in one stacked call of :func:`gainloom.lti.expm.batched_expm`."""
     points, order = B.shape
     augmented = np.zeros((points, order + 1, order + 1))
     augmented[:, :order, :order] = A * steps[:, np.newaxis, np.newaxis]
@@ -190,24 +106,16 @@ def _zoh_blocks(A: np.ndarray, B: np.ndarray, steps: np.ndarray) -> tuple[np.nda
     return block[:, :order, :order], block[:, :order, order]
 
 
-def sample_plant(
-    num: np.ndarray,
-    den: np.ndarray,
-    period: np.ndarray,
-    dead_time: np.ndarray,
-    computation_delay: np.ndarray,
-) -> SampledPlant:
+def sample_plant(plant: Loop, period: np.ndarray, computation_delay: np.ndarray) -> SampledPlant:
     """Exact zero-order-hold update of the plant at every sample of a run.
 
     Parameters
     ----------
-    num, den : ndarray, shape (K, n + 1)
-        Continuous plant at the operating point of each sample (descending
-        powers of ``s``).
+    plant : Loop
+        Continuous plant at the operating point of each sample (K points),
+        with its dead time (s).
     period : ndarray, shape (K,)
         Sample period at each sample, s.
-    dead_time : ndarray, shape (K,)
-        Plant dead time at each sample, s.
     computation_delay : ndarray, shape (K,)
         Computation delay at each sample, samples (may be fractional).
 
@@ -216,9 +124,8 @@ def sample_plant(
     SampledPlant
     """
     period = np.asarray(period, dtype=float)
-    A, B, C, D = controllable_canonical(num, den)
-    total = np.asarray(dead_time, dtype=float) + np.asarray(computation_delay, dtype=float) * period
-    whole, theta = split_delay(total, period)
+    A, B, C, D = tf_to_ss(plant.num, plant.den)
+    whole, theta = split_delay(total_delay(plant, period, computation_delay), period)
     count = period.size
     if A.shape[-1] == 0:
         empty = np.zeros((count, 0))

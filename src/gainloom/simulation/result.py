@@ -28,7 +28,7 @@ def _plain(value):
     return value
 
 #: The plant realisation the simulator carries the state in (see plant.py).
-REALISATION = "controllable canonical (scipy.signal.tf2ss convention), one realisation for every point"
+REALISATION = "controllable canonical (lti.convert.tf_to_ss, the scipy.signal.tf2ss convention), one realisation for every point"
 
 
 @dataclass(frozen=True)
@@ -160,7 +160,12 @@ class SimulationResult:
                 f"(band {self.scenario['settle_band'] * 100:g} %)"
             )
         for load in m.load_responses:
-            recovery = num(load.recovery_time, " s") if load.recovery_time is not None else "not recovered"
+            if load.recovery_time is None:
+                recovery = "not recovered"
+            elif load.recovery_time == 0.0:
+                recovery = "stayed within the settling band"
+            else:
+                recovery = num(load.recovery_time, " s")
             lines.append(
                 f"load step of {load.amplitude:g} at {load.time:g} s: peak deviation {num(load.peak_deviation)}, "
                 f"recovery {recovery}"

@@ -150,7 +150,7 @@ def run_scenario(
     plant = plant if plant.points == count else plant.select(np.zeros(count, dtype=int))
     period = np.broadcast_to(np.asarray(models.sample_period, dtype=float), (count,))
     delay = np.broadcast_to(np.asarray(models.delay, dtype=float), (count,))
-    sampled = sample_plant(plant.num, plant.den, period, plant.dead_time, delay)
+    sampled = sample_plant(plant, period, delay)
 
     warnings: list[str] = []
     table_points = scenario.points(table_axes, times)
@@ -174,6 +174,12 @@ def run_scenario(
             "(exact at a frozen point, an approximation while it moves)"
         )
 
+    method = getattr(getattr(schedule, "sampling", None), "method", "zoh")
+    if method != "zoh":
+        warnings.append(
+            f"the schedule designs with the {method} hold equivalent; the simulation integrates the plant exactly "
+            "under a zero-order hold (what a PWM or DAC output does)"
+        )
     controller = TableController(table, number_format, table_points, error_full_scale, output_full_scale)
     reference = scenario.reference(times)
     disturbance = scenario.disturbance(times)
@@ -199,6 +205,17 @@ def run_scenario(
         if not np.all(np.abs(x) < _STOP_MAGNITUDE):
             output[k + 1:] = np.inf
             break
+
+    layout = controller.layout
+    if layout is not None and layout.fmt.is_fixed:
+        error = np.abs(reference - output)
+        beyond = np.isfinite(error) & (error > layout.error_full_scale)
+        if np.any(beyond):
+            warnings.append(
+                f"|r - y| reached {np.nanmax(error[np.isfinite(error)]):.4g}, beyond the error full scale "
+                f"{layout.error_full_scale:g}, at {np.count_nonzero(beyond)} of {count} samples: the controller "
+                "saw a saturated error there (raise --error-full-scale if the firmware scales it otherwise)"
+            )
 
     metrics = measure(times, period, reference, output, unsaturated, controller.limits, scenario)
     return SimulationResult(

@@ -1,0 +1,102 @@
+"""Plots of one run: deterministic PNG files (matplotlib, Agg canvas).
+
+Drawing is kept apart from the computation: nothing else in this package
+imports matplotlib.  The figure has a fixed size and resolution, the
+matplotlib default style (no user rc file leaks in) and no software or date
+metadata, so the same result gives byte-identical files.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import InputError
+from .result import SimulationResult
+
+__all__ = ["write_plots", "PLOT_FILE"]
+
+#: File name of the figure written by :func:`write_plots`.
+PLOT_FILE = "simulation.png"
+
+_SIZE_INCHES = (8.0, 10.0)
+_DPI = 100
+
+
+def write_plots(result: SimulationResult, directory: str | Path) -> list[Path]:
+    """Draw the run and write it as one PNG in ``directory``.
+
+    Panels, sharing the time axis: reference and output; controller output
+    with its limits (and the value before saturation); the scheduling
+    variable(s); the interpolated coefficients.
+
+    Parameters
+    ----------
+    result : SimulationResult
+        The run to draw.
+    directory : str or Path
+        Folder to write into (created if missing).
+
+    Returns
+    -------
+    list of Path
+        The files written.
+    """
+    import matplotlib.style
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    folder = Path(directory)
+    if folder.exists() and not folder.is_dir():
+        raise InputError(f"plot folder {str(folder)!r} exists and is not a directory")
+    folder.mkdir(parents=True, exist_ok=True)
+    t = result.time
+    with matplotlib.style.context("default"):
+        figure = Figure(figsize=_SIZE_INCHES, dpi=_DPI)
+        FigureCanvasAgg(figure)
+        axes = figure.subplots(4, 1, sharex=True)
+        tracking, control, schedule, gains = axes
+
+        tracking.plot(t, result.reference, drawstyle="steps-post", label="reference r")
+        tracking.plot(t, result.output, drawstyle="steps-post", label="output y")
+        tracking.set_ylabel("output")
+        tracking.set_title(
+            f"{result.structure} in {result.number_format}: "
+            + ("PASS" if result.passed else "FAIL")
+            + ("" if result.stable else f" (unstable: {result.metrics.instability.kind})")
+        )
+
+        low, high = result.output_limits
+        control.plot(t, result.unsaturated, drawstyle="steps-post", color="0.6", label="before saturation")
+        control.plot(t, result.control, drawstyle="steps-post", label="controller output u")
+        control.axhline(low, color="k", linestyle="--", linewidth=0.8, label="limits")
+        control.axhline(high, color="k", linestyle="--", linewidth=0.8)
+        span = high - low
+        finite = result.unsaturated[np.isfinite(result.unsaturated)]
+        top = min(float(np.max(finite, initial=high)), high + span)
+        bottom = max(float(np.min(finite, initial=low)), low - span)
+        control.set_ylim(min(bottom, low) - 0.05 * span, max(top, high) + 0.05 * span)
+        control.set_ylabel("control")
+
+        schedule.plot(t, result.points[:, 0], label=result.axis_names[0])
+        schedule.set_ylabel(result.axis_names[0])
+        if len(result.axis_names) > 1:
+            # A second variable has its own range: its own scale on the right.
+            second = schedule.twinx()
+            second.plot(t, result.points[:, 1], color="C1", label=result.axis_names[1])
+            second.set_ylabel(result.axis_names[1])
+            second.legend(loc="lower right", fontsize="small")
+
+        for name, values in result.gains.items():
+            gains.plot(t, values, drawstyle="steps-post", label=name)
+        gains.set_ylabel("coefficients")
+        gains.set_xlabel("time (s)")
+
+        for panel in axes:
+            panel.grid(True, linewidth=0.4)
+            panel.legend(loc="upper right", fontsize="small")
+        figure.tight_layout()
+        path = folder / PLOT_FILE
+        figure.savefig(path, format="png", dpi=_DPI, metadata={"Software": None})
+    return [path]
