@@ -45,9 +45,9 @@ COARSE_SAMPLES = 44
 #: Decades spanned by the coarse grid around the loop's coefficient scale.
 COARSE_DECADES = (-7.0, 3.0)
 #: Exact-interval evaluations per point (best shapes by the coarse ranking).
-EXACT_SHAPES = 2
+EXACT_SHAPES = 1
 #: Rounds of exact evaluation over the ranked shapes (``EXACT_SHAPES`` each).
-MAX_ROUNDS = 4
+MAX_ROUNDS = 6
 #: Samples inside the exact feasible set per shape.
 FINE_SAMPLES = 48
 #: Golden-section iterations of the final refinement.
