@@ -69,3 +69,14 @@ def test_continuous_pi_gains_and_the_loss_on_the_sampled_loop(tmp_path):
         assert entry["sampled_design"]["damping"] >= 0.5
         assert entry["damping_lost"] > 0.1
     assert report["worst_damping_lost"] > 0.1
+
+
+def test_sampling_rate_warning(tmp_path):
+    # target wn = 40 rad/s > 0.1 x 2 pi / ts = 31.4 rad/s at ts = 0.02 s
+    # (the 10x rule is common practice, no source)
+    path = tmp_path / "w.yaml"
+    path.write_text(SCHEDULE.format(ts=0.02).replace("  compare_continuous: true\n", ""))
+    result = gainloom.design(path)
+    assert any("target natural_frequency = 40 rad/s exceeds 0.1 x the sampling rate" in w for w in result.warnings)
+    path.write_text(SCHEDULE.format(ts=0.001).replace("  compare_continuous: true\n", ""))
+    assert not any("sampling rate" in w for w in gainloom.design(path).warnings)
