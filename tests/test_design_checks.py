@@ -262,3 +262,15 @@ def test_verify_accepts_a_gain_table_object(tmp_path):
     check = gainloom.verify(path, designed.table)
     assert check.status == designed.status
     np.testing.assert_allclose(check.analysis.damping, designed.analysis.damping, rtol=1e-12)
+
+
+def test_monotone_direction_is_enforced_by_moving_gains(tmp_path):
+    # The plant gain falls along x, so the designed kp rises; asking for kp
+    # decreasing makes the design lower later gains (slower but still damped).
+    text = SMOOTH.replace("  max_relative_step: 0.3\n", "  monotone: {kp: decreasing}\n")
+    result = gainloom.design(_write(tmp_path, text))
+    kp = result.table.coefficients["kp"]
+    assert np.all(np.diff(kp) <= 1e-12)  # non-increasing, checked directly
+    assert not result.table_report.monotone
+    assert result.table_report.smoothing
+    assert result.points_passed
