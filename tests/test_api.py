@@ -22,6 +22,7 @@ EXPECTED_PUBLIC_NAMES = {
     "VerifyResult",
     "read_gains",
     "write_gains",
+    "discretize_loop",
 }
 
 

@@ -18,6 +18,7 @@ from . import design  # the package is callable: gainloom.design(schedule)
 from .design.engine import verify
 from .design.results import DesignResult, VerifyResult
 from .design.gainsfile import read_gains, write_gains
+from .lti.discretize import discretize, discretize_loop
 
 __all__ = [
     "__version__",
@@ -39,4 +40,5 @@ __all__ = [
     "VerifyResult",
     "read_gains",
     "write_gains",
+    "discretize_loop",
 ]

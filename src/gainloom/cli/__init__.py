@@ -20,6 +20,8 @@ __all__ = ["main", "COMMANDS"]
 COMMANDS: tuple[str, ...] = (
     "design",
     "verify",
+    "discretize",
+    "inspect",
 )
 
 

@@ -251,8 +251,12 @@ def ss_to_tf(
 ) -> tuple[np.ndarray, np.ndarray]:
     """Transfer functions of a batch of SISO state-space systems.
 
-    Uses ``det(xI - A + B C) = det(xI - A) (1 + C (xI - A)^-1 B)``, so the
-    numerator is ``char(A - B C) - char(A) + D char(A)``.
+    The numerator comes from the Markov parameters ``h_0 = D``,
+    ``h_k = C A^(k-1) B``: since ``N(x) / den(x) = sum_k h_k x^-k``, the
+    numerator coefficients are ``N_i = sum_{j <= i} den_j h_(i-j)``.
+    Unlike the ``char(A - B C) - char(A)`` identity this keeps exact zeros
+    exact (a numerator of lower degree stays so, rather than gaining a
+    rounding residue that reads as a zero near infinity).
 
     Parameters
     ----------
@@ -274,6 +278,15 @@ def ss_to_tf(
     D = np.asarray(D, dtype=float)
     if den is None:
         den = char_poly(A)
-    closed = char_poly(A - B[..., :, np.newaxis] * C[..., np.newaxis, :])
-    num = closed - den + D[..., np.newaxis] * den
-    return num, np.asarray(den, dtype=float)
+    den = np.asarray(den, dtype=float)
+    n = A.shape[-1]
+    markov = [D]
+    vector = B
+    for _ in range(n):  # over the order, batched over points
+        markov.append(np.einsum("...i,...i->...", C, vector))
+        vector = np.einsum("...ij,...j->...i", A, vector)
+    markov = np.stack(markov, axis=-1)  # (..., n + 1)
+    num = np.zeros(np.broadcast_shapes(markov.shape, den.shape))
+    for i in range(n + 1):
+        num[..., i] = np.sum(den[..., : i + 1] * markov[..., i::-1], axis=-1)
+    return num, den

@@ -68,10 +68,10 @@ from scipy.linalg import expm
 
 from ..errors import InputError
 from ..names import HOLD_METHODS, unknown_name_message
-from .convert import char_poly, poly_from_roots, roots_with_origin, tf_to_ss, tf_to_zpk
+from .convert import poly_from_roots, roots_with_origin, ss_to_tf, tf_to_ss, tf_to_zpk
 from .loop import Loop
 
-__all__ = ["discretize", "discretize_loop", "total_delay"]
+__all__ = ["discretize", "discretize_loop", "total_delay", "discrete_roots"]
 
 #: A total delay within this many samples of a whole number counts as whole,
 #: so ``dead_time = 3 * ts`` written in decimals is not "fractional".
@@ -201,8 +201,7 @@ def _origin_poles(den: np.ndarray) -> np.ndarray:
 
 
 def _ss_num(A: np.ndarray, B: np.ndarray, C: np.ndarray, D: np.ndarray, den: np.ndarray) -> np.ndarray:
-    closed = char_poly(A - B[:, :, None] * C[:, None, :])
-    return closed - den + D[:, None] * den
+    return ss_to_tf(A, B, C, D, den)[0]
 
 
 def _state_space_hold(num, den, ts, method) -> _Rational:
@@ -226,14 +225,20 @@ def _state_space_hold(num, den, ts, method) -> _Rational:
         m1 = np.einsum("pij,pj->pi", lam, B)
         bz = m0 - m1 + np.einsum("pij,pj->pi", phi, m1)
         dz = D + np.einsum("pi,pi->p", C, m1)
-    else:  # impulse, scipy's convention: (Phi, Phi B ts, C, C B ts)
-        bz = np.einsum("pij,pj->pi", phi, B) * ts[:, None]
-        dz = np.einsum("pi,pi->p", C, B) * ts
-    den_z = poly_from_roots(_snap(np.linalg.eigvals(phi), origin, 1.0)) if n else np.ones((points, 1))
+    den_z = poly_from_roots(_snap(np.linalg.eigvals(phi), origin, 1.0))
+    den_d = poly_from_roots(_snap(np.linalg.eigvals(a_delta), origin, 0.0))
+    if method == "impulse":
+        # scipy's realisation (Phi, Phi B ts, C, C B ts) is ts z C (zI - Phi)^-1 B;
+        # build it as that product so the factor z (a zero exactly at the
+        # origin) is exact rather than a rounding residue.  In g:
+        # z = 1 + ts g and (zI - Phi) = ts (gI - A_delta).
+        strict_z = _ss_num(phi, B * ts[:, None], C, np.zeros(points), den_z)
+        strict_d = _ss_num(a_delta, B, C, np.zeros(points), den_d)
+        num_z = np.concatenate([strict_z[:, 1:], np.zeros((points, 1))], axis=1)
+        num_d = _times_linear(strict_d * ts[:, None], 1.0 / ts)[:, 1:]
+        return _Rational(num_z, den_z, num_d, den_d)
     num_z = _ss_num(phi, bz, C, dz, den_z)
-    bd = bz / ts[:, None]
-    den_d = poly_from_roots(_snap(np.linalg.eigvals(a_delta), origin, 0.0)) if n else np.ones((points, 1))
-    num_d = _ss_num(a_delta, bd, C, dz, den_d)
+    num_d = _ss_num(a_delta, bz / ts[:, None], C, dz, den_d)
     return _Rational(num_z, den_z, num_d, den_d)
 
 
@@ -382,9 +387,8 @@ def _matched(num, den, ts) -> _Rational:
     pole_part = np.prod(_phi(poles, t), axis=1)
     zero_part = np.prod(np.where(finite, _phi(zfin, t), 1.0), axis=1)
     k_disc = (gain * pole_part / zero_part).real / 2.0**r
-    with np.errstate(invalid="ignore"):
-        z_zeros = np.where(finite, np.exp(zfin * t), -1.0 + 0j)
-        d_zeros = np.where(finite, np.expm1(zfin * t) / t, -2.0 / t + 0j)
+    z_zeros = np.where(finite, np.exp(zfin * t), -1.0 + 0j)
+    d_zeros = np.where(finite, np.expm1(zfin * t) / t, -2.0 / t + 0j)
     z_poles = np.exp(poles * t)
     d_poles = np.expm1(poles * t) / t
     num_z = poly_from_roots(z_zeros) * k_disc[:, None]
@@ -410,7 +414,8 @@ def discretize_loop(
         Continuous plant batch (``ts is None``); its ``dead_time`` (seconds)
         is absorbed into the delay.
     ts : float or array_like, shape (P,)
-        Sample period in seconds, per point or shared.
+        Sample period in seconds, per point or shared.  A plant batch of one
+        point is repeated to match per-point ``ts`` or ``delay``.
     method : str
         One of :data:`gainloom.names.HOLD_METHODS`.
     delay : float or array_like, shape (P,)
@@ -441,6 +446,11 @@ def discretize_loop(
     in the module docstring of :mod:`gainloom.lti.discretize` and in
     ``docs/discretisation.md``.
     """
+    if isinstance(plant, Loop) and plant.points == 1:
+        # One plant sampled at several periods (or delays): repeat it.
+        sizes = {np.size(ts), np.size(delay)} - {1}
+        if len(sizes) == 1:
+            plant = plant.select(np.zeros(sizes.pop(), dtype=int))
     ts, total, prewarp = _validate(plant, ts, method, delay, prewarp)
     num = np.array(plant.num)
     den = np.array(plant.den)
@@ -497,6 +507,35 @@ def discretize_loop(
         delta_num=num_d,
         delta_den=den_d,
     )
+
+
+def discrete_roots(z_coeffs: np.ndarray, delta_coeffs: np.ndarray, ts: object) -> np.ndarray:
+    """Roots in ``z`` of a discrete polynomial known in both ``z`` and ``g`` form.
+
+    Parameters
+    ----------
+    z_coeffs : array_like, shape (P, w)
+        Descending coefficients in ``z``.
+    delta_coeffs : array_like, shape (P, w)
+        The same polynomial in ``g = (z - 1)/ts`` (e.g. ``Loop.delta_den``).
+    ts : float or array_like, shape (P,)
+        Sample period in seconds.
+
+    Returns
+    -------
+    ndarray of complex, shape (P, w - 1)
+        ``z = 1 + ts g`` from the roots in ``g`` (accurate at fast sampling),
+        except that roots at ``z = 0`` (exact trailing zeros of the z
+        coefficients, e.g. from computation delay) are exactly zero; ``inf``
+        for roots at infinity (degree drop).
+    """
+    z_coeffs = np.atleast_2d(np.asarray(z_coeffs, dtype=float))
+    delta_coeffs = np.atleast_2d(np.asarray(delta_coeffs, dtype=float))
+    ts = np.broadcast_to(np.asarray(ts, dtype=float), (z_coeffs.shape[0],))
+    g = roots_with_origin(delta_coeffs)
+    finite = np.isfinite(g)
+    z = np.where(finite, 1.0 + ts[:, None] * np.where(finite, g, 0.0), np.inf)
+    return _snap(z, _origin_poles(z_coeffs), 0.0)
 
 
 def discretize(

@@ -12,7 +12,7 @@ from __future__ import annotations
 import ast
 import math
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -78,12 +78,16 @@ class Expression:
         Names the expression uses (constants such as ``pi`` excluded).
     node : Node
         Where the expression was written, for error messages.
+    name_offsets : dict of str to int
+        Column shift from the node start to the first use of each name
+        (only for one-line scalars), so errors point at the name.
     """
 
     source: str
     tree: ast.expr
     names: frozenset
     node: Node
+    name_offsets: dict = field(default_factory=dict)
 
     @property
     def constant(self) -> bool:
@@ -98,14 +102,20 @@ class Expression:
         """
         for name in sorted(self.names):
             if unavailable and name in unavailable and name not in known:
-                raise self.node.error(f"name {name!r} cannot be used here: {unavailable[name]}")
+                raise self.node.error(
+                    f"name {name!r} cannot be used here: {unavailable[name]}",
+                    column_offset=self.name_offsets.get(name, 0),
+                )
             if name not in known:
                 groups: dict[str, list[str]] = {}
                 for other, what in known.items():
                     groups.setdefault(what, []).append(other)
                 listing = "; ".join(f"{what}: {', '.join(sorted(n))}" for what, n in groups.items()) or "none"
                 hint = did_you_mean(name, list(known) + list(FUNCTIONS) + list(CONSTANTS))
-                raise self.node.error(f"unknown name {name!r} in expression {self.source!r}; known {listing}{hint}")
+                raise self.node.error(
+                    f"unknown name {name!r} in expression {self.source!r}; known {listing}{hint}",
+                    column_offset=self.name_offsets.get(name, 0),
+                )
 
     def evaluate(self, env: Mapping[str, np.ndarray], count: int) -> np.ndarray:
         """Evaluate at ``count`` points; ``env`` maps names to arrays of shape (count,).
@@ -178,7 +188,15 @@ def parse_expression(node: Node, what: str = "expression") -> Expression:
         ) from None
     names: set[str] = set()
     _check(tree, node, text, names)
-    return Expression(text, tree, frozenset(names), node)
+    offsets: dict[str, int] = {}
+    start = node.single_line_offset
+    if start is not None:
+        lead = len(value) - len(value.lstrip())
+        for item in sorted(
+            (n for n in ast.walk(tree) if isinstance(n, ast.Name)), key=lambda n: n.col_offset
+        ):
+            offsets.setdefault(item.id, start + lead + item.col_offset)
+    return Expression(text, tree, frozenset(names), node, offsets)
 
 
 def _check(tree: ast.AST, node: Node, text: str, names: set[str]) -> None:
@@ -211,10 +229,11 @@ def _check(tree: ast.AST, node: Node, text: str, names: set[str]) -> None:
         _check(tree.operand, node, text, names)
         return
     if isinstance(tree, ast.Call):
-        if not isinstance(tree.func, ast.Name) or tree.func.id not in FUNCTIONS:
-            name = tree.func.id if isinstance(tree.func, ast.Name) else "this"
-            hint = did_you_mean(name, FUNCTIONS) if isinstance(tree.func, ast.Name) else ""
-            raise refuse(f"unknown function {name!r}; known: {', '.join(FUNCTIONS)}{hint}", tree)
+        if not isinstance(tree.func, ast.Name):
+            raise refuse(f"only calls of the functions {', '.join(FUNCTIONS)} are allowed", tree)
+        if tree.func.id not in FUNCTIONS:
+            hint = did_you_mean(tree.func.id, FUNCTIONS)
+            raise refuse(f"unknown function {tree.func.id!r}; known: {', '.join(FUNCTIONS)}{hint}", tree)
         if tree.keywords:
             raise refuse(f"function {tree.func.id!r} takes no keyword arguments", tree)
         _, arity = FUNCTIONS[tree.func.id]

@@ -16,6 +16,7 @@ from typing import Literal
 import numpy as np
 
 from ..errors import InputError
+from ..lti.convert import poly_from_roots, ss_to_tf
 from ..lti.loop import Loop
 from .expressions import Expression
 from .model import Axis, PointModels
@@ -85,30 +86,6 @@ class PlantRecipe:
     dead_time: Expression | None = None
 
 
-def _roots_to_poly(factors: list[np.ndarray], count: int) -> np.ndarray:
-    """Multiply monic factors, each of shape (count, k), into one (count, n + 1) batch."""
-    poly = np.ones((count, 1))
-    for factor in factors:
-        # batched convolution: loops over the (few) factor coefficients, not the points
-        out = np.zeros((count, poly.shape[1] + factor.shape[1] - 1))
-        for k in range(factor.shape[1]):
-            out[:, k : k + poly.shape[1]] += factor[:, k : k + 1] * poly
-        poly = out
-    return poly
-
-
-def _poly_from_eigenvalues(eigenvalues: np.ndarray) -> np.ndarray:
-    """Monic real polynomials with the given (conjugate-closed) roots, batched."""
-    count, n = eigenvalues.shape
-    poly = np.ones((count, 1), dtype=complex)
-    for k in range(n):
-        out = np.zeros((count, poly.shape[1] + 1), dtype=complex)
-        out[:, :-1] += poly
-        out[:, 1:] -= eigenvalues[:, k : k + 1] * poly
-        poly = out
-    return poly.real
-
-
 @dataclass(frozen=True, eq=False)
 class Family:
     """Compiled operating-point family of one schedule file."""
@@ -155,9 +132,8 @@ class Family:
         if positive and np.any(value <= 0):
             bad = value <= 0
             index = int(np.flatnonzero(bad)[0])
-            raise expression.node.error(
-                f"{what} must be positive; {expression.source!r} = {value[index]:g} {self._first_bad(bad, points)}"
-            )
+            shown = f"found {value[index]:g}" if expression.constant else f"{expression.source!r} = {value[index]:g}"
+            raise expression.node.error(f"{what} must be positive; {shown} {self._first_bad(bad, points)}")
         if non_negative and np.any(value < 0):
             bad = value < 0
             index = int(np.flatnonzero(bad)[0])
@@ -282,25 +258,24 @@ class Family:
 
     def _factors(self, roots: tuple[Expression | Pair, ...], env: dict[str, np.ndarray], points: np.ndarray, what: str) -> np.ndarray:
         count = points.shape[0]
-        factors = []
+        columns = []
         for root in roots:
             if isinstance(root, Pair):
                 re = self._checked(root.re, env, points, f"{what} real part")
-                im = self._checked(root.im, env, points, f"{what} imaginary part")
-                factors.append(np.stack([np.ones(count), -2.0 * re, re * re + im * im], axis=1))
+                im = np.abs(self._checked(root.im, env, points, f"{what} imaginary part"))
+                columns += [re + 1j * im, re - 1j * im]
             else:
-                value = self._checked(root, env, points, what)
-                factors.append(np.stack([np.ones(count), -value], axis=1))
-        return _roots_to_poly(factors, count)
+                columns.append(self._checked(root, env, points, what).astype(complex))
+        if not columns:
+            return np.ones((count, 1))
+        return poly_from_roots(np.stack(columns, axis=1))
 
     def _state_space(self, env: dict[str, np.ndarray], points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """SISO state space to transfer function, batched over the points.
 
-        Uses ``C (sI - A)^-1 B = det(sI - A + B C) / det(sI - A) - 1`` (the
-        identity scipy.signal.ss2tf relies on), with both characteristic
-        polynomials from batched eigenvalues.  Numerator coefficients that
-        are pure cancellation residue are set to exactly zero so spurious
-        far-away zeros do not appear.
+        Uses :func:`gainloom.lti.convert.ss_to_tf` (characteristic polynomial
+        from batched eigenvalues, numerator from Markov parameters, so exact
+        zeros of a low-degree numerator stay exact).
         """
         matrices = self.plant.matrices
         assert matrices is not None
@@ -310,20 +285,11 @@ class Family:
                 [np.stack([self._checked(e, env, points, f"{key} entry") for e in row], axis=-1) for row in rows],
                 axis=-2,
             )
-        a, b, c, d = arrays["A"], arrays["B"], arrays["C"], arrays["D"][:, 0, 0]
         with np.errstate(all="ignore"):
-            closed = a - b @ c
-            den = _poly_from_eigenvalues(np.linalg.eigvals(a))
-            top = _poly_from_eigenvalues(np.linalg.eigvals(closed))
-        num = top + (d - 1.0)[:, np.newaxis] * den
-        residue = 64 * np.finfo(float).eps * (np.abs(top) + np.abs((d - 1.0)[:, np.newaxis] * den))
-        num = np.where(np.abs(num) <= residue, 0.0, num)
-        if not (np.all(np.isfinite(num)) and np.all(np.isfinite(den))):
-            bad = ~(np.all(np.isfinite(num), axis=1) & np.all(np.isfinite(den), axis=1))
-            raise matrices_node_error(self.plant, f"state-space conversion failed {self._first_bad(bad, points)}")
+            num, den = ss_to_tf(arrays["A"], arrays["B"][:, :, 0], arrays["C"][:, 0, :], arrays["D"][:, 0, 0])
+        bad = ~(np.all(np.isfinite(num), axis=1) & np.all(np.isfinite(den), axis=1))
+        if np.any(bad):
+            raise matrices["A"][0][0].node.error(
+                f"state-space to transfer-function conversion is not finite {self._first_bad(bad, points)}"
+            )
         return num, den
-
-
-def matrices_node_error(recipe: PlantRecipe, message: str):
-    """Error located at the first A-matrix entry (the state-space section)."""
-    return recipe.matrices["A"][0][0].node.error(message)

@@ -124,6 +124,8 @@ def load_schedule(path: str | Path) -> Schedule:
     tolerances = read_tolerances(keys.get("tolerances"), {p.name: p.independent for p in parameters})
     codegen = read_codegen(keys.get("codegen"), name, keys["name"])
 
+    for array in (points, models.sample_period, models.delay, *models.parameters.values()):
+        array.setflags(write=False)  # the Schedule is frozen; so are its arrays
     sampling = Sampling(period=models.sample_period, method=method, delay=models.delay, prewarp=prewarp_value)
     return Schedule(
         path=file,
@@ -327,7 +329,8 @@ def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
         degree = lambda roots: sum(2 if isinstance(r, Pair) else 1 for r in roots)  # noqa: E731
         if degree(zeros) > degree(poles):
             raise parts["zeros"].error(
-                f"improper plant: {degree(zeros)} zeros but only {degree(poles)} poles; a physical plant must be proper"
+                f"improper plant: {degree(zeros)} zeros but only {degree(poles)} pole{'s' if degree(poles) != 1 else ''}; "
+                "a physical plant must be proper"
             )
         gain = parse_expression(parts["gain"], "plant gain")
         gain.check_names(known, _TS_ONLY)
@@ -374,7 +377,7 @@ def _read_state_space(node: Node, known: dict[str, str], dead_time: Expression |
         if len(row_nodes) != rows or any(len(r) != cols for r in row_nodes):
             widths = sorted({len(r) for r in row_nodes})
             raise matrix_node.error(
-                f"state-space {key} must be {rows}x{cols} for {n} states (single input, single output); "
+                f"state-space {key} must be {rows}x{cols} for {n} state{'s' if n > 1 else ''} (single input, single output); "
                 f"found {got[0]} rows of {', '.join(map(str, widths)) or '0'} entries"
             )
         built = []

@@ -317,6 +317,12 @@ class Schedule:
             ``max_sensitivity_peak``, ``system_type``, ``max_gain``.  NaN
             where a spec is not required.
         """
+        from ..errors import InputError
         from .specs import resolve_specs
 
-        return resolve_specs(self.specs, self.axis_names, np.asarray(points, dtype=float))
+        points = np.asarray(points, dtype=float)
+        if points.ndim == 1 and len(self.axes) == 1:
+            points = points[:, np.newaxis]
+        if points.ndim != 2 or points.shape[1] != len(self.axes):
+            raise InputError(f"points must have shape (Q, {len(self.axes)}); got {points.shape}")
+        return resolve_specs(self.specs, self.axis_names, points)

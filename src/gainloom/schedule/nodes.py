@@ -189,7 +189,7 @@ class Node:
             if key in children:
                 raise Node(key_raw, path, self.file).error(f"duplicate key {key!r}")
             if allowed is not None and key not in allowed:
-                kind = f"key in {self.path}" if self.path else "top-level key"
+                kind = "key" if self.path else "top-level key"
                 raise Node(key_raw, path, self.file).error(unknown_name_message(kind, key, allowed))
             children[key] = Node(value_raw, path, self.file)
         for key in required:

@@ -96,6 +96,12 @@ def read_controller(node: Node) -> ControllerSection:
     structure = keys["structure"].choice("controller structure", names.CONTROLLER_STRUCTURES)
     strategy = keys["strategy"].choice("design strategy", names.DESIGN_STRATEGIES)
 
+    if structure == "p" and strategy in ("pole-cancel", "shape-sweep"):
+        raise keys["strategy"].error(
+            f"strategy {strategy!r} places a controller zero, and structure 'p' has none; "
+            "use pi, pd, pid, lead, lag or leadlag, or strategy 'dominant-pair'"
+        )
+
     def only_for(key: str, allowed: bool, condition: str) -> None:
         if key in keys and not allowed:
             raise keys[key].error(f"{key} applies only when {condition}; strategy is {strategy!r}")
@@ -255,7 +261,7 @@ def read_table_checks(node: Node | None, structure: str) -> TableChecks:
         for name, direction in keys["monotone"].mapping().items():
             if name not in coefficients:
                 raise Node(direction.raw, direction.path, direction.file).error(
-                    names.unknown_name_message(f"coefficient of structure {structure!r}", name, coefficients)
+                    names.unknown_name_message(f"{structure} coefficient", name, coefficients)
                 )
             monotone[name] = direction.choice("monotone direction", names.MONOTONE_DIRECTIONS)
     between = 3

@@ -1,0 +1,206 @@
+"""``gainloom inspect``: validate a schedule and list every operating point.
+
+For each point: coordinates, parameters, continuous poles and zeros, sample
+period, and the discrete poles (magnitude and angle) after the schedule's
+hold, computation delay and dead time.  Text is a readable table; ``--json``
+prints everything as strict JSON.
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+
+import numpy as np
+
+from ..lti.convert import roots_with_origin
+from ..lti.discretize import discrete_roots, discretize_loop
+from ..schedule import Schedule, load_schedule
+from .output import format_number, format_table, print_json
+
+__all__ = ["HELP", "add_arguments", "run", "inspect_data"]
+
+HELP = "Validate a schedule file and list each operating point: parameters, s- and z-plane poles, sampling."
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    """Register the options of ``gainloom inspect``."""
+    parser.add_argument("schedule", metavar="SCHEDULE", help="schedule file (YAML)")
+    parser.add_argument("--json", action="store_true", help="print strict JSON instead of text")
+
+
+def _sorted_roots(roots: np.ndarray) -> np.ndarray:
+    roots = roots[np.isfinite(roots)]
+    # conjugates next to each other, upper half first; deterministic order
+    return np.array(sorted(roots, key=lambda r: (round(float(r.real), 12), -float(r.imag))), dtype=complex)
+
+
+def _root_rows(roots: np.ndarray) -> list[dict]:
+    return [
+        {"real": float(r.real), "imag": float(r.imag), "magnitude": float(abs(r)), "angle_rad": float(np.angle(r))}
+        for r in roots
+    ]
+
+
+def inspect_data(schedule: Schedule) -> dict:
+    """Everything ``inspect --json`` prints, as plain data.
+
+    Parameters
+    ----------
+    schedule : Schedule
+        A loaded schedule.
+
+    Returns
+    -------
+    dict
+        ``schedule`` (name, path, sha256, ...), ``axes``, the settings
+        sections, ``points`` (one entry per operating point, grid order) and
+        ``warnings``.
+    """
+    plant = schedule.plant
+    sampling = schedule.sampling
+    discrete = discretize_loop(
+        plant, sampling.period, method=sampling.method, delay=sampling.delay, prewarp=sampling.prewarp
+    )
+    s_poles = roots_with_origin(plant.den)
+    s_zeros = roots_with_origin(plant.num)
+    z_poles = discrete_roots(discrete.den, discrete.delta_den, discrete.ts)
+    z_zeros = discrete_roots(discrete.num, discrete.delta_num, discrete.ts)
+    points = []
+    for index, point in enumerate(schedule.points):
+        points.append(
+            {
+                "index": index,
+                "coordinates": {axis.name: float(point[i]) for i, axis in enumerate(schedule.axes)},
+                "parameters": {name: float(values[index]) for name, values in schedule.parameters.items()},
+                "sample_period": float(sampling.period[index]),
+                "delay_samples": float(sampling.delay[index]),
+                "dead_time": float(plant.dead_time[index]),
+                "continuous": {
+                    "num": plant.num[index],
+                    "den": plant.den[index],
+                    "poles": _root_rows(_sorted_roots(s_poles[index])),
+                    "zeros": _root_rows(_sorted_roots(s_zeros[index])),
+                },
+                "discrete": {
+                    "total_delay_samples": float(discrete.delay[index]),
+                    "num": discrete.num[index],
+                    "den": discrete.den[index],
+                    "poles": _root_rows(_sorted_roots(z_poles[index])),
+                    "zeros": _root_rows(_sorted_roots(z_zeros[index])),
+                },
+            }
+        )
+    return {
+        "schedule": {
+            "name": schedule.name,
+            "description": schedule.description,
+            "path": schedule.path,
+            "sha256": schedule.sha256,
+        },
+        "axes": [{"name": a.name, "unit": a.unit, "values": a.values} for a in schedule.axes],
+        "grid_shape": list(schedule.grid_shape),
+        "sampling": {"method": sampling.method, "prewarp": sampling.prewarp},
+        "controller": dataclasses.asdict(schedule.controller),
+        "specs": dataclasses.asdict(schedule.specs),
+        "table": dataclasses.asdict(schedule.table_checks),
+        "tolerances": dataclasses.asdict(schedule.tolerances),
+        "codegen": dataclasses.asdict(schedule.codegen),
+        "points": points,
+        "warnings": list(schedule.warnings),
+    }
+
+
+def _s_text(roots: list[dict]) -> str:
+    """Continuous roots, a conjugate pair written once as ``re+-imj``."""
+    parts = []
+    for r in roots:
+        if r["imag"] < 0:
+            continue
+        if r["imag"] > 0:
+            parts.append(f"{format_number(r['real'], 5)}+-{format_number(r['imag'], 5)}j")
+        else:
+            parts.append(format_number(r["real"], 5))
+    return ", ".join(parts) or "none"
+
+
+def _z_text(roots: list[dict]) -> str:
+    """Discrete roots as ``|z| at angle`` (rad), a conjugate pair written once."""
+    parts = []
+    for r in roots:
+        if r["imag"] < 0:
+            continue
+        if r["magnitude"] == 0:
+            parts.append("0")
+        elif r["imag"] > 0:
+            parts.append(f"{format_number(r['magnitude'], 6)} at +-{format_number(r['angle_rad'], 4)}")
+        else:
+            parts.append(f"{format_number(r['magnitude'], 6)} at {format_number(r['angle_rad'], 4)}")
+    return ", ".join(parts) or "none"
+
+
+def _text(data: dict) -> str:
+    info = data["schedule"]
+    axes = data["axes"]
+    axis_headers = [a["name"] + (f" [{a['unit']}]" if a["unit"] else "") for a in axes]
+    lines = [
+        f"schedule {info['name']}: {info['path']}",
+        f"sha256 {info['sha256']}",
+        "grid: " + " x ".join(
+            f"{a['name']} ({len(a['values'])} values, {format_number(float(a['values'][0]))} .. "
+            f"{format_number(float(a['values'][-1]))}{' ' + a['unit'] if a['unit'] else ''})"
+            for a in axes
+        ) + f" = {len(data['points'])} points",
+        f"hold {data['sampling']['method']}"
+        + ("" if data["sampling"]["prewarp"] is None else f", prewarp {format_number(data['sampling']['prewarp'])} rad/s")
+        + f"; controller {data['controller']['structure']} by {data['controller']['strategy']}",
+        "",
+    ]
+    points = data["points"]
+    parameter_names = list(points[0]["parameters"])
+    rows = []
+    for p in points:
+        rows.append(
+            [p["index"]]
+            + [p["coordinates"][a["name"]] for a in axes]
+            + [p["parameters"][n] for n in parameter_names]
+            + [p["sample_period"], p["delay_samples"], p["dead_time"]]
+        )
+    lines.append("parameters and sampling")
+    lines.append(format_table(["#"] + axis_headers + parameter_names + ["ts [s]", "delay [samples]", "dead time [s]"], rows))
+    lines.append("")
+    rows = []
+    for p in points:
+        rows.append(
+            [p["index"]]
+            + [p["coordinates"][a["name"]] for a in axes]
+            + [
+                _s_text(p["continuous"]["poles"]),
+                _s_text(p["continuous"]["zeros"]),
+                format_number(p["discrete"]["total_delay_samples"]),
+                _z_text(p["discrete"]["poles"]),
+                _z_text(p["discrete"]["zeros"]),
+            ]
+        )
+    lines.append("poles and zeros (continuous in rad/s; discrete as |z| at angle in rad, after hold and delay)")
+    lines.append(
+        format_table(
+            ["#"] + axis_headers + ["s poles", "s zeros", "total delay", "z poles", "z zeros"],
+            rows,
+        )
+    )
+    if data["warnings"]:
+        lines.append("")
+        lines += [f"warning: {w}" for w in data["warnings"]]
+    return "\n".join(lines)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Load, evaluate, discretise and print; return the exit code (0, or 2 via the dispatcher)."""
+    schedule = load_schedule(args.schedule)
+    data = inspect_data(schedule)
+    if args.json:
+        print_json(data)
+    else:
+        print(_text(data))
+    return 0
