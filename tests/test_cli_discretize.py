@@ -24,7 +24,9 @@ def _run(*args):
 
 
 def test_json_output_matches_scipy_zoh_with_a_sample_of_delay():
-    result = _run("--num", "1 2", "--den", "1 3 2", "--ts", "1e-3", "--method", "zoh", "--delay", "1", "--json")
+    result = _run(
+        "--num", "1 2", "--den", "1 3 2", "--ts", "1e-3", "--method", "zoh", "--delay", "1", "--json"
+    )
     assert result.returncode == 0, result.stderr
     data = json.loads(result.stdout)
     # Reference: scipy.signal.cont2discrete zoh (reference library), times
@@ -40,6 +42,9 @@ def test_json_output_matches_scipy_zoh_with_a_sample_of_delay():
     # Poles: the delay pole at z = 0 and exp(-ts), exp(-2 ts) (ZOH pole map).
     np.testing.assert_allclose(poles, [0.0, np.exp(-2e-3), np.exp(-1e-3)], rtol=1e-12, atol=0)
     assert data["method"] == "zoh" and data["delay_samples"] == 1.0
+    # ZOH of an order-n plant has n - 1 finite zeros (generic case, textbook
+    # fact); one sample of delay adds a pole, so 3 - 1 = 2 zeros at infinity.
+    assert data["zeros_at_infinity"] == 2 and len(data["zeros"]) == 1
 
 
 def test_text_output_names_poles_zeros_and_dc_gain():

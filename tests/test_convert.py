@@ -135,3 +135,15 @@ def test_conversions_refuse_improper_and_bad_leading_coefficient():
         tf_to_ss([1, 2, 3], [1, 2])
     with pytest.raises(InputError, match="leading denominator"):
         tf_to_zpk([1], [0, 1])
+
+
+def test_scaled_realisation_has_the_same_transfer_function_and_small_entries():
+    # Poles 10..1000 rad/s: the plain companion matrix holds 1e9-sized entries.
+    den = np.real(np.poly([-10.0, -100.0, -300.0, -1000.0]))
+    num = np.array([0.0, 0.0, 5.0, 50.0, 900.0])
+    A, B, C, D = tf_to_ss(num, den, scaled=True)
+    back_num, back_den = ss_to_tf(A, B, C, D)
+    # Reference: the input polynomials (a similarity keeps the transfer function).
+    np.testing.assert_allclose(back_den[0], den, rtol=1e-10)
+    np.testing.assert_allclose(back_num[0], num, rtol=1e-10, atol=1e-9)
+    assert np.abs(A).max() < 1e4 < np.abs(tf_to_ss(num, den)[0]).max()

@@ -308,3 +308,11 @@ def test_one_plant_is_repeated_for_per_point_sample_periods():
     # Closed form (as above): 2/(s+2) -> (1 - e^{-2 ts})/(z - e^{-2 ts}).
     np.testing.assert_allclose(loop.den[:, 1], -np.exp(-2 * np.array([1e-3, 1e-2])), rtol=1e-12)
     assert loop.points == 2
+
+
+def test_leading_zeros_are_ignored_when_judging_properness():
+    # 1/(s+1) written with leading zeros on both sides is the same plant.
+    num_z, den_z = discretize([0.0, 0.0, 1.0], [0.0, 1.0, 1.0], 0.1, "zoh")
+    # Closed form (as above): (1 - e^{-ts}) / (z - e^{-ts}).
+    np.testing.assert_allclose(den_z, [1.0, -np.exp(-0.1)], rtol=1e-12)
+    np.testing.assert_allclose(num_z, [0.0, 1.0 - np.exp(-0.1)], rtol=1e-10)

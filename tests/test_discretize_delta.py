@@ -82,7 +82,7 @@ def test_delta_poles_beat_z_polynomial_roots_at_fast_sampling():
     from_z = batched_roots(loop.den)[0] - 1.0
     delta_error = _relative_errors(from_delta, reference)
     z_error = _relative_errors(from_z, reference)
-    assert delta_error.max() < 1e-8
+    assert delta_error.max() < 1e-10
     # The z polynomial has lost (nearly) all digits of z - 1 at this rate.
     assert z_error.max() > 1e-3
     assert delta_error.max() < 1e-6 * z_error.max()
@@ -107,3 +107,23 @@ def test_discrete_roots_maps_delta_roots_and_keeps_delay_poles_at_zero():
     # exp computed by numpy.
     np.testing.assert_array_equal(roots[:2], [0.0, 0.0])
     assert roots[2].real - 1.0 == pytest.approx(np.expm1(-3e-6), rel=1e-9)
+
+
+@pytest.mark.parametrize("delay", [0.0, 0.5, 2.3])
+def test_delta_form_frequency_response_at_fast_sampling(delay):
+    den = np.real(np.poly(POLES))
+    num = 1e3 * np.real(np.poly([-5.0, -15.0]))
+    ts = 1e-6
+    loop = discretize_loop(Loop(num, den), ts, "zoh", delay=delay)
+    for w in (1.0, 10.0, 100.0):
+        z = np.exp(1j * w * ts)
+        g = (z - 1) / ts
+        from_delta = np.polyval(loop.delta_num[0], g) / np.polyval(loop.delta_den[0], g)
+        # Reference (textbook fact, sampled-data frequency response): a ZOH
+        # equivalent is G(jw) sinc(w ts / 2) e^{-j w ts / 2} plus aliased
+        # terms G(j(w + 2 pi k / ts)), here below 1e-30 (relative degree 6);
+        # the delay multiplies by e^{-j w ts delay}.
+        x = w * ts / 2
+        plant = np.polyval(num, 1j * w) / np.polyval(den, 1j * w)
+        expected = plant * np.sin(x) / x * np.exp(-1j * w * ts * (delay + 0.5))
+        assert abs(from_delta / expected - 1) < 1e-9

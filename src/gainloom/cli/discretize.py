@@ -16,7 +16,10 @@ from .output import format_number, format_table, print_json
 
 __all__ = ["HELP", "add_arguments", "run", "parse_coefficients"]
 
-HELP = "Discretise a continuous transfer function (hold method, computation delay) and show its poles and zeros."
+HELP = (
+    "Discretise a continuous transfer function (hold method, computation delay) "
+    "and show its poles and zeros."
+)
 
 
 def parse_coefficients(text: str, what: str) -> np.ndarray:
@@ -35,7 +38,9 @@ def parse_coefficients(text: str, what: str) -> np.ndarray:
         try:
             value = float(field)
         except ValueError:
-            raise InputError(f"--{what}: {field!r} is not a number; expected coefficients like \"1 2 3\"") from None
+            raise InputError(
+                f"--{what}: {field!r} is not a number; expected coefficients like \"1 2 3\""
+            ) from None
         if not math.isfinite(value):
             raise InputError(f"--{what}: {field!r} is not a finite number")
         values.append(value)
@@ -108,6 +113,7 @@ def describe(num, den, ts, method="zoh", delay=0.0, dead_time=0.0, prewarp=None)
         "delta_den": dden,
         "poles": _root_rows(_roots_in_z(loop.den[0], dden, ts)),
         "zeros": _root_rows(_roots_in_z(loop.num[0], dnum, ts)),
+        "zeros_at_infinity": int(np.argmax(loop.num[0] != 0)) if np.any(loop.num[0]) else loop.order,
         "dc_gain": dc_gain,
         "dc_gain_infinite": bool(infinite),
     }
@@ -138,13 +144,17 @@ def run(args: argparse.Namespace) -> int:
         "",
     ]
     for title in ("poles", "zeros"):
+        # Ten digits: poles near z = 1 differ only in the later digits.
         rows = [
-            [i + 1, r["real"], r["imag"], r["magnitude"], r["angle_rad"]] for i, r in enumerate(result[title])
+            [i + 1] + [format_number(r[key], 10) for key in ("real", "imag", "magnitude", "angle_rad")]
+            for i, r in enumerate(result[title])
         ]
-        lines.append(f"{title} (z):" if rows else f"{title} (z): none (finite)")
+        lines.append(f"{title} (z):" if rows else f"{title} (z): none finite")
         if rows:
             lines.append(format_table(["#", "real", "imag", "magnitude", "angle_rad"], rows))
         lines.append("")
+    if result["zeros_at_infinity"]:
+        lines.append(f"zeros at infinity: {result['zeros_at_infinity']}")
     if result["dc_gain_infinite"]:
         lines.append("DC gain: infinite (pole at z = 1)")
     else:

@@ -19,9 +19,10 @@ with the batch on the leading axis.  Conventions:
   sub-diagonal, ``B = e_1``, ``C = b_i - b_0 a_i``, ``D = b_0`` for the monic
   denominator ``s^n + a_1 s^(n-1) + ...``.  It is exact (no rounding beyond
   normalising by the leading coefficient) and needs no per-point
-  factorisation, which is why it is used instead of a balanced form; its
-  entries can span many decades for high-order plants, which bounds the
-  accuracy of anything built on it to roughly that of the polynomial roots.
+  factorisation, which is why it is used instead of a balanced form.  Its
+  entries can span many decades for high-order plants; ``scaled=True``
+  applies a diagonal frequency scaling that keeps them near the pole
+  magnitudes (used by discretisation).
   Shapes: ``A`` ``(P, n, n)``, ``B`` and ``C`` ``(P, n)``, ``D`` ``(P,)``.
 
 Conversions to python-control objects live on :class:`gainloom.lti.loop.Loop`
@@ -211,13 +212,23 @@ def zpk_to_tf(zeros: object, poles: object, gain: object) -> tuple[np.ndarray, n
     return num, np.broadcast_to(den, (points, den.shape[1])).copy()
 
 
-def tf_to_ss(num: object, den: object) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def tf_to_ss(
+    num: object, den: object, scaled: bool = False
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Controllable canonical realisations of a batch of transfer functions.
 
     Parameters
     ----------
     num, den : array_like, shape (P, m + 1), (P, n + 1)
         Descending coefficients, ``m <= n``; leading numerator zeros allowed.
+    scaled : bool
+        Apply the diagonal similarity ``T = diag(w^(n-1), ..., w, 1)`` with
+        ``w = max_k |a_k|^(1/k)`` (a bound on the pole magnitudes, 1 if every
+        ``a_k`` is zero), so ``A = w * companion(roots / w)``.  The transfer
+        function is unchanged; the entries of ``A`` stay near the pole
+        magnitudes instead of spanning ``w^n``, which helps the matrix
+        exponential's accuracy and speed.  ``False`` gives scipy's ``tf2ss``
+        form exactly.
 
     Returns
     -------
@@ -243,6 +254,16 @@ def tf_to_ss(num: object, den: object) -> tuple[np.ndarray, np.ndarray, np.ndarr
     if n:
         B[:, 0] = 1.0
     C = num[:, 1:] - d[:, np.newaxis] * den[:, 1:]
+    if scaled and n:
+        powers = np.arange(1, n + 1)
+        with np.errstate(divide="ignore"):
+            bound = np.max(np.abs(den[:, 1:]) ** (1.0 / powers), axis=1)
+        w = np.where(bound > 0, bound, 1.0)
+        # T^-1 A T has entries A_ij w^(i - j); B -> T^-1 B, C -> C T.
+        exponent = np.arange(n)[:, None] - np.arange(n)[None, :]
+        A = A * w[:, None, None] ** exponent
+        B = B * w[:, None] ** -(n - 1.0 - np.arange(n))
+        C = C * w[:, None] ** (n - 1.0 - np.arange(n))
     return A, B, C, d
 
 

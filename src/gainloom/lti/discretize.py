@@ -64,7 +64,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import expm
 
 from ..errors import InputError
 from ..names import HOLD_METHODS, unknown_name_message
@@ -166,6 +165,10 @@ def _integrals(A: np.ndarray, h: np.ndarray, ramp: bool = False):
     (Van Loan): its blocks in the first row are ``Phi``, ``Gamma`` and
     ``Lambda = integral_0^h e^{A (h - r)} (r / h) dr``.
     """
+    # Imported here: scipy.linalg is most of the package's import time and
+    # `import gainloom` (and every CLI error path) should not pay for it.
+    from scipy.linalg import expm
+
     points, n = A.shape[0], A.shape[-1]
     size = 3 * n if ramp else 2 * n
     eye = np.eye(n)
@@ -206,7 +209,7 @@ def _ss_num(A: np.ndarray, B: np.ndarray, C: np.ndarray, D: np.ndarray, den: np.
 
 def _state_space_hold(num, den, ts, method) -> _Rational:
     """zoh, foh and impulse: all via the augmented matrix exponential."""
-    A, B, C, D = tf_to_ss(num, den)
+    A, B, C, D = tf_to_ss(num, den, scaled=True)
     points, n = A.shape[0], A.shape[-1]
     if method == "impulse" and np.any(D != 0):
         bad = int(np.flatnonzero(D != 0)[0])
@@ -242,7 +245,7 @@ def _state_space_hold(num, den, ts, method) -> _Rational:
     return _Rational(num_z, den_z, num_d, den_d)
 
 
-def _zoh_fractional(num, den, ts, frac) -> _Rational:
+def _zoh_fractional(num, den, ts, frac, plain: _Rational) -> _Rational:
     """ZOH with the input delayed by ``frac * ts`` (0 < frac < 1): exact.
 
     Over one period the held input is ``u[k-1]`` for the first ``frac ts``
@@ -253,12 +256,22 @@ def _zoh_fractional(num, den, ts, frac) -> _Rational:
         Gamma1 = e^{A m ts} integral_0^{frac ts} e^{A t} dt B
         y[k]   = C x[k] + D u[k-1]
 
-    Augmenting the state with ``u[k-1]`` gives order ``n + 1``; its
-    transfer function is the modified z-transform of the ZOH equivalent.
+    hence the modified z-transform of the ZOH equivalent::
+
+        G(z) = [z N0(z) + N1(z) + D den(z)] / (z den(z))
+
+    with ``N0/den = C (zI - Phi)^-1 Gamma0`` and ``N1/den`` likewise.  In g,
+    ``zI - Phi = ts (gI - A_delta)`` and ``z = ts (g + 1/ts)``::
+
+        G = [(g + 1/ts) M0(g) + (M1(g) + D den_delta(g)) / ts] / ((g + 1/ts) den_delta(g))
+
+    with ``M0/den_delta = C (gI - A_delta)^-1 Gamma0 / ts`` (and ``M1``).
+    Building the numerator from these pieces keeps ``1/ts``-sized entries
+    out of every matrix, so the delta form stays accurate at fast sampling.
+    ``plain`` holds the plain ZOH denominators so both share one rounding.
     """
-    A, B, C, D = tf_to_ss(num, den)
-    points, n = A.shape[0], A.shape[-1]
-    origin = _origin_poles(den)
+    A, B, C, D = tf_to_ss(num, den, scaled=True)
+    points = A.shape[0]
     horizons = np.concatenate([(1.0 - frac) * ts, frac * ts])
     phi_all, gamma_all, _ = _integrals(np.concatenate([A, A]), horizons)
     phi_m, phi_f = phi_all[:points], phi_all[points:]
@@ -266,31 +279,27 @@ def _zoh_fractional(num, den, ts, frac) -> _Rational:
     phi = phi_m @ phi_f
     # Gamma over the whole period, split at m ts; Phi - I = A Gamma_total.
     gamma_total = gamma_m + phi_m @ gamma_f
+    a_delta = A @ gamma_total / ts[:, None, None]
     gamma0 = np.einsum("pij,pj->pi", gamma_m, B)
     gamma1 = np.einsum("pij,pj->pi", phi_m @ gamma_f, B)
-    size = n + 1
-    a_aug = np.zeros((points, size, size))
-    a_aug[:, :n, :n] = phi
-    a_aug[:, :n, n] = gamma1
-    b_aug = np.zeros((points, size))
-    b_aug[:, :n] = gamma0
-    b_aug[:, n] = 1.0
-    c_aug = np.concatenate([C, D[:, None]], axis=1)
-    d_aug = np.zeros(points)
-    den_plain = poly_from_roots(_snap(np.linalg.eigvals(phi), origin, 1.0)) if n else np.ones((points, 1))
-    den_z = np.concatenate([den_plain, np.zeros((points, 1))], axis=1)  # times z
-    num_z = _ss_num(a_aug, b_aug, c_aug, d_aug, den_z)
+    no_d = np.zeros(points)
     inv = 1.0 / ts
-    ad_aug = np.zeros((points, size, size))
-    ad_aug[:, :n, :n] = A @ gamma_total * inv[:, None, None]
-    ad_aug[:, :n, n] = gamma1 * inv[:, None]
-    ad_aug[:, n, n] = -inv
-    a_delta = ad_aug[:, :n, :n]
-    den_dplain = (
-        poly_from_roots(_snap(np.linalg.eigvals(a_delta), origin, 0.0)) if n else np.ones((points, 1))
-    )
-    den_d = _times_linear(den_dplain, inv)  # times (g + 1/ts)
-    num_d = _ss_num(ad_aug, b_aug * inv[:, None], c_aug, d_aug, den_d)
+
+    def assemble(n0, n1, den_plain, scale):
+        # [x-factor * n0 + (n1 + D den) * scale] on one more coefficient
+        head = _times_linear(n0, inv) if scale is not None else _times_linear(n0, no_d)
+        tail = n1 + D[:, None] * den_plain
+        tail = tail * scale[:, None] if scale is not None else tail
+        return head + np.concatenate([np.zeros((points, 1)), tail], axis=1)
+
+    n0z = _ss_num(phi, gamma0, C, no_d, plain.den)
+    n1z = _ss_num(phi, gamma1, C, no_d, plain.den)
+    num_z = assemble(n0z, n1z, plain.den, None)
+    den_z = np.concatenate([plain.den, np.zeros((points, 1))], axis=1)  # times z
+    n0d = _ss_num(a_delta, gamma0 * inv[:, None], C, no_d, plain.dden)
+    n1d = _ss_num(a_delta, gamma1 * inv[:, None], C, no_d, plain.dden)
+    num_d = assemble(n0d, n1d, plain.dden, inv)
+    den_d = _times_linear(plain.dden, inv)  # times (g + 1/ts)
     return _Rational(num_z, den_z, num_d, den_d)
 
 
@@ -493,7 +502,8 @@ def discretize_loop(
         )
     if np.any(has_frac):
         rows = np.flatnonzero(has_frac)
-        modified = _zoh_fractional(num[rows], den[rows], ts[rows], frac[rows])
+        plain_rows = _Rational(rational.num[rows], rational.den[rows], rational.dnum[rows], rational.dden[rows])
+        modified = _zoh_fractional(num[rows], den[rows], ts[rows], frac[rows], plain_rows)
         num_z[rows] = _times_linear_power(modified.num, zero[rows], num_shift[rows], final_width)
         num_d[rows] = _times_linear_power(modified.dnum, inv[rows], num_shift[rows], final_width)
     num_d = num_d * (ts ** -whole)[:, None]
@@ -574,6 +584,9 @@ def discretize(
     den = np.trim_zeros(den, "f")
     if den.size == 0:
         raise InputError("denominator is zero")
+    extra = num.size - den.size
+    if extra > 0 and not np.any(num[:extra]):
+        num = num[extra:]  # leading zeros only; the degree is what counts
     if np.asarray(ts).ndim != 0:
         raise InputError("ts must be a scalar here; use discretize_loop for per-point periods")
     loop = discretize_loop(Loop(num=num, den=den), ts, method=method, delay=delay, prewarp=prewarp)
