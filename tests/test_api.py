@@ -23,6 +23,12 @@ EXPECTED_PUBLIC_NAMES = {
     "read_gains",
     "write_gains",
     "discretize_loop",
+    "GainInterval",
+    "SpecRegion",
+    "stable_gain_intervals",
+    "spec_gain_intervals",
+    "routh_array",
+    "jury_test",
 }
 
 

@@ -19,6 +19,9 @@ from .design.engine import verify
 from .design.results import DesignResult, VerifyResult
 from .design.gainsfile import read_gains, write_gains
 from .lti.discretize import discretize, discretize_loop
+from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
+from .lti.regions import SpecRegion
+from .lti.stability import jury_test, routh_array
 
 __all__ = [
     "__version__",
@@ -41,4 +44,10 @@ __all__ = [
     "read_gains",
     "write_gains",
     "discretize_loop",
+    "GainInterval",
+    "SpecRegion",
+    "stable_gain_intervals",
+    "spec_gain_intervals",
+    "routh_array",
+    "jury_test",
 ]

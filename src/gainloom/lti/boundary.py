@@ -47,7 +47,6 @@ import numpy as np
 from scipy.optimize import brentq
 
 from ..errors import InputError
-from .polynomials import pad_left
 
 __all__ = [
     "Crossings",
@@ -60,7 +59,7 @@ __all__ = [
     "log1p_complex",
 ]
 
-#: Relative size of |N| (against |D| + |N| scale) below which N counts as zero.
+#: Relative size of |N| (against the size of its terms) below which N counts as zero.
 _ZERO_N = 1e-10
 #: Largest |Im t| / max(1, |t|) for which a root of the Im polynomial counts as real.
 _REAL_ROOT = 1e-6
@@ -68,7 +67,7 @@ _REAL_ROOT = 1e-6
 
 @dataclass(frozen=True)
 class Crossings:
-    """Real gains at which a closed-loop root lies on one curve.
+    """Real gains at which a closed-loop root lies on one curve (one loop).
 
     Attributes
     ----------
@@ -113,64 +112,212 @@ def log1p_complex(x: np.ndarray) -> np.ndarray:
     return real + 1j * np.arctan2(b, 1.0 + a)
 
 
-def _prepare(num: object, den: object) -> tuple[np.ndarray, np.ndarray]:
-    den = np.trim_zeros(np.asarray(den, dtype=float), "f")
+# -- batched polynomial helpers -------------------------------------------------
+
+
+def _batch(num: object, den: object) -> tuple[np.ndarray, np.ndarray, bool]:
+    """(P, n+1) numerator and denominator, each row scaled by its max |den|.
+
+    A common scale of N and D leaves every gain unchanged.
+    """
     num = np.asarray(num, dtype=float)
-    if den.size == 0:
-        raise InputError("denominator is identically zero")
-    num = np.trim_zeros(num, "f")
-    if num.size > den.size:
-        raise InputError(f"improper loop: numerator degree {num.size - 1} > denominator degree {den.size - 1}")
-    num = pad_left(num if num.size else np.zeros(1), den.size)
-    # One common scale leaves K unchanged and keeps magnitudes near 1.
-    scale = float(np.max(np.abs(den)))
-    return num / scale, den / scale
+    den = np.asarray(den, dtype=float)
+    single = num.ndim <= 1 and den.ndim <= 1
+    if single:
+        den = np.trim_zeros(np.atleast_1d(den), "f")
+        num = np.trim_zeros(np.atleast_1d(num), "f")
+        if den.size == 0:
+            raise InputError("denominator is identically zero")
+        if num.size == 0:
+            num = np.zeros(1)
+    num, den = np.atleast_2d(num), np.atleast_2d(den)
+    if num.ndim != 2 or den.ndim != 2:
+        raise InputError(f"num and den must be 1-D or 2-D coefficient arrays; got shapes {num.shape} and {den.shape}")
+    if not (np.all(np.isfinite(num)) and np.all(np.isfinite(den))):
+        raise InputError("loop coefficients must be finite")
+    while num.shape[1] > den.shape[1] and np.all(num[:, 0] == 0):
+        num = num[:, 1:]
+    if num.shape[1] > den.shape[1]:
+        raise InputError(
+            f"improper loop: numerator degree {num.shape[1] - 1} > denominator degree {den.shape[1] - 1}"
+        )
+    if np.any(den[:, 0] == 0):
+        raise InputError(f"leading denominator coefficient is zero at point {int(np.flatnonzero(den[:, 0] == 0)[0])}")
+    points = max(num.shape[0], den.shape[0])
+    if num.shape[0] not in (1, points) or den.shape[0] not in (1, points):
+        raise InputError(f"num has {num.shape[0]} rows but den has {den.shape[0]}")
+    width = den.shape[1]
+    num = np.concatenate([np.zeros((num.shape[0], width - num.shape[1])), num], axis=1)
+    num = np.broadcast_to(num, (points, width))
+    den = np.broadcast_to(den, (points, width))
+    scale = np.max(np.abs(den), axis=1, keepdims=True)
+    return num / scale, den / scale, single
 
 
-def _empty() -> Crossings:
-    return Crossings(np.zeros(0), np.zeros(0, dtype=complex), np.zeros(0, dtype=complex))
+def _column(values: np.ndarray, k: int, ndim: int) -> np.ndarray:
+    return values[:, k].reshape((-1,) + (1,) * (ndim - 1))
 
 
-def _im_product(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Real coefficients of ``Im(A(t) conj(B(t)))`` for real ``t``."""
-    product = np.polymul(a, np.conj(b))
-    return np.imag(product)
+def _bpolyval(coeffs: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """Row-wise Horner: ``coeffs`` (M, n+1), ``x`` (M, ...) -> (M, ...)."""
+    x = np.asarray(x)
+    out = np.broadcast_to(_column(coeffs, 0, x.ndim), x.shape).astype(complex)
+    for k in range(1, coeffs.shape[1]):
+        out = out * x + _column(coeffs, k, x.ndim)
+    return out
+
+
+def _bpolyder(coeffs: np.ndarray) -> np.ndarray:
+    n = coeffs.shape[1] - 1
+    if n == 0:
+        return np.zeros_like(coeffs)
+    return coeffs[:, :-1] * np.arange(n, 0, -1)
+
+
+def _bconv(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Row-wise polynomial product of (M, la) and (M, lb)."""
+    out = np.zeros((a.shape[0], a.shape[1] + b.shape[1] - 1), dtype=np.result_type(a, b))
+    for i in range(a.shape[1]):
+        out[:, i : i + b.shape[1]] += a[:, i : i + 1] * b
+    return out
+
+
+def _basis(top: np.ndarray, bottom: np.ndarray, n: int) -> np.ndarray:
+    """``R[p, i] = top^(n-i) bottom^i`` as (P, n+1, n+1) coefficients in ``t``.
+
+    ``top`` and ``bottom`` are (P, 2) linear polynomials; then
+    ``sum_i p_i R_i = bottom^n p(top/bottom)``.
+    """
+    rows = top.shape[0]
+    top_powers = [np.ones((rows, 1), dtype=complex)]
+    bottom_powers = [np.ones((rows, 1), dtype=complex)]
+    for _ in range(n):
+        top_powers.append(_bconv(top_powers[-1], top))
+        bottom_powers.append(_bconv(bottom_powers[-1], bottom))
+    basis = np.zeros((rows, n + 1, n + 1), dtype=complex)
+    for i in range(n + 1):
+        product = _bconv(top_powers[n - i], bottom_powers[i])
+        basis[:, i, n + 1 - product.shape[1] :] = product[:, -(n + 1) :]
+    return basis
 
 
 def _real_roots(q: np.ndarray) -> np.ndarray:
-    q = np.asarray(q, dtype=float)
-    size = np.max(np.abs(q)) if q.size else 0.0
+    """Real roots (t > 0) of one real polynomial, rounding noise trimmed."""
+    size = float(np.max(np.abs(q))) if q.size else 0.0
     if size == 0.0:
         return np.zeros(0)
-    q = np.trim_zeros(np.where(np.abs(q) <= 1e-14 * size, 0.0, q), "f")
+    q = np.where(np.abs(q) <= 1e-14 * size, 0.0, q)
+    q = np.trim_zeros(q, "f")
     if q.size < 2:
         return np.zeros(0)
     roots = np.roots(q)
-    keep = np.abs(roots.imag) <= _REAL_ROOT * np.maximum(1.0, np.abs(roots))
+    keep = (np.abs(roots.imag) <= _REAL_ROOT * np.maximum(1.0, np.abs(roots))) & (roots.real > 0)
     return np.sort(roots[keep].real)
 
 
-def _classify(
-    num: np.ndarray, den: np.ndarray, points: np.ndarray
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Gains for candidate points; split off infinite-gain and fixed points.
+def _classify(num: np.ndarray, den: np.ndarray, points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Gains for candidate points (row-aligned coefficients and points).
 
-    Returns (mask of finite-gain points, gains, fixed points).
+    Returns ``(finite, gains, fixed)``: ``finite`` marks points with
+    ``N != 0``; ``fixed`` marks points where ``N`` and ``D`` both vanish.
     """
-    d = np.polyval(den, points)
-    n = np.polyval(num, points)
-    # Size of the terms that make up D and N at the point: a value below a
-    # small fraction of it is a zero up to rounding.
-    powers = np.abs(points)[:, None] ** np.arange(den.size - 1, -1, -1)
-    d_size = powers @ np.abs(den)
-    n_size = powers @ np.abs(num)
+    d = _bpolyval(den, points)
+    n = _bpolyval(num, points)
+    # Size of the terms that make up D and N: a value below a small fraction
+    # of it is zero up to rounding.
+    modulus = np.abs(points)
+    n_size = _bpolyval(np.abs(num), modulus).real
+    d_size = _bpolyval(np.abs(den), modulus).real
     n_zero = np.abs(n) <= _ZERO_N * np.maximum(n_size, 1e-300)
     d_zero = np.abs(d) <= _ZERO_N * np.maximum(d_size, 1e-300)
-    fixed = points[n_zero & d_zero]
     finite = ~n_zero
-    with np.errstate(divide="ignore", invalid="ignore"):
-        gains = np.where(finite, -(d / np.where(finite, n, 1.0)).real, np.nan)
-    return finite, gains, fixed
+    gains = np.full(points.shape, np.nan)
+    gains[finite] = -(d[finite] / n[finite]).real
+    return finite, gains, n_zero & d_zero
+
+
+def _split(rows: np.ndarray, count: int, *arrays: np.ndarray) -> list[list[np.ndarray]]:
+    order = np.argsort(rows, kind="stable")
+    bounds = np.searchsorted(rows[order], np.arange(count + 1))
+    return [[a[order][bounds[p] : bounds[p + 1]] for a in arrays] for p in range(count)]
+
+
+def _finish(
+    num: np.ndarray,
+    den: np.ndarray,
+    rows: np.ndarray,
+    points: np.ndarray,
+    gains: np.ndarray,
+    fixed_rows: np.ndarray,
+    fixed_points: np.ndarray,
+    real_points: np.ndarray,
+    single: bool,
+) -> Crossings | list[Crossings]:
+    """Add the real-axis points and split the flat results per loop."""
+    count = num.shape[0]
+    if real_points.size:
+        real_points = np.broadcast_to(np.asarray(real_points, dtype=complex), (count, real_points.shape[-1]))
+        valid = np.isfinite(real_points)
+        r_rows = np.broadcast_to(np.arange(count)[:, None], real_points.shape)[valid]
+        r_points = real_points[valid]
+        finite, r_gains, r_fixed = _classify(num[r_rows], den[r_rows], r_points)
+        rows = np.concatenate([rows, r_rows[finite]])
+        points = np.concatenate([points, r_points[finite]])
+        gains = np.concatenate([gains, r_gains[finite]])
+        fixed_rows = np.concatenate([fixed_rows, r_rows[r_fixed]])
+        fixed_points = np.concatenate([fixed_points, r_points[r_fixed]])
+    per_loop = _split(rows, count, gains, points)
+    per_fixed = _split(fixed_rows, count, fixed_points)
+    out = []
+    for (g, x), (f,) in zip(per_loop, per_fixed):
+        order = np.argsort(g, kind="stable")
+        out.append(Crossings(g[order], x[order].astype(complex), f.astype(complex)))
+    return out[0] if single else out
+
+
+def _rational_crossings(
+    num: np.ndarray,
+    den: np.ndarray,
+    top: np.ndarray,
+    bottom: np.ndarray,
+    real_points: np.ndarray,
+    single: bool,
+) -> Crossings | list[Crossings]:
+    """Crossings of the curve ``top(t)/bottom(t)``, ``t > 0`` (both linear, per loop)."""
+    count, width = den.shape
+    n = width - 1
+    top = np.broadcast_to(np.asarray(top, dtype=complex), (count, 2))
+    bottom = np.broadcast_to(np.asarray(bottom, dtype=complex), (count, 2))
+    basis = _basis(top, bottom, n)
+    a = np.einsum("pi,pik->pk", den.astype(complex), basis)
+    b = np.einsum("pi,pik->pk", num.astype(complex), basis)
+    q = _bconv(a, np.conj(b)).imag
+    # t = 0 is the curve's real-axis point: there A and B are real, so the
+    # constant coefficient is an exact zero; the real point is added exactly.
+    q = q[:, :-1]
+    t_lists = [_real_roots(q[p]) for p in range(count)]
+    rows = np.concatenate([np.full(t.size, p) for p, t in enumerate(t_lists)] + [np.zeros(0, dtype=int)]).astype(int)
+    t = np.concatenate(t_lists + [np.zeros(0)])
+
+    def curve(tt: np.ndarray) -> np.ndarray:
+        return (top[rows, 0] * tt + top[rows, 1]) / (bottom[rows, 0] * tt + bottom[rows, 1])
+
+    def slope(tt: np.ndarray) -> np.ndarray:
+        upper = top[rows, 0] * tt + top[rows, 1]
+        lower = bottom[rows, 0] * tt + bottom[rows, 1]
+        return (top[rows, 0] * lower - upper * bottom[rows, 0]) / lower**2
+
+    nums, dens = num[rows], den[rows]
+    points = curve(t)
+    finite, gains, fixed = _classify(nums, dens, points)
+    fixed_rows, fixed_points = rows[fixed], points[fixed]
+    keep = finite
+    rows, t, gains = rows[keep], t[keep], gains[keep]
+    nums, dens = nums[keep], dens[keep]
+    if t.size:
+        t, gains = _polish(nums, dens, t, gains, curve, slope)
+    points = curve(t)
+    return _finish(num, den, rows, points, gains, fixed_rows, fixed_points, np.asarray(real_points), single)
 
 
 def _polish(
@@ -182,20 +329,19 @@ def _polish(
     slope: Callable[[np.ndarray], np.ndarray],
     iterations: int = 6,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Newton steps on ``D(c(t)) + K N(c(t)) = 0`` in real ``(t, K)``, vectorised."""
-    dden, dnum = np.polyder(den), np.polyder(num)
-    t = t.astype(float).copy()
-    gains = gains.astype(float).copy()
+    """Newton steps on ``D(c(t)) + K N(c(t)) = 0`` in real ``(t, K)``, all crossings at once."""
+    dden, dnum = _bpolyder(den), _bpolyder(num)
+    t, gains = t.astype(float), gains.astype(float)
 
     def residual(tt: np.ndarray, kk: np.ndarray) -> np.ndarray:
         x = curve(tt)
-        return np.polyval(den, x) + kk * np.polyval(num, x)
+        return _bpolyval(den, x) + kk * _bpolyval(num, x)
 
     f = residual(t, gains)
     for _ in range(iterations):
         x = curve(t)
-        fx = (np.polyval(dden, x) + gains * np.polyval(dnum, x)) * slope(t)
-        nx = np.polyval(num, x)
+        fx = (_bpolyval(dden, x) + gains * _bpolyval(dnum, x)) * slope(t)
+        nx = _bpolyval(num, x)
         a, b, c, d = fx.real, nx.real, fx.imag, nx.imag
         det = a * d - b * c
         ok = np.abs(det) > 1e-300
@@ -203,8 +349,9 @@ def _polish(
         step_t = np.where(ok, -(d * f.real - b * f.imag) / safe, 0.0)
         step_k = np.where(ok, -(-c * f.real + a * f.imag) / safe, 0.0)
         t_new, k_new = t + step_t, gains + step_k
-        f_new = residual(t_new, k_new)
-        better = np.abs(f_new) < np.abs(f)
+        with np.errstate(over="ignore", invalid="ignore"):
+            f_new = residual(t_new, k_new)
+        better = (np.abs(f_new) < np.abs(f)) & (t_new > 0)
         if not np.any(better):
             break
         t = np.where(better, t_new, t)
@@ -213,89 +360,42 @@ def _polish(
     return t, gains
 
 
-def _assemble(
-    num: np.ndarray,
-    den: np.ndarray,
-    t: np.ndarray,
-    curve: Callable[[np.ndarray], np.ndarray],
-    slope: Callable[[np.ndarray], np.ndarray] | None,
-    real_points: np.ndarray,
-) -> Crossings:
-    points = curve(t) if t.size else np.zeros(0, dtype=complex)
-    finite, gains, fixed = _classify(num, den, points)
-    t, gains, points = t[finite], gains[finite], points[finite]
-    if slope is not None and t.size:
-        t, gains = _polish(num, den, t, gains, curve, slope)
-        points = curve(t)
-    real_points = np.asarray(real_points, dtype=complex)
-    if real_points.size:
-        r_finite, r_gains, r_fixed = _classify(num, den, real_points)
-        gains = np.concatenate([gains, r_gains[r_finite]])
-        points = np.concatenate([points, real_points[r_finite]])
-        fixed = np.concatenate([fixed, r_fixed])
-    order = np.argsort(gains, kind="stable")
-    return Crossings(gains[order], points[order].astype(complex), fixed.astype(complex))
+# -- public curve solvers ------------------------------------------------------
 
 
-def _compose(poly: np.ndarray, top: np.ndarray, bottom: np.ndarray) -> np.ndarray:
-    """Coefficients in ``t`` of ``sum_i p_i top(t)^(n-i) bottom(t)^i``.
-
-    With ``bottom = 1`` this is ``p(top(t))``; with a linear ``bottom`` it is
-    ``bottom^n p(top/bottom)``.
-    """
-    n = poly.size - 1
-    top_powers = [np.ones(1, dtype=complex)]
-    bottom_powers = [np.ones(1, dtype=complex)]
-    for _ in range(n):
-        top_powers.append(np.polymul(top_powers[-1], top))
-        bottom_powers.append(np.polymul(bottom_powers[-1], bottom))
-    total = np.zeros(1, dtype=complex)
-    for i, coeff in enumerate(poly):
-        total = np.polyadd(total, coeff * np.polymul(top_powers[n - i], bottom_powers[i]))
-    return total
-
-
-def line_crossings(num: object, den: object, origin: complex, direction: complex) -> Crossings:
+def line_crossings(num: object, den: object, origin: object, direction: object) -> Crossings | list[Crossings]:
     """Gains putting a closed-loop root on the half-line ``origin + direction t``, ``t >= 0``.
 
     Parameters
     ----------
-    num, den : array_like, shape (m + 1,), (n + 1,)
-        Loop numerator and denominator, descending powers of the variable.
-    origin, direction : complex
-        The half-line; e.g. the imaginary axis is ``origin=0, direction=1j``
-        (its lower half is the mirror image), the line ``Re s = -sigma`` is
-        ``origin=-sigma, direction=1j``, a constant-damping ray is
-        ``origin=0, direction=-zeta + 1j sqrt(1 - zeta^2)`` (rad/s per unit
-        ``t``).
+    num, den : array_like, shape (m + 1,), (n + 1,) or (P, n + 1)
+        Loop numerator and denominator, descending powers of the variable;
+        a leading axis gives ``P`` loops.
+    origin : float or array_like of shape (P,)
+        Real start of the half-line (same units as the variable).
+    direction : complex or array_like of shape (P,)
+        Direction, ``Im > 0``: the imaginary axis is ``origin=0,
+        direction=1j`` (its lower half is the mirror image), the line
+        ``Re s = -sigma`` is ``origin=-sigma, direction=1j``, a
+        constant-damping ray is ``origin=0, direction=-zeta + 1j sqrt(1 -
+        zeta^2)``.
 
     Returns
     -------
-    Crossings
-        Includes the real-axis point ``origin`` when it is real.
+    Crossings, or list of Crossings (one per loop) for 2-D input
+        Includes the real-axis point ``origin``.
     """
-    num, den = _prepare(num, den)
-    origin, direction = complex(origin), complex(direction)
-    if direction == 0:
-        raise InputError("line direction must be non-zero")
-    line = np.array([direction, origin])
-    q = _im_product(_compose(den, line, np.ones(1)), _compose(num, line, np.ones(1)))
-    t = _real_roots(q)
-    # t = 0 is the real-axis point, handled exactly below when origin is real.
-    on_axis = abs(origin.imag) == 0.0
-    t = t[t > (1e-9 if on_axis else -1e-12) * max(1.0, abs(origin) / abs(direction))]
-    t = np.maximum(t, 0.0)
-
-    def curve(tt: np.ndarray) -> np.ndarray:
-        return origin + direction * np.asarray(tt, dtype=float)
-
-    def slope(tt: np.ndarray) -> np.ndarray:
-        return np.full(np.shape(tt), direction)
-
-    return _assemble(num, den, t, curve, slope, np.array([origin]) if on_axis else np.zeros(0))
+    num, den, single = _batch(num, den)
+    origin = np.broadcast_to(np.asarray(origin, dtype=float), (den.shape[0],))
+    direction = np.broadcast_to(np.asarray(direction, dtype=complex), (den.shape[0],))
+    if np.any(direction.imag <= 0):
+        raise InputError("line direction must point into the upper half-plane (Im > 0)")
+    top = np.stack([direction, origin.astype(complex)], axis=1)
+    bottom = np.array([[0.0, 1.0]], dtype=complex)
+    return _rational_crossings(num, den, top, bottom, origin[:, None], single)
 
 
-def circle_crossings(num: object, den: object, right: float, left: float) -> Crossings:
+def circle_crossings(num: object, den: object, right: object, left: object) -> Crossings | list[Crossings]:
     """Gains putting a closed-loop root on the circle through real points ``right > left``.
 
     The circle is symmetric about the real axis: centre ``(right + left)/2``,
@@ -306,107 +406,220 @@ def circle_crossings(num: object, den: object, right: float, left: float) -> Cro
 
     Parameters
     ----------
-    num, den : array_like
+    num, den : array_like, shape (n + 1,) or (P, n + 1)
         Loop numerator and denominator, descending powers of the variable.
-    right, left : float
+    right, left : float or array_like of shape (P,)
         Real-axis points of the circle, same units as the variable.
 
     Returns
     -------
-    Crossings
+    Crossings, or list of Crossings (one per loop) for 2-D input
         Includes both real-axis points.
     """
-    num, den = _prepare(num, den)
-    right, left = float(right), float(left)
-    if not right > left:
+    num, den, single = _batch(num, den)
+    right = np.broadcast_to(np.asarray(right, dtype=float), (den.shape[0],))
+    left = np.broadcast_to(np.asarray(left, dtype=float), (den.shape[0],))
+    if not np.all(right > left):
         raise InputError(f"circle needs right > left real-axis points; got right={right}, left={left}")
-    top = np.array([-1j * left, right])
-    bottom = np.array([-1j, 1.0])
-    q = _im_product(_compose(den, top, bottom), _compose(num, top, bottom))
-    v = _real_roots(q)
-    # v = 0 is the point `right`, v = inf the point `left`: both handled below.
-    v = v[v > 1e-9]
+    # c(v) = (right - j left v)/(1 - j v): v = tan(theta/2) over the upper half.
+    top = np.stack([-1j * left, right.astype(complex)], axis=1)
+    bottom = np.array([[-1j, 1.0]], dtype=complex)
+    return _rational_crossings(num, den, top, bottom, np.stack([right, left], axis=1), single)
 
-    def curve(vv: np.ndarray) -> np.ndarray:
-        vv = np.asarray(vv, dtype=float)
-        return (right - 1j * left * vv) / (1.0 - 1j * vv)
 
-    def slope(vv: np.ndarray) -> np.ndarray:
-        vv = np.asarray(vv, dtype=float)
-        return 1j * (right - left) / (1.0 - 1j * vv) ** 2
+def _local_dips(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(row, index) of interior local minima of |values| with no sign change either side."""
+    size = np.abs(values)
+    signs = np.sign(values)
+    with np.errstate(invalid="ignore"):
+        dip = (
+            (size[:, 1:-1] < size[:, :-2])
+            & (size[:, 1:-1] < size[:, 2:])
+            & (signs[:, 1:-1] == signs[:, :-2])
+            & (signs[:, 1:-1] == signs[:, 2:])
+        )
+    rows, index = np.nonzero(dip)
+    return rows, index + 1
 
-    return _assemble(num, den, v, curve, slope, np.array([right, left]))
+
+def _interesting(values: np.ndarray, grid: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Cells worth a closer look: sign changes (one cell) and dips (two cells).
+
+    Returns ``(rows, low, high, is_change)``.
+    """
+    signs = np.sign(values)
+    with np.errstate(invalid="ignore"):
+        change = signs[:, :-1] * signs[:, 1:] < 0
+    c_rows, c_index = np.nonzero(change)
+    d_rows, d_index = _local_dips(values)
+    rows = np.concatenate([c_rows, d_rows])
+    low = np.concatenate([grid[c_rows, c_index], grid[d_rows, d_index - 1]])
+    high = np.concatenate([grid[c_rows, c_index + 1], grid[d_rows, d_index + 1]])
+    is_change = np.concatenate([np.ones(c_rows.size, bool), np.zeros(d_rows.size, bool)])
+    return rows, low, high, is_change
+
+
+def _brackets(
+    values: np.ndarray,
+    grid: np.ndarray,
+    measure: Callable[[np.ndarray, np.ndarray], np.ndarray],
+    levels: int = 2,
+    points: int = 32,
+) -> list[tuple[int, float, float]]:
+    """Brackets of sign changes of ``values`` on ``grid``, resampled near trouble.
+
+    Several crossings inside one grid cell may show as one sign change (odd
+    count) or none at all (even count, a dip of ``|Im(D conj N)|``).  Every
+    sign-change cell and the two cells around every dip are resampled with
+    ``points`` points, ``levels`` times (all cells at once); the sign changes
+    of the last level are the brackets.  A dip that never reaches zero is a
+    tangency or nothing and is let go.
+    """
+    rows, low, high, _ = _interesting(values, grid)
+    share = np.linspace(0.0, 1.0, points + 1)
+    for _ in range(levels):
+        if rows.size == 0:
+            return []
+        fine = low[:, None] + (high - low)[:, None] * share
+        sampled = measure(fine, rows[:, None])
+        sub_rows, low, high, is_change = _interesting(sampled, fine)
+        rows = rows[sub_rows]
+    return [(int(p), float(a), float(b)) for p, a, b, c in zip(rows, low, high, is_change) if c]
+
+
+def _nudge_ends(grid: np.ndarray) -> np.ndarray:
+    """Move the ends of every run of finite grid points a hair inward.
+
+    The ends of a sampled curve are its real-axis points, where
+    ``Im(D conj N)`` is zero up to rounding: its sign there is noise and
+    would hide a crossing in the end cell.  The real points themselves are
+    evaluated exactly elsewhere.
+    """
+    grid = np.array(grid, dtype=float)
+    valid = np.isfinite(grid)
+    padded = np.pad(valid, ((0, 0), (1, 1)), constant_values=False)
+    starts = valid & ~padded[:, :-2] & padded[:, 2:]
+    stops = valid & ~padded[:, 2:] & padded[:, 1:-1] & padded[:, :-2]
+    rows, cols = np.nonzero(starts)
+    grid[rows, cols] += 1e-7 * (grid[rows, cols + 1] - grid[rows, cols])
+    rows, cols = np.nonzero(stops)
+    grid[rows, cols] -= 1e-7 * (grid[rows, cols] - grid[rows, cols - 1])
+    return grid
 
 
 def sampled_crossings(
     num: object,
     den: object,
-    curve: Callable[[np.ndarray], np.ndarray],
+    curve: Callable[[np.ndarray, np.ndarray], np.ndarray],
     grid: np.ndarray,
     real_points: object = (),
-) -> Crossings:
+) -> Crossings | list[Crossings]:
     """Gains putting a closed-loop root on a sampled curve, refined by brentq.
 
     Parameters
     ----------
-    num, den : array_like
+    num, den : array_like, shape (n + 1,) or (P, n + 1)
         Loop numerator and denominator, descending powers of the variable.
     curve : callable
-        Vectorised map from real parameters to points of the curve (upper
-        half-plane part), in the polynomial's variable.
-    grid : ndarray of float
-        Increasing parameters; a crossing is found in each grid cell where
-        ``Im(D conj N)`` changes sign and refined to ``~1e-14`` in the
-        parameter.
-    real_points : array_like of float
-        The curve's points on the real axis (evaluated directly).
+        ``curve(t, rows)`` maps real parameters ``t`` of loops ``rows``
+        (integer array broadcasting with ``t``) to points of the curve's
+        upper half, in the polynomial's variable.
+    grid : ndarray of float, shape (G,) or (P, G)
+        Increasing parameters per loop; ``nan`` marks cells to skip.  The
+        ends of each run of finite values are taken as real-axis points of
+        the curve (give them in ``real_points``) and sampled a hair inside.  A
+        crossing is found in each cell where ``Im(D conj N)`` changes sign
+        and refined by brentq to ``~1e-15`` relative in the parameter;
+        sign-change cells and dips of ``|Im(D conj N)|`` are resampled first
+        (32 points, two levels) so that several crossings in one cell are
+        found.
+    real_points : array_like of float, shape (r,) or (P, r)
+        The curve's points on the real axis (evaluated directly); ``nan``
+        entries are skipped.
 
     Returns
     -------
-    Crossings
+    Crossings, or list of Crossings (one per loop) for 2-D input
     """
-    num, den = _prepare(num, den)
-    grid = np.asarray(grid, dtype=float)
+    num, den, single = _batch(num, den)
+    count = den.shape[0]
+    grid = np.broadcast_to(np.asarray(grid, dtype=float), (count, np.shape(grid)[-1]))
+    all_rows = np.arange(count)[:, None]
 
-    def measure(tt: np.ndarray) -> np.ndarray:
-        x = curve(tt)
-        d = np.polyval(den, x)
-        n = np.polyval(num, x)
+    def measure(tt: np.ndarray, rows: np.ndarray) -> np.ndarray:
+        x = curve(tt, rows)
+        d = _bpolyval(den[rows.ravel()].reshape(-1, den.shape[1]), x.reshape(rows.shape[0], -1)).reshape(x.shape)
+        n = _bpolyval(num[rows.ravel()].reshape(-1, num.shape[1]), x.reshape(rows.shape[0], -1)).reshape(x.shape)
         with np.errstate(invalid="ignore"):
             return np.imag(d * np.conj(n)) / (np.abs(d) ** 2 + np.abs(n) ** 2)
 
-    values = measure(grid)
-    signs = np.sign(values)
-    found = list(grid[1:-1][signs[1:-1] == 0.0])
-    cells = np.flatnonzero(signs[:-1] * signs[1:] < 0)
-    for i in cells:
-        found.append(
-            brentq(lambda tt: float(measure(np.array([tt]))[0]), grid[i], grid[i + 1], xtol=1e-300, rtol=1e-15)
-        )
-    t = np.sort(np.asarray(found, dtype=float))
-    return _assemble(num, den, t, curve, None, np.asarray(real_points, dtype=float))
+    grid = _nudge_ends(grid)
+    values = measure(grid, all_rows)
+    exact = values[:, 1:-1] == 0.0
+    found_rows, found_t = [], []
+    for p, i in zip(*np.nonzero(exact)):
+        found_rows.append(p)
+        found_t.append(grid[p, i + 1])
+    cells = _brackets(values, grid, measure)
+    den_lists, num_lists = den.tolist(), num.tolist()
+    for p, left, right in cells:
+        row = np.array([[p]])
+        d_coeffs, n_coeffs = den_lists[p], num_lists[p]
+
+        def scalar(tt: float, row: np.ndarray = row, d_coeffs=d_coeffs, n_coeffs=n_coeffs) -> float:
+            # Plain-Python Horner: brentq calls this one value at a time.
+            x = complex(curve(np.array([[tt]]), row)[0, 0])
+            d = n = 0j
+            for dc, nc in zip(d_coeffs, n_coeffs):
+                d = d * x + dc
+                n = n * x + nc
+            return (d * n.conjugate()).imag / (abs(d) ** 2 + abs(n) ** 2)
+
+        found_rows.append(p)
+        found_t.append(brentq(scalar, left, right, xtol=1e-300, rtol=1e-15))
+    rows = np.asarray(found_rows, dtype=int)
+    t = np.asarray(found_t, dtype=float)
+    points = curve(t, rows) if t.size else np.zeros(0, dtype=complex)
+    finite, gains, fixed = _classify(num[rows], den[rows], points)
+    real_points = np.asarray(real_points, dtype=float)
+    if real_points.size:
+        real_points = np.broadcast_to(real_points, (count, real_points.shape[-1]))
+    return _finish(
+        num,
+        den,
+        rows[finite],
+        points[finite],
+        gains[finite],
+        rows[fixed],
+        points[fixed],
+        real_points,
+        single,
+    )
 
 
-def imaginary_axis_crossings(num: object, den: object) -> Crossings:
+def imaginary_axis_crossings(num: object, den: object) -> Crossings | list[Crossings]:
     """Gains putting a closed-loop root of ``D + K N`` (in ``s``) on the imaginary axis."""
     return line_crossings(num, den, 0.0, 1j)
 
 
-def unit_circle_crossings(num: object, den: object, ts: float | None = None, delta: bool = False) -> Crossings:
+def unit_circle_crossings(
+    num: object, den: object, ts: object = None, delta: bool = False
+) -> Crossings | list[Crossings]:
     """Gains putting a closed-loop root on the unit circle.
 
     Parameters
     ----------
-    num, den : array_like
+    num, den : array_like, shape (n + 1,) or (P, n + 1)
         Loop in ``z``, or in ``g = (z - 1)/ts`` when ``delta`` is true.
-    ts : float, optional
+    ts : float or array_like of shape (P,), optional
         Sample period in seconds; required with ``delta``.
     delta : bool
         Whether ``num``/``den`` are delta-operator polynomials.  Points are
         then returned in ``g``.
     """
     if delta:
-        if ts is None or not ts > 0:
+        if ts is None or not np.all(np.asarray(ts, dtype=float) > 0):
             raise InputError(f"the delta form needs a positive sample period; got ts={ts}")
-        return circle_crossings(num, den, 0.0, -2.0 / ts)
+        ts = np.asarray(ts, dtype=float)
+        return circle_crossings(num, den, np.zeros_like(ts), -2.0 / ts)
     return circle_crossings(num, den, 1.0, -1.0)

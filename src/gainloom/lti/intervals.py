@@ -99,58 +99,90 @@ def _spiral_grid() -> np.ndarray:
     return np.unique(grid)
 
 
-def _curve_crossings(num: np.ndarray, den: np.ndarray, region: SpecRegion, ts: float | None, delta: bool) -> list[Crossings]:
-    """Crossings of every boundary curve of ``region`` for one loop."""
+def _curve_crossings(
+    nums: np.ndarray, dens: np.ndarray, region: SpecRegion, ts: np.ndarray | None, delta: bool
+) -> list[list[Crossings]]:
+    """Crossings of every boundary curve of ``region``, all loops at once.
+
+    Returns one list per curve, each with one :class:`Crossings` per loop.
+    """
     zeta, sigma = region.min_damping, region.min_decay
     low, high = region.wn_range
     frequencies = [wn for wn in (low, high) if 0.0 < wn < math.inf]
-    found: list[Crossings] = []
+    found: list[list[Crossings]] = []
     if ts is None:
-        found.append(line_crossings(num, den, 0.0, 1j))
+        found.append(line_crossings(nums, dens, 0.0, 1j))
         if sigma > 0:
-            found.append(line_crossings(num, den, -sigma, 1j))
+            found.append(line_crossings(nums, dens, -sigma, 1j))
         if zeta > 0:
-            found.append(line_crossings(num, den, 0.0, complex(-zeta, math.sqrt(1.0 - zeta**2))))
+            found.append(line_crossings(nums, dens, 0.0, complex(-zeta, math.sqrt(1.0 - zeta**2))))
         for wn in frequencies:
-            found.append(circle_crossings(num, den, wn, -wn))
+            found.append(circle_crossings(nums, dens, wn, -wn))
         return found
 
-    # z-plane: map a point z = exp(s ts) into the polynomial's variable.
+    # z-plane: map points z = exp(s ts) into the polynomial's variable.
     if delta:
-        def from_s(s: np.ndarray) -> np.ndarray:
-            return expm1_complex(np.asarray(s) * ts) / ts
+        def from_s(s: np.ndarray, period: np.ndarray) -> np.ndarray:
+            return expm1_complex(s * period) / period
 
-        def circle(right_minus_one: float, radius: float) -> Crossings:
-            return circle_crossings(num, den, right_minus_one / ts, -(1.0 + radius) / ts)
+        def circle(right_minus_one: np.ndarray, radius: np.ndarray) -> list[Crossings]:
+            return circle_crossings(nums, dens, right_minus_one / ts, -(1.0 + radius) / ts)
     else:
-        def from_s(s: np.ndarray) -> np.ndarray:
-            return np.exp(np.asarray(s, dtype=complex) * ts)
+        def from_s(s: np.ndarray, period: np.ndarray) -> np.ndarray:
+            return np.exp(s * period)
 
-        def circle(right_minus_one: float, radius: float) -> Crossings:
-            return circle_crossings(num, den, radius, -radius)
+        def circle(right_minus_one: np.ndarray, radius: np.ndarray) -> list[Crossings]:
+            return circle_crossings(nums, dens, radius, -radius)
 
-    found.append(circle(0.0, 1.0))
+    ones = np.ones_like(ts)
+    found.append(circle(0.0 * ones, ones))
     if sigma > 0:
-        found.append(circle(math.expm1(-sigma * ts), math.exp(-sigma * ts)))
+        found.append(circle(np.expm1(-sigma * ts), np.exp(-sigma * ts)))
     if region.max_pole_radius is not None and region.max_pole_radius < 1.0:
         r = region.max_pole_radius
-        found.append(circle(r - 1.0, r))
+        found.append(circle((r - 1.0) * ones, r * ones))
     if zeta > 0:
         grid = _spiral_grid()
-        ends = from_s(spiral_s(np.array([0.0, math.pi]), zeta, ts)).real
-        found.append(
-            sampled_crossings(num, den, lambda u: from_s(spiral_s(u, zeta, ts)), grid, real_points=ends)
-        )
+        column = ts[:, None]
+        ends = from_s(spiral_s(np.array([[0.0, math.pi]]), zeta, column), column).real
+
+        def spiral(u: np.ndarray, rows: np.ndarray) -> np.ndarray:
+            period = ts[rows]
+            return from_s(spiral_s(u, zeta, period), period)
+
+        found.append(sampled_crossings(nums, dens, spiral, grid, real_points=ends))
     for wn in frequencies:
-        for a, b in wn_contour_arcs(wn, ts):
-            grid = np.linspace(a, b, _GRID_UNIFORM)
-            ends = from_s(wn * np.exp(1j * np.array([a, b]))).real
-            found.append(
-                sampled_crossings(
-                    num, den, lambda psi, wn=wn: from_s(wn * np.exp(1j * np.asarray(psi))), grid, real_points=ends
-                )
-            )
+        grid, ends = _wn_grid(wn, ts, from_s)
+
+        def contour(psi: np.ndarray, rows: np.ndarray, wn: float = wn) -> np.ndarray:
+            return from_s(wn * np.exp(1j * psi), ts[rows])
+
+        found.append(sampled_crossings(nums, dens, contour, grid, real_points=ends))
     return found
+
+
+def _wn_grid(wn: float, ts: np.ndarray, from_s) -> tuple[np.ndarray, np.ndarray]:
+    """Per-loop angle grids over the arcs of ``|s| = wn`` inside the principal strip.
+
+    Two arcs (``wn ts > pi``) get half the points each with a ``nan`` between
+    them, so the cell across the gap is skipped; the arc ends are real-axis
+    points of the z-plane contour.
+    """
+    grid = np.empty((ts.size, _GRID_UNIFORM))
+    ends = np.full((ts.size, 4), np.nan)
+    half = (_GRID_UNIFORM - 1) // 2
+    for p, period in enumerate(ts):
+        arcs = wn_contour_arcs(wn, float(period))
+        if len(arcs) == 1:
+            grid[p] = np.linspace(0.0, math.pi, _GRID_UNIFORM)
+        else:
+            (a1, b1), (a2, b2) = arcs
+            grid[p, :half] = np.linspace(a1, b1, half)
+            grid[p, half] = np.nan
+            grid[p, half + 1 :] = np.linspace(a2, b2, _GRID_UNIFORM - half - 1)
+        edges = np.array([a for arc in arcs for a in arc])
+        ends[p, : edges.size] = from_s(wn * np.exp(1j * edges), period).real
+    return grid, ends
 
 
 def _candidates(num: np.ndarray, den: np.ndarray, crossings: list[Crossings], sign: float) -> np.ndarray | None:
@@ -163,7 +195,7 @@ def _candidates(num: np.ndarray, den: np.ndarray, crossings: list[Crossings], si
     scale = float(np.max(np.abs(den)) / max(float(np.max(np.abs(num))), 1e-300))
     gains = np.sort(gains[np.isfinite(gains) & (gains > 1e-13 * scale)])
     if gains.size > 1:
-        keep = np.concatenate([[True], np.diff(gains) > 1e-12 * gains[1:]])
+        keep = np.concatenate([[True], np.diff(gains) > 1e-9 * gains[1:]])
         gains = gains[keep]
     return gains
 
@@ -194,6 +226,17 @@ def _merge(edges: np.ndarray, member: np.ndarray, sign: float) -> list[GainInter
 
 
 def _normalise(num: object, den: object, ts: object, delta: object) -> tuple[Loop, bool]:
+    if isinstance(num, Loop):
+        if den is not None or ts is not None or delta is not None:
+            raise InputError("given a Loop, leave den, ts and delta unset: they come from the loop")
+        if np.any(num.dead_time != 0):
+            raise InputError(
+                "the loop carries dead time outside its rational part; discretise it (or replace the "
+                "delay by a rational approximation) before asking for gain intervals"
+            )
+        return num, False
+    if den is None:
+        raise InputError("den is required unless num is a Loop")
     num_a, den_a = np.asarray(num, dtype=float), np.asarray(den, dtype=float)
     single = num_a.ndim <= 1 and den_a.ndim <= 1
     if delta is not None:
@@ -219,9 +262,9 @@ def _intervals(
     dens = loop.delta_den if use_delta else loop.den
     plans = []  # (loop index, sign, edges) per searched side
     rows, gains = [], []
+    per_curve = _curve_crossings(nums, dens, region, None if loop.ts is None else np.asarray(loop.ts), use_delta)
     for i in range(loop.points):
-        ts = None if loop.ts is None else float(loop.ts[i])
-        crossings = _curve_crossings(nums[i], dens[i], region, ts, use_delta)
+        crossings = [curve[i] for curve in per_curve]
         scale = float(np.max(np.abs(dens[i])) / max(float(np.max(np.abs(nums[i]))), 1e-300))
         for sign in signs:
             edges = _candidates(nums[i], dens[i], crossings, sign)
@@ -265,7 +308,7 @@ def _intervals(
 
 def spec_gain_intervals(
     num: object,
-    den: object,
+    den: object | None,
     region: SpecRegion,
     ts: object = None,
     delta: tuple[object, object] | None = None,
@@ -276,7 +319,10 @@ def spec_gain_intervals(
     ----------
     num, den : array_like, shape (n + 1,) or (P, n + 1)
         Loop numerator(s) and denominator(s) of ``K N/D``, descending powers
-        of ``s`` or ``z``; a leading batch axis gives ``P`` loops.
+        of ``s`` or ``z``; a leading batch axis gives ``P`` loops.  ``num``
+        may instead be a :class:`~gainloom.lti.loop.Loop` (``den=None``):
+        its sample periods and delta form are used, and one list per point
+        is returned.
     region : SpecRegion
         The spec region (damping, decay in 1/s, ``wn`` in rad/s, pole
         radius).  Its ``ts`` is used when ``ts`` is not given.
@@ -301,7 +347,12 @@ def spec_gain_intervals(
     """
     if not isinstance(region, SpecRegion):
         raise InputError(f"region must be a SpecRegion; got {type(region).__name__}")
-    if ts is None:
+    if isinstance(num, Loop):
+        own = num.ts
+        if region.ts is not None and (own is None or not np.allclose(own, region.ts, rtol=1e-12, atol=0.0)):
+            found = "a continuous loop" if own is None else f"ts={np.asarray(own).tolist()}"
+            raise InputError(f"the region's ts={region.ts} conflicts with the loop ({found})")
+    elif ts is None:
         ts = region.ts
     elif region.ts is not None:
         given = np.asarray(ts, dtype=float)
@@ -316,7 +367,7 @@ def spec_gain_intervals(
 
 def stable_gain_intervals(
     num: object,
-    den: object,
+    den: object | None = None,
     ts: object = None,
     negative: bool = False,
     delta: tuple[object, object] | None = None,
@@ -328,6 +379,9 @@ def stable_gain_intervals(
     num, den : array_like, shape (n + 1,) or (P, n + 1)
         Loop numerator(s) and denominator(s), descending powers of ``s``
         (``ts=None``) or ``z``; a leading batch axis gives ``P`` loops.
+        ``num`` may instead be a :class:`~gainloom.lti.loop.Loop`
+        (``den=None``): its sample periods and delta form are used, and one
+        list per point is returned.
     ts : float or array_like of shape (P,), optional
         Sample period(s) in seconds for discrete loops.
     negative : bool
