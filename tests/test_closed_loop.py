@@ -178,3 +178,16 @@ def test_bad_gain_shapes_are_refused():
         closed_loop_poles(loop, np.ones((3, 4)))
     with pytest.raises(InputError, match="finite"):
         closed_loop_poles(loop, [np.nan])
+
+
+def test_discretised_loop_from_the_discretiser_matches_the_50_digit_reference(fast_loop):
+    # The whole chain: gainloom's ZOH discretiser (delta form) then
+    # closed_loop_poles, against the same 50-digit mpmath reference.
+    from gainloom.lti.discretize import discretize_loop
+
+    _, _, refs = fast_loop
+    k0 = np.prod([-p for p in POLES]).real / np.prod([-z for z in ZEROS])
+    plant = Loop(num=k0 * np.poly(ZEROS), den=np.real(np.poly(POLES)))
+    discrete = discretize_loop(plant, TS, "zoh")
+    assert discrete.delta_den is not None
+    assert _worst_relative_error(closed_loop_poles(discrete, GAINS)[0], refs) < 1e-8

@@ -22,6 +22,10 @@ from .lti.discretize import discretize, discretize_loop
 from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
 from .lti.regions import SpecRegion
 from .lti.stability import jury_test, routh_array
+from .lti.closed_loop import closed_loop_poles
+from .lti.margins import Margins, loop_margins
+from .lti.trace import LocusBranches, trace_locus
+from .lti.discretize import discretize, discretize_loop
 
 __all__ = [
     "__version__",
@@ -50,4 +54,11 @@ __all__ = [
     "spec_gain_intervals",
     "routh_array",
     "jury_test",
+    "closed_loop_poles",
+    "Margins",
+    "loop_margins",
+    "LocusBranches",
+    "trace_locus",
+    "discretize",
+    "discretize_loop",
 ]

@@ -1,0 +1,760 @@
+"""Root-locus branches of many loops, traced with adaptive gain samples.
+
+The branches of the locus of ``D + K N = 0`` are traced for every loop of a
+batch at once (details and the reasons for each choice:
+``docs/tracing-and-margins.md``):
+
+1. **Gain range.**  Unless given, ``k_max`` is the smallest scanned gain at
+   which the locus is in its asymptotic regime: every finite zero has a
+   closed-loop root within ``zero_tol`` plot scales and the other ``n - m``
+   roots are farther than ``far_factor`` plot scales from the centroid, each
+   within ``asymptote_tol`` degrees of an asymptote.  The smallest positive
+   sample is the largest scanned gain at which no root has moved by a
+   hundredth of a step.  The scan runs every three decades around a
+   reference gain, then decade by decade near both ends.
+2. **Samples.**  The scanned gains are refined in rounds.  In each round
+   every new interval between neighbouring samples (of every loop) is
+   checked at once and split where a matched root moves farther than the
+   allowed step (``max_step`` plot scales; more beyond the plot), which
+   concentrates samples where poles move fast and near breakaways
+   (``dK/ds -> 0``), or where the match is ambiguous.
+3. **Matching.**  Roots of neighbouring samples are matched on the distance
+   from a first-order prediction ``r + dK dr/dK`` with
+   ``dr/dK = -N(r)/(D'(r) + K N'(r))`` (the step clipped to the allowed
+   step, so a prediction never flies off at a collision).  Per-interval
+   matches are composed into branches by a log-depth scan: no Python loop
+   runs per gain sample.
+4. **Crossings.**  Where a branch crosses the stability boundary the gain is
+   found by regula falsi to ``crossing_rtol`` and a sample is put there.
+
+New samples get their roots from Newton (then Aberth-Ehrlich) iteration seeded
+by the matched neighbours, with companion eigenvalues as the fallback.
+Discrete loops with a delta-operator form are traced in ``g = (z - 1)/ts``
+(the plane in which fast-sampled poles are well separated) and returned in
+``z``.  The angle condition ``arg L(r) = 180 deg`` (``K > 0``) or ``0 deg``
+(``K < 0``) is evaluated at every traced root and returned as a residual.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import InputError
+from .loop import Loop
+from .polynomials import batched_roots
+
+__all__ = ["LocusBranches", "trace_locus", "angle_residual"]
+
+_COARSE_DECADES = np.arange(-15.0, 16.0, 3.0)
+#: Beyond the plot scale the allowed step grows by this fraction of the
+#: distance past it (branches there run straight out along asymptotes).
+_FAR_GROWTH = 0.25
+
+
+@dataclass(frozen=True, eq=False)
+class LocusBranches:
+    """Continuous root-locus branches of a batch of loops.
+
+    Attributes
+    ----------
+    gains : ndarray, shape (P, G)
+        Gain samples per loop, increasing in ``|K|`` from 0; loops with fewer
+        than ``G`` samples repeat their last sample (see ``counts``).
+    roots : ndarray of complex, shape (P, G, n)
+        Closed-loop roots in ``s`` (rad/s) or ``z``; ``roots[p, :, b]`` is
+        branch ``b`` of loop ``p``, continuous in the gain.
+    counts : ndarray of int, shape (P,)
+        Number of distinct samples per loop.
+    residual : ndarray, shape (P, G, n)
+        Angle-condition residual in degrees, ``|arg(-K L(r))|`` (see
+        :func:`angle_residual`; ``nan`` where the angle is undefined: ``K = 0``,
+        roots at infinity, roots on an open-loop pole or zero to rounding).
+    k_max : ndarray, shape (P,)
+        Largest ``|K|`` traced per loop.
+    crossing_gains : tuple of ndarray
+        Per loop, gains (bracketed to ``crossing_rtol``) at which a branch
+        crosses the stability boundary (imaginary axis or unit circle).
+    negative : bool
+        True for the complementary locus (``K <= 0``).
+    discrete : bool
+        Roots are in ``z``.
+    warnings : tuple of str
+        Conditions a reader must know (e.g. the asymptotic regime not
+        reached, sample cap hit).
+    """
+
+    gains: np.ndarray
+    roots: np.ndarray
+    counts: np.ndarray
+    residual: np.ndarray
+    k_max: np.ndarray
+    crossing_gains: tuple[np.ndarray, ...]
+    negative: bool
+    discrete: bool
+    warnings: tuple[str, ...] = ()
+
+    @property
+    def max_residual(self) -> float:
+        """Largest angle-condition residual over all traced roots, degrees."""
+        finite = self.residual[np.isfinite(self.residual)]
+        return float(finite.max()) if finite.size else 0.0
+
+
+def _horner_rows(coeffs: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """Evaluate row-wise polynomials ``coeffs`` (C, n + 1) at ``x`` (C, k)."""
+    acc = np.broadcast_to(coeffs[:, :1].astype(complex), x.shape).copy()
+    for k in range(1, coeffs.shape[1]):
+        acc = acc * x + coeffs[:, k : k + 1]
+    return acc
+
+
+def _derivative(coeffs: np.ndarray) -> np.ndarray:
+    n = coeffs.shape[1] - 1
+    return coeffs[:, :-1] * np.arange(n, 0, -1)
+
+
+def angle_residual(
+    num: np.ndarray,
+    den: np.ndarray,
+    gains: np.ndarray,
+    roots: np.ndarray,
+    poles: np.ndarray | None = None,
+    zeros: np.ndarray | None = None,
+) -> np.ndarray:
+    """Angle-condition residual of closed-loop roots, in degrees.
+
+    The angle condition in its textbook form: ``arg L(r) = arg(n_m/d_n) +
+    sum arg(r - z_i) - sum arg(r - p_i)`` must be 180 deg (``K > 0``) or
+    0 deg (``K < 0``) modulo 360 deg.  The factored form keeps its digits
+    where a root sits close to an open-loop pole (small gains), where
+    evaluating ``N/D`` from coefficients would cancel.
+
+    Parameters
+    ----------
+    num, den : ndarray, shape (C, n + 1)
+        Loop polynomials per row, in the variable of ``roots``.
+    gains : ndarray, shape (C,)
+        Gain of each row.
+    roots : ndarray, shape (C, k)
+        Roots of ``den + gain num`` to check.
+    poles, zeros : ndarray, shape (C, n), optional
+        Open-loop poles and finite zeros per row (zeros ``nan``-padded); by
+        default computed from ``num`` and ``den``.
+
+    Returns
+    -------
+    ndarray, shape (C, k)
+        Residual in degrees, in ``[0, 180]``; ``nan`` where the angle is
+        undefined: at ``K = 0``, at infinite roots, and at roots equal to an
+        open-loop pole or zero to rounding (within 4 eps relative).
+    """
+    num = np.asarray(num, dtype=float)
+    den = np.asarray(den, dtype=float)
+    gains = np.asarray(gains, dtype=float)
+    roots = np.asarray(roots, dtype=complex)
+    if poles is None or zeros is None:
+        poles, zeros, _, _, _, _, lead_n = _features(num, den)
+    else:
+        nonzero = num != 0
+        lead_n = num[np.arange(num.shape[0]), np.argmax(nonzero, axis=1)]
+    with np.errstate(all="ignore"):
+        finite = np.isfinite(roots)
+        # The product of the factors has the summed angle (one arctan per
+        # root); positive rescaling changes no angle.
+        unit = 1.0 / np.maximum(np.max(np.abs(poles), axis=1), 1e-300)[:, np.newaxis]
+        r = np.where(finite, roots, 0.0) * unit
+        p_unit = poles * unit
+        z_unit = zeros * unit
+        phasor = np.ones(roots.shape, dtype=complex)
+        # A root that equals an open-loop pole or zero to rounding has no
+        # defined angle (the limits K -> 0 and K -> infinity).
+        on_feature = np.zeros(roots.shape, dtype=bool)
+        tiny = 4 * np.finfo(float).eps
+        for j in range(poles.shape[1]):  # loops over the order only
+            to_p = r - p_unit[:, j : j + 1]
+            on_feature |= np.abs(to_p) <= tiny * np.maximum(np.abs(r), np.abs(p_unit[:, j : j + 1]))
+            phasor *= np.conj(to_p)
+            zj = z_unit[:, j : j + 1]
+            to_z = np.where(np.isnan(zj), 1.0, r - zj)
+            on_feature |= ~np.isnan(zj) & (np.abs(to_z) <= tiny * np.maximum(np.abs(r), np.abs(zj)))
+            phasor *= to_z
+            # Keep the running product at unit size (no underflow/overflow).
+            size = np.abs(phasor)
+            phasor = np.where(size > 0, phasor / np.where(size > 0, size, 1.0), phasor)
+        # -K L(r) must be a positive real number: its argument is the residual.
+        phasor = phasor * np.sign(-gains * lead_n / den[:, 0])[:, np.newaxis]
+        residual = np.abs(np.angle(phasor))
+    ok = finite & (gains[:, np.newaxis] != 0) & ~on_feature
+    return np.where(ok, np.rad2deg(residual), np.nan)
+
+
+def _roots(num: np.ndarray, den: np.ndarray, gains: np.ndarray) -> np.ndarray:
+    """Roots of ``den + gains num`` row by row, shape (C, n); ``inf`` for lost degree."""
+    poly = den + gains[:, np.newaxis] * num
+    lead_terms = np.abs(den[:, 0]) + np.abs(gains * num[:, 0])
+    vanished = np.abs(poly[:, 0]) <= 8 * np.finfo(float).eps * lead_terms
+    if not np.any(vanished):
+        return batched_roots(poly)
+    out = np.full(poly.shape[:1] + (poly.shape[1] - 1,), np.inf + 0j)
+    out[~vanished] = batched_roots(poly[~vanished])
+    # A biproper loop at K = -d0/n0: one root is at infinity; the others are
+    # the roots of the lower-degree polynomial.  (Deeper degeneracies, all
+    # gains exactly cancelling two coefficients, are left at infinity.)
+    low = poly[vanished][:, 1:]
+    usable = low[:, 0] != 0
+    if np.any(usable):
+        sub = np.full((low.shape[0], poly.shape[1] - 1), np.inf + 0j)
+        sub[usable, :-1] = batched_roots(low[usable])
+        out[vanished] = sub
+    return out
+
+
+def _polish(poly, dpoly, seeds, scale, simultaneous, iterations=8):
+    """Newton (or Aberth-Ehrlich) iterations from seeds, and a verdict per row.
+
+    The verdict checks convergence, root separation (two seeds on one root)
+    and Vieta's sum of the roots.
+    """
+    r = np.where(np.isfinite(seeds), seeds, 0.0)
+    n = r.shape[1]
+    off = ~np.eye(n, dtype=bool)
+    with np.errstate(all="ignore"):
+        for _ in range(iterations):
+            step = _horner_rows(poly, r) / _horner_rows(dpoly, r)
+            if simultaneous:
+                # Aberth-Ehrlich: Newton's step corrected by the other roots,
+                # so two seeds do not slide onto one root.
+                diff = r[:, :, np.newaxis] - r[:, np.newaxis, :]
+                repel = np.sum(np.divide(1.0, diff, where=off, out=np.zeros_like(diff)), axis=2)
+                aberth = step / (1.0 - step * repel)
+                step = np.where(np.isfinite(aberth), aberth, step)
+            r = r - step
+        ok = np.all(np.isfinite(seeds), axis=1)
+        ok &= np.all(np.abs(step) <= 1e-11 * np.maximum(np.abs(r), scale[:, np.newaxis]), axis=1)
+        if n > 1:
+            gap = np.abs(r[:, :, np.newaxis] - r[:, np.newaxis, :])
+            gap[:, np.arange(n), np.arange(n)] = np.inf
+            ok &= np.min(gap, axis=(1, 2)) > 1e-6 * scale
+        vieta = -poly[:, 1] / poly[:, 0]
+        ok &= np.abs(r.sum(axis=1) - vieta) <= 1e-9 * (np.sum(np.abs(r), axis=1) + scale)
+    return r, ok
+
+
+def _roots_from_seeds(num, den, gains, seeds, scale):
+    """Roots of ``den + gains num`` from branch seeds, cheaply.
+
+    Seeds interpolated between matched neighbours are close to the roots, so
+    a few Newton steps per root are much cheaper than an eigenvalue problem.
+    Rows where Newton does not settle (a multiple root, a seed that slid to a
+    neighbour's root: caught by root separation and Vieta's sum) are retried
+    with Aberth-Ehrlich iteration, and what still fails falls back to the
+    companion eigenvalues.
+    """
+    poly = den + gains[:, np.newaxis] * num
+    dpoly = _derivative(poly)
+    r, ok = _polish(poly, dpoly, seeds, scale, simultaneous=False)
+    ok &= np.abs(poly[:, 0]) > 8 * np.finfo(float).eps * (np.abs(den[:, 0]) + np.abs(gains * num[:, 0]))
+    if not np.all(ok):
+        bad = np.flatnonzero(~ok)
+        r2, ok2 = _polish(poly[bad], dpoly[bad], seeds[bad], scale[bad], simultaneous=True)
+        ok2 &= np.abs(poly[bad, 0]) > 8 * np.finfo(float).eps * (np.abs(den[bad, 0]) + np.abs(gains[bad] * num[bad, 0]))
+        r[bad[ok2]] = r2[ok2]
+        worst = bad[~ok2]
+        if worst.size:
+            r[worst] = _roots(num[worst], den[worst], gains[worst])
+    return r
+
+
+def _features(num: np.ndarray, den: np.ndarray):
+    """Open-loop poles, finite zeros (nan-padded), relative degree, plot scale, centroid."""
+    poles = batched_roots(den)
+    n = den.shape[1] - 1
+    nonzero = num != 0
+    first = np.where(nonzero.any(axis=1), np.argmax(nonzero, axis=1), n + 1)
+    m = n - first  # numerator degree per loop
+    zeros = np.full((num.shape[0], n), np.nan + 0j)
+    for degree in np.unique(m):
+        if degree <= 0:
+            continue
+        rows = np.flatnonzero(m == degree)
+        zeros[rows, :degree] = batched_roots(num[rows, n - degree :])
+    with np.errstate(invalid="ignore"):
+        lead_n = num[np.arange(num.shape[0]), np.minimum(first, n)]
+    excess = n - m
+    # Centroid of the asymptotes: (sum poles - sum zeros)/(n - m).
+    sum_p = poles.sum(axis=1)
+    sum_z = np.nansum(zeros, axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        centroid = np.where(excess > 0, (sum_p - sum_z) / np.maximum(excess, 1), 0.0)
+    features = np.concatenate([poles, zeros, centroid[:, np.newaxis]], axis=1)
+    scale = np.nanmax(np.abs(features), axis=1)
+    scale = np.where(scale > 0, scale, 1.0)
+    return poles, zeros, m, excess, scale, centroid, lead_n
+
+
+def _asymptotic(roots, zeros, excess, scale, centroid, negative, zero_tol, far_factor, asymptote_tol):
+    """Per row: is the locus at these roots in its asymptotic regime?"""
+    C, n = roots.shape
+    ok = np.ones(C, dtype=bool)
+    # Every finite zero has a root within zero_tol * scale.
+    dist = np.abs(roots[:, :, np.newaxis] - zeros[:, np.newaxis, :])  # (C, n roots, n zeros)
+    dist = np.where(np.isnan(dist), np.inf, dist)
+    near = np.min(dist, axis=1)
+    has_zero = ~np.isnan(zeros)
+    ok &= np.all(~has_zero | (near <= zero_tol * scale[:, np.newaxis]), axis=1)
+    # The other n - m roots (not those sitting on zeros) are far out and
+    # along the asymptotes.
+    on_zero = np.min(dist, axis=2) <= zero_tol * scale[:, np.newaxis]
+    offset = roots - centroid[:, np.newaxis]
+    far = (np.abs(offset) > far_factor * scale[:, np.newaxis]) & ~on_zero
+    far_count = np.sum(far | ~np.isfinite(roots), axis=1)
+    ok &= far_count >= excess
+    angle = np.angle(np.where(np.isfinite(offset), offset, 1.0))
+    q = np.maximum(excess, 1)[:, np.newaxis]
+    base = 0.0 if negative else np.pi
+    # Asymptote angles (base + 2 pi l)/q: distance to the nearest one.
+    phase = (angle - base / q) * q / (2 * np.pi)
+    miss = np.abs(phase - np.round(phase)) * 2 * np.pi / q
+    bad_angle = far & np.isfinite(roots) & (miss > np.deg2rad(asymptote_tol))
+    ok &= ~np.any(bad_angle, axis=1)
+    return ok
+
+
+def _allowed_step(roots_a, roots_b, scale, max_step):
+    """Largest allowed move of each root between neighbouring samples.
+
+    ``max_step`` plot scales inside the plot region; beyond it the bound
+    grows with the distance (a quarter of the distance past the plot scale),
+    because a branch running out along an asymptote is a straight line.
+    """
+    local = np.minimum(np.abs(roots_a), np.abs(roots_b))
+    local = np.where(np.isfinite(local), local, np.inf)
+    s = scale[:, np.newaxis]
+    return np.maximum(max_step * s, _FAR_GROWTH * (local - s))
+
+
+def _match(num, den, k_a, k_b, r_a, r_b, allowed):
+    """Greedy assignment of roots ``r_a`` (at ``k_a``) to ``r_b`` (at ``k_b``).
+
+    Returns ``perm`` (C, n) with ``r_b[perm[:, i]]`` continuing ``r_a[:, i]``,
+    the matched displacement (C, n) and an ambiguity flag (C,).
+    """
+    C, n = r_a.shape
+    with np.errstate(all="ignore"):
+        finite_a = np.isfinite(r_a)
+        ra = np.where(finite_a, r_a, 0.0)
+        slope = -_horner_rows(num, ra) / _horner_rows(_derivative(den) + k_a[:, np.newaxis] * _derivative(num), ra)
+        step = (k_b - k_a)[:, np.newaxis] * slope
+        size = np.abs(step)
+        # Clip the predicted step to the allowed step: at a collision the
+        # derivative is infinite and the bare position is the better guess.
+        step = np.where(np.isfinite(size) & (size > 0), step * np.minimum(1.0, allowed / size), 0.0)
+        predicted = np.where(finite_a, r_a + step, r_a)
+        cost = np.abs(predicted[:, :, np.newaxis] - r_b[:, np.newaxis, :])
+        both_inf = ~np.isfinite(predicted)[:, :, np.newaxis] & ~np.isfinite(r_b)[:, np.newaxis, :]
+        cost = np.where(both_inf, 0.0, cost)
+        cost = np.where(np.isnan(cost), np.inf, cost)
+    big = np.finfo(float).max
+    cost = np.where(np.isinf(cost), big, cost)
+    # Fast path: every root's nearest neighbour, where that is a permutation.
+    perm = np.argmin(cost, axis=2)
+    taken = np.zeros((C, n), dtype=int)
+    np.add.at(taken, (np.repeat(np.arange(C), n), perm.ravel()), 1)
+    clash = np.flatnonzero(np.any(taken != 1, axis=1))
+    if clash.size:
+        # Greedy global-minimum assignment where nearest neighbours collide:
+        # n steps, each over the whole sub-batch.
+        work = cost[clash].copy()
+        sub = np.zeros((clash.size, n), dtype=int)
+        idx = np.arange(clash.size)
+        for _ in range(n):
+            flat = np.argmin(work.reshape(clash.size, -1), axis=1)
+            i, j = np.divmod(flat, n)
+            sub[idx, i] = j
+            work[idx, i, :] = np.inf
+            work[idx, :, j] = np.inf
+        perm[clash] = sub
+    rows = np.arange(C)
+    chosen = cost[rows[:, np.newaxis], np.arange(n), perm]
+    # Ambiguous: another root of b is about as close to a's prediction.
+    others = cost.copy()
+    others[rows[:, np.newaxis], np.arange(n), perm] = np.inf
+    if n > 1:
+        runner_up = np.min(others, axis=2)
+        rival_col = np.argmin(others, axis=2)
+        owner = np.empty_like(perm)
+        owner[rows[:, np.newaxis], perm] = np.arange(n)
+        rival = np.take_along_axis(owner, rival_col, axis=1)
+        # Swapping two roots that coincide at sample a (a multiple pole at
+        # K = 0, the meeting point of a breakaway) changes no branch: only
+        # distinct roots can be mismatched.
+        apart = np.abs(r_a - np.take_along_axis(r_a, rival, axis=1)) > 0.1 * allowed
+        apart &= np.isfinite(r_a)
+        ambiguous = np.any((chosen > 0.5 * runner_up) & apart, axis=1)
+    else:
+        ambiguous = np.zeros(C, dtype=bool)
+    displacement = np.abs(np.take_along_axis(r_b, perm, axis=1) - r_a)
+    displacement = np.where(np.isnan(displacement), np.inf, displacement)
+    return perm, displacement, ambiguous
+
+
+def _compose(perms: np.ndarray, starts: np.ndarray) -> np.ndarray:
+    """Prefix composition of per-interval matches into branch orders.
+
+    ``perms`` (C, n): sample ``c`` -> ``c + 1``.  Returns ``order`` (C + 1, n)
+    with ``order[c, b]`` the index at sample ``c`` of branch ``b``; each loop
+    restarts at its ``starts`` sample with the identity.  Log-depth
+    (Hillis-Steele) scan.
+    """
+    total = perms.shape[0] + 1
+    n = perms.shape[1]
+    # step[c] maps index at sample c - 1 to index at sample c; identity at loop starts.
+    step = np.empty((total, n), dtype=int)
+    step[0] = np.arange(n)
+    step[1:] = perms
+    step[starts] = np.arange(n)
+    acc = step.copy()  # acc[c] = step[c] o ... o step[c - span + 1] (within the loop)
+    index = np.arange(total)
+    segment = np.maximum.accumulate(np.where(np.isin(index, starts), index, 0))
+    span = 1
+    while span < total:
+        prev = index - span
+        use = prev >= segment
+        # acc[c] o acc[c - span]: the earlier map is applied first.
+        composed = np.take_along_axis(acc, acc[np.where(use, prev, 0)], axis=1)
+        acc = np.where(use[:, np.newaxis], composed, acc)
+        span *= 2
+    return acc
+
+
+def _crossing_gains(num, den, sign, lo, hi, r_lo, r_hi, boundary, rtol):
+    """Gains where one tracked root crosses the stability boundary.
+
+    Illinois (modified regula falsi) in ``|K|`` on ``boundary(r(K))``, the
+    root ``r(K)`` followed by Newton's method from the interpolated bracket
+    ends; all brackets at once.
+    """
+    f_lo, f_hi = boundary(r_lo), boundary(r_hi)
+    poly_n, poly_d = num, den
+    d_num, d_den = _derivative(num), _derivative(den)
+    last = np.zeros(lo.size, dtype=int)
+    active = np.ones(lo.size, dtype=bool)
+    with np.errstate(all="ignore"):
+        for _ in range(60):
+            if not np.any(active):
+                break
+            k = (lo * f_hi - hi * f_lo) / (f_hi - f_lo)
+            bad = ~np.isfinite(k) | (k <= lo) | (k >= hi)
+            k = np.where(bad, 0.5 * (lo + hi), k)
+            t = (k - lo) / (hi - lo)
+            r = r_lo + t * (r_hi - r_lo)
+            gain = (sign * k)[:, np.newaxis]
+            poly = poly_d + gain * poly_n
+            dpoly = d_den + gain * d_num
+            for _ in range(5):
+                r = r - _horner_rows(poly, r[:, np.newaxis])[:, 0] / _horner_rows(dpoly, r[:, np.newaxis])[:, 0]
+            f = boundary(r)
+            ok = np.isfinite(f)
+            f = np.where(ok, f, 0.5 * (f_lo + f_hi))
+            to_lo = (np.signbit(f) == np.signbit(f_lo)) & active
+            to_hi = ~to_lo & active
+            # Illinois: halve the stale end's value when one end moves twice.
+            f_hi = np.where(to_lo & (last == 1), 0.5 * f_hi, f_hi)
+            f_lo = np.where(to_hi & (last == 2), 0.5 * f_lo, f_lo)
+            lo, f_lo, r_lo = np.where(to_lo, k, lo), np.where(to_lo, f, f_lo), np.where(to_lo, r, r_lo)
+            hi, f_hi, r_hi = np.where(to_hi, k, hi), np.where(to_hi, f, f_hi), np.where(to_hi, r, r_hi)
+            last = np.where(to_lo, 1, np.where(to_hi, 2, last))
+            active &= (hi - lo) > rtol * hi
+            active &= f != 0
+    return np.where(np.abs(f_lo) <= np.abs(f_hi), lo, hi)
+
+
+def trace_locus(
+    loop: Loop,
+    k_max: object = None,
+    negative: bool = False,
+    max_step: float = 0.05,
+    *,
+    zero_tol: float = 0.01,
+    far_factor: float = 2.0,
+    asymptote_tol: float = 5.0,
+    crossing_rtol: float = 1e-6,
+    max_rounds: int = 40,
+    max_samples: int = 4000,
+) -> LocusBranches:
+    """Trace the root-locus branches of every loop of a batch.
+
+    Parameters
+    ----------
+    loop : Loop
+        ``P`` loops ``N/D`` in ``s`` or ``z``.
+    k_max : float or array_like, shape (P,), optional
+        Largest ``|K|`` to trace (dimensionless); by default the start of the
+        asymptotic regime (module notes).
+    negative : bool
+        Trace the complementary locus ``K <= 0``.
+    max_step : float
+        Largest move of a root between neighbouring samples, as a fraction of
+        the loop's plot scale (the largest magnitude among open-loop poles,
+        finite zeros and the centroid; measured from ``s = 0``, from ``z = 0``,
+        or from ``z = 1`` for delta-form discrete loops, which are traced in
+        ``g = (z - 1)/ts``).  Beyond the plot scale the bound grows by a quarter
+        of the distance past it.
+    zero_tol, far_factor, asymptote_tol : float
+        Asymptotic-regime criterion (fractions of the plot scale; degrees).
+    crossing_rtol : float
+        Relative gain bracket of stability-boundary crossings.
+    max_rounds, max_samples : int
+        Refinement limits (a warning says when one was hit).
+
+    Returns
+    -------
+    LocusBranches
+    """
+    if not isinstance(loop, Loop):
+        raise InputError(f"expected a gainloom Loop; got {type(loop).__name__}")
+    if not (0 < max_step < 1):
+        raise InputError(f"max_step is a fraction of the plot scale in (0, 1); got {max_step}")
+    P, n = loop.points, loop.order
+    if n == 0:
+        raise InputError("a loop of order 0 has no root locus")
+    delta = loop.is_discrete and loop.delta_den is not None
+    num = np.array(loop.delta_num if delta else loop.num)
+    den = np.array(loop.delta_den if delta else loop.den)
+    sign = -1.0 if negative else 1.0
+    warnings: list[str] = []
+
+    poles, zeros, m, excess, scale, centroid, lead_n = _features(num, den)
+    if np.any(m < 0):
+        raise InputError("a loop with a zero numerator has no root locus")
+
+    # --- gain range from a scan of decades (one batched call) -------------
+    with np.errstate(divide="ignore", over="ignore"):
+        k_ref = np.abs(den[:, 0]) / np.abs(lead_n) * scale ** excess.astype(float)
+    k_ref = np.where(np.isfinite(k_ref) & (k_ref > 0), k_ref, 1.0)
+
+    def scan_at(decades):
+        """Roots, asymptotic flags and 'not yet moved' flags at k_ref 10^decades (P, D)."""
+        gains_pd = k_ref[:, np.newaxis] * 10.0 ** decades
+        width_d = decades.shape[1]
+        rws = np.repeat(np.arange(P), width_d)
+        rts = _roots(num[rws], den[rws], sign * gains_pd.ravel())
+        asy = _asymptotic(
+            rts, zeros[rws], excess[rws], scale[rws], centroid[rws],
+            negative, zero_tol, far_factor, asymptote_tol,
+        ).reshape(P, -1)
+        dist = np.abs(rts[:, :, np.newaxis] - poles[rws][:, np.newaxis, :])
+        moved = np.max(np.min(np.where(np.isnan(dist), np.inf, dist), axis=2), axis=1).reshape(P, -1)
+        return gains_pd, rts.reshape(P, width_d, n), asy, moved <= 0.01 * max_step * scale[:, np.newaxis]
+
+    # Coarse scan every 3 decades, then the two decades below the first
+    # asymptotic one and above the last unmoved one.
+    coarse = np.broadcast_to(_COARSE_DECADES, (P, _COARSE_DECADES.size))
+    g1, r1, a1, s1 = scan_at(coarse)
+    top1 = np.where(a1.any(axis=1), np.argmax(a1, axis=1), coarse.shape[1] - 1)
+    still1 = s1 & (np.arange(coarse.shape[1]) < top1[:, np.newaxis])
+    low1 = np.where(still1.any(axis=1), coarse.shape[1] - 1 - np.argmax(still1[:, ::-1], axis=1), 0)
+    top_dec = coarse[np.arange(P), top1]
+    low_dec = coarse[np.arange(P), low1]
+    fine = np.stack([top_dec - 2, top_dec - 1, low_dec + 1, low_dec + 2], axis=1)
+    g2, r2, a2, s2 = scan_at(fine)
+    scan = np.concatenate([g1, g2], axis=1)
+    by_gain = np.argsort(scan, axis=1, kind="stable")
+    scan = np.take_along_axis(scan, by_gain, axis=1)
+    scan_roots_pd = np.take_along_axis(np.concatenate([r1, r2], axis=1), by_gain[:, :, np.newaxis], axis=1)
+    asym = np.take_along_axis(np.concatenate([a1, a2], axis=1), by_gain, axis=1)
+    still_all = np.take_along_axis(np.concatenate([s1, s2], axis=1), by_gain, axis=1)
+    width_scan = scan.shape[1]
+    flat_rows = np.repeat(np.arange(P), width_scan)
+    scan_roots = scan_roots_pd.reshape(-1, n)
+    if k_max is None:
+        reached = asym.any(axis=1)
+        first = np.argmax(asym, axis=1)
+        top = np.where(reached, first, width_scan - 1)
+        k_top = scan[np.arange(P), top]
+        if not np.all(reached):
+            warnings.append(
+                f"asymptotic regime not reached at {int(np.sum(~reached))} point(s) by K = 1e15 x reference gain; "
+                "traced to there"
+            )
+    else:
+        k_top = np.broadcast_to(np.abs(np.asarray(k_max, dtype=float)), (P,)).copy()
+        if not np.all(np.isfinite(k_top) & (k_top > 0)):
+            raise InputError(f"k_max must be finite and non-zero; got {k_max!r}")
+    # Smallest positive sample: the largest scanned gain at which no root has
+    # moved by a hundredth of the allowed step.
+    still = still_all & (scan < k_top[:, np.newaxis])
+    last_still = np.where(still.any(axis=1), width_scan - 1 - np.argmax(still[:, ::-1], axis=1), 0)
+    k_low = np.where(still.any(axis=1), scan[np.arange(P), last_still], k_top * 1e-6)
+
+    # --- initial samples: K = 0, the scan decades inside (k_low, k_top), and
+    # both ends (no new eigenvalue problems but the two ends) --------------
+    inside = (scan > k_low[:, np.newaxis]) & (scan < k_top[:, np.newaxis])
+    ends = np.stack([k_low, k_top], axis=1)
+    end_roots = _roots(np.repeat(num, 2, axis=0), np.repeat(den, 2, axis=0), sign * ends.ravel())
+    rows = np.concatenate([np.arange(P), np.repeat(np.arange(P), 2), flat_rows[inside.ravel()]])
+    mags = np.concatenate([np.zeros(P), ends.ravel(), scan.ravel()[inside.ravel()]])
+    roots = np.concatenate([poles, end_roots, scan_roots[inside.ravel()]])
+    order = np.lexsort((mags, rows))
+    rows, mags, roots = rows[order], mags[order], roots[order]
+    keep = np.r_[True, (rows[1:] != rows[:-1]) | (mags[1:] != mags[:-1])]
+    rows, mags, roots = rows[keep], mags[keep], roots[keep]
+
+    ts = None if not loop.is_discrete else loop.ts
+
+    def boundary(r, rws):
+        """Signed distance-like function, >= 0 outside the stability region."""
+        if not loop.is_discrete:
+            return r.real
+        if delta:
+            # (|1 + ts g|^2 - 1)/ts without the cancellation of forming z.
+            t = ts[rws].reshape((-1,) + (1,) * (r.ndim - 1))
+            return 2.0 * r.real + t * (r.real**2 + r.imag**2)
+        return r.real**2 + r.imag**2 - 1.0
+
+    def outside(r, rws):
+        with np.errstate(invalid="ignore"):
+            return boundary(r, rws) >= 0
+
+    # Only intervals created in the previous round are examined: an interval
+    # that passed once is final.
+    same = rows[1:] == rows[:-1]
+    pend_a = np.flatnonzero(same)
+    pend_b = pend_a + 1
+    settled_a: list[np.ndarray] = []
+    settled_perm: list[np.ndarray] = []
+    hit_cap = False
+    for _ in range(max_rounds):
+        if pend_a.size == 0:
+            break
+        a, b = pend_a, pend_b
+        ra, rb = roots[a], roots[b]
+        allowed = _allowed_step(ra, rb, scale[rows[a]], max_step)
+        perm, disp, ambiguous = _match(num[rows[a]], den[rows[a]], sign * mags[a], sign * mags[b], ra, rb, allowed)
+        too_far = np.any(disp > allowed, axis=1)
+        width = mags[b] - mags[a]
+        resolvable = width > 1e-12 * np.maximum(mags[b], 1e-300)
+        split = resolvable & (too_far | ambiguous)
+        counts = np.bincount(rows, minlength=P)
+        split &= counts[rows[a]] < max_samples
+        # Intervals that pass are final, and so is their match.
+        settled_a.append(a[~split])
+        settled_perm.append(perm[~split])
+        # Split into as many pieces as the step excess asks for (geometric in
+        # K), so most intervals settle in one or two rounds; ambiguous
+        # intervals are bisected.
+        excess_step = np.max(np.where(np.isfinite(disp), disp, np.inf) / allowed, axis=1)[split]
+        pieces = np.where(too_far[split], np.clip(np.ceil(1.2 * excess_step), 2, 16), 2).astype(int)
+        a, b = a[split], b[split]
+        if a.size == 0:
+            pend_a = a
+            break
+        lo, hi = mags[a], mags[b]
+        pieces = np.where(lo > 0, pieces, 2)
+        owner = np.repeat(np.arange(a.size), pieces - 1)
+        first = np.r_[0, np.cumsum(pieces - 1)[:-1]]
+        j = np.arange(owner.size) - first[owner] + 1
+        frac = j / pieces[owner]
+        lo_o, hi_o = lo[owner], hi[owner]
+        with np.errstate(divide="ignore"):
+            mid = np.where(lo_o > 0, lo_o * np.exp(frac * np.log(hi_o / np.where(lo_o > 0, lo_o, 1.0))), hi_o / 4.0)
+        new_rows = rows[a][owner]
+        matched_b = np.take_along_axis(roots[b], perm[split], axis=1)
+        with np.errstate(invalid="ignore"):
+            seeds = roots[a][owner] + frac[:, np.newaxis] * (matched_b[owner] - roots[a][owner])
+        new_roots = _roots_from_seeds(num[new_rows], den[new_rows], sign * mid, seeds, scale[new_rows])
+        new_index = rows.size + np.arange(owner.size)
+        rows = np.concatenate([rows, new_rows])
+        mags = np.concatenate([mags, mid])
+        roots = np.concatenate([roots, new_roots])
+        # Chain a -> new_1 -> ... -> new_{q-1} -> b for every split interval.
+        left = np.concatenate([a, new_index])
+        is_last = np.r_[owner[1:] != owner[:-1], True] if owner.size else np.zeros(0, bool)
+        right_of_new = np.where(is_last, b[owner], new_index + 1)
+        right = np.concatenate([new_index[first], right_of_new])
+        pend_a, pend_b = left, right
+    else:
+        hit_cap = pend_a.size > 0
+    if pend_a.size:
+        allowed = _allowed_step(roots[pend_a], roots[pend_b], scale[rows[pend_a]], max_step)
+        settled_a.append(pend_a)
+        settled_perm.append(
+            _match(num[rows[pend_a]], den[rows[pend_a]], sign * mags[pend_a], sign * mags[pend_b],
+                   roots[pend_a], roots[pend_b], allowed)[0]
+        )
+    order = np.lexsort((mags, rows))
+    rows, mags, roots = rows[order], mags[order], roots[order]
+    if hit_cap or np.any(np.bincount(rows, minlength=P) >= max_samples):
+        warnings.append("refinement limit reached: some steps may exceed max_step")
+
+    # --- branch composition -----------------------------------------------
+    # Every neighbouring pair of samples is exactly one settled interval.
+    same = rows[1:] == rows[:-1]
+    where_now = np.empty_like(order)
+    where_now[order] = np.arange(order.size)
+    perms = np.tile(np.arange(n), (rows.size - 1, 1))
+    if settled_a:
+        perms[where_now[np.concatenate(settled_a)]] = np.concatenate(settled_perm)
+    starts = np.flatnonzero(np.r_[True, ~same])
+    order = _compose(perms, starts)
+    branch_roots = np.take_along_axis(roots, order, axis=1)
+
+    # --- boundary crossings: regula falsi on the crossing branch, then one
+    # sample exactly there -------------------------------------------------
+    side = outside(branch_roots, rows)
+    # A root on the boundary at K = 0 (an integrator, a delay pole at z = 0)
+    # is no crossing: only intervals with a > 0 count.
+    change = (side[1:] != side[:-1]) & same[:, np.newaxis] & (mags[:-1] > 0)[:, np.newaxis]
+    # A root of a biproper loop that passes through infinity (K = -d0/n0)
+    # changes side without crossing the boundary: not a crossing here.
+    change &= np.isfinite(branch_roots[1:]) & np.isfinite(branch_roots[:-1])
+    cross_idx = np.flatnonzero(np.any(change, axis=1))
+    crossing = np.zeros(0)
+    cross_rows = rows[cross_idx]
+    if cross_idx.size:
+        branch = np.argmax(change[cross_idx], axis=1)
+        crossing = _crossing_gains(
+            num[cross_rows], den[cross_rows], sign, mags[cross_idx], mags[cross_idx + 1],
+            branch_roots[cross_idx, branch], branch_roots[cross_idx + 1, branch],
+            lambda r: boundary(r, cross_rows), crossing_rtol,
+        )
+        frac = (crossing - mags[cross_idx]) / (mags[cross_idx + 1] - mags[cross_idx])
+        seeds = branch_roots[cross_idx] + frac[:, np.newaxis] * (branch_roots[cross_idx + 1] - branch_roots[cross_idx])
+        new_roots = _roots_from_seeds(num[cross_rows], den[cross_rows], sign * crossing, seeds, scale[cross_rows])
+        allowed = _allowed_step(seeds, new_roots, scale[cross_rows], max_step)
+        gains_x = sign * crossing
+        perm = _match(num[cross_rows], den[cross_rows], gains_x, gains_x, seeds, new_roots, allowed)[0]
+        new_roots = np.take_along_axis(new_roots, perm, axis=1)
+        rows = np.concatenate([rows, cross_rows])
+        mags = np.concatenate([mags, crossing])
+        branch_roots = np.concatenate([branch_roots, new_roots])
+        order = np.lexsort((mags, rows))
+        rows, mags, branch_roots = rows[order], mags[order], branch_roots[order]
+    crossing_gains = tuple(np.sort(sign * crossing[cross_rows == p]) for p in range(P))
+    residual = angle_residual(num[rows], den[rows], sign * mags, branch_roots, poles[rows], zeros[rows])
+
+    if delta:
+        with np.errstate(invalid="ignore"):
+            branch_roots = np.where(
+                np.isfinite(branch_roots), 1.0 + ts[rows][:, np.newaxis] * branch_roots, np.inf + 0j
+            )
+
+    # --- pad to (P, G) ------------------------------------------------------
+    counts = np.bincount(rows, minlength=P)
+    width = int(counts.max())
+    start_of = np.r_[0, np.cumsum(counts)[:-1]]
+    position = np.arange(width)[np.newaxis, :]
+    take = start_of[:, np.newaxis] + np.minimum(position, counts[:, np.newaxis] - 1)
+    return LocusBranches(
+        gains=sign * mags[take],
+        roots=branch_roots[take],
+        counts=counts,
+        residual=residual[take],
+        k_max=k_top,
+        crossing_gains=crossing_gains,
+        negative=bool(negative),
+        discrete=loop.is_discrete,
+        warnings=tuple(warnings),
+    )
