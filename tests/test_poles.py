@@ -111,5 +111,7 @@ def test_agrees_with_python_control_damp_where_conventions_agree():
 def test_bad_period_and_nan():
     with pytest.raises(InputError, match="sample period"):
         damping_and_frequency([0.5], ts=0.0)
+    with pytest.raises(InputError, match="broadcast"):
+        damping_and_frequency(np.ones((2, 3)), ts=[0.1, 0.2])
     zeta, wn = damping_and_frequency([complex(np.nan, 0.0)])
     assert np.isnan(zeta[0]) and np.isnan(wn[0])

@@ -26,6 +26,14 @@ from .lti.closed_loop import closed_loop_poles
 from .lti.margins import Margins, loop_margins
 from .lti.trace import LocusBranches, trace_locus
 from .lti.discretize import discretize, discretize_loop
+from .lti.facts import LocusFacts, locus_facts
+from .lti.discretize import discretize, discretize_loop
+from .lti.closed_loop import closed_loop_poles
+from .lti.margins import Margins, loop_margins
+from .lti.trace import LocusBranches, trace_locus
+from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
+from .lti.regions import SpecRegion
+from .lti.stability import jury_test, routh_array
 
 __all__ = [
     "__version__",
@@ -37,6 +45,8 @@ __all__ = [
     "Loop",
     "load_schedule",
     "Schedule",
+    "LocusFacts",
+    "locus_facts",
     "discretize",
     "closed_loop_poles",
     "Margins",
@@ -47,6 +57,8 @@ __all__ = [
     "VerifyResult",
     "read_gains",
     "write_gains",
+    "LocusBranches",
+    "trace_locus",
     "discretize_loop",
     "GainInterval",
     "SpecRegion",

@@ -20,6 +20,7 @@ __all__ = ["main", "COMMANDS"]
 COMMANDS: tuple[str, ...] = (
     "design",
     "verify",
+    "locus",
     "discretize",
     "inspect",
 )

@@ -61,7 +61,8 @@ def damping_and_frequency(poles: object, ts: object = None) -> tuple[np.ndarray,
     Raises
     ------
     InputError
-        If ``ts`` is given and is not finite and positive.
+        If ``ts`` is given and is not finite and positive, or does not
+        broadcast against ``poles``.
 
     Notes
     -----
@@ -76,7 +77,13 @@ def damping_and_frequency(poles: object, ts: object = None) -> tuple[np.ndarray,
         period = np.asarray(ts, dtype=float)
         if not np.all(np.isfinite(period) & (period > 0)):
             raise InputError(f"sample period must be finite and positive seconds; got {ts!r}")
-        p, period = np.broadcast_arrays(p, period)
+        try:
+            p, period = np.broadcast_arrays(p, period)
+        except ValueError:
+            raise InputError(
+                f"sample periods of shape {period.shape} do not broadcast against poles of shape {p.shape}; "
+                "give one period, or one per leading index (e.g. shape (P, 1) for poles (P, n))"
+            ) from None
         magnitude = np.abs(p)
         with np.errstate(divide="ignore", invalid="ignore"):
             # ln z = ln|z| + j arg z; arg in (-pi, pi] is the principal branch.
