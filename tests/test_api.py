@@ -33,13 +33,6 @@ EXPECTED_PUBLIC_NAMES = {
     "spec_gain_intervals",
     "routh_array",
     "jury_test",
-    "closed_loop_poles",
-    "Margins",
-    "loop_margins",
-    "LocusBranches",
-    "trace_locus",
-    "discretize",
-    "discretize_loop",
 }
 
 

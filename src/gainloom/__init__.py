@@ -22,18 +22,8 @@ from .lti.discretize import discretize, discretize_loop
 from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
 from .lti.regions import SpecRegion
 from .lti.stability import jury_test, routh_array
-from .lti.closed_loop import closed_loop_poles
-from .lti.margins import Margins, loop_margins
 from .lti.trace import LocusBranches, trace_locus
-from .lti.discretize import discretize, discretize_loop
 from .lti.facts import LocusFacts, locus_facts
-from .lti.discretize import discretize, discretize_loop
-from .lti.closed_loop import closed_loop_poles
-from .lti.margins import Margins, loop_margins
-from .lti.trace import LocusBranches, trace_locus
-from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
-from .lti.regions import SpecRegion
-from .lti.stability import jury_test, routh_array
 
 __all__ = [
     "__version__",
@@ -66,11 +56,4 @@ __all__ = [
     "spec_gain_intervals",
     "routh_array",
     "jury_test",
-    "closed_loop_poles",
-    "Margins",
-    "loop_margins",
-    "LocusBranches",
-    "trace_locus",
-    "discretize",
-    "discretize_loop",
 ]
