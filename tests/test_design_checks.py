@@ -27,7 +27,8 @@ sampling:
   delay: 1
 controller:
   structure: p
-  strategy: pole-cancel
+  strategy: dominant-pair
+  target: {{damping: 0.7, natural_frequency: 2000}}
   output_limits: [-5, 5]
 specs:
   min_damping: 0.5
@@ -106,7 +107,8 @@ sampling:
   delay: 1
 controller:
   structure: p
-  strategy: pole-cancel
+  strategy: dominant-pair
+  target: {{damping: 0.7, natural_frequency: 2000}}
   output_limits: [-5, 5]
 specs:
   min_damping: 0.7
@@ -138,7 +140,7 @@ def test_between_points_catch_a_coarse_grid_and_refinement_fixes_it(tmp_path):
     poles = control.feedback(loop, 1).poles()
     s = np.log(poles.astype(complex)) / 0.001
     assert np.min(-s.real / np.abs(s)) < 0.7
-    path.write_text(COARSE.format(refine="  refine: {max_inserted: 8}"))
+    path.write_text(COARSE.format(refine="  refine: {max_inserted: 40}"))
     refined = gainloom.design(path)
     assert refined.table_report.inserted
     assert not refined.table_report.between
@@ -191,7 +193,7 @@ def test_tolerance_corners_and_space_filling():
 
 def test_tolerance_corners_are_checked_and_the_worst_reported(tmp_path):
     path = tmp_path / "t.yaml"
-    text = COARSE.format(refine="  refine: {max_inserted: 8}") + "tolerances:\n  parameters: {k: 0.5}\n  samples: corners\n"
+    text = COARSE.format(refine="  refine: {max_inserted: 40}") + "tolerances:\n  parameters: {k: 0.5}\n  samples: corners\n"
     path.write_text(text)
     result = gainloom.design(path)
     report = result.table_report
@@ -219,7 +221,8 @@ sampling:
   delay: 1
 controller:
   structure: p
-  strategy: pole-cancel
+  strategy: dominant-pair
+  target: {damping: 0.7, natural_frequency: 2000}
   output_limits: [-5, 5]
 specs:
   min_damping: 0.7

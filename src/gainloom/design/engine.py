@@ -275,7 +275,7 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
         notes[p].extend(choice.notes[p])
     if controller.strategy == "dominant-pair":
         asked = shapes.gain[np.arange(P), np.maximum(choice.shape, 0)]
-        moved = choice.feasible & ~np.isclose(choice.gain, asked, rtol=1e-12)
+        moved = choice.feasible & np.isfinite(asked) & ~np.isclose(choice.gain, asked, rtol=1e-12)
         for p in np.flatnonzero(moved):
             notes[p].append(
                 f"the magnitude-condition gain K = {asked[p]:.6g} misses a spec; "

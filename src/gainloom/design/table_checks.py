@@ -14,8 +14,9 @@ refinement and parameter tolerances.
   the plant evaluated at ``between_points`` intermediate points per interval
   (2-D: on every cell edge and the cell centre), then checked against the
   specs there.  With ``refine.max_inserted > 0`` a breakpoint is inserted in
-  the middle of the worst failing interval, designed, and the check repeated
-  until it passes or the budget is spent.
+  the middle of every failing interval (most failures first, within the
+  budget), the new points are designed, and the check repeated until it
+  passes or the budget is spent.
 * Tolerances: every corner of the declared parameter tolerances (or the
   seeded space-filling sample) at every grid point, with the table's
   coefficients; the worst corner per point is reported.
@@ -330,19 +331,27 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
             progress("between points", 1, 1)
         if not failing or budget <= 0:
             break
-        # insert a breakpoint in the middle of the interval with most failures
+        # insert breakpoints in the middle of every failing interval (2-D: across
+        # the relatively wider side of each failing cell), most failures first,
+        # within the remaining budget
         counts: dict[tuple, int] = {}
         for entry in failing:
             counts[tuple(entry["interval"])] = counts.get(tuple(entry["interval"]), 0) + 1
-        worst = max(counts, key=lambda k: (counts[k], [-i for i in k]))
-        axis = 0
-        if len(axes_values) == 2:
-            widths = [(axes_values[a][worst[a] + 1] - axes_values[a][worst[a]]) / np.ptp(axes_values[a]) for a in (0, 1)]
-            axis = int(np.argmax(widths))
-        i = worst[axis]
-        value = 0.5 * (axes_values[axis][i] + axes_values[axis][i + 1])
+        wanted: list[tuple[int, float]] = []
+        for cell in sorted(counts, key=lambda k: (-counts[k], k)):
+            axis = 0
+            if len(axes_values) == 2:
+                widths = [(axes_values[a][cell[a] + 1] - axes_values[a][cell[a]]) / np.ptp(axes_values[a]) for a in (0, 1)]
+                axis = int(np.argmax(widths))
+            i = cell[axis]
+            value = float(0.5 * (axes_values[axis][i] + axes_values[axis][i + 1]))
+            if (axis, value) not in wanted:
+                wanted.append((axis, value))
+        wanted = wanted[:budget]
         new_axes = [v.copy() for v in axes_values]
-        new_axes[axis] = np.insert(new_axes[axis], i + 1, value)
+        for axis, value in wanted:
+            new_axes[axis] = np.sort(np.append(new_axes[axis], value))
+            inserted.append({"axis": names[axis], "value": value})
         new_points = _grid_points(new_axes)
         # reuse the designs of existing points, design only the new ones
         old_lookup = {tuple(p): q for q, p in enumerate(point_design.points)}
@@ -350,8 +359,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         fresh = design_points(sched, new_points[is_new])
         point_design = _merge_designs(point_design, fresh, new_points, is_new, old_lookup, structure)
         axes_values = new_axes
-        inserted.append({"axis": names[axis], "value": float(value)})
-        budget -= 1
+        budget -= len(wanted)
     smooth, mono = _check_smoothness(sched, {k: np.asarray(v).reshape(tuple(a.size for a in axes_values))
                                             for k, v in point_design.coefficients.items()}, names)
     if progress is not None:
