@@ -30,7 +30,8 @@ sampling:
   delay: 1
 controller:
   structure: p
-  strategy: pole-cancel
+  strategy: dominant-pair
+  target: {{damping: 0.7, natural_frequency: 2000}}
   output_limits: [-5, 5]
 specs:
   min_damping: 0.7

@@ -27,7 +27,8 @@ sampling:
   delay: 1
 controller:
   structure: p
-  strategy: pole-cancel
+  strategy: dominant-pair
+  target: {{damping: 0.7, natural_frequency: 2000}}
   output_limits: [-5, 5]
 specs:
   min_damping: 0.5
@@ -106,7 +107,8 @@ sampling:
   delay: 1
 controller:
   structure: p
-  strategy: pole-cancel
+  strategy: dominant-pair
+  target: {{damping: 0.7, natural_frequency: 2000}}
   output_limits: [-5, 5]
 specs:
   min_damping: 0.7
@@ -138,7 +140,7 @@ def test_between_points_catch_a_coarse_grid_and_refinement_fixes_it(tmp_path):
     poles = control.feedback(loop, 1).poles()
     s = np.log(poles.astype(complex)) / 0.001
     assert np.min(-s.real / np.abs(s)) < 0.7
-    path.write_text(COARSE.format(refine="  refine: {max_inserted: 8}"))
+    path.write_text(COARSE.format(refine="  refine: {max_inserted: 40}"))
     refined = gainloom.design(path)
     assert refined.table_report.inserted
     assert not refined.table_report.between
@@ -191,7 +193,7 @@ def test_tolerance_corners_and_space_filling():
 
 def test_tolerance_corners_are_checked_and_the_worst_reported(tmp_path):
     path = tmp_path / "t.yaml"
-    text = COARSE.format(refine="  refine: {max_inserted: 8}") + "tolerances:\n  parameters: {k: 0.5}\n  samples: corners\n"
+    text = COARSE.format(refine="  refine: {max_inserted: 40}") + "tolerances:\n  parameters: {k: 0.5}\n  samples: corners\n"
     path.write_text(text)
     result = gainloom.design(path)
     report = result.table_report
@@ -200,3 +202,78 @@ def test_tolerance_corners_are_checked_and_the_worst_reported(tmp_path):
     assert all(entry["scale"] == {"k": 1.5} for entry in report.tolerance_worst)
     assert report.tolerances  # nominal design sits near the damping bound, +50 % gain breaks it
     assert result.exit_code == 1
+
+
+SMOOTH = """
+name: smooth
+variables:
+  - name: x
+    values: [0.0, 0.25, 0.5, 0.75, 1.0]
+parameters:
+  k: "10.0 - 9.0 * x"
+plant:
+  transfer_function:
+    numerator: ["k"]
+    denominator: ["0.02", "1"]
+sampling:
+  period: 0.001
+  method: zoh
+  delay: 1
+controller:
+  structure: p
+  strategy: dominant-pair
+  target: {damping: 0.7, natural_frequency: 2000}
+  output_limits: [-5, 5]
+specs:
+  min_damping: 0.7
+table:
+  max_relative_step: 0.3
+  between_points: 0
+codegen:
+  prefix: sm
+  format: float32
+"""
+
+
+def test_step_limit_moves_gains_and_reports_the_cost(tmp_path):
+    path = tmp_path / "s.yaml"
+    path.write_text(SMOOTH)
+    result = gainloom.design(path)
+    report = result.table_report
+    assert report.smoothing and "forced a worse design" in report.smoothing[0]
+    kp = result.table.coefficients["kp"]
+    steps = relative_steps(kp, 0)
+    reported = {tuple(e["index"]) for e in report.smoothness}
+    for i, step in enumerate(steps):
+        assert step <= 0.3 + 1e-12 or (i,) in reported
+    assert result.points_passed  # lowering K of this loop keeps damping
+    # without the limit the designed kp rises faster than 30 % per step
+    free = gainloom.design(_write(tmp_path, SMOOTH.replace("  max_relative_step: 0.3\n", "")))
+    assert np.max(relative_steps(free.table.coefficients["kp"], 0)) > 0.3
+
+
+def _write(tmp_path, text):
+    path = tmp_path / "free.yaml"
+    path.write_text(text)
+    return path
+
+
+def test_verify_accepts_a_gain_table_object(tmp_path):
+    path = tmp_path / "s.yaml"
+    path.write_text(SMOOTH)
+    designed = gainloom.design(path)
+    check = gainloom.verify(path, designed.table)
+    assert check.status == designed.status
+    np.testing.assert_allclose(check.analysis.damping, designed.analysis.damping, rtol=1e-12)
+
+
+def test_monotone_direction_is_enforced_by_moving_gains(tmp_path):
+    # The plant gain falls along x, so the designed kp rises; asking for kp
+    # decreasing makes the design lower later gains (slower but still damped).
+    text = SMOOTH.replace("  max_relative_step: 0.3\n", "  monotone: {kp: decreasing}\n")
+    result = gainloom.design(_write(tmp_path, text))
+    kp = result.table.coefficients["kp"]
+    assert np.all(np.diff(kp) <= 1e-12)  # non-increasing, checked directly
+    assert not result.table_report.monotone
+    assert result.table_report.smoothing
+    assert result.points_passed

@@ -202,3 +202,18 @@ def test_benchmark_smoke_runs_on_a_few_loops():
     figures = locus.run(loops=5, seed=1)
     assert figures["loops"] == 5
     assert figures["ours_max_residual_deg"] < ANGLE_TOL_DEG
+
+
+def test_cancelled_pole_zero_pair_and_biproper_loop():
+    # (s + 1)/((s + 1)(s - 1)): the closed loop is (s + 1)(s - 1 + K); the
+    # moving root crosses the imaginary axis at K = 1 (closed form).
+    tr = trace_locus(Loop(num=[0.0, 1.0, 1.0], den=[1.0, 0.0, -1.0]))
+    assert tr.crossing_gains[0] == pytest.approx([1.0], rel=1e-6)
+    assert np.isfinite(tr.k_max[0]) and tr.k_max[0] > 1.0
+    # (s + 3)/(s + 2) with K < 0: root -(2 + 3K)/(1 + K) (closed form) crosses
+    # s = 0 at K = -2/3 and passes through infinity at K = -1 (not a crossing).
+    tr = trace_locus(Loop(num=[1.0, 3.0], den=[1.0, 2.0]), negative=True)
+    assert tr.crossing_gains[0] == pytest.approx([-2.0 / 3.0], rel=1e-6)
+    gains, roots = _branches(tr, 0)
+    finite = np.isfinite(roots[:, 0])
+    np.testing.assert_allclose(roots[finite, 0], -(2 + 3 * gains[finite]) / (1 + gains[finite]), rtol=1e-9)

@@ -15,7 +15,8 @@ from .lti.discretize import discretize, discretize_loop
 from .lti.closed_loop import closed_loop_poles
 from .lti.margins import Margins, loop_margins
 from .codegen import HarnessResult, check_generated_c, emit_c
-from .design.engine import design, verify  # noqa: E402 - the function shadows the subpackage name on purpose
+from . import design  # the package is callable: gainloom.design(schedule)
+from .design.engine import verify
 from .design.results import DesignResult, VerifyResult
 from .design.gainsfile import read_gains, write_gains
 from .lti.facts import LocusFacts, locus_facts

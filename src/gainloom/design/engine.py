@@ -133,6 +133,66 @@ def _step_retry(plant, structure, shapes, choice: Choice, coefficients, limits, 
     return notes
 
 
+#: Points per work unit of the per-point search.
+CHUNK = 64
+
+
+def _choose_chunk(args) -> Choice:
+    """Search one chunk of points: tightened specs first, the written ones where that finds nothing."""
+    sub_plant, sub_shapes, sub_limits, objective, target = args
+    first = choose_gains(sub_plant, sub_shapes, sub_limits.tightened(), objective, target)
+    retry = np.flatnonzero(~first.feasible)
+    if retry.size:
+        second = choose_gains(sub_plant, sub_shapes, sub_limits, objective, target)
+        first = _merge_choice(first, second, retry)
+    return first
+
+
+def _workers(chunks: int) -> int:
+    """Worker processes for the search: ``GAINLOOM_WORKERS`` or the CPU count (max 8); 1 for one chunk."""
+    import os
+
+    if chunks <= 1:
+        return 1
+    text = os.environ.get("GAINLOOM_WORKERS")
+    if text is not None:
+        try:
+            return max(1, int(text))
+        except ValueError:
+            raise InputError(f"GAINLOOM_WORKERS must be an integer; got {text!r}") from None
+    return max(1, min(os.cpu_count() or 1, 8, chunks))
+
+
+def _run_chunks(chunks, progress, total) -> list[Choice]:
+    """Run the chunks in order, in worker processes (fork) when there are several.
+
+    The exact interval solver is Python-heavy per loop, so threads would not
+    help; forked processes share the loaded modules and return plain data.
+    The result does not depend on the number of workers.
+    """
+    import multiprocessing
+
+    workers = _workers(len(chunks))
+    done = 0
+    results: list[Choice] = []
+    if workers > 1 and "fork" in multiprocessing.get_all_start_methods():
+        from concurrent.futures import ProcessPoolExecutor
+
+        with ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("fork")) as pool:
+            for chunk, result in zip(chunks, pool.map(_choose_chunk, chunks)):
+                results.append(result)
+                done += chunk[0].points
+                if progress is not None:
+                    progress("design", done, total)
+        return results
+    for chunk in chunks:
+        results.append(_choose_chunk(chunk))
+        done += chunk[0].points
+        if progress is not None:
+            progress("design", done, total)
+    return results
+
+
 def _merge_choice(first: Choice, second: Choice, rows: np.ndarray) -> Choice:
     """``first`` with the entries at ``rows`` taken from ``second``."""
     shape, gain, feasible = first.shape.copy(), first.gain.copy(), first.feasible.copy()
@@ -190,24 +250,15 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
         derivative_filter=controller.derivative_filter,
     )
     notes: list[list[str]] = [[] for _ in range(P)]
-    chunk = 64
-    choices = []
-    for start in range(0, P, chunk):
-        rows = np.arange(start, min(P, start + chunk))
+    chunks = []
+    for start in range(0, P, CHUNK):
+        rows = np.arange(start, min(P, start + CHUNK))
         sub_shapes = type(shapes)(
             zeros=shapes.zeros[rows], poles=shapes.poles[rows], valid=shapes.valid[rows],
             gain=shapes.gain[rows], params=shapes.params[rows],
         )
-        sub_plant = plant.select(rows)
-        first = choose_gains(sub_plant, sub_shapes, limits.select(rows).tightened(), objective, target)
-        retry = np.flatnonzero(~first.feasible)
-        if retry.size:
-            # no design inside the tightened specs: search the specs as written
-            second = choose_gains(sub_plant, sub_shapes, limits.select(rows), objective, target)
-            first = _merge_choice(first, second, retry)
-        choices.append(first)
-        if progress is not None:
-            progress("design", int(rows[-1]) + 1, P)
+        chunks.append((plant.select(rows), sub_shapes, limits.select(rows), objective, target))
+    choices = _run_chunks(chunks, progress, P)
     choice = Choice(
         shape=np.concatenate([c.shape for c in choices]),
         gain=np.concatenate([c.gain for c in choices]),
@@ -224,7 +275,7 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
         notes[p].extend(choice.notes[p])
     if controller.strategy == "dominant-pair":
         asked = shapes.gain[np.arange(P), np.maximum(choice.shape, 0)]
-        moved = choice.feasible & ~np.isclose(choice.gain, asked, rtol=1e-12)
+        moved = choice.feasible & np.isfinite(asked) & ~np.isclose(choice.gain, asked, rtol=1e-12)
         for p in np.flatnonzero(moved):
             notes[p].append(
                 f"the magnitude-condition gain K = {asked[p]:.6g} misses a spec; "

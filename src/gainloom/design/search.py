@@ -45,9 +45,9 @@ COARSE_SAMPLES = 44
 #: Decades spanned by the coarse grid around the loop's coefficient scale.
 COARSE_DECADES = (-7.0, 3.0)
 #: Exact-interval evaluations per point (best shapes by the coarse ranking).
-EXACT_SHAPES = 2
+EXACT_SHAPES = 1
 #: Rounds of exact evaluation over the ranked shapes (``EXACT_SHAPES`` each).
-MAX_ROUNDS = 4
+MAX_ROUNDS = 6
 #: Samples inside the exact feasible set per shape.
 FINE_SAMPLES = 48
 #: Golden-section iterations of the final refinement.
@@ -231,8 +231,17 @@ def exact_feasible(loop: Loop, limits: SpecLimits, points: np.ndarray) -> list[l
     # np.errstate: the interval solver divides complex infinities for roots
     # that leave through infinity (reported to its owner); the values are
     # handled there, the warning is noise
-    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        stable = stable_gain_intervals(loop.num, loop.den, ts=ts, delta=delta)
+    gm_needed = np.isfinite(limits.min_gain_margin[points])
+    stable: list = [[] for _ in range(loop.points)]
+    if np.any(gm_needed):
+        rows = np.flatnonzero(gm_needed)
+        sub = loop.select(rows)
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+            found = stable_gain_intervals(
+                sub.num, sub.den, ts=sub.ts, delta=None if delta is None else (sub.delta_num, sub.delta_den)
+            )
+        for row, intervals in zip(rows, found):
+            stable[row] = intervals
     spec = [None] * loop.points
     for (zeta, decay, radius), rows in _region_groups(limits, points, ts).items():
         rows = np.asarray(rows)
@@ -247,13 +256,16 @@ def exact_feasible(loop: Loop, limits: SpecLimits, points: np.ndarray) -> list[l
     out = []
     for row, p in enumerate(points):
         gm = limits.min_gain_margin[p]
-        factor = 1.0 if np.isnan(gm) else 10.0 ** (gm / 20.0)
-        band = []
-        for iv in stable[row]:
-            lo = iv.low * factor
-            hi = iv.high / factor
-            if lo < hi:
-                band.append((lo, hi))
+        if np.isnan(gm):
+            band = [(0.0, math.inf)]  # the spec intervals already imply stability
+        else:
+            factor = 10.0 ** (gm / 20.0)
+            band = []
+            for iv in stable[row]:
+                lo = iv.low * factor
+                hi = iv.high / factor
+                if lo < hi:
+                    band.append((lo, hi))
         top = limits.max_gain[p]
         cap = [(0.0, math.inf if np.isnan(top) else float(top) * (1 + 1e-15))]
         out.append(_intersect(_intersect(spec[row], band), cap))

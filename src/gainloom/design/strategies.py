@@ -135,9 +135,9 @@ def _dominant_pair(plant: Loop, structure: str, kd_a: np.ndarray, target: tuple[
     # angle the free element must contribute
     if structure == "p":
         poles = np.zeros((P, 1, 0))
-        shapes = _pack(structure, roots, poles)
-        gain = 1.0 / np.abs(plant_value)
-        return Shapes(shapes.zeros, shapes.poles, shapes.valid, gain[:, None], shapes.params)
+        # no free element: the target is generally not on the locus of K P,
+        # so the objective nearest-target picks the gain
+        return _pack(structure, roots, poles)
     cancel = _cancel_roots(plant, 1, "slowest")[:, 0, 0]
     if structure in ("pi", "pd", "pid"):
         fixed = _controller_poles(structure, kd_a, roots)[:, 0, :]  # (P, nq)

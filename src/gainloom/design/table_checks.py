@@ -7,14 +7,16 @@ refinement and parameter tolerances.
   loop gain ``K`` of the later point (its shape kept) inside its exact
   feasible set until the step fits; each such move is reported with the
   objective it cost ("the limit forced a worse design").
-* Monotone: a coefficient must not decrease (increase) along each axis.
+* Monotone: a coefficient must not decrease (increase) along each axis; the
+  same ``K`` move is tried (and reported) where it does.
 * Between points: the coefficients are interpolated exactly as the firmware
   does (linear in 1-D, bilinear in 2-D, on the axis values) and applied to
   the plant evaluated at ``between_points`` intermediate points per interval
   (2-D: on every cell edge and the cell centre), then checked against the
   specs there.  With ``refine.max_inserted > 0`` a breakpoint is inserted in
-  the middle of the worst failing interval, designed, and the check repeated
-  until it passes or the budget is spent.
+  the middle of every failing interval (most failures first, within the
+  budget), the new points are designed, and the check repeated until it
+  passes or the budget is spent.
 * Tolerances: every corner of the declared parameter tolerances (or the
   seeded space-filling sample) at every grid point, with the table's
   coefficients; the worst corner per point is reported.
@@ -164,13 +166,28 @@ def _check_smoothness(sched, grids: dict[str, np.ndarray], names: tuple[str, ...
 def _smooth_gains(sched, point_design, shape, structure) -> tuple[dict[str, np.ndarray], list[str], Any]:
     """Move K of later points along the first axis so every coefficient step fits the limit."""
     limit = sched.table_checks.max_relative_step
+    monotone = sched.table_checks.monotone
     notes: list[str] = []
     coefficients = {k: v.copy() for k, v in point_design.coefficients.items()}
-    if limit is None:
+    if limit is None and not monotone:
         return coefficients, notes, point_design.analysis
+    limit = math.inf if limit is None else limit
+    names = list(coefficients)
+    rising = np.array([monotone.get(k) == "increasing" for k in names])
+    falling = np.array([monotone.get(k) == "decreasing" for k in names])
+
+    def acceptable(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+        """Rows of ``b`` (candidates) whose steps from ``a`` fit the limit and the directions."""
+        scale = np.maximum(np.abs(a), np.abs(b))
+        step = np.where(scale > 0, np.abs(a - b) / np.where(scale > 0, scale, 1), 0)
+        ok = np.all(step <= limit, axis=-1)
+        ok &= np.all(~rising | (b >= a), axis=-1)
+        ok &= np.all(~falling | (b <= a), axis=-1)
+        return ok
+
     grids = {k: v.reshape(shape) for k, v in coefficients.items()}
     flat_index = np.arange(int(np.prod(shape))).reshape(shape)
-    ratios = np.geomspace(1 / 8, 8, 801)
+    ratios = np.geomspace(1 / 64, 64, 1201)
     moved = []
     for axis in range(len(shape)):
         for idx in np.ndindex(*shape):
@@ -181,9 +198,7 @@ def _smooth_gains(sched, point_design, shape, structure) -> tuple[dict[str, np.n
             prev = tuple(prev)
             a = np.array([grids[k][prev] for k in grids])
             b = np.array([grids[k][idx] for k in grids])
-            scale = np.maximum(np.abs(a), np.abs(b))
-            step = np.where(scale > 0, np.abs(a - b) / np.where(scale > 0, scale, 1), 0)
-            if np.all(step <= limit):
+            if acceptable(a, b[None, :])[0]:
                 continue
             p = int(flat_index[idx])
             gain = float(point_design.analysis.gain[p])
@@ -192,9 +207,7 @@ def _smooth_gains(sched, point_design, shape, structure) -> tuple[dict[str, np.n
             # coefficients scale with K for a fixed shape, except the filter/lead poles
             scalable = np.array([k not in ("kd_a", "zc", "pc", "zc1", "pc1", "zc2", "pc2") for k in grids])
             trial = b[None, :] * np.where(scalable, ratios[:, None], 1.0)
-            scale2 = np.maximum(np.abs(a[None, :]), np.abs(trial))
-            steps2 = np.where(scale2 > 0, np.abs(a[None, :] - trial) / np.where(scale2 > 0, scale2, 1), 0)
-            fits = np.all(steps2 <= limit, axis=1)
+            fits = acceptable(a[None, :], trial)
             inside = np.array([any(lo < gain * r < hi for lo, hi in point_design.intervals[p]) for r in ratios])
             usable = np.flatnonzero(fits & inside)
             if usable.size == 0:
@@ -212,7 +225,7 @@ def _smooth_gains(sched, point_design, shape, structure) -> tuple[dict[str, np.n
         if analysis.passed[p] or not point_design.analysis.passed[p]:
             before = pole_metrics(point_design.analysis.poles_z[p : p + 1], point_design.analysis.sample_period[p])
             notes.append(
-                f"max_relative_step forced a worse design at {sched.describe_point(point_design.points[p])}: "
+                f"table limits (max_relative_step/monotone) forced a worse design at {sched.describe_point(point_design.points[p])}: "
                 f"K {old:.6g} -> {new:.6g}; slowest decay {float(before['decay'][0]):.6g} -> "
                 f"{float(analysis.decay[p]):.6g} 1/s, damping {float(before['damping'][0]):.4g} -> "
                 f"{float(analysis.damping[p]):.4g}"
@@ -297,7 +310,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
     axes_values = [np.asarray(v, float) for v in axes_values]
     smoothing_notes: list[str] = []
     inserted: list[dict[str, Any]] = []
-    if redesign and sched.table_checks.max_relative_step is not None:
+    if redesign and (sched.table_checks.max_relative_step is not None or sched.table_checks.monotone):
         shape = tuple(v.size for v in axes_values)
         coefficients, smoothing_notes, analysis = _smooth_gains(sched, point_design, shape, structure)
         point_design = PointDesign(
@@ -318,19 +331,27 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
             progress("between points", 1, 1)
         if not failing or budget <= 0:
             break
-        # insert a breakpoint in the middle of the interval with most failures
+        # insert breakpoints in the middle of every failing interval (2-D: across
+        # the relatively wider side of each failing cell), most failures first,
+        # within the remaining budget
         counts: dict[tuple, int] = {}
         for entry in failing:
             counts[tuple(entry["interval"])] = counts.get(tuple(entry["interval"]), 0) + 1
-        worst = max(counts, key=lambda k: (counts[k], [-i for i in k]))
-        axis = 0
-        if len(axes_values) == 2:
-            widths = [(axes_values[a][worst[a] + 1] - axes_values[a][worst[a]]) / np.ptp(axes_values[a]) for a in (0, 1)]
-            axis = int(np.argmax(widths))
-        i = worst[axis]
-        value = 0.5 * (axes_values[axis][i] + axes_values[axis][i + 1])
+        wanted: list[tuple[int, float]] = []
+        for cell in sorted(counts, key=lambda k: (-counts[k], k)):
+            axis = 0
+            if len(axes_values) == 2:
+                widths = [(axes_values[a][cell[a] + 1] - axes_values[a][cell[a]]) / np.ptp(axes_values[a]) for a in (0, 1)]
+                axis = int(np.argmax(widths))
+            i = cell[axis]
+            value = float(0.5 * (axes_values[axis][i] + axes_values[axis][i + 1]))
+            if (axis, value) not in wanted:
+                wanted.append((axis, value))
+        wanted = wanted[:budget]
         new_axes = [v.copy() for v in axes_values]
-        new_axes[axis] = np.insert(new_axes[axis], i + 1, value)
+        for axis, value in wanted:
+            new_axes[axis] = np.sort(np.append(new_axes[axis], value))
+            inserted.append({"axis": names[axis], "value": value})
         new_points = _grid_points(new_axes)
         # reuse the designs of existing points, design only the new ones
         old_lookup = {tuple(p): q for q, p in enumerate(point_design.points)}
@@ -338,8 +359,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         fresh = design_points(sched, new_points[is_new])
         point_design = _merge_designs(point_design, fresh, new_points, is_new, old_lookup, structure)
         axes_values = new_axes
-        inserted.append({"axis": names[axis], "value": float(value)})
-        budget -= 1
+        budget -= len(wanted)
     smooth, mono = _check_smoothness(sched, {k: np.asarray(v).reshape(tuple(a.size for a in axes_values))
                                             for k, v in point_design.coefficients.items()}, names)
     if progress is not None:

@@ -1,29 +1,34 @@
 """Root-locus branches of many loops, traced with adaptive gain samples.
 
 The branches of the locus of ``D + K N = 0`` are traced for every loop of a
-batch at once:
+batch at once (details and the reasons for each choice:
+``docs/tracing-and-margins.md``):
 
-1. **Gain range.**  Unless given, ``k_max`` is the smallest gain on a scan of
-   decades at which the locus is in its asymptotic regime: every finite zero
-   has a closed-loop root within ``zero_tol`` (relative to the plot scale) and
-   the other ``n - m`` roots are farther than ``far_factor`` plot scales from
-   the centroid, each within ``asymptote_tol`` degrees of an asymptote.  The
-   smallest positive sample is the largest decade at which no root has moved
-   by more than a hundredth of a step.
-2. **Samples.**  An initial geometric grid of gains is refined in rounds.  In
-   each round every interval between neighbouring samples (of every loop) is
-   checked at once and split where a matched root moves farther than
-   ``max_step`` times the local plot scale (fast motion, near breakaways
-   where ``dK/ds -> 0``), where the match is ambiguous, or where a branch
-   crosses the stability boundary and the crossing gain is not yet bracketed
-   to ``crossing_rtol``.
-3. **Matching.**  Roots of neighbouring samples are matched by a batched
-   greedy assignment on the distance from a first-order prediction
-   ``r + dK dr/dK`` with ``dr/dK = -N(r)/(D'(r) + K N'(r))`` (the step is
-   clipped to the allowed step, so a prediction never flies off at a
-   collision).  Per-interval matches are composed into branches by a
-   log-depth scan: no Python loop runs per gain sample.
+1. **Gain range.**  Unless given, ``k_max`` is the smallest scanned gain at
+   which the locus is in its asymptotic regime: every finite zero has a
+   closed-loop root within ``zero_tol`` plot scales and the other ``n - m``
+   roots are farther than ``far_factor`` plot scales from the centroid, each
+   within ``asymptote_tol`` degrees of an asymptote.  The smallest positive
+   sample is the largest scanned gain at which no root has moved by a
+   hundredth of a step.  The scan runs every three decades around a
+   reference gain, then decade by decade near both ends.
+2. **Samples.**  The scanned gains are refined in rounds.  In each round
+   every new interval between neighbouring samples (of every loop) is
+   checked at once and split where a matched root moves farther than the
+   allowed step (``max_step`` plot scales; more beyond the plot), which
+   concentrates samples where poles move fast and near breakaways
+   (``dK/ds -> 0``), or where the match is ambiguous.
+3. **Matching.**  Roots of neighbouring samples are matched on the distance
+   from a first-order prediction ``r + dK dr/dK`` with
+   ``dr/dK = -N(r)/(D'(r) + K N'(r))`` (the step clipped to the allowed
+   step, so a prediction never flies off at a collision).  Per-interval
+   matches are composed into branches by a log-depth scan: no Python loop
+   runs per gain sample.
+4. **Crossings.**  Where a branch crosses the stability boundary the gain is
+   found by regula falsi to ``crossing_rtol`` and a sample is put there.
 
+New samples get their roots from Newton (then Aberth-Ehrlich) iteration seeded
+by the matched neighbours, with companion eigenvalues as the fallback.
 Discrete loops with a delta-operator form are traced in ``g = (z - 1)/ts``
 (the plane in which fast-sampled poles are well separated) and returned in
 ``z``.  The angle condition ``arg L(r) = 180 deg`` (``K > 0``) or ``0 deg``
@@ -63,8 +68,9 @@ class LocusBranches:
     counts : ndarray of int, shape (P,)
         Number of distinct samples per loop.
     residual : ndarray, shape (P, G, n)
-        Angle-condition residual in degrees, ``|arg(-K N(r)/D(r))|``
-        (``nan`` at ``K = 0`` and at roots at infinity).
+        Angle-condition residual in degrees, ``|arg(-K L(r))|`` (see
+        :func:`angle_residual`; ``nan`` where the angle is undefined: ``K = 0``,
+        roots at infinity, roots on an open-loop pole or zero to rounding).
     k_max : ndarray, shape (P,)
         Largest ``|K|`` traced per loop.
     crossing_gains : tuple of ndarray
@@ -298,9 +304,11 @@ def _asymptotic(roots, zeros, excess, scale, centroid, negative, zero_tol, far_f
     near = np.min(dist, axis=1)
     has_zero = ~np.isnan(zeros)
     ok &= np.all(~has_zero | (near <= zero_tol * scale[:, np.newaxis]), axis=1)
-    # The other n - m roots are far out and along the asymptotes.
+    # The other n - m roots (not those sitting on zeros) are far out and
+    # along the asymptotes.
+    on_zero = np.min(dist, axis=2) <= zero_tol * scale[:, np.newaxis]
     offset = roots - centroid[:, np.newaxis]
-    far = np.abs(offset) >= far_factor * scale[:, np.newaxis]
+    far = (np.abs(offset) > far_factor * scale[:, np.newaxis]) & ~on_zero
     far_count = np.sum(far | ~np.isfinite(roots), axis=1)
     ok &= far_count >= excess
     angle = np.angle(np.where(np.isfinite(offset), offset, 1.0))
@@ -699,6 +707,9 @@ def trace_locus(
     # A root on the boundary at K = 0 (an integrator, a delay pole at z = 0)
     # is no crossing: only intervals with a > 0 count.
     change = (side[1:] != side[:-1]) & same[:, np.newaxis] & (mags[:-1] > 0)[:, np.newaxis]
+    # A root of a biproper loop that passes through infinity (K = -d0/n0)
+    # changes side without crossing the boundary: not a crossing here.
+    change &= np.isfinite(branch_roots[1:]) & np.isfinite(branch_roots[:-1])
     cross_idx = np.flatnonzero(np.any(change, axis=1))
     crossing = np.zeros(0)
     cross_rows = rows[cross_idx]
