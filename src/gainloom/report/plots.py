@@ -15,10 +15,12 @@ Plots
   point) and failing points circled.
 * ``step.png``: the sampled loop's unit step response at the chosen points.
 * ``locus_<n>.png``: root locus of the sampled loop ``K L(z)`` at a chosen
-  point, the gain ``K`` a multiple of the designed loop gain (``K = 1`` is
-  the table's design), in the z-plane (layers drawn by
-  :mod:`gainloom.report.locus_plot`) and the same poles mapped to the
-  s-plane by ``s = ln(z)/ts``, with the spec region of that point.
+  point, ``K`` a multiple of the table's loop gain (``K = 1``: the designed
+  poles), in the z-plane, near ``z = 1`` magnified, and mapped to
+  ``s = ln(z)/ts``, with the spec region of that point.  Branches and facts
+  are those of ``gainloom locus`` (tracer, locus facts); the drawing is
+  this module's, because it marks the designed poles and the spec region,
+  which the locus command's plot does not.
 """
 
 from __future__ import annotations
@@ -53,16 +55,17 @@ __all__ = [
 #: Resolution of every plot, dots per inch.
 DPI = 110
 
-#: Multiples of the designed loop gain swept for the loci (K = 1: design).
-LOCUS_GAINS = np.concatenate([np.geomspace(1e-3, 1e3, 481), [1.0]])
+#: Multiples of the designed loop gain swept when the tracer cannot be used.
+LOCUS_GAINS = np.geomspace(1e-3, 1e3, 481)
 
 # Our look: one accent per role, muted series colours.
 _SERIES = ("#1f6f8b", "#b5562d", "#5b8c2a", "#7b4f9d", "#c29a1a", "#2f4858", "#a23b72", "#3e8e7e")
 _LIMIT = "#c0262d"
 _FAIL = "#c0262d"
 _DESIGN = "#111111"
-_CLOUD = "#7a99b8"
 _REGION = "#2b7a3d"
+_STABLE = "#eef5ee"
+_BOUNDARY = "#44546a"
 
 
 def png_bytes(figure: Figure) -> bytes:
@@ -356,15 +359,6 @@ def _region(spec: dict[str, Any], ts: float | None) -> list[tuple[str, np.ndarra
     return curves
 
 
-def _locus_layers():
-    # The z-plane layers (stability boundary, open-loop poles and zeros,
-    # asymptotes, breakaways, crossings with their gains) are the locus
-    # helper's drawing; reused so both plots read the same.
-    from . import locus_plot
-
-    return locus_plot._draw, locus_plot._view
-
-
 def _s_half_width(entry: dict[str, Any]) -> float:
     """Half-width (rad/s) of the s-plane view: the dominant pole and the low spec limits."""
     reach = [_as_float(entry["natural_frequency"])]
@@ -379,8 +373,77 @@ def _mark_design(ax: Any, poles: np.ndarray) -> None:
     ax.plot(poles.real, poles.imag, ls="none", marker="*", ms=13, mfc="#ffd23f", mec=_DESIGN, mew=0.9, zorder=8)
 
 
+def _traced(one: Loop, facts: Any) -> tuple[np.ndarray, np.ndarray]:
+    """Continuous branches of ``K L`` (tracer), far enough to show every annotated point and K = 1."""
+    from ..lti.trace import trace_locus
+
+    special = [abs(c.gain) for c in facts.crossings] + [abs(b.gain) for b in facts.breakaways] + [1.0]
+    traced = trace_locus(one)
+    if 2.0 * max(special) > float(traced.k_max[0]):
+        traced = trace_locus(one, k_max=2.0 * max(special))
+    count = int(traced.counts[0])
+    return traced.gains[0, :count], traced.roots[0, :count]
+
+
+def _z_layers(ax: Any, facts: Any, branches: np.ndarray, view: tuple[float, float, float, float],
+              labels: bool) -> None:
+    """Unit circle, branches, open-loop poles and zeros, |z| = 1 crossings (with K) in one view."""
+    x0, x1, y0, y1 = view
+    ax.set_xlim(x0, x1)
+    ax.set_ylim(y0, y1)
+    ax.set_aspect("equal", adjustable="box")
+    circle = np.exp(1j * np.linspace(0.0, 2 * math.pi, 1441))
+    ax.fill(circle.real, circle.imag, color=_STABLE, zorder=0)
+    ax.plot(circle.real, circle.imag, color=_BOUNDARY, lw=1.1, zorder=1)
+    ax.axhline(0.0, color="#c8c8c8", lw=0.8, zorder=1)
+    ax.grid(True, color="#e2e2e2", lw=0.6, zorder=0)
+    for k in range(branches.shape[1] if branches.ndim == 2 else 0):
+        column = np.where(np.isfinite(branches[:, k]), branches[:, k], np.nan)
+        ax.plot(column.real, column.imag, color=_SERIES[k % len(_SERIES)], lw=1.5, zorder=3)
+    if facts is None:
+        return
+    poles = np.array([r.value for r in facts.poles], dtype=complex)
+    zeros = np.array([r.value for r in facts.zeros], dtype=complex)
+    ax.plot(poles.real, poles.imag, marker="x", ms=9, mew=2.0, color="#202020", ls="none", zorder=5)
+    if zeros.size:
+        ax.plot(zeros.real, zeros.imag, marker="o", ms=8, mfc="white", mec="#202020", mew=1.6, ls="none", zorder=5)
+    for crossing in facts.crossings:
+        point = crossing.point
+        if not (x0 <= point.real <= x1 and y0 <= abs(point.imag) <= y1 or y0 <= point.imag <= y1):
+            continue
+        ax.plot([point.real] * 2, [point.imag, -point.imag], marker="s", ms=6.5, color=_FAIL, mec="white",
+                mew=0.8, ls="none", zorder=6)
+        if labels:
+            ax.annotate(f"K={crossing.gain:.4g}", (point.real, abs(point.imag)), fontsize=8, color=_FAIL,
+                        xytext=(7, 4), textcoords="offset points", zorder=7,
+                        bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": _FAIL, "lw": 0.6})
+
+
+def _traced(one: Loop, facts: Any, step: float) -> np.ndarray:
+    """Continuous branches of ``K L`` (the tracer) far enough to show every crossing and K = 1.
+
+    ``step`` is the tracer's largest root move as a fraction of the plot
+    scale: small enough to draw smooth curves in the magnified view.
+    """
+    from ..lti.trace import trace_locus
+
+    special = [abs(c.gain) for c in facts.crossings] + [1.0]
+    traced = trace_locus(one, max_step=step)
+    if 2.0 * max(special) > float(traced.k_max[0]):
+        traced = trace_locus(one, k_max=2.0 * max(special), max_step=step)
+    return traced.roots[0, : int(traced.counts[0])]
+
+
 def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> bytes:
     """Root locus of ``K L(z)`` at point ``p``: z-plane, z near 1 magnified, s-plane.
+
+    Branches come from :func:`gainloom.lti.trace.trace_locus`, open-loop
+    poles, zeros and unit-circle crossings from
+    :func:`gainloom.lti.facts.locus_facts` (the computations behind
+    ``gainloom locus``); the spec region of the point from
+    :class:`gainloom.lti.regions.SpecRegion`.  ``K`` multiplies the table's
+    loop gain, so the designed poles sit at ``K = 1`` and a crossing's ``K``
+    is the gain margin as a factor.
 
     Parameters
     ----------
@@ -389,45 +452,37 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     p : int
         Point index.
     entry : dict
-        The log's entry for that point (spec limits, label, poles).
+        The log's entry for that point (spec limits, label).
     role : str
         Why the point was chosen (``first``, ``last``, ``worst``).
     """
     ts = float(loop.ts[p])
     one = loop.select(np.array([p]))
     delta = None if one.delta_num is None else (one.delta_num[0], one.delta_den[0])
-    try:
-        facts = locus_facts(one.num[0], one.den[0], ts, delta=delta)
-    except GainloomError:
-        facts = None  # e.g. a loop the facts cannot describe: draw poles and region only
-    cloud = closed_loop_poles(one, LOCUS_GAINS[None, :])[0]  # (G, n)
-    design = cloud[-1]
-    cloud = cloud[:-1].ravel()
-    cloud = cloud[np.isfinite(cloud)]
-    draw, view_of = _locus_layers()
-    no_branches = np.zeros((0, 0), dtype=complex)
+    design = closed_loop_poles(one, np.ones((1, 1)))[0, 0]
     half_s = _s_half_width(entry)
     # Near z = 1, z ~ 1 + s ts: the magnified z view matches the s view.
     half_z = min(1.2, half_s * ts)
+    try:
+        facts = locus_facts(one.num[0], one.den[0], ts, delta=delta)
+        branches = _traced(one, facts, step=float(np.clip(0.02 * half_z, 1e-4, 0.02)))
+    except GainloomError:
+        # a loop the facts or the tracer cannot describe: a plain gain sweep
+        # drawn as dots, no facts
+        facts = None
+        branches = closed_loop_poles(one, LOCUS_GAINS[None, :])[0]
     zoom = (1.0 - 1.6 * half_z, 1.0 + 0.4 * half_z, -half_z, half_z)
+    region_z = _region(entry["specs"], ts)
 
     figure = _figure((15.0, 6.0))
-    panels = [figure.add_axes((0.045 + 0.33 * k, 0.24, 0.28, 0.64)) for k in range(3)]
-    full, near, splane = panels
-    full_view = view_of(facts, no_branches) if facts is not None else (-1.3, 1.3, -1.3, 1.3)
-    for ax, view, title in ((full, full_view, f"z-plane, ts = {ts:.4g} s"),
+    full, near, splane = [figure.add_axes((0.045 + 0.33 * k, 0.24, 0.28, 0.64)) for k in range(3)]
+    for ax, view, title in ((full, (-1.45, 1.45, -1.45, 1.45), f"z-plane, ts = {ts:.4g} s"),
                             (near, zoom, "z-plane near z = 1, magnified")):
-        if facts is not None:
-            draw(ax, facts, no_branches, [], view, quiet=zoom if ax is full else None)
-        else:
-            circle = np.exp(1j * np.linspace(0.0, 2 * math.pi, 721))
-            ax.plot(circle.real, circle.imag, color="#44546a", lw=1.1)
-            ax.set_xlim(view[0], view[1])
-            ax.set_ylim(view[2], view[3])
-            ax.set_aspect("equal", adjustable="box")
-        for _label, curve in _region(entry["specs"], ts):
+        _z_layers(ax, facts, branches if facts is not None else np.zeros((0, 0)), view, labels=True)
+        if facts is None:
+            ax.plot(branches.real.ravel(), branches.imag.ravel(), ls="none", marker=".", ms=2, color=_SERIES[0])
+        for _label, curve in region_z:
             ax.plot(curve.real, curve.imag, color=_REGION, lw=1.2, ls=(0, (3, 2)), zorder=2)
-        ax.plot(cloud.real, cloud.imag, ls="none", marker=".", ms=2.2, color=_CLOUD, zorder=3)
         _mark_design(ax, design)
         ax.set_title(title, fontsize=10, loc="left")
         ax.set_xlabel("Re(z)")
@@ -435,16 +490,34 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     full.add_patch(_box(zoom))
 
     with np.errstate(divide="ignore", invalid="ignore"):
-        s_cloud = np.log(cloud) / ts
+        s_branches = np.log(np.asarray(branches, dtype=complex)) / ts
         s_design = np.log(design) / ts
-    s_cloud = s_cloud[np.isfinite(s_cloud)]
-    shown = np.isfinite(s_design)
-    splane.axvspan(-20 * half_s, 0, color="#eef5ee", zorder=0)
-    splane.axvline(0.0, color="#44546a", lw=1.1, zorder=1)
+    splane.axvspan(-20 * half_s, 0, color=_STABLE, zorder=0)
+    splane.axvline(0.0, color=_BOUNDARY, lw=1.1, zorder=1)
     splane.axhline(0.0, color="#c8c8c8", lw=0.8, zorder=1)
-    for _label, curve in _region(entry["specs"], None):
+    named: set[str] = set()
+    for label, curve in _region(entry["specs"], None):
         splane.plot(curve.real, curve.imag, color=_REGION, lw=1.2, ls=(0, (3, 2)), zorder=2)
-    splane.plot(s_cloud.real, s_cloud.imag, ls="none", marker=".", ms=2.2, color=_CLOUD, zorder=3)
+        # name each boundary once, on its upper half inside the view
+        inside = np.flatnonzero((curve.real > -1.55 * half_s) & (curve.real < 0.35 * half_s)
+                                & (curve.imag > 0.05 * half_s) & (curve.imag < 0.9 * half_s))
+        if inside.size and label not in named:
+            named.add(label)
+            spot = curve[inside[int(0.6 * (inside.size - 1))]]
+            right = spot.real > -0.5 * half_s  # keep the text inside the axes
+            splane.annotate(label, (spot.real, spot.imag), fontsize=7.5, color=_REGION,
+                            xytext=(-4 if right else 4, 3), textcoords="offset points",
+                            ha="right" if right else "left", zorder=7)
+    if facts is None:
+        splane.plot(s_branches.real.ravel(), s_branches.imag.ravel(), ls="none", marker=".", ms=2, color=_SERIES[0])
+    else:
+        for k in range(s_branches.shape[1]):
+            column = np.where(np.isfinite(s_branches[:, k]), s_branches[:, k], np.nan)
+            # ln z jumps by 2 pi j / ts where a branch crosses the negative real z axis
+            cut = np.flatnonzero(np.abs(np.diff(column.imag)) > math.pi / ts) + 1
+            column = np.insert(column, cut, np.nan)
+            splane.plot(column.real, column.imag, color=_SERIES[k % len(_SERIES)], lw=1.5, zorder=3)
+    shown = np.isfinite(s_design)
     _mark_design(splane, s_design[shown])
     splane.set_xlim(-1.6 * half_s, 0.4 * half_s)
     splane.set_ylim(-half_s, half_s)
@@ -454,23 +527,23 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     if outside:
         splane.text(0.02, 0.02, f"{outside} faster designed pole(s) outside this view", transform=splane.transAxes,
                     fontsize=7.5, color="#444444")
-    splane.set_title("s = ln(z)/ts", fontsize=10, loc="left")
+    splane.set_title("the same locus in s = ln(z)/ts", fontsize=10, loc="left")
     splane.set_xlabel("Re(s)  [rad/s]")
     splane.set_ylabel("Im(s)  [rad/s]")
 
     handles = [
-        Line2D([], [], ls="none", marker=".", ms=6, color=_CLOUD, label="closed-loop poles for K = 0.001 ... 1000"),
-        Line2D([], [], ls="none", marker="*", ms=12, mfc="#ffd23f", mec=_DESIGN, label="designed closed-loop poles (K = 1)"),
+        Line2D([], [], color=_SERIES[0], lw=1.5, label="closed-loop pole branches as K rises from 0 (one colour each)"),
+        Line2D([], [], ls="none", marker="*", ms=12, mfc="#ffd23f", mec=_DESIGN,
+               label="designed closed-loop poles (K = 1)"),
         Line2D([], [], color=_REGION, lw=1.2, ls=(0, (3, 2)), label="spec region boundary at this point"),
         Line2D([], [], marker="x", ms=8, mew=2, color="#202020", ls="none", label="open-loop pole"),
         Line2D([], [], marker="o", ms=7, mfc="white", mec="#202020", ls="none", label="open-loop zero"),
-        Line2D([], [], marker="s", ms=6, color="#c0262d", ls="none", label="|z| = 1 crossing at K (= gain margin)"),
-        Line2D([], [], marker="^", ms=7, color="#d98c00", mec="#202020", mew=0.6, ls="none",
-               label="breakaway / break-in at K"),
+        Line2D([], [], marker="s", ms=6, color=_FAIL, ls="none", label="on |z| = 1 at K (gain margin factor)"),
+        Line2D([], [], color=_STABLE, lw=6, label="stable region"),
     ]
     figure.legend(handles=handles, loc="lower center", ncol=4, fontsize=8, frameon=False)
     figure.suptitle(f"Root locus of K·L(z) at the {role} point: {entry['label']}   "
-                    "(K multiplies the designed loop gain)", fontsize=11, x=0.01, ha="left")
+                    "(K multiplies the table's loop gain)", fontsize=11, x=0.01, ha="left")
     return png_bytes(figure)
 
 
@@ -478,4 +551,4 @@ def _box(view: tuple[float, float, float, float]):
     from matplotlib.patches import Rectangle
 
     x0, x1, y0, y1 = view
-    return Rectangle((x0, y0), x1 - x0, y1 - y0, fill=False, ec="#555555", lw=0.8, ls="-", zorder=9)
+    return Rectangle((x0, y0), x1 - x0, y1 - y0, fill=False, ec="#555555", lw=0.8, zorder=9)
