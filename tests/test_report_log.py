@@ -168,6 +168,9 @@ def test_logged_numbers_recompute_from_schedule_and_gains_file(logged):
         # sample period from the schedule's formula (10 kHz up to 3000 rpm, 8 kHz above)
         ts = 1 / 10000 + (1 / 8000 - 1 / 10000) * min(max(speed - 3000, 0), 1)
         assert entry["sample_period_s"] == pytest.approx(ts, rel=1e-15)
+        # parameters from the schedule's formulas, evaluated by hand
+        assert entry["parameters"]["J"] == pytest.approx(2.5e-3 * (1 + 0.15 * speed / 6000), rel=1e-15)
+        assert entry["parameters"]["B"] == pytest.approx(2.0e-4 + 1.5e-4 * speed / 1000, rel=1e-15)
         loop = _reference_loop(speed, ts, float(table.coefficients["kp"][p]), float(table.coefficients["ki_ts"][p]))
         # Closed-loop poles: python-control feedback(L, 1).poles()
         reference = np.sort_complex(control.feedback(loop, 1).poles())

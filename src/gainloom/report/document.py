@@ -174,6 +174,8 @@ def _point_entries(sched, result, table) -> list[dict[str, Any]]:
             "notes": list(notes[p]),
             "sample_period_s": float(models.sample_period[p]),
             "delay_samples": float(delays[p]),
+            "parameters": {name: float(np.asarray(values, float).reshape(-1)[p] if np.ndim(values) else values)
+                           for name, values in sorted(models.parameters.items())},
         })
         entries.append(entry)
     return entries

@@ -48,6 +48,7 @@ _POINT = _obj({
     "notes": {"list": STRING},
     "sample_period_s": NUMBER,
     "delay_samples": NUMBER,
+    "parameters": {"map": NUMBER},
     "coefficients": {"map": NUMBER},
     "physical": {"map": NUMBER},
     "gain": NUMBER,
