@@ -173,3 +173,17 @@ def test_pole_shift_pairs_poles_one_to_one():
     after = np.array([-0.5000002, 0.5001])
     assert pole_shift(before, after) == pytest.approx(1e-4, rel=1e-9)
     assert pole_shift(np.array([0.5]), np.array([np.inf])) == math.inf
+
+
+def test_q15_rounding_of_the_shipped_spindle_demo_breaks_no_spec():
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[1] / "schedules" / "spindle_speed.yaml"
+    result = gainloom.design(path)
+    quant = check_quantisation(path, result.table, "q15")
+    # Whatever the design's own verdict, rounding to Q15 must not turn a
+    # passing spec into a failing one anywhere (grid, between, tolerances).
+    assert quant.passed, quant.broken
+    assert [p.index for p in quant.points] == list(range(len(result.status)))
+    # the verification of the unrounded table agrees with the design's own
+    assert quant.original.status == result.status
