@@ -170,22 +170,36 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
     for k, (key, (low, high), title, unit, log) in enumerate(_MARGIN_PANELS):
         ax = figure.add_subplot(3, 2, k + 1)
         values = np.array([_as_float(e[key]) for e in points]).reshape(shape)
+        # limits of all lines, grouped: lines that share a limit share one
+        # dashed line, named at its right end when the limits differ
+        groups: dict[tuple, list[int]] = {}
+        drawn: dict[tuple, tuple] = {}
         for n, (label, x, y, flat) in enumerate(_lines_2d(table, values)):
             colour = _SERIES[n % len(_SERIES)]
             ax.plot(x, _finite(y), marker="o", ms=3.2, lw=1.3, color=colour, label=label)
-            for spec, sense in ((low, +1), (high, -1)):
+            for spec in (low, high):
                 if spec is None:
                     continue
                 limits = np.array([_as_float(points[i]["specs"][spec]["limit"]) if spec in points[i]["specs"]
                                    else np.nan for i in flat])
                 if np.all(np.isnan(limits)):
                     continue
-                # 1-D: one red limit; 2-D: each line's limit in its own colour
-                ax.step(x, limits, where="mid", color=_LIMIT if label is None else colour, lw=1.1,
-                        ls=(0, (5, 3)), label="spec limit" if n == 0 else None)
+                signature = (spec,) + tuple(np.round(limits, 12).tolist())
+                groups.setdefault(signature, []).append(n)
+                drawn[signature] = (x, limits)
                 bad = np.array([spec in points[i]["specs"] and not points[i]["specs"][spec]["pass"] for i in flat])
                 if bad.any():
                     ax.plot(x[bad], _finite(y[bad]), ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4)
+        labels = [label for label, *_ in _lines_2d(table, values)]
+        several = len({sig[0] for sig in groups}) < len(groups)
+        for signature, members in groups.items():
+            x, limits = drawn[signature]
+            colour = _SERIES[members[0] % len(_SERIES)] if several and len(members) == 1 else _LIMIT
+            ax.step(x, limits, where="mid", color=colour, lw=1.1, ls=(0, (5, 3)))
+            if several and labels[0] is not None:
+                names = ", ".join(labels[m].split(" = ", 1)[1] for m in members)
+                ax.annotate(f"{labels[0].split(' = ')[0]} = {names}", (x[-1], limits[-1]), fontsize=6.5,
+                            color=colour, xytext=(-2, 2), textcoords="offset points", ha="right", va="bottom")
         infinite = [i for i, e in enumerate(points) if _as_float(e[key]) == math.inf]
         if infinite:
             ax.text(0.99, 0.02, f"∞ at {len(infinite)} point(s) (no crossover): not drawn", transform=ax.transAxes,
@@ -201,8 +215,8 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
     if len(table.axes) == 2:
         handles = [Line2D([], [], color=_SERIES[n % len(_SERIES)], marker="o", ms=3.2, lw=1.3, label=label)
                    for n, (label, *_rest) in enumerate(_lines_2d(table, np.zeros(table.shape)))]
-        handles += [Line2D([], [], color="#555555", lw=1.1, ls=(0, (5, 3)),
-                           label="dashed: spec limit of the line in the same colour"),
+        handles += [Line2D([], [], color=_LIMIT, lw=1.1, ls=(0, (5, 3)),
+                           label="dashed: spec limit (named where it differs between lines)"),
                     Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4, label="spec fails")]
     figure.legend(handles=handles, loc="lower center", ncol=min(4, len(handles)), fontsize=8, frameon=False)
     figure.suptitle("Closed-loop damping and margins of the sampled loop", fontsize=11, x=0.01, ha="left")
