@@ -299,3 +299,15 @@ def test_rounding_that_breaks_a_spec_fails_the_run():
     assert verdict["passed"] is False and verdict["quantisation"] is False
     assert any("rounding" in reason for reason in verdict["reasons"])
     assert _verdict(result, entries, SimpleNamespace(passed=True), None, None)["passed"] is True
+
+
+def test_long_failure_lists_are_summarised_by_binding_spec(logged):
+    from gainloom.report.markdown import FAILED_ROWS, render_markdown
+
+    _folder, _paths, _result, document = logged
+    doc = json.loads(json.dumps(document))
+    fake = {"index": 0, "label": "p", "binding": "min_damping", "failed": ["min_damping"], "value": 0.5,
+            "limit": 0.6, "notes": []}
+    doc["verdict"]["failed_points"] = [dict(fake, index=i) for i in range(FAILED_ROWS + 7)]
+    text = render_markdown(doc)
+    assert f"... and 7 more failed points (binding spec: min_damping at {FAILED_ROWS + 7} points" in text

@@ -12,7 +12,10 @@ from __future__ import annotations
 import math
 from typing import Any
 
-__all__ = ["render_markdown", "number"]
+__all__ = ["render_markdown", "number", "FAILED_ROWS"]
+
+#: Failed points listed in the summary before the rest is counted by spec.
+FAILED_ROWS = 40
 
 
 def number(value: Any, digits: int = 4) -> str:
@@ -67,11 +70,19 @@ def _summary(doc: dict[str, Any]) -> list[str]:
     if verdict["failed_points"]:
         lines += ["## Failed points", ""]
         rows = []
-        for f in verdict["failed_points"]:
+        failed = verdict["failed_points"]
+        for f in failed[:FAILED_ROWS]:
             rows.append([f["index"], f["label"], f["binding"] or "-", number(f["value"]), number(f["limit"]),
                          ", ".join(f["failed"]), " ".join(f["notes"]) or "-"])
         lines += _table(["#", "point", "binding spec", "value", "limit", "all failed specs",
                          "best reachable / notes"], rows)
+        if len(failed) > FAILED_ROWS:
+            counts: dict[str, int] = {}
+            for f in failed:
+                counts[f["binding"] or "-"] = counts.get(f["binding"] or "-", 0) + 1
+            summary = ", ".join(f"{name} at {count}" for name, count in sorted(counts.items()))
+            lines += [f"... and {len(failed) - FAILED_ROWS} more failed points (binding spec: {summary} points in "
+                      "all); every one in verification.json `verdict.failed_points`.", ""]
     return lines
 
 
