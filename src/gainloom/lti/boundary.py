@@ -475,7 +475,7 @@ def _brackets(
     of the last level are the brackets.  A dip that never reaches zero is a
     tangency or nothing and is let go.
     """
-    rows, low, high, _ = _interesting(values, grid)
+    rows, low, high, is_change = _interesting(values, grid)
     share = np.linspace(0.0, 1.0, points + 1)
     for _ in range(levels):
         if rows.size == 0:
