@@ -556,3 +556,17 @@ def test_zoh_loop_spec_region_by_gain_grid(wn_high):
     intervals = spec_gain_intervals(num, den, region)
     assert intervals
     _check_spec_by_gain_grid(num, den, region, intervals)
+
+
+def test_region_crossings_by_curve():
+    # K/(s(s+1)(s+2)): imaginary axis at K = 6 (Routh, textbook), zeta = 0.5
+    # ray near K = 1.04 (textbook example, from memory), Re s = -0.1 at
+    # K = 0.171 (real pole, by hand: -D(-0.1)).
+    from gainloom.lti.intervals import region_crossings
+
+    region = SpecRegion(min_damping=0.5, min_decay=0.1)
+    found = region_crossings([1.0], [1.0, 3.0, 2.0, 0.0], region)
+    assert set(found) == {"stability", "decay", "damping"}
+    assert np.any(np.isclose(found["stability"].gains, 6.0, rtol=1e-12))
+    assert np.any(np.isclose(found["decay"].gains, 0.171, rtol=1e-12))
+    assert np.any(np.abs(found["damping"].gains - 1.04) < 0.01)

@@ -10,7 +10,7 @@ __version__ = "0.1.0"
 
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
 from .lti.loop import Loop
-from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
+from .lti.intervals import GainInterval, region_crossings, spec_gain_intervals, stable_gain_intervals
 from .lti.regions import SpecRegion
 from .lti.stability import jury_test, routh_array
 
@@ -26,6 +26,7 @@ __all__ = [
     "SpecRegion",
     "stable_gain_intervals",
     "spec_gain_intervals",
+    "region_crossings",
     "routh_array",
     "jury_test",
 ]

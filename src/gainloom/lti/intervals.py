@@ -57,7 +57,14 @@ from .loop import Loop
 from .polynomials import batched_roots
 from .regions import SpecRegion, spiral_s, wn_contour_arcs
 
-__all__ = ["GainInterval", "stable_gain_intervals", "spec_gain_intervals"]
+__all__ = ["GainInterval", "stable_gain_intervals", "spec_gain_intervals", "region_crossings", "CURVE_NAMES"]
+
+#: Names of the boundary curves of a spec region, as keys of
+#: :func:`region_crossings`: stability (imaginary axis / unit circle), decay
+#: (``Re s = -min_decay`` / ``|z| = exp(-min_decay ts)``), damping (ray /
+#: log-spiral), wn_low and wn_high (circles / contours), radius
+#: (``|z| = max_pole_radius``).
+CURVE_NAMES: tuple[str, ...] = ("stability", "decay", "damping", "wn_low", "wn_high", "radius")
 
 #: Grid of the sampled curves: points per arc (uniform), plus geometric
 #: points towards the real-axis end of the spiral where poles crowd.
@@ -101,23 +108,24 @@ def _spiral_grid() -> np.ndarray:
 
 def _curve_crossings(
     nums: np.ndarray, dens: np.ndarray, region: SpecRegion, ts: np.ndarray | None, delta: bool
-) -> list[list[Crossings]]:
+) -> dict[str, list[Crossings]]:
     """Crossings of every boundary curve of ``region``, all loops at once.
 
-    Returns one list per curve, each with one :class:`Crossings` per loop.
+    Returns ``{curve name: one Crossings per loop}`` with names from
+    :data:`CURVE_NAMES`.
     """
     zeta, sigma = region.min_damping, region.min_decay
     low, high = region.wn_range
-    frequencies = [wn for wn in (low, high) if 0.0 < wn < math.inf]
-    found: list[list[Crossings]] = []
+    frequencies = [(name, wn) for name, wn in (("wn_low", low), ("wn_high", high)) if 0.0 < wn < math.inf]
+    found: dict[str, list[Crossings]] = {}
     if ts is None:
-        found.append(line_crossings(nums, dens, 0.0, 1j))
+        found["stability"] = line_crossings(nums, dens, 0.0, 1j)
         if sigma > 0:
-            found.append(line_crossings(nums, dens, -sigma, 1j))
+            found["decay"] = line_crossings(nums, dens, -sigma, 1j)
         if zeta > 0:
-            found.append(line_crossings(nums, dens, 0.0, complex(-zeta, math.sqrt(1.0 - zeta**2))))
-        for wn in frequencies:
-            found.append(circle_crossings(nums, dens, wn, -wn))
+            found["damping"] = line_crossings(nums, dens, 0.0, complex(-zeta, math.sqrt(1.0 - zeta**2)))
+        for name, wn in frequencies:
+            found[name] = circle_crossings(nums, dens, wn, -wn)
         return found
 
     # z-plane: map points z = exp(s ts) into the polynomial's variable.
@@ -135,12 +143,12 @@ def _curve_crossings(
             return circle_crossings(nums, dens, radius, -radius)
 
     ones = np.ones_like(ts)
-    found.append(circle(0.0 * ones, ones))
+    found["stability"] = circle(0.0 * ones, ones)
     if sigma > 0:
-        found.append(circle(np.expm1(-sigma * ts), np.exp(-sigma * ts)))
+        found["decay"] = circle(np.expm1(-sigma * ts), np.exp(-sigma * ts))
     if region.max_pole_radius is not None and region.max_pole_radius < 1.0:
         r = region.max_pole_radius
-        found.append(circle((r - 1.0) * ones, r * ones))
+        found["radius"] = circle((r - 1.0) * ones, r * ones)
     if zeta > 0:
         grid = _spiral_grid()
         column = ts[:, None]
@@ -150,14 +158,14 @@ def _curve_crossings(
             period = ts[rows]
             return from_s(spiral_s(u, zeta, period), period)
 
-        found.append(sampled_crossings(nums, dens, spiral, grid, real_points=ends))
-    for wn in frequencies:
+        found["damping"] = sampled_crossings(nums, dens, spiral, grid, real_points=ends)
+    for name, wn in frequencies:
         grid, ends = _wn_grid(wn, ts, from_s)
 
         def contour(psi: np.ndarray, rows: np.ndarray, wn: float = wn) -> np.ndarray:
             return from_s(wn * np.exp(1j * psi), ts[rows])
 
-        found.append(sampled_crossings(nums, dens, contour, grid, real_points=ends))
+        found[name] = sampled_crossings(nums, dens, contour, grid, real_points=ends)
     return found
 
 
@@ -264,7 +272,7 @@ def _intervals(
     rows, gains = [], []
     per_curve = _curve_crossings(nums, dens, region, None if loop.ts is None else np.asarray(loop.ts), use_delta)
     for i in range(loop.points):
-        crossings = [curve[i] for curve in per_curve]
+        crossings = [curve[i] for curve in per_curve.values()]
         scale = float(np.max(np.abs(dens[i])) / max(float(np.max(np.abs(nums[i]))), 1e-300))
         for sign in signs:
             edges = _candidates(nums[i], dens[i], crossings, sign)
@@ -306,6 +314,26 @@ def _intervals(
     return results
 
 
+def _prepare_spec(num: object, den: object, region: object, ts: object, delta: object) -> tuple[Loop, bool, SpecRegion]:
+    if not isinstance(region, SpecRegion):
+        raise InputError(f"region must be a SpecRegion; got {type(region).__name__}")
+    if isinstance(num, Loop):
+        own = num.ts
+        if region.ts is not None and (own is None or not np.allclose(own, region.ts, rtol=1e-12, atol=0.0)):
+            found = "a continuous loop" if own is None else f"ts={np.asarray(own).tolist()}"
+            raise InputError(f"the region's ts={region.ts} conflicts with the loop ({found})")
+    elif ts is None:
+        ts = region.ts
+    elif region.ts is not None:
+        given = np.asarray(ts, dtype=float)
+        if not np.allclose(given, region.ts, rtol=1e-12, atol=0.0):
+            raise InputError(f"ts={given.tolist()} conflicts with the region's ts={region.ts}; give one of them")
+    loop, single = _normalise(num, den, ts, delta)
+    if loop.ts is None and region.max_pole_radius is not None:
+        raise InputError("max_pole_radius applies to discrete loops; these loops have no sample period")
+    return loop, single, region
+
+
 def spec_gain_intervals(
     num: object,
     den: object | None,
@@ -345,22 +373,7 @@ def spec_gain_intervals(
     The Python work is one pass per loop for the endpoints; the roots of all
     loops are computed in one call.
     """
-    if not isinstance(region, SpecRegion):
-        raise InputError(f"region must be a SpecRegion; got {type(region).__name__}")
-    if isinstance(num, Loop):
-        own = num.ts
-        if region.ts is not None and (own is None or not np.allclose(own, region.ts, rtol=1e-12, atol=0.0)):
-            found = "a continuous loop" if own is None else f"ts={np.asarray(own).tolist()}"
-            raise InputError(f"the region's ts={region.ts} conflicts with the loop ({found})")
-    elif ts is None:
-        ts = region.ts
-    elif region.ts is not None:
-        given = np.asarray(ts, dtype=float)
-        if not np.allclose(given, region.ts, rtol=1e-12, atol=0.0):
-            raise InputError(f"ts={given.tolist()} conflicts with the region's ts={region.ts}; give one of them")
-    loop, single = _normalise(num, den, ts, delta)
-    if loop.ts is None and region.max_pole_radius is not None:
-        raise InputError("max_pole_radius applies to discrete loops; these loops have no sample period")
+    loop, single, region = _prepare_spec(num, den, region, ts, delta)
     results = _intervals(loop, region, (1.0,))
     return results[0] if single else results
 
@@ -407,3 +420,42 @@ def stable_gain_intervals(
     signs = (-1.0, 1.0) if negative else (1.0,)
     results = _intervals(loop, SpecRegion(), signs)
     return results[0] if single else results
+
+
+def region_crossings(
+    num: object,
+    den: object | None,
+    region: SpecRegion,
+    ts: object = None,
+    delta: tuple[object, object] | None = None,
+) -> dict[str, Crossings] | list[dict[str, Crossings]]:
+    """Gains at which a closed-loop root lies on each boundary curve of ``region``.
+
+    The same solutions :func:`spec_gain_intervals` builds its intervals
+    from, by curve, for annotating root-locus plots or explaining which spec
+    binds.
+
+    Parameters
+    ----------
+    num, den, region, ts, delta
+        As for :func:`spec_gain_intervals`.
+
+    Returns
+    -------
+    dict or list of dict
+        ``{curve name: Crossings}`` (names from :data:`CURVE_NAMES`, only
+        the curves the region has); one dict per loop for batch input.
+        Gains of any sign; points in the polynomial's variable (``s``,
+        ``z``, or ``g`` when the delta form is used).
+    """
+    loop, single, region = _prepare_spec(num, den, region, ts, delta)
+    use_delta = loop.delta_den is not None
+    per_curve = _curve_crossings(
+        loop.delta_num if use_delta else loop.num,
+        loop.delta_den if use_delta else loop.den,
+        region,
+        None if loop.ts is None else np.asarray(loop.ts),
+        use_delta,
+    )
+    out = [{name: crossings[i] for name, crossings in per_curve.items()} for i in range(loop.points)]
+    return out[0] if single else out
