@@ -28,19 +28,25 @@ Cost: one Python pass per loop for the candidate gains (a few numpy calls
 per curve, plus one brentq per crossing of a sampled z-plane curve), then a
 single batched root computation for every loop together.
 
-Fast sampling: when the loop is also given in the delta operator
-``g = (z - 1)/ts`` (``delta=(delta_num, delta_den)``), every z-plane curve is
-solved in ``g`` (circles ``|z| = r`` become circles through
+Fast sampling: every discrete loop is solved in the delta variable
+``g = (z - 1)/ts``: circles ``|z| = r`` become circles through
 ``(r - 1)/ts`` and ``-(r + 1)/ts`` with ``r - 1`` formed by ``expm1``;
-spirals and ``wn`` contours are evaluated as ``expm1(s ts)/ts``) and
-membership uses roots in ``g`` mapped by ``s = log1p(ts g)/ts``, so poles
-crowding near ``z = 1`` keep their digits.
+spirals and ``wn`` contours are evaluated as ``expm1(s ts)/ts``; membership
+uses roots in ``g`` read through ``s = log1p(ts g)/ts``, so poles crowding
+near ``z = 1`` keep their digits.  When the loop is given in ``g`` too
+(``delta=(delta_num, delta_den)``, or a :class:`~gainloom.lti.loop.Loop`
+carrying it) those coefficients are used; otherwise the z polynomials are
+shifted to ``g`` exactly (rational arithmetic), which removes the
+root-finding and evaluation error near ``z = 1`` but cannot restore digits
+the z coefficients lost when they were rounded -- at ``ts |pole|`` around
+``1e-5`` and below, give the delta form.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from fractions import Fraction
 
 import numpy as np
 
@@ -262,12 +268,47 @@ def _normalise(num: object, den: object, ts: object, delta: object) -> tuple[Loo
     return loop, single
 
 
+def _shift_to_delta(poly: np.ndarray, ts: float) -> np.ndarray:
+    """Coefficients in ``g`` of ``p(1 + ts g)``, computed exactly.
+
+    Rational arithmetic on the float coefficients: the result is the same
+    polynomial as the given z polynomial, rounded once at the end, with no
+    cancellation in between.
+    """
+    step = Fraction(ts)
+    ascending = [Fraction(0)]
+    for coeff in poly.tolist():
+        shifted = [Fraction(0)] * (len(ascending) + 1)
+        for k, value in enumerate(ascending):
+            shifted[k] += value
+            shifted[k + 1] += value * step
+        shifted[0] += Fraction(coeff)
+        ascending = shifted
+    return np.array([float(v) for v in reversed(ascending[: poly.size])])
+
+
+def _working_polynomials(loop: Loop) -> tuple[np.ndarray, np.ndarray, bool]:
+    """Polynomials to solve in: ``s``; or ``g`` for every discrete loop.
+
+    A given delta form is used as it is (its coefficients carry digits the
+    z coefficients have lost).  Otherwise the z polynomials are shifted to
+    ``g`` exactly: that cannot restore digits lost when the z coefficients
+    were rounded, but it removes the error of finding clustered roots near
+    ``z = 1`` and of evaluating the z polynomials there.
+    """
+    if loop.ts is None:
+        return loop.num, loop.den, False
+    if loop.delta_den is not None:
+        return loop.delta_num, loop.delta_den, True
+    nums = np.stack([_shift_to_delta(row, float(t)) for row, t in zip(loop.num, loop.ts)])
+    dens = np.stack([_shift_to_delta(row, float(t)) for row, t in zip(loop.den, loop.ts)])
+    return nums, dens, True
+
+
 def _intervals(
     loop: Loop, region: SpecRegion, signs: tuple[float, ...]
 ) -> list[list[GainInterval]]:
-    use_delta = loop.delta_den is not None
-    nums = loop.delta_num if use_delta else loop.num
-    dens = loop.delta_den if use_delta else loop.den
+    nums, dens, use_delta = _working_polynomials(loop)
     plans = []  # (loop index, sign, edges) per searched side
     rows, gains = [], []
     per_curve = _curve_crossings(nums, dens, region, None if loop.ts is None else np.asarray(loop.ts), use_delta)
@@ -445,17 +486,20 @@ def region_crossings(
     dict or list of dict
         ``{curve name: Crossings}`` (names from :data:`CURVE_NAMES`, only
         the curves the region has); one dict per loop for batch input.
-        Gains of any sign; points in the polynomial's variable (``s``,
-        ``z``, or ``g`` when the delta form is used).
+        Gains of any sign; points in ``s`` or ``z``.
     """
     loop, single, region = _prepare_spec(num, den, region, ts, delta)
-    use_delta = loop.delta_den is not None
-    per_curve = _curve_crossings(
-        loop.delta_num if use_delta else loop.num,
-        loop.delta_den if use_delta else loop.den,
-        region,
-        None if loop.ts is None else np.asarray(loop.ts),
-        use_delta,
-    )
-    out = [{name: crossings[i] for name, crossings in per_curve.items()} for i in range(loop.points)]
+    nums, dens, use_delta = _working_polynomials(loop)
+    per_curve = _curve_crossings(nums, dens, region, None if loop.ts is None else np.asarray(loop.ts), use_delta)
+    out = []
+    for i in range(loop.points):
+        found = {}
+        for name, crossings in per_curve.items():
+            c = crossings[i]
+            if use_delta:
+                # Report z-plane points: z = 1 + ts g.
+                ts = float(loop.ts[i])
+                c = Crossings(c.gains, 1.0 + ts * c.points, 1.0 + ts * c.fixed_points)
+            found[name] = c
+        out.append(found)
     return out[0] if single else out
