@@ -570,3 +570,15 @@ def test_region_crossings_by_curve():
     assert np.any(np.isclose(found["stability"].gains, 6.0, rtol=1e-12))
     assert np.any(np.isclose(found["decay"].gains, 0.171, rtol=1e-12))
     assert np.any(np.abs(found["damping"].gains - 1.04) < 0.01)
+
+
+def test_rounded_z_coefficients_at_fast_sampling_still_give_the_decay_endpoint():
+    # ZOH of 1/(s(s+1)(s+2)) at ts = 1e-4 given only by its rounded z
+    # coefficients (sympy, then float).  The decay spec sigma >= 0.1 starts
+    # near K = 0.171 (continuous loop, by hand: -D(-0.1)); the rounding of
+    # the z coefficients costs about 1e-3 relative here.
+    ts = 1e-4
+    loop = _zoh_cubic_delta(ts)
+    region = SpecRegion(min_decay=0.1, ts=ts)
+    intervals = spec_gain_intervals(loop["num_z"], loop["den_z"], region)
+    assert intervals and abs(intervals[0].low - 0.171) < 2e-3 * 0.171
