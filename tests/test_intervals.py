@@ -505,10 +505,11 @@ def test_delta_and_z_forms_agree_at_moderate_sampling(loop, zeta, sigma):
         np.testing.assert_allclose([a.low, a.high], [b.low, b.high], rtol=1e-7)
 
 
-def _check_spec_by_gain_grid(num, den, region, intervals, span=(-4, 4), count=600):
+def _check_spec_by_gain_grid(num, den, region, intervals, span=(-4, 4), count=600, scale=None):
     # Independent reference: numpy roots and SpecRegion.contains on a dense
     # log-spaced gain grid, skipping gains within 1e-5 of an end.
-    scale = float(np.max(np.abs(den)) / np.max(np.abs(num)))
+    if scale is None:
+        scale = float(np.max(np.abs(den)) / np.max(np.abs(num)))
     ends = np.array([e for i in intervals for e in (i.low, i.high) if 0 < e < math.inf])
     for gain in scale * np.logspace(*span, count):
         if ends.size and np.min(np.abs(ends - gain)) <= 1e-5 * gain:
@@ -582,3 +583,34 @@ def test_rounded_z_coefficients_at_fast_sampling_still_give_the_decay_endpoint()
     region = SpecRegion(min_decay=0.1, ts=ts)
     intervals = spec_gain_intervals(loop["num_z"], loop["den_z"], region)
     assert intervals and abs(intervals[0].low - 0.171) < 2e-3 * 0.171
+
+
+def test_discrete_pi_with_computation_delay():
+    # ZOH of 500/(s(s+50)) at 1 kHz (python-control c2d, reference library),
+    # the PI form kp + ki_ts z/(z-1) (kp = 1, ki_ts = 0.01) and one sample of
+    # computation delay 1/z: the loop has a pole at z = 0 and a double pole
+    # at z = 1.  Checked against numpy roots on a dense gain grid; the run
+    # must not warn (z = 0 poles read as s = -inf).  The delay pole ends up
+    # on the negative real axis with wn = sqrt(ln^2 a + pi^2)/ts near
+    # 6000-8900 rad/s (principal log), hence the wide wn range below.
+    ts = 1e-3
+    plant = control.c2d(control.tf([500.0], [1.0, 50.0, 0.0]), ts, "zoh")
+    controller = control.tf([1.01, -1.0], [1.0, -1.0], ts) * control.tf([1.0], [1.0, 0.0], ts)
+    loop = plant * controller
+    num = np.asarray(loop.num[0][0], float)
+    den = np.asarray(loop.den[0][0], float)
+    stable = stable_gain_intervals(num, den, ts=ts)
+    assert len(stable) == 1 and stable[0].low < 1e-6
+    for gain in np.logspace(-3, 2.5, 300):
+        if abs(gain - stable[0].high) < 1e-6 * gain:
+            continue
+        roots = _roots(num, den, gain)
+        assert (stable[0].low < gain < stable[0].high) == bool(np.all(np.abs(roots) < 1)), gain
+    for region in (
+        SpecRegion(min_damping=0.5, ts=ts),
+        SpecRegion(min_damping=0.3, max_pole_radius=0.995, ts=ts),
+        SpecRegion(min_damping=0.2, min_decay=2.0, wn_range=(1.0, 1e4), ts=ts),
+    ):
+        intervals = spec_gain_intervals(num, den, region)
+        assert intervals
+        _check_spec_by_gain_grid(num, den, region, intervals, span=(-3, 2.5), count=400, scale=1.0)

@@ -61,7 +61,7 @@ from .boundary import (
 )
 from .loop import Loop
 from .polynomials import batched_roots
-from .regions import SpecRegion, spiral_s, wn_contour_arcs
+from .regions import SpecRegion, s_from_log, spiral_s, wn_contour_arcs
 
 __all__ = ["GainInterval", "stable_gain_intervals", "spec_gain_intervals", "region_crossings", "CURVE_NAMES"]
 
@@ -334,11 +334,11 @@ def _intervals(
         else:
             ts_rows = loop.ts[row_index][:, None]
             if use_delta:
-                s = log1p_complex(ts_rows * roots) / ts_rows
+                s = s_from_log(log1p_complex(ts_rows * roots), ts_rows)
                 z_abs = np.abs(1.0 + ts_rows * roots)
             else:
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    s = np.log(roots) / ts_rows
+                with np.errstate(divide="ignore"):
+                    s = s_from_log(np.log(roots), ts_rows)
                 z_abs = np.abs(roots)
             member = region._contains_s(s, z_abs=z_abs)
         member_all = np.all(member, axis=-1)
