@@ -399,8 +399,10 @@ def spec_gain_intervals(
         Sample period(s) in seconds; ``None`` (and ``region.ts`` None) for
         continuous loops.  Must agree with ``region.ts`` when both are given.
     delta : (array_like, array_like), optional
-        The same discrete loop(s) in ``g = (z - 1)/ts``; when given, all
-        solving and root finding happens in ``g`` (fast sampling).
+        The same discrete loop(s) in ``g = (z - 1)/ts``.  Discrete loops are
+        always solved in ``g``; without this the z coefficients are shifted
+        to ``g`` exactly, which cannot restore digits they lost to rounding.
+        Give it at fast sampling (``ts |pole|`` around ``1e-4`` and below).
 
     Returns
     -------
@@ -444,7 +446,8 @@ def stable_gain_intervals(
         interval: a positive interval starts at 0 (exclusive) when the open
         loop is stable.
     delta : (array_like, array_like), optional
-        The discrete loop(s) in ``g = (z - 1)/ts``, for fast sampling.
+        The discrete loop(s) in ``g = (z - 1)/ts``, for fast sampling (see
+        :func:`spec_gain_intervals`).
 
     Returns
     -------
