@@ -35,6 +35,7 @@ EXPECTED_PUBLIC_NAMES = {
     "SpecRegion",
     "stable_gain_intervals",
     "spec_gain_intervals",
+    "region_crossings",
     "routh_array",
     "jury_test",
     "run_scenario",

@@ -216,7 +216,8 @@ def test_negative_intervals_properties(case):
     intervals = stable_gain_intervals(num, den, ts=ts, negative=True)
     negatives = [i for i in intervals if i.high <= 0]
     assert all(i.low < i.high <= 0 for i in negatives)
-    # Negative gains K are positive gains of the loop -N/D (definition).
+    # Negative gains K are positive gains of the loop -N/D (definition;
+    # a consistency check, no outside reference).
     mirrored = stable_gain_intervals(-np.asarray(num), den, ts=ts)
     assert len(mirrored) == len(negatives)
     for neg, pos in zip(sorted(negatives, key=lambda i: -i.high), mirrored):
@@ -305,7 +306,16 @@ def test_spec_intervals_properties(loop, zeta, sigma, wn_low, wn_high, ts):
 # -- batches, fast sampling, input errors ---------------------------------------
 
 
+def _assert_same_intervals(got, expected):
+    assert len(got) == len(expected)
+    for a, b in zip(got, expected):
+        np.testing.assert_allclose([a.low, a.high], [b.low, b.high], rtol=1e-12, atol=0.0)
+
+
 def test_batch_matches_loop_by_loop():
+    # Consistency check (no outside reference): a (P, n+1) batch with one
+    # sample period per loop gives what each loop gives alone.  The loops
+    # are ZOH discretisations from python-control (reference library).
     rng = np.random.default_rng(3)
     dens = np.stack([np.poly([0.0, -rng.uniform(0.5, 2), -rng.uniform(2, 5)]) for _ in range(6)])
     nums = np.stack([[0.0, 1.0, rng.uniform(1, 3)] for _ in range(6)])
@@ -316,11 +326,15 @@ def test_batch_matches_loop_by_loop():
     batch = stable_gain_intervals(num_z, den_z, ts=ts)
     assert len(batch) == 6
     for i in range(6):
-        assert batch[i] == stable_gain_intervals(num_z[i], den_z[i], ts=ts[i])
+        _assert_same_intervals(batch[i], stable_gain_intervals(num_z[i], den_z[i], ts=ts[i]))
     region = SpecRegion(min_damping=0.4)
     batch = spec_gain_intervals(nums, dens, region)
     for i in range(6):
-        assert batch[i] == spec_gain_intervals(nums[i], dens[i], region)
+        _assert_same_intervals(batch[i], spec_gain_intervals(nums[i], dens[i], region))
+    region = SpecRegion(min_damping=0.4, wn_range=(0.5, 60.0))
+    batch = spec_gain_intervals(num_z, den_z, region, ts=ts)
+    for i in range(6):
+        _assert_same_intervals(batch[i], spec_gain_intervals(num_z[i], den_z[i], region, ts=ts[i]))
 
 
 def _zoh_cubic_delta(ts):
@@ -449,7 +463,8 @@ def test_loop_object_is_accepted():
     batch = Loop(num=loop["num_z"], den=loop["den_z"], ts=1e-4, delta_num=dn, delta_den=dd)
     by_loop = stable_gain_intervals(batch)
     by_arrays = stable_gain_intervals(loop["num_z"], loop["den_z"], ts=1e-4, delta=(dn, dd))
-    assert by_loop == [by_arrays]
+    assert len(by_loop) == 1
+    _assert_same_intervals(by_loop[0], by_arrays)
     with pytest.raises(InputError, match="conflicts"):
         spec_gain_intervals(batch, None, SpecRegion(ts=2e-4))
     with pytest.raises(InputError, match="dead time"):
@@ -490,10 +505,11 @@ def test_delta_and_z_forms_agree_at_moderate_sampling(loop, zeta, sigma):
         np.testing.assert_allclose([a.low, a.high], [b.low, b.high], rtol=1e-7)
 
 
-def _check_spec_by_gain_grid(num, den, region, intervals, span=(-4, 4), count=600):
+def _check_spec_by_gain_grid(num, den, region, intervals, span=(-4, 4), count=600, scale=None):
     # Independent reference: numpy roots and SpecRegion.contains on a dense
     # log-spaced gain grid, skipping gains within 1e-5 of an end.
-    scale = float(np.max(np.abs(den)) / np.max(np.abs(num)))
+    if scale is None:
+        scale = float(np.max(np.abs(den)) / np.max(np.abs(num)))
     ends = np.array([e for i in intervals for e in (i.low, i.high) if 0 < e < math.inf])
     for gain in scale * np.logspace(*span, count):
         if ends.size and np.min(np.abs(ends - gain)) <= 1e-5 * gain:
@@ -541,3 +557,60 @@ def test_zoh_loop_spec_region_by_gain_grid(wn_high):
     intervals = spec_gain_intervals(num, den, region)
     assert intervals
     _check_spec_by_gain_grid(num, den, region, intervals)
+
+
+def test_region_crossings_by_curve():
+    # K/(s(s+1)(s+2)): imaginary axis at K = 6 (Routh, textbook), zeta = 0.5
+    # ray near K = 1.04 (textbook example, from memory), Re s = -0.1 at
+    # K = 0.171 (real pole, by hand: -D(-0.1)).
+    from gainloom.lti.intervals import region_crossings
+
+    region = SpecRegion(min_damping=0.5, min_decay=0.1)
+    found = region_crossings([1.0], [1.0, 3.0, 2.0, 0.0], region)
+    assert set(found) == {"stability", "decay", "damping"}
+    assert np.any(np.isclose(found["stability"].gains, 6.0, rtol=1e-12))
+    assert np.any(np.isclose(found["decay"].gains, 0.171, rtol=1e-12))
+    assert np.any(np.abs(found["damping"].gains - 1.04) < 0.01)
+
+
+def test_rounded_z_coefficients_at_fast_sampling_still_give_the_decay_endpoint():
+    # ZOH of 1/(s(s+1)(s+2)) at ts = 1e-4 given only by its rounded z
+    # coefficients (sympy, then float).  The decay spec sigma >= 0.1 starts
+    # near K = 0.171 (continuous loop, by hand: -D(-0.1)); the rounding of
+    # the z coefficients costs about 1e-3 relative here.
+    ts = 1e-4
+    loop = _zoh_cubic_delta(ts)
+    region = SpecRegion(min_decay=0.1, ts=ts)
+    intervals = spec_gain_intervals(loop["num_z"], loop["den_z"], region)
+    assert intervals and abs(intervals[0].low - 0.171) < 2e-3 * 0.171
+
+
+def test_discrete_pi_with_computation_delay():
+    # ZOH of 500/(s(s+50)) at 1 kHz (python-control c2d, reference library),
+    # the PI form kp + ki_ts z/(z-1) (kp = 1, ki_ts = 0.01) and one sample of
+    # computation delay 1/z: the loop has a pole at z = 0 and a double pole
+    # at z = 1.  Checked against numpy roots on a dense gain grid; the run
+    # must not warn (z = 0 poles read as s = -inf).  The delay pole ends up
+    # on the negative real axis with wn = sqrt(ln^2 a + pi^2)/ts near
+    # 6000-8900 rad/s (principal log), hence the wide wn range below.
+    ts = 1e-3
+    plant = control.c2d(control.tf([500.0], [1.0, 50.0, 0.0]), ts, "zoh")
+    controller = control.tf([1.01, -1.0], [1.0, -1.0], ts) * control.tf([1.0], [1.0, 0.0], ts)
+    loop = plant * controller
+    num = np.asarray(loop.num[0][0], float)
+    den = np.asarray(loop.den[0][0], float)
+    stable = stable_gain_intervals(num, den, ts=ts)
+    assert len(stable) == 1 and stable[0].low < 1e-6
+    for gain in np.logspace(-3, 2.5, 300):
+        if abs(gain - stable[0].high) < 1e-6 * gain:
+            continue
+        roots = _roots(num, den, gain)
+        assert (stable[0].low < gain < stable[0].high) == bool(np.all(np.abs(roots) < 1)), gain
+    for region in (
+        SpecRegion(min_damping=0.5, ts=ts),
+        SpecRegion(min_damping=0.3, max_pole_radius=0.995, ts=ts),
+        SpecRegion(min_damping=0.2, min_decay=2.0, wn_range=(1.0, 1e4), ts=ts),
+    ):
+        intervals = spec_gain_intervals(num, den, region)
+        assert intervals
+        _check_spec_by_gain_grid(num, den, region, intervals, span=(-3, 2.5), count=400, scale=1.0)

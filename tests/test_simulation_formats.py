@@ -11,13 +11,10 @@ import control
 import numpy as np
 import pytest
 
-from gainloom.codegen.layout import layout_table
-from gainloom.codegen.mirror import lookup_gains, run_steps
-from gainloom.codegen.qformat import quantize
 from gainloom.design.table import GainTable, TableAxis
 from gainloom.names import CONTROLLER_COEFFICIENTS
 from gainloom.simulation import LoadStep, Scenario, run_scenario
-from gainloom.simulation.controller import FixedStepper, FloatStepper, TableController
+from gainloom.simulation.controller import TableController
 
 from test_simulation import SECOND_ORDER, FunctionSchedule, constant_plant, controller_tf
 
@@ -40,43 +37,6 @@ def random_table(structure, rng, limits=(-2.0, 1.5)):
     axis = TableAxis("speed", "rpm", np.array([0.0, 1000.0, 2500.0, 6000.0]))
     coefficients = {name: rng.uniform(*RANGES[name], size=4) for name in CONTROLLER_COEFFICIENTS[structure]}
     return GainTable(structure, (axis,), coefficients, 1e-3, limits)
-
-
-@pytest.mark.parametrize("structure", sorted(CONTROLLER_COEFFICIENTS))
-@pytest.mark.parametrize("number_format", ["float32", "q15", "q31"])
-def test_stepper_is_bit_identical_to_the_codegen_mirror(structure, number_format):
-    # Reference: gainloom.codegen.mirror.run_steps (the Python mirror of the
-    # generated C) on the same stored table, gains and error sequence.
-    rng = np.random.default_rng(sum(map(ord, structure + number_format)))
-    table = random_table(structure, rng, limits=(-0.5, 0.4))
-    layout = layout_table(table, number_format)
-    speed = rng.uniform(-500.0, 6500.0, size=400)  # also beyond the ends (clamped)
-    if layout.fmt.is_fixed:
-        gains = lookup_gains(layout, quantize(speed, layout.axes[0].frac, 32))
-        errors = quantize(np.clip(rng.normal(scale=0.6, size=400), -0.99, 0.99), layout.fmt.signal_frac, layout.fmt.bits)
-        stepper = FixedStepper(layout, gains)
-    else:
-        gains = lookup_gains(layout, speed.astype(np.float32))
-        errors = np.clip(rng.normal(scale=0.6, size=400), -0.99, 0.99).astype(np.float32)
-        stepper = FloatStepper(structure, gains, layout.limits, np.float32)
-    trace = run_steps(layout, gains, errors)
-    outputs, states = [], {name: [] for name in trace.states}
-    for k, error in enumerate(errors):
-        outputs.append(stepper.step(k, error)[0])
-        for name in states:
-            states[name].append(stepper.state[name])
-    np.testing.assert_array_equal(np.array(outputs), trace.output)
-    assert set(states) == set(trace.states)
-    for name, values in trace.states.items():
-        np.testing.assert_array_equal(np.array(states[name]), values)
-    # The sequence must reach a rail for the saturation path to be compared too.
-    if layout.fmt.is_fixed:
-        from gainloom.codegen.mirror import output_code
-
-        rails = [output_code(layout, limit) for limit in layout.limits]
-    else:
-        rails = list(layout.limits)
-    assert np.isin(trace.output, rails).any()
 
 
 def test_looked_up_gains_are_the_table_within_format_resolution():

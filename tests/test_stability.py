@@ -175,3 +175,27 @@ def test_bad_polynomials_are_refused(bad):
         routh_array(bad)
     with pytest.raises(InputError):
         jury_test(bad)
+
+
+@pytest.mark.parametrize(
+    "factors",
+    [
+        [[1, 0, 4], [1, 1], [1, 2]],  # +-2j, -1, -2
+        [[1, 0, 1], [1, 0, 9], [1, 3]],  # +-j, +-3j, -3
+        [[1, 0, -1], [1, 2], [1, 5]],  # +-1 mirrored, -2, -5
+        [[1, 0, 4], [1, -1], [1, 3]],  # +-2j, +1, -3
+        [[1, 0, 0, 0, 16], [1, 1]],  # quadrantal quadruple, -1
+    ],
+)
+def test_routh_imaginary_roots_from_auxiliary_polynomial(factors):
+    # Products with roots mirrored about the origin give a row of zeros;
+    # reference: numpy.roots of the product (roots listed by hand beside).
+    poly = np.array([1.0])
+    for factor in factors:
+        poly = np.polymul(poly, factor)
+    result = routh_array(poly)
+    roots = np.roots(poly)
+    assert result.auxiliary is not None
+    assert result.rhp == int(np.sum(roots.real > 1e-7))
+    assert result.imaginary == int(np.sum(np.abs(roots.real) <= 1e-7))
+    assert result.lhp == int(np.sum(roots.real < -1e-7))

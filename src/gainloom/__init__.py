@@ -21,7 +21,7 @@ from .design.results import DesignResult, VerifyResult
 from .design.gainsfile import read_gains, write_gains
 from .lti.facts import LocusFacts, locus_facts
 from .lti.trace import LocusBranches, trace_locus
-from .lti.intervals import GainInterval, spec_gain_intervals, stable_gain_intervals
+from .lti.intervals import GainInterval, region_crossings, spec_gain_intervals, stable_gain_intervals
 from .lti.regions import SpecRegion
 from .lti.stability import jury_test, routh_array
 from .simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
@@ -61,6 +61,7 @@ __all__ = [
     "SpecRegion",
     "stable_gain_intervals",
     "spec_gain_intervals",
+    "region_crossings",
     "routh_array",
     "jury_test",
     "run_scenario",

@@ -2,8 +2,9 @@
 
 Same operations in the same order as the templates in
 ``codegen_templates/``.  Q15/Q31: the lookup uses the numpy ``int64``
-helpers of :mod:`.qformat` (vectorised over points); the step loop uses
-Python integers with the same rounding and saturation, inlined for speed.
+helpers of :mod:`.qformat` (vectorised over points); the step
+(``FixedStepper``, one sample at a time, shared with the simulator) uses
+Python integers with the same rounding and saturation.
 Both are bit-identical to the C because no intermediate of the C reaches
 ``2**63`` (products of a coefficient and a 32-bit signal stay below
 ``2**62``, sums of three 32-bit values below ``2**34``, interpolation
@@ -34,9 +35,18 @@ import numpy as np
 
 from ..errors import CodegenError
 from .layout import AxisLayout, TableLayout
-from .qformat import STATE_FRAC, lerp_fixed, rshift_round, saturate
+from .qformat import STATE_FRAC, lerp_fixed, mul_frac, rshift_round, saturate
 
-__all__ = ["state_fields", "locate", "lookup_gains", "StepTrace", "run_steps", "output_code"]
+__all__ = [
+    "state_fields",
+    "locate",
+    "lookup_gains",
+    "StepTrace",
+    "run_steps",
+    "output_code",
+    "FloatStepper",
+    "FixedStepper",
+]
 
 _STATE_FIELDS = {
     "p": ("e1",),
@@ -183,8 +193,10 @@ def run_steps(layout: TableLayout, gains: dict[str, np.ndarray], errors) -> Step
     StepTrace
     """
     if layout.fmt.is_fixed:
-        return _run_fixed(layout, gains, np.asarray(errors, dtype=np.int64))
-    return _run_float(layout, gains, np.asarray(errors, dtype=np.float32))
+        return _run(FixedStepper(layout, gains), np.asarray(errors, dtype=np.int64), np.int64)
+    stepper = FloatStepper(layout.structure, gains, layout.limits, np.float32)
+    with np.errstate(all="ignore"):  # overflow to inf is float32 behaviour the C shares
+        return _run(stepper, np.asarray(errors, dtype=np.float32), np.float32)
 
 
 def output_code(layout: TableLayout, u: int) -> int:
@@ -196,116 +208,132 @@ def output_code(layout: TableLayout, u: int) -> int:
     return saturate(int(u) * (1 << shift), layout.fmt.bits)
 
 
-def _run_fixed(layout: TableLayout, gains: dict[str, np.ndarray], errors: np.ndarray) -> StepTrace:
-    fmt = layout.fmt
-    structure = layout.structure
-    fields = state_fields(structure)
-    frac = {c.name: c.frac for c in layout.coefficients}
-    g = {name: [int(v) for v in values] for name, values in gains.items()}
-    u_min, u_max = layout.limits
-    state = dict.fromkeys(fields, 0)
-    outputs = []
-    history = {name: [] for name in fields}
-    to_state_shift = fmt.signal_frac - STATE_FRAC  # 3 for Q31, -13 for Q15
+class FloatStepper:
+    """The float controller step (float32 as the C; float64 as the ideal).
 
-    low32, high32 = -(2**31), 2**31 - 1
+    Parameters
+    ----------
+    structure : str
+        Controller structure.
+    gains : dict of str to ndarray, shape (K,)
+        Coefficients per sample, already in ``dtype``.
+    limits : tuple
+        Output limits ``(u_min, u_max)`` in ``dtype``.
+    dtype : numpy float type
+    """
 
-    def sat32(value):
-        return low32 if value < low32 else high32 if value > high32 else value
+    def __init__(self, structure: str, gains: dict[str, np.ndarray], limits: tuple, dtype) -> None:
+        self.structure = structure
+        self.dtype = dtype
+        self.fields = state_fields(structure)
+        self.g = {name: np.asarray(values).astype(dtype) for name, values in gains.items()}
+        self.u_min, self.u_max = dtype(limits[0]), dtype(limits[1])
+        self.zero = dtype(0)
+        self.state = dict.fromkeys(self.fields, self.zero)
 
-    def mul(name, k, signal):
-        # qformat.mul_frac inlined on Python ints (the hot loop of the harness)
-        product = g[name][k] * signal
-        shift = frac[name]
-        if shift:
-            half = 1 << (shift - 1)
-            product = (product + half) >> shift if product >= 0 else -((half - product) >> shift)
-        return sat32(product)
-
-    for k, error in enumerate(int(e) for e in errors):
-        es = error * (1 << -to_state_shift) if to_state_shift < 0 else rshift_round(error, to_state_shift)
+    def step(self, k: int, error):
+        """One step on the error ``e[k]`` (in ``dtype``); returns ``(u, u_unsaturated)``."""
+        g, state, structure, zero = self.g, self.state, self.structure, self.zero
+        e = error if np.isfinite(error) else zero
         if structure in ("lead", "lag"):
-            w = sat32(es - mul("zc", k, state["e1"]))
-            state["v"] = sat32(mul("pc", k, state["v"]) + mul("kc", k, w))
+            state["v"] = g["pc"][k] * state["v"] + g["kc"][k] * (e - g["zc"][k] * state["e1"])
             u = state["v"]
         elif structure == "leadlag":
-            w1 = sat32(es - mul("zc1", k, state["e1"]))
-            v1 = sat32(mul("pc1", k, state["v1"]) + mul("kc", k, w1))
-            w2 = sat32(v1 - mul("zc2", k, state["v1"]))
-            state["v2"] = sat32(mul("pc2", k, state["v2"]) + w2)
+            v1 = g["pc1"][k] * state["v1"] + g["kc"][k] * (e - g["zc1"][k] * state["e1"])
+            state["v2"] = g["pc2"][k] * state["v2"] + (v1 - g["zc2"][k] * state["v1"])
+            state["v1"] = v1
+            u = state["v2"]
+        else:
+            proportional = g["kp"][k] * e
+            if "d" in self.fields:
+                state["d"] = g["kd_a"][k] * state["d"] + g["kd_b"][k] * (e - state["e1"])
+            if "x" in self.fields:
+                increment = g["ki_ts"][k] * e
+                candidate = state["x"] + increment
+                trial = proportional + candidate
+                if "d" in self.fields:
+                    trial = trial + state["d"]
+                if not ((trial > self.u_max and increment > zero) or (trial < self.u_min and increment < zero)):
+                    state["x"] = candidate
+                u = proportional + state["x"]
+            else:
+                u = proportional
+            if "d" in self.fields:
+                u = u + state["d"]
+        state["e1"] = e
+        unsaturated = u
+        if u > self.u_max:
+            u = self.u_max
+        elif u < self.u_min:
+            u = self.u_min
+        return self.dtype(u), self.dtype(unsaturated)
+
+
+class FixedStepper:
+    """The Q15/Q31 controller step in the code-generation layer's integer arithmetic.
+
+    Parameters
+    ----------
+    layout : TableLayout
+        The table laid out in ``q15`` or ``q31``.
+    gains : dict of str to ndarray of int64, shape (K,)
+        Stored coefficients per sample (from ``lookup_gains``).
+    """
+
+    def __init__(self, layout, gains: dict[str, np.ndarray]) -> None:
+        self.layout = layout
+        self.structure = layout.structure
+        self.fields = state_fields(self.structure)
+        self.frac = {c.name: c.frac for c in layout.coefficients}
+        self.g = {name: [int(v) for v in values] for name, values in gains.items()}
+        self.u_min, self.u_max = layout.limits
+        self.to_state_shift = layout.fmt.signal_frac - STATE_FRAC
+        self.state = dict.fromkeys(self.fields, 0)
+
+    def _mul(self, name: str, k: int, signal: int) -> int:
+        return mul_frac(self.g[name][k], signal, self.frac[name], 32)
+
+    def step(self, k: int, error: int):
+        """One step on the error integer; returns ``(output code, internal u before the clamp)``."""
+        state, structure, mul = self.state, self.structure, self._mul
+        shift = self.to_state_shift
+        error = int(error)
+        es = error * (1 << -shift) if shift < 0 else rshift_round(error, shift)
+        if structure in ("lead", "lag"):
+            w = saturate(es - mul("zc", k, state["e1"]), 32)
+            state["v"] = saturate(mul("pc", k, state["v"]) + mul("kc", k, w), 32)
+            u = state["v"]
+        elif structure == "leadlag":
+            w1 = saturate(es - mul("zc1", k, state["e1"]), 32)
+            v1 = saturate(mul("pc1", k, state["v1"]) + mul("kc", k, w1), 32)
+            w2 = saturate(v1 - mul("zc2", k, state["v1"]), 32)
+            state["v2"] = saturate(mul("pc2", k, state["v2"]) + w2, 32)
             state["v1"] = v1
             u = state["v2"]
         else:
             proportional = mul("kp", k, es)
             derivative = 0
-            if "d" in fields:
-                derivative = sat32(mul("kd_a", k, state["d"]) + mul("kd_b", k, sat32(es - state["e1"])))
+            if "d" in self.fields:
+                derivative = saturate(mul("kd_a", k, state["d"]) + mul("kd_b", k, saturate(es - state["e1"], 32)), 32)
                 state["d"] = derivative
-            if "x" in fields:
+            if "x" in self.fields:
                 increment = mul("ki_ts", k, es)
-                candidate = sat32(state["x"] + increment)
-                trial = sat32(proportional + candidate + derivative)
-                if not ((trial > u_max and increment > 0) or (trial < u_min and increment < 0)):
+                candidate = saturate(state["x"] + increment, 32)
+                trial = saturate(proportional + candidate + derivative, 32)
+                if not ((trial > self.u_max and increment > 0) or (trial < self.u_min and increment < 0)):
                     state["x"] = candidate
-                u = sat32(proportional + state["x"] + derivative)
+                u = saturate(proportional + state["x"] + derivative, 32)
             else:
-                u = sat32(proportional + derivative)
+                u = saturate(proportional + derivative, 32)
         state["e1"] = es
-        outputs.append(output_code(layout, min(max(u, u_min), u_max)))
-        for name in fields:
-            history[name].append(state[name])
-    return StepTrace(
-        np.array(outputs, dtype=np.int64), {name: np.array(v, dtype=np.int64) for name, v in history.items()}
-    )
+        return output_code(self.layout, min(max(u, self.u_min), self.u_max)), u
 
 
-def _run_float(layout: TableLayout, gains: dict[str, np.ndarray], errors: np.ndarray) -> StepTrace:
-    structure = layout.structure
-    fields = state_fields(structure)
-    g = {name: np.asarray(values, dtype=np.float32) for name, values in gains.items()}
-    u_min, u_max = (np.float32(v) for v in layout.limits)
-    zero = np.float32(0)
-    state = dict.fromkeys(fields, zero)
-    # The sums are written term by term, left to right, exactly as the C
-    # evaluates them: float addition is not associative.
+def _run(stepper, errors: np.ndarray, dtype) -> StepTrace:
     outputs = []
-    history = {name: [] for name in fields}
-    with np.errstate(all="ignore"):  # overflow to inf is float32 behaviour the C shares
-        for k, error in enumerate(errors):
-            e = error if np.isfinite(error) else zero
-            if structure in ("lead", "lag"):
-                state["v"] = g["pc"][k] * state["v"] + g["kc"][k] * (e - g["zc"][k] * state["e1"])
-                u = state["v"]
-            elif structure == "leadlag":
-                v1 = g["pc1"][k] * state["v1"] + g["kc"][k] * (e - g["zc1"][k] * state["e1"])
-                state["v2"] = g["pc2"][k] * state["v2"] + (v1 - g["zc2"][k] * state["v1"])
-                state["v1"] = v1
-                u = state["v2"]
-            else:
-                proportional = g["kp"][k] * e
-                if "d" in fields:
-                    state["d"] = g["kd_a"][k] * state["d"] + g["kd_b"][k] * (e - state["e1"])
-                if "x" in fields:
-                    increment = g["ki_ts"][k] * e
-                    candidate = state["x"] + increment
-                    trial = proportional + candidate
-                    if "d" in fields:
-                        trial = trial + state["d"]
-                    if not ((trial > u_max and increment > zero) or (trial < u_min and increment < zero)):
-                        state["x"] = candidate
-                    u = proportional + state["x"]
-                else:
-                    u = proportional
-                if "d" in fields:
-                    u = u + state["d"]
-            state["e1"] = e
-            if u > u_max:
-                u = u_max
-            elif u < u_min:
-                u = u_min
-            outputs.append(np.float32(u))
-            for name in fields:
-                history[name].append(state[name])
-    return StepTrace(
-        np.array(outputs, dtype=np.float32), {name: np.array(v, dtype=np.float32) for name, v in history.items()}
-    )
+    history = {name: [] for name in stepper.fields}
+    for k, error in enumerate(errors):
+        outputs.append(stepper.step(k, error)[0])
+        for name in stepper.fields:
+            history[name].append(stepper.state[name])
+    return StepTrace(np.array(outputs, dtype=dtype), {name: np.array(v, dtype=dtype) for name, v in history.items()})

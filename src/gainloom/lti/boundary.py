@@ -21,8 +21,12 @@ real, i.e. ``Im(D(c) conj N(c)) = 0``.
 * **Sampled curves** (log-spirals of constant damping and constant-``wn``
   contours in ``z``): sign changes of ``Im(D conj N)`` normalised by
   ``|D|^2 + |N|^2`` on a fine grid, refined by :func:`scipy.optimize.brentq`.
-  Tangencies (a root touching the curve without crossing it) can be missed;
-  they do not change which side of the curve the roots are on.
+  Cells with a sign change and the cells around every dip of the measure are
+  resampled first (several crossings in one cell), and the grid's end points
+  (real-axis points, where the measure is zero up to rounding) are sampled a
+  hair inside.  Tangencies (a root touching the curve without crossing it)
+  can be missed; they do not change which side of the curve the roots are
+  on.  Crossings closer together than the resampled grid can still merge.
 
 Every curve's real-axis points are added directly (``K = -D(x)/N(x)`` at
 real ``x``).  Roots of ``Im(D conj N)`` where ``N(c) = 0`` are dropped (they
@@ -475,7 +479,7 @@ def _brackets(
     of the last level are the brackets.  A dip that never reaches zero is a
     tangency or nothing and is let go.
     """
-    rows, low, high, _ = _interesting(values, grid)
+    rows, low, high, is_change = _interesting(values, grid)
     share = np.linspace(0.0, 1.0, points + 1)
     for _ in range(levels):
         if rows.size == 0:

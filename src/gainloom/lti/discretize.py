@@ -207,7 +207,7 @@ def _ss_num(A: np.ndarray, B: np.ndarray, C: np.ndarray, D: np.ndarray, den: np.
 def _state_space_hold(num, den, ts, method) -> _Rational:
     """zoh, foh and impulse: all via the augmented matrix exponential."""
     A, B, C, D = tf_to_ss(num, den, scaled=True)
-    points, n = A.shape[0], A.shape[-1]
+    points = A.shape[0]
     if method == "impulse" and np.any(D != 0):
         bad = int(np.flatnonzero(D != 0)[0])
         raise InputError(

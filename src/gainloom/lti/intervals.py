@@ -28,19 +28,25 @@ Cost: one Python pass per loop for the candidate gains (a few numpy calls
 per curve, plus one brentq per crossing of a sampled z-plane curve), then a
 single batched root computation for every loop together.
 
-Fast sampling: when the loop is also given in the delta operator
-``g = (z - 1)/ts`` (``delta=(delta_num, delta_den)``), every z-plane curve is
-solved in ``g`` (circles ``|z| = r`` become circles through
+Fast sampling: every discrete loop is solved in the delta variable
+``g = (z - 1)/ts``: circles ``|z| = r`` become circles through
 ``(r - 1)/ts`` and ``-(r + 1)/ts`` with ``r - 1`` formed by ``expm1``;
-spirals and ``wn`` contours are evaluated as ``expm1(s ts)/ts``) and
-membership uses roots in ``g`` mapped by ``s = log1p(ts g)/ts``, so poles
-crowding near ``z = 1`` keep their digits.
+spirals and ``wn`` contours are evaluated as ``expm1(s ts)/ts``; membership
+uses roots in ``g`` read through ``s = log1p(ts g)/ts``, so poles crowding
+near ``z = 1`` keep their digits.  When the loop is given in ``g`` too
+(``delta=(delta_num, delta_den)``, or a :class:`~gainloom.lti.loop.Loop`
+carrying it) those coefficients are used; otherwise the z polynomials are
+shifted to ``g`` exactly (rational arithmetic), which removes the
+root-finding and evaluation error near ``z = 1`` but cannot restore digits
+the z coefficients lost when they were rounded -- at ``ts |pole|`` around
+``1e-5`` and below, give the delta form.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from fractions import Fraction
 
 import numpy as np
 
@@ -55,9 +61,16 @@ from .boundary import (
 )
 from .loop import Loop
 from .polynomials import batched_roots
-from .regions import SpecRegion, spiral_s, wn_contour_arcs
+from .regions import SpecRegion, s_from_log, spiral_s, wn_contour_arcs
 
-__all__ = ["GainInterval", "stable_gain_intervals", "spec_gain_intervals"]
+__all__ = ["GainInterval", "stable_gain_intervals", "spec_gain_intervals", "region_crossings", "CURVE_NAMES"]
+
+#: Names of the boundary curves of a spec region, as keys of
+#: :func:`region_crossings`: stability (imaginary axis / unit circle), decay
+#: (``Re s = -min_decay`` / ``|z| = exp(-min_decay ts)``), damping (ray /
+#: log-spiral), wn_low and wn_high (circles / contours), radius
+#: (``|z| = max_pole_radius``).
+CURVE_NAMES: tuple[str, ...] = ("stability", "decay", "damping", "wn_low", "wn_high", "radius")
 
 #: Grid of the sampled curves: points per arc (uniform), plus geometric
 #: points towards the real-axis end of the spiral where poles crowd.
@@ -101,23 +114,24 @@ def _spiral_grid() -> np.ndarray:
 
 def _curve_crossings(
     nums: np.ndarray, dens: np.ndarray, region: SpecRegion, ts: np.ndarray | None, delta: bool
-) -> list[list[Crossings]]:
+) -> dict[str, list[Crossings]]:
     """Crossings of every boundary curve of ``region``, all loops at once.
 
-    Returns one list per curve, each with one :class:`Crossings` per loop.
+    Returns ``{curve name: one Crossings per loop}`` with names from
+    :data:`CURVE_NAMES`.
     """
     zeta, sigma = region.min_damping, region.min_decay
     low, high = region.wn_range
-    frequencies = [wn for wn in (low, high) if 0.0 < wn < math.inf]
-    found: list[list[Crossings]] = []
+    frequencies = [(name, wn) for name, wn in (("wn_low", low), ("wn_high", high)) if 0.0 < wn < math.inf]
+    found: dict[str, list[Crossings]] = {}
     if ts is None:
-        found.append(line_crossings(nums, dens, 0.0, 1j))
+        found["stability"] = line_crossings(nums, dens, 0.0, 1j)
         if sigma > 0:
-            found.append(line_crossings(nums, dens, -sigma, 1j))
+            found["decay"] = line_crossings(nums, dens, -sigma, 1j)
         if zeta > 0:
-            found.append(line_crossings(nums, dens, 0.0, complex(-zeta, math.sqrt(1.0 - zeta**2))))
-        for wn in frequencies:
-            found.append(circle_crossings(nums, dens, wn, -wn))
+            found["damping"] = line_crossings(nums, dens, 0.0, complex(-zeta, math.sqrt(1.0 - zeta**2)))
+        for name, wn in frequencies:
+            found[name] = circle_crossings(nums, dens, wn, -wn)
         return found
 
     # z-plane: map points z = exp(s ts) into the polynomial's variable.
@@ -135,12 +149,12 @@ def _curve_crossings(
             return circle_crossings(nums, dens, radius, -radius)
 
     ones = np.ones_like(ts)
-    found.append(circle(0.0 * ones, ones))
+    found["stability"] = circle(0.0 * ones, ones)
     if sigma > 0:
-        found.append(circle(np.expm1(-sigma * ts), np.exp(-sigma * ts)))
+        found["decay"] = circle(np.expm1(-sigma * ts), np.exp(-sigma * ts))
     if region.max_pole_radius is not None and region.max_pole_radius < 1.0:
         r = region.max_pole_radius
-        found.append(circle((r - 1.0) * ones, r * ones))
+        found["radius"] = circle((r - 1.0) * ones, r * ones)
     if zeta > 0:
         grid = _spiral_grid()
         column = ts[:, None]
@@ -150,14 +164,14 @@ def _curve_crossings(
             period = ts[rows]
             return from_s(spiral_s(u, zeta, period), period)
 
-        found.append(sampled_crossings(nums, dens, spiral, grid, real_points=ends))
-    for wn in frequencies:
+        found["damping"] = sampled_crossings(nums, dens, spiral, grid, real_points=ends)
+    for name, wn in frequencies:
         grid, ends = _wn_grid(wn, ts, from_s)
 
         def contour(psi: np.ndarray, rows: np.ndarray, wn: float = wn) -> np.ndarray:
             return from_s(wn * np.exp(1j * psi), ts[rows])
 
-        found.append(sampled_crossings(nums, dens, contour, grid, real_points=ends))
+        found[name] = sampled_crossings(nums, dens, contour, grid, real_points=ends)
     return found
 
 
@@ -254,17 +268,52 @@ def _normalise(num: object, den: object, ts: object, delta: object) -> tuple[Loo
     return loop, single
 
 
+def _shift_to_delta(poly: np.ndarray, ts: float) -> np.ndarray:
+    """Coefficients in ``g`` of ``p(1 + ts g)``, computed exactly.
+
+    Rational arithmetic on the float coefficients: the result is the same
+    polynomial as the given z polynomial, rounded once at the end, with no
+    cancellation in between.
+    """
+    step = Fraction(ts)
+    ascending = [Fraction(0)]
+    for coeff in poly.tolist():
+        shifted = [Fraction(0)] * (len(ascending) + 1)
+        for k, value in enumerate(ascending):
+            shifted[k] += value
+            shifted[k + 1] += value * step
+        shifted[0] += Fraction(coeff)
+        ascending = shifted
+    return np.array([float(v) for v in reversed(ascending[: poly.size])])
+
+
+def _working_polynomials(loop: Loop) -> tuple[np.ndarray, np.ndarray, bool]:
+    """Polynomials to solve in: ``s``; or ``g`` for every discrete loop.
+
+    A given delta form is used as it is (its coefficients carry digits the
+    z coefficients have lost).  Otherwise the z polynomials are shifted to
+    ``g`` exactly: that cannot restore digits lost when the z coefficients
+    were rounded, but it removes the error of finding clustered roots near
+    ``z = 1`` and of evaluating the z polynomials there.
+    """
+    if loop.ts is None:
+        return loop.num, loop.den, False
+    if loop.delta_den is not None:
+        return loop.delta_num, loop.delta_den, True
+    nums = np.stack([_shift_to_delta(row, float(t)) for row, t in zip(loop.num, loop.ts)])
+    dens = np.stack([_shift_to_delta(row, float(t)) for row, t in zip(loop.den, loop.ts)])
+    return nums, dens, True
+
+
 def _intervals(
     loop: Loop, region: SpecRegion, signs: tuple[float, ...]
 ) -> list[list[GainInterval]]:
-    use_delta = loop.delta_den is not None
-    nums = loop.delta_num if use_delta else loop.num
-    dens = loop.delta_den if use_delta else loop.den
+    nums, dens, use_delta = _working_polynomials(loop)
     plans = []  # (loop index, sign, edges) per searched side
     rows, gains = [], []
     per_curve = _curve_crossings(nums, dens, region, None if loop.ts is None else np.asarray(loop.ts), use_delta)
     for i in range(loop.points):
-        crossings = [curve[i] for curve in per_curve]
+        crossings = [curve[i] for curve in per_curve.values()]
         scale = float(np.max(np.abs(dens[i])) / max(float(np.max(np.abs(nums[i]))), 1e-300))
         for sign in signs:
             edges = _candidates(nums[i], dens[i], crossings, sign)
@@ -285,11 +334,11 @@ def _intervals(
         else:
             ts_rows = loop.ts[row_index][:, None]
             if use_delta:
-                s = log1p_complex(ts_rows * roots) / ts_rows
+                s = s_from_log(log1p_complex(ts_rows * roots), ts_rows)
                 z_abs = np.abs(1.0 + ts_rows * roots)
             else:
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    s = np.log(roots) / ts_rows
+                with np.errstate(divide="ignore"):
+                    s = s_from_log(np.log(roots), ts_rows)
                 z_abs = np.abs(roots)
             member = region._contains_s(s, z_abs=z_abs)
         member_all = np.all(member, axis=-1)
@@ -304,6 +353,26 @@ def _intervals(
     for intervals in results:
         intervals.sort(key=lambda interval: interval.low)
     return results
+
+
+def _prepare_spec(num: object, den: object, region: object, ts: object, delta: object) -> tuple[Loop, bool, SpecRegion]:
+    if not isinstance(region, SpecRegion):
+        raise InputError(f"region must be a SpecRegion; got {type(region).__name__}")
+    if isinstance(num, Loop):
+        own = num.ts
+        if region.ts is not None and (own is None or not np.allclose(own, region.ts, rtol=1e-12, atol=0.0)):
+            found = "a continuous loop" if own is None else f"ts={np.asarray(own).tolist()}"
+            raise InputError(f"the region's ts={region.ts} conflicts with the loop ({found})")
+    elif ts is None:
+        ts = region.ts
+    elif region.ts is not None:
+        given = np.asarray(ts, dtype=float)
+        if not np.allclose(given, region.ts, rtol=1e-12, atol=0.0):
+            raise InputError(f"ts={given.tolist()} conflicts with the region's ts={region.ts}; give one of them")
+    loop, single = _normalise(num, den, ts, delta)
+    if loop.ts is None and region.max_pole_radius is not None:
+        raise InputError("max_pole_radius applies to discrete loops; these loops have no sample period")
+    return loop, single, region
 
 
 def spec_gain_intervals(
@@ -330,8 +399,10 @@ def spec_gain_intervals(
         Sample period(s) in seconds; ``None`` (and ``region.ts`` None) for
         continuous loops.  Must agree with ``region.ts`` when both are given.
     delta : (array_like, array_like), optional
-        The same discrete loop(s) in ``g = (z - 1)/ts``; when given, all
-        solving and root finding happens in ``g`` (fast sampling).
+        The same discrete loop(s) in ``g = (z - 1)/ts``.  Discrete loops are
+        always solved in ``g``; without this the z coefficients are shifted
+        to ``g`` exactly, which cannot restore digits they lost to rounding.
+        Give it at fast sampling (``ts |pole|`` around ``1e-4`` and below).
 
     Returns
     -------
@@ -345,22 +416,7 @@ def spec_gain_intervals(
     The Python work is one pass per loop for the endpoints; the roots of all
     loops are computed in one call.
     """
-    if not isinstance(region, SpecRegion):
-        raise InputError(f"region must be a SpecRegion; got {type(region).__name__}")
-    if isinstance(num, Loop):
-        own = num.ts
-        if region.ts is not None and (own is None or not np.allclose(own, region.ts, rtol=1e-12, atol=0.0)):
-            found = "a continuous loop" if own is None else f"ts={np.asarray(own).tolist()}"
-            raise InputError(f"the region's ts={region.ts} conflicts with the loop ({found})")
-    elif ts is None:
-        ts = region.ts
-    elif region.ts is not None:
-        given = np.asarray(ts, dtype=float)
-        if not np.allclose(given, region.ts, rtol=1e-12, atol=0.0):
-            raise InputError(f"ts={given.tolist()} conflicts with the region's ts={region.ts}; give one of them")
-    loop, single = _normalise(num, den, ts, delta)
-    if loop.ts is None and region.max_pole_radius is not None:
-        raise InputError("max_pole_radius applies to discrete loops; these loops have no sample period")
+    loop, single, region = _prepare_spec(num, den, region, ts, delta)
     results = _intervals(loop, region, (1.0,))
     return results[0] if single else results
 
@@ -390,7 +446,8 @@ def stable_gain_intervals(
         interval: a positive interval starts at 0 (exclusive) when the open
         loop is stable.
     delta : (array_like, array_like), optional
-        The discrete loop(s) in ``g = (z - 1)/ts``, for fast sampling.
+        The discrete loop(s) in ``g = (z - 1)/ts``, for fast sampling (see
+        :func:`spec_gain_intervals`).
 
     Returns
     -------
@@ -407,3 +464,45 @@ def stable_gain_intervals(
     signs = (-1.0, 1.0) if negative else (1.0,)
     results = _intervals(loop, SpecRegion(), signs)
     return results[0] if single else results
+
+
+def region_crossings(
+    num: object,
+    den: object | None,
+    region: SpecRegion,
+    ts: object = None,
+    delta: tuple[object, object] | None = None,
+) -> dict[str, Crossings] | list[dict[str, Crossings]]:
+    """Gains at which a closed-loop root lies on each boundary curve of ``region``.
+
+    The same solutions :func:`spec_gain_intervals` builds its intervals
+    from, by curve, for annotating root-locus plots or explaining which spec
+    binds.
+
+    Parameters
+    ----------
+    num, den, region, ts, delta
+        As for :func:`spec_gain_intervals`.
+
+    Returns
+    -------
+    dict or list of dict
+        ``{curve name: Crossings}`` (names from :data:`CURVE_NAMES`, only
+        the curves the region has); one dict per loop for batch input.
+        Gains of any sign; points in ``s`` or ``z``.
+    """
+    loop, single, region = _prepare_spec(num, den, region, ts, delta)
+    nums, dens, use_delta = _working_polynomials(loop)
+    per_curve = _curve_crossings(nums, dens, region, None if loop.ts is None else np.asarray(loop.ts), use_delta)
+    out = []
+    for i in range(loop.points):
+        found = {}
+        for name, crossings in per_curve.items():
+            c = crossings[i]
+            if use_delta:
+                # Report z-plane points: z = 1 + ts g.
+                ts = float(loop.ts[i])
+                c = Crossings(c.gains, 1.0 + ts * c.points, 1.0 + ts * c.fixed_points)
+            found[name] = c
+        out.append(found)
+    return out[0] if single else out

@@ -103,18 +103,15 @@ class SpecRegion:
             if self.max_pole_radius is not None:
                 raise InputError("max_pole_radius applies to z-plane poles; the region has no sample period ts")
             return self._contains_s(poles)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            s = np.log(poles) / self.ts
-        return self._contains_s(s, z_abs=np.abs(poles), ts=self.ts)
+        with np.errstate(divide="ignore"):
+            s = s_from_log(np.log(poles), self.ts)  # z = 0 -> -inf
+        return self._contains_s(s, z_abs=np.abs(poles))
 
-    def _contains_s(
-        self, s: np.ndarray, z_abs: np.ndarray | None = None, ts: np.ndarray | float | None = None
-    ) -> np.ndarray:
+    def _contains_s(self, s: np.ndarray, z_abs: np.ndarray | None = None) -> np.ndarray:
         """Membership of poles given as s-plane equivalents.
 
         ``z_abs`` (``|z|``) is given for z-plane use and carries the radius
-        and stability tests; ``s = -inf`` stands for ``z = 0``.  ``ts`` may
-        broadcast against ``s`` (one period per loop).
+        test; ``Re s = -inf`` stands for ``z = 0``.
         """
         s = np.asarray(s, dtype=complex)
         at_zero = np.isneginf(s.real)  # z = 0
@@ -126,12 +123,10 @@ class SpecRegion:
         ok = zeta >= self.min_damping
         ok &= -s.real >= self.min_decay
         ok &= (modulus >= low) & (modulus <= high)
-        if z_abs is None:
-            ok &= s.real < 0
-        else:
-            ok &= z_abs < 1.0
-            if self.max_pole_radius is not None:
-                ok &= z_abs <= self.max_pole_radius
+        # Strict stability, read on s: Re s = ln|z|/ts < 0 exactly when |z| < 1.
+        ok &= s.real < 0
+        if z_abs is not None and self.max_pole_radius is not None:
+            ok &= z_abs <= self.max_pole_radius
         return ok
 
     # -- drawing ----------------------------------------------------------
@@ -218,3 +213,9 @@ def wn_contour_arcs(wn: float, ts: float) -> list[tuple[float, float]]:
         return [(0.0, math.pi)]
     edge = math.asin(math.pi / (wn * ts))
     return [(0.0, edge), (math.pi - edge, math.pi)]
+
+
+def s_from_log(log_z: np.ndarray, ts: np.ndarray | float) -> np.ndarray:
+    """``s = ln(z) / ts`` part by part, so ``ln 0 = -inf`` stays ``-inf`` (no nan)."""
+    log_z = np.asarray(log_z, dtype=complex)
+    return log_z.real / ts + 1j * (log_z.imag / ts)

@@ -122,6 +122,11 @@ def routh_array(coeffs: object, eps: float | None = None) -> RouthResult:
     See the module docstring for the special cases.  For a verdict over many
     polynomials at once prefer batched roots; this function is the readable
     table.
+
+    References
+    ----------
+    E. J. Routh, *A Treatise on the Stability of a Given State of Motion*,
+    Macmillan, 1877.
     """
     poly = _as_poly(coeffs, "routh_array")
     if eps is not None and not (np.isfinite(eps) and eps > 0):
@@ -239,6 +244,11 @@ def jury_test(coeffs: object) -> JuryResult:
         ``|c0| > |c(n-2)|``, ... (the row letters run on from ``b``).
         Equality counts as failing: a root on the unit circle is not
         asymptotically stable.
+
+    References
+    ----------
+    E. I. Jury, *Theory and Application of the z-Transform Method*, Wiley,
+    1964.
     """
     poly = _as_poly(coeffs, "jury_test")
     if poly[0] < 0:

@@ -19,13 +19,9 @@ Number formats:
   integer arithmetic of :mod:`gainloom.codegen.qformat` (rounding, saturating
   multiply, Q3.28 states).
 
-The closed loop needs the step one sample at a time, while
-``codegen.mirror.run_steps`` runs a whole error sequence from reset.  The
-stepper here follows ``run_steps`` operation for operation, with all
-fixed-point arithmetic taken from ``codegen.qformat``; a test checks it is
-bit-identical to ``run_steps`` for every structure and format.  (When the
-code-generation layer offers a per-step call, this should become a thin
-wrapper around it.)
+The closed loop needs the step one sample at a time: it uses the mirror's
+own per-sample steppers (``codegen.mirror.FloatStepper`` / ``FixedStepper``),
+the very code the host harness checks bit for bit against the compiled C.
 
 All states start at zero and ``e[-1] = 0`` (a controller switched on at
 ``t = 0``), so a derivative sees the first error as a step.
@@ -36,14 +32,14 @@ from __future__ import annotations
 import numpy as np
 
 from ..codegen.layout import layout_table
-from ..codegen.mirror import lookup_gains, output_code, state_fields
-from ..codegen.qformat import STATE_FRAC, dequantize, mul_frac, quantize, rshift_round, saturate
+from ..codegen.mirror import FixedStepper, FloatStepper, lookup_gains, state_fields
+from ..codegen.qformat import STATE_FRAC, dequantize, quantize
 from ..design.table import GainTable
 from ..errors import InputError
 from ..names import NUMBER_FORMATS, unknown_name_message
 from .interpolation import interpolate_table
 
-__all__ = ["SIMULATION_FORMATS", "STATE_NAMES", "FloatStepper", "FixedStepper", "TableController"]
+__all__ = ["SIMULATION_FORMATS", "STATE_NAMES", "TableController"]
 
 #: Number formats the simulator can run the controller in: the emitted C
 #: formats plus ``float64`` as an ideal reference.
@@ -62,127 +58,6 @@ STATE_NAMES: dict[str, str] = {
 def recorded_fields(structure: str) -> tuple[str, ...]:
     """Mirror state fields recorded per sample (the previous error is left out)."""
     return tuple(name for name in state_fields(structure) if name != "e1")
-
-
-class FloatStepper:
-    """The float controller step (float32 as the C; float64 as the ideal).
-
-    Parameters
-    ----------
-    structure : str
-        Controller structure.
-    gains : dict of str to ndarray, shape (K,)
-        Coefficients per sample, already in ``dtype``.
-    limits : tuple
-        Output limits ``(u_min, u_max)`` in ``dtype``.
-    dtype : numpy float type
-    """
-
-    def __init__(self, structure: str, gains: dict[str, np.ndarray], limits: tuple, dtype) -> None:
-        self.structure = structure
-        self.dtype = dtype
-        self.fields = state_fields(structure)
-        self.g = {name: np.asarray(values).astype(dtype) for name, values in gains.items()}
-        self.u_min, self.u_max = dtype(limits[0]), dtype(limits[1])
-        self.zero = dtype(0)
-        self.state = dict.fromkeys(self.fields, self.zero)
-
-    def step(self, k: int, error):
-        """One step on the error ``e[k]`` (in ``dtype``); returns ``(u, u_unsaturated)``."""
-        g, state, structure, zero = self.g, self.state, self.structure, self.zero
-        e = error if np.isfinite(error) else zero
-        if structure in ("lead", "lag"):
-            state["v"] = g["pc"][k] * state["v"] + g["kc"][k] * (e - g["zc"][k] * state["e1"])
-            u = state["v"]
-        elif structure == "leadlag":
-            v1 = g["pc1"][k] * state["v1"] + g["kc"][k] * (e - g["zc1"][k] * state["e1"])
-            state["v2"] = g["pc2"][k] * state["v2"] + (v1 - g["zc2"][k] * state["v1"])
-            state["v1"] = v1
-            u = state["v2"]
-        else:
-            proportional = g["kp"][k] * e
-            if "d" in self.fields:
-                state["d"] = g["kd_a"][k] * state["d"] + g["kd_b"][k] * (e - state["e1"])
-            if "x" in self.fields:
-                increment = g["ki_ts"][k] * e
-                candidate = state["x"] + increment
-                trial = proportional + candidate
-                if "d" in self.fields:
-                    trial = trial + state["d"]
-                if not ((trial > self.u_max and increment > zero) or (trial < self.u_min and increment < zero)):
-                    state["x"] = candidate
-                u = proportional + state["x"]
-            else:
-                u = proportional
-            if "d" in self.fields:
-                u = u + state["d"]
-        state["e1"] = e
-        unsaturated = u
-        if u > self.u_max:
-            u = self.u_max
-        elif u < self.u_min:
-            u = self.u_min
-        return self.dtype(u), self.dtype(unsaturated)
-
-
-class FixedStepper:
-    """The Q15/Q31 controller step in the code-generation layer's integer arithmetic.
-
-    Parameters
-    ----------
-    layout : TableLayout
-        The table laid out in ``q15`` or ``q31``.
-    gains : dict of str to ndarray of int64, shape (K,)
-        Stored coefficients per sample (from ``lookup_gains``).
-    """
-
-    def __init__(self, layout, gains: dict[str, np.ndarray]) -> None:
-        self.layout = layout
-        self.structure = layout.structure
-        self.fields = state_fields(self.structure)
-        self.frac = {c.name: c.frac for c in layout.coefficients}
-        self.g = {name: [int(v) for v in values] for name, values in gains.items()}
-        self.u_min, self.u_max = layout.limits
-        self.to_state_shift = layout.fmt.signal_frac - STATE_FRAC
-        self.state = dict.fromkeys(self.fields, 0)
-
-    def _mul(self, name: str, k: int, signal: int) -> int:
-        return mul_frac(self.g[name][k], signal, self.frac[name], 32)
-
-    def step(self, k: int, error: int):
-        """One step on the error integer; returns ``(output code, internal u before the clamp)``."""
-        state, structure, mul = self.state, self.structure, self._mul
-        shift = self.to_state_shift
-        error = int(error)
-        es = error * (1 << -shift) if shift < 0 else rshift_round(error, shift)
-        if structure in ("lead", "lag"):
-            w = saturate(es - mul("zc", k, state["e1"]), 32)
-            state["v"] = saturate(mul("pc", k, state["v"]) + mul("kc", k, w), 32)
-            u = state["v"]
-        elif structure == "leadlag":
-            w1 = saturate(es - mul("zc1", k, state["e1"]), 32)
-            v1 = saturate(mul("pc1", k, state["v1"]) + mul("kc", k, w1), 32)
-            w2 = saturate(v1 - mul("zc2", k, state["v1"]), 32)
-            state["v2"] = saturate(mul("pc2", k, state["v2"]) + w2, 32)
-            state["v1"] = v1
-            u = state["v2"]
-        else:
-            proportional = mul("kp", k, es)
-            derivative = 0
-            if "d" in self.fields:
-                derivative = saturate(mul("kd_a", k, state["d"]) + mul("kd_b", k, saturate(es - state["e1"], 32)), 32)
-                state["d"] = derivative
-            if "x" in self.fields:
-                increment = mul("ki_ts", k, es)
-                candidate = saturate(state["x"] + increment, 32)
-                trial = saturate(proportional + candidate + derivative, 32)
-                if not ((trial > self.u_max and increment > 0) or (trial < self.u_min and increment < 0)):
-                    state["x"] = candidate
-                u = saturate(proportional + state["x"] + derivative, 32)
-            else:
-                u = saturate(proportional + derivative, 32)
-        state["e1"] = es
-        return output_code(self.layout, min(max(u, self.u_min), self.u_max)), u
 
 
 class TableController:
