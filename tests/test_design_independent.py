@@ -120,17 +120,33 @@ def test_whole_table_passes_between_points_after_refinement(tmp_path):
         assert 0.0 < entry["value"] < 1.0
 
 
-def test_cancelling_the_slowest_pole_binds_on_decay_at_that_pole(tmp_path):
+def test_cancelling_the_slowest_pole_is_reported_with_its_decay(tmp_path):
     # A PI zero on the slow plant pole leaves a closed-loop pole there for
     # every gain (root-locus fact: a pole-zero pair that cancels is a fixed
-    # closed-loop pole).  Its decay rate is the plant pole's, from the
-    # quadratic formula for tau s^2 + s + 0.2 (closed form):
+    # closed-loop pole).  It is not in the reference response, so the region
+    # specs skip it (docs/design.md), but the note must quote its decay rate,
+    # the plant pole's, from the quadratic formula for tau s^2 + s + 0.2:
     slow = (-1 + math.sqrt(1 - 4 * 0.01 * 0.2)) / (2 * 0.01)
     result = design_case(tmp_path, "pi", "pole-cancel", "  zero_on: slowest", 45)
-    assert set(result.status) == {"fail"}
-    assert set(result.binding) == {"min_decay"}
-    for notes in result.notes:
-        text = notes[-1]
-        assert "decay rate at most" in text
-        value = float(text.split("at most ")[1].split(" ")[0])
-        assert value == pytest.approx(-slow, rel=1e-3)
+    a = result.analysis
+    for p, notes in enumerate(result.notes):
+        text = next(n for n in notes if "cancels a plant pole" in n)
+        rate = float(text.split("(decay ")[1].split(" ")[0])
+        assert rate == pytest.approx(-slow, rel=1e-5)  # note prints 6 significant digits
+        # the pinned pole is in the reported poles (python-control agrees)
+        c = {k: float(v[p]) for k, v in a.coefficients.items()}
+        load = result.points[p][0]
+        poles = control.feedback(reference_loop(2.0 + 2.0 * load, 0.01, 0.001, "pi", c), 1).poles()
+        assert np.min(np.abs(poles - math.exp(slow * 0.001))) < 1e-9
+        assert np.min(np.abs(a.poles_z[p] - math.exp(slow * 0.001))) < 1e-9
+    # every passing point also passes the python-control re-check of the other poles
+    for p, status in enumerate(result.status):
+        if status != "pass":
+            continue
+        c = {k: float(v[p]) for k, v in a.coefficients.items()}
+        load = result.points[p][0]
+        poles = control.feedback(reference_loop(2.0 + 2.0 * load, 0.01, 0.001, "pi", c), 1).poles()
+        rest = poles[np.abs(poles - math.exp(slow * 0.001)) > 1e-6]
+        s = np.log(rest.astype(complex)) / 0.001
+        assert np.min(-s.real / np.abs(s)) >= 0.5 - 1e-6
+        assert np.min(-s.real) >= 4 / 0.2 - 1e-6

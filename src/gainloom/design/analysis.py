@@ -12,6 +12,9 @@ Pole-region verdicts (the same region the design searches):
 * every closed-loop pole: ``|z| < 1`` (stable), damping ``>= min_damping``,
   decay rate ``-ln|z|/ts >= 4/T_s`` (settling approximation),
   ``|z| <= max_pole_radius``;
+* a closed-loop pole left where a controller zero cancels a stable plant pole
+  must be stable but is not judged by the region specs
+  (:mod:`gainloom.design.cancel`);
 * the dominant pole (largest ``|z|``, slowest): natural frequency inside
   ``[min_natural_frequency, max_natural_frequency]``.  The band is read on
   the dominant pole only: the fast closed-loop poles that the computation
@@ -30,6 +33,7 @@ from ..lti.closed_loop import closed_loop_poles
 from ..lti.loop import Loop
 from ..lti.margins import loop_margins
 from ..lti.poles import damping_and_frequency
+from .cancel import cancelled_zeros, mask_cancelled
 from .specs import SPEC_ORDER, SpecLimits
 from .structures import locus_from_coefficients, open_loop, physical_from_coefficients
 
@@ -87,6 +91,10 @@ class PointAnalysis:
     verdicts : dict of str to ndarray of bool
         True where a spec holds or is not required.
     warnings : tuple of str
+    cancelled : ndarray, shape (P, nz)
+        Controller zeros that cancel a plant pole (NaN where none); the
+        closed-loop pole left there is in ``poles_z`` but not in the region
+        metrics (see :mod:`gainloom.design.cancel`).
     """
 
     structure: str
@@ -112,6 +120,7 @@ class PointAnalysis:
     limits: SpecLimits
     verdicts: dict[str, np.ndarray]
     warnings: tuple[str, ...] = field(default=())
+    cancelled: np.ndarray | None = None
 
     @property
     def points(self) -> int:
@@ -270,17 +279,22 @@ def analyse(
     poles = np.take_along_axis(poles, order, axis=-1)
     with np.errstate(divide="ignore", invalid="ignore"):
         poles_s = np.log(poles) / ts[:, None]
-    metrics = pole_metrics(poles, ts)
-    margins = loop_margins(loop, 1.0)
     form = locus_from_coefficients(structure, coefficients)
+    zeros = np.where(np.all(np.isfinite(form.zeros), axis=-1, keepdims=True), form.zeros, 0.0)
+    zeros[..., 0] = 1.0
+    cancelled = cancelled_zeros(zeros, plant.den)
+    full_radius = np.max(np.abs(poles), axis=-1) if poles.shape[-1] else np.zeros(plant.points)
+    # cancelled plant poles stay in the report but not in the region specs
+    metrics = pole_metrics(mask_cancelled(poles, cancelled), ts)
+    margins = loop_margins(loop, 1.0)
     if step:
         overshoot, settling, _ = step_metrics(loop)
     else:
         overshoot = settling = np.full(plant.points, np.nan)
     system_type = integrator_count(loop)
-    stable = metrics["radius"] < 1
+    stable = full_radius < 1
     values = {
-        "stable": metrics["radius"],
+        "stable": full_radius,
         "min_damping": metrics["damping"],
         "min_decay": metrics["decay"],
         "min_natural_frequency": metrics["dominant_frequency"],
@@ -339,4 +353,5 @@ def analyse(
         limits=limits,
         verdicts=verdicts,
         warnings=tuple(margins.warnings),
+        cancelled=cancelled,
     )

@@ -20,6 +20,7 @@ from ..lti.intervals import spec_gain_intervals, stable_gain_intervals
 from ..lti.regions import SpecRegion
 from ..lti.closed_loop import closed_loop_poles
 from .analysis import PointAnalysis, pole_metrics
+from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .search import Choice, Shapes, shape_loops
 from .specs import SpecLimits
 
@@ -105,12 +106,22 @@ def _exact_alone(plant, shapes: Shapes, p: int, name: str, limits: SpecLimits) -
     if valid.size == 0:
         return False
     loops = shape_loops(plant, shapes.zeros[p, valid], shapes.poles[p, valid], np.full(valid.size, p))
+    cancelled = cancelled_zeros(shapes.zeros[p, valid], plant.den[np.full(valid.size, p)])
+    if name != "stable" and np.any(np.isfinite(cancelled)):
+        # the pinned (cancelled) pole is not judged by the region specs
+        for _, sub in deflate(loops, cancelled):
+            if _exact_alone_loops(sub, name, float(getattr(limits, name)[p]) if name != "stable" else 1.0):
+                return True
+        return False
+    return _exact_alone_loops(loops, name, float(getattr(limits, name)[p]) if name != "stable" else 1.0)
+
+
+def _exact_alone_loops(loops, name: str, value: float) -> bool:
     delta = None if loops.delta_den is None else (loops.delta_num, loops.delta_den)
     if name == "stable":
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
             found = stable_gain_intervals(loops.num, loops.den, ts=loops.ts, delta=delta)
     else:
-        value = float(getattr(limits, name)[p])
         keyword = {"min_damping": "min_damping", "min_decay": "min_decay", "max_pole_radius": "max_pole_radius"}[name]
         region = SpecRegion(**{keyword: value})
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
@@ -143,7 +154,8 @@ def _best_reachable(plant, shapes: Shapes, p: int, key: str, maximise: bool) -> 
         if row:
             row = np.concatenate(row)[:BEST_SAMPLES]
             gains[r, : row.size] = row
-    poles = closed_loop_poles(loops, np.nan_to_num(gains, nan=0.0))
+    cancelled = cancelled_zeros(shapes.zeros[p, valid], plant.den[np.full(valid.size, p)])
+    poles = mask_cancelled(closed_loop_poles(loops, np.nan_to_num(gains, nan=0.0)), cancelled)
     values = pole_metrics(poles, loops.ts[:, None])[key]
     values = np.where(np.isfinite(gains), values, np.nan)
     flat = np.where(np.isnan(values), -np.inf if maximise else np.inf, values)

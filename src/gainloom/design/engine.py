@@ -313,6 +313,15 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
             params = shapes.params[p, shape_index[p]]
             if params.size:
                 notes[p].insert(0, "zero(s) at z = " + ", ".join(f"{v:.6g}" for v in np.ravel(params)))
+    if analysis.cancelled is not None:
+        for p in range(P):
+            for c in analysis.cancelled[p][np.isfinite(analysis.cancelled[p])]:
+                rate = -math.log(c) / float(plant.ts[p])
+                notes[p].append(
+                    f"the zero at z = {c:.6g} cancels a plant pole; that pole stays in the closed loop "
+                    f"(decay {rate:.6g} 1/s): it is not in the reference response but load disturbances "
+                    "decay at that rate; it is left out of the pole-region specs"
+                )
     status = tuple("pass" if ok else "fail" for ok in passed)
     return PointDesign(
         points=points,

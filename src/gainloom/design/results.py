@@ -138,6 +138,8 @@ def point_document(analysis: PointAnalysis, index: int) -> dict[str, Any]:
         "overshoot_percent": _float(analysis.overshoot[p]),
         "settling_time_s": _float(analysis.settling_time[p]),
         "system_type": int(analysis.system_type[p]),
+        "cancelled_zeros_z": [] if analysis.cancelled is None else [
+            float(c) for c in analysis.cancelled[p] if np.isfinite(c)],
         "specs": specs,
     }
 

@@ -35,6 +35,7 @@ from ..lti.loop import Loop
 from ..lti.margins import loop_margins
 from ..lti.regions import SpecRegion
 from .analysis import pole_metrics
+from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .specs import SpecLimits
 from .structures import _roots_poly, _z_to_delta, polymul
 
@@ -219,8 +220,26 @@ def _intersect(a: list[tuple[float, float]], b: list[tuple[float, float]]) -> li
     return sorted(out)
 
 
-def exact_feasible(loop: Loop, limits: SpecLimits, points: np.ndarray) -> list[list[tuple[float, float]]]:
+def exact_feasible(
+    loop: Loop, limits: SpecLimits, points: np.ndarray, cancelled: np.ndarray | None = None
+) -> list[list[tuple[float, float]]]:
     """Exact feasible gain intervals of K-free loops (rows) at their points.
+
+    Cancelled pole-zero pairs (``cancelled``, see :mod:`gainloom.design.cancel`)
+    are divided out first: the pinned closed-loop pole is left out of the
+    pole-region specs, as everywhere in the design layer.
+    """
+    if cancelled is None or not np.any(np.isfinite(cancelled)):
+        return _exact_group(loop, limits, points)
+    out: list = [None] * loop.points
+    for rows, sub in deflate(loop, cancelled):
+        for row, found in zip(rows, _exact_group(sub, limits, points[rows])):
+            out[row] = found
+    return out
+
+
+def _exact_group(loop: Loop, limits: SpecLimits, points: np.ndarray) -> list[list[tuple[float, float]]]:
+    """:func:`exact_feasible` for loops of one order.
 
     Intersection of the spec-region intervals (damping, decay, pole radius),
     the gain-margin band of the stable intervals (``GM = min(hi/K, K/lo)``,
@@ -331,8 +350,9 @@ def choose_gains(
     ts_rows = plant.ts[rows_p]
 
     # 1. coarse ranking
+    cancelled = cancelled_zeros(flat(shapes.zeros), plant.den[rows_p])
     grid = _coarse_grid(loops)
-    poles = closed_loop_poles(loops, grid)
+    poles = mask_cancelled(closed_loop_poles(loops, grid), cancelled)
     ok, metrics = region_ok(poles, ts_rows, limits, rows_p)
     cap = limits.max_gain[rows_p][:, None]
     ok &= np.isnan(cap) | (grid <= cap)
@@ -361,7 +381,7 @@ def choose_gains(
     while pending.size and rounds * take < S and rounds < MAX_ROUNDS:
         cols = order[pending, rounds * take : (rounds + 1) * take]
         gain, shape_col, feasible, sets, round_notes = _resolve(
-            loops, shapes, limits, objective, target, pending, cols, S
+            loops, shapes, limits, objective, target, pending, cols, S, cancelled
         )
         for j, p in enumerate(pending):
             if feasible[j] or rounds == 0:
@@ -384,14 +404,15 @@ def choose_gains(
     )
 
 
-def _resolve(loops, shapes, limits, objective, target, points, cols, S):
+def _resolve(loops, shapes, limits, objective, target, points, cols, S, cancelled):
     """Exact intervals, fine samples, refinement and margin checks for shape columns ``cols`` of ``points``."""
     n, take = cols.shape
     sel_rows = (points[:, None] * S + cols).ravel()
     sel_points = np.repeat(points, take)
     sub = loops.select(sel_rows)
     flat_valid = shapes.valid.reshape(-1)
-    feasible_sets = exact_feasible(sub, limits, sel_points)
+    sub_cancelled = cancelled[sel_rows]
+    feasible_sets = exact_feasible(sub, limits, sel_points, sub_cancelled)
     feasible_sets = [f if flat_valid[r] else [] for f, r in zip(feasible_sets, sel_rows)]
 
     fine = np.stack([_samples_in(f, FINE_SAMPLES) for f in feasible_sets])
@@ -399,7 +420,7 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S):
     fine = np.concatenate([fine, asked[:, None]], axis=1)  # the strategy's own gain, if any
     in_set = np.array([[any(lo < g < hi for lo, hi in f) for g in row] for f, row in zip(feasible_sets, fine)])
     fine = np.where(in_set, fine, np.nan)
-    fine_poles = _poles_at(sub, fine)
+    fine_poles = mask_cancelled(_poles_at(sub, fine), sub_cancelled)
     ok_f, _ = region_ok(fine_poles, sub.ts, limits, sel_points)
     ok_f &= np.isfinite(fine)
     score_f = objective_values(fine_poles, sub.ts[:, None], objective, target)
@@ -419,7 +440,7 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S):
         gain = gain.copy()
         gain[refine] = _golden(sub.select(row_pick[refine]), fine[row_pick[refine]], best_idx[row_pick[refine]],
                                [feasible_sets[r] for r in row_pick[refine]], limits, sel_points[row_pick[refine]],
-                               objective, target, gain[refine])
+                               objective, target, gain[refine], sub_cancelled[row_pick[refine]])
 
     # margins other than GM at the choice; fall back on the samples
     need = ~(np.isnan(limits.min_phase_margin) & np.isnan(limits.min_delay_margin) & np.isnan(limits.max_sensitivity_peak))
@@ -472,7 +493,7 @@ def _margins_ok(margins, limits: SpecLimits, points: np.ndarray) -> np.ndarray:
     )
 
 
-def _golden(loop: Loop, samples: np.ndarray, index: np.ndarray, sets, limits, points, objective, target, start):
+def _golden(loop: Loop, samples: np.ndarray, index: np.ndarray, sets, limits, points, objective, target, start, cancelled):
     """Batched golden-section search of the objective between the neighbours of the best sample."""
     R = loop.points
     lo = np.empty(R)
@@ -490,7 +511,7 @@ def _golden(loop: Loop, samples: np.ndarray, index: np.ndarray, sets, limits, po
         lo[r], hi[r] = min(left, row[i]), max(right, row[i])
 
     def score(g):
-        poles = closed_loop_poles(loop, g[:, None])
+        poles = mask_cancelled(closed_loop_poles(loop, g[:, None]), cancelled)
         ok, _ = region_ok(poles, loop.ts, limits, points)
         value = objective_values(poles, loop.ts[:, None], objective, target)[:, 0]
         return np.where(ok[:, 0], value, -np.inf)
