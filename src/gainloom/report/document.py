@@ -65,10 +65,15 @@ METHODS: dict[str, str] = {
         "roots z = 1 + ts g at fast sampling); listed by decreasing |z|"
     ),
     "poles_s": "s = ln(z)/ts, principal branch (|Im s| <= pi/ts), rad/s",
-    "damping": "smallest zeta = -Re(s)/|s| over all closed-loop poles",
-    "natural_frequency": "|s| of the dominant closed-loop pole (largest |z|), rad/s",
-    "decay": "smallest -ln|z|/ts over the closed-loop poles, 1/s",
-    "pole_radius": "largest |z| over the closed-loop poles",
+    "cancellation": (
+        "a closed-loop pole left on a controller zero that cancels a plant pole (points[].cancelled_zeros_z; "
+        "gainloom.design.cancel) stays in poles_z and must be stable, but is left out of damping, decay, "
+        "pole_radius and natural_frequency"
+    ),
+    "damping": "smallest zeta = -Re(s)/|s| over the closed-loop poles (cancelled ones excepted)",
+    "natural_frequency": "|s| of the dominant closed-loop pole (largest |z|, cancelled ones excepted), rad/s",
+    "decay": "smallest -ln|z|/ts over the closed-loop poles (cancelled ones excepted), 1/s",
+    "pole_radius": "largest |z| over the closed-loop poles (cancelled ones excepted)",
     "margins": (
         "gainloom.lti.margins.loop_margins on L(e^{j w ts}): dense log frequency grid up to pi/ts with "
         "clusters at lightly damped roots, crossovers refined by bisection; conventions of python-control "

@@ -65,6 +65,7 @@ _POINT = _obj({
     "overshoot_percent": NUMBER,
     "settling_time_s": NUMBER,
     "system_type": INT,
+    "cancelled_zeros_z": {"list": NUMBER},
     "specs": {"map": _SPEC},
 })
 
