@@ -9,7 +9,7 @@ from hypothesis import strategies as st
 
 from gainloom import CodegenError, __version__
 from gainloom.codegen.emit import render_files
-from gainloom.codegen.identifiers import C_KEYWORDS, validate_fragment, validate_prefix
+from gainloom.c_names import C_KEYWORDS, validate_fragment, validate_prefix
 from gainloom.codegen.render import c_float, c_float_exact, render_template, templates_dir
 from gainloom.design.table import GainTable, TableAxis
 from test_codegen_cases import make_table

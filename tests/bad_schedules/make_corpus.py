@@ -55,7 +55,7 @@ CASES = [
  ("table_not_covering", [("  B: 1.0e-4", "  B: {table: {over: speed, x: [0, 1000, 2500], y: [1.0e-4, 1.2e-4, 1.5e-4]}}")], "no extrapolation", "parameters.B.table.x", "[0, 1000, 2500]", True),
  ("unknown_structure", [("structure: pi", "structure: pii")], "did you mean 'pi'", "controller.structure", "pii", True),
  ("unknown_strategy", [("strategy: pole-cancel", "strategy: pole-cancellation")], "unknown design strategy", "controller.strategy", "pole-cancellation", True),
- ("bad_prefix_underscore", [("prefix: spd", "prefix: _spd")], "must start with a letter", "codegen.prefix", "_spd", True),
+ ("bad_prefix_underscore", [("prefix: spd", "prefix: _spd")], "is not a C identifier", "codegen.prefix", "_spd", True),
  ("bad_prefix_double_underscore", [("prefix: spd", "prefix: spd__gain")], "double underscore", "codegen.prefix", "spd__gain", True),
  ("unknown_format", [("format: q15", "format: q16")], "unknown number format 'q16'", "codegen.format", "q16", True),
  ("tolerance_unknown_parameter", [("codegen:", "tolerances:\n  parameters: {Jm: 0.3}\ncodegen:")], "unknown parameter 'Jm'", "tolerances.parameters.Jm", "0.3}", True),

@@ -13,7 +13,7 @@ from pathlib import Path
 
 from ..design.table import GainTable
 from ..outputs import write_outputs
-from .identifiers import validate_prefix
+from ..c_names import validate_prefix
 from .layout import layout_table
 from .render import render_c
 

@@ -41,7 +41,7 @@ import numpy as np
 
 from ..design.table import GainTable, TableAxis
 from ..errors import CodegenError
-from .identifiers import validate_fragment
+from ..c_names import validate_fragment
 from .qformat import STATE_FRAC, NumberFormat, choose_frac, dequantize, number_format, quantize
 
 __all__ = ["GAIN_COEFFICIENTS", "AxisLayout", "CoefficientLayout", "TableLayout", "layout_table"]

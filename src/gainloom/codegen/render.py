@@ -22,7 +22,7 @@ import numpy as np
 
 from .. import __version__
 from ..errors import CodegenError
-from .identifiers import validate_prefix
+from ..c_names import validate_prefix
 from .layout import GAIN_COEFFICIENTS, TableLayout
 from .mirror import state_fields
 from .qformat import STATE_FRAC

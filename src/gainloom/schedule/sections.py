@@ -13,6 +13,7 @@ from collections.abc import Callable
 from typing import Any
 
 from .. import names
+from ..c_names import prefix_problem
 from .model import (
     CodegenSection,
     ControllerSection,
@@ -31,7 +32,6 @@ __all__ = [
     "read_table_checks",
     "read_tolerances",
     "read_codegen",
-    "valid_c_prefix",
     "SPEC_KEYS",
 ]
 
@@ -50,16 +50,6 @@ CONTROLLER_KEYS = (
 #: Default controller-zero sweep of shape-sweep: location in z and count.
 DEFAULT_SWEEP = Sweep(range=(0.5, 0.999), count=60)
 
-# C99 keywords plus common reserved words a prefix must not be.
-_C_KEYWORDS = frozenset(
-    "auto break case char const continue default do double else enum extern float for goto if inline int "
-    "long register restrict return short signed sizeof static struct switch typedef union unsigned void "
-    "volatile while _Bool _Complex _Imaginary bool true false".split()
-)
-_C_IDENTIFIER = re.compile(r"[A-Za-z][A-Za-z0-9_]*\Z")
-#: Longest prefix accepted: leaves room for "_<op>_<format>" within the 63
-#: significant characters C99 guarantees for internal identifiers.
-MAX_PREFIX_LENGTH = 31
 
 
 def _positive(node: Node, what: str) -> float:
@@ -334,21 +324,6 @@ def read_tolerances(node: Node | None, independent: dict[str, bool]) -> Toleranc
     return Tolerances(parameters=parameters, samples=samples)
 
 
-def valid_c_prefix(prefix: str) -> str | None:
-    """Return why ``prefix`` is not a usable C identifier prefix, or ``None`` if it is."""
-    if not _C_IDENTIFIER.match(prefix):
-        return "must start with a letter and contain only letters, digits and underscores (a C identifier)"
-    if "__" in prefix:
-        return "must not contain a double underscore (reserved in C)"
-    if prefix.endswith("_"):
-        return "must not end with an underscore (names are joined with '_')"
-    if prefix in _C_KEYWORDS:
-        return "is a C keyword"
-    if len(prefix) > MAX_PREFIX_LENGTH:
-        return f"is longer than {MAX_PREFIX_LENGTH} characters"
-    return None
-
-
 def read_codegen(node: Node | None, schedule_name: str, name_node: Node) -> CodegenSection:
     """Read the optional ``codegen`` section (prefix defaults to the schedule name, format to float32)."""
     keys = {} if node is None or node.is_null else node.mapping(("prefix", "format"))
@@ -358,9 +333,9 @@ def read_codegen(node: Node | None, schedule_name: str, name_node: Node) -> Code
     else:
         prefix_node = name_node
         prefix = re.sub(r"[^A-Za-z0-9]+", "_", schedule_name).strip("_")
-    problem = valid_c_prefix(prefix)
+    problem = prefix_problem(prefix)
     if problem:
         origin = "" if "prefix" in keys else " (derived from the schedule name; set codegen.prefix)"
-        raise prefix_node.error(f"C prefix {prefix!r} {problem}{origin}")
+        raise prefix_node.error(f"C {problem}{origin}")
     number_format = keys["format"].choice("number format", names.NUMBER_FORMATS) if "format" in keys else "float32"
     return CodegenSection(prefix=prefix, format=number_format)

@@ -1,5 +1,9 @@
 """C identifiers built from user-chosen names: validated, never rewritten.
 
+One set of rules for every layer: the schedule loader reports a bad
+``codegen.prefix`` at its line (``prefix_problem``), code generation refuses
+one passed directly (``validate_prefix``).
+
 Every identifier in the generated C is ``<prefix>_<something>`` (or the
 upper-case form for macros), where ``<something>`` is a fixed word, an axis
 name or a coefficient name.  A name that would make a reserved, ambiguous or
@@ -27,9 +31,16 @@ from __future__ import annotations
 
 import re
 
-from ..errors import CodegenError
+from .errors import CodegenError
 
-__all__ = ["C_KEYWORDS", "MAX_PREFIX_LENGTH", "MAX_FRAGMENT_LENGTH", "validate_prefix", "validate_fragment"]
+__all__ = [
+    "C_KEYWORDS",
+    "MAX_PREFIX_LENGTH",
+    "MAX_FRAGMENT_LENGTH",
+    "prefix_problem",
+    "validate_prefix",
+    "validate_fragment",
+]
 
 #: Keywords of C99, C11 and C23 (ISO/IEC 9899 section 6.4.1, from memory).
 C_KEYWORDS: frozenset[str] = frozenset(
@@ -52,13 +63,40 @@ _FRAGMENT_SHAPE = re.compile(r"[A-Za-z0-9][A-Za-z0-9_]*\Z")
 _LIBRARY_RESERVED = re.compile(r"(?:(?:is|to|str|mem|wcs)[a-z]|E[0-9A-Z]|u?int[A-Za-z0-9_]*_t\Z)")
 
 
-def _common_checks(kind: str, name: str, limit: int) -> None:
+def _common_problem(kind: str, name: str, limit: int) -> str | None:
     if "__" in name:
-        raise CodegenError(f"{kind} {name!r} contains a double underscore, which C reserves; choose another name")
+        return f"{kind} {name!r} contains a double underscore, which C reserves; choose another name"
     if name.endswith("_"):
-        raise CodegenError(f"{kind} {name!r} ends with an underscore (joined names would contain '__'); drop it")
+        return f"{kind} {name!r} ends with an underscore (joined names would contain '__'); drop it"
     if len(name) > limit:
-        raise CodegenError(f"{kind} {name!r} has {len(name)} characters; at most {limit} are accepted")
+        return f"{kind} {name!r} has {len(name)} characters; at most {limit} are accepted"
+    return None
+
+
+def prefix_problem(prefix: str) -> str | None:
+    """Return why ``prefix`` cannot start every generated C name, or ``None``.
+
+    Parameters
+    ----------
+    prefix : str
+        User-chosen name, e.g. ``"motor_speed"``.
+    """
+    if not isinstance(prefix, str) or not _SHAPE.match(prefix):
+        return (
+            f"prefix {prefix!r} is not a C identifier: it must start with a letter "
+            "followed by letters, digits or underscores"
+        )
+    problem = _common_problem("prefix", prefix, MAX_PREFIX_LENGTH)
+    if problem:
+        return problem
+    if prefix in C_KEYWORDS:
+        return f"prefix {prefix!r} is a C keyword; choose another name"
+    if _LIBRARY_RESERVED.match(prefix):
+        return (
+            f"prefix {prefix!r} starts a name the C standard library reserves "
+            "(is*, to*, str*, mem*, wcs*, E*, int*_t); choose another name"
+        )
+    return None
 
 
 def validate_prefix(prefix: str) -> str:
@@ -79,19 +117,9 @@ def validate_prefix(prefix: str) -> str:
     CodegenError
         With the rule that the name breaks; the name is never rewritten.
     """
-    if not isinstance(prefix, str) or not _SHAPE.match(prefix):
-        raise CodegenError(
-            f"prefix {prefix!r} is not a C identifier: expected a letter followed by letters, digits or underscores"
-        )
-    _common_checks("prefix", prefix, MAX_PREFIX_LENGTH)
-    if prefix in C_KEYWORDS:
-        raise CodegenError(f"prefix {prefix!r} is a C keyword; choose another name")
-    if _LIBRARY_RESERVED.match(prefix):
-        raise CodegenError(
-            f"prefix {prefix!r} starts a name the C standard library reserves "
-            "(is*, to*, str*, mem*, wcs*, E*, int*_t); "
-            "choose another name"
-        )
+    problem = prefix_problem(prefix)
+    if problem:
+        raise CodegenError(problem)
     return prefix
 
 
@@ -115,5 +143,7 @@ def validate_fragment(kind: str, name: str) -> str:
             f"{kind} {name!r} cannot appear in a C identifier: expected letters, digits or underscores, "
             "starting with a letter or digit"
         )
-    _common_checks(kind, name, MAX_FRAGMENT_LENGTH)
+    problem = _common_problem(kind, name, MAX_FRAGMENT_LENGTH)
+    if problem:
+        raise CodegenError(problem)
     return name
