@@ -42,7 +42,7 @@ from .structures import _roots_poly, _z_to_delta, polymul
 __all__ = ["Shapes", "Choice", "shape_loops", "choose_gains", "objective_values", "OBJECTIVE_TEXT"]
 
 #: Coarse gain samples per shape (ranking only).
-COARSE_SAMPLES = 44
+COARSE_SAMPLES = 30
 #: Decades spanned by the coarse grid around the loop's coefficient scale.
 COARSE_DECADES = (-7.0, 3.0)
 #: Exact-interval evaluations per point (best shapes by the coarse ranking).
