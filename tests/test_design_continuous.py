@@ -1,6 +1,5 @@
 """compare_continuous: the continuous shortcut measured on the sampled loop."""
 
-import math
 
 import control
 import numpy as np

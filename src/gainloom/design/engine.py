@@ -8,7 +8,6 @@ discretised at each point with its hold, sample period and computation delay
 from __future__ import annotations
 
 import math
-import sys
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable
@@ -19,13 +18,13 @@ from ..errors import DesignError, InputError
 from ..lti.discretize import discretize_loop
 from ..lti.loop import Loop
 from ..names import DESIGN_STRATEGIES, SWEEP_OBJECTIVES, unknown_name_message
-from .analysis import PointAnalysis, analyse, pole_metrics, step_metrics
+from .analysis import PointAnalysis, analyse
 from .diagnose import diagnose, compromise
-from .results import DesignResult, TableReport, VerifyResult
-from .search import OBJECTIVE_TEXT, Choice, choose_gains, shape_loops
+from .results import DesignResult, VerifyResult
+from .search import OBJECTIVE_TEXT, Choice, choose_gains
 from .specs import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
-from .structures import LocusForm, coefficients_from_locus, open_loop
+from .structures import LocusForm, coefficients_from_locus
 from .table import GainTable, TableAxis
 
 __all__ = ["design", "verify", "PointDesign", "design_points", "sampled_plant", "limits_at", "Progress"]
