@@ -161,26 +161,28 @@ def angle_residual(
         lead_n = num[np.arange(num.shape[0]), np.argmax(nonzero, axis=1)]
     with np.errstate(all="ignore"):
         finite = np.isfinite(roots)
-        # The product of the factors has the summed angle (one arctan per
-        # root); positive rescaling changes no angle.
-        unit = 1.0 / np.maximum(np.max(np.abs(poles), axis=1), 1e-300)[:, np.newaxis]
-        r = np.where(finite, roots, 0.0) * unit
-        p_unit = poles * unit
-        z_unit = zeros * unit
+        r = np.where(finite, roots, 0.0)
+        r2 = r.real**2 + r.imag**2
+        # The product of the factors carries the summed angle with one
+        # arctangent per root; it is renormalised as it goes (no under- or
+        # overflow).  A root equal to an open-loop pole or zero to rounding
+        # has no defined angle (the limits K -> 0 and K -> infinity).
+        tiny2 = (4 * np.finfo(float).eps) ** 2
         phasor = np.ones(roots.shape, dtype=complex)
-        # A root that equals an open-loop pole or zero to rounding has no
-        # defined angle (the limits K -> 0 and K -> infinity).
         on_feature = np.zeros(roots.shape, dtype=bool)
-        tiny = 4 * np.finfo(float).eps
         for j in range(poles.shape[1]):  # loops over the order only
-            to_p = r - p_unit[:, j : j + 1]
-            on_feature |= np.abs(to_p) <= tiny * np.maximum(np.abs(r), np.abs(p_unit[:, j : j + 1]))
+            pj = poles[:, j : j + 1]
+            to_p = r - pj
+            size = to_p.real**2 + to_p.imag**2
+            on_feature |= size <= tiny2 * np.maximum(r2, pj.real**2 + pj.imag**2)
             phasor *= np.conj(to_p)
-            zj = z_unit[:, j : j + 1]
-            to_z = np.where(np.isnan(zj), 1.0, r - zj)
-            on_feature |= ~np.isnan(zj) & (np.abs(to_z) <= tiny * np.maximum(np.abs(r), np.abs(zj)))
+            zj = zeros[:, j : j + 1]
+            has = ~np.isnan(zj)
+            to_z = np.where(has, r - np.where(has, zj, 0.0), 1.0)
+            size = to_z.real**2 + to_z.imag**2
+            zj2 = np.where(has, zj.real**2 + zj.imag**2, 0.0)
+            on_feature |= has & (size <= tiny2 * np.maximum(r2, zj2))
             phasor *= to_z
-            # Keep the running product at unit size (no underflow/overflow).
             size = np.abs(phasor)
             phasor = np.where(size > 0, phasor / np.where(size > 0, size, 1.0), phasor)
         # -K L(r) must be a positive real number: its argument is the residual.
@@ -221,7 +223,22 @@ def _polish(poly, dpoly, seeds, scale, simultaneous, iterations=8):
     n = r.shape[1]
     off = ~np.eye(n, dtype=bool)
     with np.errstate(all="ignore"):
-        for _ in range(iterations):
+        if not simultaneous:
+            # Plain Newton: most rows settle in three steps; only the rest
+            # iterate on.
+            step = np.zeros_like(r)
+            rows = np.arange(r.shape[0])
+            for it in range(iterations):
+                pr, dr = poly[rows], dpoly[rows]
+                st = _horner_rows(pr, r[rows]) / _horner_rows(dr, r[rows])
+                r[rows] -= st
+                step[rows] = st
+                if it >= 2:
+                    done = np.all(np.abs(st) <= 1e-13 * np.maximum(np.abs(r[rows]), scale[rows, np.newaxis]), axis=1)
+                    rows = rows[~done]
+                    if rows.size == 0:
+                        break
+        for _ in range(iterations if simultaneous else 0):
             step = _horner_rows(poly, r) / _horner_rows(dpoly, r)
             if simultaneous:
                 # Aberth-Ehrlich: Newton's step corrected by the other roots,
@@ -418,8 +435,9 @@ def _compose(perms: np.ndarray, starts: np.ndarray) -> np.ndarray:
     acc = step.copy()  # acc[c] = step[c] o ... o step[c - span + 1] (within the loop)
     index = np.arange(total)
     segment = np.maximum.accumulate(np.where(np.isin(index, starts), index, 0))
+    longest = int(np.max(np.diff(np.r_[starts, total])))
     span = 1
-    while span < total:
+    while span < longest:
         prev = index - span
         use = prev >= segment
         # acc[c] o acc[c - span]: the earlier map is applied first.
@@ -593,7 +611,19 @@ def trace_locus(
     # both ends (no new eigenvalue problems but the two ends) --------------
     inside = (scan > k_low[:, np.newaxis]) & (scan < k_top[:, np.newaxis])
     ends = np.stack([k_low, k_top], axis=1)
-    end_roots = _roots(np.repeat(num, 2, axis=0), np.repeat(den, 2, axis=0), sign * ends.ravel())
+    # Both ends are scanned gains unless k_max was given or nothing stood
+    # still: only those need an eigenvalue problem.
+    end_roots = np.empty((P, 2, n), dtype=complex)
+    have_low = still.any(axis=1)
+    end_roots[have_low, 0] = scan_roots_pd[have_low, last_still[have_low]]
+    have_top = np.zeros(P, dtype=bool) if k_max is not None else np.ones(P, dtype=bool)
+    if k_max is None:
+        end_roots[:, 1] = scan_roots_pd[np.arange(P), top]
+    need = np.concatenate([np.flatnonzero(~have_low) * 2, np.flatnonzero(~have_top) * 2 + 1])
+    if need.size:
+        flat_end = end_roots.reshape(2 * P, n)
+        flat_end[need] = _roots(num[need // 2], den[need // 2], sign * ends.ravel()[need])
+    end_roots = end_roots.reshape(2 * P, n)
     rows = np.concatenate([np.arange(P), np.repeat(np.arange(P), 2), flat_rows[inside.ravel()]])
     mags = np.concatenate([np.zeros(P), ends.ravel(), scan.ravel()[inside.ravel()]])
     roots = np.concatenate([poles, end_roots, scan_roots[inside.ravel()]])
@@ -732,7 +762,10 @@ def trace_locus(
         branch_roots = np.concatenate([branch_roots, new_roots])
         order = np.lexsort((mags, rows))
         rows, mags, branch_roots = rows[order], mags[order], branch_roots[order]
-    crossing_gains = tuple(np.sort(sign * crossing[cross_rows == p]) for p in range(P))
+    signed = sign * crossing
+    by_loop = np.lexsort((signed, cross_rows))
+    splits = np.cumsum(np.bincount(cross_rows, minlength=P))[:-1]
+    crossing_gains = tuple(np.split(signed[by_loop], splits))
     residual = angle_residual(num[rows], den[rows], sign * mags, branch_roots, poles[rows], zeros[rows])
 
     if delta:
