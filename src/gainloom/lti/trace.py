@@ -47,7 +47,12 @@ from .polynomials import batched_roots
 
 __all__ = ["LocusBranches", "trace_locus", "angle_residual"]
 
-_COARSE_DECADES = np.arange(-15.0, 16.0, 3.0)
+#: Relative distance below which a root counts as sitting on an open-loop
+#: pole or zero for the angle residual.
+_ON_FEATURE = 1e-8
+
+#: Most points of the coarse gain scan (spaced at most 3 decades otherwise).
+_MAX_SCAN = 40
 #: Beyond the plot scale the allowed step grows by this fraction of the
 #: distance past it (branches there run straight out along asymptotes).
 _FAR_GROWTH = 0.25
@@ -70,7 +75,7 @@ class LocusBranches:
     residual : ndarray, shape (P, G, n)
         Angle-condition residual in degrees, ``|arg(-K L(r))|`` (see
         :func:`angle_residual`; ``nan`` where the angle is undefined: ``K = 0``,
-        roots at infinity, roots on an open-loop pole or zero to rounding).
+        roots at infinity, roots within 1e-8 of an open-loop pole or zero).
     k_max : ndarray, shape (P,)
         Largest ``|K|`` traced per loop.
     crossing_gains : tuple of ndarray
@@ -147,8 +152,9 @@ def angle_residual(
     -------
     ndarray, shape (C, k)
         Residual in degrees, in ``[0, 180]``; ``nan`` where the angle is
-        undefined: at ``K = 0``, at infinite roots, and at roots equal to an
-        open-loop pole or zero to rounding (within 4 eps relative).
+        undefined: at ``K = 0``, at infinite roots, and at roots within 1e-8
+        (relative) of an open-loop pole or zero, where the distance, and so
+        the angle, is set by rounding.
     """
     num = np.asarray(num, dtype=float)
     den = np.asarray(den, dtype=float)
@@ -165,9 +171,10 @@ def angle_residual(
         r2 = r.real**2 + r.imag**2
         # The product of the factors carries the summed angle with one
         # arctangent per root; it is renormalised as it goes (no under- or
-        # overflow).  A root equal to an open-loop pole or zero to rounding
-        # has no defined angle (the limits K -> 0 and K -> infinity).
-        tiny2 = (4 * np.finfo(float).eps) ** 2
+        # overflow).  A root within _ON_FEATURE (relative) of an open-loop
+        # pole or zero has its angle set by rounding, not by the locus (the
+        # limits K -> 0 and K -> infinity): undefined there.
+        tiny2 = _ON_FEATURE**2
         phasor = np.ones(roots.shape, dtype=complex)
         on_feature = np.zeros(roots.shape, dtype=bool)
         for j in range(poles.shape[1]):  # loops over the order only
@@ -339,24 +346,30 @@ def _asymptotic(roots, zeros, excess, scale, centroid, negative, zero_tol, far_f
     return ok
 
 
-def _allowed_step(roots_a, roots_b, scale, max_step):
+def _allowed_step(roots_a, roots_b, scale, floor, max_step):
     """Largest allowed move of each root between neighbouring samples.
 
-    ``max_step`` plot scales inside the plot region; beyond it the bound
-    grows with the distance (a quarter of the distance past the plot scale),
-    because a branch running out along an asymptote is a straight line.
+    Inside the plot region ``max_step`` times the root's distance from the
+    origin of the plane, clipped to ``[floor, scale]``: slow poles are
+    resolved on their own scale (a plant spanning decades, a fast-sampled
+    loop in ``g``), fast ones on the plot scale.  Beyond the plot scale the
+    bound grows by a quarter of the distance past it, because a branch
+    running out along an asymptote is a straight line.
     """
     local = np.minimum(np.abs(roots_a), np.abs(roots_b))
     local = np.where(np.isfinite(local), local, np.inf)
     s = scale[:, np.newaxis]
-    return np.maximum(max_step * s, _FAR_GROWTH * (local - s))
+    inner = max_step * np.clip(local, floor[:, np.newaxis], s)
+    return np.maximum(inner, _FAR_GROWTH * (local - s))
 
 
-def _match(num, den, k_a, k_b, r_a, r_b, allowed):
+def _match(num, den, k_a, k_b, r_a, r_b, allowed, fine=None):
     """Greedy assignment of roots ``r_a`` (at ``k_a``) to ``r_b`` (at ``k_b``).
 
     Returns ``perm`` (C, n) with ``r_b[perm[:, i]]`` continuing ``r_a[:, i]``,
-    the matched displacement (C, n) and an ambiguity flag (C,).
+    the matched displacement (C, n) and an ambiguity flag (C,).  ``fine``
+    (C, n) is the step bound on each root's own scale; roots closer than a
+    tenth of it count as coincident (default: ``allowed``).
     """
     C, n = r_a.shape
     with np.errstate(all="ignore"):
@@ -407,7 +420,7 @@ def _match(num, den, k_a, k_b, r_a, r_b, allowed):
         # Swapping two roots that coincide at sample a (a multiple pole at
         # K = 0, the meeting point of a breakaway) changes no branch: only
         # distinct roots can be mismatched.
-        apart = np.abs(r_a - np.take_along_axis(r_a, rival, axis=1)) > 0.1 * allowed
+        apart = np.abs(r_a - np.take_along_axis(r_a, rival, axis=1)) > 0.1 * (allowed if fine is None else fine)
         apart &= np.isfinite(r_a)
         ambiguous = np.any((chosen > 0.5 * runner_up) & apart, axis=1)
     else:
@@ -501,6 +514,7 @@ def trace_locus(
     crossing_rtol: float = 1e-6,
     max_rounds: int = 40,
     max_samples: int = 4000,
+    step_floor: float = 1.0,
 ) -> LocusBranches:
     """Trace the root-locus branches of every loop of a batch.
 
@@ -515,17 +529,27 @@ def trace_locus(
         Trace the complementary locus ``K <= 0``.
     max_step : float
         Largest move of a root between neighbouring samples, as a fraction of
-        the loop's plot scale (the largest magnitude among open-loop poles,
-        finite zeros and the centroid; measured from ``s = 0``, from ``z = 0``,
-        or from ``z = 1`` for delta-form discrete loops, which are traced in
-        ``g = (z - 1)/ts``).  Beyond the plot scale the bound grows by a quarter
-        of the distance past it.
+        its local scale: its distance from the origin of the plane (``s = 0``,
+        ``z = 0``, or ``z = 1`` for delta-form discrete loops, which are traced
+        in ``g = (z - 1)/ts``), clipped between ``step_floor`` and 1 times the
+        plot scale (the largest magnitude among open-loop poles, finite zeros
+        and the centroid).  No step exceeds ``max_step`` plot scales inside
+        the plot.  Beyond the plot scale the bound grows by a quarter of the
+        distance past it.
     zero_tol, far_factor, asymptote_tol : float
         Asymptotic-regime criterion (fractions of the plot scale; degrees).
     crossing_rtol : float
         Relative gain bracket of stability-boundary crossings.
     max_rounds, max_samples : int
         Refinement limits (a warning says when one was hit).
+    step_floor : float
+        Smallest local scale as a fraction of the plot scale.  The default 1
+        bounds every step inside the plot by ``max_step`` plot scales (what a
+        plot at that scale shows).  Smaller values refine roots close to the
+        origin on their own scale (at most ``max_step * step_floor`` plot
+        scales per sample); ``0`` resolves every pole down to half the
+        slowest feature, for plants spanning decades or fast-sampled loops
+        near ``z = 1``, at the cost of more samples.
 
     Returns
     -------
@@ -547,16 +571,41 @@ def trace_locus(
     poles, zeros, m, excess, scale, centroid, lead_n = _features(num, den)
     if np.any(m < 0):
         raise InputError("a loop with a zero numerator has no root locus")
+    if not (0 <= step_floor <= 1):
+        raise InputError(f"step_floor is a fraction of the plot scale in [0, 1]; got {step_floor}")
+    # Smallest local scale: step_floor plot scales, but never below half the
+    # smallest non-zero |pole| or |zero| (nor a millionth of the plot scale).
+    mags_f = np.abs(np.concatenate([poles, zeros], axis=1))
+    mags_f = np.where(np.isfinite(mags_f) & (mags_f > 1e-9 * scale[:, np.newaxis]), mags_f, np.inf)
+    slowest = np.clip(0.5 * np.min(mags_f, axis=1), 1e-6 * scale, scale)
+    floor = np.maximum(slowest, step_floor * scale)
 
-    # --- gain range from a scan of decades (one batched call) -------------
-    with np.errstate(divide="ignore", over="ignore"):
-        k_ref = np.abs(den[:, 0]) / np.abs(lead_n) * scale ** excess.astype(float)
-    k_ref = np.where(np.isfinite(k_ref) & (k_ref > 0), k_ref, 1.0)
+    # --- gain range from a scan (two batched calls) -----------------------
+    # Gain scales of the loop: the gain at which the root leaving pole p
+    # has moved by |p| (first order: K |N(p)/D'(p)| = |p|), and the gain at
+    # which |K N| and |D| are alike at the plot scale (the asymptotic side).
+    # The scan spans 1e-4 of the smallest to 1e4 of the largest.
+    with np.errstate(all="ignore"):
+        k_asym = np.abs(den[:, 0]) / np.abs(lead_n) * scale ** excess.astype(float)
+        at = np.where(poles != 0, poles, scale[:, np.newaxis])
+        d_den = _derivative(den)
+        k_pole = np.abs(at) * np.abs(_horner_rows(d_den, poles)) / np.abs(_horner_rows(num, poles))
+        k_pole = np.where(np.isfinite(k_pole) & (k_pole > 0), k_pole, np.nan)
+        k_lo = np.nanmin(np.c_[k_pole, k_asym], axis=1)
+        k_hi = np.nanmax(np.c_[k_pole, k_asym], axis=1)
+    k_asym = np.where(np.isfinite(k_asym) & (k_asym > 0), k_asym, 1.0)
+    k_lo = np.where(np.isfinite(k_lo) & (k_lo > 0), k_lo, k_asym) * 1e-4
+    k_hi = np.where(np.isfinite(k_hi) & (k_hi > 0), k_hi, k_asym) * 1e4
+    # Every loop is scanned every 3 decades from its own k_lo to its own k_hi
+    # (points past its own end are ignored), so a loop's result does not
+    # depend on the batch it is in.
+    own_count = np.clip(np.ceil(np.log10(k_hi / k_lo) / 3.0) + 1, 4, _MAX_SCAN).astype(int)
+    count = int(own_count.max())
+    valid = np.arange(count) < own_count[:, np.newaxis]
 
-    def scan_at(decades):
-        """Roots, asymptotic flags and 'not yet moved' flags at k_ref 10^decades (P, D)."""
-        gains_pd = k_ref[:, np.newaxis] * 10.0 ** decades
-        width_d = decades.shape[1]
+    def scan_at(gains_pd):
+        """Roots, asymptotic flags and 'not yet moved' flags at gains (P, D)."""
+        width_d = gains_pd.shape[1]
         rws = np.repeat(np.arange(P), width_d)
         rts = _roots(num[rws], den[rws], sign * gains_pd.ravel())
         asy = _asymptotic(
@@ -564,20 +613,29 @@ def trace_locus(
             negative, zero_tol, far_factor, asymptote_tol,
         ).reshape(P, -1)
         dist = np.abs(rts[:, :, np.newaxis] - poles[rws][:, np.newaxis, :])
-        moved = np.max(np.min(np.where(np.isnan(dist), np.inf, dist), axis=2), axis=1).reshape(P, -1)
-        return gains_pd, rts.reshape(P, width_d, n), asy, moved <= 0.01 * max_step * scale[:, np.newaxis]
+        dist = np.where(np.isnan(dist), np.inf, dist)
+        nearest = np.take_along_axis(poles[rws], np.argmin(dist, axis=2), axis=1)
+        # "Not moved": every root within a hundredth of its own allowed step
+        # of an open-loop pole.
+        own = 0.01 * max_step * np.clip(np.abs(nearest), slowest[rws][:, np.newaxis], scale[rws][:, np.newaxis])
+        unmoved = np.all(np.min(dist, axis=2) <= own, axis=1).reshape(P, -1)
+        return rts.reshape(P, width_d, n), asy, unmoved
 
-    # Coarse scan every 3 decades, then the two decades below the first
-    # asymptotic one and above the last unmoved one.
-    coarse = np.broadcast_to(_COARSE_DECADES, (P, _COARSE_DECADES.size))
-    g1, r1, a1, s1 = scan_at(coarse)
-    top1 = np.where(a1.any(axis=1), np.argmax(a1, axis=1), coarse.shape[1] - 1)
-    still1 = s1 & (np.arange(coarse.shape[1]) < top1[:, np.newaxis])
-    low1 = np.where(still1.any(axis=1), coarse.shape[1] - 1 - np.argmax(still1[:, ::-1], axis=1), 0)
-    top_dec = coarse[np.arange(P), top1]
-    low_dec = coarse[np.arange(P), low1]
-    fine = np.stack([top_dec - 2, top_dec - 1, low_dec + 1, low_dec + 2], axis=1)
-    g2, r2, a2, s2 = scan_at(fine)
+    # Coarse scan, then two points between the first asymptotic gain and its
+    # predecessor and two after the last unmoved one.
+    g1 = k_lo[:, np.newaxis] * 10.0 ** (3.0 * np.arange(count))
+    r1, a1, s1 = scan_at(g1)
+    a1 &= valid
+    s1 &= valid
+    reached_scan = a1.any(axis=1)
+    a1[np.arange(P), own_count - 1] |= ~reached_scan  # not reached: stop at the end
+    top1 = np.argmax(a1, axis=1)
+    still1 = s1 & (np.arange(count) < top1[:, np.newaxis])
+    low1 = np.where(still1.any(axis=1), count - 1 - np.argmax(still1[:, ::-1], axis=1), 0)
+    top_g = g1[np.arange(P), top1]
+    low_g = g1[np.arange(P), low1]
+    g2 = np.stack([top_g / 100.0, top_g / 10.0, low_g * 10.0, low_g * 100.0], axis=1)
+    r2, a2, s2 = scan_at(g2)
     scan = np.concatenate([g1, g2], axis=1)
     by_gain = np.argsort(scan, axis=1, kind="stable")
     scan = np.take_along_axis(scan, by_gain, axis=1)
@@ -588,14 +646,13 @@ def trace_locus(
     flat_rows = np.repeat(np.arange(P), width_scan)
     scan_roots = scan_roots_pd.reshape(-1, n)
     if k_max is None:
-        reached = asym.any(axis=1)
-        first = np.argmax(asym, axis=1)
-        top = np.where(reached, first, width_scan - 1)
+        top = np.argmax(asym, axis=1)
         k_top = scan[np.arange(P), top]
+        reached = reached_scan | a2.any(axis=1)
         if not np.all(reached):
             warnings.append(
-                f"asymptotic regime not reached at {int(np.sum(~reached))} point(s) by K = 1e15 x reference gain; "
-                "traced to there"
+                f"asymptotic regime not reached at {int(np.sum(~reached))} point(s) within the gain scan; "
+                "traced to its end"
             )
     else:
         k_top = np.broadcast_to(np.abs(np.asarray(k_max, dtype=float)), (P,)).copy()
@@ -661,8 +718,13 @@ def trace_locus(
             break
         a, b = pend_a, pend_b
         ra, rb = roots[a], roots[b]
-        allowed = _allowed_step(ra, rb, scale[rows[a]], max_step)
-        perm, disp, ambiguous = _match(num[rows[a]], den[rows[a]], sign * mags[a], sign * mags[b], ra, rb, allowed)
+        allowed = _allowed_step(ra, rb, scale[rows[a]], floor[rows[a]], max_step)
+        # Coincidence is judged on each root's own scale, whatever step_floor:
+        # a coarse step bound must not excuse a swap of distinct slow roots.
+        fine = _allowed_step(ra, rb, scale[rows[a]], slowest[rows[a]], max_step)
+        perm, disp, ambiguous = _match(
+            num[rows[a]], den[rows[a]], sign * mags[a], sign * mags[b], ra, rb, allowed, fine
+        )
         too_far = np.any(disp > allowed, axis=1)
         width = mags[b] - mags[a]
         resolvable = width > 1e-12 * np.maximum(mags[b], 1e-300)
@@ -708,7 +770,7 @@ def trace_locus(
     else:
         hit_cap = pend_a.size > 0
     if pend_a.size:
-        allowed = _allowed_step(roots[pend_a], roots[pend_b], scale[rows[pend_a]], max_step)
+        allowed = _allowed_step(roots[pend_a], roots[pend_b], scale[rows[pend_a]], floor[rows[pend_a]], max_step)
         settled_a.append(pend_a)
         settled_perm.append(
             _match(num[rows[pend_a]], den[rows[pend_a]], sign * mags[pend_a], sign * mags[pend_b],
@@ -738,8 +800,11 @@ def trace_locus(
     # is no crossing: only intervals with a > 0 count.
     change = (side[1:] != side[:-1]) & same[:, np.newaxis] & (mags[:-1] > 0)[:, np.newaxis]
     # A root of a biproper loop that passes through infinity (K = -d0/n0)
-    # changes side without crossing the boundary: not a crossing here.
-    change &= np.isfinite(branch_roots[1:]) & np.isfinite(branch_roots[:-1])
+    # changes side without crossing the boundary: not a crossing here (nor
+    # anything beyond 1e8 plot scales).
+    far_out = 1e8 * scale[rows][:, np.newaxis]
+    with np.errstate(invalid="ignore"):
+        change &= (np.abs(branch_roots[1:]) < far_out[1:]) & (np.abs(branch_roots[:-1]) < far_out[:-1])
     cross_idx = np.flatnonzero(np.any(change, axis=1))
     crossing = np.zeros(0)
     cross_rows = rows[cross_idx]
@@ -753,7 +818,7 @@ def trace_locus(
         frac = (crossing - mags[cross_idx]) / (mags[cross_idx + 1] - mags[cross_idx])
         seeds = branch_roots[cross_idx] + frac[:, np.newaxis] * (branch_roots[cross_idx + 1] - branch_roots[cross_idx])
         new_roots = _roots_from_seeds(num[cross_rows], den[cross_rows], sign * crossing, seeds, scale[cross_rows])
-        allowed = _allowed_step(seeds, new_roots, scale[cross_rows], max_step)
+        allowed = _allowed_step(seeds, new_roots, scale[cross_rows], floor[cross_rows], max_step)
         gains_x = sign * crossing
         perm = _match(num[cross_rows], den[cross_rows], gains_x, gains_x, seeds, new_roots, allowed)[0]
         new_roots = np.take_along_axis(new_roots, perm, axis=1)
