@@ -10,14 +10,16 @@ batch at once (details and the reasons for each choice:
    roots are farther than ``far_factor`` plot scales from the centroid, each
    within ``asymptote_tol`` degrees of an asymptote.  The smallest positive
    sample is the largest scanned gain at which no root has moved by a
-   hundredth of a step.  The scan runs every three decades around a
-   reference gain, then decade by decade near both ends.
+   hundredth of its step.  The scan runs every three decades between gain
+   scales estimated from each pole (``|p D'(p)/N(p)|``) and from the
+   asymptotes, then at extra points near both ends.
 2. **Samples.**  The scanned gains are refined in rounds.  In each round
    every new interval between neighbouring samples (of every loop) is
    checked at once and split where a matched root moves farther than the
-   allowed step (``max_step`` plot scales; more beyond the plot), which
-   concentrates samples where poles move fast and near breakaways
-   (``dK/ds -> 0``), or where the match is ambiguous.
+   allowed step (``max_step`` plot scales by default, finer near the origin
+   with ``step_floor < 1``, coarser beyond the plot), which concentrates
+   samples where poles move fast and near breakaways (``dK/ds -> 0``), or
+   where the match is ambiguous.
 3. **Matching.**  Roots of neighbouring samples are matched on the distance
    from a first-order prediction ``r + dK dr/dK`` with
    ``dr/dK = -N(r)/(D'(r) + K N'(r))`` (the step clipped to the allowed
