@@ -380,9 +380,11 @@ def _match(num, den, k_a, k_b, r_a, r_b, allowed, fine=None):
         slope = -_horner_rows(num, ra) / _horner_rows(_derivative(den) + k_a[:, np.newaxis] * _derivative(num), ra)
         step = (k_b - k_a)[:, np.newaxis] * slope
         size = np.abs(step)
-        # Clip the predicted step to the allowed step: at a collision the
-        # derivative is infinite and the bare position is the better guess.
-        step = np.where(np.isfinite(size) & (size > 0), step * np.minimum(1.0, allowed / size), 0.0)
+        # Clip the predicted step to the step bound on the root's own scale:
+        # at a collision the derivative is infinite and the bare position is
+        # the better guess.
+        clip = allowed if fine is None else fine
+        step = np.where(np.isfinite(size) & (size > 0), step * np.minimum(1.0, clip / size), 0.0)
         predicted = np.where(finite_a, r_a + step, r_a)
         cost = np.abs(predicted[:, :, np.newaxis] - r_b[:, np.newaxis, :])
         both_inf = ~np.isfinite(predicted)[:, :, np.newaxis] & ~np.isfinite(r_b)[:, np.newaxis, :]
@@ -473,7 +475,8 @@ def _crossing_gains(num, den, sign, lo, hi, r_lo, r_hi, boundary, rtol):
     poly_n, poly_d = num, den
     d_num, d_den = _derivative(num), _derivative(den)
     last = np.zeros(lo.size, dtype=int)
-    active = np.ones(lo.size, dtype=bool)
+    # A bracket end exactly on the boundary is the crossing itself.
+    active = (f_lo != 0) & (f_hi != 0)
     with np.errstate(all="ignore"):
         for _ in range(60):
             if not np.any(active):
@@ -810,6 +813,7 @@ def trace_locus(
     cross_idx = np.flatnonzero(np.any(change, axis=1))
     crossing = np.zeros(0)
     cross_rows = rows[cross_idx]
+    all_crossing, all_rows = crossing, cross_rows
     if cross_idx.size:
         branch = np.argmax(change[cross_idx], axis=1)
         crossing = _crossing_gains(
@@ -817,6 +821,10 @@ def trace_locus(
             branch_roots[cross_idx, branch], branch_roots[cross_idx + 1, branch],
             lambda r: boundary(r, cross_rows), crossing_rtol,
         )
+        # A crossing found exactly at an existing sample needs no new sample.
+        all_crossing, all_rows = crossing, cross_rows
+        fresh = (crossing != mags[cross_idx]) & (crossing != mags[cross_idx + 1])
+        cross_idx, cross_rows, crossing = cross_idx[fresh], cross_rows[fresh], crossing[fresh]
         frac = (crossing - mags[cross_idx]) / (mags[cross_idx + 1] - mags[cross_idx])
         seeds = branch_roots[cross_idx] + frac[:, np.newaxis] * (branch_roots[cross_idx + 1] - branch_roots[cross_idx])
         new_roots = _roots_from_seeds(num[cross_rows], den[cross_rows], sign * crossing, seeds, scale[cross_rows])
@@ -829,9 +837,9 @@ def trace_locus(
         branch_roots = np.concatenate([branch_roots, new_roots])
         order = np.lexsort((mags, rows))
         rows, mags, branch_roots = rows[order], mags[order], branch_roots[order]
-    signed = sign * crossing
-    by_loop = np.lexsort((signed, cross_rows))
-    splits = np.cumsum(np.bincount(cross_rows, minlength=P))[:-1]
+    signed = sign * all_crossing
+    by_loop = np.lexsort((signed, all_rows))
+    splits = np.cumsum(np.bincount(all_rows, minlength=P))[:-1]
     crossing_gains = tuple(np.split(signed[by_loop], splits))
     residual = angle_residual(num[rows], den[rows], sign * mags, branch_roots, poles[rows], zeros[rows])
 
