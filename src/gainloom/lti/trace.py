@@ -39,7 +39,8 @@ Discrete loops with a delta-operator form are traced in ``g = (z - 1)/ts``
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 
@@ -75,7 +76,8 @@ class LocusBranches:
     counts : ndarray of int, shape (P,)
         Number of distinct samples per loop.
     residual : ndarray, shape (P, G, n)
-        Angle-condition residual in degrees, ``|arg(-K L(r))|`` (see
+        Angle-condition residual in degrees, computed on first access,
+        ``|arg(-K L(r))|`` (see
         :func:`angle_residual`; ``nan`` where the angle is undefined: ``K = 0``,
         roots at infinity, roots within 1e-8 of an open-loop pole or zero).
     k_max : ndarray, shape (P,)
@@ -95,12 +97,27 @@ class LocusBranches:
     gains: np.ndarray
     roots: np.ndarray
     counts: np.ndarray
-    residual: np.ndarray
     k_max: np.ndarray
     crossing_gains: tuple[np.ndarray, ...]
     negative: bool
     discrete: bool
     warnings: tuple[str, ...] = ()
+    # What the residual is computed from (on first access, then kept): the
+    # loop polynomials, poles and zeros per loop in the traced plane, and the
+    # traced roots in that plane.
+    _check: tuple = field(default=(), repr=False)
+
+    @cached_property
+    def residual(self) -> np.ndarray:
+        """Angle-condition residual in degrees, shape (P, G, n) (see above)."""
+        num, den, poles, zeros, work_roots, period = self._check
+        P, G = self.gains.shape
+        loop_of = np.repeat(np.arange(P), G)
+        roots = work_roots.reshape(P * G, -1)
+        value = angle_residual(
+            num[loop_of], den[loop_of], self.gains.ravel(), roots, poles[loop_of], zeros[loop_of]
+        )
+        return value.reshape(work_roots.shape)
 
     @property
     def max_residual(self) -> float:
@@ -237,16 +254,21 @@ def _polish(poly, dpoly, seeds, scale, simultaneous, iterations=8):
             # iterate on.
             step = np.zeros_like(r)
             rows = np.arange(r.shape[0])
+            pr, dr, rr, sc = poly, dpoly, r.copy(), scale[:, np.newaxis]
             for it in range(iterations):
-                pr, dr = poly[rows], dpoly[rows]
-                st = _horner_rows(pr, r[rows]) / _horner_rows(dr, r[rows])
-                r[rows] -= st
-                step[rows] = st
+                st = _horner_rows(pr, rr) / _horner_rows(dr, rr)
+                rr = rr - st
                 if it >= 2:
-                    done = np.all(np.abs(st) <= 1e-13 * np.maximum(np.abs(r[rows]), scale[rows, np.newaxis]), axis=1)
-                    rows = rows[~done]
+                    done = np.all(np.abs(st) <= 1e-13 * np.maximum(np.abs(rr), sc), axis=1)
+                    if np.any(done):
+                        r[rows[done]] = rr[done]
+                        step[rows[done]] = st[done]
+                        keep = ~done
+                        rows, pr, dr, rr, sc, st = rows[keep], pr[keep], dr[keep], rr[keep], sc[keep], st[keep]
                     if rows.size == 0:
                         break
+            r[rows] = rr
+            step[rows] = st
         for _ in range(iterations if simultaneous else 0):
             step = _horner_rows(poly, r) / _horner_rows(dpoly, r)
             if simultaneous:
@@ -841,7 +863,7 @@ def trace_locus(
     by_loop = np.lexsort((signed, all_rows))
     splits = np.cumsum(np.bincount(all_rows, minlength=P))[:-1]
     crossing_gains = tuple(np.split(signed[by_loop], splits))
-    residual = angle_residual(num[rows], den[rows], sign * mags, branch_roots, poles[rows], zeros[rows])
+    work_roots = branch_roots
 
     if delta:
         with np.errstate(invalid="ignore"):
@@ -859,10 +881,10 @@ def trace_locus(
         gains=sign * mags[take],
         roots=branch_roots[take],
         counts=counts,
-        residual=residual[take],
         k_max=k_top,
         crossing_gains=crossing_gains,
         negative=bool(negative),
         discrete=loop.is_discrete,
         warnings=tuple(warnings),
+        _check=(num, den, poles, zeros, work_roots[take], ts),
     )
