@@ -10,7 +10,7 @@ per loop, the largest angle-condition residual of each method (same formula,
 :func:`gainloom.lti.trace.angle_residual`) and the largest step between
 neighbouring samples inside the plot region, as a fraction of the plot scale.
 
-Run:  PYTHONPATH=src python benchmarks/locus.py [--loops 1000] [--seed 0]
+Run:  PYTHONPATH=src python benchmarks/locus.py [--loops 1000] [--seed 0] [--max-step 0.05]
 """
 
 from __future__ import annotations
@@ -110,7 +110,7 @@ def _residual(loop: Loop, p: int, gains: np.ndarray, roots: np.ndarray) -> float
     return float(finite.max()) if finite.size else 0.0
 
 
-def run(loops: int = 1000, seed: int = 0) -> dict:
+def run(loops: int = 1000, seed: int = 0, max_step: float = 0.05) -> dict:
     """Run the benchmark and return its figures (also printed by :func:`main`)."""
     continuous, discrete = make_loops(loops, seed)
     loop_batches = [b for b in (continuous, discrete) if b.points]
@@ -118,7 +118,7 @@ def run(loops: int = 1000, seed: int = 0) -> dict:
     systems = [[lb.to_control(p) for p in range(lb.points)] for lb in loop_batches]
 
     wall0, cpu0 = time.perf_counter(), time.process_time()
-    traced = [trace_locus(lb) for lb in loop_batches]
+    traced = [trace_locus(lb, max_step=max_step) for lb in loop_batches]
     ours_wall, ours_cpu = time.perf_counter() - wall0, time.process_time() - cpu0
 
     wall0, cpu0 = time.perf_counter(), time.process_time()
@@ -144,6 +144,7 @@ def run(loops: int = 1000, seed: int = 0) -> dict:
             ours_step = max(ours_step, _inside_step(ours, scale))
     return {
         "loops": loops,
+        "max_step": max_step,
         "ours_wall_s": ours_wall,
         "ours_cpu_s": ours_cpu,
         "peer_wall_s": peer_wall,
@@ -165,9 +166,13 @@ def main(argv: list[str] | None = None) -> dict:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--loops", type=int, default=1000)
     parser.add_argument("--seed", type=int, default=0)
+    parser.add_argument("--max-step", type=float, default=0.05, help="trace_locus max_step (default 0.05)")
     args = parser.parse_args(argv)
-    figures = run(args.loops, args.seed)
-    print(f"loops: {figures['loops']} (order 6; half s, half z: ZOH + 1 sample delay)")
+    figures = run(args.loops, args.seed, args.max_step)
+    print(
+        f"loops: {figures['loops']} (order 6; half s, half z: ZOH + 1 sample delay); "
+        f"trace_locus max_step {figures['max_step']}"
+    )
     print(f"gainloom trace_locus     wall {figures['ours_wall_s']:8.3f} s  cpu {figures['ours_cpu_s']:8.3f} s")
     print(f"python-control rlocus    wall {figures['peer_wall_s']:8.3f} s  cpu {figures['peer_cpu_s']:8.3f} s")
     print(f"speed-up                 wall {figures['wall_ratio']:8.1f} x   cpu {figures['cpu_ratio']:8.1f} x")

@@ -150,3 +150,31 @@ def test_frequency_response_matches_python_control_discrete():
 def test_zero_gain_is_refused():
     with pytest.raises(InputError, match="non-zero"):
         loop_margins(Loop(num=[1.0], den=[1.0, 1.0]), gain=0.0)
+
+
+def test_fast_sampled_margins_through_the_delta_form():
+    # An 8th-order plant of our own under ZOH at ts = 1 us.  Textbook
+    # approximation: the ZOH acts as a half-sample delay, so the phase margin
+    # drops by w_gc ts/2 and the crossover frequencies barely move.  The same
+    # loop evaluated from its expanded z-coefficients (no delta form) has lost
+    # its slow poles and gives nonsense: the reason the delta form exists.
+    from dataclasses import replace
+
+    from gainloom.lti.discretize import discretize_loop
+
+    poles = [-2.0, -15.0, complex(-40, 300), complex(-40, -300), -900.0,
+             complex(-2500, 4000), complex(-2500, -4000), -12000.0]
+    zeros = [-60.0, -5000.0]
+    k0 = np.real(np.prod([-p for p in poles])) / np.prod([-z for z in zeros])
+    plant = Loop(num=k0 * np.poly(zeros), den=np.real(np.poly(poles)))
+    ts = 1e-6
+    discrete = discretize_loop(plant, ts, "zoh")
+    for k in (3.0, 20.0):
+        cont, disc = loop_margins(plant, k), loop_margins(discrete, k)
+        np.testing.assert_allclose(disc.gain_crossover, cont.gain_crossover, rtol=1e-6)
+        expected_pm = cont.phase_margin - np.degrees(cont.gain_crossover * ts / 2)
+        np.testing.assert_allclose(disc.phase_margin, expected_pm, atol=1e-5)
+        np.testing.assert_allclose(disc.gain_margin, cont.gain_margin, rtol=1e-3)
+        assert disc.stable[0] and cont.stable[0]
+        naive = loop_margins(replace(discrete, delta_num=None, delta_den=None), k)
+        assert not naive.stable[0] or abs(naive.gain_margin[0] / cont.gain_margin[0] - 1) > 0.1

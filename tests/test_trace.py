@@ -217,3 +217,29 @@ def test_cancelled_pole_zero_pair_and_biproper_loop():
     gains, roots = _branches(tr, 0)
     finite = np.isfinite(roots[:, 0])
     np.testing.assert_allclose(roots[finite, 0], -(2 + 3 * gains[finite]) / (1 + gains[finite]), rtol=1e-9)
+
+
+def test_fast_sampled_delta_loop_crossing_is_found_at_default_settings():
+    # 8th-order plant of our own under ZOH at ts = 1 us with one sample of
+    # delay (gainloom's discretiser, delta form).  The plot scale is set by
+    # the far sampling zeros, yet the slow branches must not swap and the
+    # first crossing must be found.  Reference: closed_loop_poles (checked
+    # against 50-digit mpmath in test_closed_loop.py) just below and above it.
+    from gainloom.lti.closed_loop import closed_loop_poles
+    from gainloom.lti.discretize import discretize_loop
+
+    poles = [-2.0, -15.0, complex(-40, 300), complex(-40, -300), -900.0,
+             complex(-2500, 4000), complex(-2500, -4000), -12000.0]
+    zeros = [-60.0, -5000.0]
+    k0 = np.real(np.prod([-p for p in poles])) / np.prod([-z for z in zeros])
+    plant = Loop(num=k0 * np.poly(zeros), den=np.real(np.poly(poles)))
+    loop = discretize_loop(plant, 1e-6, "zoh", delay=1.0)
+    tr = trace_locus(loop)
+    k_cross = tr.crossing_gains[0][0]
+    below = np.abs(closed_loop_poles(loop, [k_cross * (1 - 1e-5)])).max()
+    above = np.abs(closed_loop_poles(loop, [k_cross * (1 + 1e-5)])).max()
+    assert below < 1.0 < above
+    # No sample before the crossing is unstable (nothing was skipped).
+    gains, roots = _branches(tr, 0)
+    early = (gains > 0) & (gains < k_cross * (1 - 1e-5))
+    assert np.all(np.abs(roots[early]) < 1.0)

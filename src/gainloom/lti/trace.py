@@ -10,14 +10,16 @@ batch at once (details and the reasons for each choice:
    roots are farther than ``far_factor`` plot scales from the centroid, each
    within ``asymptote_tol`` degrees of an asymptote.  The smallest positive
    sample is the largest scanned gain at which no root has moved by a
-   hundredth of a step.  The scan runs every three decades around a
-   reference gain, then decade by decade near both ends.
+   hundredth of its step.  The scan runs every three decades between gain
+   scales estimated from each pole (``|p D'(p)/N(p)|``) and from the
+   asymptotes, then at extra points near both ends.
 2. **Samples.**  The scanned gains are refined in rounds.  In each round
    every new interval between neighbouring samples (of every loop) is
    checked at once and split where a matched root moves farther than the
-   allowed step (``max_step`` plot scales; more beyond the plot), which
-   concentrates samples where poles move fast and near breakaways
-   (``dK/ds -> 0``), or where the match is ambiguous.
+   allowed step (``max_step`` plot scales by default, finer near the origin
+   with ``step_floor < 1``, coarser beyond the plot), which concentrates
+   samples where poles move fast and near breakaways (``dK/ds -> 0``), or
+   where the match is ambiguous.
 3. **Matching.**  Roots of neighbouring samples are matched on the distance
    from a first-order prediction ``r + dK dr/dK`` with
    ``dr/dK = -N(r)/(D'(r) + K N'(r))`` (the step clipped to the allowed
@@ -37,7 +39,8 @@ Discrete loops with a delta-operator form are traced in ``g = (z - 1)/ts``
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 
@@ -47,7 +50,12 @@ from .polynomials import batched_roots
 
 __all__ = ["LocusBranches", "trace_locus", "angle_residual"]
 
-_COARSE_DECADES = np.arange(-15.0, 16.0, 3.0)
+#: Relative distance below which a root counts as sitting on an open-loop
+#: pole or zero for the angle residual.
+_ON_FEATURE = 1e-8
+
+#: Most points of the coarse gain scan (spaced at most 3 decades otherwise).
+_MAX_SCAN = 40
 #: Beyond the plot scale the allowed step grows by this fraction of the
 #: distance past it (branches there run straight out along asymptotes).
 _FAR_GROWTH = 0.25
@@ -68,9 +76,10 @@ class LocusBranches:
     counts : ndarray of int, shape (P,)
         Number of distinct samples per loop.
     residual : ndarray, shape (P, G, n)
-        Angle-condition residual in degrees, ``|arg(-K L(r))|`` (see
+        Angle-condition residual in degrees, computed on first access,
+        ``|arg(-K L(r))|`` (see
         :func:`angle_residual`; ``nan`` where the angle is undefined: ``K = 0``,
-        roots at infinity, roots on an open-loop pole or zero to rounding).
+        roots at infinity, roots within 1e-8 of an open-loop pole or zero).
     k_max : ndarray, shape (P,)
         Largest ``|K|`` traced per loop.
     crossing_gains : tuple of ndarray
@@ -88,12 +97,27 @@ class LocusBranches:
     gains: np.ndarray
     roots: np.ndarray
     counts: np.ndarray
-    residual: np.ndarray
     k_max: np.ndarray
     crossing_gains: tuple[np.ndarray, ...]
     negative: bool
     discrete: bool
     warnings: tuple[str, ...] = ()
+    # What the residual is computed from (on first access, then kept): the
+    # loop polynomials, poles and zeros per loop in the traced plane, and the
+    # traced roots in that plane.
+    _check: tuple = field(default=(), repr=False)
+
+    @cached_property
+    def residual(self) -> np.ndarray:
+        """Angle-condition residual in degrees, shape (P, G, n) (see above)."""
+        num, den, poles, zeros, work_roots, period = self._check
+        P, G = self.gains.shape
+        loop_of = np.repeat(np.arange(P), G)
+        roots = work_roots.reshape(P * G, -1)
+        value = angle_residual(
+            num[loop_of], den[loop_of], self.gains.ravel(), roots, poles[loop_of], zeros[loop_of]
+        )
+        return value.reshape(work_roots.shape)
 
     @property
     def max_residual(self) -> float:
@@ -147,8 +171,9 @@ def angle_residual(
     -------
     ndarray, shape (C, k)
         Residual in degrees, in ``[0, 180]``; ``nan`` where the angle is
-        undefined: at ``K = 0``, at infinite roots, and at roots equal to an
-        open-loop pole or zero to rounding (within 4 eps relative).
+        undefined: at ``K = 0``, at infinite roots, and at roots within 1e-8
+        (relative) of an open-loop pole or zero, where the distance, and so
+        the angle, is set by rounding.
     """
     num = np.asarray(num, dtype=float)
     den = np.asarray(den, dtype=float)
@@ -161,26 +186,29 @@ def angle_residual(
         lead_n = num[np.arange(num.shape[0]), np.argmax(nonzero, axis=1)]
     with np.errstate(all="ignore"):
         finite = np.isfinite(roots)
-        # The product of the factors has the summed angle (one arctan per
-        # root); positive rescaling changes no angle.
-        unit = 1.0 / np.maximum(np.max(np.abs(poles), axis=1), 1e-300)[:, np.newaxis]
-        r = np.where(finite, roots, 0.0) * unit
-        p_unit = poles * unit
-        z_unit = zeros * unit
+        r = np.where(finite, roots, 0.0)
+        r2 = r.real**2 + r.imag**2
+        # The product of the factors carries the summed angle with one
+        # arctangent per root; it is renormalised as it goes (no under- or
+        # overflow).  A root within _ON_FEATURE (relative) of an open-loop
+        # pole or zero has its angle set by rounding, not by the locus (the
+        # limits K -> 0 and K -> infinity): undefined there.
+        tiny2 = _ON_FEATURE**2
         phasor = np.ones(roots.shape, dtype=complex)
-        # A root that equals an open-loop pole or zero to rounding has no
-        # defined angle (the limits K -> 0 and K -> infinity).
         on_feature = np.zeros(roots.shape, dtype=bool)
-        tiny = 4 * np.finfo(float).eps
         for j in range(poles.shape[1]):  # loops over the order only
-            to_p = r - p_unit[:, j : j + 1]
-            on_feature |= np.abs(to_p) <= tiny * np.maximum(np.abs(r), np.abs(p_unit[:, j : j + 1]))
+            pj = poles[:, j : j + 1]
+            to_p = r - pj
+            size = to_p.real**2 + to_p.imag**2
+            on_feature |= size <= tiny2 * np.maximum(r2, pj.real**2 + pj.imag**2)
             phasor *= np.conj(to_p)
-            zj = z_unit[:, j : j + 1]
-            to_z = np.where(np.isnan(zj), 1.0, r - zj)
-            on_feature |= ~np.isnan(zj) & (np.abs(to_z) <= tiny * np.maximum(np.abs(r), np.abs(zj)))
+            zj = zeros[:, j : j + 1]
+            has = ~np.isnan(zj)
+            to_z = np.where(has, r - np.where(has, zj, 0.0), 1.0)
+            size = to_z.real**2 + to_z.imag**2
+            zj2 = np.where(has, zj.real**2 + zj.imag**2, 0.0)
+            on_feature |= has & (size <= tiny2 * np.maximum(r2, zj2))
             phasor *= to_z
-            # Keep the running product at unit size (no underflow/overflow).
             size = np.abs(phasor)
             phasor = np.where(size > 0, phasor / np.where(size > 0, size, 1.0), phasor)
         # -K L(r) must be a positive real number: its argument is the residual.
@@ -221,7 +249,27 @@ def _polish(poly, dpoly, seeds, scale, simultaneous, iterations=8):
     n = r.shape[1]
     off = ~np.eye(n, dtype=bool)
     with np.errstate(all="ignore"):
-        for _ in range(iterations):
+        if not simultaneous:
+            # Plain Newton: most rows settle in three steps; only the rest
+            # iterate on.
+            step = np.zeros_like(r)
+            rows = np.arange(r.shape[0])
+            pr, dr, rr, sc = poly, dpoly, r.copy(), scale[:, np.newaxis]
+            for it in range(iterations):
+                st = _horner_rows(pr, rr) / _horner_rows(dr, rr)
+                rr = rr - st
+                if it >= 2:
+                    done = np.all(np.abs(st) <= 1e-13 * np.maximum(np.abs(rr), sc), axis=1)
+                    if np.any(done):
+                        r[rows[done]] = rr[done]
+                        step[rows[done]] = st[done]
+                        keep = ~done
+                        rows, pr, dr, rr, sc, st = rows[keep], pr[keep], dr[keep], rr[keep], sc[keep], st[keep]
+                    if rows.size == 0:
+                        break
+            r[rows] = rr
+            step[rows] = st
+        for _ in range(iterations if simultaneous else 0):
             step = _horner_rows(poly, r) / _horner_rows(dpoly, r)
             if simultaneous:
                 # Aberth-Ehrlich: Newton's step corrected by the other roots,
@@ -322,24 +370,30 @@ def _asymptotic(roots, zeros, excess, scale, centroid, negative, zero_tol, far_f
     return ok
 
 
-def _allowed_step(roots_a, roots_b, scale, max_step):
+def _allowed_step(roots_a, roots_b, scale, floor, max_step):
     """Largest allowed move of each root between neighbouring samples.
 
-    ``max_step`` plot scales inside the plot region; beyond it the bound
-    grows with the distance (a quarter of the distance past the plot scale),
-    because a branch running out along an asymptote is a straight line.
+    Inside the plot region ``max_step`` times the root's distance from the
+    origin of the plane, clipped to ``[floor, scale]``: slow poles are
+    resolved on their own scale (a plant spanning decades, a fast-sampled
+    loop in ``g``), fast ones on the plot scale.  Beyond the plot scale the
+    bound grows by a quarter of the distance past it, because a branch
+    running out along an asymptote is a straight line.
     """
     local = np.minimum(np.abs(roots_a), np.abs(roots_b))
     local = np.where(np.isfinite(local), local, np.inf)
     s = scale[:, np.newaxis]
-    return np.maximum(max_step * s, _FAR_GROWTH * (local - s))
+    inner = max_step * np.clip(local, floor[:, np.newaxis], s)
+    return np.maximum(inner, _FAR_GROWTH * (local - s))
 
 
-def _match(num, den, k_a, k_b, r_a, r_b, allowed):
+def _match(num, den, k_a, k_b, r_a, r_b, allowed, fine=None):
     """Greedy assignment of roots ``r_a`` (at ``k_a``) to ``r_b`` (at ``k_b``).
 
     Returns ``perm`` (C, n) with ``r_b[perm[:, i]]`` continuing ``r_a[:, i]``,
-    the matched displacement (C, n) and an ambiguity flag (C,).
+    the matched displacement (C, n) and an ambiguity flag (C,).  ``fine``
+    (C, n) is the step bound on each root's own scale; roots closer than a
+    tenth of it count as coincident (default: ``allowed``).
     """
     C, n = r_a.shape
     with np.errstate(all="ignore"):
@@ -348,9 +402,11 @@ def _match(num, den, k_a, k_b, r_a, r_b, allowed):
         slope = -_horner_rows(num, ra) / _horner_rows(_derivative(den) + k_a[:, np.newaxis] * _derivative(num), ra)
         step = (k_b - k_a)[:, np.newaxis] * slope
         size = np.abs(step)
-        # Clip the predicted step to the allowed step: at a collision the
-        # derivative is infinite and the bare position is the better guess.
-        step = np.where(np.isfinite(size) & (size > 0), step * np.minimum(1.0, allowed / size), 0.0)
+        # Clip the predicted step to the step bound on the root's own scale:
+        # at a collision the derivative is infinite and the bare position is
+        # the better guess.
+        clip = allowed if fine is None else fine
+        step = np.where(np.isfinite(size) & (size > 0), step * np.minimum(1.0, clip / size), 0.0)
         predicted = np.where(finite_a, r_a + step, r_a)
         cost = np.abs(predicted[:, :, np.newaxis] - r_b[:, np.newaxis, :])
         both_inf = ~np.isfinite(predicted)[:, :, np.newaxis] & ~np.isfinite(r_b)[:, np.newaxis, :]
@@ -390,7 +446,7 @@ def _match(num, den, k_a, k_b, r_a, r_b, allowed):
         # Swapping two roots that coincide at sample a (a multiple pole at
         # K = 0, the meeting point of a breakaway) changes no branch: only
         # distinct roots can be mismatched.
-        apart = np.abs(r_a - np.take_along_axis(r_a, rival, axis=1)) > 0.1 * allowed
+        apart = np.abs(r_a - np.take_along_axis(r_a, rival, axis=1)) > 0.1 * (allowed if fine is None else fine)
         apart &= np.isfinite(r_a)
         ambiguous = np.any((chosen > 0.5 * runner_up) & apart, axis=1)
     else:
@@ -418,8 +474,9 @@ def _compose(perms: np.ndarray, starts: np.ndarray) -> np.ndarray:
     acc = step.copy()  # acc[c] = step[c] o ... o step[c - span + 1] (within the loop)
     index = np.arange(total)
     segment = np.maximum.accumulate(np.where(np.isin(index, starts), index, 0))
+    longest = int(np.max(np.diff(np.r_[starts, total])))
     span = 1
-    while span < total:
+    while span < longest:
         prev = index - span
         use = prev >= segment
         # acc[c] o acc[c - span]: the earlier map is applied first.
@@ -440,7 +497,8 @@ def _crossing_gains(num, den, sign, lo, hi, r_lo, r_hi, boundary, rtol):
     poly_n, poly_d = num, den
     d_num, d_den = _derivative(num), _derivative(den)
     last = np.zeros(lo.size, dtype=int)
-    active = np.ones(lo.size, dtype=bool)
+    # A bracket end exactly on the boundary is the crossing itself.
+    active = (f_lo != 0) & (f_hi != 0)
     with np.errstate(all="ignore"):
         for _ in range(60):
             if not np.any(active):
@@ -483,6 +541,7 @@ def trace_locus(
     crossing_rtol: float = 1e-6,
     max_rounds: int = 40,
     max_samples: int = 4000,
+    step_floor: float = 1.0,
 ) -> LocusBranches:
     """Trace the root-locus branches of every loop of a batch.
 
@@ -497,17 +556,27 @@ def trace_locus(
         Trace the complementary locus ``K <= 0``.
     max_step : float
         Largest move of a root between neighbouring samples, as a fraction of
-        the loop's plot scale (the largest magnitude among open-loop poles,
-        finite zeros and the centroid; measured from ``s = 0``, from ``z = 0``,
-        or from ``z = 1`` for delta-form discrete loops, which are traced in
-        ``g = (z - 1)/ts``).  Beyond the plot scale the bound grows by a quarter
-        of the distance past it.
+        its local scale: its distance from the origin of the plane (``s = 0``,
+        ``z = 0``, or ``z = 1`` for delta-form discrete loops, which are traced
+        in ``g = (z - 1)/ts``), clipped between ``step_floor`` and 1 times the
+        plot scale (the largest magnitude among open-loop poles, finite zeros
+        and the centroid).  No step exceeds ``max_step`` plot scales inside
+        the plot.  Beyond the plot scale the bound grows by a quarter of the
+        distance past it.
     zero_tol, far_factor, asymptote_tol : float
         Asymptotic-regime criterion (fractions of the plot scale; degrees).
     crossing_rtol : float
         Relative gain bracket of stability-boundary crossings.
     max_rounds, max_samples : int
         Refinement limits (a warning says when one was hit).
+    step_floor : float
+        Smallest local scale as a fraction of the plot scale.  The default 1
+        bounds every step inside the plot by ``max_step`` plot scales (what a
+        plot at that scale shows).  Smaller values refine roots close to the
+        origin on their own scale (at most ``max_step * step_floor`` plot
+        scales per sample); ``0`` resolves every pole down to half the
+        slowest feature, for plants spanning decades or fast-sampled loops
+        near ``z = 1``, at the cost of more samples.
 
     Returns
     -------
@@ -529,16 +598,41 @@ def trace_locus(
     poles, zeros, m, excess, scale, centroid, lead_n = _features(num, den)
     if np.any(m < 0):
         raise InputError("a loop with a zero numerator has no root locus")
+    if not (0 <= step_floor <= 1):
+        raise InputError(f"step_floor is a fraction of the plot scale in [0, 1]; got {step_floor}")
+    # Smallest local scale: step_floor plot scales, but never below half the
+    # smallest non-zero |pole| or |zero| (nor a millionth of the plot scale).
+    mags_f = np.abs(np.concatenate([poles, zeros], axis=1))
+    mags_f = np.where(np.isfinite(mags_f) & (mags_f > 1e-9 * scale[:, np.newaxis]), mags_f, np.inf)
+    slowest = np.clip(0.5 * np.min(mags_f, axis=1), 1e-6 * scale, scale)
+    floor = np.maximum(slowest, step_floor * scale)
 
-    # --- gain range from a scan of decades (one batched call) -------------
-    with np.errstate(divide="ignore", over="ignore"):
-        k_ref = np.abs(den[:, 0]) / np.abs(lead_n) * scale ** excess.astype(float)
-    k_ref = np.where(np.isfinite(k_ref) & (k_ref > 0), k_ref, 1.0)
+    # --- gain range from a scan (two batched calls) -----------------------
+    # Gain scales of the loop: the gain at which the root leaving pole p
+    # has moved by |p| (first order: K |N(p)/D'(p)| = |p|), and the gain at
+    # which |K N| and |D| are alike at the plot scale (the asymptotic side).
+    # The scan spans 1e-4 of the smallest to 1e4 of the largest.
+    with np.errstate(all="ignore"):
+        k_asym = np.abs(den[:, 0]) / np.abs(lead_n) * scale ** excess.astype(float)
+        at = np.where(poles != 0, poles, scale[:, np.newaxis])
+        d_den = _derivative(den)
+        k_pole = np.abs(at) * np.abs(_horner_rows(d_den, poles)) / np.abs(_horner_rows(num, poles))
+        k_pole = np.where(np.isfinite(k_pole) & (k_pole > 0), k_pole, np.nan)
+        k_lo = np.nanmin(np.c_[k_pole, k_asym], axis=1)
+        k_hi = np.nanmax(np.c_[k_pole, k_asym], axis=1)
+    k_asym = np.where(np.isfinite(k_asym) & (k_asym > 0), k_asym, 1.0)
+    k_lo = np.where(np.isfinite(k_lo) & (k_lo > 0), k_lo, k_asym) * 1e-4
+    k_hi = np.where(np.isfinite(k_hi) & (k_hi > 0), k_hi, k_asym) * 1e4
+    # Every loop is scanned every 3 decades from its own k_lo to its own k_hi
+    # (points past its own end are ignored), so a loop's result does not
+    # depend on the batch it is in.
+    own_count = np.clip(np.ceil(np.log10(k_hi / k_lo) / 3.0) + 1, 4, _MAX_SCAN).astype(int)
+    count = int(own_count.max())
+    valid = np.arange(count) < own_count[:, np.newaxis]
 
-    def scan_at(decades):
-        """Roots, asymptotic flags and 'not yet moved' flags at k_ref 10^decades (P, D)."""
-        gains_pd = k_ref[:, np.newaxis] * 10.0 ** decades
-        width_d = decades.shape[1]
+    def scan_at(gains_pd):
+        """Roots, asymptotic flags and 'not yet moved' flags at gains (P, D)."""
+        width_d = gains_pd.shape[1]
         rws = np.repeat(np.arange(P), width_d)
         rts = _roots(num[rws], den[rws], sign * gains_pd.ravel())
         asy = _asymptotic(
@@ -546,20 +640,29 @@ def trace_locus(
             negative, zero_tol, far_factor, asymptote_tol,
         ).reshape(P, -1)
         dist = np.abs(rts[:, :, np.newaxis] - poles[rws][:, np.newaxis, :])
-        moved = np.max(np.min(np.where(np.isnan(dist), np.inf, dist), axis=2), axis=1).reshape(P, -1)
-        return gains_pd, rts.reshape(P, width_d, n), asy, moved <= 0.01 * max_step * scale[:, np.newaxis]
+        dist = np.where(np.isnan(dist), np.inf, dist)
+        nearest = np.take_along_axis(poles[rws], np.argmin(dist, axis=2), axis=1)
+        # "Not moved": every root within a hundredth of its own allowed step
+        # of an open-loop pole.
+        own = 0.01 * max_step * np.clip(np.abs(nearest), slowest[rws][:, np.newaxis], scale[rws][:, np.newaxis])
+        unmoved = np.all(np.min(dist, axis=2) <= own, axis=1).reshape(P, -1)
+        return rts.reshape(P, width_d, n), asy, unmoved
 
-    # Coarse scan every 3 decades, then the two decades below the first
-    # asymptotic one and above the last unmoved one.
-    coarse = np.broadcast_to(_COARSE_DECADES, (P, _COARSE_DECADES.size))
-    g1, r1, a1, s1 = scan_at(coarse)
-    top1 = np.where(a1.any(axis=1), np.argmax(a1, axis=1), coarse.shape[1] - 1)
-    still1 = s1 & (np.arange(coarse.shape[1]) < top1[:, np.newaxis])
-    low1 = np.where(still1.any(axis=1), coarse.shape[1] - 1 - np.argmax(still1[:, ::-1], axis=1), 0)
-    top_dec = coarse[np.arange(P), top1]
-    low_dec = coarse[np.arange(P), low1]
-    fine = np.stack([top_dec - 2, top_dec - 1, low_dec + 1, low_dec + 2], axis=1)
-    g2, r2, a2, s2 = scan_at(fine)
+    # Coarse scan, then two points between the first asymptotic gain and its
+    # predecessor and two after the last unmoved one.
+    g1 = k_lo[:, np.newaxis] * 10.0 ** (3.0 * np.arange(count))
+    r1, a1, s1 = scan_at(g1)
+    a1 &= valid
+    s1 &= valid
+    reached_scan = a1.any(axis=1)
+    a1[np.arange(P), own_count - 1] |= ~reached_scan  # not reached: stop at the end
+    top1 = np.argmax(a1, axis=1)
+    still1 = s1 & (np.arange(count) < top1[:, np.newaxis])
+    low1 = np.where(still1.any(axis=1), count - 1 - np.argmax(still1[:, ::-1], axis=1), 0)
+    top_g = g1[np.arange(P), top1]
+    low_g = g1[np.arange(P), low1]
+    g2 = np.stack([top_g / 100.0, top_g / 10.0, low_g * 10.0, low_g * 100.0], axis=1)
+    r2, a2, s2 = scan_at(g2)
     scan = np.concatenate([g1, g2], axis=1)
     by_gain = np.argsort(scan, axis=1, kind="stable")
     scan = np.take_along_axis(scan, by_gain, axis=1)
@@ -570,14 +673,13 @@ def trace_locus(
     flat_rows = np.repeat(np.arange(P), width_scan)
     scan_roots = scan_roots_pd.reshape(-1, n)
     if k_max is None:
-        reached = asym.any(axis=1)
-        first = np.argmax(asym, axis=1)
-        top = np.where(reached, first, width_scan - 1)
+        top = np.argmax(asym, axis=1)
         k_top = scan[np.arange(P), top]
+        reached = reached_scan | a2.any(axis=1)
         if not np.all(reached):
             warnings.append(
-                f"asymptotic regime not reached at {int(np.sum(~reached))} point(s) by K = 1e15 x reference gain; "
-                "traced to there"
+                f"asymptotic regime not reached at {int(np.sum(~reached))} point(s) within the gain scan; "
+                "traced to its end"
             )
     else:
         k_top = np.broadcast_to(np.abs(np.asarray(k_max, dtype=float)), (P,)).copy()
@@ -593,7 +695,19 @@ def trace_locus(
     # both ends (no new eigenvalue problems but the two ends) --------------
     inside = (scan > k_low[:, np.newaxis]) & (scan < k_top[:, np.newaxis])
     ends = np.stack([k_low, k_top], axis=1)
-    end_roots = _roots(np.repeat(num, 2, axis=0), np.repeat(den, 2, axis=0), sign * ends.ravel())
+    # Both ends are scanned gains unless k_max was given or nothing stood
+    # still: only those need an eigenvalue problem.
+    end_roots = np.empty((P, 2, n), dtype=complex)
+    have_low = still.any(axis=1)
+    end_roots[have_low, 0] = scan_roots_pd[have_low, last_still[have_low]]
+    have_top = np.zeros(P, dtype=bool) if k_max is not None else np.ones(P, dtype=bool)
+    if k_max is None:
+        end_roots[:, 1] = scan_roots_pd[np.arange(P), top]
+    need = np.concatenate([np.flatnonzero(~have_low) * 2, np.flatnonzero(~have_top) * 2 + 1])
+    if need.size:
+        flat_end = end_roots.reshape(2 * P, n)
+        flat_end[need] = _roots(num[need // 2], den[need // 2], sign * ends.ravel()[need])
+    end_roots = end_roots.reshape(2 * P, n)
     rows = np.concatenate([np.arange(P), np.repeat(np.arange(P), 2), flat_rows[inside.ravel()]])
     mags = np.concatenate([np.zeros(P), ends.ravel(), scan.ravel()[inside.ravel()]])
     roots = np.concatenate([poles, end_roots, scan_roots[inside.ravel()]])
@@ -631,8 +745,13 @@ def trace_locus(
             break
         a, b = pend_a, pend_b
         ra, rb = roots[a], roots[b]
-        allowed = _allowed_step(ra, rb, scale[rows[a]], max_step)
-        perm, disp, ambiguous = _match(num[rows[a]], den[rows[a]], sign * mags[a], sign * mags[b], ra, rb, allowed)
+        allowed = _allowed_step(ra, rb, scale[rows[a]], floor[rows[a]], max_step)
+        # Coincidence is judged on each root's own scale, whatever step_floor:
+        # a coarse step bound must not excuse a swap of distinct slow roots.
+        fine = _allowed_step(ra, rb, scale[rows[a]], slowest[rows[a]], max_step)
+        perm, disp, ambiguous = _match(
+            num[rows[a]], den[rows[a]], sign * mags[a], sign * mags[b], ra, rb, allowed, fine
+        )
         too_far = np.any(disp > allowed, axis=1)
         width = mags[b] - mags[a]
         resolvable = width > 1e-12 * np.maximum(mags[b], 1e-300)
@@ -678,7 +797,7 @@ def trace_locus(
     else:
         hit_cap = pend_a.size > 0
     if pend_a.size:
-        allowed = _allowed_step(roots[pend_a], roots[pend_b], scale[rows[pend_a]], max_step)
+        allowed = _allowed_step(roots[pend_a], roots[pend_b], scale[rows[pend_a]], floor[rows[pend_a]], max_step)
         settled_a.append(pend_a)
         settled_perm.append(
             _match(num[rows[pend_a]], den[rows[pend_a]], sign * mags[pend_a], sign * mags[pend_b],
@@ -708,11 +827,15 @@ def trace_locus(
     # is no crossing: only intervals with a > 0 count.
     change = (side[1:] != side[:-1]) & same[:, np.newaxis] & (mags[:-1] > 0)[:, np.newaxis]
     # A root of a biproper loop that passes through infinity (K = -d0/n0)
-    # changes side without crossing the boundary: not a crossing here.
-    change &= np.isfinite(branch_roots[1:]) & np.isfinite(branch_roots[:-1])
+    # changes side without crossing the boundary: not a crossing here (nor
+    # anything beyond 1e8 plot scales).
+    far_out = 1e8 * scale[rows][:, np.newaxis]
+    with np.errstate(invalid="ignore"):
+        change &= (np.abs(branch_roots[1:]) < far_out[1:]) & (np.abs(branch_roots[:-1]) < far_out[:-1])
     cross_idx = np.flatnonzero(np.any(change, axis=1))
     crossing = np.zeros(0)
     cross_rows = rows[cross_idx]
+    all_crossing, all_rows = crossing, cross_rows
     if cross_idx.size:
         branch = np.argmax(change[cross_idx], axis=1)
         crossing = _crossing_gains(
@@ -720,10 +843,14 @@ def trace_locus(
             branch_roots[cross_idx, branch], branch_roots[cross_idx + 1, branch],
             lambda r: boundary(r, cross_rows), crossing_rtol,
         )
+        # A crossing found exactly at an existing sample needs no new sample.
+        all_crossing, all_rows = crossing, cross_rows
+        fresh = (crossing != mags[cross_idx]) & (crossing != mags[cross_idx + 1])
+        cross_idx, cross_rows, crossing = cross_idx[fresh], cross_rows[fresh], crossing[fresh]
         frac = (crossing - mags[cross_idx]) / (mags[cross_idx + 1] - mags[cross_idx])
         seeds = branch_roots[cross_idx] + frac[:, np.newaxis] * (branch_roots[cross_idx + 1] - branch_roots[cross_idx])
         new_roots = _roots_from_seeds(num[cross_rows], den[cross_rows], sign * crossing, seeds, scale[cross_rows])
-        allowed = _allowed_step(seeds, new_roots, scale[cross_rows], max_step)
+        allowed = _allowed_step(seeds, new_roots, scale[cross_rows], floor[cross_rows], max_step)
         gains_x = sign * crossing
         perm = _match(num[cross_rows], den[cross_rows], gains_x, gains_x, seeds, new_roots, allowed)[0]
         new_roots = np.take_along_axis(new_roots, perm, axis=1)
@@ -732,8 +859,11 @@ def trace_locus(
         branch_roots = np.concatenate([branch_roots, new_roots])
         order = np.lexsort((mags, rows))
         rows, mags, branch_roots = rows[order], mags[order], branch_roots[order]
-    crossing_gains = tuple(np.sort(sign * crossing[cross_rows == p]) for p in range(P))
-    residual = angle_residual(num[rows], den[rows], sign * mags, branch_roots, poles[rows], zeros[rows])
+    signed = sign * all_crossing
+    by_loop = np.lexsort((signed, all_rows))
+    splits = np.cumsum(np.bincount(all_rows, minlength=P))[:-1]
+    crossing_gains = tuple(np.split(signed[by_loop], splits))
+    work_roots = branch_roots
 
     if delta:
         with np.errstate(invalid="ignore"):
@@ -751,10 +881,10 @@ def trace_locus(
         gains=sign * mags[take],
         roots=branch_roots[take],
         counts=counts,
-        residual=residual[take],
         k_max=k_top,
         crossing_gains=crossing_gains,
         negative=bool(negative),
         discrete=loop.is_discrete,
         warnings=tuple(warnings),
+        _check=(num, den, poles, zeros, work_roots[take], ts),
     )
