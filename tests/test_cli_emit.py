@@ -76,7 +76,7 @@ def test_emit_check_compiles_and_compares(tmp_path, gains):
 
 
 # A scenario of our own: a first-order plant whose gain doubles across x,
-# proportional control; sampled with one sample of computation delay.
+# PI control with its zero on the plant pole; sampled with one sample of computation delay.
 SCHEDULE = """
 name: emit-check
 variables:
@@ -93,7 +93,7 @@ sampling:
   method: zoh
   delay: 1
 controller:
-  structure: p
+  structure: pi
   strategy: pole-cancel
   output_limits: [-4, 6]
 specs:
