@@ -16,10 +16,7 @@ from .output import format_number, format_table, print_json
 
 __all__ = ["HELP", "add_arguments", "run", "parse_coefficients"]
 
-HELP = (
-    "Discretise a continuous transfer function (hold method, computation delay) "
-    "and show its poles and zeros."
-)
+HELP = "discretise a continuous transfer function (hold method, computation delay) and show its poles and zeros"
 
 
 def parse_coefficients(text: str, what: str) -> np.ndarray:

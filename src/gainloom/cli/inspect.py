@@ -20,7 +20,7 @@ from .output import format_number, format_table, print_json
 
 __all__ = ["HELP", "add_arguments", "run", "inspect_data"]
 
-HELP = "Validate a schedule file and list each operating point: parameters, s- and z-plane poles, sampling."
+HELP = "validate a schedule file and list each operating point: parameters, s- and z-plane poles, sampling"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
