@@ -309,3 +309,16 @@ def test_two_axis_point_description_in_errors():
         schedule.evaluate(np.array([[10.0, 20.0], [45.0, 60.0]]))
     assert "current=45 A, temperature=60 degC" in caught.value.message
     assert caught.value.key_path == "parameters.L.table.x"
+
+
+def test_codegen_full_scales_are_read_and_checked(tmp_path):
+    text = BASE + "codegen:\n  prefix: spd\n  format: q15\n  error_full_scale: 20\n  output_full_scale: 12.5\n"
+    codegen = load_schedule(write(tmp_path, text)).codegen
+    assert (codegen.format, codegen.error_full_scale, codegen.output_full_scale) == ("q15", 20.0, 12.5)
+    assert load_schedule(write(tmp_path, BASE, "plain.yaml")).codegen.error_full_scale is None
+    bad = BASE + "codegen:\n  error_full_scale: -1\n"
+    with pytest.raises(ScheduleError) as caught:
+        load_schedule(write(tmp_path, bad, "bad.yaml"))
+    line = bad.splitlines().index("  error_full_scale: -1") + 1
+    assert caught.value.key_path == "codegen.error_full_scale" and caught.value.line == line
+    assert "must be positive" in str(caught.value)

@@ -81,6 +81,10 @@ def run(args: argparse.Namespace) -> int:
         schedule = load_schedule(args.schedule)
         args.number_format = args.number_format or schedule.codegen.format
         args.prefix = args.prefix or schedule.codegen.prefix
+        if args.error_full_scale is None:
+            args.error_full_scale = schedule.codegen.error_full_scale
+        if args.output_full_scale is None:
+            args.output_full_scale = schedule.codegen.output_full_scale
     args.number_format = args.number_format or "float32"
     args.prefix = args.prefix or "ctl"
     source_sha256 = (metadata.get("schedule") or {}).get("sha256")

@@ -206,10 +206,15 @@ class Tolerances:
 
 @dataclass(frozen=True)
 class CodegenSection:
-    """The ``codegen`` section: C identifier prefix and number format."""
+    """The ``codegen`` section: C identifier prefix, number format and the
+    physical full-scale values of the fixed-point error and output signals
+    (``None``: code generation's defaults, 1.0 for the error and the larger
+    output-limit magnitude for the output)."""
 
     prefix: str
     format: str
+    error_full_scale: float | None = None
+    output_full_scale: float | None = None
 
 
 @dataclass(frozen=True, eq=False)

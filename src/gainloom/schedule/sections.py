@@ -326,7 +326,11 @@ def read_tolerances(node: Node | None, independent: dict[str, bool]) -> Toleranc
 
 def read_codegen(node: Node | None, schedule_name: str, name_node: Node) -> CodegenSection:
     """Read the optional ``codegen`` section (prefix defaults to the schedule name, format to float32)."""
-    keys = {} if node is None or node.is_null else node.mapping(("prefix", "format"))
+    keys = (
+        {}
+        if node is None or node.is_null
+        else node.mapping(("prefix", "format", "error_full_scale", "output_full_scale"))
+    )
     if "prefix" in keys:
         prefix_node = keys["prefix"]
         prefix = prefix_node.text()
@@ -338,4 +342,8 @@ def read_codegen(node: Node | None, schedule_name: str, name_node: Node) -> Code
         origin = "" if "prefix" in keys else " (derived from the schedule name; set codegen.prefix)"
         raise prefix_node.error(f"C {problem}{origin}")
     number_format = keys["format"].choice("number format", names.NUMBER_FORMATS) if "format" in keys else "float32"
-    return CodegenSection(prefix=prefix, format=number_format)
+    scales = {
+        key: _positive(keys[key], key.replace("_", " ")) if key in keys else None
+        for key in ("error_full_scale", "output_full_scale")
+    }
+    return CodegenSection(prefix=prefix, format=number_format, **scales)
