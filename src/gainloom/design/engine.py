@@ -21,7 +21,7 @@ from ..names import DESIGN_STRATEGIES, SWEEP_OBJECTIVES, unknown_name_message
 from .analysis import PointAnalysis, analyse
 from .diagnose import diagnose, compromise
 from .results import DesignResult, VerifyResult
-from .search import OBJECTIVE_TEXT, Choice, choose_gains
+from .search import OBJECTIVE_TEXT, Choice, _samples_in, choose_gains, objective_values
 from .specs import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
 from .structures import LocusForm, coefficients_from_locus
@@ -103,8 +103,6 @@ def _step_retry(plant, structure, shapes, choice: Choice, coefficients, limits, 
         intervals = choice.intervals[p]
         if not intervals:
             continue
-        from .search import _samples_in
-
         gains = _samples_in(intervals, STEP_RETRIES)
         gains = gains[np.isfinite(gains)]
         if gains.size == 0:
@@ -119,9 +117,7 @@ def _step_retry(plant, structure, shapes, choice: Choice, coefficients, limits, 
         good = np.flatnonzero(trial.passed)
         if good.size == 0:
             continue
-        from .search import objective_values
-
-        scores = objective_values(trial.poles_z[good], trial.sample_period[good, None], objective, target)
+        scores = objective_values(trial.poles_z[good], trial.sample_period[good], objective, target)
         k = good[np.argmax(scores)]
         for name in coefficients:
             coefficients[name][p] = coefs[name][k]
