@@ -359,9 +359,13 @@ def choose_gains(
     score = objective_values(poles, ts_rows[:, None], objective, target)
     score = np.where(ok & flat(shapes.valid)[:, None], score, -np.inf)
     best_per_shape = score.max(axis=-1).reshape(P, S)
-    # shapes that are feasible nowhere on the grid are still ranked by the
-    # damping they reach, so an infeasible point still gets a best attempt
-    order = np.argsort(-best_per_shape, axis=1, kind="stable")
+    # Shapes feasible nowhere on the coarse grid (a narrow feasible gain
+    # window falls between its samples) are ranked next by the best damping
+    # they reach while stable, so the exact solver sees the promising ones
+    # first and an infeasible point still gets a best attempt.
+    stable = (metrics["radius"] < 1) & flat(shapes.valid)[:, None]
+    reach = np.where(stable, metrics["damping"], -np.inf).max(axis=-1).reshape(P, S)
+    order = np.lexsort((-reach, -best_per_shape), axis=-1)
     take = min(exact_shapes, S)
     samples = {
         "grid": grid.reshape(P, S, -1),
