@@ -105,7 +105,10 @@ UNSTABLE = textwrap.dedent(
 
 STRICT = ["-std=c99", "-Wall", "-Wextra", "-Wpedantic", "-Wconversion", "-Wshadow", "-Werror", "-c"]
 
-needs_cc = pytest.mark.skipif(find_compiler() is None, reason="no C compiler on this machine")
+def needs_cc(test):
+    """Marked ``needs_cc`` and skipped where no host C compiler exists."""
+    skip = pytest.mark.skipif(find_compiler() is None, reason="no C compiler on this machine")
+    return pytest.mark.needs_cc(skip(test))
 
 
 def _snapshot(folder: Path) -> dict[str, bytes]:
