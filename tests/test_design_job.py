@@ -333,3 +333,9 @@ def test_demo_schedule_runs_end_to_end(tmp_path):
     assert held == {second["name"]: pytest.approx(0.5 * (second["values"][0] + second["values"][-1]))}
     assert {p.name for p in job.c_files} == {f"{job.prefix}.h", f"{job.prefix}.c"}
     assert all(p.is_file() for p in job.files)
+
+
+def test_default_scenario_without_finite_limits_has_no_load_step():
+    schedule, result = _fake([0.1, 0.2], [40.0, 40.0], limits=(-math.inf, math.inf))
+    scenario, info = default_scenario(schedule, result)
+    assert scenario.load_steps == () and "no load step" in info["notes"][0]

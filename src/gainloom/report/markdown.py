@@ -279,8 +279,10 @@ def _simulation(doc: dict[str, Any]) -> list[str]:
             f"{scenario['time_scale_basis']}): {ramp['variable']} held at {number(ramp['from'])} until "
             f"{number(ramp['start_s'])} s, ramped to {number(ramp['to'])} by {number(ramp['end_s'])} s, then held"
             + (f"; {held} held" if held else "")
-            + f"; unit reference step at 0 s; load step of {number(load['amplitude'])} at {number(load['time_s'])} s; "
-            f"{number(scenario['duration_s'])} s in all. Passes when {scenario['pass_rule']}.",
+            + "; unit reference step at 0 s; "
+            + (f"load step of {number(load['amplitude'])} at {number(load['time_s'])} s; " if load["amplitude"]
+               else "no load step; ")
+            + f"{number(scenario['duration_s'])} s in all. Passes when {scenario['pass_rule']}.",
             "",
         ]
         lines += [f"- note: {n}" for n in scenario.get("notes", [])] + ([""] if scenario.get("notes") else [])

@@ -239,6 +239,9 @@ def default_scenario(schedule: Any, result: Any) -> tuple[Any, dict[str, Any]]:
     limits = result.table.output_limits
     amplitude = LOAD_STEP_FRACTION * max(abs(float(limits[0])), abs(float(limits[1])))
     load_time = 0.5 * (ramp_start + ramp_end)
+    if not (np.isfinite(amplitude) and amplitude > 0):
+        notes.append(f"no load step: output limits {list(limits)} give no finite, positive size for it")
+        amplitude = 0.0
     scenario = Scenario(
         duration=duration,
         trajectory=trajectory,
