@@ -378,6 +378,7 @@ def run_design_job(
         the way (:class:`~gainloom.outputs.OutputConflictError`).  Nothing is
         written then.
     """
+    from ..c_names import validate_prefix
     from ..codegen.emit import render_files
     from ..codegen.harness import check_generated_c
     from ..codegen.quantisation import check_quantisation
@@ -401,6 +402,7 @@ def run_design_job(
     schedule = load_schedule(schedule_path)
     number_format = _resolve_format(schedule, number_format)
     prefix = prefix or schedule.codegen.prefix
+    validate_prefix(prefix)  # before the design: a bad prefix is bad input, found at once
 
     result = design(schedule, progress=progress)
     gains_text = render_gains(result, gains_name)
