@@ -290,7 +290,8 @@ def _design_stage(result: Any) -> StageVerdict:
 
 def _harness_stage(harness: Any) -> StageVerdict:
     if harness is None:
-        return StageVerdict("C check", "not checked", "not checked: compile-and-harness check switched off")
+        return StageVerdict("C check", "not checked",
+                            "not checked: compile-and-harness check skipped on request (--no-compile)")
     if harness.status == "no-compiler":
         return StageVerdict("C check", "not checked", "not checked: no C compiler found")
     if harness.passed:
@@ -309,7 +310,7 @@ def _quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
 
 def _simulation_stage(simulation: Any) -> StageVerdict:
     if simulation is None:
-        return StageVerdict("simulation", "not checked", "not checked: skipped (--no-simulate)")
+        return StageVerdict("simulation", "not checked", "not checked: skipped on request (--no-simulate)")
     m = simulation.metrics
     if simulation.stable:
         overshoot = "-" if m.overshoot is None else f"{m.overshoot:.3g} %"
