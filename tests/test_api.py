@@ -47,6 +47,8 @@ EXPECTED_PUBLIC_NAMES = {
     "check_quantisation",
     "QuantisationResult",
     "write_verification",
+    "run_design_job",
+    "JobResult",
 }
 
 

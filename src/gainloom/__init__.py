@@ -27,6 +27,7 @@ from .lti.stability import jury_test, routh_array
 from .simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
 from .codegen.quantisation import QuantisationResult, check_quantisation
 from .report import write_verification
+from .report.run import JobResult, run_design_job
 
 __all__ = [
     "__version__",
@@ -73,4 +74,6 @@ __all__ = [
     "check_quantisation",
     "QuantisationResult",
     "write_verification",
+    "run_design_job",
+    "JobResult",
 ]

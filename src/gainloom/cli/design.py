@@ -1,4 +1,10 @@
-"""``gainloom design SCHEDULE --out DIR``: design the gain table and write the gains file."""
+"""``gainloom design SCHEDULE --out DIR``: the whole job into one output folder.
+
+Design the gain table, emit the C, compile and check it, re-check the table
+after rounding, run a default scheduled simulation and write the
+verification log (see :func:`gainloom.report.run.run_design_job`).  The CLI
+only parses, shows progress and prints the summary.
+"""
 
 from __future__ import annotations
 
@@ -7,9 +13,39 @@ import sys
 from pathlib import Path
 
 from ..errors import InputError
+from ..names import NUMBER_FORMATS
 from .output import format_number, format_table, print_json
 
-HELP = "design gains at every operating point of a schedule and write the gains file"
+HELP = "design gains at every operating point, emit and check the C, simulate, and write the verification log"
+
+_EPILOG = """\
+the full run, in order (progress on stderr):
+  1. design     gains at every grid point + whole-table checks -> DIR/gains.yaml
+  2. emit C     DIR/<prefix>.h and DIR/<prefix>.c in the number format
+                (default: the schedule's codegen.format and codegen.prefix)
+  3. check C    compile with strict warnings as errors and compare a host run
+                with the Python mirror, when a C compiler is found; without one
+                the summary says 'not checked: no C compiler found' (neither
+                a pass nor a failure)
+  4. quantisation  verify again with the coefficients rounded as the C stores them
+  5. simulate   default scheduled run in the same number format: the first
+                scheduling variable held at its lowest breakpoint for 3 T,
+                ramped to its highest over 10 T, held 3 T (other variables at
+                the middle of their range); unit reference step at 0 s; one
+                load step of 0.1 * max(|u_min|, |u_max|) at the middle of the
+                ramp.  T = largest designed 2 % settling time (at least 20
+                sample periods; at most 100000 samples in all).  Passes when
+                stable; overshoot, settling and load recovery are logged.
+  6. log        DIR/verification.json, DIR/verification.md and PNG plots
+All files are written together at the end: a run that stops with an error
+leaves DIR as it was.  Files in DIR that gainloom did not write are never
+overwritten without --force.  A failing design still writes every file; the
+verdict is in the summary and verification.md, not in the C.
+
+exit status: 0 every stage passes (a stage 'not checked' is reported, not
+counted as a failure); 1 some spec fails (design, between points,
+tolerances, quantisation, C check, simulation unstable); 2 bad input.
+"""
 
 #: Printed at the end of every design run.
 SAFETY_CAUTION = (
@@ -21,11 +57,29 @@ SAFETY_CAUTION = (
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Register the command's options."""
+    parser.formatter_class = argparse.RawDescriptionHelpFormatter
+    parser.epilog = _EPILOG
     parser.add_argument("schedule", metavar="SCHEDULE", help="schedule file (YAML)")
-    parser.add_argument("--out", metavar="DIR", required=True, help="directory for the gains file")
+    parser.add_argument("--out", metavar="DIR", required=True, help="output folder (created if missing)")
     parser.add_argument(
         "--gains-name", metavar="NAME", default="gains.yaml",
         help="file name of the gains file in DIR (.yaml or .json; default gains.yaml)",
+    )
+    parser.add_argument(
+        "--format", dest="number_format", choices=NUMBER_FORMATS, default=None,
+        help="number format of the C, the quantisation re-check and the simulation "
+        "(default: the schedule's codegen.format)",
+    )
+    parser.add_argument(
+        "--prefix", default=None,
+        help="start of every C identifier and of the C file names (default: the schedule's codegen.prefix)",
+    )
+    parser.add_argument(
+        "--force", action="store_true", help="overwrite files in DIR that gainloom did not write or that were edited"
+    )
+    parser.add_argument("--no-simulate", action="store_true", help="skip the default scheduled simulation")
+    parser.add_argument(
+        "--no-compile", action="store_true", help="skip compiling and checking the C (reported as not checked)"
     )
     parser.add_argument("--json", action="store_true", help="print the summary as JSON instead of a table")
     parser.add_argument("--quiet", action="store_true", help="no progress display on stderr")
@@ -96,10 +150,16 @@ def print_table_report(report, stream) -> None:
         print(f"inserted breakpoint {entry['axis']} = {format_number(entry['value'])}", file=stream)
 
 
+def print_stages(job, stream) -> None:
+    """One line per stage of the full run: verdict and why."""
+    width = max(len(stage.stage) for stage in job.stages)
+    for stage in job.stages:
+        print(f"{stage.stage:<{width}}  {stage.status:<11}  {stage.detail}", file=stream)
+
+
 def run(args: argparse.Namespace) -> int:
-    """Design, write the gains file, print the summary and the caution."""
-    from ..design.engine import design
-    from ..design.gainsfile import write_gains
+    """Run the whole job, print the summary and the caution."""
+    from ..report.run import run_design_job
 
     out = Path(args.out)
     if out.exists() and not out.is_dir():
@@ -107,17 +167,35 @@ def run(args: argparse.Namespace) -> int:
     name = Path(args.gains_name)
     if name.name != args.gains_name or name.suffix.lower() not in (".yaml", ".yml", ".json"):
         raise InputError(f"--gains-name must be a plain file name ending .yaml, .yml or .json; got {args.gains_name!r}")
-    result = design(args.schedule, progress=Counter(enabled=not args.quiet))
-    out.mkdir(parents=True, exist_ok=True)
-    path = write_gains(result, out / name)
+    job = run_design_job(
+        args.schedule,
+        out,
+        number_format=args.number_format,
+        prefix=args.prefix,
+        force=args.force,
+        compile=not args.no_compile,
+        simulate=not args.no_simulate,
+        progress=Counter(enabled=not args.quiet),
+        gains_name=args.gains_name,
+    )
+    result = job.design
     if args.json:
         print_json({
-            "passed": result.passed,
-            "gains_file": str(path),
+            "passed": job.passed,
+            "design_passed": result.passed,
+            "gains_file": str(job.gains_path),
+            "c_files": [str(p) for p in job.c_files],
+            "files": [str(p) for p in job.files],
+            "number_format": job.number_format,
+            "prefix": job.prefix,
+            "stages": [{"stage": s.stage, "status": s.status, "detail": s.detail} for s in job.stages],
+            "not_checked": list(job.not_checked),
             "status": list(result.status),
             "binding": list(result.binding),
             "notes": [list(n) for n in result.notes],
             "table_checks": result.table_report.as_document(),
+            "c_check": None if job.harness is None else job.harness.summary(),
+            "simulation_scenario": job.scenario,
             "warnings": list(result.warnings),
         })
     else:
@@ -131,9 +209,19 @@ def run(args: argparse.Namespace) -> int:
         for warning in result.warnings:
             print(f"warning: {warning}")
         failed = sum(s == "fail" for s in result.status)
-        verdict = "PASS" if result.passed else "FAIL"
-        print(f"{verdict}: {len(result.status) - failed}/{len(result.status)} points meet every spec; "
+        print(f"design: {len(result.status) - failed}/{len(result.status)} points meet every spec; "
               f"whole-table checks {'pass' if result.table_report.passed else 'fail'}")
-        print(f"gains file: {path}")
+        print()
+        print_stages(job, sys.stdout)
+        print()
+        failing = [s.stage for s in job.stages if s.failed]
+        verdict = "PASS" if job.passed else "FAIL: " + ", ".join(failing)
+        unchecked = f" (not checked: {', '.join(job.not_checked)})" if job.not_checked else ""
+        print(f"{verdict}{unchecked}; the verdict and its reasons are in verification.md")
+        print(f"output folder: {job.out_dir}")
+        print(f"  gains file: {job.gains_path}")
+        print(f"  C: {', '.join(str(p) for p in job.c_files)}")
+        print(f"  log: {job.out_dir / 'verification.md'} (verification.json, "
+              f"{sum(p.suffix == '.png' for p in job.files)} PNG plots)")
     print(SAFETY_CAUTION, file=sys.stderr if args.json else sys.stdout)
-    return result.exit_code
+    return job.exit_code

@@ -22,7 +22,7 @@ from ..errors import ScheduleError
 from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
 from .table import GainTable, TableAxis
 
-__all__ = ["GAINS_FORMAT", "write_gains", "read_gains", "gains_document", "GainsMetadata"]
+__all__ = ["GAINS_FORMAT", "render_gains", "write_gains", "read_gains", "gains_document", "GainsMetadata"]
 
 #: Format tag of the gains file.
 GAINS_FORMAT = "gainloom-gains/1"
@@ -151,6 +151,46 @@ def _json_safe(value: Any) -> Any:
     return value
 
 
+def render_gains(result: Any, name: str | Path = "gains.yaml") -> str:
+    """The text of a gains file, without writing it.
+
+    Parameters
+    ----------
+    result : DesignResult or GainTable
+        What to write; a DesignResult adds the per-point analysis.
+    name : str or Path
+        File name (or path) the text is meant for: a ``.json`` suffix gives
+        JSON, anything else YAML.
+
+    Returns
+    -------
+    str
+        The complete file text (UTF-8 when written).
+
+    Notes
+    -----
+    The schedule is recorded by its file name and SHA-256 only, never by the
+    folder it was read from, so the same schedule bytes give the same gains
+    file wherever the schedule and the output folder are.
+    """
+    if not isinstance(result, GainTable) and hasattr(result, "as_document") and hasattr(result, "strategy"):
+        doc = gains_document(
+            result.table,
+            schedule_path=Path(str(result.schedule_path)).name,
+            schedule_sha256=result.schedule_sha256,
+            design=result.strategy,
+            body=result.as_document(),
+        )
+    elif isinstance(result, GainTable):
+        doc = gains_document(result)
+    else:
+        raise TypeError(f"write_gains takes a DesignResult or GainTable; got {type(result).__name__}")
+    doc = _plain(doc)
+    if Path(name).suffix.lower() == ".json":
+        return json.dumps(_json_safe(doc), indent=2, allow_nan=False) + "\n"
+    return yaml.dump(doc, Dumper=_Dumper, sort_keys=False, allow_unicode=True, width=100)
+
+
 def write_gains(result: Any, path: str | Path) -> Path:
     """Write a design result (or a bare GainTable) as a gains file.
 
@@ -167,23 +207,7 @@ def write_gains(result: Any, path: str | Path) -> Path:
         The file written.
     """
     path = Path(path)
-    if not isinstance(result, GainTable) and hasattr(result, "as_document") and hasattr(result, "strategy"):
-        doc = gains_document(
-            result.table,
-            schedule_path=result.schedule_path,
-            schedule_sha256=result.schedule_sha256,
-            design=result.strategy,
-            body=result.as_document(),
-        )
-    elif isinstance(result, GainTable):
-        doc = gains_document(result)
-    else:
-        raise TypeError(f"write_gains takes a DesignResult or GainTable; got {type(result).__name__}")
-    doc = _plain(doc)
-    if path.suffix.lower() == ".json":
-        text = json.dumps(_json_safe(doc), indent=2, allow_nan=False) + "\n"
-    else:
-        text = yaml.dump(doc, Dumper=_Dumper, sort_keys=False, allow_unicode=True, width=100)
+    text = render_gains(result, path)
     path.write_text(text, encoding="utf-8")
     return path
 

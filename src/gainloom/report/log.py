@@ -40,6 +40,21 @@ def _open_loop(schedule: Any, result: Any, table: Any):
     return open_loop(plant, table.structure, coefficients)
 
 
+#: File name of the simulation figure in the log folder.
+_SIMULATION_PLOT = "simulation.png"
+
+
+def _simulation_png(simulation: Any) -> bytes:
+    """The simulation layer's figure of a run, as PNG bytes."""
+    import tempfile
+
+    from ..simulation.plots import write_plots
+
+    with tempfile.TemporaryDirectory(prefix="gainloom-plot-") as tmp:
+        (path,) = write_plots(simulation, tmp)
+        return Path(path).read_bytes()
+
+
 def render_verification(
     *,
     schedule: Any,
@@ -95,6 +110,9 @@ def render_verification(
             name = f"locus_{index}.png"
             images[name] = drawing.plot_locus_point(loop, index, points[index], role)
             names.append(name)
+        if simulation is not None:
+            images[_SIMULATION_PLOT] = _simulation_png(simulation)
+            names.append(_SIMULATION_PLOT)
         draft["plots"] = list(names)
     text = json.dumps(draft, indent=2, sort_keys=True, ensure_ascii=False, allow_nan=False) + "\n"
     files: dict[str, str | bytes] = {JSON_NAME: text, MARKDOWN_NAME: render_markdown(draft)}

@@ -106,7 +106,10 @@ def _inputs(doc: dict[str, Any]) -> list[str]:
     )
     if doc["options"]:
         lines.append("")
-        lines.append("Options: " + ", ".join(f"`{k}` = {v}" for k, v in sorted(doc["options"].items())) + ".")
+        # nested options (e.g. the simulation scenario) are shown where they are used
+        lines.append("Options: " + ", ".join(
+            f"`{k}` = {'(see verification.json)' if isinstance(v, dict) else v}"
+            for k, v in sorted(doc["options"].items())) + ".")
     if "timestamp" in doc:
         lines += ["", f"Written {doc['timestamp']}."]
     return lines + [""]
@@ -220,6 +223,9 @@ def _c_check(doc: dict[str, Any]) -> list[str]:
     lines = ["## Generated C", ""]
     if c is None:
         return lines + ["Not checked in this run.", ""]
+    if c["status"] == "no-compiler":
+        return lines + ["Not checked: no C compiler found. This is neither a pass nor a failure: compile the "
+                        "generated C with your firmware toolchain before use.", ""]
     lines.append(f"Status **{c['status']}**: {c['message']}")
     lines.append("")
     if c["compiler"] is not None:
@@ -243,6 +249,43 @@ def _simulation(doc: dict[str, Any]) -> list[str]:
     lines.append(f"**{word}**: {s['structure']} controller in {s['number_format']}, {s['samples']} samples, "
                  f"{'stable' if s['stable'] else 'UNSTABLE'}.")
     lines.append("")
+    metrics = s.get("metrics") or {}
+    if metrics:
+        rows = [["tracking error RMS / max", f"{number(metrics['rms_error'])} / {number(metrics['max_error'])}"]]
+        if metrics.get("step_time") is not None:
+            settling = metrics["settling_time"]
+            rows.append([f"reference step of {number(metrics['step_size'])} at {number(metrics['step_time'])} s",
+                         f"overshoot {number(metrics['overshoot_percent'])} %, settling "
+                         + ("not settled" if settling is None else f"{number(settling)} s")])
+        for load in metrics.get("load_responses", []):
+            recovery = load["recovery_time"]
+            rows.append([f"load step of {number(load['amplitude'])} at {number(load['time'])} s",
+                         f"peak deviation {number(load['peak_deviation'])}, recovery "
+                         + ("not recovered" if recovery is None else f"{number(recovery)} s")])
+        rows.append(["time in saturation", f"{number(metrics['saturation_time'])} s "
+                     f"({number(None if metrics['saturation_fraction'] is None else 100 * metrics['saturation_fraction'])} "
+                     "% of the run)"])
+        instability = metrics.get("instability") or {}
+        if instability:
+            rows.append(["stability", ("UNSTABLE (" + str(instability["kind"]) + "): " if instability["detected"]
+                                       else "ok: ") + str(instability["detail"])])
+        lines += _table(["measured", "value"], rows)
+    scenario = (doc.get("options") or {}).get("simulation_scenario")
+    if isinstance(scenario, dict) and scenario.get("kind") == "default":
+        ramp, load = scenario["ramp"], scenario["load_step"]
+        held = ", ".join(f"{k} = {number(v)}" for k, v in scenario["held"].items())
+        lines += [
+            f"Default scenario (time scale T = {number(scenario['time_scale_s'])} s: "
+            f"{scenario['time_scale_basis']}): {ramp['variable']} held at {number(ramp['from'])} until "
+            f"{number(ramp['start_s'])} s, ramped to {number(ramp['to'])} by {number(ramp['end_s'])} s, then held"
+            + (f"; {held} held" if held else "")
+            + "; unit reference step at 0 s; "
+            + (f"load step of {number(load['amplitude'])} at {number(load['time_s'])} s; " if load["amplitude"]
+               else "no load step; ")
+            + f"{number(scenario['duration_s'])} s in all. Passes when {scenario['pass_rule']}.",
+            "",
+        ]
+        lines += [f"- note: {n}" for n in scenario.get("notes", [])] + ([""] if scenario.get("notes") else [])
     if s["checks"]:
         lines += _table(["scenario spec", "limit", "value", "result"],
                         [[c["name"], number(c["limit"]), number(c["value"]), "pass" if c["passed"] else "FAIL"]

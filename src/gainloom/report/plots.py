@@ -236,7 +236,8 @@ def _y_axis(ax: Any, log: bool) -> None:
         ax.yaxis.set_minor_formatter(NullFormatter())
         return
     ax.ticklabel_format(axis="y", useOffset=False, style="plain")
-    middle, span = 0.5 * (low + high), high - low
+    with np.errstate(over="ignore", invalid="ignore"):  # data limits of a diverged response may be infinite
+        middle, span = 0.5 * (low + high), high - low
     if np.isfinite(span) and span < 0.02 * abs(middle):
         half = 0.05 * abs(middle)
         ax.set_ylim(middle - half, middle + half)

@@ -157,8 +157,9 @@ class TableController:
             return float(u), float(v)
         fmt = self.layout.fmt
         if not fmt.is_fixed:
-            error = np.float32(reference) - np.float32(measured)
             with np.errstate(over="ignore", invalid="ignore"):
+                # a diverging run passes float32's range before it is stopped
+                error = np.float32(reference) - np.float32(measured)
                 u, v = self.stepper.step(k, error)
             return float(u), float(v)
         code = int(quantize((reference - measured) / self.layout.error_full_scale, fmt.signal_frac, fmt.bits))

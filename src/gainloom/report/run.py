@@ -1,0 +1,491 @@
+"""The whole job in one call: schedule file in, checked output folder out.
+
+:func:`run_design_job` is what ``gainloom design SCHEDULE --out DIR`` runs:
+
+1. load the schedule and design the gain table (the gains file);
+2. render the C header and source in the emitted number format;
+3. compile them and run the host harness against the Python mirror, when a
+   C compiler is present (none found: "not checked", neither pass nor fail);
+4. verify the table again after rounding to that number format;
+5. run a default scheduled simulation (:func:`default_scenario`) in that
+   number format;
+6. render the verification log (JSON, Markdown, PNGs);
+
+and only then write every file in **one** :func:`gainloom.outputs.write_outputs`
+call.  Anything that goes wrong before the write (bad input, a file in the
+way that gainloom did not write) leaves the output folder exactly as it was.
+
+A design that fails a spec still writes everything: the gains file records
+``passed: false``, the log names the binding spec at every failed point, and
+the C is exactly what ``gainloom emit`` would make of the same gains file.
+The C banner never carries the verdict (it depends only on the table and
+the generation options, so the C of a table does not change when, say, a
+simulation setting changes): read the verdict in ``verification.md``.
+
+This module sits in ``report/`` because it is the last layer and may use all
+the others; the CLI only parses arguments and prints.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..errors import InputError
+from ..names import NUMBER_FORMATS, unknown_name_message
+from ..outputs import write_outputs
+
+__all__ = [
+    "JobResult",
+    "StageVerdict",
+    "run_design_job",
+    "default_scenario",
+    "SIMULATION_SPAN",
+    "SIMULATION_MAX_SAMPLES",
+    "LOAD_STEP_FRACTION",
+]
+
+Progress = Callable[[str, int, int], None]
+
+#: Default simulation timeline in units of the loop's time scale ``T``:
+#: hold (reference step settles), ramp of the first variable, hold at its top.
+#: The load step hits in the middle of the ramp.
+SIMULATION_SPAN: dict[str, float] = {"hold": 3.0, "ramp": 10.0, "tail": 3.0}
+
+#: Upper bound on the samples of the default simulation (the run is shortened
+#: to fit and a note says so).
+SIMULATION_MAX_SAMPLES = 100_000
+
+#: Load step of the default simulation, as a fraction of the larger output
+#: limit (common practice for a representative disturbance, no source).
+LOAD_STEP_FRACTION = 0.1
+
+#: Shortest time scale, in sample periods (a window needs enough samples).
+_MIN_SCALE_SAMPLES = 20.0
+
+
+@dataclass(frozen=True)
+class StageVerdict:
+    """Outcome of one stage of the job.
+
+    Parameters
+    ----------
+    stage : str
+        ``design``, ``C code``, ``C check``, ``quantisation``, ``simulation``
+        or ``log``.
+    status : str
+        ``pass``, ``FAIL``, ``not checked`` or ``written``.
+    detail : str
+        One line saying why.
+    """
+
+    stage: str
+    status: str
+    detail: str
+
+    @property
+    def failed(self) -> bool:
+        """True when this stage fails the run."""
+        return self.status == "FAIL"
+
+
+@dataclass(frozen=True, eq=False)
+class JobResult:
+    """What :func:`run_design_job` returns.
+
+    Attributes
+    ----------
+    out_dir : Path
+        The output folder.
+    files : tuple of Path
+        Every file written, in the order written.
+    gains_path : Path
+        The gains file.
+    c_files : tuple of Path
+        ``<prefix>.h`` and ``<prefix>.c``.
+    number_format, prefix : str
+        Of the emitted C.
+    schedule : Schedule
+    design : DesignResult
+    harness : HarnessResult or None
+        None when the C check was not asked for.
+    quantisation : QuantisationResult
+    simulation : SimulationResult or None
+        None when the simulation was skipped.
+    scenario : dict or None
+        The default scenario as run, with how it was derived.
+    stages : tuple of StageVerdict
+        One per stage, in order.
+    """
+
+    out_dir: Path
+    files: tuple[Path, ...]
+    gains_path: Path
+    c_files: tuple[Path, ...]
+    number_format: str
+    prefix: str
+    schedule: Any
+    design: Any
+    harness: Any
+    quantisation: Any
+    simulation: Any
+    scenario: dict[str, Any] | None
+    stages: tuple[StageVerdict, ...]
+
+    @property
+    def passed(self) -> bool:
+        """True when no stage failed ("not checked" stages do not count as a pass; see ``not_checked``)."""
+        return not any(s.failed for s in self.stages)
+
+    @property
+    def not_checked(self) -> tuple[str, ...]:
+        """Stages that did not run or could not check anything."""
+        return tuple(s.stage for s in self.stages if s.status == "not checked")
+
+    @property
+    def exit_code(self) -> int:
+        """CLI exit code: 0 every stage passes (or was not checked), 1 some spec fails."""
+        return 0 if self.passed else 1
+
+
+def _time_scale(result: Any) -> tuple[float, str]:
+    """The loop's slowest time scale in seconds, and where it came from."""
+    analysis = result.analysis
+    periods = np.asarray(result.table.sample_period, dtype=float)
+    floor = _MIN_SCALE_SAMPLES * float(np.max(periods))
+    settling = np.asarray(analysis.settling_time, dtype=float)
+    settling = settling[np.isfinite(settling) & (settling > 0)]
+    if settling.size:
+        scale, basis = float(np.max(settling)), "largest designed 2 % settling time over the grid points"
+    else:
+        decay = np.asarray(analysis.decay, dtype=float)
+        decay = decay[np.isfinite(decay) & (decay > 0)]
+        if decay.size:
+            # 2 % of a first-order decay: ln(50) ~ 3.9 time constants (closed form)
+            scale, basis = 4.0 / float(np.min(decay)), "4 / smallest closed-loop decay rate (no finite settling time)"
+        else:
+            scale, basis = 50.0 * floor, "1000 sample periods (no stable grid point to take a time scale from)"
+    if scale < floor:
+        scale, basis = floor, f"{_MIN_SCALE_SAMPLES:g} sample periods (the designed settling time is shorter)"
+    return scale, basis
+
+
+def default_scenario(schedule: Any, result: Any) -> tuple[Any, dict[str, Any]]:
+    """The scheduled simulation the full run does when none is given.
+
+    With ``T`` the loop's time scale (the largest designed 2 % settling time
+    over the grid points, at least 20 sample periods):
+
+    - the first scheduling variable is held at its lowest breakpoint for
+      ``3 T``, ramps linearly to its highest over ``10 T`` (slow against the
+      loop, so the run sees the table the way a slowly changing operating
+      point does), and is held there for ``3 T``; further variables are held
+      at the middle of their ranges;
+    - the reference is a unit step (1 output unit) at ``t = 0``;
+    - one load step of ``0.1 * max(|u_min|, |u_max|)`` (controller-output
+      units, at the plant input) hits in the middle of the ramp;
+    - no scenario limits: the run passes when it is stable (no divergence,
+      geometric growth or saturated oscillation); overshoot, settling, load
+      recovery and saturation are measured and logged.
+
+    The run is capped at :data:`SIMULATION_MAX_SAMPLES` samples at the
+    shortest sample period (``T`` is reduced to fit, with a note).
+
+    Parameters
+    ----------
+    schedule : Schedule
+        The loaded schedule.
+    result : DesignResult
+        Its design (for the time scale and the output limits).
+
+    Returns
+    -------
+    scenario : Scenario
+    description : dict
+        Plain data: the time scale and its basis, the timeline, notes.
+    """
+    from ..simulation import LoadStep, PiecewiseLinear, Scenario
+
+    scale, basis = _time_scale(result)
+    span = SIMULATION_SPAN
+    total = sum(span.values())
+    shortest = float(np.min(np.asarray(result.table.sample_period, dtype=float)))
+    notes = []
+    if total * scale / shortest > SIMULATION_MAX_SAMPLES:
+        limited = SIMULATION_MAX_SAMPLES * shortest / total
+        notes.append(
+            f"time scale {scale:.6g} s shortened to {limited:.6g} s to keep the run within "
+            f"{SIMULATION_MAX_SAMPLES} samples; the ramp is faster against the loop than intended"
+        )
+        scale = limited
+    ramp_start = span["hold"] * scale
+    ramp_end = ramp_start + span["ramp"] * scale
+    duration = total * scale
+    axes = list(schedule.axes)
+    first = axes[0]
+    low, high = float(np.min(first.values)), float(np.max(first.values))
+    trajectory: dict[str, Any] = {first.name: PiecewiseLinear.ramp(low, high, ramp_start, ramp_end)}
+    held = {}
+    for axis in axes[1:]:
+        middle = 0.5 * (float(np.min(axis.values)) + float(np.max(axis.values)))
+        trajectory[axis.name] = middle
+        held[axis.name] = middle
+    limits = result.table.output_limits
+    amplitude = LOAD_STEP_FRACTION * max(abs(float(limits[0])), abs(float(limits[1])))
+    load_time = 0.5 * (ramp_start + ramp_end)
+    if not (np.isfinite(amplitude) and amplitude > 0):
+        notes.append(f"no load step: output limits {list(limits)} give no finite, positive size for it")
+        amplitude = 0.0
+    scenario = Scenario(
+        duration=duration,
+        trajectory=trajectory,
+        reference=PiecewiseLinear.step(1.0),
+        load_steps=(LoadStep(load_time, amplitude),) if amplitude > 0 else (),
+    )
+    description = {
+        "kind": "default",
+        "time_scale_s": scale,
+        "time_scale_basis": basis,
+        "ramp": {"variable": first.name, "from": low, "to": high, "start_s": ramp_start, "end_s": ramp_end},
+        "held": held,
+        "reference_step": 1.0,
+        "load_step": {"time_s": load_time, "amplitude": amplitude},
+        "duration_s": duration,
+        "pass_rule": "stable (no divergence, growth or saturated oscillation); no scenario limits",
+        "notes": notes,
+    }
+    return scenario, description
+
+
+def _design_stage(result: Any) -> StageVerdict:
+    failed = [p for p, s in enumerate(result.status) if s != "pass"]
+    if not failed and result.table_report.passed:
+        return StageVerdict("design", "pass", f"{len(result.status)}/{len(result.status)} points meet every spec; "
+                            "whole-table checks pass")
+    parts = []
+    if failed:
+        binding: dict[str, int] = {}
+        for p in failed:
+            name = result.binding[p] or (result.analysis.failed_specs(p) or ["?"])[0]
+            binding[name] = binding.get(name, 0) + 1
+        named = ", ".join(f"{name} at {count} point(s)" for name, count in sorted(binding.items()))
+        parts.append(f"{len(failed)}/{len(result.status)} points fail (binding spec: {named})")
+    report = result.table_report
+    if report.between:
+        parts.append(f"{len(report.between)} between-point check(s) fail")
+    if report.tolerances:
+        parts.append(f"{len(report.tolerances)} point(s) fail at a tolerance corner")
+    if report.smoothness:
+        parts.append(f"{len(report.smoothness)} smoothness violation(s)")
+    if report.monotone:
+        parts.append(f"{len(report.monotone)} monotonicity violation(s)")
+    return StageVerdict("design", "FAIL", "; ".join(parts))
+
+
+def _harness_stage(harness: Any) -> StageVerdict:
+    if harness is None:
+        return StageVerdict("C check", "not checked",
+                            "not checked: compile-and-harness check skipped on request (--no-compile)")
+    if harness.status == "no-compiler":
+        return StageVerdict("C check", "not checked", "not checked: no C compiler found")
+    if harness.passed:
+        return StageVerdict("C check", "pass", f"{harness.compiler_version}: {harness.message}")
+    return StageVerdict("C check", "FAIL", f"{harness.compiler_version}: {harness.message}")
+
+
+def _quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
+    if quantisation.passed:
+        return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec")
+    broken = quantisation.broken
+    shown = "; ".join(f"{b['spec']} at {b['point']} ({b['where']})" for b in broken[:3])
+    more = f" and {len(broken) - 3} more" if len(broken) > 3 else ""
+    return StageVerdict("quantisation", "FAIL", f"rounding to {number_format} breaks {shown}{more}")
+
+
+def _simulation_stage(simulation: Any) -> StageVerdict:
+    if simulation is None:
+        return StageVerdict("simulation", "not checked", "not checked: skipped on request (--no-simulate)")
+    m = simulation.metrics
+    if simulation.stable:
+        overshoot = "-" if m.overshoot is None else f"{m.overshoot:.3g} %"
+        return StageVerdict("simulation", "pass" if simulation.passed else "FAIL",
+                            f"stable over {simulation.time.size} samples; step overshoot {overshoot}, "
+                            f"saturated {100 * m.saturation_fraction:.3g} % of the run")
+    return StageVerdict("simulation", "FAIL", f"unstable ({m.instability.kind}): {m.instability.detail}")
+
+
+def _resolve_format(schedule: Any, number_format: str | None) -> str:
+    fmt = number_format or schedule.codegen.format
+    if fmt not in NUMBER_FORMATS:
+        raise InputError(unknown_name_message("number format", fmt, NUMBER_FORMATS))
+    return fmt
+
+
+def run_design_job(
+    schedule_path: str | os.PathLike,
+    out_dir: str | os.PathLike,
+    *,
+    number_format: str | None = None,
+    prefix: str | None = None,
+    force: bool = False,
+    compile: bool = True,
+    simulate: bool = True,
+    progress: Progress | None = None,
+    gains_name: str = "gains.yaml",
+) -> JobResult:
+    """Design, emit, check and log a schedule into one output folder.
+
+    Parameters
+    ----------
+    schedule_path : path
+        The schedule file (YAML).
+    out_dir : path
+        Output folder (created if missing).  Written once, at the end.
+    number_format : str, optional
+        ``float32``, ``q15`` or ``q31``; default the schedule's
+        ``codegen.format``.  The C, the quantisation re-check and the
+        simulation all use it (fixed point: the default full-scale values of
+        docs/codegen.md).
+    prefix : str, optional
+        C identifier and file-name prefix; default ``codegen.prefix``.
+    force : bool
+        Overwrite files in ``out_dir`` that gainloom did not write or that
+        were edited since.
+    compile : bool
+        Compile the C and run the host harness (when a compiler exists).
+    simulate : bool
+        Run the default scheduled simulation (:func:`default_scenario`).
+    progress : callable, optional
+        ``progress(stage, done, total)`` for a display.
+    gains_name : str
+        File name of the gains file (``.yaml``, ``.yml`` or ``.json``).
+
+    Returns
+    -------
+    JobResult
+
+    Raises
+    ------
+    GainloomError
+        Bad schedule or options (:class:`~gainloom.errors.ScheduleError`,
+        :class:`~gainloom.errors.InputError`), a table the number format
+        cannot hold (:class:`~gainloom.errors.CodegenError`), or a file in
+        the way (:class:`~gainloom.outputs.OutputConflictError`).  Nothing is
+        written then.
+    """
+    from ..c_names import validate_prefix
+    from ..codegen.emit import render_files
+    from ..codegen.harness import check_generated_c
+    from ..codegen.quantisation import check_quantisation
+    from ..design.engine import design
+    from ..design.gainsfile import render_gains
+    from ..outputs import sha256_bytes
+    from ..schedule import load_schedule
+    from ..simulation import run_scenario
+    from .log import render_verification
+
+    def step(stage: str, done: int, total: int = 1) -> None:
+        if progress is not None:
+            progress(stage, done, total)
+
+    name = Path(gains_name)
+    if name.name != gains_name or name.suffix.lower() not in (".yaml", ".yml", ".json"):
+        raise InputError(f"gains file name must be a plain file name ending .yaml, .yml or .json; got {gains_name!r}")
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise InputError(f"the output folder {out} exists and is not a folder")
+    schedule = load_schedule(schedule_path)
+    number_format = _resolve_format(schedule, number_format)
+    prefix = prefix or schedule.codegen.prefix
+    validate_prefix(prefix)  # before the design: a bad prefix is bad input, found at once
+
+    result = design(schedule, progress=progress)
+    gains_text = render_gains(result, gains_name)
+    gains_sha256 = sha256_bytes(gains_text.encode("utf-8"))
+
+    step("emit C", 0)
+    c_texts = render_files(result.table, number_format, prefix, str(result.schedule_sha256),
+                           {"gains_file": gains_name, "gains_sha256": gains_sha256})
+    step("emit C", 1)
+
+    with tempfile.TemporaryDirectory(prefix="gainloom-job-") as tmp:
+        # A staging copy: the harness compiles files, and the log hashes the
+        # gains file by path.  The output folder itself is written only once.
+        stage = Path(tmp)
+        (stage / gains_name).write_text(gains_text, encoding="utf-8")
+        for file_name, text in c_texts.items():
+            (stage / file_name).write_text(text, encoding="utf-8")
+        harness = None
+        if compile:
+            step("check C", 0)
+            harness = check_generated_c([stage / n for n in c_texts], result.table)
+            step("check C", 1)
+
+        step("quantisation", 0)
+        quantisation = check_quantisation(schedule, result.table, number_format)
+        step("quantisation", 1)
+
+        simulation = description = None
+        if simulate:
+            step("simulate", 0)
+            scenario, description = default_scenario(schedule, result)
+            simulation = run_scenario(schedule, result.table, scenario, number_format)
+            step("simulate", 1)
+
+        step("log", 0)
+        options = {
+            "number_format": number_format,
+            "prefix": prefix,
+            "c_files": sorted(c_texts),
+            "gains_file": gains_name,
+            "compile": bool(compile),
+            "simulate": bool(simulate),
+        }
+        if description is not None:
+            options["simulation_scenario"] = description
+        log_files = render_verification(
+            schedule=schedule, result=result, table=result.table, gains_path=stage / gains_name,
+            harness=harness, quantisation=quantisation, simulation=simulation, options=options, plots=True,
+        )
+        step("log", 1)
+
+    files: dict[str, str | bytes] = {gains_name: gains_text}
+    files.update(c_texts)
+    clash = sorted(set(files) & set(log_files))
+    if clash:
+        raise InputError(f"file name(s) {', '.join(clash)} would be written twice; choose another prefix or gains name")
+    files.update(log_files)
+    step("write", 0)
+    written = write_outputs(out, files, force=force)
+    step("write", 1)
+
+    stages = (
+        _design_stage(result),
+        StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix})"),
+        _harness_stage(harness),
+        _quantisation_stage(quantisation, number_format),
+        _simulation_stage(simulation),
+        StageVerdict("log", "written", ", ".join(sorted(log_files))),
+    )
+    return JobResult(
+        out_dir=out,
+        files=tuple(written),
+        gains_path=out / gains_name,
+        c_files=tuple(out / n for n in c_texts),
+        number_format=number_format,
+        prefix=prefix,
+        schedule=schedule,
+        design=result,
+        harness=harness,
+        quantisation=quantisation,
+        simulation=simulation,
+        scenario=description,
+        stages=stages,
+    )
+
