@@ -409,9 +409,15 @@ def run_design_job(
     gains_text = render_gains(result, gains_name)
     gains_sha256 = sha256_bytes(gains_text.encode("utf-8"))
 
+    # Physical full scales of the fixed-point error and output (codegen
+    # section); every stage that rounds uses the same ones.
+    scales = {
+        "error_full_scale": schedule.codegen.error_full_scale,
+        "output_full_scale": schedule.codegen.output_full_scale,
+    }
     step("emit C", 0)
     c_texts = render_files(result.table, number_format, prefix, str(result.schedule_sha256),
-                           {"gains_file": gains_name, "gains_sha256": gains_sha256})
+                           {"gains_file": gains_name, "gains_sha256": gains_sha256}, **scales)
     step("emit C", 1)
 
     with tempfile.TemporaryDirectory(prefix="gainloom-job-") as tmp:
@@ -424,18 +430,18 @@ def run_design_job(
         harness = None
         if compile:
             step("check C", 0)
-            harness = check_generated_c([stage / n for n in c_texts], result.table)
+            harness = check_generated_c([stage / n for n in c_texts], result.table, **scales)
             step("check C", 1)
 
         step("quantisation", 0)
-        quantisation = check_quantisation(schedule, result.table, number_format)
+        quantisation = check_quantisation(schedule, result.table, number_format, **scales)
         step("quantisation", 1)
 
         simulation = description = None
         if simulate:
             step("simulate", 0)
             scenario, description = default_scenario(schedule, result)
-            simulation = run_scenario(schedule, result.table, scenario, number_format)
+            simulation = run_scenario(schedule, result.table, scenario, number_format, **scales)
             step("simulate", 1)
 
         step("log", 0)
@@ -446,6 +452,7 @@ def run_design_job(
             "gains_file": gains_name,
             "compile": bool(compile),
             "simulate": bool(simulate),
+            **{key: value for key, value in scales.items() if value is not None},
         }
         if description is not None:
             options["simulation_scenario"] = description
