@@ -8,36 +8,14 @@ import sys
 from collections.abc import Sequence
 from typing import Any, TextIO
 
-import numpy as np
+from ..plain import to_plain
 
-__all__ = ["to_jsonable", "print_json", "format_table", "format_number"]
-
-
-def to_jsonable(value: Any) -> Any:
-    """Convert numpy scalars/arrays, tuples and complex numbers to plain JSON types.
-
-    Complex numbers become ``[re, im]``; non-finite floats become ``None`` so
-    the output is strict JSON.
-    """
-    if isinstance(value, dict):
-        return {str(k): to_jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [to_jsonable(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return to_jsonable(value.tolist())
-    if isinstance(value, (complex, np.complexfloating)):
-        return [to_jsonable(float(value.real)), to_jsonable(float(value.imag))]
-    if isinstance(value, (np.integer,)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        value = float(value)
-        return value if math.isfinite(value) else None
-    return value
+__all__ = ["print_json", "format_table", "format_number"]
 
 
 def print_json(value: Any, stream: TextIO | None = None) -> None:
     """Print ``value`` as sorted, indented strict JSON."""
-    json.dump(to_jsonable(value), stream or sys.stdout, indent=2, sort_keys=True, allow_nan=False)
+    json.dump(to_plain(value, "null"), stream or sys.stdout, indent=2, sort_keys=True, allow_nan=False)
     (stream or sys.stdout).write("\n")
 
 

@@ -20,6 +20,7 @@ import yaml
 
 from ..errors import ScheduleError
 from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
+from ..plain import to_plain
 from .table import GainTable, TableAxis
 
 __all__ = ["GAINS_FORMAT", "render_gains", "write_gains", "read_gains", "gains_document", "GainsMetadata"]
@@ -121,36 +122,6 @@ _Dumper.add_representer(list, _represent_list)
 _Dumper.add_representer(float, _represent_float)
 
 
-def _plain(value: Any) -> Any:
-    """numpy scalars and tuples to plain Python (floats stay floats)."""
-    if isinstance(value, dict):
-        return {str(k): _plain(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_plain(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return _plain(value.tolist())
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, np.integer):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        return float(value)
-    if isinstance(value, (complex, np.complexfloating)):
-        return [float(value.real), float(value.imag)]
-    return value
-
-
-def _json_safe(value: Any) -> Any:
-    if isinstance(value, dict):
-        return {k: _json_safe(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_json_safe(v) for v in value]
-    if isinstance(value, float) and not math.isfinite(value):
-        # JSON has no inf/nan: written as strings, read back as floats.
-        return "nan" if math.isnan(value) else ("inf" if value > 0 else "-inf")
-    return value
-
-
 def render_gains(result: Any, name: str | Path = "gains.yaml") -> str:
     """The text of a gains file, without writing it.
 
@@ -185,9 +156,10 @@ def render_gains(result: Any, name: str | Path = "gains.yaml") -> str:
         doc = gains_document(result)
     else:
         raise TypeError(f"write_gains takes a DesignResult or GainTable; got {type(result).__name__}")
-    doc = _plain(doc)
     if Path(name).suffix.lower() == ".json":
-        return json.dumps(_json_safe(doc), indent=2, allow_nan=False) + "\n"
+        # JSON has no inf/nan: written as strings, read back as floats.
+        return json.dumps(to_plain(doc, "text"), indent=2, allow_nan=False) + "\n"
+    doc = to_plain(doc, "keep")
     return yaml.dump(doc, Dumper=_Dumper, sort_keys=False, allow_unicode=True, width=100)
 
 

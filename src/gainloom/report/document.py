@@ -24,6 +24,7 @@ import numpy as np
 
 from ..design.results import point_document
 from ..design.specs import SPEC_ORDER
+from ..plain import to_plain
 
 __all__ = [
     "VERIFICATION_FORMAT",
@@ -31,7 +32,6 @@ __all__ = [
     "METHODS",
     "spec_sense",
     "verification_document",
-    "plain",
     "file_sha256",
 ]
 
@@ -103,32 +103,6 @@ def spec_sense(name: str) -> int:
     if name == "stable" or name.startswith("max_"):
         return -1
     return +1
-
-
-def plain(value: Any) -> Any:
-    """numpy values, tuples and non-finite floats as JSON-ready Python values."""
-    if isinstance(value, dict):
-        return {str(k): plain(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [plain(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return plain(value.tolist())
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        value = float(value)
-        if math.isnan(value):
-            return "nan"
-        if math.isinf(value):
-            return "inf" if value > 0 else "-inf"
-        return value
-    if isinstance(value, (complex, np.complexfloating)):
-        return [plain(value.real), plain(value.imag)]
-    if isinstance(value, Path):
-        return str(value)
-    return value
 
 
 def file_sha256(path: str | Path) -> str | None:
@@ -359,4 +333,4 @@ def verification_document(
     }
     if timestamp is not None:
         document["timestamp"] = timestamp
-    return plain(document)
+    return to_plain(document, "text")

@@ -6,26 +6,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..plain import to_plain
 from .metrics import SimulationMetrics
 
 __all__ = ["SpecCheck", "SimulationResult", "REALISATION"]
 
-
-def _plain(value):
-    """Arrays and floats as JSON values: non-finite numbers become ``None``."""
-    if isinstance(value, dict):
-        return {str(k): _plain(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_plain(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return _plain(value.tolist())
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        return float(value) if np.isfinite(value) else None
-    return value
 
 #: The plant realisation the simulator carries the state in (see plant.py).
 REALISATION = "controllable canonical (lti.convert.tf_to_ss, the scipy.signal.tf2ss convention), one realisation for every point"
@@ -138,7 +123,7 @@ class SimulationResult:
                 "gains": self.gains,
                 "states": self.states,
             }
-        return _plain(data)
+        return to_plain(data, "null")
 
     def summary(self) -> list[str]:
         """Human-readable lines: verdict, metrics, checks, warnings."""
