@@ -361,3 +361,78 @@ def test_step_retry_that_finds_a_gain_does_not_crash(tmp_path):
     result = gainloom.design(path)
     assert all(s == "pass" for s in result.status)
     assert all(any("step response" in n for n in notes) for notes in result.notes)
+
+
+# Belt conveyor at light load (ratio 1) as in conveyor_2d.yaml, without
+# tolerances or table checks; {damping} is filled in.
+LIGHT_LOAD = """
+name: light-load-damping
+variables:
+  - name: speed
+    unit: rpm
+    values: [0, 250]
+  - name: ratio
+    values: [1, 2]
+parameters:
+  Kt: 0.12
+  Jm: 4.0e-4
+  Jt: "Jm * (1 + ratio)"
+  B: "1.0e-3 + 2.0e-4 * speed / 1000"
+  tau_i: 4.0e-4
+  wa: "2 * pi * 15"
+  wr: "wa * sqrt(1 + ratio)"
+plant:
+  zpk:
+    zeros: [{{re: "-0.05 * wa", im: "wa * sqrt(1 - 0.05**2)"}}]
+    poles: ["-B / Jt", "-1 / tau_i", {{re: "-0.05 * wr", im: "wr * sqrt(1 - 0.05**2)"}}]
+    gain: "Kt / (Jt * tau_i) * wr**2 / wa**2"
+sampling:
+  period: 1.25e-4
+  method: zoh
+  delay: 1
+controller:
+  structure: pi
+  strategy: shape-sweep
+  objective: most-damped
+  sweep: {{range: [0.8, 0.999], count: 60}}
+  output_limits: [-15, 15]
+specs:
+  min_damping: {damping}
+  natural_frequency: [20, 600]
+  min_gain_margin: 6
+  min_phase_margin: 45
+  min_delay_margin: 2.0e-4
+table:
+  between_points: 0
+"""
+
+
+def _light_load(tmp_path: Path, damping: float):
+    path = tmp_path / f"light-{damping}.yaml"
+    path.write_text(LIGHT_LOAD.format(damping=damping))
+    return gainloom.load_schedule(path)
+
+
+def test_light_load_has_a_design_with_damping_above_0_4(tmp_path):
+    # Witness for the xfail below: designed with the bound relaxed to 0.3, the
+    # table meets every spec of the 0.4 file at every point -- judged on the
+    # python-control path against the 0.4 file's specs.
+    relaxed = gainloom.design(_light_load(tmp_path, 0.3))
+    strict = _light_load(tmp_path, 0.4)
+    models = strict.evaluate(relaxed.points)
+    specs = strict.spec_values(relaxed.points)
+    kp, ki_ts = relaxed.table.coefficients["kp"].ravel(), relaxed.table.coefficients["ki_ts"].ravel()
+    for p in range(relaxed.points.shape[0]):
+        values = check_point(models.plant.num[p], models.plant.den[p], float(models.sample_period[p]), 0.0,
+                             float(models.delay[p]), float(kp[p]), float(ki_ts[p]),
+                             {k: float(v[p]) for k, v in specs.items()}, step=False)
+        assert values["zeta"] >= 0.4
+
+
+@pytest.mark.xfail(strict=True, raises=AssertionError, reason=(
+    "src weakness: with min_damping 0.4 the shape-sweep reports the light-load points infeasible "
+    "('every spec is reachable alone but not together', damping 0.397 at the best compromise) although "
+    "a table meeting every spec with damping ~0.446 exists (found with the bound at 0.3; see the test above)"))
+def test_light_load_design_finds_the_feasible_gain(tmp_path):
+    result = gainloom.design(_light_load(tmp_path, 0.4))
+    assert all(s == "pass" for s in result.status), result.notes
