@@ -349,10 +349,6 @@ specs:
 """
 
 
-@pytest.mark.xfail(strict=True, raises=ValueError, reason=(
-    "src bug: design/engine.py _step_retry passes trial.sample_period[good, None] (shape (G, 1)) to "
-    "search.objective_values, whose pole_metrics broadcasts ts[..., None] against poles (G, n) and "
-    "raises ValueError whenever a re-sampled gain passes the step specs; should be sample_period[good]"))
 def test_step_retry_that_finds_a_gain_does_not_crash(tmp_path):
     # The target pair's gain overshoots more than 10 %, and some of the 24 gains the
     # step retry samples on the same zero pass every spec: taking one crashes.
@@ -414,7 +410,7 @@ def _light_load(tmp_path: Path, damping: float):
 
 
 def test_light_load_has_a_design_with_damping_above_0_4(tmp_path):
-    # Witness for the xfail below: designed with the bound relaxed to 0.3, the
+    # Witness for the test below: designed with the bound relaxed to 0.3, the
     # table meets every spec of the 0.4 file at every point -- judged on the
     # python-control path against the 0.4 file's specs.
     relaxed = gainloom.design(_light_load(tmp_path, 0.3))
@@ -429,13 +425,6 @@ def test_light_load_has_a_design_with_damping_above_0_4(tmp_path):
         assert values["zeta"] >= 0.4
 
 
-@pytest.mark.xfail(strict=True, raises=AssertionError, reason=(
-    "src weakness: with min_damping 0.4 the shape-sweep reports the light-load points infeasible "
-    "('every spec is reachable alone but not together', damping 0.397 at the best compromise) although "
-    "a table meeting every spec with damping ~0.446 exists (found with the bound at 0.3; see the test above). "
-    "Cause (checked on a patched copy): search.choose_gains sets the coarse score of shapes feasible nowhere "
-    "on the coarse gain grid to -inf, so they are ranked by index, not 'by the damping they reach' as its "
-    "comment says, and the feasible zero is never taken to the exact solver"))
 def test_light_load_design_finds_the_feasible_gain(tmp_path):
     result = gainloom.design(_light_load(tmp_path, 0.4))
     assert all(s == "pass" for s in result.status), result.notes

@@ -203,8 +203,19 @@ def test_evaluate_names_an_intermediate_point_that_fails(tmp_path):
     assert caught.value.key_path == "parameters.B"
 
 
-def test_spec_values_overrides_and_overshoot():
-    schedule = load_schedule(ROOT / "schedules" / "spindle_speed.yaml")
+OVERSHOOT_SPECS = """\
+specs:
+  min_damping: 0.6
+  max_overshoot: 10
+  natural_frequency: [50, 2000]
+  overrides:
+    - where: {speed: [0, 500]}
+      set: {min_damping: 0.5, max_overshoot: 15}
+"""
+
+
+def test_spec_values_overrides_and_overshoot(tmp_path):
+    schedule = load_schedule(write(tmp_path, BASE + OVERSHOOT_SPECS))
     points = np.array([[0.0], [500.0], [501.0], [6000.0]])
     specs = schedule.spec_values(points)
     # reference: textbook second-order step response, overshoot = exp(-pi z / sqrt(1 - z^2)) (closed form)
