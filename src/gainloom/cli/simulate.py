@@ -71,7 +71,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument(
         "--error-full-scale", metavar="VALUE", type=float,
-        help="q15/q31: physical error that full-scale input stands for (default 1)",
+        help="q15/q31: physical error that full-scale input stands for (default: the schedule's codegen.error_full_scale, else 1)",
     )
     parser.add_argument(
         "--output-full-scale", metavar="VALUE", type=float,
@@ -195,8 +195,12 @@ def run(args: argparse.Namespace) -> int:
         table,
         scenario,
         number_format,
-        error_full_scale=args.error_full_scale,
-        output_full_scale=args.output_full_scale,
+        error_full_scale=(
+            schedule.codegen.error_full_scale if args.error_full_scale is None else args.error_full_scale
+        ),
+        output_full_scale=(
+            schedule.codegen.output_full_scale if args.output_full_scale is None else args.output_full_scale
+        ),
     )
     notes = []
     recorded = (metadata.get("schedule") or {}).get("sha256")
