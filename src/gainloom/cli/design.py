@@ -125,11 +125,16 @@ def summary_rows(labels, analysis, status, binding=None):
     return headers, rows
 
 
+def _where(values: dict) -> str:
+    """An operating point or tolerance corner as ``speed=125, J=x1.3``-style text."""
+    return ", ".join(f"{name}={format_number(float(value))}" for name, value in values.items())
+
+
 def print_table_report(report, stream) -> None:
-    """Whole-table check lines."""
+    """Whole-table check lines (the first ten of each kind; the log has all)."""
     print(f"between points: {report.between_checked} checked, {len(report.between)} failing", file=stream)
     for entry in report.between[:10]:
-        print(f"  interval {entry['interval']} at {entry['point']}: {', '.join(entry['failed'])}", file=stream)
+        print(f"  interval {entry['interval']} at {_where(entry['point'])}: {', '.join(entry['failed'])}", file=stream)
     if report.tolerance_corners:
         print(
             f"tolerances: {report.tolerance_corners} corner(s)/sample(s) per point, "
@@ -137,7 +142,8 @@ def print_table_report(report, stream) -> None:
             file=stream,
         )
         for entry in report.tolerances[:10]:
-            print(f"  {entry['point']} worst {entry['scale']}: {', '.join(entry['failed'])}", file=stream)
+            corner = ", ".join(f"{name} x{format_number(float(v))}" for name, v in entry["scale"].items())
+            print(f"  {_where(entry['point'])} worst corner {corner}: {', '.join(entry['failed'])}", file=stream)
     for entry in report.smoothness[:10]:
         print(f"smoothness: {entry['coefficient']} step {format_number(entry['step'])} > "
               f"{format_number(entry['limit'])} along {entry['axis']} at {entry['index']}", file=stream)
