@@ -68,7 +68,7 @@ def test_prewarp_past_nyquist_is_one_line_and_exit_2():
 @pytest.mark.parametrize(
     ("args", "fragment"),
     [
-        (["--num", "1 x", "--den", "1 1", "--ts", "1e-3"], "'x' is not a number"),
+        (["--num", "1 x", "--den", "1 1", "--ts", "1e-3"], "cannot read 'x' as a number"),
         (["--num", "1", "--den", "1 1", "--ts", "fast"], "--ts"),
         (["--num", "1", "--den", "1 1", "--ts", "nan"], "finite"),
         (["--num", "1", "--den", "1 1", "--ts", "1e-3", "--method", "zho"], "did you mean 'zoh'"),

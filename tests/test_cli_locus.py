@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 import scipy.signal
 
-from gainloom.cli.locus import parse_coefficients
+from gainloom.cli.arguments import parse_coefficients
 from gainloom.errors import InputError
 
 

@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import math
-import re
 
 import numpy as np
 
@@ -12,46 +10,12 @@ from ..errors import InputError
 from ..lti.discretize import discrete_roots, discretize_loop
 from ..lti.loop import Loop
 from ..names import HOLD_METHODS
+from .arguments import parse_coefficients, parse_number
 from .output import format_number, format_table, print_json
 
 __all__ = ["HELP", "add_arguments", "run", "parse_coefficients"]
 
 HELP = "discretise a continuous transfer function (hold method, computation delay) and show its poles and zeros"
-
-
-def parse_coefficients(text: str, what: str) -> np.ndarray:
-    """Parse ``"1 2.5 -3"`` or ``"1, 2.5, -3"`` into finite floats.
-
-    Raises
-    ------
-    InputError
-        On an empty list or any entry that is not a finite number.
-    """
-    fields = [f for f in re.split(r"[\s,]+", text.strip()) if f]
-    if not fields:
-        raise InputError(f"--{what} is empty; expected coefficients like \"1 2 3\" (descending powers of s)")
-    values = []
-    for field in fields:
-        try:
-            value = float(field)
-        except ValueError:
-            raise InputError(
-                f"--{what}: {field!r} is not a number; expected coefficients like \"1 2 3\""
-            ) from None
-        if not math.isfinite(value):
-            raise InputError(f"--{what}: {field!r} is not a finite number")
-        values.append(value)
-    return np.array(values)
-
-
-def _number(text: str, what: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise InputError(f"--{what}: {text!r} is not a number") from None
-    if not math.isfinite(value):
-        raise InputError(f"--{what}: {text!r} is not a finite number")
-    return value
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -122,10 +86,10 @@ def run(args: argparse.Namespace) -> int:
     den = parse_coefficients(args.den, "den")
     if not np.any(den):
         raise InputError("--den is all zeros")
-    ts = _number(args.ts, "ts")
-    delay = _number(args.delay, "delay")
-    dead_time = _number(args.dead_time, "dead-time")
-    prewarp = None if args.prewarp is None else _number(args.prewarp, "prewarp")
+    ts = parse_number(args.ts, "--ts")
+    delay = parse_number(args.delay, "--delay")
+    dead_time = parse_number(args.dead_time, "--dead-time")
+    prewarp = None if args.prewarp is None else parse_number(args.prewarp, "--prewarp")
     result = describe(num, den, ts, args.method, delay, dead_time, prewarp)
     if args.json:
         print_json(result)

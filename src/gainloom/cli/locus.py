@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 import math
-import re
 
 import numpy as np
 
@@ -15,6 +14,7 @@ from ..lti.loop import Loop
 from ..lti.poles import damping_and_frequency
 from ..lti.trace import trace_locus
 from ..names import HOLD_METHODS, unknown_name_message
+from .arguments import parse_coefficients
 from .output import format_number, format_table, print_json
 
 HELP = "root-locus facts of one loop K N/D (s-plane, or z-plane after sampling)"
@@ -24,26 +24,6 @@ CAUTION = (
     "and a safe test set-up; this tool does not replace functional-safety processes, local codes "
     "or licensed engineering judgement."
 )
-
-_NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
-
-
-def parse_coefficients(text: str, what: str) -> np.ndarray:
-    """Parse ``"1 2 3"``, ``"1, 2, 3"`` or ``"[1, 2, 3]"`` into floats (no eval)."""
-    body = text.strip()
-    if body.startswith("[") and body.endswith("]"):
-        body = body[1:-1]
-    parts = [p for p in re.split(r"[\s,]+", body) if p]
-    if not parts:
-        raise InputError(f"--{what} is empty; expected coefficients in descending powers, e.g. \"1 3 2\"")
-    bad = [p for p in parts if not _NUMBER.match(p)]
-    if bad:
-        raise InputError(
-            f"--{what}: cannot read {bad[0]!r} as a number; expected coefficients in descending powers "
-            "separated by spaces or commas, e.g. \"1 3 2\""
-        )
-    return np.array([float(p) for p in parts])
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Register the options of ``gainloom locus``."""

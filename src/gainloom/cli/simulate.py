@@ -10,9 +10,9 @@ run is stable and every requested limit holds, 1 otherwise, 2 for bad input.
 from __future__ import annotations
 
 import argparse
-import math
 
 from ..errors import InputError
+from .arguments import parse_number
 from .output import print_json
 
 HELP = "run the closed loop in time while the scheduling variables move (ramps, steps, load steps)"
@@ -93,21 +93,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--series", action="store_true", help="with --json: include every sample")
 
 
-def _number(text: str, what: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise InputError(f"{what}: expected a number; got {text!r}") from None
-    if not math.isfinite(value):
-        raise InputError(f"{what}: expected a finite number; got {text!r}")
-    return value
-
 
 def _pair(text: str, what: str) -> tuple[float, float]:
     parts = text.split(":")
     if len(parts) != 2:
         raise InputError(f"{what}: expected A:B; got {text!r}")
-    return _number(parts[0], what), _number(parts[1], what)
+    return parse_number(parts[0], what), parse_number(parts[1], what)
 
 
 def _breakpoints(text: str, what: str):
@@ -130,10 +121,10 @@ def parse_ramp(text: str, duration: float):
     parts = values.split(":")
     what = f"--ramp {name}"
     if len(parts) == 1 and not at:
-        return name.strip(), PiecewiseLinear.constant(_number(parts[0], what))
+        return name.strip(), PiecewiseLinear.constant(parse_number(parts[0], what))
     if len(parts) != 2:
         raise InputError(f"{what}: expected START or START:END; got {values!r}")
-    start, end = _number(parts[0], what), _number(parts[1], what)
+    start, end = parse_number(parts[0], what), parse_number(parts[1], what)
     t0, t1 = _pair(times, what) if at else (0.0, duration)
     return name.strip(), PiecewiseLinear.ramp(start, end, t0, t1)
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from .design import Counter, SAFETY_CAUTION, print_table_report, summary_rows
+from .design import SAFETY_CAUTION, Counter, print_table_report, summary_rows
 from .output import format_table, print_json
 
 HELP = "re-check a gains file (designed or tuned by hand) against a schedule"
