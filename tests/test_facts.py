@@ -415,3 +415,14 @@ def test_three_branches_meet_at_one_real_point():
     assert brk.point == pytest.approx(-1.0, abs=1e-6)
     assert brk.gain == pytest.approx(1.0, rel=1e-9)
     assert brk.kind == "meeting"
+
+
+def test_delay_pole_from_the_delta_form_is_exactly_at_the_origin():
+    # One sample of computation delay is a factor z^-1 (definition of the
+    # delay): its pole is exactly z = 0, not an eps-sized mapping residue.
+    from gainloom import Loop
+    from gainloom.lti.discretize import discretize_loop
+
+    sampled = discretize_loop(Loop([1.0], [1.0, 3.0, 2.0, 0.0]), 0.1, method="zoh", delay=1)
+    facts = locus_facts(sampled.num[0], sampled.den[0], ts=0.1, delta=(sampled.delta_num[0], sampled.delta_den[0]))
+    assert any(p.value == 0 for p in facts.poles)

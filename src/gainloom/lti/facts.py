@@ -33,7 +33,9 @@ import numpy as np
 
 from ..errors import InputError
 from .boundary import imaginary_axis_crossings, unit_circle_crossings
+from .discretize import discrete_roots
 from .intervals import stable_gain_intervals
+from .polynomials import pad_left
 
 __all__ = [
     "CLUSTER_KAPPA",
@@ -338,12 +340,13 @@ def _roots(poly: np.ndarray) -> np.ndarray:
     return np.roots(poly).astype(complex)
 
 
-def _mapped(roots: tuple[RepeatedRoot, ...], ts: float) -> tuple[RepeatedRoot, ...]:
-    """Delta-operator roots ``g`` mapped to ``z = 1 + ts g``."""
-    mapped = [
-        RepeatedRoot(complex(1.0 + ts * r.value.real, ts * r.value.imag), r.multiplicity) for r in roots
-    ]
-    return tuple(sorted(mapped, key=lambda r: (r.value.real, r.value.imag)))
+def _delta_roots(z_poly: np.ndarray, delta_poly: np.ndarray, ts: float) -> np.ndarray:
+    """Finite roots in z from the delta form, delay poles exactly at z = 0."""
+    if delta_poly.size <= 1:
+        return np.zeros(0, dtype=complex)
+    width = max(z_poly.size, delta_poly.size)
+    roots = discrete_roots(pad_left(z_poly, width), pad_left(delta_poly, width), ts)[0]
+    return roots[np.isfinite(roots)]
 
 
 def _close(a: complex, b: complex, size: int) -> bool:
@@ -532,8 +535,8 @@ def locus_facts(
         delta_pair = (_trim(delta[0], "delta numerator"), _trim(delta[1], "delta denominator"))
         # Roots cluster better in g (spread over the loop's own scale) and
         # map exactly enough by z = 1 + ts g.
-        poles = _mapped(cluster_roots(_roots(delta_pair[1])), ts)
-        zeros = _mapped(cluster_roots(_roots(delta_pair[0])), ts)
+        poles = cluster_roots(_delta_roots(d_poly, delta_pair[1], ts))
+        zeros = cluster_roots(_delta_roots(n_poly, delta_pair[0], ts))
     else:
         poles = cluster_roots(_roots(d_poly))
         zeros = cluster_roots(_roots(n_poly))
