@@ -23,7 +23,7 @@ CAUTION = (
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Options of ``gainloom emit``."""
-    parser.add_argument("gains", help="gains file written by 'gainloom design' (YAML or JSON)")
+    parser.add_argument("gains", metavar="GAINS", help="gains file written by 'gainloom design' (YAML or JSON)")
     parser.add_argument("--out", required=True, metavar="DIR", help="output folder (created if missing)")
     parser.add_argument(
         "--format",
@@ -43,14 +43,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         type=float,
         default=None,
         metavar="E",
-        help="q15/q31: physical error that full-scale input stands for (default 1)",
+        help="q15/q31: physical error that full-scale input stands for (default: the schedule's codegen.error_full_scale with --schedule, else 1)",
     )
     parser.add_argument(
         "--output-full-scale",
         type=float,
         default=None,
         metavar="U",
-        help="q15/q31: physical output of full scale (default max(|u_min|, |u_max|))",
+        help="q15/q31: physical output of full scale (default: the schedule's codegen.output_full_scale with --schedule, else max(|u_min|, |u_max|))",
     )
     parser.add_argument(
         "--check",
