@@ -66,3 +66,13 @@ def _split(command: str) -> list[str]:
     import shlex
 
     return shlex.split(command)
+
+
+def test_readme_schedule_example_loads(tmp_path):
+    import gainloom
+
+    (block,) = re.findall(r"```yaml\n(.*?)```", README, flags=re.S)
+    path = tmp_path / "glance.yaml"
+    path.write_text(block)
+    schedule = gainloom.load_schedule(path)
+    assert schedule.grid_shape == (13,) and schedule.controller.structure == "pi"
