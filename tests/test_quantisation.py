@@ -19,7 +19,8 @@ import gainloom
 from gainloom.codegen.layout import layout_table
 from gainloom.codegen.mirror import lookup_gains
 from gainloom.codegen.qformat import dequantize
-from gainloom.codegen.quantisation import check_quantisation, pole_shift
+from gainloom.codegen.quantisation import check_quantisation, dequantised_table, pole_shift
+from gainloom.errors import InputError
 
 # An invented speed loop (test variant of the spindle demo) with relaxed
 # step specs so that the design passes everywhere.
@@ -187,3 +188,15 @@ def test_q15_rounding_of_the_shipped_spindle_demo_breaks_no_spec():
     assert [p.index for p in quant.points] == list(range(len(result.status)))
     # the verification of the unrounded table agrees with the design's own
     assert quant.original.status == result.status
+
+
+def test_a_design_result_as_baseline_gives_the_same_verdicts(designed):
+    # The full run hands the design result in instead of verifying the
+    # unrounded table a second time; both paths must report the same.
+    path, result = designed
+    alone = check_quantisation(path, result.table, "q15").as_document()
+    reused = check_quantisation(path, result.table, "q15", baseline=result).as_document()
+    assert reused == alone
+    with pytest.raises(InputError, match="this very table"):
+        check_quantisation(path, result.table, "q15", baseline=gainloom.verify(path, dequantised_table(
+            layout_table(result.table, "q15"))))

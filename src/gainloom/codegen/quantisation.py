@@ -37,6 +37,7 @@ from scipy.optimize import linear_sum_assignment
 
 from ..design.specs import SPEC_ORDER
 from ..design.table import GainTable, TableAxis
+from ..errors import InputError
 from .layout import TableLayout, layout_table
 
 __all__ = ["QuantisationResult", "PointChange", "check_quantisation", "dequantised_table", "pole_shift"]
@@ -227,6 +228,7 @@ def check_quantisation(
     *,
     error_full_scale: float | None = None,
     output_full_scale: float | None = None,
+    baseline: Any = None,
 ) -> QuantisationResult:
     """Verify a gain table again after rounding it to a number format.
 
@@ -242,6 +244,10 @@ def check_quantisation(
         Fixed point only, as for :func:`gainloom.emit_c`: physical error and
         output that full scale stands for.  They decide the normalisation
         of the gain coefficients and therefore their rounding.
+    baseline : DesignResult or VerifyResult, optional
+        The unrounded table already analysed on this schedule (e.g. the
+        design result of this very table), so it is not verified twice;
+        verified here when omitted.
 
     Returns
     -------
@@ -259,7 +265,9 @@ def check_quantisation(
     layout = layout_table(table, number_format, error_full_scale=error_full_scale,
                           output_full_scale=output_full_scale)
     rounded_table = dequantised_table(layout)
-    original = verify(sched, table)
+    original = verify(sched, table) if baseline is None else baseline
+    if original.table is not table:
+        raise InputError("baseline must be the analysis of this very table")
     rounded = verify(sched, rounded_table)
     a0, a1 = original.analysis, rounded.analysis
 

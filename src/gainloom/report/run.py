@@ -434,7 +434,7 @@ def run_design_job(
             step("check C", 1)
 
         step("quantisation", 0)
-        quantisation = check_quantisation(schedule, result.table, number_format, **scales)
+        quantisation = check_quantisation(schedule, result.table, number_format, baseline=result, **scales)
         step("quantisation", 1)
 
         simulation = description = None
