@@ -422,8 +422,10 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S, cancelle
     fine = np.stack([_samples_in(f, FINE_SAMPLES) for f in feasible_sets])
     asked = shapes.gain.reshape(-1)[sel_rows]
     fine = np.concatenate([fine, asked[:, None]], axis=1)  # the strategy's own gain, if any
-    in_set = np.array([[any(lo < g < hi for lo, hi in f) for g in row] for f, row in zip(feasible_sets, fine)])
-    fine = np.where(in_set, fine, np.nan)
+    # The fine samples lie inside their sets by construction (_samples_in);
+    # only the strategy's own gain needs the membership test.
+    asked_in = np.array([any(lo < g < hi for lo, hi in f) for f, g in zip(feasible_sets, asked)], dtype=bool)
+    fine[:, -1] = np.where(asked_in, asked, np.nan)
     fine_poles = mask_cancelled(_poles_at(sub, fine), sub_cancelled)
     ok_f, _ = region_ok(fine_poles, sub.ts, limits, sel_points)
     ok_f &= np.isfinite(fine)
