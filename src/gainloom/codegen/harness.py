@@ -42,6 +42,7 @@ from ..design.table import GainTable
 from ..errors import CodegenError
 from .layout import AxisLayout, TableLayout, layout_table
 from .mirror import lookup_gains, output_code, run_steps, state_fields
+from ..c_names import c_names
 from .render import c_float_exact, render_template, template_context
 
 __all__ = ["WARNING_FLAGS", "SANITIZER_FLAGS", "HarnessResult", "find_compiler", "check_generated_c"]
@@ -384,7 +385,10 @@ def check_generated_c(
         step_errors=_literals(errors, fixed),
     )
     harness_text = render_template("harness.c.j2", context)
-    flags = ("-std=c99", "-O1", *WARNING_FLAGS) + (SANITIZER_FLAGS if sanitizers else ())
+    # the harness checks the arithmetic of any table, verified or not: it
+    # builds as an integrator who accepted an unverified table would
+    accept = f"-D{c_names(prefix).accept_unverified}"
+    flags = ("-std=c99", "-O1", *WARNING_FLAGS, accept) + (SANITIZER_FLAGS if sanitizers else ())
     common = dict(compiler=" ".join(command), compiler_version=version, flags=flags, sanitizers=sanitizers)
 
     with tempfile.TemporaryDirectory(prefix="gainloom-harness-") as tmp:
@@ -392,7 +396,8 @@ def check_generated_c(
         for f in files:
             shutil.copyfile(f, work / f.name)
         (work / "harness.c").write_text(harness_text, encoding="utf-8")
-        c11 = _run([*command, "-std=c11", *WARNING_FLAGS, "-fsyntax-only", *[s.name for s in sources]], work)
+        c11 = _run([*command, "-std=c11", *WARNING_FLAGS, accept, "-fsyntax-only", *[s.name for s in sources]],
+                   work)
         if c11.returncode != 0:
             return HarnessResult("failed", "generated C does not compile as C11", diagnostics=c11.stderr, **common)
         built = _run([*command, *flags, *[s.name for s in sources], "harness.c", "-o", "harness"], work)
