@@ -54,6 +54,7 @@ __all__ = [
     "HarnessProgram",
     "OutputComparison",
     "find_compiler",
+    "c_literals",
     "generated_files",
     "harness_program",
     "compare_output",
@@ -275,7 +276,8 @@ def _step_inputs(layout: TableLayout, rng: np.random.Generator, steps: int) -> t
     return inputs, errors
 
 
-def _literals(values: np.ndarray, fixed: bool) -> list[str]:
+def c_literals(values: np.ndarray, fixed: bool) -> list[str]:
+    """C literals of input vectors (exact: integers, or float32 in hex-float form)."""
     if fixed:
         # INT32_MIN has no literal form: write it as an expression
         return [f"({int(v) + 1} - 1)" if int(v) == -(2**31) else str(int(v)) for v in values]
@@ -424,9 +426,9 @@ def harness_program(
         points_count=int(point_inputs[0].size),
         steps_count=steps,
         reset_at=reset_at,
-        point_inputs=[_literals(v, fixed) for v in point_inputs],
-        step_inputs=[_literals(v, fixed) for v in step_inputs],
-        step_errors=_literals(errors, fixed),
+        point_inputs=[c_literals(v, fixed) for v in point_inputs],
+        step_inputs=[c_literals(v, fixed) for v in step_inputs],
+        step_errors=c_literals(errors, fixed),
     )
     source = render_template("harness.c.j2", context)
     return HarnessProgram(layout, source, tuple(point_inputs), tuple(step_inputs), errors, reset_at)
