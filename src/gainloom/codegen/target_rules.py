@@ -172,7 +172,8 @@ def check_rules(files: list[Path], caller: Path | None, cppcheck: str | None) ->
     #    the integrator's code, not by the library).
     runs = [[*_FLAGS, "--suppress=unusedFunction", *sources]]
     if caller is not None:
-        runs.append([*(f for f in _FLAGS if f != "--addon=misra"), "--enable=unusedFunction", *sources, str(caller)])
+        runs.append([*(f for f in _FLAGS if f != "--addon=misra"), "--enable=unusedFunction", "-I", ".", *sources,
+                     str(caller)])
     stderr = ""
     for arguments in runs:
         ran = subprocess.run([cppcheck, *arguments], cwd=work, capture_output=True, text=True, timeout=300,
