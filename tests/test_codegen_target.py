@@ -10,6 +10,7 @@ from pathlib import Path
 
 import pytest
 
+from gainloom.c_names import CNames
 from gainloom.codegen.emit import emit_c
 from gainloom.codegen.harness import check_generated_c, generated_files, harness_program
 from gainloom.codegen.target import check_target
@@ -25,6 +26,7 @@ needs_run = pytest.mark.skipif(not TOOLS.can_run, reason=f"missing {', '.join(TO
 needs_cppcheck = pytest.mark.skipif(TOOLS.cppcheck is None, reason="cppcheck not found")
 M0, M4F = CORES
 REPO = Path(__file__).resolve().parents[1]
+NAMES = CNames("motor_ctl")
 
 # The 64-bit division in the fixed-point lookup is being replaced on another
 # branch; until it lands the fixed-point helper check is expected to fail.
@@ -85,7 +87,7 @@ def test_every_format_builds_clean_as_c99_and_c11_on_both_cores(tmp_path, number
     for core in CORES:
         build = build_for_core(TOOLS, core, [work / "motor_ctl.c"], work, number_format != "float32")
         assert build.compiled == {"c99": True, "c11": True}, build.diagnostics
-        assert len(build.functions) == 3  # lookup, reset, step
+        assert sorted(f.name for f in build.functions) == sorted([NAMES.lookup, NAMES.clear, NAMES.update])
         assert build.ram_bytes == 0  # no mutable state in the table's object: reentrant
         assert all(f.stack_bytes is not None and f.stack_bounded for f in build.functions)
         # the tables are all the constant data: one axis array per axis, one array per coefficient
@@ -128,11 +130,11 @@ def test_a_double_in_the_float_variant_is_reported_per_function(tmp_path):
     work = files[0].parent
     build = build_for_core(TOOLS, M4F, [work / "motor_ctl.c"], work, False)
     assert build.builds, build.diagnostics
-    lookup = next(f for f in build.functions if "gains" in f.name or "lookup" in f.name)
+    lookup = next(f for f in build.functions if f.name == NAMES.lookup)
     # Arm run-time ABI (IHI 0043): __aeabi_dmul / __aeabi_dsub / __aeabi_f2d are double precision
     assert {h.kind for h in lookup.helpers} == {"double precision"}
     assert not lookup.clean and not build.helpers_clean
-    step = next(f for f in build.functions if "step" in f.name)
+    step = next(f for f in build.functions if f.name == NAMES.update)
     assert step.clean  # the step does not interpolate
 
 
@@ -150,23 +152,23 @@ def test_helper_names_are_classified_by_the_run_time_abi():
 
 @needs_run
 def test_instruction_count_of_straight_line_code_matches_the_disassembly(tmp_path):
-    # Reference: the disassembler (arm-none-eabi-objdump) lists the reset
+    # Reference: the disassembler (arm-none-eabi-objdump) lists the clear
     # function's instructions; it has no branch, so each runs exactly once.
     objdump = TOOLS.gcc.replace("gcc", "objdump")
     table, files = _emit(tmp_path, "q15", "pid", 1, True)
     work = files[0].parent
     build = build_for_core(TOOLS, M4F, [work / "motor_ctl.c"], work, True)
-    reset = next(f.name for f in build.functions if "reset" in f.name)
-    listing = subprocess.run([objdump, "-d", f"--disassemble={reset}", str(build.object_path)],
+    clear = NAMES.clear
+    listing = subprocess.run([objdump, "-d", f"--disassemble={clear}", str(build.object_path)],
                              capture_output=True, text=True, check=True).stdout
     body = [line for line in listing.splitlines() if re.match(r"\s+[0-9a-f]+:\t", line)]
     assert not any(re.search(r"\tb(eq|ne|lt|gt|le|ge|cc|cs)?(\.[nw])?\t", line) for line in body)
     source = "\n".join([
-        '#include "motor_ctl.h"',
+        f'#include "{NAMES.header}"',
         "__attribute__((noinline, noipa)) void measure_step_begin(void) { __asm volatile(\"\" ::: \"memory\"); }",
         "__attribute__((noinline, noipa)) void measure_end(void) { __asm volatile(\"\" ::: \"memory\"); }",
-        "int main(void) { motor_ctl_state_t s; measure_step_begin(); "
-        f"{reset}(&s); measure_end(); return (int)s.e1; }}",
+        f"int main(void) {{ {NAMES.state_t} s; measure_step_begin(); "
+        f"{clear}(&s); measure_end(); return (int)s.e1; }}",
     ])
     elf, problem = _link(TOOLS, build, source, "count", work)
     assert elf is not None, problem

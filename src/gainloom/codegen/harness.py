@@ -387,8 +387,8 @@ class HarnessProgram:
         Scheduling inputs per axis of the lookups and of the steps.
     errors : ndarray
         Error sample of each step.
-    reset_at : int
-        Step before which the state is reset again.
+    clear_at : int
+        Step before which the state is cleared again.
     """
 
     layout: TableLayout
@@ -396,7 +396,7 @@ class HarnessProgram:
     point_inputs: tuple[np.ndarray, ...]
     step_inputs: tuple[np.ndarray, ...]
     errors: np.ndarray
-    reset_at: int
+    clear_at: int
 
     @property
     def steps(self) -> int:
@@ -420,18 +420,18 @@ def harness_program(
     rng = np.random.default_rng(seed)
     point_inputs = _point_inputs(layout, rng, points)
     step_inputs, errors = _step_inputs(layout, rng, steps)
-    reset_at = steps // 2
+    clear_at = steps // 2
     context = template_context(layout, generated.prefix, "0" * 64, {"harness": "host"})
     context.update(
         points_count=int(point_inputs[0].size),
         steps_count=steps,
-        reset_at=reset_at,
+        clear_at=clear_at,
         point_inputs=[c_literals(v, fixed) for v in point_inputs],
         step_inputs=[c_literals(v, fixed) for v in step_inputs],
         step_errors=c_literals(errors, fixed),
     )
     source = render_template("harness.c.j2", context)
-    return HarnessProgram(layout, source, tuple(point_inputs), tuple(step_inputs), errors, reset_at)
+    return HarnessProgram(layout, source, tuple(point_inputs), tuple(step_inputs), errors, clear_at)
 
 
 @dataclass(frozen=True)
@@ -452,11 +452,11 @@ class OutputComparison:
 
 def _mirror_outputs(program: HarnessProgram) -> tuple[np.ndarray, np.ndarray]:
     """What the mirror says the harness prints: gains per lookup, outputs and states per step."""
-    layout, reset_at = program.layout, program.reset_at
+    layout, clear_at = program.layout, program.clear_at
     mirror_gains = lookup_gains(layout, *program.point_inputs)
     step_gains = lookup_gains(layout, *program.step_inputs)
-    first = run_steps(layout, {n: v[:reset_at] for n, v in step_gains.items()}, program.errors[:reset_at])
-    second = run_steps(layout, {n: v[reset_at:] for n, v in step_gains.items()}, program.errors[reset_at:])
+    first = run_steps(layout, {n: v[:clear_at] for n, v in step_gains.items()}, program.errors[:clear_at])
+    second = run_steps(layout, {n: v[clear_at:] for n, v in step_gains.items()}, program.errors[clear_at:])
     fields = state_fields(layout.structure)
     mirror_steps = np.column_stack(
         [np.concatenate([first.output, second.output])]
@@ -554,8 +554,8 @@ def check_generated_c(
     points : int
         Gain lookups to compare (at least 1000).
     steps : int
-        Controller steps to compare (at least 5000); the state is reset
-        half-way to check the reset function.
+        Controller steps to compare (at least 5000); the state is cleared
+        half-way to check the clear function.
     seed : int
         Seed of the random inputs (results are deterministic).
     compiler : list of str, optional
