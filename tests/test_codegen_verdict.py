@@ -81,3 +81,19 @@ def test_the_harness_still_checks_the_arithmetic_of_an_unverified_table(tmp_path
                                prefix="motor")
     assert result.status == "passed", result.message + result.diagnostics
     assert "-DMOTOR_ACCEPT_UNVERIFIED" in result.flags
+
+
+def test_the_target_build_of_an_unverified_table_needs_the_accept_macro(tmp_path):
+    from gainloom.codegen.harness import generated_files
+    from gainloom.codegen.target_build import build_for_core
+    from gainloom.codegen.target_tools import CORES, find_target_tools
+
+    tools = find_target_tools()
+    if not tools.can_build:
+        pytest.skip("arm-none-eabi toolchain not found")
+    _write(tmp_path, table_verdict(True, None, "q15"))
+    generated = generated_files([tmp_path / "motor.h", tmp_path / "motor.c"])
+    refused = build_for_core(tools, CORES[0], [tmp_path / "motor.c"], tmp_path, True)
+    assert not refused.builds and "NOT VERIFIED" in refused.diagnostics
+    accepted = build_for_core(tools, CORES[0], [tmp_path / "motor.c"], tmp_path, True, generated.defines)
+    assert accepted.builds, accepted.diagnostics
