@@ -171,14 +171,20 @@ def recheck(plant: ref.SampledPlant, structure: str, coefficients: dict[str, flo
     return m, ok
 
 
-def run_loop(name: str, structure: str, folder: Path, quick: bool) -> LoopResult:
-    sched = load(loop_document(name, structure), folder)
+def loop_schedule(name: str, structure: str, folder: Path, quick: bool, specs: dict | None = None):
+    """The loop as a Schedule; ``quick`` keeps only the two ends of every variable."""
+    doc = loop_document(name, structure, specs)
     if quick:
-        # a thin slice: the two ends of every variable
-        doc = loop_document(name, structure)
-        for var, axis in zip(doc["variables"], sched.axes):
-            var["values"] = [float(axis.values[0]), float(axis.values[-1])]
-        sched = load(doc, folder)
+        for var in doc["variables"]:
+            values = var["values"]
+            if isinstance(values, dict):
+                values = [values["start"], values["stop"]]
+            var["values"] = [float(values[0]), float(values[-1])]
+    return load(doc, folder)
+
+
+def run_loop(name: str, structure: str, folder: Path, quick: bool) -> LoopResult:
+    sched = loop_schedule(name, structure, folder, quick)
     start = time.perf_counter()
     result = gainloom.design(sched)
     tool_seconds = time.perf_counter() - start
@@ -222,6 +228,70 @@ def run_loop(name: str, structure: str, folder: Path, quick: bool) -> LoopResult
     )
 
 
+@dataclass
+class RuleResult:
+    """A published rule at every point of a loop, against the best controllers at its own margins."""
+
+    name: str
+    rule: str
+    rule_crossover: np.ndarray
+    phase_margin: np.ndarray
+    gain_margin_db: np.ndarray
+    reference_ratio: np.ndarray
+    tool_ratio: np.ndarray
+
+
+def _override_specs(sched, points: np.ndarray, pm: np.ndarray, gm: np.ndarray) -> dict:
+    """Specs that ask at every grid point for (at least) the given margins."""
+    names_ = [a.name for a in sched.axes]
+    overrides = [
+        {"where": {n: [float(v), float(v)] for n, v in zip(names_, point)},
+         "set": {"min_phase_margin": float(a), "min_gain_margin": float(b)}}
+        for point, a, b in zip(points, pm, gm)
+    ]
+    return {"min_phase_margin": float(pm[0]), "min_gain_margin": float(gm[0]), "overrides": overrides}
+
+
+def run_rule(name: str, rule: str, folder: Path, quick: bool) -> RuleResult:
+    """The rule's PI, then the reference's and the tool's best PI at the rule's own margins, per point."""
+    from gainloom.design.tuning_rules import rule_model, rule_pi
+
+    sched = loop_schedule(name, "pi", folder, quick)
+    points = np.asarray(sched.points, float)
+    models = sched.evaluate(points)
+    ts = np.asarray(models.sample_period, float)
+    model = rule_model(rule, models.plant, ts, np.asarray(models.delay, float), sched.sampling.method, str)
+    coefs = rule_pi(rule, model, ts)
+    plants = reference_plants(sched, points)
+    margins = [recheck(plant, "pi", {k: float(v[p]) for k, v in coefs.items()}, 0.0, 0.0)[0]
+               for p, plant in enumerate(plants)]
+    wc = np.array([m.crossover for m in margins])
+    # ask for the rule's margins, rounded down in the last shown digit so the rule itself qualifies
+    pm = np.floor(np.array([m.phase_margin for m in margins]) * 100) / 100
+    gm = np.floor(np.array([m.gain_margin_db for m in margins]) * 100) / 100
+    grid = QUICK_GRID if quick else ref.GRID_POINTS
+    ref_wc = np.array([ref.best_design(plant, "pi", pm[p], gm[p], grid).crossover for p, plant in enumerate(plants)])
+    tool_sched = loop_schedule(name, "pi", folder, quick, _override_specs(sched, points, pm, gm))
+    result = gainloom.design(tool_sched)
+    tool_coefs = {k: np.asarray(v, float).ravel() for k, v in result.table.coefficients.items()}
+    tool_wc = np.zeros(points.shape[0])
+    for p, plant in enumerate(plants):
+        m, ok = recheck(plant, "pi", {k: float(v[p]) for k, v in tool_coefs.items()}, pm[p], gm[p])
+        tool_wc[p] = m.crossover if ok and result.status[p] == "pass" else 0.0
+    return RuleResult(name=name, rule=rule, rule_crossover=wc, phase_margin=pm, gain_margin_db=gm,
+                      reference_ratio=ref_wc / wc, tool_ratio=tool_wc / wc)
+
+
+def format_rule(r: RuleResult) -> list[str]:
+    return [
+        f"{r.name} {r.rule}: rule crossover {np.min(r.rule_crossover):.4g}-{np.max(r.rule_crossover):.4g} rad/s at "
+        f"PM {np.min(r.phase_margin):.1f}-{np.max(r.phase_margin):.1f} deg, GM {np.min(r.gain_margin_db):.1f}-"
+        f"{np.max(r.gain_margin_db):.1f} dB",
+        f"  best at the rule's margins / rule: reference min {np.min(r.reference_ratio):.3f}, "
+        f"tool min {np.min(r.tool_ratio):.3f} median {np.median(r.tool_ratio):.3f}",
+    ]
+
+
 def format_result(r: LoopResult) -> list[str]:
     valid = r.ratio[np.isfinite(r.ratio)]
     low = float(np.min(valid)) if valid.size else math.nan
@@ -257,6 +327,14 @@ def main(argv: list[str] | None = None) -> int:
                 r = run_loop(name, structure, folder, args.quick)
                 results.append(r)
                 for line in format_result(r):
+                    print(line, flush=True)
+        if "pi" in structures:
+            print("published tuning rules (PI), best crossover at the rule's own margins:")
+            for name in loops:
+                if LOOPS[name] is None:
+                    print(f"{name}: no published rule applies (complex poles, right-half-plane zero)")
+                    continue
+                for line in format_rule(run_rule(name, LOOPS[name], folder, args.quick)):
                     print(line, flush=True)
     ratios = np.concatenate([r.ratio[np.isfinite(r.ratio)] for r in results])
     tool_time = sum(r.tool_seconds for r in results)

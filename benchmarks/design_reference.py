@@ -17,8 +17,10 @@ point (a transfer function, a pure delay and the sample period) it
 Conventions (stated in DEVELOPERS.md, "Benchmarks"):
 
 - crossover: the highest frequency below Nyquist where ``|L| = 1``;
-- phase margin: ``arg L + 180 deg`` wrapped to ``[-180, 180)``, the
-  smallest over every gain crossover;
+- phase margin: the angle between ``L`` and -1 at a gain crossover
+  (``|(arg L mod 360) - 180|``), the smallest over every gain crossover
+  (python-control's and gainloom's "smallest ``|PM|``"; the sign is left to
+  the stability test);
 - gain margin: ``min |20 log10 |L||`` over the phase crossovers (``L`` real
   and negative, Nyquist included), i.e. python-control's "closest to 0 dB";
   together with closed-loop stability (polynomial roots) this is the
@@ -185,8 +187,9 @@ def _phase_crossings(loop: np.ndarray) -> np.ndarray:
     return np.array(out)
 
 
-def _wrap(phase_deg: np.ndarray) -> np.ndarray:
-    return np.mod(phase_deg + 180.0, 360.0) - 180.0
+def _distance(phase_deg: np.ndarray) -> np.ndarray:
+    """Angle between ``L`` and the critical point -1 for ``arg L`` in degrees, in [0, 180]."""
+    return np.abs(np.mod(phase_deg, 360.0) - 180.0)
 
 
 @dataclass(frozen=True)
@@ -210,7 +213,7 @@ def evaluate(plant: SampledPlant, cnum: np.ndarray, cden: np.ndarray, w: np.ndar
         t = mag[idx] / (mag[idx] - mag[idx + 1])
         crossover = float(np.exp(np.log(w[idx[-1]]) + t[-1] * (np.log(w[idx[-1] + 1]) - np.log(w[idx[-1]]))))
         value = loop[idx] + t * (loop[idx + 1] - loop[idx])
-        phase_margin = float(np.min(_wrap(np.degrees(np.angle(value)) + 180.0)))
+        phase_margin = float(np.min(_distance(np.degrees(np.angle(value)))))
     else:
         crossover = math.inf if mag[-1] > 0 else 0.0
         phase_margin = math.inf
@@ -280,7 +283,7 @@ def _top_gain(plant, num, den, loop0, pm_min, gm_db) -> float:
     if not allowed:
         return math.nan
     # gains whose crossover falls in a grid interval with too little phase margin
-    pm = _wrap(np.degrees(np.angle(loop0)) + 180.0)
+    pm = _distance(np.degrees(np.angle(loop0)))
     bad = np.flatnonzero(np.minimum(pm[:-1], pm[1:]) < pm_min)
     low = 1.0 / np.maximum(mag[bad], mag[bad + 1])
     high = 1.0 / np.minimum(mag[bad], mag[bad + 1])
