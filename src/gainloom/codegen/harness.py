@@ -329,8 +329,8 @@ def check_generated_c(
     points : int
         Gain lookups to compare (at least 1000).
     steps : int
-        Controller steps to compare (at least 5000); the state is reset
-        half-way to check the reset function.
+        Controller steps to compare (at least 5000); the state is cleared
+        half-way to check the clear function.
     seed : int
         Seed of the random inputs (results are deterministic).
     compiler : list of str, optional
@@ -372,13 +372,13 @@ def check_generated_c(
     rng = np.random.default_rng(seed)
     point_inputs = _point_inputs(layout, rng, points)
     step_inputs, errors = _step_inputs(layout, rng, steps)
-    reset_at = steps // 2
+    clear_at = steps // 2
 
     context = template_context(layout, prefix, "0" * 64, {"harness": "host"})
     context.update(
         points_count=int(point_inputs[0].size),
         steps_count=steps,
-        reset_at=reset_at,
+        clear_at=clear_at,
         point_inputs=[_literals(v, fixed) for v in point_inputs],
         step_inputs=[_literals(v, fixed) for v in step_inputs],
         step_errors=_literals(errors, fixed),
@@ -408,8 +408,8 @@ def check_generated_c(
 
     mirror_gains = lookup_gains(layout, *point_inputs)
     step_gains = lookup_gains(layout, *step_inputs)
-    first = run_steps(layout, {n: v[:reset_at] for n, v in step_gains.items()}, errors[:reset_at])
-    second = run_steps(layout, {n: v[reset_at:] for n, v in step_gains.items()}, errors[reset_at:])
+    first = run_steps(layout, {n: v[:clear_at] for n, v in step_gains.items()}, errors[:clear_at])
+    second = run_steps(layout, {n: v[clear_at:] for n, v in step_gains.items()}, errors[clear_at:])
     fields = state_fields(layout.structure)
     mirror_steps = np.column_stack(
         [np.concatenate([first.output, second.output])]
