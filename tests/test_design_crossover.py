@@ -57,8 +57,11 @@ def reference_loop(L, R, ts, kp, ki_ts, delay=1):
     return (kp + ki_ts * z / (z - 1)) * plant * z ** (-delay)
 
 
-def brute_force_crossover(L, R, ts, pm, gm, delay=1):
-    """Largest crossover of any PI with PM >= pm and GM >= gm (brute force, see module doc)."""
+def brute_force_crossover(L, R, ts, pm, gm, delay=1, table=False):
+    """Largest crossover of any PI with PM >= pm and GM >= gm (brute force, see module doc).
+
+    With ``table`` also its ``(kp, ki_ts)`` (DEVELOPERS.md: PI zero at ``kp/(kp + ki_ts)``,
+    loop gain ``kp + ki_ts``)."""
     plant = control.c2d(control.tf([1.0], [L, R]), ts, method="zoh")
     a = np.concatenate([np.asarray(plant.den[0][0], float), np.zeros(delay)])  # times z^delay
     b = np.asarray(plant.num[0][0], float)
@@ -66,7 +69,7 @@ def brute_force_crossover(L, R, ts, pm, gm, delay=1):
     w = np.geomspace(10.0, math.pi / ts, 5000)
     _, hp = scipy.signal.freqz(b, a, worN=w * ts)
     zi = np.exp(1j * w * ts)
-    best = 0.0
+    best, coefficients = 0.0, (math.nan, math.nan)
     for c in 1.0 - np.geomspace(1e-5, 0.9, 300):  # PI zero in z
         h = hp * (zi - c) / (zi - 1)  # PI shape, gain left out
         mag = np.abs(h)
@@ -85,8 +88,9 @@ def brute_force_crossover(L, R, ts, pm, gm, delay=1):
             char = np.polyadd(np.polymul([1.0, -1.0], a), k[j] * np.polymul([1.0, -c], b))
             if np.all(np.abs(np.roots(char)) < 1):
                 best = w[j]
+                coefficients = (k[j] * c, k[j] * (1 - c))
                 break
-    return best
+    return (best, coefficients) if table else best
 
 
 def design(tmp_path, objective="max-crossover", extra="", pm=45, gm=6, more="", count=3):
@@ -240,3 +244,19 @@ def test_back_off_never_makes_a_point_infeasible(tmp_path):
     radius = best + 0.005 * (1 - best)
     result = design(tmp_path, pm=60, count=2, more=f"  max_pole_radius: {radius:.6g}")
     assert result.status == ("pass", "pass"), result.notes
+
+
+def largest_steps(kp, ki_ts):
+    """Largest relative step of each coefficient between neighbouring points."""
+    return [float(np.max(np.abs(np.diff(v)) / np.minimum(np.abs(v[1:]), np.abs(v[:-1])))) for v in (kp, ki_ts)]
+
+
+def test_table_is_as_smooth_as_the_brute_force_reference(tmp_path):
+    # issue 9 goal: each coefficient's largest relative step <= 1.5 x the reference's own + 0.05
+    result = design(tmp_path, count=7)
+    assert all(s == "pass" for s in result.status), result.notes
+    ref = [brute_force_crossover(2.0e-3 - 1.2e-3 * pt[0] / 30, 0.5, TS, 45.5, 6.5, table=True)[1] for pt in result.points]
+    ours = largest_steps(result.analysis.coefficients["kp"], result.analysis.coefficients["ki_ts"])
+    theirs = largest_steps(np.array([r[0] for r in ref]), np.array([r[1] for r in ref]))
+    for mine, reference in zip(ours, theirs):
+        assert mine <= 1.5 * reference + 0.05, (ours, theirs)
