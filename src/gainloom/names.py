@@ -20,6 +20,7 @@ __all__ = [
     "CANCEL_TARGETS",
     "TOLERANCE_SAMPLINGS",
     "MONOTONE_DIRECTIONS",
+    "POLE_SELECTIONS",
 ]
 
 #: Discretisation methods: zero-order hold, first-order (triangle) hold,
@@ -62,6 +63,10 @@ TOLERANCE_SAMPLINGS: tuple[str, ...] = ("corners", "space_filling")
 
 #: Required direction of a coefficient along each table axis (table.monotone).
 MONOTONE_DIRECTIONS: tuple[str, ...] = ("increasing", "decreasing")
+
+#: Which closed-loop poles the damping, decay and natural-frequency specs
+#: judge (specs.poles): the dominant ones (docs/design.md) or every pole.
+POLE_SELECTIONS: tuple[str, ...] = ("dominant", "all")
 
 
 def unknown_name_message(kind: str, name: str, known: tuple[str, ...]) -> str:
