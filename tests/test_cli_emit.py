@@ -29,7 +29,8 @@ def test_emit_writes_byte_identical_files_each_run(tmp_path, gains):
     assert first.returncode == 0, first.stderr
     assert "wrote" in first.stdout and "caution" in first.stdout
     header, source = (out / "spindle.h").read_bytes(), (out / "spindle.c").read_bytes()
-    assert b"spindle_step_q15" in header and b"gains_file=motor.gains.yaml" in source
+    assert b"spindle_update(" in header and b"SPINDLE_NUMBER_FORMAT (SPINDLE_FORMAT_Q15)" in header
+    assert b"gains_file=motor.gains.yaml" in source
     again = _run(str(gains), "--out", str(out), "--format", "q15", "--prefix", "spindle", cwd=tmp_path)
     assert again.returncode == 0, again.stderr  # its own files: no --force needed
     assert (out / "spindle.h").read_bytes() == header and (out / "spindle.c").read_bytes() == source

@@ -63,7 +63,7 @@ def test_every_identifier_is_prefixed_and_none_is_reserved(number_format, struct
             assert macro.startswith("MOTOR_"), macro
         # external functions and typedefs carry the prefix
         functions = re.findall(r"^(?!static)[A-Za-z][\w\s\*]*?\b(\w+)\s*\(", code, flags=re.M)
-        assert len(functions) >= 3  # gains, reset, step (declared or defined)
+        assert len(functions) >= 3  # lookup, clear, update (declared or defined)
         for name in functions:
             if name not in {"defined", "sizeof", "_Static_assert"}:
                 assert name.startswith("motor_"), name
@@ -151,3 +151,38 @@ def test_templates_found_installed_or_in_the_source_checkout():
     else:
         assert found == Path(__file__).resolve().parents[1] / "codegen_templates"
     assert (found / "table.c.j2").is_file() and (found / "table.h.j2").is_file()
+
+
+@pytest.mark.parametrize("number_format", ["float32", "q15", "q31"])
+def test_functions_carry_no_format_suffix_and_the_format_is_a_macro(number_format, tmp_path):
+    from gainloom.c_names import FORMAT_CODES, c_names
+
+    names = c_names("motor")
+    header = render_files(make_table("pi"), number_format, "motor", SHA)["motor.h"]
+    code = re.sub(r"/\*.*?\*/", "", header, flags=re.S)
+    declared = set(re.findall(r"^\S.*?\b(motor_\w+)\s*\(", code, flags=re.M))
+    assert declared == {names.lookup, names.clear, names.update} == {"motor_lookup", "motor_clear", "motor_update"}
+    assert not re.search(r"motor_\w*(f32|q15|q31)\b", code)
+    assert f"#define MOTOR_NUMBER_FORMAT (MOTOR_FORMAT_{number_format.upper()})" in code
+    for name, value in FORMAT_CODES.items():
+        assert f"#define MOTOR_FORMAT_{name.upper()} ({value})" in code
+    assert sorted(FORMAT_CODES.values()) == [1, 2, 3]  # 0 (an undefined macro in #if) matches none
+
+
+@pytest.mark.skipif(not __import__("shutil").which("gcc"), reason="no host gcc")
+@pytest.mark.parametrize("number_format", ["float32", "q15"])
+def test_the_format_macro_selects_code_in_the_preprocessor(number_format, tmp_path):
+    # Reference: the C preprocessor (gcc) evaluates the macro in #if, as an
+    # integrator's build would.
+    import subprocess
+
+    for name, text in render_files(make_table("pi"), number_format, "motor", SHA).items():
+        (tmp_path / name).write_text(text)
+    probe = tmp_path / "probe.c"
+    probe.write_text(
+        '#include "motor.h"\n'
+        "#if MOTOR_NUMBER_FORMAT == MOTOR_FORMAT_Q15\nint format_is = 15;\n"
+        "#elif MOTOR_NUMBER_FORMAT == MOTOR_FORMAT_FLOAT32\nint format_is = 32;\n#endif\n"
+    )
+    done = subprocess.run(["gcc", "-std=c99", "-E", "-P", str(probe)], capture_output=True, text=True, check=True)
+    assert f"int format_is = {15 if number_format == 'q15' else 32};" in done.stdout

@@ -23,13 +23,18 @@ Rules (C99 7.1.3 "Reserved identifiers" and 6.4.2.1, from memory):
   upper-case letter (``<errno.h>``), ``int``/``uint`` names ending in ``_t``
   (``<stdint.h>``);
 - at most :data:`MAX_PREFIX_LENGTH` characters for the prefix, so the longest
-  external name (``<prefix>_reset_f32``) stays within the 31 significant
-  initial characters C99 5.2.4.1 guarantees for external identifiers.
+  external name (``<prefix>_limits_t``, ``<prefix>_update``) stays within the
+  31 significant initial characters C99 5.2.4.1 guarantees for external
+  identifiers.
+
+:class:`CNames` builds every name of the generated C from the prefix, in
+this one place: the templates, the harness and the docs read it.
 """
 
 from __future__ import annotations
 
 import re
+from dataclasses import dataclass
 
 from .errors import CodegenError
 
@@ -40,6 +45,9 @@ __all__ = [
     "prefix_problem",
     "validate_prefix",
     "validate_fragment",
+    "FORMAT_CODES",
+    "CNames",
+    "c_names",
 ]
 
 #: Keywords of C99, C11 and C23 (ISO/IEC 9899 section 6.4.1, from memory).
@@ -51,8 +59,9 @@ C_KEYWORDS: frozenset[str] = frozenset(
 )
 
 #: Longest prefix accepted: 31 significant characters minus the longest
-#: suffix gainloom appends to an external name (``_reset_f32``, 10 characters),
-#: with one to spare.
+#: word gainloom appends to an external name (``_limits_t``, 9 characters),
+#: with two to spare (the limit predates the current names and is kept so
+#: no prefix that was accepted before is refused now).
 MAX_PREFIX_LENGTH = 20
 
 #: Longest axis or coefficient name accepted inside an identifier.
@@ -147,3 +156,118 @@ def validate_fragment(kind: str, name: str) -> str:
     if problem:
         raise CodegenError(problem)
     return name
+
+
+#: Value of ``<PREFIX>_NUMBER_FORMAT`` per number format.  0 is left unused:
+#: an undefined macro reads as 0 in ``#if``, so it never matches a format.
+FORMAT_CODES: dict[str, int] = {"float32": 1, "q15": 2, "q31": 3}
+
+
+@dataclass(frozen=True)
+class CNames:
+    """Every identifier of the generated C for one prefix.
+
+    Functions: ``lookup`` (interpolate the table at the scheduling inputs),
+    ``clear`` (zero the controller state), ``update`` (one controller step).
+    Types: ``gains_t``, ``state_t``, ``limits_t`` (run-time output limits).
+    Macros are upper case: ``macro("AXIS", "SPEED", "LEN")`` gives
+    ``MOTOR_AXIS_SPEED_LEN``.  File-local helpers use :meth:`local`.
+
+    Parameters
+    ----------
+    prefix : str
+        A prefix accepted by :func:`validate_prefix`.
+    """
+
+    prefix: str
+
+    def __post_init__(self) -> None:
+        validate_prefix(self.prefix)
+
+    @property
+    def upper(self) -> str:
+        """Start of every macro: the prefix in upper case."""
+        return self.prefix.upper()
+
+    @property
+    def header(self) -> str:
+        """Header file name."""
+        return f"{self.prefix}.h"
+
+    @property
+    def source(self) -> str:
+        """Source file name."""
+        return f"{self.prefix}.c"
+
+    @property
+    def lookup(self) -> str:
+        """Function that interpolates the coefficients at the scheduling inputs."""
+        return f"{self.prefix}_lookup"
+
+    @property
+    def clear(self) -> str:
+        """Function that zeroes the controller state."""
+        return f"{self.prefix}_clear"
+
+    @property
+    def update(self) -> str:
+        """Function that runs one controller step."""
+        return f"{self.prefix}_update"
+
+    @property
+    def gains_t(self) -> str:
+        """Type of the interpolated coefficients."""
+        return f"{self.prefix}_gains_t"
+
+    @property
+    def state_t(self) -> str:
+        """Type of the controller state."""
+        return f"{self.prefix}_state_t"
+
+    @property
+    def limits_t(self) -> str:
+        """Type of the optional run-time output limits."""
+        return f"{self.prefix}_limits_t"
+
+    @property
+    def guard(self) -> str:
+        """Include guard of the header."""
+        return self.macro("H")
+
+    @property
+    def number_format(self) -> str:
+        """Macro holding the number format's code (:data:`FORMAT_CODES`)."""
+        return self.macro("NUMBER_FORMAT")
+
+    def format_code(self, number_format: str) -> str:
+        """Macro naming one number format's code, e.g. ``MOTOR_FORMAT_Q15``."""
+        return self.macro("FORMAT", number_format.upper())
+
+    @property
+    def verified(self) -> str:
+        """Macro: 1 when the table passed verification, else 0."""
+        return self.macro("VERIFIED")
+
+    @property
+    def accept_unverified(self) -> str:
+        """Macro an integrator defines to compile an unverified table anyway."""
+        return self.macro("ACCEPT_UNVERIFIED")
+
+    def macro(self, *words: str) -> str:
+        """``<PREFIX>_<WORD>_...`` in upper case."""
+        return "_".join([self.upper, *(w.upper() for w in words)])
+
+    def local(self, *words: str) -> str:
+        """``<prefix>_<word>_...``: file-local (``static``) names of the source."""
+        return "_".join([self.prefix, *words])
+
+
+def c_names(prefix: str) -> CNames:
+    """The :class:`CNames` of ``prefix`` (validated, never rewritten).
+
+    Raises
+    ------
+    CodegenError
+        When the prefix cannot start a C name.
+    """
+    return CNames(prefix)

@@ -26,7 +26,9 @@ With no compiler on the machine the result says so (``status ==
 
 from __future__ import annotations
 
+import dataclasses
 import functools
+import hashlib
 import os
 import shlex
 import shutil
@@ -44,7 +46,20 @@ from .layout import AxisLayout, TableLayout, layout_table
 from .mirror import lookup_gains, output_code, run_steps, state_fields
 from .render import c_float_exact, render_template, template_context
 
-__all__ = ["WARNING_FLAGS", "SANITIZER_FLAGS", "HarnessResult", "find_compiler", "check_generated_c"]
+__all__ = [
+    "WARNING_FLAGS",
+    "SANITIZER_FLAGS",
+    "HarnessResult",
+    "GeneratedFiles",
+    "HarnessProgram",
+    "OutputComparison",
+    "find_compiler",
+    "c_literals",
+    "generated_files",
+    "harness_program",
+    "compare_output",
+    "check_generated_c",
+]
 
 #: Warnings the generated C must compile clean under, as errors.
 WARNING_FLAGS: tuple[str, ...] = (
@@ -93,6 +108,9 @@ class HarnessResult:
         coefficients / signals for float32).
     saturated_high, saturated_low : int
         Steps whose output sat on the upper / lower limit.
+    output_sha256 : str or None
+        SHA-256 of everything the harness printed (another build of the
+        same harness, e.g. on the target, must print the same bytes).
     diagnostics : str
         Compiler or run-time messages (empty when all went well).
     """
@@ -111,6 +129,7 @@ class HarnessResult:
     step_tolerance: float = float("nan")
     saturated_high: int = 0
     saturated_low: int = 0
+    output_sha256: str | None = None
     diagnostics: str = field(default="", repr=False)
 
     @property
@@ -137,6 +156,7 @@ class HarnessResult:
             "step_tolerance": self.step_tolerance,
             "saturated_high": self.saturated_high,
             "saturated_low": self.saturated_low,
+            "output_sha256": self.output_sha256,
         }
 
 
@@ -256,7 +276,8 @@ def _step_inputs(layout: TableLayout, rng: np.random.Generator, steps: int) -> t
     return inputs, errors
 
 
-def _literals(values: np.ndarray, fixed: bool) -> list[str]:
+def c_literals(values: np.ndarray, fixed: bool) -> list[str]:
+    """C literals of input vectors (exact: integers, or float32 in hex-float form)."""
     if fixed:
         # INT32_MIN has no literal form: write it as an expression
         return [f"({int(v) + 1} - 1)" if int(v) == -(2**31) else str(int(v)) for v in values]
@@ -267,7 +288,9 @@ def _parse(text: str, fixed: bool, tag: str) -> np.ndarray:
     rows = [line.split()[1:] for line in text.splitlines() if line.startswith(tag)]
     if fixed:
         return np.array([[int(v) for v in row] for row in rows], dtype=np.int64)
-    return np.array([[float.fromhex(v) for v in row] for row in rows], dtype=np.float64)
+    # float32 bit patterns: exact, and printable by C libraries without %a (newlib's)
+    bits = np.array([[int(v, 16) for v in row] for row in rows], dtype=np.uint32)
+    return bits.view(np.float32).astype(np.float64)
 
 
 def _difference(c_values: np.ndarray, mirror: np.ndarray) -> np.ndarray:
@@ -300,6 +323,208 @@ def _agree(key: str, given, recorded):
     return given
 
 
+@dataclass(frozen=True)
+class GeneratedFiles:
+    """The generated files and the settings they were generated with.
+
+    Attributes
+    ----------
+    sources, headers : tuple of Path
+        The ``.c`` and ``.h`` files.
+    number_format, prefix : str
+    error_full_scale, output_full_scale : float or None
+    """
+
+    sources: tuple[Path, ...]
+    headers: tuple[Path, ...]
+    number_format: str
+    prefix: str
+    error_full_scale: float | None
+    output_full_scale: float | None
+
+
+def generated_files(
+    files: Iterable[str | os.PathLike],
+    *,
+    number_format: str | None = None,
+    prefix: str | None = None,
+    error_full_scale: float | None = None,
+    output_full_scale: float | None = None,
+) -> GeneratedFiles:
+    """Sort the generated files and settle their settings against the header's banner.
+
+    A setting not given is read from the banner; one that contradicts the
+    banner is refused (:class:`~gainloom.errors.CodegenError`).
+    """
+    files = [Path(f) for f in files]
+    sources = tuple(f for f in files if f.suffix == ".c")
+    headers = tuple(f for f in files if f.suffix == ".h")
+    if not sources or not headers:
+        raise CodegenError(f"expected a generated .h and .c; got {[str(f) for f in files]}")
+    recorded = _banner_options(headers[0])
+    number_format = _agree("format", number_format, recorded.get("format"))
+    prefix = _agree("prefix", prefix, recorded.get("prefix"))
+    scales = {}
+    for key, value in (("error_full_scale", error_full_scale), ("output_full_scale", output_full_scale)):
+        scales[key] = _agree(key, value, float(recorded[key]) if key in recorded else None)
+    if number_format is None or prefix is None:
+        raise CodegenError(f"{headers[0]}: no gainloom banner; pass number_format and prefix")
+    return GeneratedFiles(sources, headers, number_format, prefix, **scales)
+
+
+@dataclass(frozen=True)
+class HarnessProgram:
+    """The harness C source and the vectors it runs (the same on host and target).
+
+    Attributes
+    ----------
+    layout : TableLayout
+    source : str
+        Text of ``harness.c``: prints one ``G`` line per lookup and one ``S``
+        line (output, then states) per step; fixed point as decimal
+        integers, float32 as the 8 hex digits of each IEEE bit pattern.
+    point_inputs, step_inputs : tuple of ndarray
+        Scheduling inputs per axis of the lookups and of the steps.
+    errors : ndarray
+        Error sample of each step.
+    clear_at : int
+        Step before which the state is cleared again.
+    """
+
+    layout: TableLayout
+    source: str
+    point_inputs: tuple[np.ndarray, ...]
+    step_inputs: tuple[np.ndarray, ...]
+    errors: np.ndarray
+    clear_at: int
+
+    @property
+    def steps(self) -> int:
+        """Controller steps the harness runs."""
+        return int(self.errors.size)
+
+
+def harness_program(
+    table: GainTable, generated: GeneratedFiles, *, points: int = 1200, steps: int = 6000, seed: int = 0
+) -> HarnessProgram:
+    """Vectors and harness source for a generated table (see :func:`check_generated_c`)."""
+    if points < 1000 or steps < 5000:
+        raise CodegenError(f"the harness compares at least 1000 points and 5000 steps; got {points}, {steps}")
+    layout = layout_table(
+        table,
+        generated.number_format,
+        error_full_scale=generated.error_full_scale,
+        output_full_scale=generated.output_full_scale,
+    )
+    fixed = layout.fmt.is_fixed
+    rng = np.random.default_rng(seed)
+    point_inputs = _point_inputs(layout, rng, points)
+    step_inputs, errors = _step_inputs(layout, rng, steps)
+    clear_at = steps // 2
+    context = template_context(layout, generated.prefix, "0" * 64, {"harness": "host"})
+    context.update(
+        points_count=int(point_inputs[0].size),
+        steps_count=steps,
+        clear_at=clear_at,
+        point_inputs=[c_literals(v, fixed) for v in point_inputs],
+        step_inputs=[c_literals(v, fixed) for v in step_inputs],
+        step_errors=c_literals(errors, fixed),
+    )
+    source = render_template("harness.c.j2", context)
+    return HarnessProgram(layout, source, tuple(point_inputs), tuple(step_inputs), errors, clear_at)
+
+
+@dataclass(frozen=True)
+class OutputComparison:
+    """A harness output compared with the Python mirror (fields as in :class:`HarnessResult`)."""
+
+    status: str
+    message: str
+    points: int = 0
+    steps: int = 0
+    worst_gain_error: float = float("nan")
+    worst_step_error: float = float("nan")
+    gain_tolerance: float = float("nan")
+    step_tolerance: float = float("nan")
+    saturated_high: int = 0
+    saturated_low: int = 0
+
+
+def _mirror_outputs(program: HarnessProgram) -> tuple[np.ndarray, np.ndarray]:
+    """What the mirror says the harness prints: gains per lookup, outputs and states per step."""
+    layout, clear_at = program.layout, program.clear_at
+    mirror_gains = lookup_gains(layout, *program.point_inputs)
+    step_gains = lookup_gains(layout, *program.step_inputs)
+    first = run_steps(layout, {n: v[:clear_at] for n, v in step_gains.items()}, program.errors[:clear_at])
+    second = run_steps(layout, {n: v[clear_at:] for n, v in step_gains.items()}, program.errors[clear_at:])
+    fields = state_fields(layout.structure)
+    mirror_steps = np.column_stack(
+        [np.concatenate([first.output, second.output])]
+        + [np.concatenate([first.states[f], second.states[f]]) for f in fields]
+    )
+    mirror_table = np.column_stack([mirror_gains[c.name] for c in layout.coefficients])
+    return mirror_table, mirror_steps
+
+
+def _tolerances(layout: TableLayout, mirror_steps: np.ndarray, steps: int) -> tuple[np.ndarray, np.ndarray]:
+    """Accepted differences per coefficient and per printed signal (see the module notes)."""
+    if layout.fmt.is_fixed:
+        return np.zeros(len(layout.coefficients)), np.zeros(mirror_steps.shape[1])
+    stages = 3 if len(layout.axes) == 2 else 1
+    gain_tol = np.array([4 * stages * _EPS32 * float(np.max(np.abs(c.stored))) for c in layout.coefficients])
+    with np.errstate(invalid="ignore"):
+        scale = np.nanmax(np.abs(mirror_steps), axis=0)
+    step_tol = 8 * _EPS32 * np.sqrt(steps) * np.maximum(scale, max(abs(float(v)) for v in layout.limits))
+    return gain_tol, step_tol
+
+
+def compare_output(program: HarnessProgram, stdout: str) -> OutputComparison:
+    """Compare what a harness run printed with the Python mirror.
+
+    Q15/Q31 must agree bit for bit; float32 within the tolerances of the
+    module notes.
+    """
+    layout, steps = program.layout, program.steps
+    fixed = layout.fmt.is_fixed
+    c_gains = _parse(stdout, fixed, "G")
+    c_steps = _parse(stdout, fixed, "S")
+    mirror_table, mirror_steps = _mirror_outputs(program)
+    if c_gains.shape != mirror_table.shape or c_steps.shape != mirror_steps.shape:
+        return OutputComparison(
+            "failed",
+            f"harness printed {c_gains.shape} gains and {c_steps.shape} steps; expected "
+            f"{mirror_table.shape} and {mirror_steps.shape}",
+        )
+    gain_diff = _difference(c_gains, mirror_table)
+    step_diff = _difference(c_steps, mirror_steps)
+    gain_tol, step_tol = _tolerances(layout, mirror_steps, steps)
+    if fixed:
+        out_low, out_high = (output_code(layout, v) for v in layout.limits)
+    else:
+        out_low, out_high = (float(v) for v in layout.limits)
+    gains_ok = bool(np.all(gain_diff <= gain_tol))
+    steps_ok = bool(np.all(step_diff <= step_tol))
+    outputs = mirror_steps[:, 0]
+    verdict = "bit-exact" if fixed else "within tolerance"
+    message = f"{c_gains.shape[0]} lookups and {steps} steps " + (
+        verdict if gains_ok and steps_ok else ""
+    ) + ("" if gains_ok else "; gains differ from the mirror") + (
+        "" if steps_ok else "; controller steps differ from the mirror"
+    )
+    return OutputComparison(
+        "passed" if gains_ok and steps_ok else "failed",
+        message.strip(),
+        points=int(c_gains.shape[0]),
+        steps=steps,
+        worst_gain_error=float(np.max(gain_diff)),
+        worst_step_error=float(np.max(step_diff)),
+        gain_tolerance=float(np.max(gain_tol)),
+        step_tolerance=float(np.max(step_tol)),
+        saturated_high=int(np.sum(outputs >= out_high)),
+        saturated_low=int(np.sum(outputs <= out_low)),
+    )
+
+
 def check_generated_c(
     files: Iterable[str | os.PathLike],
     table: GainTable,
@@ -329,8 +554,8 @@ def check_generated_c(
     points : int
         Gain lookups to compare (at least 1000).
     steps : int
-        Controller steps to compare (at least 5000); the state is reset
-        half-way to check the reset function.
+        Controller steps to compare (at least 5000); the state is cleared
+        half-way to check the clear function.
     seed : int
         Seed of the random inputs (results are deterministic).
     compiler : list of str, optional
@@ -343,59 +568,33 @@ def check_generated_c(
     if points < 1000 or steps < 5000:
         raise CodegenError(f"the harness compares at least 1000 points and 5000 steps; got {points}, {steps}")
     files = [Path(f) for f in files]
-    sources = [f for f in files if f.suffix == ".c"]
-    headers = [f for f in files if f.suffix == ".h"]
-    if not sources or not headers:
-        raise CodegenError(f"expected a generated .h and .c; got {[str(f) for f in files]}")
-    recorded = _banner_options(headers[0])
-    number_format = _agree("format", number_format, recorded.get("format"))
-    prefix = _agree("prefix", prefix, recorded.get("prefix"))
-    for key, value in (("error_full_scale", error_full_scale), ("output_full_scale", output_full_scale)):
-        banner_value = float(recorded[key]) if key in recorded else None
-        agreed = _agree(key, value, banner_value)
-        if key == "error_full_scale":
-            error_full_scale = agreed
-        else:
-            output_full_scale = agreed
-    if number_format is None or prefix is None:
-        raise CodegenError(f"{headers[0]}: no gainloom banner; pass number_format and prefix")
+    generated = generated_files(
+        files,
+        number_format=number_format,
+        prefix=prefix,
+        error_full_scale=error_full_scale,
+        output_full_scale=output_full_scale,
+    )
     command = compiler or find_compiler()
     if command is None:
         return HarnessResult(
             "no-compiler", "no C compiler found ($CC, cc, gcc, clang): the generated C was NOT checked"
         )
     version, sanitizers = _compiler_facts(tuple(command))
-    layout = layout_table(
-        table, number_format, error_full_scale=error_full_scale, output_full_scale=output_full_scale
-    )
-    fixed = layout.fmt.is_fixed
-    rng = np.random.default_rng(seed)
-    point_inputs = _point_inputs(layout, rng, points)
-    step_inputs, errors = _step_inputs(layout, rng, steps)
-    reset_at = steps // 2
-
-    context = template_context(layout, prefix, "0" * 64, {"harness": "host"})
-    context.update(
-        points_count=int(point_inputs[0].size),
-        steps_count=steps,
-        reset_at=reset_at,
-        point_inputs=[_literals(v, fixed) for v in point_inputs],
-        step_inputs=[_literals(v, fixed) for v in step_inputs],
-        step_errors=_literals(errors, fixed),
-    )
-    harness_text = render_template("harness.c.j2", context)
+    program = harness_program(table, generated, points=points, steps=steps, seed=seed)
     flags = ("-std=c99", "-O1", *WARNING_FLAGS) + (SANITIZER_FLAGS if sanitizers else ())
     common = dict(compiler=" ".join(command), compiler_version=version, flags=flags, sanitizers=sanitizers)
+    sources = [s.name for s in generated.sources]
 
     with tempfile.TemporaryDirectory(prefix="gainloom-harness-") as tmp:
         work = Path(tmp)
         for f in files:
             shutil.copyfile(f, work / f.name)
-        (work / "harness.c").write_text(harness_text, encoding="utf-8")
-        c11 = _run([*command, "-std=c11", *WARNING_FLAGS, "-fsyntax-only", *[s.name for s in sources]], work)
+        (work / "harness.c").write_text(program.source, encoding="utf-8")
+        c11 = _run([*command, "-std=c11", *WARNING_FLAGS, "-fsyntax-only", *sources], work)
         if c11.returncode != 0:
             return HarnessResult("failed", "generated C does not compile as C11", diagnostics=c11.stderr, **common)
-        built = _run([*command, *flags, *[s.name for s in sources], "harness.c", "-o", "harness"], work)
+        built = _run([*command, *flags, *sources, "harness.c", "-o", "harness"], work)
         if built.returncode != 0:
             return HarnessResult("failed", "generated C does not compile as C99", diagnostics=built.stderr, **common)
         ran = _run([str(work / "harness")], work, _env())
@@ -403,61 +602,10 @@ def check_generated_c(
             return HarnessResult(
                 "failed", f"harness exited with code {ran.returncode}", diagnostics=ran.stderr[-4000:], **common
             )
-    c_gains = _parse(ran.stdout, fixed, "G")
-    c_steps = _parse(ran.stdout, fixed, "S")
-
-    mirror_gains = lookup_gains(layout, *point_inputs)
-    step_gains = lookup_gains(layout, *step_inputs)
-    first = run_steps(layout, {n: v[:reset_at] for n, v in step_gains.items()}, errors[:reset_at])
-    second = run_steps(layout, {n: v[reset_at:] for n, v in step_gains.items()}, errors[reset_at:])
-    fields = state_fields(layout.structure)
-    mirror_steps = np.column_stack(
-        [np.concatenate([first.output, second.output])]
-        + [np.concatenate([first.states[f], second.states[f]]) for f in fields]
-    )
-    names = [c.name for c in layout.coefficients]
-    mirror_table = np.column_stack([mirror_gains[n] for n in names])
-    if c_gains.shape != mirror_table.shape or c_steps.shape != mirror_steps.shape:
-        return HarnessResult(
-            "failed",
-            f"harness printed {c_gains.shape} gains and {c_steps.shape} steps; expected "
-            f"{mirror_table.shape} and {mirror_steps.shape}",
-            diagnostics=ran.stderr,
-            **common,
-        )
-    gain_diff = _difference(c_gains, mirror_table)
-    step_diff = _difference(c_steps, mirror_steps)
-    if fixed:
-        gain_tol = np.zeros(len(names))
-        step_tol = np.zeros(mirror_steps.shape[1])
-        out_low, out_high = (output_code(layout, v) for v in layout.limits)
-    else:
-        stages = 3 if len(layout.axes) == 2 else 1
-        gain_tol = np.array([4 * stages * _EPS32 * float(np.max(np.abs(c.stored))) for c in layout.coefficients])
-        with np.errstate(invalid="ignore"):
-            scale = np.nanmax(np.abs(mirror_steps), axis=0)
-        step_tol = 8 * _EPS32 * np.sqrt(steps) * np.maximum(scale, max(abs(float(v)) for v in layout.limits))
-        out_low, out_high = (float(v) for v in layout.limits)
-    gains_ok = bool(np.all(gain_diff <= gain_tol))
-    steps_ok = bool(np.all(step_diff <= step_tol))
-    outputs = mirror_steps[:, 0]
-    result = HarnessResult(
-        "passed" if gains_ok and steps_ok else "failed",
-        (
-            f"{c_gains.shape[0]} lookups and {steps} steps "
-            + ("bit-exact" if fixed and gains_ok and steps_ok else "within tolerance" if gains_ok and steps_ok else "")
-            + ("" if gains_ok else "; gains differ from the mirror")
-            + ("" if steps_ok else "; controller steps differ from the mirror")
-        ).strip(),
-        points=int(c_gains.shape[0]),
-        steps=steps,
-        worst_gain_error=float(np.max(gain_diff)),
-        worst_step_error=float(np.max(step_diff)),
-        gain_tolerance=float(np.max(gain_tol)),
-        step_tolerance=float(np.max(step_tol)),
-        saturated_high=int(np.sum(outputs >= out_high)),
-        saturated_low=int(np.sum(outputs <= out_low)),
+    comparison = compare_output(program, ran.stdout)
+    return HarnessResult(
+        **dataclasses.asdict(comparison),
+        output_sha256=hashlib.sha256(ran.stdout.encode("utf-8")).hexdigest(),
         diagnostics=ran.stderr,
         **common,
     )
-    return result

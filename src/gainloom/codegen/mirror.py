@@ -176,7 +176,7 @@ class StepTrace:
 
 
 def run_steps(layout: TableLayout, gains: dict[str, np.ndarray], errors) -> StepTrace:
-    """Run the controller step from a reset state, one step per error sample.
+    """Run the controller step from a cleared state, one step per error sample.
 
     Parameters
     ----------

@@ -69,8 +69,6 @@ class NumberFormat:
         Storage width of coefficients and signals (32 for float32).
     c_type : str
         C type of coefficients and of the error/output signals.
-    suffix : str
-        Suffix of generated function names (``f32``, ``q15``, ``q31``).
     interp_frac : int
         Fraction bits of the interpolation weight ``t`` (fixed point only):
         ``t`` runs over ``[0, 2**interp_frac]``.  15 for Q15; 30 for Q31 so
@@ -80,7 +78,6 @@ class NumberFormat:
     name: str
     bits: int
     c_type: str
-    suffix: str
     interp_frac: int
 
     @property
@@ -105,9 +102,9 @@ class NumberFormat:
 
 
 _FORMATS = {
-    "float32": NumberFormat("float32", 32, "float", "f32", 0),
-    "q15": NumberFormat("q15", 16, "int16_t", "q15", 15),
-    "q31": NumberFormat("q31", 32, "int32_t", "q31", 30),
+    "float32": NumberFormat("float32", 32, "float", 0),
+    "q15": NumberFormat("q15", 16, "int16_t", 15),
+    "q31": NumberFormat("q31", 32, "int32_t", 30),
 }
 assert tuple(_FORMATS) == NUMBER_FORMATS
 

@@ -22,7 +22,7 @@ import numpy as np
 
 from .. import __version__
 from ..errors import CodegenError
-from ..c_names import validate_prefix
+from ..c_names import FORMAT_CODES, c_names
 from .layout import GAIN_COEFFICIENTS, TableLayout
 from .mirror import state_fields
 from .qformat import STATE_FRAC
@@ -164,9 +164,9 @@ def _literal(layout: TableLayout, value) -> str:
 
 
 def _context(layout: TableLayout, prefix: str, source_sha256: str, options: dict) -> dict:
-    validate_prefix(prefix)
+    names = c_names(prefix)
     fmt = layout.fmt
-    upper = prefix.upper()
+    upper = names.upper
     seen = set()
     for axis in layout.axes:
         if axis.name.upper() in seen:
@@ -230,9 +230,11 @@ def _context(layout: TableLayout, prefix: str, source_sha256: str, options: dict
         "caution": textwrap.wrap(CAUTION, 74),
         "prefix": prefix,
         "upper": upper,
+        "names": names,
+        "format_codes": [(names.format_code(name), code) for name, code in FORMAT_CODES.items()],
         "fmt": {
             "name": fmt.name,
-            "suffix": fmt.suffix,
+            "code_macro": names.format_code(fmt.name),
             "coef_t": fmt.c_type,
             "sig_t": fmt.c_type,
             "in_t": "int32_t" if fmt.is_fixed else "float",
@@ -271,7 +273,7 @@ def render_c(
         From :func:`gainloom.codegen.layout.layout_table`.
     prefix : str
         Start of every generated identifier (see
-        :func:`~gainloom.codegen.identifiers.validate_prefix`).
+        :class:`gainloom.c_names.CNames`).
     source_sha256 : str or None
         SHA-256 of the schedule file, for the banner.
     options : dict, optional
@@ -284,8 +286,8 @@ def render_c(
     """
     context = _context(layout, prefix, source_sha256, dict(options or {}))
     return {
-        f"{prefix}.h": render_template("table.h.j2", context),
-        f"{prefix}.c": render_template("table.c.j2", context),
+        context["names"].header: render_template("table.h.j2", context),
+        context["names"].source: render_template("table.c.j2", context),
     }
 
 

@@ -140,6 +140,7 @@ _C_CHECK = _obj({
     "step_tolerance": NUMBER,
     "saturated_high": INT,
     "saturated_low": INT,
+    "output_sha256": (STRING, NULL),
 })
 
 # The simulation block is SimulationResult.to_dict(series=False) of the
