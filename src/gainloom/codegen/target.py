@@ -172,13 +172,13 @@ def check_target(
             shutil.copyfile(f, work / f.name)
         caller = work / "caller.c"
         caller.write_text(measure_source(program, generated.prefix), encoding="utf-8")
-        rules = check_rules([work / f.name for f in files], caller, tools.cppcheck)
+        rules = check_rules([work / f.name for f in files], caller, tools.cppcheck, generated.defines)
         if missing:
             return TargetResult("not-checked", f"not checked: {', '.join(missing)} not found",
                                 generated.number_format, missing=missing, rules=rules)
         sources = [work / s.name for s in generated.sources]
         for core in CORES:
-            build = build_for_core(tools, core, sources, work, fixed)
+            build = build_for_core(tools, core, sources, work, fixed, generated.defines)
             builds.append(build)
             if build.builds:
                 runs.append(run_harness(tools, build, program, work, host_sha256))
