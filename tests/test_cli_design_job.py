@@ -53,7 +53,7 @@ def test_full_run_in_a_subprocess(tmp_path, schedule):
     done = subprocess.run([sys.executable, "-m", "gainloom", "design", str(schedule), "--out", str(out)],
                           capture_output=True, text=True, env=env, timeout=300, check=False)
     assert done.returncode == 0, done.stdout + done.stderr
-    for stage in ("design", "C code", "C check", "quantisation", "simulation", "log"):
+    for stage in ("design", "C code", "C check", "target", "C rules", "quantisation", "simulation", "log"):
         assert any(line.startswith(stage + " ") for line in done.stdout.splitlines()), stage
     assert "\nPASS" in done.stdout
     assert f"gains file: {out / 'gains.yaml'}" in done.stdout
@@ -96,8 +96,8 @@ def test_format_prefix_and_json(tmp_path, schedule, main):
     assert done.returncode == 0, done.stderr
     report = json.loads(done.stdout)
     assert report["number_format"] == "float32" and report["prefix"] == "fanx"
-    assert [s["stage"] for s in report["stages"]] == ["design", "C code", "C check", "quantisation",
-                                                      "simulation", "log"]
+    assert [s["stage"] for s in report["stages"]] == ["design", "C code", "C check", "target", "C rules",
+                                                      "quantisation", "simulation", "log"]
     assert "simulation" in report["not_checked"]
     header = (out / "fanx.h").read_text()
     assert "float32" in header[:2000] and not (out / "fan.h").exists()

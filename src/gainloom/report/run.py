@@ -6,6 +6,10 @@
 2. render the C header and source in the emitted number format;
 3. compile them and run the host harness against the Python mirror, when a
    C compiler is present (none found: "not checked", neither pass nor fail);
+   then build them for the target cores, run the harness on emulated boards,
+   count instructions and check the coding rules
+   (:func:`gainloom.codegen.target.check_target`; without the tools: "not
+   checked");
 4. verify the table again after rounding to that number format;
 5. run a default scheduled simulation (:func:`default_scenario`) in that
    number format;
@@ -77,8 +81,8 @@ class StageVerdict:
     Parameters
     ----------
     stage : str
-        ``design``, ``C code``, ``C check``, ``quantisation``, ``simulation``
-        or ``log``.
+        ``design``, ``C code``, ``C check``, ``target``, ``C rules``,
+        ``quantisation``, ``simulation`` or ``log``.
     status : str
         ``pass``, ``FAIL``, ``not checked`` or ``written``.
     detail : str
@@ -115,6 +119,8 @@ class JobResult:
     design : DesignResult
     harness : HarnessResult or None
         None when the C check was not asked for.
+    target : TargetResult or None
+        None when the target check was not asked for.
     quantisation : QuantisationResult
     simulation : SimulationResult or None
         None when the simulation was skipped.
@@ -133,6 +139,7 @@ class JobResult:
     schedule: Any
     design: Any
     harness: Any
+    target: Any
     quantisation: Any
     simulation: Any
     scenario: dict[str, Any] | None
@@ -299,6 +306,37 @@ def _harness_stage(harness: Any) -> StageVerdict:
     return StageVerdict("C check", "FAIL", f"{harness.compiler_version}: {harness.message}")
 
 
+def _target_figures(target: Any) -> str:
+    parts = []
+    for core in target.to_dict()["cores"]:
+        counts, build = core["instructions"], core["build"]
+        stack = max((f["stack_bytes"] or 0 for f in build["functions"]), default=0)
+        text = f"{core['core']}: {build['flash_bytes']} B flash, {build['ram_bytes']} B RAM, stack <= {stack} B"
+        if counts:
+            text += (f", lookup {counts['lookup']['min']}..{counts['lookup']['max']}, "
+                     f"step {counts['step']['min']}..{counts['step']['max']} instructions")
+        parts.append(text)
+    return "; ".join(parts)
+
+
+def _target_stage(target: Any) -> StageVerdict:
+    if target is None:
+        return StageVerdict("target", "not checked", "not checked: skipped on request (--no-target)")
+    if target.passed is None:
+        return StageVerdict("target", "not checked", target.message)
+    if target.passed:
+        return StageVerdict("target", "pass", _target_figures(target))
+    return StageVerdict("target", "FAIL", target.message)
+
+
+def _rules_stage(target: Any) -> StageVerdict:
+    if target is None:
+        return StageVerdict("C rules", "not checked", "not checked: skipped on request (--no-target)")
+    rules = target.rules
+    status = {True: "pass", False: "FAIL", None: "not checked"}[rules.passed]
+    return StageVerdict("C rules", status, rules.message)
+
+
 def _quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
     if quantisation.passed:
         return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec")
@@ -335,6 +373,7 @@ def run_design_job(
     prefix: str | None = None,
     force: bool = False,
     compile: bool = True,
+    target: bool = True,
     simulate: bool = True,
     progress: Progress | None = None,
     gains_name: str = "gains.yaml",
@@ -359,6 +398,9 @@ def run_design_job(
         were edited since.
     compile : bool
         Compile the C and run the host harness (when a compiler exists).
+    target : bool
+        Build the C for the target cores, run it emulated, count its
+        instructions and check its coding rules (when the tools exist).
     simulate : bool
         Run the default scheduled simulation (:func:`default_scenario`).
     progress : callable, optional
@@ -383,6 +425,7 @@ def run_design_job(
     from ..codegen.emit import render_files
     from ..codegen.harness import check_generated_c
     from ..codegen.quantisation import check_quantisation
+    from ..codegen.target import check_target
     from ..design.engine import design
     from ..design.gainsfile import render_gains
     from ..outputs import sha256_bytes
@@ -432,6 +475,11 @@ def run_design_job(
             step("check C", 0)
             harness = check_generated_c([stage / n for n in c_texts], result.table, **scales)
             step("check C", 1)
+        target_result = None
+        if target:
+            step("target", 0)
+            target_result = check_target([stage / n for n in c_texts], result.table, host=harness, **scales)
+            step("target", 1)
 
         step("quantisation", 0)
         quantisation = check_quantisation(schedule, result.table, number_format, baseline=result, **scales)
@@ -451,6 +499,7 @@ def run_design_job(
             "c_files": sorted(c_texts),
             "gains_file": gains_name,
             "compile": bool(compile),
+            "target": bool(target),
             "simulate": bool(simulate),
             **{key: value for key, value in scales.items() if value is not None},
         }
@@ -459,6 +508,7 @@ def run_design_job(
         log_files = render_verification(
             schedule=schedule, result=result, table=result.table, gains_path=stage / gains_name,
             harness=harness, quantisation=quantisation, simulation=simulation, options=options, plots=True,
+            target=target_result,
         )
         step("log", 1)
 
@@ -476,6 +526,8 @@ def run_design_job(
         _design_stage(result),
         StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix})"),
         _harness_stage(harness),
+        _target_stage(target_result),
+        _rules_stage(target_result),
         _quantisation_stage(quantisation, number_format),
         _simulation_stage(simulation),
         StageVerdict("log", "written", ", ".join(sorted(log_files))),
@@ -490,6 +542,7 @@ def run_design_job(
         schedule=schedule,
         design=result,
         harness=harness,
+        target=target_result,
         quantisation=quantisation,
         simulation=simulation,
         scenario=description,
