@@ -100,7 +100,7 @@ controller:
 specs:
   min_damping: 0.6
 codegen:
-  prefix: emitcheck
+  prefix: checked_emit
   format: q15
 """
 
@@ -122,7 +122,7 @@ def test_emit_rechecks_the_stored_table_on_the_schedule(tmp_path, capsys):
                  "--json"])
     report = json.loads(capsys.readouterr().out)
     assert code == 0, report
-    assert report["format"] == "q15" and report["prefix"] == "emitcheck"
-    assert (tmp_path / "c" / "emitcheck.h").is_file()
+    assert report["format"] == "q15" and report["prefix"] == "checked_emit"
+    assert (tmp_path / "c" / "checked_emit.h").is_file()
     assert report["stored_table"]["passed"] is True
     assert report["stored_table"]["points_passing"] == report["stored_table"]["points"] == 3

@@ -137,8 +137,8 @@ def test_two_breakpoint_axes_and_negative_coefficients(tmp_path, number_format):
     }
     table = GainTable("pi", axes, coefficients, 5e-5, (-3.0, 3.0))
     scale = None if number_format == "float32" else 10.0
-    files = emit_c(table, tmp_path, number_format, "edge", None, error_full_scale=scale)
-    result = check_generated_c(files, table, number_format=number_format, prefix="edge", error_full_scale=scale)
+    files = emit_c(table, tmp_path, number_format, "rail", None, error_full_scale=scale)
+    result = check_generated_c(files, table, number_format=number_format, prefix="rail", error_full_scale=scale)
     assert result.status == "passed", result.message + "\n" + result.diagnostics
 
 

@@ -61,14 +61,14 @@ def test_a_failure_before_the_replace_leaves_the_previous_files(tmp_path, monkey
     real = outputs._write_temp
     calls = []
 
-    def failing(folder, name, data):
-        calls.append(name)
+    def failing(folder, data):
+        calls.append(data)
         if len(calls) == 2:
             raise OSError(28, "No space left on device")
-        return real(folder, name, data)
+        return real(folder, data)
 
     monkeypatch.setattr(outputs, "_write_temp", failing)
-    with pytest.raises(OSError, match="No space"):
+    with pytest.raises(outputs.OutputWriteError, match="No space"):
         write_outputs(tmp_path, {"a.h": "new h\n", "a.c": "new c\n"})
     monkeypatch.setattr(outputs, "_write_temp", real)
     assert (tmp_path / "a.h").read_text() == "old h\n" and (tmp_path / "a.c").read_text() == "old c\n"
@@ -88,7 +88,7 @@ def test_a_failure_between_replaces_keeps_the_manifest_true_to_disk(tmp_path, mo
         return real(src, dst)
 
     monkeypatch.setattr(outputs.os, "replace", failing)
-    with pytest.raises(OSError):
+    with pytest.raises(outputs.OutputWriteError, match="I/O error"):
         write_outputs(tmp_path, {"a.h": "new h\n", "a.c": "new c\n"})
     monkeypatch.setattr(outputs.os, "replace", real)
     manifest = read_manifest(tmp_path)

@@ -17,37 +17,173 @@ Any layer that writes files (code generation, reports) goes through
    unless ``force=True`` (``--force`` on the command line).
 3. **Deterministic manifest.**  Sorted keys, no timestamps.
 
+4. **No links, no surprises.**  A file gainloom would write or replace (or
+   the manifest) that is a symbolic link, a folder or anything but a regular
+   file is refused, even with ``force``: gainloom never writes through a link
+   to a place outside the folder.  Existing files are read with
+   ``O_NOFOLLOW``, and ``os.replace`` renames over a name without following
+   it.
+5. **Failures of the file system are one clear error.**  A full disk, a
+   read-only folder, a name too long or a folder below a regular file raise
+   :class:`OutputWriteError` (exit 2) naming the path and the reason; the
+   temporary files are removed, the folder's earlier files stay as they
+   were, and a folder this call created is removed again when nothing was
+   written into it.
+
 On POSIX ``os.replace`` of each file is atomic; a crash between two replaces
 can leave a folder with some new and some old files, each of them complete.
-The manifest is rewritten after the replaces and records what is actually on
-disk, so the next run sees a consistent picture.
+The manifest's new content is written (to a temporary file) with the others,
+before the first replace, and moved into place last.
 """
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
 import os
-import tempfile
+import secrets
+import stat
 from collections.abc import Mapping
 from pathlib import Path
 
-from .errors import InputError
+from .errors import GainloomError, InputError
 
-__all__ = ["MANIFEST_NAME", "OutputConflictError", "write_outputs", "read_manifest", "sha256_bytes"]
+__all__ = [
+    "MANIFEST_NAME",
+    "OutputConflictError",
+    "OutputWriteError",
+    "check_output_folder",
+    "describe_os_error",
+    "write_outputs",
+    "read_manifest",
+    "sha256_bytes",
+]
 
 #: File name of the manifest in every output folder gainloom writes.
 MANIFEST_NAME = ".gainloom-manifest.json"
 _MANIFEST_FORMAT = "gainloom-manifest/1"
+_TEMP_START = ".gainloom-tmp-"
+#: Longest output file name in bytes (the common file-system limit, NAME_MAX).
+_NAME_MAX = 255
 
 
 class OutputConflictError(InputError):
-    """An output file exists that gainloom did not write (or that was edited)."""
+    """An output file exists that gainloom did not write (or that was edited),
+    or is in the way: a symbolic link, a folder, not a regular file."""
+
+
+class OutputWriteError(GainloomError):
+    """The file system refused to create or write an output (disk full,
+    read-only, name too long, ...).  Nothing was replaced."""
 
 
 def sha256_bytes(data: bytes) -> str:
     """Hex SHA-256 of ``data``."""
     return hashlib.sha256(data).hexdigest()
+
+
+def describe_os_error(error: OSError) -> str:
+    """One line for an ``OSError``: path, reason and errno name.
+
+    Parameters
+    ----------
+    error : OSError
+        The error as raised by the operating system call.
+    """
+    code = errno.errorcode.get(error.errno or 0)
+    reason = error.strerror or str(error)
+    where = f"{error.filename}: " if error.filename else ""
+    return f"{where}{reason}" + (f" ({code})" if code else "")
+
+
+def _kind(mode: int) -> str:
+    if stat.S_ISLNK(mode):
+        return "a symbolic link"
+    if stat.S_ISDIR(mode):
+        return "a folder"
+    if stat.S_ISFIFO(mode):
+        return "a named pipe"
+    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        return "a device"
+    if stat.S_ISSOCK(mode):
+        return "a socket"
+    return "not a regular file"
+
+
+def _existing_regular(path: Path) -> bool:
+    """True if ``path`` is a regular file, False if absent; refuse anything else."""
+    try:
+        mode = os.lstat(path).st_mode
+    except FileNotFoundError:
+        return False
+    except OSError as error:
+        raise OutputWriteError(f"cannot inspect output file: {describe_os_error(error)}") from None
+    if not stat.S_ISREG(mode):
+        raise OutputConflictError(
+            f"refusing to write {path}: it is {_kind(mode)}; gainloom writes only regular files and never "
+            "through a link (not even with --force); remove it or choose another output folder"
+        )
+    return True
+
+
+def _read_regular(path: Path) -> bytes:
+    """Bytes of a regular file, without following a link at its name."""
+    try:
+        descriptor = os.open(path, os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0))
+        with os.fdopen(descriptor, "rb") as stream:
+            return stream.read()
+    except OSError as error:
+        raise OutputWriteError(f"cannot read output file: {describe_os_error(error)}") from None
+
+
+def check_output_folder(folder: str | os.PathLike) -> Path:
+    """Return ``folder`` as a Path if gainloom can create or write it.
+
+    Called before any work is done (so bad output paths are found at once)
+    and again by :func:`write_outputs`.  A folder that is itself a symbolic
+    link to a folder is accepted: the user chose it.
+
+    Parameters
+    ----------
+    folder : path
+        Output folder; need not exist.
+
+    Raises
+    ------
+    InputError
+        Empty path, a path that exists and is not a folder, or one below a
+        regular file.
+    OutputWriteError
+        A folder that exists but cannot be written, or a path the system
+        refuses (name too long, no permission).
+    """
+    text = os.fspath(folder)
+    if not isinstance(text, str) or not text.strip():
+        raise InputError(f"output folder {text!r} is empty; give a folder name (e.g. --out out)")
+    path = Path(text)
+    if path.is_symlink() and not path.exists():
+        raise InputError(f"output folder {path} is a symbolic link to nothing; remove it or choose another folder")
+    probe = path
+    while True:
+        try:
+            mode = os.stat(probe).st_mode
+        except (FileNotFoundError, NotADirectoryError):
+            if probe.parent == probe:
+                break
+            probe = probe.parent
+            continue
+        except OSError as error:
+            raise OutputWriteError(f"cannot use output folder {path}: {describe_os_error(error)}") from None
+        if not stat.S_ISDIR(mode):
+            what = "exists and is" if probe == path else f"lies below {probe}, which is"
+            kind = "a file" if stat.S_ISREG(mode) else _kind(mode)
+            raise InputError(f"output folder {path} {what} {kind}, not a folder")
+        if not os.access(probe, os.W_OK | os.X_OK):
+            doing = "write into" if probe == path else f"create it: no permission to write {probe}, so cannot create"
+            raise OutputWriteError(f"cannot {doing} output folder {path} (read-only or no permission)")
+        break
+    return path
 
 
 def read_manifest(folder: str | os.PathLike) -> dict[str, str]:
@@ -58,13 +194,14 @@ def read_manifest(folder: str | os.PathLike) -> dict[str, str]:
     Raises
     ------
     InputError
-        When the manifest exists but is not one gainloom wrote.
+        When the manifest exists but is not one gainloom wrote, or is a
+        symbolic link or not a regular file.
     """
     path = Path(folder) / MANIFEST_NAME
-    if not path.exists():
+    if not _existing_regular(path):
         return {}
     try:
-        data = json.loads(path.read_text(encoding="utf-8"))
+        data = json.loads(_read_regular(path).decode("utf-8"))
         files = data["files"]
         if data.get("format") != _MANIFEST_FORMAT or not isinstance(files, dict):
             raise ValueError("unexpected layout")
@@ -84,21 +221,28 @@ def _as_bytes(name: str, content: str | bytes) -> bytes:
 
 
 def _check_name(name: str) -> None:
-    if not name or name != Path(name).name or name in (".", "..", MANIFEST_NAME) or name.startswith(".gainloom-tmp"):
+    if not name or name != Path(name).name or name in (".", "..", MANIFEST_NAME) or name.startswith(_TEMP_START):
         raise InputError(f"output file name {name!r} must be a plain file name inside the folder")
+    if len(os.fsencode(name)) > _NAME_MAX:
+        raise InputError(f"output file name {name[:40]!r}... is longer than {_NAME_MAX} bytes")
 
 
-def _write_temp(folder: Path, name: str, data: bytes) -> Path:
-    handle, temp = tempfile.mkstemp(prefix=f".gainloom-tmp-{name}-", dir=folder)
+def _write_temp(folder: Path, data: bytes) -> Path:
+    """Write ``data`` to a new temporary file in ``folder`` (created exclusively)."""
+    temp = folder / f"{_TEMP_START}{secrets.token_hex(8)}"
+    flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_NOFOLLOW", 0)
+    descriptor = os.open(temp, flags, 0o644)
     try:
-        with os.fdopen(handle, "wb") as stream:
-            stream.write(data)
-            stream.flush()
-            os.fsync(stream.fileno())
+        view = memoryview(data)
+        while view:
+            view = view[os.write(descriptor, view):]
+        os.fsync(descriptor)
     except BaseException:
-        Path(temp).unlink(missing_ok=True)
+        os.close(descriptor)
+        temp.unlink(missing_ok=True)
         raise
-    return Path(temp)
+    os.close(descriptor)
+    return temp
 
 
 def _fsync_folder(folder: Path) -> None:
@@ -112,6 +256,41 @@ def _fsync_folder(folder: Path) -> None:
         pass
     finally:
         os.close(descriptor)
+
+
+def _conflicts(folder: Path, names, manifest: dict[str, str]) -> list[str]:
+    found = []
+    for name in names:
+        target = folder / name
+        if not _existing_regular(target):
+            continue
+        if name not in manifest:
+            found.append(f"{target} was not written by gainloom")
+        elif sha256_bytes(_read_regular(target)) != manifest[name]:
+            found.append(f"{target} was changed since gainloom wrote it")
+    return found
+
+
+def _make_folder(folder: Path) -> Path | None:
+    """Create ``folder`` (with parents); return the topmost folder created, if any."""
+    missing = [p for p in (folder, *folder.parents) if not p.exists()]
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as error:
+        raise OutputWriteError(f"cannot create output folder {folder}: {describe_os_error(error)}") from None
+    return missing[-1] if missing else None
+
+
+def _remove_empty(created: Path | None, folder: Path) -> None:
+    if created is None:
+        return
+    for path in (folder, *folder.parents):
+        try:
+            path.rmdir()
+        except OSError:
+            return
+        if path == created:
+            return
 
 
 def write_outputs(folder: str | os.PathLike, files: Mapping[str, str | bytes], *, force: bool = False) -> list[Path]:
@@ -136,55 +315,76 @@ def write_outputs(folder: str | os.PathLike, files: Mapping[str, str | bytes], *
     ------
     OutputConflictError
         When a file would be overwritten that gainloom did not write, or that
-        changed since it did, and ``force`` is false.  Nothing is written.
+        changed since it did, and ``force`` is false; or when a name is taken
+        by a link, a folder or another non-regular file.  Nothing is written.
+    OutputWriteError
+        When the file system refuses (full, read-only, ...).  Nothing is
+        replaced and no temporary file is left.
     InputError
-        For a bad file name or content type.
+        For a bad folder, file name or content type.
     """
-    folder = Path(folder)
     contents = {}
     for name, content in files.items():
         _check_name(name)
         contents[name] = _as_bytes(name, content)
-    if folder.exists() and not folder.is_dir():
-        raise InputError(f"output folder {folder} exists and is not a folder")
-    folder.mkdir(parents=True, exist_ok=True)
-    manifest = read_manifest(folder)
-
-    if not force:
-        conflicts = []
-        for name in contents:
-            target = folder / name
-            if not target.exists():
-                continue
-            if name not in manifest:
-                conflicts.append(f"{target} was not written by gainloom")
-            elif sha256_bytes(target.read_bytes()) != manifest[name]:
-                conflicts.append(f"{target} was changed since gainloom wrote it")
-        if conflicts:
-            raise OutputConflictError(
-                "refusing to overwrite: " + "; ".join(conflicts) + " (use --force, or force=True, to overwrite)"
-            )
+    folder = check_output_folder(folder)
+    created = _make_folder(folder)
+    try:
+        manifest = read_manifest(folder)
+        conflicts = _conflicts(folder, contents, manifest)
+    except GainloomError:
+        _remove_empty(created, folder)
+        raise
+    if conflicts and not force:
+        _remove_empty(created, folder)
+        raise OutputConflictError(
+            "refusing to overwrite: " + "; ".join(conflicts) + " (use --force, or force=True, to overwrite)"
+        )
+    final = {**manifest, **{name: sha256_bytes(data) for name, data in contents.items()}}
+    staged = {**contents, MANIFEST_NAME: _manifest_bytes(final)}
 
     temporaries: dict[str, Path] = {}
     try:
-        for name, data in contents.items():
-            temporaries[name] = _write_temp(folder, name, data)
+        for name, data in staged.items():
+            temporaries[name] = _write_temp(folder, data)
+    except OSError as error:
+        for temp in temporaries.values():
+            temp.unlink(missing_ok=True)
+        _remove_empty(created, folder)
+        raise OutputWriteError(
+            f"cannot write {folder / name}: {describe_os_error(error)}; nothing was replaced "
+            f"and no temporary file is left"
+        ) from None
     except BaseException:
         for temp in temporaries.values():
             temp.unlink(missing_ok=True)
         raise
-
-    written: list[Path] = []
     try:
-        for name, temp in temporaries.items():
+        for name, temp in temporaries.items():  # the manifest last
             os.replace(temp, folder / name)
-            manifest[name] = sha256_bytes(contents[name])
-            written.append(folder / name)
+            if name != MANIFEST_NAME:
+                manifest[name] = final[name]
+    except OSError as error:
+        raise OutputWriteError(
+            f"cannot move {name} into place in {folder}: {describe_os_error(error)}; "
+            + _record_partial(folder, manifest)
+        ) from None
     finally:
         for temp in temporaries.values():
             temp.unlink(missing_ok=True)
-        document = {"format": _MANIFEST_FORMAT, "files": dict(sorted(manifest.items()))}
-        text = json.dumps(document, indent=2, sort_keys=True) + "\n"
-        os.replace(_write_temp(folder, MANIFEST_NAME, text.encode("utf-8")), folder / MANIFEST_NAME)
-        _fsync_folder(folder)
-    return written
+    _fsync_folder(folder)
+    return [folder / name for name in contents]
+
+
+def _manifest_bytes(files: Mapping[str, str]) -> bytes:
+    document = {"format": _MANIFEST_FORMAT, "files": dict(sorted(files.items()))}
+    return (json.dumps(document, indent=2, sort_keys=True) + "\n").encode("utf-8")
+
+
+def _record_partial(folder: Path, on_disk: dict[str, str]) -> str:
+    """After a failed replace: make the manifest say what is on disk; return what happened."""
+    try:
+        os.replace(_write_temp(folder, _manifest_bytes(on_disk)), folder / MANIFEST_NAME)
+    except OSError as error:
+        return f"the manifest could not be updated either ({describe_os_error(error)})"
+    return "every file is whole and the manifest records which version each one is"

@@ -85,6 +85,21 @@ CASES = [
  ("bad_schedule_name", [("name: corpus-base", "name: 2-corpus")], "must start with a letter", "name", "2-corpus", True),
  ("p_without_zero", [("structure: pi", "structure: p")], "structure 'p' has none", "controller.strategy", "pole-cancel", True),
  ("unsupported_tag", [("  Kt: 0.05", "  Kt: !!python/object:os.system 0.05")], "unsupported YAML tag", "parameters.Kt", "!!python", True),
+ # text that reaches the generated C (issue 14: security)
+ ("unit_end_of_comment", [("unit: rpm", 'unit: "rpm */ int injected; /*"')], "'*/', which would end the comment", "variables[0].unit", '"rpm */', True),
+ ("unit_newline", [("unit: rpm", 'unit: "rpm\\n#define injected 1"')], "control or invisible character U+000A", "variables[0].unit", '"rpm\\n', True),
+ ("unit_line_comment", [("unit: rpm", 'unit: "rpm // x"')], "'//', which starts a line comment", "variables[0].unit", '"rpm //', True),
+ ("unit_backslash_newline", [("unit: rpm", 'unit: "rpm\\\\"')], "can splice lines", "variables[0].unit", '"rpm\\\\', True),
+ ("unit_trigraph", [("unit: rpm", 'unit: "rpm ??/"')], "can start a trigraph", "variables[0].unit", '"rpm ??/', True),
+ ("unit_bidi_override", [("unit: rpm", 'unit: "rpm\\u202e"')], "invisible character U+202E", "variables[0].unit", '"rpm\\u202e', True),
+ ("unit_control_character", [("unit: rpm", 'unit: "rpm\\x1b[31m"')], "U+001B", "variables[0].unit", '"rpm\\x1b', True),
+ ("prefix_empty", [("prefix: spd", 'prefix: ""')], "prefix is empty", "codegen.prefix", '""', True),
+ ("prefix_errno_space", [("prefix: spd", "prefix: Efoo")], "<errno.h>", "codegen.prefix", "Efoo", True),
+ ("prefix_errno_macros", [("prefix: spd", "prefix: encoder")], "ENCODER_", "codegen.prefix", "encoder", True),
+ ("prefix_signal_space", [("prefix: spd", "prefix: sigma")], "<signal.h>", "codegen.prefix", "sigma", True),
+ ("prefix_stdint_space", [("prefix: spd", "prefix: int_loop")], "<stdint.h>", "codegen.prefix", "int_loop", True),
+ ("prefix_standard_header", [("prefix: spd", "prefix: math")], "standard C header", "codegen.prefix", "math", True),
+ ("prefix_derived_reserved", [("name: corpus-base", "name: edge-drive"), ("codegen:\n  prefix: spd\n", "codegen:\n")], "derived from the schedule name; set codegen.prefix", "name", "edge-drive", True),
 ]
 out = os.path.dirname(os.path.abspath(__file__))
 os.makedirs(out, exist_ok=True)

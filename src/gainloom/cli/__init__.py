@@ -13,6 +13,7 @@ import sys
 
 from .. import __version__
 from ..errors import GainloomError
+from ..outputs import describe_os_error
 
 __all__ = ["main", "COMMANDS"]
 
@@ -48,7 +49,8 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     """Run the CLI; return the process exit code.
 
-    Exit codes: 0 all passed, 1 some spec failed, 2 bad input.
+    Exit codes: 0 all passed, 1 some spec failed, 2 bad input or a file
+    system that refused a write (one line on stderr, no traceback).
     """
     parser = build_parser()
     args = parser.parse_args(argv)
@@ -60,6 +62,10 @@ def main(argv: list[str] | None = None) -> int:
     except GainloomError as error:
         print(f"gainloom {args.command}: error: {error}", file=sys.stderr)
         return error.exit_code
+    except OSError as error:
+        # the system refused (disk full, no permission, ...): one line, not a bug
+        print(f"gainloom {args.command}: error: {describe_os_error(error)}", file=sys.stderr)
+        return 2
     except KeyboardInterrupt:
         print("gainloom: interrupted", file=sys.stderr)
         return 130

@@ -14,6 +14,7 @@ from pathlib import Path
 
 from ..errors import InputError
 from ..names import NUMBER_FORMATS
+from ..outputs import check_output_folder
 from .output import format_number, format_table, print_json
 
 HELP = "design gains at every operating point, emit and check the C, simulate, and write the verification log"
@@ -173,9 +174,7 @@ def run(args: argparse.Namespace) -> int:
     """Run the whole job, print the summary and the caution."""
     from ..report.run import run_design_job
 
-    out = Path(args.out)
-    if out.exists() and not out.is_dir():
-        raise InputError(f"--out must be a directory; {out} is a file")
+    out = check_output_folder(args.out)
     name = Path(args.gains_name)
     if name.name != args.gains_name or name.suffix.lower() not in (".yaml", ".yml", ".json"):
         raise InputError(f"--gains-name must be a plain file name ending .yaml, .yml or .json; got {args.gains_name!r}")

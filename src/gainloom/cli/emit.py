@@ -80,13 +80,13 @@ def run(args: argparse.Namespace) -> int:
 
         schedule = load_schedule(args.schedule)
         args.number_format = args.number_format or schedule.codegen.format
-        args.prefix = args.prefix or schedule.codegen.prefix
+        args.prefix = schedule.codegen.prefix if args.prefix is None else args.prefix
         if args.error_full_scale is None:
             args.error_full_scale = schedule.codegen.error_full_scale
         if args.output_full_scale is None:
             args.output_full_scale = schedule.codegen.output_full_scale
     args.number_format = args.number_format or "float32"
-    args.prefix = args.prefix or "ctl"
+    args.prefix = "ctl" if args.prefix is None else args.prefix
     source_sha256 = (metadata.get("schedule") or {}).get("sha256")
     gains_sha256 = hashlib.sha256(gains_path.read_bytes()).hexdigest()
     written = emit_c(

@@ -45,6 +45,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument("--json", action="store_true", help="print the facts as JSON")
     parser.add_argument("--plot", metavar="FILE.png", help="draw the locus into this PNG file")
+    parser.add_argument(
+        "--force", action="store_true", help="with --plot: overwrite a file that gainloom did not write"
+    )
 
 
 def _build_loop(args: argparse.Namespace) -> tuple[Loop, str]:
@@ -268,7 +271,7 @@ def run(args: argparse.Namespace) -> int:
         print_json(data)
     else:
         print(format_facts(facts, how, damped, damping_asked=bool(args.damping)))
-    if args.plot:
+    if args.plot is not None:
         from ..report.locus_plot import plot_locus
 
         gains, branches, notes = _branches(loop, facts)
@@ -276,6 +279,7 @@ def run(args: argparse.Namespace) -> int:
             facts, gains, branches, args.plot,
             damping_curves=_damping_curves(args.damping, facts),
             gain_marks=_limit_marks(loop, damped),
+            force=args.force,
         )
         if not args.json:
             for note in notes:

@@ -89,6 +89,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--error-from", metavar="SECONDS", type=float, default=0.0, help="start of the error window (default 0)"
     )
     parser.add_argument("--plot", metavar="DIR", help="write simulation.png into DIR")
+    parser.add_argument(
+        "--force", action="store_true", help="with --plot: overwrite a simulation.png that gainloom did not write"
+    )
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
     parser.add_argument("--series", action="store_true", help="with --json: include every sample")
 
@@ -200,10 +203,10 @@ def run(args: argparse.Namespace) -> int:
     if metadata.get("passed") is False:
         notes.append("the gains file records a design that did not meet every spec")
     plots = []
-    if args.plot:
+    if args.plot is not None:
         from ..simulation.plots import write_plots
 
-        plots = [str(path) for path in write_plots(result, args.plot)]
+        plots = [str(path) for path in write_plots(result, args.plot, force=args.force)]
     if args.json:
         data = result.to_dict(series=args.series)
         data["notes"] = notes

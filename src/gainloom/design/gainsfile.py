@@ -19,6 +19,7 @@ import numpy as np
 import yaml
 
 from ..errors import ScheduleError
+from ..outputs import write_outputs
 from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
 from ..plain import to_plain
 from .table import GainTable, TableAxis
@@ -163,8 +164,12 @@ def render_gains(result: Any, name: str | Path = "gains.yaml") -> str:
     return yaml.dump(doc, Dumper=_Dumper, sort_keys=False, allow_unicode=True, width=100)
 
 
-def write_gains(result: Any, path: str | Path) -> Path:
+def write_gains(result: Any, path: str | Path, *, force: bool = False) -> Path:
     """Write a design result (or a bare GainTable) as a gains file.
+
+    The file is written through :func:`gainloom.outputs.write_outputs`
+    (atomically, recorded in the folder's manifest, never over a file
+    gainloom did not write unless ``force``, never through a link).
 
     Parameters
     ----------
@@ -172,6 +177,8 @@ def write_gains(result: Any, path: str | Path) -> Path:
         What to write; a DesignResult adds the per-point analysis.
     path : str or Path
         ``.json`` writes JSON; anything else YAML.
+    force : bool
+        Overwrite a file at ``path`` that gainloom did not write.
 
     Returns
     -------
@@ -180,8 +187,8 @@ def write_gains(result: Any, path: str | Path) -> Path:
     """
     path = Path(path)
     text = render_gains(result, path)
-    path.write_text(text, encoding="utf-8")
-    return path
+    (written,) = write_outputs(path.parent, {path.name: text}, force=force)
+    return written
 
 
 # --- reading -----------------------------------------------------------------

@@ -9,6 +9,7 @@ no software or date entries in the PNG metadata.
 
 from __future__ import annotations
 
+import io
 import math
 from collections.abc import Sequence
 from pathlib import Path
@@ -18,7 +19,9 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
+from ..errors import InputError
 from ..lti.facts import LocusFacts
+from ..outputs import write_outputs
 
 __all__ = ["plot_locus", "FIGURE_SIZE", "DPI"]
 
@@ -248,8 +251,14 @@ def plot_locus(
     damping_curves: Sequence[tuple[str, np.ndarray]] = (),
     gain_marks: Sequence[tuple[float, np.ndarray]] = (),
     title: str | None = None,
+    *,
+    force: bool = False,
 ) -> Path:
     """Draw the locus and its facts into a PNG file.
+
+    The file is written through :func:`gainloom.outputs.write_outputs`: never
+    over a file gainloom did not write (unless ``force``), never through a
+    link.
 
     Parameters
     ----------
@@ -270,12 +279,16 @@ def plot_locus(
         locus meets a damping contour), labelled with the gain.
     title : str, optional
         Figure title; a default names the plane and gain sign.
+    force : bool
+        Overwrite a file at ``path`` that gainloom did not write.
 
     Returns
     -------
     Path
         The written file.
     """
+    if not str(path).strip() or not Path(path).name:
+        raise InputError(f"plot file {str(path)!r} is empty or names no file; give a file such as locus.png")
     path = Path(path)
     branches = np.asarray(branches, dtype=complex)
     figure = Figure(figsize=FIGURE_SIZE, dpi=DPI)
@@ -326,5 +339,7 @@ def plot_locus(
     figure.legend(handles=handles, loc="lower center", ncol=3, fontsize=8, frameon=False,
                   bbox_to_anchor=(0.5, 0.035))
     figure.text(0.01, 0.008, _loop_caption(facts), ha="left", va="bottom", fontsize=7.5, color="#555555")
-    figure.savefig(path, format="png", dpi=DPI, metadata={"Software": None})
-    return path
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=DPI, metadata={"Software": None})
+    (written,) = write_outputs(path.parent, {path.name: buffer.getvalue()}, force=force)
+    return written

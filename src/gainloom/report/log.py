@@ -46,13 +46,9 @@ _SIMULATION_PLOT = "simulation.png"
 
 def _simulation_png(simulation: Any) -> bytes:
     """The simulation layer's figure of a run, as PNG bytes."""
-    import tempfile
+    from ..simulation.plots import PLOT_FILE, render_plots
 
-    from ..simulation.plots import write_plots
-
-    with tempfile.TemporaryDirectory(prefix="gainloom-plot-") as tmp:
-        (path,) = write_plots(simulation, tmp)
-        return Path(path).read_bytes()
+    return render_plots(simulation)[PLOT_FILE]
 
 
 def render_verification(

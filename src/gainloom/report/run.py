@@ -43,7 +43,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..names import NUMBER_FORMATS, unknown_name_message
-from ..outputs import write_outputs
+from ..outputs import check_output_folder, write_outputs
 
 __all__ = [
     "JobResult",
@@ -440,12 +440,10 @@ def run_design_job(
     name = Path(gains_name)
     if name.name != gains_name or name.suffix.lower() not in (".yaml", ".yml", ".json"):
         raise InputError(f"gains file name must be a plain file name ending .yaml, .yml or .json; got {gains_name!r}")
-    out = Path(out_dir)
-    if out.exists() and not out.is_dir():
-        raise InputError(f"the output folder {out} exists and is not a folder")
+    out = check_output_folder(out_dir)  # a bad output path is bad input, found before the design
     schedule = load_schedule(schedule_path)
     number_format = _resolve_format(schedule, number_format)
-    prefix = prefix or schedule.codegen.prefix
+    prefix = schedule.codegen.prefix if prefix is None else prefix
     validate_prefix(prefix)  # before the design: a bad prefix is bad input, found at once
 
     result = design(schedule, progress=progress)

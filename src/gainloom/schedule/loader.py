@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from .. import names
+from ..c_names import comment_text_problem
 from ..errors import ScheduleError
 from ..lti.polynomials import batched_roots
 from .expressions import CONSTANTS, FUNCTIONS, Expression, parse_expression
@@ -175,6 +176,9 @@ def _read_variables(node: Node) -> tuple[Axis, ...]:
         name = _identifier(keys["name"], "variable", taken)
         taken[name] = "a scheduling variable"
         unit = "" if "unit" not in keys or keys["unit"].is_null else str(keys["unit"].scalar())
+        problem = comment_text_problem(unit)  # the unit is written into the generated C
+        if problem:
+            raise keys["unit"].error(f"unit {problem}; it cannot go into the generated C")
         axes.append(Axis(name=name, unit=unit, values=_read_grid_values(keys["values"], name)))
     return tuple(axes)
 

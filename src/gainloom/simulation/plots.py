@@ -8,14 +8,16 @@ metadata, so the same result gives byte-identical files.
 
 from __future__ import annotations
 
+import io
+import os
 from pathlib import Path
 
 import numpy as np
 
-from ..errors import InputError
+from ..outputs import write_outputs
 from .result import SimulationResult
 
-__all__ = ["write_plots", "PLOT_FILE"]
+__all__ = ["render_plots", "write_plots", "PLOT_FILE"]
 
 #: File name of the figure written by :func:`write_plots`.
 PLOT_FILE = "simulation.png"
@@ -24,8 +26,8 @@ _SIZE_INCHES = (8.0, 10.0)
 _DPI = 100
 
 
-def write_plots(result: SimulationResult, directory: str | Path) -> list[Path]:
-    """Draw the run and write it as one PNG in ``directory``.
+def render_plots(result: SimulationResult) -> dict[str, bytes]:
+    """Draw the run as PNG bytes, by file name (:data:`PLOT_FILE`).
 
     Panels, sharing the time axis: reference and output; controller output
     with its limits (and the value before saturation); the scheduling
@@ -35,22 +37,16 @@ def write_plots(result: SimulationResult, directory: str | Path) -> list[Path]:
     ----------
     result : SimulationResult
         The run to draw.
-    directory : str or Path
-        Folder to write into (created if missing).
 
     Returns
     -------
-    list of Path
-        The files written.
+    dict of str to bytes
+        File name to PNG content.
     """
     import matplotlib.style
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    folder = Path(directory)
-    if folder.exists() and not folder.is_dir():
-        raise InputError(f"plot folder {str(folder)!r} exists and is not a directory")
-    folder.mkdir(parents=True, exist_ok=True)
     t = result.time
     with matplotlib.style.context("default"):
         figure = Figure(figsize=_SIZE_INCHES, dpi=_DPI)
@@ -97,6 +93,28 @@ def write_plots(result: SimulationResult, directory: str | Path) -> list[Path]:
             panel.grid(True, linewidth=0.4)
             panel.legend(loc="upper right", fontsize="small")
         figure.tight_layout()
-        path = folder / PLOT_FILE
-        figure.savefig(path, format="png", dpi=_DPI, metadata={"Software": None})
-    return [path]
+        buffer = io.BytesIO()
+        figure.savefig(buffer, format="png", dpi=_DPI, metadata={"Software": None})
+    return {PLOT_FILE: buffer.getvalue()}
+
+
+def write_plots(result: SimulationResult, directory: str | os.PathLike, *, force: bool = False) -> list[Path]:
+    """Draw the run and write it into ``directory`` through
+    :func:`gainloom.outputs.write_outputs` (never over a file gainloom did not
+    write, unless ``force``).
+
+    Parameters
+    ----------
+    result : SimulationResult
+        The run to draw.
+    directory : path
+        Folder to write into (created if missing).
+    force : bool
+        Overwrite a file of the same name that gainloom did not write.
+
+    Returns
+    -------
+    list of Path
+        The files written.
+    """
+    return write_outputs(directory, render_plots(result), force=force)
