@@ -234,3 +234,20 @@ def test_every_deviation_is_documented_with_its_reason():
         number = rule.removeprefix("misra-c2012-")
         assert f"| {number} |" in text, rule
         assert " ".join(reason.split()) in text, rule
+
+
+@needs_run
+def test_readme_target_figures_are_what_the_benchmark_measures():
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("gainloom_benchmark_target", REPO / "benchmarks" / "target.py")
+    bench = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(bench)
+    readme = (REPO / "README.md").read_text()
+    block = re.search(re.escape(bench.BEGIN) + ".*?" + re.escape(bench.END), readme, re.S).group(0)
+    recorded = re.search(r"`-O2`, (.+)\n", block).group(1)
+    installed = subprocess.run([TOOLS.gcc, "--version"], capture_output=True, text=True, check=True).stdout
+    if recorded != installed.splitlines()[0].strip():
+        pytest.skip(f"README figures were measured with {recorded}; regenerate them with benchmarks/target.py")
+    # instruction counts are exact and deterministic for one toolchain: any change must be regenerated
+    assert bench.readme_block() == block
