@@ -15,6 +15,7 @@ import tempfile
 from pathlib import Path
 
 import gainloom
+from gainloom.codegen import table_verdict
 
 HERE = Path(__file__).resolve().parent
 out_dir = Path(sys.argv[1]) if len(sys.argv) > 1 else Path(tempfile.mkdtemp(prefix="gainloom-c-"))
@@ -22,6 +23,11 @@ out_dir = Path(sys.argv[1]) if len(sys.argv) > 1 else Path(tempfile.mkdtemp(pref
 schedule = gainloom.load_schedule(HERE / "hand_tuned_current_loop.yaml")
 result = gainloom.design(schedule)
 print(f"design: {'PASS' if result.passed else 'FAIL'} at {result.analysis.points} points")
+# The header carries the verdict: design and the re-check of the Q15-rounded
+# table; a table that fails does not compile without FAN_CUR_ACCEPT_UNVERIFIED.
+rounded = gainloom.check_quantisation(schedule, result.table, "q15", baseline=result)
+verdict = table_verdict(result.passed, rounded.rounded.passed, "q15")
+print(f"verdict: {'VERIFIED' if verdict.verified else 'NOT VERIFIED'}: {verdict.basis}")
 files = gainloom.emit_c(
     result.table,
     out_dir,
@@ -29,6 +35,7 @@ files = gainloom.emit_c(
     prefix="fan_cur",
     source_sha256=schedule.sha256,
     options={"schedule": Path(schedule.path).name},
+    verdict=verdict,
 )
 for path in files:
     print(f"wrote {path}")

@@ -12,6 +12,7 @@ import pytest
 
 from gainloom.c_names import CNames
 from gainloom.codegen.emit import emit_c
+from gainloom.codegen.verdict import table_verdict
 from gainloom.codegen.harness import check_generated_c, generated_files, harness_program
 from gainloom.codegen.target import check_target
 from gainloom.codegen.target_build import build_for_core, helper_kind
@@ -40,7 +41,10 @@ def _emit(tmp_path, number_format, structure="pid", dims=2, uniform=False):
     table = make_table(structure, dims=dims, uniform=uniform, seed=11)
     # an error full scale of 20 units lets full-scale errors reach both output limits
     scale = None if number_format == "float32" else 20.0
-    files = emit_c(table, tmp_path / number_format, number_format, "motor_ctl", "ab" * 32, error_full_scale=scale)
+    # a verified table: the header builds as production firmware would, without the accept macro
+    verdict = table_verdict(True, True, number_format)
+    files = emit_c(table, tmp_path / number_format, number_format, "motor_ctl", "ab" * 32, error_full_scale=scale,
+                   verdict=verdict)
     return table, files
 
 

@@ -144,7 +144,7 @@ def test_full_run_writes_gains_c_log_and_plots(passing):
     assert {p.name for p in job.files} == set(manifest)
     # progress: design stages first, then every later stage in order
     seen = [s for s, *_ in passing.progress]
-    order = [seen.index(s) for s in ("design", "emit C", "check C", "quantisation", "simulate", "log", "write")
+    order = [seen.index(s) for s in ("design", "quantisation", "emit C", "check C", "simulate", "log", "write")
              if s in seen]
     assert order == sorted(order) and len(order) == (7 if job.harness is not None else 6)
 

@@ -16,6 +16,7 @@ __all__ = [
     "CONTROLLER_COEFFICIENTS",
     "unknown_name_message",
     "DESIGN_STRATEGIES",
+    "TUNING_RULES",
     "SWEEP_OBJECTIVES",
     "CANCEL_TARGETS",
     "TOLERANCE_SAMPLINGS",
@@ -48,8 +49,11 @@ NUMBER_FORMATS: tuple[str, ...] = ("float32", "q15", "q31")
 #: How firmware interpolates between table points.
 INTERPOLATIONS: tuple[str, ...] = ("linear", "bilinear")
 
+#: Published PI tuning rules available as strategies (design/tuning_rules.py).
+TUNING_RULES: tuple[str, ...] = ("modulus-optimum", "symmetric-optimum")
+
 #: How the scheduler picks gains at each point (schedule key controller.strategy).
-DESIGN_STRATEGIES: tuple[str, ...] = ("pole-cancel", "dominant-pair", "shape-sweep")
+DESIGN_STRATEGIES: tuple[str, ...] = ("pole-cancel", "dominant-pair", "shape-sweep") + TUNING_RULES
 
 #: What shape-sweep optimises over the swept controller-zero locations.
 SWEEP_OBJECTIVES: tuple[str, ...] = ("fastest", "most-damped", "nearest-target")

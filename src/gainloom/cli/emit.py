@@ -7,7 +7,9 @@ import hashlib
 import sys
 from pathlib import Path
 
+from ..c_names import c_names
 from ..codegen.emit import emit_c
+from ..codegen.verdict import table_verdict
 from ..codegen.harness import check_generated_c
 from ..design.gainsfile import read_gains
 from ..names import NUMBER_FORMATS
@@ -89,6 +91,20 @@ def run(args: argparse.Namespace) -> int:
     args.prefix = "ctl" if args.prefix is None else args.prefix
     source_sha256 = (metadata.get("schedule") or {}).get("sha256")
     gains_sha256 = hashlib.sha256(gains_path.read_bytes()).hexdigest()
+    report: dict = {"format": args.number_format, "prefix": args.prefix}
+    code = 0
+    stored_passed = None
+    if schedule is not None:
+        report["stored_table"] = _recheck_stored(schedule, table, args)
+        stored_passed = report["stored_table"]["passed"]
+        if not stored_passed:
+            code = 1
+    # the header's verdict: the design recorded in the gains file and the
+    # re-check of the rounded table; either unknown counts as not verified
+    recorded = metadata.get("passed")
+    verdict = table_verdict(recorded if isinstance(recorded, bool) else None, stored_passed, args.number_format)
+    report["verified"] = verdict.verified
+    report["verdict"] = verdict.basis
     written = emit_c(
         table,
         args.out,
@@ -98,10 +114,10 @@ def run(args: argparse.Namespace) -> int:
         {"gains_file": gains_path.name, "gains_sha256": gains_sha256},
         error_full_scale=args.error_full_scale,
         output_full_scale=args.output_full_scale,
+        verdict=verdict,
         force=args.force,
     )
-    report: dict = {"files": [str(p) for p in written], "format": args.number_format, "prefix": args.prefix}
-    code = 0
+    report["files"] = [str(p) for p in written]
     if args.check:
         # format, prefix and full-scale values are read back from the banner
         result = check_generated_c(written, table)
@@ -109,26 +125,6 @@ def run(args: argparse.Namespace) -> int:
         if result.passed is False:
             code = 1
             print(result.diagnostics, file=sys.stderr)
-    if schedule is not None:
-        from ..codegen.layout import layout_table
-        from ..design.engine import verify
-
-        stored = layout_table(
-            table,
-            args.number_format,
-            error_full_scale=args.error_full_scale,
-            output_full_scale=args.output_full_scale,
-        ).stored_table()
-        checked = verify(schedule, stored)
-        report["stored_table"] = {
-            "passed": checked.passed,
-            "points_passing": sum(s == "pass" for s in checked.status),
-            "points": len(checked.status),
-            "table_checks_passed": checked.table_report.passed,
-            "failed_specs": [checked.analysis.failed_specs(p) for p in range(checked.analysis.points)],
-        }
-        if not checked.passed:
-            code = 1
     if metadata.get("passed") is False:
         report["warning"] = "the gains file records a design that did not meet every spec"
     if args.json:
@@ -151,7 +147,34 @@ def run(args: argparse.Namespace) -> int:
                 f"{stored_report['points']} points meet every spec; whole-table checks "
                 f"{'pass' if stored_report['table_checks_passed'] else 'fail'}"
             )
+        if not report["verified"]:
+            print(
+                f"header NOT VERIFIED ({report['verdict']}): it compiles only with "
+                f"{c_names(args.prefix).accept_unverified} defined",
+                file=sys.stderr,
+            )
         if "warning" in report:
             print(f"warning: {report['warning']}", file=sys.stderr)
         print(CAUTION)
     return code
+
+
+def _recheck_stored(schedule, table, args: argparse.Namespace) -> dict:
+    """Verify the table as stored in the chosen format against the schedule."""
+    from ..codegen.layout import layout_table
+    from ..design.engine import verify
+
+    stored = layout_table(
+        table,
+        args.number_format,
+        error_full_scale=args.error_full_scale,
+        output_full_scale=args.output_full_scale,
+    ).stored_table()
+    checked = verify(schedule, stored)
+    return {
+        "passed": checked.passed,
+        "points_passing": sum(s == "pass" for s in checked.status),
+        "points": len(checked.status),
+        "table_checks_passed": checked.table_report.passed,
+        "failed_specs": [checked.analysis.failed_specs(p) for p in range(checked.analysis.points)],
+    }

@@ -5,5 +5,15 @@ the Python mirror."""
 from .emit import emit_c, render_files
 from .harness import HarnessResult, check_generated_c
 from .layout import TableLayout, layout_table
+from .verdict import TableVerdict, table_verdict
 
-__all__ = ["emit_c", "render_files", "check_generated_c", "HarnessResult", "layout_table", "TableLayout"]
+__all__ = [
+    "emit_c",
+    "render_files",
+    "check_generated_c",
+    "HarnessResult",
+    "layout_table",
+    "TableLayout",
+    "TableVerdict",
+    "table_verdict",
+]

@@ -16,6 +16,7 @@ from ..outputs import write_outputs
 from ..c_names import validate_prefix
 from .layout import layout_table
 from .render import render_c
+from .verdict import TableVerdict
 
 __all__ = ["render_files", "emit_c"]
 
@@ -29,6 +30,7 @@ def render_files(
     *,
     error_full_scale: float | None = None,
     output_full_scale: float | None = None,
+    verdict: TableVerdict | None = None,
 ) -> dict[str, str]:
     """Render ``<prefix>.h`` and ``<prefix>.c`` without writing them.
 
@@ -48,7 +50,7 @@ def render_files(
         # the resolved full-scale values decide every stored integer: record them
         recorded["error_full_scale"] = layout.error_full_scale
         recorded["output_full_scale"] = layout.output_full_scale
-    return render_c(layout, prefix, source_sha256, recorded)
+    return render_c(layout, prefix, source_sha256, recorded, verdict)
 
 
 def emit_c(
@@ -61,6 +63,7 @@ def emit_c(
     *,
     error_full_scale: float | None = None,
     output_full_scale: float | None = None,
+    verdict: TableVerdict | None = None,
     force: bool = False,
 ) -> list[Path]:
     """Generate the C header and source of a gain table into ``out_dir``.
@@ -87,6 +90,10 @@ def emit_c(
     output_full_scale : float, optional
         Fixed point: physical output of full scale (default
         ``max(|u_min|, |u_max|)``).
+    verdict : TableVerdict, optional
+        The table's verification verdict (:func:`.verdict.table_verdict`).
+        ``None`` counts as not verified: the header then stops compilation
+        unless ``<PREFIX>_ACCEPT_UNVERIFIED`` is defined.
     force : bool
         Overwrite files in ``out_dir`` that gainloom did not write.
 
@@ -110,5 +117,6 @@ def emit_c(
         options,
         error_full_scale=error_full_scale,
         output_full_scale=output_full_scale,
+        verdict=verdict,
     )
     return write_outputs(out_dir, files, force=force)

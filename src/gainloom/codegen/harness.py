@@ -44,6 +44,7 @@ from ..design.table import GainTable
 from ..errors import CodegenError
 from .layout import AxisLayout, TableLayout, layout_table
 from .mirror import lookup_gains, output_code, run_steps, state_fields
+from ..c_names import c_names
 from .render import c_float_exact, render_template, template_context
 
 __all__ = [
@@ -342,6 +343,15 @@ class GeneratedFiles:
     error_full_scale: float | None
     output_full_scale: float | None
 
+    @property
+    def defines(self) -> tuple[str, ...]:
+        """Compiler defines of every check build: ``-D<PREFIX>_ACCEPT_UNVERIFIED``.
+
+        The checks test the arithmetic of any table, verified or not, so they
+        build as an integrator who accepted an unverified table would.
+        """
+        return (f"-D{c_names(self.prefix).accept_unverified}",)
+
 
 def generated_files(
     files: Iterable[str | os.PathLike],
@@ -582,7 +592,7 @@ def check_generated_c(
         )
     version, sanitizers = _compiler_facts(tuple(command))
     program = harness_program(table, generated, points=points, steps=steps, seed=seed)
-    flags = ("-std=c99", "-O1", *WARNING_FLAGS) + (SANITIZER_FLAGS if sanitizers else ())
+    flags = ("-std=c99", "-O1", *WARNING_FLAGS, *generated.defines) + (SANITIZER_FLAGS if sanitizers else ())
     common = dict(compiler=" ".join(command), compiler_version=version, flags=flags, sanitizers=sanitizers)
     sources = [s.name for s in generated.sources]
 
@@ -591,7 +601,7 @@ def check_generated_c(
         for f in files:
             shutil.copyfile(f, work / f.name)
         (work / "harness.c").write_text(program.source, encoding="utf-8")
-        c11 = _run([*command, "-std=c11", *WARNING_FLAGS, "-fsyntax-only", *sources], work)
+        c11 = _run([*command, "-std=c11", *WARNING_FLAGS, *generated.defines, "-fsyntax-only", *sources], work)
         if c11.returncode != 0:
             return HarnessResult("failed", "generated C does not compile as C11", diagnostics=c11.stderr, **common)
         built = _run([*command, *flags, *sources, "harness.c", "-o", "harness"], work)

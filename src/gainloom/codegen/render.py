@@ -26,6 +26,7 @@ from ..c_names import FORMAT_CODES, c_names, comment_text
 from .layout import GAIN_COEFFICIENTS, TableLayout
 from .mirror import state_fields
 from .qformat import STATE_FRAC
+from .verdict import TableVerdict
 
 __all__ = ["templates_dir", "c_float", "c_float_exact", "render_c", "render_template", "banner_lines"]
 
@@ -129,6 +130,22 @@ def c_float_exact(value: float) -> str:
     return f"{value32.hex()}f"
 
 
+def verdict_lines(verdict: TableVerdict, macro: str) -> list[str]:
+    """Banner lines stating the verification verdict and what it rests on.
+
+    Parameters
+    ----------
+    verdict : TableVerdict
+        The table's verdict (fixed words only: it goes into a C comment).
+    macro : str
+        Name of the ``<PREFIX>_VERIFIED`` macro.
+    """
+    if "*/" in verdict.basis or "\n" in verdict.basis:
+        raise CodegenError(f"verdict text cannot go in a C comment: {verdict.basis!r}")
+    state = f"VERIFIED ({macro} 1)" if verdict.verified else f"NOT VERIFIED ({macro} 0, see verification.md)"
+    return textwrap.wrap(f"verification: {state}: {verdict.basis}.", 74, subsequent_indent="  ")
+
+
 def banner_lines(number_format: str, prefix: str, source_sha256: str, options: dict) -> list[str]:
     """Lines of the banner comment: generator, source hash, options, caution.
 
@@ -161,8 +178,12 @@ def _literal(layout: TableLayout, value) -> str:
     return c_float(float(value)) if not layout.fmt.is_fixed else str(int(value))
 
 
-def _context(layout: TableLayout, prefix: str, source_sha256: str, options: dict) -> dict:
+def _context(
+    layout: TableLayout, prefix: str, source_sha256: str, options: dict, verdict: TableVerdict | None
+) -> dict:
     names = c_names(prefix)
+    if verdict is None:
+        verdict = TableVerdict(False, "no verdict was given to the generator")
     fmt = layout.fmt
     upper = names.upper
     seen = set()
@@ -224,7 +245,8 @@ def _context(layout: TableLayout, prefix: str, source_sha256: str, options: dict
     }[layout.structure]
     ts = layout.table.sample_period
     return {
-        "banner": banner_lines(fmt.name, prefix, source_sha256, options),
+        "banner": banner_lines(fmt.name, prefix, source_sha256, options) + verdict_lines(verdict, names.verified),
+        "verified": verdict.verified,
         "caution": textwrap.wrap(CAUTION, 74),
         "prefix": prefix,
         "upper": upper,
@@ -261,7 +283,11 @@ def _context(layout: TableLayout, prefix: str, source_sha256: str, options: dict
 
 
 def render_c(
-    layout: TableLayout, prefix: str, source_sha256: str | None, options: dict | None = None
+    layout: TableLayout,
+    prefix: str,
+    source_sha256: str | None,
+    options: dict | None = None,
+    verdict: TableVerdict | None = None,
 ) -> dict[str, str]:
     """Render ``<prefix>.h`` and ``<prefix>.c`` for a laid-out table.
 
@@ -276,19 +302,28 @@ def render_c(
         SHA-256 of the schedule file, for the banner.
     options : dict, optional
         Generation options to record in the banner.
+    verdict : TableVerdict, optional
+        Verification verdict of the table (:mod:`.verdict`); ``None``
+        counts as not verified.
 
     Returns
     -------
     dict of str to str
         File name to text, header first.
     """
-    context = _context(layout, prefix, source_sha256, dict(options or {}))
+    context = _context(layout, prefix, source_sha256, dict(options or {}), verdict)
     return {
         context["names"].header: render_template("table.h.j2", context),
         context["names"].source: render_template("table.c.j2", context),
     }
 
 
-def template_context(layout: TableLayout, prefix: str, source_sha256: str, options: dict | None = None) -> dict:
+def template_context(
+    layout: TableLayout,
+    prefix: str,
+    source_sha256: str,
+    options: dict | None = None,
+    verdict: TableVerdict | None = None,
+) -> dict:
     """The variables the table templates see (for the harness template)."""
-    return _context(layout, prefix, source_sha256, dict(options or {}))
+    return _context(layout, prefix, source_sha256, dict(options or {}), verdict)

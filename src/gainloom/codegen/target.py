@@ -172,13 +172,13 @@ def check_target(
         caller = work / "caller.c"
         caller.write_text(measure_source(program, generated.prefix), encoding="utf-8")
         if missing:
-            rules = check_rules([work / f.name for f in files], caller, tools.cppcheck)
+            rules = check_rules([work / f.name for f in files], caller, tools.cppcheck, generated.defines)
             return TargetResult("not-checked", f"not checked: {', '.join(missing)} not found",
                                 generated.number_format, missing=missing, rules=rules)
         sources = [work / s.name for s in generated.sources]
 
         def on_core(core: TargetCore):
-            build = build_for_core(tools, core, sources, work, fixed)
+            build = build_for_core(tools, core, sources, work, fixed, generated.defines)
             if not build.builds:
                 return build, None, None
             run = run_harness(tools, build, program, work, host)
@@ -186,7 +186,8 @@ def check_target(
 
         # the cores and the rule check are independent subprocess work: run them side by side
         with ThreadPoolExecutor(max_workers=len(CORES) + 1) as pool:
-            rules_job = pool.submit(check_rules, [work / f.name for f in files], caller, tools.cppcheck)
+            rules_job = pool.submit(check_rules, [work / f.name for f in files], caller, tools.cppcheck,
+                                    generated.defines)
             per_core = list(pool.map(on_core, CORES))
             rules = rules_job.result()
     builds = [b for b, _, _ in per_core]

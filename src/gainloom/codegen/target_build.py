@@ -153,6 +153,9 @@ class CoreBuild:
         Whole object: code + constants + initialised data; data + zeroed data.
     object_path : Path or None
         The C99 object (for linking the emulator programs).
+    defines : tuple of str
+        Compiler defines of the build (``-D<PREFIX>_ACCEPT_UNVERIFIED``),
+        repeated for the programs that include the header.
     """
 
     core: TargetCore
@@ -163,6 +166,7 @@ class CoreBuild:
     flash_bytes: int = 0
     ram_bytes: int = 0
     object_path: Path | None = None
+    defines: tuple[str, ...] = ()
 
     @property
     def builds(self) -> bool:
@@ -192,9 +196,9 @@ def _run(command: list[str], cwd: Path) -> subprocess.CompletedProcess:
     return subprocess.run(command, cwd=cwd, capture_output=True, text=True, timeout=120, check=False)
 
 
-def compile_flags(core: TargetCore, standard: str) -> list[str]:
-    """Flags of a target compile (core, standard, optimisation, strict warnings, sections)."""
-    return [*core.flags, f"-std={standard}", TARGET_OPTIMISATION, *WARNING_FLAGS, *_SECTION_FLAGS]
+def compile_flags(core: TargetCore, standard: str, defines: tuple[str, ...] = ()) -> list[str]:
+    """Flags of a target compile (core, standard, optimisation, strict warnings, sections, defines)."""
+    return [*core.flags, f"-std={standard}", TARGET_OPTIMISATION, *WARNING_FLAGS, *_SECTION_FLAGS, *defines]
 
 
 def _symbols(tools: TargetTools, obj: Path) -> tuple[dict[str, tuple[str, int]], set[str]]:
@@ -278,7 +282,8 @@ def _figures(tools: TargetTools, core: TargetCore, obj: Path, fixed: bool) -> tu
 
 
 def build_for_core(
-    tools: TargetTools, core: TargetCore, sources: list[Path], work: Path, fixed: bool
+    tools: TargetTools, core: TargetCore, sources: list[Path], work: Path, fixed: bool,
+    defines: tuple[str, ...] = (),
 ) -> CoreBuild:
     """Compile the generated sources for one core (in ``work``, which holds them) and read the object.
 
@@ -304,7 +309,7 @@ def build_for_core(
         ok = True
         for source in sources:
             obj = work / f"{core.name}-{standard}-{source.stem}.o"
-            flags = compile_flags(core, standard)
+            flags = compile_flags(core, standard, defines)
             if standard == TARGET_STANDARDS[0]:
                 flags.append("-fstack-usage")
             built = _run([tools.gcc, *flags, "-c", source.name, "-o", obj.name], work)
@@ -315,6 +320,6 @@ def build_for_core(
                 objects.append(obj)
         compiled[standard] = ok
     if not all(compiled.values()) or len(objects) != 1:
-        return CoreBuild(core, compiled, "\n".join(diagnostics))
+        return CoreBuild(core, compiled, "\n".join(diagnostics), defines=defines)
     functions, tables, flash, ram = _figures(tools, core, objects[0], fixed)
-    return CoreBuild(core, compiled, "", functions, tables, flash, ram, objects[0])
+    return CoreBuild(core, compiled, "", functions, tables, flash, ram, objects[0], defines)

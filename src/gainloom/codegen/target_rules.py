@@ -149,7 +149,9 @@ def _findings(text: str, generated: set[str]) -> list[RuleFinding]:
     return sorted(found, key=lambda f: (f.file, f.line, f.rule))
 
 
-def check_rules(files: list[Path], caller: Path | None, cppcheck: str | None) -> RulesResult:
+def check_rules(
+    files: list[Path], caller: Path | None, cppcheck: str | None, defines: tuple[str, ...] = ()
+) -> RulesResult:
     """Run cppcheck and its MISRA addon on the generated files.
 
     Parameters
@@ -160,6 +162,9 @@ def check_rules(files: list[Path], caller: Path | None, cppcheck: str | None) ->
         A C file calling the public functions (checked along, not reported).
     cppcheck : str or None
         Path of ``cppcheck``; ``None``: not checked.
+    defines : tuple of str
+        ``-D`` options of the configuration to check (an unverified table's
+        header stops at ``#error`` without ``-D<PREFIX>_ACCEPT_UNVERIFIED``).
     """
     if cppcheck is None:
         return RulesResult("not-checked", "not checked: cppcheck not found")
@@ -170,9 +175,9 @@ def check_rules(files: list[Path], caller: Path | None, cppcheck: str | None) ->
     #    sources that include them; given alone a header is a translation unit of its own);
     # 2. unused functions, with a caller of the public functions (a library's functions are called by
     #    the integrator's code, not by the library).
-    runs = [[*_FLAGS, "--suppress=unusedFunction", *sources]]
+    runs = [[*_FLAGS, *defines, "--suppress=unusedFunction", *sources]]
     if caller is not None:
-        runs.append([*(f for f in _FLAGS if f != "--addon=misra"), "--enable=unusedFunction", "-I", ".", *sources,
+        runs.append([*(f for f in _FLAGS if f != "--addon=misra"), *defines, "--enable=unusedFunction", "-I", ".", *sources,
                      str(caller)])
     stderr = ""
     for arguments in runs:

@@ -76,7 +76,7 @@ def _link(tools: TargetTools, build: CoreBuild, source: str, name: str, work: Pa
     program.write_text(source, encoding="utf-8")
     elf = work / f"{core.name}-{name}.elf"
     command = [
-        tools.gcc, *core.flags, "-std=c99", TARGET_OPTIMISATION, "-I", str(work),
+        tools.gcc, *core.flags, "-std=c99", TARGET_OPTIMISATION, *build.defines, "-I", str(work),
         "--specs=rdimon.specs", "-nostartfiles", "-T", str(folder / "link.ld"),
         str(folder / "startup.c"), program.name, str(build.object_path), "-o", elf.name,
     ]

@@ -17,7 +17,7 @@ import numpy as np
 from ..errors import DesignError, InputError
 from ..lti.discretize import discretize_loop
 from ..lti.loop import Loop
-from ..names import DESIGN_STRATEGIES, SWEEP_OBJECTIVES, unknown_name_message
+from ..names import DESIGN_STRATEGIES, SWEEP_OBJECTIVES, TUNING_RULES, unknown_name_message
 from .analysis import PointAnalysis, analyse
 from .diagnose import diagnose, compromise
 from .results import DesignResult, VerifyResult
@@ -26,6 +26,7 @@ from .specs import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
 from .structures import LocusForm, coefficients_from_locus
 from .table import GainTable, TableAxis
+from .tuning_rules import rule_shapes
 
 __all__ = ["design", "verify", "PointDesign", "design_points", "sampled_plant", "limits_at", "Progress"]
 
@@ -235,15 +236,19 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
     limits = limits_at(sched, points)
     structure = controller.structure
     sweep = None if controller.sweep is None else (tuple(controller.sweep.range), int(controller.sweep.count))
-    shapes = make_shapes(
-        plant,
-        structure,
-        controller.strategy,
-        zero_on=controller.zero_on,
-        sweep=sweep,
-        target=target,
-        derivative_filter=controller.derivative_filter,
-    )
+    if controller.strategy in TUNING_RULES:
+        shapes = rule_shapes(controller.strategy, sched.evaluate(points), sched.sampling.method,
+                             lambda p: sched.describe_point(points[p]))
+    else:
+        shapes = make_shapes(
+            plant,
+            structure,
+            controller.strategy,
+            zero_on=controller.zero_on,
+            sweep=sweep,
+            target=target,
+            derivative_filter=controller.derivative_filter,
+        )
     notes: list[list[str]] = [[] for _ in range(P)]
     chunks = []
     for start in range(0, P, CHUNK):
@@ -268,13 +273,15 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
     )
     for p in range(P):
         notes[p].extend(choice.notes[p])
-    if controller.strategy == "dominant-pair":
+    if controller.strategy == "dominant-pair" or controller.strategy in TUNING_RULES:
         asked = shapes.gain[np.arange(P), np.maximum(choice.shape, 0)]
         moved = choice.feasible & np.isfinite(asked) & ~np.isclose(choice.gain, asked, rtol=1e-12)
+        own = "magnitude-condition" if controller.strategy == "dominant-pair" else controller.strategy
+        how = "nearest the target" if controller.strategy == "dominant-pair" else "the fastest (objective fastest) with the rule's zero"
         for p in np.flatnonzero(moved):
             notes[p].append(
-                f"the magnitude-condition gain K = {asked[p]:.6g} misses a spec; "
-                f"chose K = {choice.gain[p]:.6g} nearest the target inside the feasible set"
+                f"the {own} gain K = {asked[p]:.6g} misses a spec; "
+                f"chose K = {choice.gain[p]:.6g} {how} inside the feasible set"
             )
     # infeasible points: best compromise so the table stays complete
     shape_index = choice.shape.copy()

@@ -3,14 +3,15 @@
 :func:`run_design_job` is what ``gainloom design SCHEDULE --out DIR`` runs:
 
 1. load the schedule and design the gain table (the gains file);
-2. render the C header and source in the emitted number format;
-3. compile them and run the host harness against the Python mirror, when a
+2. verify the table again after rounding to the emitted number format;
+3. render the C header and source in that format, carrying the table's
+   verdict (design and re-check, :mod:`gainloom.codegen.verdict`);
+4. compile them and run the host harness against the Python mirror, when a
    C compiler is present (none found: "not checked", neither pass nor fail);
    then build them for the target cores, run the harness on emulated boards,
    count instructions and check the coding rules
    (:func:`gainloom.codegen.target.check_target`; without the tools: "not
    checked");
-4. verify the table again after rounding to that number format;
 5. run a default scheduled simulation (:func:`default_scenario`) in that
    number format;
 6. render the verification log (JSON, Markdown, PNGs);
@@ -21,10 +22,12 @@ way that gainloom did not write) leaves the output folder exactly as it was.
 
 A design that fails a spec still writes everything: the gains file records
 ``passed: false``, the log names the binding spec at every failed point, and
-the C is exactly what ``gainloom emit`` would make of the same gains file.
-The C banner never carries the verdict (it depends only on the table and
-the generation options, so the C of a table does not change when, say, a
-simulation setting changes): read the verdict in ``verification.md``.
+the C is exactly what ``gainloom emit --schedule`` makes of the same gains
+file.  The header carries the table's verdict: a table that failed defines
+``<PREFIX>_VERIFIED`` as 0 and does not compile unless the integrator
+defines ``<PREFIX>_ACCEPT_UNVERIFIED``.  The verdict rests on the design and
+the re-check of the rounded table only, so the C of a table does not change
+when, say, a simulation setting changes.
 
 This module sits in ``report/`` because it is the last layer and may use all
 the others; the CLI only parses arguments and prints.
@@ -421,11 +424,12 @@ def run_design_job(
         the way (:class:`~gainloom.outputs.OutputConflictError`).  Nothing is
         written then.
     """
-    from ..c_names import validate_prefix
+    from ..c_names import c_names, validate_prefix
     from ..codegen.emit import render_files
     from ..codegen.harness import check_generated_c
     from ..codegen.quantisation import check_quantisation
     from ..codegen.target import check_target
+    from ..codegen.verdict import table_verdict
     from ..design.engine import design
     from ..design.gainsfile import render_gains
     from ..outputs import sha256_bytes
@@ -456,9 +460,14 @@ def run_design_job(
         "error_full_scale": schedule.codegen.error_full_scale,
         "output_full_scale": schedule.codegen.output_full_scale,
     }
+    step("quantisation", 0)
+    quantisation = check_quantisation(schedule, result.table, number_format, baseline=result, **scales)
+    step("quantisation", 1)
+
     step("emit C", 0)
+    verdict = table_verdict(result.passed, quantisation.rounded.passed, number_format)
     c_texts = render_files(result.table, number_format, prefix, str(result.schedule_sha256),
-                           {"gains_file": gains_name, "gains_sha256": gains_sha256}, **scales)
+                           {"gains_file": gains_name, "gains_sha256": gains_sha256}, verdict=verdict, **scales)
     step("emit C", 1)
 
     with tempfile.TemporaryDirectory(prefix="gainloom-job-") as tmp:
@@ -478,10 +487,6 @@ def run_design_job(
             step("target", 0)
             target_result = check_target([stage / n for n in c_texts], result.table, host=harness, **scales)
             step("target", 1)
-
-        step("quantisation", 0)
-        quantisation = check_quantisation(schedule, result.table, number_format, baseline=result, **scales)
-        step("quantisation", 1)
 
         simulation = description = None
         if simulate:
@@ -522,7 +527,9 @@ def run_design_job(
 
     stages = (
         _design_stage(result),
-        StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix})"),
+        StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix}); "
+                     + ("header marked verified" if verdict.verified else
+                        f"header NOT VERIFIED: builds only with {c_names(prefix).accept_unverified} defined")),
         _harness_stage(harness),
         _target_stage(target_result),
         _rules_stage(target_result),

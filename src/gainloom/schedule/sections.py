@@ -92,6 +92,11 @@ def read_controller(node: Node) -> ControllerSection:
             "use pi, pd, pid, lead, lag or leadlag, or strategy 'dominant-pair'"
         )
 
+    if strategy in names.TUNING_RULES and structure != "pi":
+        raise keys["strategy"].error(
+            f"strategy {strategy!r} is a published PI tuning rule; structure is {structure!r}, use 'pi'"
+        )
+
     def only_for(key: str, allowed: bool, condition: str) -> None:
         if key in keys and not allowed:
             raise keys[key].error(f"{key} applies only when {condition}; strategy is {strategy!r}")
@@ -130,6 +135,11 @@ def read_controller(node: Node) -> ControllerSection:
         raise keys["derivative_filter"].error(f"derivative_filter applies only to pd and pid, not {structure!r}")
     low, high = _pair(keys["output_limits"], "output_limits")
     compare = keys["compare_continuous"].boolean() if "compare_continuous" in keys else False
+    if compare and strategy in names.TUNING_RULES:
+        raise keys["compare_continuous"].error(
+            f"compare_continuous applies to pole-cancel, dominant-pair and shape-sweep; strategy {strategy!r} "
+            "is a tuning rule whose continuous form is its definition"
+        )
     return ControllerSection(
         structure=structure,
         strategy=strategy,
