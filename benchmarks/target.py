@@ -56,7 +56,7 @@ def figures(schedule_path: Path) -> tuple[str, list[list[str]]]:
             program = harness_program(result.table, generated)
             for core in CORES:
                 build = build_for_core(tools, core, [work / s.name for s in generated.sources], work,
-                                       program.layout.fmt.is_fixed)
+                                       program.layout.fmt.is_fixed, generated.defines)
                 counts = count_instructions(tools, build, program, generated.prefix, work).to_dict()
                 lookup, step = counts["lookup"], counts["step"]
                 rows.append([number_format, core.name, f"{lookup['median']:g}", str(lookup["max"]),

@@ -255,3 +255,11 @@ def test_readme_target_figures_are_what_the_benchmark_measures():
         pytest.skip(f"README figures were measured with {recorded}; regenerate them with benchmarks/target.py")
     # instruction counts are exact and deterministic for one toolchain: any change must be regenerated
     assert bench.readme_block() == block
+
+
+def test_the_docs_state_how_many_calls_are_measured():
+    from gainloom.codegen.target_run import MEASURED_LOOKUPS, MEASURED_STEPS
+
+    text = " ".join((REPO / "docs" / "codegen.md").read_text().split())
+    assert f"calls the lookup ({MEASURED_LOOKUPS} inputs" in text
+    assert f"controller step ({MEASURED_STEPS} steps" in text

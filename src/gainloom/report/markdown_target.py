@@ -20,8 +20,11 @@ def _spread(spread: dict[str, Any] | None) -> str:
 def _helpers(function: dict[str, Any]) -> str:
     if not function["helpers"]:
         return "none"
-    return ", ".join(f"{h['symbol']} ({h['kind']}{'' if h['allowed'] else ', NOT acceptable'})"
-                     for h in function["helpers"])
+    kinds: dict[tuple[str, bool], list[str]] = {}
+    for h in function["helpers"]:
+        kinds.setdefault((h["kind"], h["allowed"]), []).append(h["symbol"])
+    return "; ".join(f"{kind}{'' if allowed else ' (NOT acceptable)'}: {', '.join(symbols)}"
+                     for (kind, allowed), symbols in kinds.items())
 
 
 def _cores(target: dict[str, Any]) -> list[str]:
@@ -65,7 +68,7 @@ def target_section(doc: dict[str, Any]) -> list[str]:
     target = doc.get("target")
     lines = ["## Target cores", ""]
     if target is None:
-        return lines + ["Not checked in this run (skipped on request).", ""]
+        return lines + ["Not checked in this run.", ""]
     if target["status"] == "not-checked":
         lines += [f"Not checked: {target['message'].removeprefix('not checked: ')}. This is neither a pass nor "
                   "a failure: build and run the generated C with your firmware toolchain before use.", ""]
