@@ -4,6 +4,7 @@ models, its instructions counted, and checked with cppcheck + MISRA.
 Each test skips with its reason when a tool is missing (Debian packages
 gcc-arm-none-eabi, libnewlib-arm-none-eabi, qemu-system-arm, cppcheck)."""
 
+import json
 import re
 import subprocess
 from pathlib import Path
@@ -263,3 +264,49 @@ def test_the_docs_state_how_many_calls_are_measured():
     text = " ".join((REPO / "docs" / "codegen.md").read_text().split())
     assert f"calls the lookup ({MEASURED_LOOKUPS} inputs" in text
     assert f"controller step ({MEASURED_STEPS} steps" in text
+
+
+@pytest.fixture(scope="module")
+def fan_jobs(tmp_path_factory):
+    """The invented fan schedule of the job tests in float32, run with and without the target stage."""
+    from gainloom.report.run import run_design_job
+    from test_design_job import PASSING
+
+    root = tmp_path_factory.mktemp("jobs")
+    schedule = root / "fan.yaml"
+    schedule.write_text(PASSING.replace("format: q15", "format: float32"))
+    with_target = run_design_job(schedule, root / "with", simulate=False)
+    without = run_design_job(schedule, root / "without", simulate=False, target=False)
+    return with_target, without
+
+
+@needs_run
+def test_the_design_job_reports_the_target_figures(fan_jobs):
+    job, _ = fan_jobs
+    stages = {s.stage: s for s in job.stages}
+    assert stages["target"].status == "pass", stages["target"].detail
+    assert "cortex-m0plus" in stages["target"].detail and "instructions" in stages["target"].detail
+    assert stages["C rules"].status == ("pass" if TOOLS.cppcheck else "not checked")
+    doc = json.loads((job.out_dir / "verification.json").read_text())
+    assert doc["verdict"]["target"] is True
+    cores = doc["target"]["cores"]
+    assert [c["core"] for c in cores] == ["cortex-m0plus", "cortex-m4f"]
+    for core in cores:
+        counts = core["instructions"]
+        assert counts["lookup"]["calls"] > 0 and counts["lookup"]["min"] <= counts["lookup"]["max"]
+        assert counts["step"]["calls"] > 0 and counts["step"]["max"] > 0
+        assert core["emulated_run"]["identical_to_host"] is True
+        assert core["build"]["table_bytes"] > 0
+    text = (job.out_dir / "verification.md").read_text()
+    assert "## Target cores" in text and "instructions per lookup" in text
+
+
+def test_a_skipped_target_stage_is_not_checked_never_passed(fan_jobs):
+    _, job = fan_jobs
+    stages = {s.stage: s for s in job.stages}
+    assert stages["target"].status == "not checked" and "--no-target" in stages["target"].detail
+    assert stages["C rules"].status == "not checked"
+    assert {"target", "C rules"} <= set(job.not_checked)
+    doc = json.loads((job.out_dir / "verification.json").read_text())
+    assert doc["target"] is None and doc["verdict"]["target"] is None and doc["verdict"]["c_rules"] is None
+    assert {"target cores", "coding rules"} <= set(doc["verdict"]["not_checked"])

@@ -80,7 +80,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument("--no-simulate", action="store_true", help="skip the default scheduled simulation")
     parser.add_argument(
-        "--no-compile", action="store_true", help="skip compiling and checking the C (reported as not checked)"
+        "--no-compile",
+        action="store_true",
+        help="skip compiling and checking the C, on the host and the targets (reported as not checked)",
     )
     parser.add_argument(
         "--no-target",

@@ -322,9 +322,9 @@ def _target_figures(target: Any) -> str:
     return "; ".join(parts)
 
 
-def _target_stage(target: Any) -> StageVerdict:
+def _target_stage(target: Any, skipped: str) -> StageVerdict:
     if target is None:
-        return StageVerdict("target", "not checked", "not checked: skipped on request (--no-target)")
+        return StageVerdict("target", "not checked", f"not checked: skipped on request ({skipped})")
     if target.passed is None:
         return StageVerdict("target", "not checked", target.message)
     if target.passed:
@@ -332,9 +332,9 @@ def _target_stage(target: Any) -> StageVerdict:
     return StageVerdict("target", "FAIL", target.message)
 
 
-def _rules_stage(target: Any) -> StageVerdict:
+def _rules_stage(target: Any, skipped: str) -> StageVerdict:
     if target is None:
-        return StageVerdict("C rules", "not checked", "not checked: skipped on request (--no-target)")
+        return StageVerdict("C rules", "not checked", f"not checked: skipped on request ({skipped})")
     rules = target.rules
     status = {True: "pass", False: "FAIL", None: "not checked"}[rules.passed]
     return StageVerdict("C rules", status, rules.message)
@@ -403,7 +403,8 @@ def run_design_job(
         Compile the C and run the host harness (when a compiler exists).
     target : bool
         Build the C for the target cores, run it emulated, count its
-        instructions and check its coding rules (when the tools exist).
+        instructions and check its coding rules (when the tools exist; not
+        without ``compile``).
     simulate : bool
         Run the default scheduled simulation (:func:`default_scenario`).
     progress : callable, optional
@@ -483,7 +484,7 @@ def run_design_job(
             harness = check_generated_c([stage / n for n in c_texts], result.table, **scales)
             step("check C", 1)
         target_result = None
-        if target:
+        if target and compile:
             step("target", 0)
             target_result = check_target([stage / n for n in c_texts], result.table, host=harness, **scales)
             step("target", 1)
@@ -502,7 +503,7 @@ def run_design_job(
             "c_files": sorted(c_texts),
             "gains_file": gains_name,
             "compile": bool(compile),
-            "target": bool(target),
+            "target": bool(target and compile),
             "simulate": bool(simulate),
             **{key: value for key, value in scales.items() if value is not None},
         }
@@ -531,8 +532,8 @@ def run_design_job(
                      + ("header marked verified" if verdict.verified else
                         f"header NOT VERIFIED: builds only with {c_names(prefix).accept_unverified} defined")),
         _harness_stage(harness),
-        _target_stage(target_result),
-        _rules_stage(target_result),
+        _target_stage(target_result, "--no-compile" if not compile else "--no-target"),
+        _rules_stage(target_result, "--no-compile" if not compile else "--no-target"),
         _quantisation_stage(quantisation, number_format),
         _simulation_stage(simulation),
         StageVerdict("log", "written", ", ".join(sorted(log_files))),
