@@ -156,13 +156,14 @@ def test_helper_names_are_classified_by_the_run_time_abi():
 
 
 @needs_run
-def test_instruction_count_of_straight_line_code_matches_the_disassembly(tmp_path):
+@pytest.mark.parametrize("core", CORES, ids=lambda c: c.name)
+def test_instruction_count_of_straight_line_code_matches_the_disassembly(tmp_path, core):
     # Reference: the disassembler (arm-none-eabi-objdump) lists the clear
     # function's instructions; it has no branch, so each runs exactly once.
     objdump = TOOLS.gcc.replace("gcc", "objdump")
     table, files = _emit(tmp_path, "q15", "pid", 1, True)
     work = files[0].parent
-    build = build_for_core(TOOLS, M4F, [work / "motor_ctl.c"], work, True)
+    build = build_for_core(TOOLS, core, [work / "motor_ctl.c"], work, True, generated_files(files).defines)
     clear = NAMES.clear
     listing = subprocess.run([objdump, "-d", f"--disassemble={clear}", str(build.object_path)],
                              capture_output=True, text=True, check=True).stdout
@@ -178,7 +179,7 @@ def test_instruction_count_of_straight_line_code_matches_the_disassembly(tmp_pat
     elf, problem = _link(TOOLS, build, source, "count", work)
     assert elf is not None, problem
     trace = work / "count.trace"
-    ran = _emulate(TOOLS, M4F, elf, trace)
+    ran = _emulate(TOOLS, core, elf, trace)
     assert ran.returncode in (0, 1), ran.stderr
     counts = parse_trace(trace.read_text().splitlines())
     assert counts["step"] == [len(body)]
