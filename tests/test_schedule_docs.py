@@ -21,6 +21,7 @@ KEYS = (
     + ["state_space", "A", "B", "C", "D", "dead_time", "period", "method", "delay", "prewarp"]
     + ["max_relative_step", "monotone", "between_points", "refine", "max_inserted"]
     + ["parameters", "samples", "space_filling", "seed", "prefix", "format", "damping", "range"]
+    + ["crossover", "design"]
 )
 REGISTRY_NAMES = (
     names.HOLD_METHODS
@@ -30,6 +31,7 @@ REGISTRY_NAMES = (
     + names.SWEEP_OBJECTIVES
     + names.CANCEL_TARGETS
     + names.TOLERANCE_SAMPLINGS
+    + names.TOLERANCE_DESIGNS
     + names.MONOTONE_DIRECTIONS
 )
 

@@ -20,6 +20,8 @@ __all__ = [
     "SWEEP_OBJECTIVES",
     "CANCEL_TARGETS",
     "TOLERANCE_SAMPLINGS",
+    "TOLERANCE_DESIGNS",
+    "CROSSOVER_OBJECTIVES",
     "MONOTONE_DIRECTIONS",
 ]
 
@@ -56,13 +58,21 @@ TUNING_RULES: tuple[str, ...] = ("modulus-optimum", "symmetric-optimum")
 DESIGN_STRATEGIES: tuple[str, ...] = ("pole-cancel", "dominant-pair", "shape-sweep") + TUNING_RULES
 
 #: What shape-sweep optimises over the swept controller-zero locations.
-SWEEP_OBJECTIVES: tuple[str, ...] = ("fastest", "most-damped", "nearest-target")
+SWEEP_OBJECTIVES: tuple[str, ...] = ("fastest", "most-damped", "nearest-target", "max-crossover")
+
+#: Objectives judged on the gain crossover, searched over the whole controller
+#: space (design/crossover.py); nearest-target joins them with a crossover target.
+CROSSOVER_OBJECTIVES: tuple[str, ...] = ("max-crossover",)
 
 #: Which plant pole the pole-cancel strategy places the controller zero on.
 CANCEL_TARGETS: tuple[str, ...] = ("slowest", "fastest")
 
 #: How tolerance combinations are sampled (tolerances.samples).
 TOLERANCE_SAMPLINGS: tuple[str, ...] = ("corners", "space_filling")
+
+#: What the design does with the tolerances (tolerances.design): only check
+#: the table at every tolerance sample, or design against them (worst case).
+TOLERANCE_DESIGNS: tuple[str, ...] = ("check", "worst-case")
 
 #: Required direction of a coefficient along each table axis (table.monotone).
 MONOTONE_DIRECTIONS: tuple[str, ...] = ("increasing", "decreasing")

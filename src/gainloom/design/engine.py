@@ -17,8 +17,9 @@ import numpy as np
 from ..errors import DesignError, InputError
 from ..lti.discretize import discretize_loop
 from ..lti.loop import Loop
-from ..names import DESIGN_STRATEGIES, SWEEP_OBJECTIVES, TUNING_RULES, unknown_name_message
+from ..names import CROSSOVER_OBJECTIVES, DESIGN_STRATEGIES, SWEEP_OBJECTIVES, TUNING_RULES, unknown_name_message
 from .analysis import PointAnalysis, analyse
+from .crossover_job import choose_by_crossover, uses_crossover
 from .diagnose import diagnose, compromise
 from .results import DesignResult, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, _samples_in, choose_gains, objective_values
@@ -68,7 +69,7 @@ def _objective(controller) -> str:
 
 
 def _target(controller) -> tuple[float, float] | None:
-    if controller.target is None:
+    if controller.target is None or controller.target.damping is None:
         return None
     return (float(controller.target.damping), float(controller.target.natural_frequency))
 
@@ -118,7 +119,11 @@ def _step_retry(plant, structure, shapes, choice: Choice, coefficients, limits, 
         good = np.flatnonzero(trial.passed)
         if good.size == 0:
             continue
-        scores = objective_values(trial.poles_z[good], trial.sample_period[good], objective, target)
+        if objective in CROSSOVER_OBJECTIVES or target is None and objective == "nearest-target":
+            # crossover objectives: the gain nearest the search's choice (crossover moves with it)
+            scores = -np.abs(np.log(gains[good] / choice.gain[p]))
+        else:
+            scores = objective_values(trial.poles_z[good], trial.sample_period[good], objective, target)
         k = good[np.argmax(scores)]
         for name in coefficients:
             coefficients[name][p] = coefs[name][k]
@@ -209,47 +214,9 @@ def _merge_choice(first: Choice, second: Choice, rows: np.ndarray) -> Choice:
     return Choice(shape=shape, gain=gain, feasible=feasible, intervals=intervals, notes=notes, samples=samples)
 
 
-def design_points(sched, points: np.ndarray, progress: Progress | None = None) -> PointDesign:
-    """Design gains at arbitrary operating points of a schedule.
-
-    Parameters
-    ----------
-    sched : Schedule
-    points : ndarray, shape (P, n_axes)
-    progress : callable, optional
-        ``progress(stage, done, total)`` for a progress display.
-
-    Returns
-    -------
-    PointDesign
-    """
-    controller = sched.controller
-    if controller.strategy not in DESIGN_STRATEGIES:
-        raise DesignError(unknown_name_message("design strategy", controller.strategy, DESIGN_STRATEGIES))
-    objective = _objective(controller)
-    if objective not in SWEEP_OBJECTIVES:
-        raise DesignError(unknown_name_message("objective", objective, SWEEP_OBJECTIVES))
-    target = _target(controller)
-    points = np.asarray(points, dtype=float)
-    P = points.shape[0]
-    plant = sampled_plant(sched, points)
-    limits = limits_at(sched, points)
-    structure = controller.structure
-    sweep = None if controller.sweep is None else (tuple(controller.sweep.range), int(controller.sweep.count))
-    if controller.strategy in TUNING_RULES:
-        shapes = rule_shapes(controller.strategy, sched.evaluate(points), sched.sampling.method,
-                             lambda p: sched.describe_point(points[p]))
-    else:
-        shapes = make_shapes(
-            plant,
-            structure,
-            controller.strategy,
-            zero_on=controller.zero_on,
-            sweep=sweep,
-            target=target,
-            derivative_filter=controller.derivative_filter,
-        )
-    notes: list[list[str]] = [[] for _ in range(P)]
+def _sweep_choice(plant, shapes, limits, objective, target, controller, notes, progress):
+    """The locus-based choice (pole-region objectives), per chunk of points; fills ``notes``."""
+    P = plant.points
     chunks = []
     for start in range(0, P, CHUNK):
         rows = np.arange(start, min(P, start + CHUNK))
@@ -291,6 +258,90 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
         s_best, k_best = compromise(choice.samples, limits, infeasible)
         shape_index[infeasible] = s_best
         gain[infeasible] = k_best
+    return choice, shape_index, gain
+
+
+def _certified(certified: dict, analysis: PointAnalysis, failed: np.ndarray) -> dict:
+    """Binding spec and note of failed points of a crossover design.
+
+    Points the search certified infeasible carry its note; a point the search
+    found feasible that fails the re-check names the first spec it fails.
+    """
+    from .specs import SPEC_ORDER
+
+    out = {}
+    for p in failed:
+        p = int(p)
+        if p in certified:
+            out[p] = certified[p]
+            continue
+        name = next((n for n in SPEC_ORDER if n in analysis.verdicts and not analysis.verdicts[n][p]), "stable")
+        out[p] = (name, f"the search's choice fails {name} on the re-check with the written specs")
+    return out
+
+
+def design_points(sched, points: np.ndarray, progress: Progress | None = None) -> PointDesign:
+    """Design gains at arbitrary operating points of a schedule.
+
+    Parameters
+    ----------
+    sched : Schedule
+    points : ndarray, shape (P, n_axes)
+    progress : callable, optional
+        ``progress(stage, done, total)`` for a progress display.
+
+    Returns
+    -------
+    PointDesign
+    """
+    controller = sched.controller
+    if controller.strategy not in DESIGN_STRATEGIES:
+        raise DesignError(unknown_name_message("design strategy", controller.strategy, DESIGN_STRATEGIES))
+    objective = _objective(controller)
+    if objective not in SWEEP_OBJECTIVES:
+        raise DesignError(unknown_name_message("objective", objective, SWEEP_OBJECTIVES))
+    target = _target(controller)
+    if sched.tolerances.design == "worst-case" and not uses_crossover(controller, objective):
+        raise DesignError(
+            "tolerances.design worst-case needs objective max-crossover or nearest-target with a crossover "
+            f"target; objective is {objective!r} (use design: check, the default)"
+        )
+    points = np.asarray(points, dtype=float)
+    P = points.shape[0]
+    plant = sampled_plant(sched, points)
+    limits = limits_at(sched, points)
+    structure = controller.structure
+    notes: list[list[str]] = [[] for _ in range(P)]
+    certified: dict | None = None
+    if uses_crossover(controller, objective):
+        if progress is not None:
+            progress("design", 0, P)
+        run = choose_by_crossover(sched, points, plant, limits, objective)
+        shapes, certified = run.shapes, run.binding
+        shape_index = np.zeros(P, dtype=int)
+        gain = run.gain
+        choice = Choice(shape=shape_index, gain=np.where(run.feasible, gain, np.nan), feasible=run.feasible,
+                        intervals=run.intervals, notes=run.notes, samples={})
+        for p in range(P):
+            notes[p].extend(run.notes[p])
+        if progress is not None:
+            progress("design", P, P)
+    else:
+        sweep = None if controller.sweep is None else (tuple(controller.sweep.range), int(controller.sweep.count))
+        if controller.strategy in TUNING_RULES:
+            shapes = rule_shapes(controller.strategy, sched.evaluate(points), sched.sampling.method,
+                                 lambda p: sched.describe_point(points[p]))
+        else:
+            shapes = make_shapes(
+                plant,
+                structure,
+                controller.strategy,
+                zero_on=controller.zero_on,
+                sweep=sweep,
+                target=target,
+                derivative_filter=controller.derivative_filter,
+            )
+        choice, shape_index, gain = _sweep_choice(plant, shapes, limits, objective, target, controller, notes, progress)
     coefficients = _coefficients(structure, shapes, shape_index, gain)
     analysis = analyse(plant, structure, coefficients, limits)
     step_fail = np.flatnonzero(
@@ -306,7 +357,7 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
     binding: list[str | None] = [None] * P
     failed = np.flatnonzero(~passed)
     if failed.size:
-        found = diagnose(plant, shapes, choice, analysis, limits, failed)
+        found = diagnose(plant, shapes, choice, analysis, limits, failed) if certified is None else _certified(certified, analysis, failed)
         for p, (name, text) in found.items():
             binding[p] = name
             notes[p].append(text)
@@ -353,7 +404,7 @@ def sampling_warnings(sched, points: np.ndarray, plant: Loop, analysis: PointAna
         "specs natural_frequency max": values.get("max_natural_frequency"),
         "specs natural_frequency min": values.get("min_natural_frequency"),
     }
-    if sched.controller.target is not None:
+    if sched.controller.target is not None and sched.controller.target.natural_frequency is not None:
         requested["controller target natural_frequency"] = np.full(ts.shape, sched.controller.target.natural_frequency)
     for label, value in requested.items():
         if value is None:
@@ -439,7 +490,9 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
         "objective_meaning": OBJECTIVE_TEXT[_objective(controller)],
         "zero_on": controller.zero_on,
         "target": None if controller.target is None else {
-            "damping": controller.target.damping, "natural_frequency": controller.target.natural_frequency},
+            k: v for k, v in (("damping", controller.target.damping),
+                              ("natural_frequency", controller.target.natural_frequency),
+                              ("crossover", controller.target.crossover)) if v is not None},
         "sweep": None if controller.sweep is None else {
             "range": list(controller.sweep.range), "count": controller.sweep.count},
         "derivative_filter": controller.derivative_filter,

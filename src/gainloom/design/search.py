@@ -60,7 +60,8 @@ EDGE_INSET = 1e-9
 OBJECTIVE_TEXT = {
     "fastest": "largest smallest decay rate (smallest dominant pole radius)",
     "most-damped": "largest smallest damping ratio",
-    "nearest-target": "dominant pole nearest the target pole",
+    "nearest-target": "dominant pole nearest the target pole (or, with target crossover, gain crossover nearest it)",
+    "max-crossover": "largest gain crossover meeting every spec, over the whole controller space",
 }
 
 

@@ -77,10 +77,12 @@ class Sampling:
 
 @dataclass(frozen=True)
 class Target:
-    """Desired dominant closed-loop pair: damping ratio and natural frequency (rad/s)."""
+    """Design target: a dominant closed-loop pair (damping ratio and natural
+    frequency, rad/s) or a gain crossover (rad/s); the unused part is None."""
 
-    damping: float
-    natural_frequency: float
+    damping: float | None = None
+    natural_frequency: float | None = None
+    crossover: float | None = None
 
 
 @dataclass(frozen=True)
@@ -198,10 +200,15 @@ class Tolerances:
         parameter ranges over ``[1 - minus, 1 + plus]`` times its nominal value.
     samples : str or (int, int)
         ``"corners"`` or ``(count, seed)`` for space-filling samples.
+    design : str
+        ``"check"`` (the table is checked at every sample) or
+        ``"worst-case"`` (each point is designed so that every spec holds at
+        every sample), ``names.TOLERANCE_DESIGNS``.
     """
 
     parameters: dict[str, tuple[float, float]] = field(default_factory=dict)
     samples: str | tuple[int, int] = "corners"
+    design: str = "check"
 
 
 @dataclass(frozen=True)

@@ -109,6 +109,10 @@ def read_controller(node: Node) -> ControllerSection:
     if strategy == "shape-sweep":
         objective = keys["objective"].choice("sweep objective", names.SWEEP_OBJECTIVES) if "objective" in keys else "fastest"
         sweep = _read_sweep(keys["sweep"]) if "sweep" in keys else DEFAULT_SWEEP
+    if objective in names.CROSSOVER_OBJECTIVES and "sweep" in keys:
+        raise keys["sweep"].error(
+            f"sweep does not apply to objective {objective!r}: it searches the whole controller space"
+        )
     if strategy == "pole-cancel":
         zero_on = keys["zero_on"].choice("cancel target", names.CANCEL_TARGETS) if "zero_on" in keys else "slowest"
     needs_target = strategy == "dominant-pair" or objective == "nearest-target"
@@ -120,7 +124,7 @@ def read_controller(node: Node) -> ControllerSection:
                 f"{'strategy dominant-pair' if strategy == 'dominant-pair' else 'objective nearest-target'}",
                 path=node.child_path("target"),
             )
-        target = _read_target(keys["target"])
+        target = _read_target(keys["target"], allow_crossover=objective == "nearest-target")
     elif "target" in keys:
         raise keys["target"].error("target applies only to strategy 'dominant-pair' or objective 'nearest-target'")
     derivative_filter = None
@@ -153,8 +157,21 @@ def read_controller(node: Node) -> ControllerSection:
     )
 
 
-def _read_target(node: Node) -> Target:
-    keys = node.mapping(("damping", "natural_frequency"), required=("damping", "natural_frequency"))
+def _read_target(node: Node, allow_crossover: bool) -> Target:
+    keys = node.mapping(("damping", "natural_frequency", "crossover"))
+    if "crossover" in keys:
+        if not allow_crossover:
+            raise keys["crossover"].error("target crossover applies only to objective 'nearest-target'")
+        if "damping" in keys or "natural_frequency" in keys:
+            raise node.error("target is either {crossover} or {damping, natural_frequency}, not both")
+        return Target(crossover=_positive(keys["crossover"], "target crossover (rad/s)"))
+    for key in ("damping", "natural_frequency"):
+        if key not in keys:
+            raise node.error(
+                f"missing required key {key!r} of target ({{damping, natural_frequency}}"
+                + (" or {crossover}" if allow_crossover else "") + ")",
+                path=node.child_path(key),
+            )
     damping = _in_range(keys["damping"], "target damping ratio", 0.0, 1.0)
     frequency = _positive(keys["natural_frequency"], "target natural frequency (rad/s)")
     return Target(damping=damping, natural_frequency=frequency)
@@ -289,7 +306,7 @@ def read_tolerances(node: Node | None, independent: dict[str, bool]) -> Toleranc
     """
     if node is None or node.is_null:
         return Tolerances()
-    keys = node.mapping(("parameters", "samples"))
+    keys = node.mapping(("parameters", "samples", "design"))
     parameters: dict[str, tuple[float, float]] = {}
     if "parameters" in keys:
         for name, value in keys["parameters"].mapping().items():
@@ -331,7 +348,8 @@ def read_tolerances(node: Node | None, independent: dict[str, bool]) -> Toleranc
             samples = (count, seed)
         else:
             samples = sample_node.choice("tolerance sampling", ("corners",))
-    return Tolerances(parameters=parameters, samples=samples)
+    design = keys["design"].choice("tolerance design", names.TOLERANCE_DESIGNS) if "design" in keys else "check"
+    return Tolerances(parameters=parameters, samples=samples, design=design)
 
 
 def read_codegen(node: Node | None, schedule_name: str, name_node: Node) -> CodegenSection:

@@ -1,0 +1,253 @@
+"""The crossover objectives on a schedule: back-off, worst-case corners, certificate.
+
+:func:`choose_by_crossover` runs :func:`gainloom.design.crossover.crossover_design`
+on the tightened specs (the design back-off), then on the written specs at the
+points where that found nothing, so the back-off never turns a feasible point
+into an infeasible one.  With ``tolerances: {design: worst-case}`` every
+tolerance corner's plant joins the search.  Where even the written specs are
+met by no controller of the whole space, :func:`certify` names the binding
+spec and its best value over the space, and the table holds that compromise.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from ..lti.loop import Loop
+from .crossover import CrossoverChoice, crossover_design, shape_space
+from .diagnose import SPEC_WORDS
+from .search import Shapes
+from .specs import SpecLimits
+
+__all__ = ["CrossoverRun", "choose_by_crossover", "uses_crossover", "crossover_target"]
+
+#: Bisection steps on the binding spec's limit (best value to ~1 % of its range).
+CERTIFY_STEPS = 7
+
+#: Specs the certificate relaxes, with the relaxed end of their range:
+#: "at least" specs go down to ``low``; "at most" specs up to ``factor``
+#: times the written limit (``max_pole_radius`` up to 1).
+_RELAX = (
+    ("min_gain_margin", "at least", 0.0),
+    ("min_phase_margin", "at least", 0.0),
+    ("min_delay_margin", "at least", 0.0),
+    ("max_sensitivity_peak", "at most", 100.0),
+    ("min_crossover", "at least", 0.0),
+    ("max_crossover", "at most", 100.0),
+    ("min_bandwidth", "at least", 0.0),
+    ("min_damping", "at least", 0.0),
+    ("min_decay", "at least", 0.0),
+    ("max_pole_radius", "at most", None),
+    ("max_gain", "at most", 100.0),
+)
+
+
+def crossover_target(controller) -> float | None:
+    """The target crossover (rad/s) of ``nearest-target``, or None."""
+    target = getattr(controller, "target", None)
+    return None if target is None else getattr(target, "crossover", None)
+
+
+def uses_crossover(controller, objective: str) -> bool:
+    """True when the objective is judged on the crossover (this module's search)."""
+    from ..names import CROSSOVER_OBJECTIVES
+
+    return objective in CROSSOVER_OBJECTIVES or (objective == "nearest-target" and crossover_target(controller) is not None)
+
+
+@dataclass(frozen=True, eq=False)
+class CrossoverRun:
+    """Result per point: shapes (S = 1), gain (compromise where infeasible), verdicts and notes."""
+
+    shapes: Shapes
+    gain: np.ndarray
+    feasible: np.ndarray
+    intervals: list
+    crossover: np.ndarray
+    notes: list
+    binding: dict
+
+
+def _with(limits: SpecLimits, name: str, rows: np.ndarray, value: np.ndarray) -> SpecLimits:
+    """Limits with spec ``name`` set to ``value`` at ``rows`` (a no-op for a spec the limits lack)."""
+    if not hasattr(limits, name):
+        return limits
+    array = np.array(getattr(limits, name), float)
+    array[rows] = value
+    return replace(limits, **{name: array})
+
+
+def _merge(first: CrossoverChoice, second: CrossoverChoice, rows: np.ndarray) -> CrossoverChoice:
+    """``first`` with the points ``rows`` taken from ``second`` (which holds only those points)."""
+    def put(a, b):
+        out = np.array(a, copy=True)
+        out[rows] = b
+        return out
+
+    shapes = Shapes(*(put(getattr(first.shapes, f), getattr(second.shapes, f)) for f in ("zeros", "poles", "valid", "gain", "params")))
+    intervals = list(first.intervals)
+    for j, r in enumerate(rows):
+        intervals[r] = second.intervals[j]
+    return CrossoverChoice(
+        shapes=shapes, gain=put(first.gain, second.gain), feasible=put(first.feasible, second.feasible),
+        intervals=intervals, crossover=put(first.crossover, second.crossover), rates=put(first.rates, second.rates),
+    )
+
+
+def _corners(sched, points: np.ndarray) -> tuple[Loop, ...]:
+    if sched.tolerances.design != "worst-case" or not sched.tolerances.parameters:
+        return ()
+    from .engine import sampled_plant
+    from .table_checks import tolerance_scales
+
+    return tuple(sampled_plant(sched, points, scale) for scale in tolerance_scales(sched.tolerances))
+
+
+def _select(loop: Loop, rows: np.ndarray) -> Loop:
+    return loop.select(rows)
+
+
+def choose_by_crossover(sched, points: np.ndarray, plant: Loop, limits: SpecLimits, objective: str) -> CrossoverRun:
+    """Design every point with a crossover objective (see the module docstring)."""
+    controller = sched.controller
+    corners = _corners(sched, points)
+    kwargs = dict(target_crossover=crossover_target(controller), derivative_filter=controller.derivative_filter)
+
+    def run(rows: np.ndarray, lim: SpecLimits) -> CrossoverChoice:
+        return crossover_design(
+            _select(plant, rows), controller.structure, lim.select(rows), objective, points[rows],
+            corners=tuple(_select(c, rows) for c in corners), **kwargs,
+        )
+
+    P = plant.points
+    everything = np.arange(P)
+    choice = run(everything, limits.tightened())
+    notes: list[list[str]] = [[] for _ in range(P)]
+    retry = np.flatnonzero(~choice.feasible)
+    if retry.size:
+        choice = _merge(choice, run(retry, limits), retry)
+        for p in retry[choice.feasible[retry]]:
+            notes[p].append("met the specs only without the design back-off (on the spec boundary)")
+    if corners:
+        for p in np.flatnonzero(choice.feasible):
+            notes[p].append(f"designed for every spec at each of {len(corners)} tolerance samples (worst case)")
+    binding: dict = {}
+    gain = choice.gain.copy()
+    failed = np.flatnonzero(~choice.feasible)
+    if failed.size:
+        found, compromise = certify(run, plant, limits, failed, controller.structure)
+        binding.update(found)
+        choice = _merge(choice, compromise, failed)
+        gain = choice.gain.copy()
+    return CrossoverRun(
+        shapes=choice.shapes, gain=gain, feasible=~np.isin(everything, failed), intervals=choice.intervals,
+        crossover=choice.crossover, notes=notes, binding=binding,
+    )
+
+
+def _relaxed_end(limit: np.ndarray, kind: str, end: float | None) -> np.ndarray:
+    if end is None:  # max_pole_radius
+        return np.ones_like(limit)
+    return np.full_like(limit, end) if kind == "at least" else limit * end
+
+
+def certify(run, plant: Loop, limits: SpecLimits, rows: np.ndarray, structure: str):
+    """Binding spec and its best value over the whole space at infeasible ``rows``.
+
+    Each spec present is removed in turn (the others kept as written); where
+    that makes the point feasible, the spec's limit is bisected between its
+    relaxed end and the written value: the last feasible limit is the best
+    value of that spec over every shape and gain that meets all other specs.
+    The first such spec (report order) is named binding; the design at its
+    best value fills the table.  Where no single spec frees the point, all of
+    them are relaxed together the same way.
+
+    Returns
+    -------
+    (dict, CrossoverChoice)
+        ``{point: (spec name, note)}`` and the compromise designs of ``rows``.
+    """
+    low, high = shape_space(_select(plant, rows))
+    space = f"shape rates {np.exp(low).min():.3g} .. {np.exp(high).max():.3g} rad/s, every gain"
+    found: dict = {}
+    picked: list = [None] * rows.size
+    pending = np.arange(rows.size)
+    present = [(n, k, e) for n, k, e in _RELAX if hasattr(limits, n) and np.any(np.isfinite(getattr(limits, n)[rows]))]
+    for name, kind, end in present:
+        if pending.size == 0:
+            break
+        sub = rows[pending]
+        written = np.asarray(getattr(limits, name), float)[sub]
+        best = run(sub, _with(limits, name, sub, np.nan))
+        ok = best.feasible & np.isfinite(written)
+        if not np.any(ok):
+            continue
+        good = np.where(ok, _relaxed_end(written, kind, end), np.nan)
+        bad = written.copy()
+        for _ in range(CERTIFY_STEPS):
+            trial = np.where(ok, _midpoint(good, bad, kind, name), written)
+            attempt = run(sub, _with(limits, name, sub, trial))
+            move = ok & attempt.feasible
+            good = np.where(move, trial, good)
+            bad = np.where(ok & ~attempt.feasible, trial, bad)
+            if np.any(move):
+                best = _merge(best, _pick(attempt, move), np.flatnonzero(move))
+        for j in np.flatnonzero(ok):
+            found[int(sub[j])] = (name, _text(name, kind, good[j], written[j], structure, space))
+            picked[pending[j]] = _pick(best, np.arange(sub.size) == j)
+        pending = pending[~ok]
+    if pending.size:
+        sub = rows[pending]
+        relaxed = limits
+        for name, kind, end in present:
+            written = np.asarray(getattr(limits, name), float)[sub]
+            relaxed = _with(relaxed, name, sub, np.where(np.isfinite(written), _relaxed_end(written, kind, end), np.nan))
+        attempt = run(sub, relaxed)
+        for j, p in enumerate(sub):
+            picked[pending[j]] = _pick(attempt, np.arange(sub.size) == j)
+            found[int(p)] = (
+                present[0][0] if present else "stable",
+                f"no {structure} in the whole searched space ({space}) meets every spec, and no single spec "
+                "is binding alone: they conflict together; the table holds the design with every spec relaxed "
+                "to its loosest end (infeasible, a compromise only)",
+            )
+    return found, _stack(picked)
+
+
+def _pick(choice: CrossoverChoice, mask: np.ndarray) -> CrossoverChoice:
+    """The entries of ``choice`` at ``mask`` as a choice of ``mask.sum()`` points."""
+    rows = np.flatnonzero(mask)
+    shapes = Shapes(*(getattr(choice.shapes, f)[rows] for f in ("zeros", "poles", "valid", "gain", "params")))
+    return CrossoverChoice(
+        shapes=shapes, gain=choice.gain[rows], feasible=choice.feasible[rows],
+        intervals=[choice.intervals[r] for r in rows], crossover=choice.crossover[rows], rates=choice.rates[rows],
+    )
+
+
+def _stack(parts: list[CrossoverChoice]) -> CrossoverChoice:
+    """One choice from single-point choices, in order."""
+    cat = lambda f: np.concatenate([getattr(c.shapes, f) for c in parts])  # noqa: E731
+    return CrossoverChoice(
+        shapes=Shapes(*(cat(f) for f in ("zeros", "poles", "valid", "gain", "params"))),
+        gain=np.concatenate([c.gain for c in parts]), feasible=np.concatenate([c.feasible for c in parts]),
+        intervals=sum((c.intervals for c in parts), []), crossover=np.concatenate([c.crossover for c in parts]),
+        rates=np.concatenate([c.rates for c in parts]),
+    )
+
+
+def _midpoint(good: np.ndarray, bad: np.ndarray, kind: str, name: str) -> np.ndarray:
+    if kind == "at most" and name != "max_pole_radius":
+        return np.sqrt(good * bad)
+    return 0.5 * (good + bad)
+
+
+def _text(name: str, kind: str, best: float, written: float, structure: str, space: str) -> str:
+    quantity, _, unit = SPEC_WORDS.get(name, (name.replace("_", " "), "", ""))
+    relation = ">=" if kind == "at least" else "<="
+    return (
+        f"no {structure} in the whole searched space ({space}) meets every spec; {name} is binding: "
+        f"with every other spec met, the best {quantity} over that space is {best:.4g}{unit} "
+        f"(spec {relation} {written:.6g}{unit}); the table holds that compromise (infeasible)"
+    )
