@@ -71,6 +71,9 @@ __all__ = ["CrossoverChoice", "crossover_design", "INTEGRAL_COST", "shape_space"
 #: Crossover given up for integral action in pi and pid designs (relative).
 #: Our choice (no source), see docs/design.md.
 INTEGRAL_COST = 0.03
+#: Hard floor besides: the slowest zero of pi/pid is at least
+#: crossover / INTEGRAL_SPAN (two decades; our choice, no source).
+INTEGRAL_SPAN = 100.0
 #: Coarse grid points per shape parameter (one- and two-parameter shapes).
 GRID_1D = 48
 GRID_2D = 16
@@ -157,6 +160,13 @@ def _coarse(structure: str, low: np.ndarray, high: np.ndarray) -> np.ndarray:
     return np.stack([axis[:, i], axis[:, j]], axis=-1)
 
 
+def _integral_cap(structure: str, log_rates: np.ndarray) -> np.ndarray:
+    """Highest crossover (rad/s) the integral floor allows each shape (P, S); inf without integrator."""
+    if structure not in ("pi", "pid"):
+        return np.full(log_rates.shape[:2], np.inf)
+    return INTEGRAL_SPAN * np.exp(np.min(log_rates, axis=-1))
+
+
 def _shapes(structure: str, log_rates: np.ndarray, ts: np.ndarray, kd_a: np.ndarray) -> Shapes:
     """Shapes from log rates (P, S, d)."""
     P, S = log_rates.shape[:2]
@@ -196,7 +206,7 @@ def _spec(limits: SpecLimits, name: str) -> np.ndarray:
     return np.full(limits.points, np.nan) if value is None else np.asarray(value, float)
 
 
-def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, rows_p: np.ndarray, flat_rows: np.ndarray):
+def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, cap: np.ndarray, rows_p: np.ndarray, flat_rows: np.ndarray):
     """Feasible gain sets of the flattened shape rows ``flat_rows`` on one plant; and their response grids."""
     P, S = shapes.valid.shape
     zeros = shapes.zeros.reshape((P * S,) + shapes.zeros.shape[2:])[flat_rows]
@@ -206,7 +216,8 @@ def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, rows_p: np.ndarray, f
     lim = ctx.limits
     sets = exact_feasible(loops, lim, points)
     grid = gs.response_grid(loops, ctx.w_low[points])
-    low, high = _spec(lim, "min_crossover")[points], _spec(lim, "max_crossover")[points]
+    low = _spec(lim, "min_crossover")[points]
+    high = np.fmin(_spec(lim, "max_crossover")[points], cap.reshape(-1)[flat_rows])
     if ctx.band is not None:
         low, high = np.fmax(low, ctx.band[0][points]), np.fmin(high, ctx.band[1][points])
     parts = [gs.crossover_band_gains(grid, low, high)]
@@ -267,6 +278,7 @@ def _evaluate(ctx: _Context, log_rates: np.ndarray):
     P, S = log_rates.shape[:2]
     ts = np.asarray(ctx.plants[0].ts, float)
     shapes = _shapes(ctx.structure, log_rates, ts, ctx.kd_a)
+    cap = _integral_cap(ctx.structure, log_rates)
     rows_p = np.repeat(np.arange(P), S)
     flat = np.flatnonzero(shapes.valid.reshape(-1))
     sets_all: list = [[] for _ in range(P * S)]
@@ -274,9 +286,9 @@ def _evaluate(ctx: _Context, log_rates: np.ndarray):
     gain = np.full(P * S, np.nan)
     crossover = np.full(P * S, np.nan)
     if flat.size:
-        sets, grid = _gain_sets(ctx, ctx.plants[0], shapes, rows_p, flat)
+        sets, grid = _gain_sets(ctx, ctx.plants[0], shapes, cap, rows_p, flat)
         for plant in ctx.plants[1:]:
-            corner, _ = _gain_sets(ctx, plant, shapes, rows_p, flat)
+            corner, _ = _gain_sets(ctx, plant, shapes, cap, rows_p, flat)
             sets = gs.intersect_all(sets, corner)
         points = rows_p[flat]
         cands = _candidates(sets, grid, ctx.target[points])
