@@ -260,3 +260,44 @@ def test_table_is_as_smooth_as_the_brute_force_reference(tmp_path):
     theirs = largest_steps(np.array([r[0] for r in ref]), np.array([r[1] for r in ref]))
     for mine, reference in zip(ours, theirs):
         assert mine <= 1.5 * reference + 0.05, (ours, theirs)
+
+
+SCALED = """
+name: scaled-rl
+variables:
+  - name: scale
+    unit: ""
+    values: [1, 2, 3]
+parameters:
+  L: "1.0e-3 * scale"
+  R: "0.4 * scale"
+plant:
+  transfer_function:
+    numerator: ["1"]
+    denominator: ["L", "R"]
+sampling:
+  period: 6.25e-5
+  method: zoh
+  delay: 1
+controller:
+  structure: pi
+  strategy: shape-sweep
+  objective: max-crossover
+  output_limits: [-27, 27]
+specs:
+  min_phase_margin: 45
+  min_gain_margin: 6
+"""
+
+
+def test_identical_normalised_problems_get_the_same_design(tmp_path):
+    # L and R scaled together: the same loop up to a gain, so the same PI zero and a gain
+    # in proportion (ZOH of 1/(L s + R) scales with 1/R exactly; closed form, from memory)
+    path = tmp_path / "s.yaml"
+    path.write_text(SCALED)
+    result = gainloom.design(path)
+    assert result.status == ("pass",) * 3
+    kp = np.asarray(result.analysis.coefficients["kp"])
+    ki_ts = np.asarray(result.analysis.coefficients["ki_ts"])
+    np.testing.assert_allclose(kp / (kp + ki_ts), kp[0] / (kp[0] + ki_ts[0]), rtol=1e-9)  # PI zero
+    np.testing.assert_allclose(kp / np.array([1, 2, 3]), kp[0], rtol=1e-9)
