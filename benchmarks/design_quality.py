@@ -183,7 +183,8 @@ def loop_schedule(name: str, structure: str, folder: Path, quick: bool, specs: d
     return load(doc, folder)
 
 
-def run_loop(name: str, structure: str, folder: Path, quick: bool) -> LoopResult:
+def run_loop(name: str, structure: str, folder: Path, quick: bool, grid: int | None = None) -> LoopResult:
+    """Tool and reference on one loop (``grid``: reference frequency points, default by ``quick``)."""
     sched = loop_schedule(name, structure, folder, quick)
     start = time.perf_counter()
     result = gainloom.design(sched)
@@ -195,7 +196,7 @@ def run_loop(name: str, structure: str, folder: Path, quick: bool) -> LoopResult
     pm, gm = point_specs(sched, points)
 
     start = time.perf_counter()
-    grid = QUICK_GRID if quick else ref.GRID_POINTS
+    grid = grid or (QUICK_GRID if quick else ref.GRID_POINTS)
     designs = [ref.best_design(plant, structure, float(pm[p]), float(gm[p]), grid) for p, plant in enumerate(plants)]
     ref_seconds = time.perf_counter() - start
 

@@ -47,10 +47,11 @@ def test_lookup_matches_scipy_interpolation_on_the_stored_table(number_format, d
         else:
             expected = RegularGridInterpolator(grid, values)(at)
         if layout.fmt.is_fixed:
-            # per stage: weight truncated to 2**-F (error < |g1 - g0| 2**-F LSB)
-            # plus 0.5 LSB rounding; 2-D: row stage then column stage
+            # per stage: weight below the exact one by less than 2 * 2**-F (its
+            # floor and the floor of the stored reciprocal; error < 2 |g1 - g0|
+            # 2**-F LSB) plus 0.5 LSB rounding; 2-D: row stage then column stage
             steps = max(np.max(np.abs(np.diff(values, axis=k))) for k in range(dims))
-            bound = dims * (0.5 + steps * 2.0**-layout.fmt.interp_frac) + 0.5
+            bound = dims * (0.5 + 2 * steps * 2.0**-layout.fmt.interp_frac) + 0.5
             assert np.max(np.abs(gains[item.name] - expected)) <= bound, item.name
         else:
             # a few float32 roundings of magnitude max|table|
@@ -182,22 +183,27 @@ def test_conditional_integration_clamps_the_integrator(number_format):
     assert u[300] < 3.0  # leaves saturation on the first reversed sample
 
 
-def test_fixed_point_weight_is_the_floor_of_the_exact_fraction():
+@pytest.mark.parametrize("number_format", ["q15", "q31"])
+@pytest.mark.parametrize("uniform", [True, False])
+def test_fixed_point_weight_is_the_floor_of_the_exact_fraction_or_one_below(number_format, uniform):
     # Reference: brute force with Python integers: the last breakpoint <= x
-    # gives the segment, floor((x - a_i) 2**F / (a_{i+1} - a_i)) the weight.
+    # gives the segment, floor((x - a_i) 2**F / (a_{i+1} - a_i)) the weight
+    # (the division-free weight may be one below it, never above).
     from gainloom.codegen.mirror import locate
 
-    layout = layout_table(make_table("pi", dims=2, uniform=False), "q31")
+    layout = layout_table(make_table("pi", dims=2, uniform=uniform), number_format)
+    frac = layout.fmt.interp_frac
     rng = np.random.default_rng(9)
     for axis in layout.axes:
         a = [int(v) for v in axis.stored]
-        xs = rng.integers(a[0] - 50, a[-1] + 50, size=400)
-        index, weight = locate(axis, True, 30, xs)
+        xs = np.concatenate([rng.integers(a[0] - 50, a[-1] + 50, size=400), np.array(a) - 1, np.array(a) + 1])
+        index, weight = locate(axis, True, frac, xs)
         for x, i, t in zip(xs.tolist(), index.tolist(), weight.tolist()):
             if x <= a[0]:
                 assert (i, t) == (0, 0)
             elif x >= a[-1]:
-                assert (i, t) == (len(a) - 2, 2**30)
+                assert (i, t) == (len(a) - 2, 2**frac)
             else:
                 segment = max(k for k in range(len(a) - 1) if a[k] <= x)
-                assert (i, t) == (segment, ((x - a[segment]) << 30) // (a[segment + 1] - a[segment]))
+                exact = ((x - a[segment]) << frac) // (a[segment + 1] - a[segment])
+                assert i == segment and t in (exact, exact - 1) and t >= 0

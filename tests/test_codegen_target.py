@@ -29,12 +29,6 @@ M0, M4F = CORES
 REPO = Path(__file__).resolve().parents[1]
 NAMES = CNames("motor_ctl")
 
-# The 64-bit division in the fixed-point lookup is being replaced on another
-# branch; until it lands the fixed-point helper check is expected to fail.
-FIXED_DIVISION_PENDING = pytest.mark.xfail(
-    reason="the fixed-point lookup still divides 64-bit integers (__aeabi_ldivmod); its replacement is pending",
-    strict=False,
-)
 
 
 def _emit(tmp_path, number_format, structure="pid", dims=2, uniform=False):
@@ -94,8 +88,10 @@ def test_every_format_builds_clean_as_c99_and_c11_on_both_cores(tmp_path, number
         assert sorted(f.name for f in build.functions) == sorted([NAMES.lookup, NAMES.clear, NAMES.update])
         assert build.ram_bytes == 0  # no mutable state in the table's object: reentrant
         assert all(f.stack_bytes is not None and f.stack_bounded for f in build.functions)
-        # the tables are all the constant data: one axis array per axis, one array per coefficient
-        assert len(build.tables) == 2 + len(table.coefficients)
+        # the tables are all the constant data: one axis array per axis, one array per coefficient,
+        # and in fixed point the segment reciprocals (shift and scale) of each non-uniform axis
+        reciprocals = 0 if number_format == "float32" else 2 * 2
+        assert len(build.tables) == 2 + len(table.coefficients) + reciprocals, sorted(build.tables)
 
 
 @needs_build
@@ -114,13 +110,19 @@ def test_float32_calls_no_double_precision_and_no_helper_with_an_fpu(tmp_path):
 @needs_build
 @pytest.mark.parametrize("number_format", ["q15", "q31"])
 @pytest.mark.parametrize("core", CORES, ids=lambda c: c.name)
-@FIXED_DIVISION_PENDING
-def test_fixed_point_lookup_and_step_call_no_slow_helper(tmp_path, number_format, core):
-    table, files = _emit(tmp_path, number_format)
+@pytest.mark.parametrize("uniform", [False, True], ids=["nonuniform", "uniform"])
+def test_fixed_point_lookup_and_step_call_no_slow_helper(tmp_path, number_format, core, uniform):
+    table, files = _emit(tmp_path, number_format, uniform=uniform)
     work = files[0].parent
     build = build_for_core(TOOLS, core, [work / "motor_ctl.c"], work, True)
     calls = {f.name: [(h.symbol, h.kind) for h in f.helpers if not h.allowed] for f in build.functions}
     assert all(not bad for bad in calls.values()), calls
+    # no division of any width (Arm run-time ABI, IHI 0043: __aeabi_*div*)
+    assert not any("division" in h.kind for f in build.functions for h in f.helpers)
+    if number_format == "q15" and not uniform:
+        # the Q15 lookup forms its weight from 32-bit products: no helper at all, even on ARMv6-M
+        lookup = next(f for f in build.functions if f.name == NAMES.lookup)
+        assert lookup.helpers == (), lookup.helpers
 
 
 @needs_build
@@ -238,3 +240,14 @@ def test_every_deviation_is_documented_with_its_reason():
         number = rule.removeprefix("misra-c2012-")
         assert f"| {number} |" in text, rule
         assert " ".join(reason.split()) in text, rule
+
+
+@needs_cppcheck
+@pytest.mark.parametrize("number_format", ["q15", "q31"])
+def test_cppcheck_and_misra_on_uniform_fixed_point_axes(tmp_path, number_format):
+    # the uniform axes take the reciprocal index path, which the default table does not reach
+    table, files = _emit(tmp_path, number_format, structure="pi", dims=2, uniform=True)
+    caller = tmp_path / "caller.c"
+    caller.write_text(measure_source(harness_program(table, generated_files(files)), "motor_ctl"))
+    result = check_rules(files, caller, TOOLS.cppcheck)
+    assert result.status == "passed", result.message

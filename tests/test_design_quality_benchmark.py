@@ -5,8 +5,8 @@ its ratios mean anything, so it is checked against python-control's
 ``stability_margins``, against closed forms, and against a coarse
 python-control brute force.  The tool's designs on the benchmark loops are
 re-checked with the reference's own margin code.  The benchmark's goals
-(issue 9) are asserted too, marked xfail (not strict) until the whole-space
-search with objective ``max-crossover`` lands; they then flip to pass.
+(issue 9) are asserted too; where the tool does not reach one yet the case is
+marked xfail (not strict) with the measured shortfall, so it flips to pass.
 """
 
 import importlib.util
@@ -144,26 +144,36 @@ def test_tool_designs_meet_their_specs_when_rechecked(quick_results):
         assert r.reference_infeasible == 0, r.name
 
 
-GOAL = pytest.mark.xfail(
+#: Where the tool does not reach an issue-9 goal yet (measured on main a7337d1,
+#: DEVELOPERS.md "Benchmarks"): the 0.5 dB gain-margin back-off of the design
+#: alone costs the GM-bound current loop 3.6 % of crossover, the rest is search.
+SHORT_OF_GOAL = pytest.mark.xfail(
     strict=False,
-    reason="issue 9 goal: needs the whole-space search with objective max-crossover (branch search)",
+    reason="issue 9 goal not reached yet: current_rl PI reaches 0.916 of the best crossover "
+    "(0.5 dB gain-margin back-off alone: 0.964) and 0.92 of the modulus optimum's at its margins",
 )
 
 
-@GOAL
-def test_goal_crossover_ratio_and_no_wrong_infeasible(quick_results):
-    for r in quick_results:
-        assert r.wrong_infeasible == 0, r.name
-        assert np.min(r.ratio) >= 0.95, r.name
+def _goal_cases(names):
+    return [pytest.param(n, marks=SHORT_OF_GOAL) if n == "current_rl" else n for n in names]
 
 
-@GOAL
-def test_goal_coefficient_steps_within_the_references(quick_results):
+@pytest.mark.parametrize("name", _goal_cases(list(bench.LOOPS)))
+def test_goal_crossover_ratio_and_no_wrong_infeasible(quick_results, name):
+    # issue 9 item 3: at least 0.95 of the reference's crossover at every point,
+    # no point called infeasible where the reference found a controller
+    r = next(r for r in quick_results if r.name == name)
+    assert r.wrong_infeasible == 0
+    assert np.min(r.ratio) >= 0.95
+
+
+def test_goal_coefficient_steps_within_the_references(tmp_path):
     # issue 9 item 6: each coefficient's largest relative step between neighbours
-    # at most 1.5 x the reference table's own plus 0.05
-    for r in quick_results:
-        for name, (tool, reference) in r.steps.items():
-            assert tool <= 1.5 * reference + 0.05, (r.name, name)
+    # at most 1.5 x the reference table's own plus 0.05, on a whole grid (the
+    # quick slice's neighbours are the ends of the range)
+    r = bench.run_loop("fan_speed", "pi", tmp_path, quick=False, grid=bench.QUICK_GRID)
+    for name, (tool, reference) in r.steps.items():
+        assert tool <= 1.5 * reference + 0.05, name
 
 
 @pytest.fixture(scope="module")
@@ -188,10 +198,11 @@ def test_reference_reaches_the_published_rules_at_their_own_margins(rule_results
         assert np.all(r.phase_margin <= textbook + 0.5) and np.all(r.phase_margin >= textbook - 10), r.name
 
 
-@GOAL
-def test_goal_max_crossover_reaches_the_published_rules(rule_results):
-    for r in rule_results:
-        assert np.all(r.tool_ratio >= 1 - 1e-3), r.name
+@pytest.mark.parametrize("name", _goal_cases([n for n, rule in bench.LOOPS.items() if rule]))
+def test_goal_max_crossover_reaches_the_published_rules(rule_results, name):
+    # issue 9 item 8: max-crossover at the rule's own margins reaches at least the rule's crossover
+    r = next(r for r in rule_results if r.name == name)
+    assert np.all(r.tool_ratio >= 1 - 1e-3)
 
 
 def test_main_prints_every_loop(quick_results, rule_results, capsys, monkeypatch):

@@ -132,3 +132,52 @@ def test_lerp_fixed_matches_exact_rational_interpolation(a, b, t):
     assert result == expected
     assert min(a, b) <= result <= max(a, b)
     assert int(lerp_fixed(a, b, 0, 30)) == a and int(lerp_fixed(a, b, 2**30, 30)) == b
+
+
+@pytest.mark.parametrize("interp_frac", [15, 30])
+def test_division_free_weight_is_the_exact_floor_or_one_below(interp_frac):
+    # Reference: exact integer floor division in Python (unbounded
+    # integers), the quotient the removed 64-bit division computed.
+    from gainloom.codegen.qformat import segment_reciprocals, weight_fixed
+
+    rng = np.random.default_rng(7)
+    widths = np.concatenate([[1, 2, 3, 2**15, 2**16 + 1, 2**30, 2**31 - 1], rng.integers(1, 2**31, 200)])
+    for w in widths:
+        w = int(w)
+        shift, scale = segment_reciprocals(np.array([-(2**30), -(2**30) + w]), interp_frac)
+        assert 0 <= int(scale[0]) <= 2 ** (interp_frac + 1) and 0 <= int(shift[0]) <= 31
+        offsets = np.unique(np.clip(np.concatenate([[0, 1, w // 2, w - 2, w - 1], rng.integers(0, w, 50)]), 0, w - 1))
+        t = weight_fixed(offsets, shift[0], scale[0])
+        exact = np.array([(int(d) << interp_frac) // w for d in offsets])
+        assert np.all((t == exact) | (t == exact - 1)), w
+        assert np.all((t >= 0) & (t < 2**interp_frac)) and int(t[0]) == 0  # offsets[0] is 0
+
+
+def test_the_q15_split_product_equals_the_64_bit_product():
+    # Reference: Python integers; the C's Q15 weight forms two 32-bit products
+    # (offset high and low halves) instead of one 64-bit product.
+    from gainloom.codegen.qformat import segment_reciprocals
+
+    rng = np.random.default_rng(3)
+    for w in [1, 2, 77, 2**16, 2**31 - 1, *rng.integers(1, 2**31, 300)]:
+        shift, scale = segment_reciprocals(np.array([0, int(w)]), 15)
+        r = int(scale[0])
+        for d in {0, int(w) - 1, int(rng.integers(0, w))}:
+            offset = d << int(shift[0])
+            assert offset < 2**32 and r <= 2**16
+            high, low = (offset >> 16) * r, ((offset & 0xFFFF) * r) >> 16
+            assert high < 2**32 and high + low < 2**32
+            assert (high + low) >> 16 == (offset * r) >> 32
+
+
+def test_uniform_index_estimate_is_the_quotient_or_one_below():
+    # Reference: exact integer floor division (Python integers).
+    from gainloom.codegen.qformat import index_reciprocal
+
+    rng = np.random.default_rng(11)
+    for step in [1, 2, 3, 1000, 2**20 + 7, 2**30, 2**31 - 1, *rng.integers(1, 2**31, 100)]:
+        scale, shift = index_reciprocal(int(step))
+        assert scale <= 2**31
+        for d in [0, int(step) - 1, int(step), 2**31 - 1, *rng.integers(0, 2**31, 30)]:
+            estimate = (int(d) * scale) >> shift
+            assert estimate in (int(d) // int(step), int(d) // int(step) - 1), (step, d)

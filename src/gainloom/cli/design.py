@@ -87,23 +87,37 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 class Counter:
-    """A one-line progress counter on stderr: ``design  37/200``."""
+    """Progress on stderr.
 
-    def __init__(self, stream=None, enabled: bool = True) -> None:
+    On a terminal, one live line rewritten in place (``design  37/200``); off
+    a terminal (a log file, a CI job) only one line per finished stage, so
+    logs carry no carriage returns.
+    """
+
+    def __init__(self, stream=None, enabled: bool = True, live: bool | None = None) -> None:
         self.stream = stream or sys.stderr
         self.enabled = enabled
+        self.live = _is_terminal(self.stream) if live is None else live
         self.last = None
 
     def __call__(self, stage: str, done: int, total: int) -> None:
-        if not self.enabled:
+        if not self.enabled or (stage, done) == self.last:
             return
-        text = f"\r{stage:<15} {done:>6}/{total:<6}"
-        if (stage, done) != self.last:
-            self.stream.write(text)
-            if done >= total:
-                self.stream.write("\n")
-            self.stream.flush()
-            self.last = (stage, done)
+        self.last = (stage, done)
+        if self.live:
+            self.stream.write(f"\r{stage:<15} {done:>6}/{total:<6}" + ("\n" if done >= total else ""))
+        elif done >= total:
+            self.stream.write(f"{stage:<15} {done:>6}/{total:<6} done\n")
+        else:
+            return
+        self.stream.flush()
+
+
+def _is_terminal(stream) -> bool:
+    try:
+        return bool(stream.isatty())
+    except (AttributeError, ValueError):  # no isatty, or a closed stream
+        return False
 
 
 def summary_rows(labels, analysis, status, binding=None):

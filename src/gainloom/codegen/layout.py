@@ -27,7 +27,8 @@ Axis inputs of the fixed-point variants are ``int32_t`` with a per-axis
 number of fraction bits ``frac``: the firmware passes
 ``round(x_physical * 2**frac)``.  ``frac`` is chosen so the largest breakpoint
 magnitude is at most ``2**30``.  Uniform axes are stored as
-``q0 + i * step`` exactly (index lookup is then an integer division), so
+``q0 + i * step`` exactly (index lookup is then one multiplication by the
+step's reciprocal), so
 their breakpoints may differ from the rounded physical ones by up to
 ``(n - 1) / 2`` LSB of the axis format; non-uniform axes are rounded point by
 point.  The float32 variant takes physical units throughout.
@@ -42,7 +43,16 @@ import numpy as np
 from ..design.table import GainTable, TableAxis
 from ..errors import CodegenError
 from ..c_names import validate_fragment
-from .qformat import STATE_FRAC, NumberFormat, choose_frac, dequantize, number_format, quantize
+from .qformat import (
+    STATE_FRAC,
+    NumberFormat,
+    choose_frac,
+    dequantize,
+    index_reciprocal,
+    number_format,
+    quantize,
+    segment_reciprocals,
+)
 
 __all__ = ["GAIN_COEFFICIENTS", "AxisLayout", "CoefficientLayout", "TableLayout", "layout_table"]
 
@@ -75,6 +85,14 @@ class AxisLayout:
         Stored spacing (uniform axes; 0 otherwise).
     inv_step : float
         ``float32(1 / step)`` for uniform float32 axes (0 otherwise).
+    weight_shift, weight_scale : ndarray of int64 or None
+        Fixed point: per-segment normalising shift and reciprocal of the
+        width (:func:`~gainloom.codegen.qformat.segment_reciprocals`);
+        ``None`` for float32.
+    index_scale, index_shift : int
+        Uniform fixed-point axes: reciprocal of the step for the segment
+        index (:func:`~gainloom.codegen.qformat.index_reciprocal`); 0
+        otherwise.
     """
 
     name: str
@@ -85,6 +103,10 @@ class AxisLayout:
     uniform: bool
     step: int | float
     inv_step: float
+    weight_shift: np.ndarray | None = None
+    weight_scale: np.ndarray | None = None
+    index_scale: int = 0
+    index_shift: int = 0
 
     @property
     def size(self) -> int:
@@ -213,7 +235,10 @@ def _axis_layout(axis: TableAxis, fmt: NumberFormat) -> AxisLayout:
             f"axis {axis.name!r}: breakpoints do not stay strictly increasing in the int32 axis format "
             f"with {frac} fraction bits (spacing too fine for their magnitude)"
         )
-    return AxisLayout(axis.name, axis.unit, values, stored, frac, uniform, step, 0.0)
+    weight_shift, weight_scale = segment_reciprocals(stored, fmt.interp_frac)
+    index_scale, index_shift = index_reciprocal(step) if uniform else (0, 0)
+    return AxisLayout(axis.name, axis.unit, values, stored, frac, uniform, step, 0.0,
+                      weight_shift, weight_scale, index_scale, index_shift)
 
 
 def _coefficient_layout(name: str, values: np.ndarray, fmt: NumberFormat, gain_scale: float) -> CoefficientLayout:

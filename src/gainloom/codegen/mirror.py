@@ -19,8 +19,10 @@ Lookup rules (both variants)
 - An input at or above the last breakpoint uses the last segment with weight
   1: the last breakpoint's values.  No extrapolation.
 - Inside, segment ``i`` satisfies ``a[i] <= x < a[i+1]``; the weight is
-  ``t = (x - a[i]) / (a[i+1] - a[i])`` (fixed point: ``floor`` of that times
-  ``2**interp_frac``).
+  ``t = (x - a[i]) / (a[i+1] - a[i])``.  Fixed point: no division; the
+  width's reciprocal is stored per segment and ``t`` is the floor of the
+  product, never above ``floor(t * 2**interp_frac)`` and at most one below
+  it (:func:`.qformat.segment_reciprocals`).
 - float32 interpolation: ``(1 - t) * g0 + t * g1`` (exact at both ends).
   Fixed point: ``g0 + round((g1 - g0) * t / 2**interp_frac)``.
 - 2-D: interpolate along the second (fast) axis at rows ``i`` and ``i + 1``,
@@ -35,7 +37,7 @@ import numpy as np
 
 from ..errors import CodegenError
 from .layout import AxisLayout, TableLayout
-from .qformat import STATE_FRAC, lerp_fixed, mul_frac, rshift_round, saturate
+from .qformat import STATE_FRAC, lerp_fixed, mul_frac, rshift_round, saturate, weight_fixed
 
 __all__ = [
     "state_fields",
@@ -96,12 +98,13 @@ def locate(axis: AxisLayout, fmt_is_fixed: bool, interp_frac: int, x) -> tuple[n
             raise CodegenError("fixed-point axis inputs must be int32 values")
         low = x <= a[0]
         high = x >= a[-1]
+        # the C finds the same segment: binary search, or on a uniform axis a
+        # reciprocal estimate never above the true index and one step up
         index = np.clip(np.searchsorted(a, x, side="right") - 1, 0, n - 2)
         one = np.int64(1) << interp_frac
         inside = ~(low | high)
-        # floor division of non-negative numbers = C99 truncating division
-        numerator = np.where(inside, x - a[index], 0) * one
-        weight = numerator // (a[index + 1] - a[index])
+        offset = np.where(inside, x - a[index], 0)
+        weight = weight_fixed(offset, axis.weight_shift[index], axis.weight_scale[index])
         index = np.where(low, 0, np.where(high, n - 2, index))
         weight = np.where(low, 0, np.where(high, one, weight)).astype(np.int64)
         return index.astype(np.int64), weight

@@ -49,6 +49,9 @@ __all__ = [
     "choose_frac",
     "mul_frac",
     "lerp_fixed",
+    "segment_reciprocals",
+    "index_reciprocal",
+    "weight_fixed",
 ]
 
 #: Fraction bits of the controller's internal signals (states and sums) in
@@ -260,3 +263,60 @@ def lerp_fixed(a, b, t, interp_frac: int):
     a = np.asarray(a, dtype=np.int64)
     b = np.asarray(b, dtype=np.int64)
     return a + rshift_round((b - a) * np.asarray(t, dtype=np.int64), interp_frac)
+
+
+def segment_reciprocals(breakpoints: np.ndarray, interp_frac: int) -> tuple[np.ndarray, np.ndarray]:
+    """Per-segment normalising shifts and reciprocals: the weight without a division.
+
+    For a segment of width ``w`` (``1 <= w < 2**31``) the shift is
+    ``L = 32 - bitlength(w)``, so ``W = w << L`` lies in ``[2**31, 2**32)``,
+    and the reciprocal is ``r = floor(2**(F + 32) / W)`` with ``F =
+    interp_frac``; ``r <= 2**(F + 1)`` fits 32 bits.  :func:`weight_fixed`
+    then gives ``t = floor((d << L) * r / 2**32)`` for an offset ``0 <= d <
+    w``: never above the exact ``floor(d * 2**F / w)`` and at most one below
+    it (the floor of ``r`` loses less than one unit times ``d * 2**L / 2**32
+    < 1``), so ``0 <= t < 2**F`` inside a segment.
+
+    Parameters
+    ----------
+    breakpoints : ndarray of int64
+        Strictly increasing stored breakpoints (``|a| <= 2**30``).
+    interp_frac : int
+        Fraction bits ``F`` of the weight (at most 30).
+
+    Returns
+    -------
+    shift, scale : ndarray of int64, shape (n - 1,)
+    """
+    widths = [int(w) for w in np.diff(np.asarray(breakpoints, dtype=np.int64))]
+    if any(w < 1 or w >= 2**31 for w in widths):
+        raise CodegenError("segment widths must be 1 .. 2**31 - 1 in the axis format")
+    shift = [32 - w.bit_length() for w in widths]
+    scale = [(1 << (interp_frac + 32)) // (w << s) for w, s in zip(widths, shift)]
+    return np.array(shift, dtype=np.int64), np.array(scale, dtype=np.int64)
+
+
+def index_reciprocal(step: int) -> tuple[int, int]:
+    """Reciprocal of a uniform axis step for the segment index without a division.
+
+    Returns ``(scale, shift)`` with ``shift = 30 + bitlength(step)`` and
+    ``scale = floor(2**shift / step)`` (in ``(2**30, 2**31]``); then
+    ``floor(D * scale / 2**shift)`` for ``0 <= D < 2**31`` is
+    ``floor(D / step)`` or one less (the floor of ``scale`` costs less than
+    ``D / 2**shift < 1``).  The C steps up once where needed.
+    """
+    if not 1 <= step < 2**31:
+        raise CodegenError(f"uniform axis step must be 1 .. 2**31 - 1; got {step}")
+    shift = 30 + int(step).bit_length()
+    return (1 << shift) // int(step), shift
+
+
+def weight_fixed(offset, shift, scale):
+    """``floor((offset << shift) * scale / 2**32)``: the interpolation weight
+    as the C computes it (see :func:`segment_reciprocals`).
+
+    ``offset << shift`` is below ``2**32`` and ``scale`` at most ``2**31``,
+    so the product stays below ``2**63`` (exact in ``int64``).
+    """
+    offset = np.asarray(offset, dtype=np.int64)
+    return ((offset << np.asarray(shift, dtype=np.int64)) * np.asarray(scale, dtype=np.int64)) >> 32

@@ -204,6 +204,10 @@ def _context(
                 "uniform": axis.uniform,
                 "step": _literal(layout, axis.step) if axis.uniform else "0",
                 "inv_step": c_float(axis.inv_step) if (axis.uniform and not fmt.is_fixed) else "0",
+                "weight_shift": [] if axis.weight_shift is None else [f"{int(v)}u" for v in axis.weight_shift],
+                "weight_scale": [] if axis.weight_scale is None else [f"{int(v)}u" for v in axis.weight_scale],
+                "index_scale": f"{axis.index_scale}u",
+                "index_shift": axis.index_shift,
             }
         )
     columns = layout.axes[1].size if len(layout.axes) == 2 else 1

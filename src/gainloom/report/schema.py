@@ -48,6 +48,8 @@ _POINT = _obj({
     "notes": {"list": STRING},
     "sample_period_s": NUMBER,
     "delay_samples": NUMBER,
+    "dead_time_s": NUMBER,
+    "total_delay_samples": NUMBER,
     "parameters": {"map": NUMBER},
     "coefficients": {"map": NUMBER},
     "physical": {"map": NUMBER},

@@ -25,6 +25,7 @@ from .model import (
     Tolerances,
 )
 from .nodes import Node
+from . import limits
 
 __all__ = [
     "read_controller",
@@ -186,9 +187,7 @@ def _read_sweep(node: Node) -> Sweep:
         )
     count = DEFAULT_SWEEP.count
     if "count" in keys:
-        count = keys["count"].integer()
-        if count < 2:
-            raise keys["count"].error(f"sweep count must be at least 2; found {count}")
+        count = keys["count"].count("sweep count", 2, limits.MAX_SWEEP_COUNT)
     return Sweep(range=(low, high), count=count)
 
 
@@ -283,15 +282,11 @@ def read_table_checks(node: Node | None, structure: str) -> TableChecks:
             monotone[name] = direction.choice("monotone direction", names.MONOTONE_DIRECTIONS)
     between = 3
     if "between_points" in keys:
-        between = keys["between_points"].integer()
-        if between < 0:
-            raise keys["between_points"].error(f"between_points must be 0 or more; found {between}")
+        between = keys["between_points"].count("between_points", 0, limits.MAX_BETWEEN_POINTS)
     inserted = 0
     if "refine" in keys:
         refine = keys["refine"].mapping(("max_inserted",), required=("max_inserted",))
-        inserted = refine["max_inserted"].integer()
-        if inserted < 0:
-            raise refine["max_inserted"].error(f"max_inserted must be 0 (off) or more; found {inserted}")
+        inserted = refine["max_inserted"].count("max_inserted", 0, limits.MAX_REFINE_INSERTED)
     return TableChecks(max_relative_step=step, monotone=monotone, between_points=between, refine_max_inserted=inserted)
 
 
@@ -339,9 +334,7 @@ def read_tolerances(node: Node | None, independent: dict[str, bool]) -> Toleranc
         sample_node = keys["samples"]
         if sample_node.is_mapping:
             entry = sample_node.mapping(("space_filling", "seed"), required=("space_filling",))
-            count = entry["space_filling"].integer()
-            if count < 1:
-                raise entry["space_filling"].error(f"space_filling sample count must be at least 1; found {count}")
+            count = entry["space_filling"].count("space_filling sample count", 1, limits.MAX_TOLERANCE_SAMPLES)
             seed = entry["seed"].integer() if "seed" in entry else 0
             if seed < 0:
                 raise entry["seed"].error(f"seed must be 0 or more; found {seed}")
