@@ -61,7 +61,8 @@ import numpy as np
 from ..lti import gain_sets as gs
 from ..lti.loop import Loop
 from ..lti.polynomials import batched_roots
-from .search import Shapes, exact_feasible, shape_loops
+from ..lti.closed_loop import closed_loop_poles
+from .search import Shapes, exact_feasible, region_ok, shape_loops
 from .specs import SpecLimits
 from .strategies import LEAD_RATIO, _pack
 from .structures import filter_pole
@@ -233,6 +234,27 @@ def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, cap: np.ndarray, rows
     return gs.intersect_all(sets, *parts), grid
 
 
+def _sampled_region_ok(ctx: _Context, loops: list[Loop], gains: np.ndarray, points: np.ndarray) -> np.ndarray:
+    """Pole-region specs the exact sets leave out, judged at the candidate gains (R, C).
+
+    The natural-frequency band of the dominant pole, and under
+    ``poles: dominant`` the damping (:func:`gainloom.design.search.region_ok`),
+    on every plant (nominal and tolerance corners).
+    """
+    lim = ctx.limits
+    names = ["min_natural_frequency", "max_natural_frequency"]
+    if getattr(lim, "poles", "all") != "all":
+        names.append("min_damping")
+    if not any(np.any(np.isfinite(getattr(lim, n)[points])) for n in names):
+        return np.ones(gains.shape, dtype=bool)
+    safe = np.nan_to_num(gains, nan=1.0)
+    ok = np.ones(gains.shape, dtype=bool)
+    for loop in loops:
+        region, _ = region_ok(closed_loop_poles(loop, safe), np.asarray(loop.ts, float), lim, points)
+        ok &= region
+    return ok
+
+
 def _candidates(sets: list, grid: gs.ResponseGrid, target: np.ndarray) -> np.ndarray:
     """Gains to score per row: interval ends (inset), interior samples, the target's crossing gain."""
     R = len(sets)
@@ -287,13 +309,15 @@ def _evaluate(ctx: _Context, log_rates: np.ndarray):
     crossover = np.full(P * S, np.nan)
     if flat.size:
         sets, grid = _gain_sets(ctx, ctx.plants[0], shapes, cap, rows_p, flat)
+        loops = [grid.loop]
         for plant in ctx.plants[1:]:
-            corner, _ = _gain_sets(ctx, plant, shapes, cap, rows_p, flat)
+            corner, corner_grid = _gain_sets(ctx, plant, shapes, cap, rows_p, flat)
             sets = gs.intersect_all(sets, corner)
+            loops.append(corner_grid.loop)
         points = rows_p[flat]
         cands = _candidates(sets, grid, ctx.target[points])
         wc = gs.crossover_at(grid, np.nan_to_num(cands, nan=1.0))
-        value = np.where(np.isfinite(cands), _score(ctx, wc, points), -np.inf)
+        value = np.where(np.isfinite(cands) & _sampled_region_ok(ctx, loops, cands, points), _score(ctx, wc, points), -np.inf)
         best = np.argmax(value, axis=1)
         rows = np.arange(flat.size)
         score[flat] = value[rows, best]
