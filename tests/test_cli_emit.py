@@ -128,7 +128,7 @@ def test_emit_rechecks_the_stored_table_on_the_schedule(tmp_path, capsys):
     assert report["stored_table"]["points_passing"] == report["stored_table"]["points"] == 3
     # design recorded as passed + rounded table re-checked: the header is marked verified
     assert report["verified"] is True
-    assert "#define EMITCHECK_VERIFIED (1)" in (tmp_path / "c" / "emitcheck.h").read_text()
+    assert "#define CHECKED_EMIT_VERIFIED (1)" in (tmp_path / "c" / "checked_emit.h").read_text()
     # without --schedule the rounding is not re-checked: not verified, and it says so
     code = main(["emit", str(tmp_path / "gains.yaml"), "--out", str(tmp_path / "c2"), "--format", "q15"])
     assert code == 0

@@ -55,6 +55,7 @@ __all__ = [
     "OutputWriteError",
     "check_output_folder",
     "describe_os_error",
+    "file_kind",
     "write_outputs",
     "read_manifest",
     "sha256_bytes",
@@ -83,21 +84,24 @@ def sha256_bytes(data: bytes) -> str:
     return hashlib.sha256(data).hexdigest()
 
 
-def describe_os_error(error: OSError) -> str:
+def describe_os_error(error: OSError, *, with_path: bool = True) -> str:
     """One line for an ``OSError``: path, reason and errno name.
 
     Parameters
     ----------
     error : OSError
         The error as raised by the operating system call.
+    with_path : bool
+        Start with the path the error names (when it names one).
     """
     code = errno.errorcode.get(error.errno or 0)
     reason = error.strerror or str(error)
-    where = f"{error.filename}: " if error.filename else ""
+    where = f"{error.filename}: " if error.filename and with_path else ""
     return f"{where}{reason}" + (f" ({code})" if code else "")
 
 
-def _kind(mode: int) -> str:
+def file_kind(mode: int) -> str:
+    """Plain words for a file type from ``st_mode`` (e.g. "a symbolic link")."""
     if stat.S_ISLNK(mode):
         return "a symbolic link"
     if stat.S_ISDIR(mode):
@@ -121,7 +125,7 @@ def _existing_regular(path: Path) -> bool:
         raise OutputWriteError(f"cannot inspect output file: {describe_os_error(error)}") from None
     if not stat.S_ISREG(mode):
         raise OutputConflictError(
-            f"refusing to write {path}: it is {_kind(mode)}; gainloom writes only regular files and never "
+            f"refusing to write {path}: it is {file_kind(mode)}; gainloom writes only regular files and never "
             "through a link (not even with --force); remove it or choose another output folder"
         )
     return True
@@ -177,7 +181,7 @@ def check_output_folder(folder: str | os.PathLike) -> Path:
             raise OutputWriteError(f"cannot use output folder {path}: {describe_os_error(error)}") from None
         if not stat.S_ISDIR(mode):
             what = "exists and is" if probe == path else f"lies below {probe}, which is"
-            kind = "a file" if stat.S_ISREG(mode) else _kind(mode)
+            kind = "a file" if stat.S_ISREG(mode) else file_kind(mode)
             raise InputError(f"output folder {path} {what} {kind}, not a folder")
         if not os.access(probe, os.W_OK | os.X_OK):
             doing = "write into" if probe == path else f"create it: no permission to write {probe}, so cannot create"

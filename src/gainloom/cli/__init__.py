@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 
 from .. import __version__
@@ -57,8 +58,13 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "run", None):
         parser.print_help()
         return 2
+    code = None
     try:
-        return int(args.run(args))
+        code = int(args.run(args))
+        sys.stdout.flush()  # a closed pipe shows here, not at interpreter exit
+        return code
+    except BrokenPipeError:
+        return _reader_gone(code)
     except GainloomError as error:
         print(f"gainloom {args.command}: error: {error}", file=sys.stderr)
         return error.exit_code
@@ -69,3 +75,24 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("gainloom: interrupted", file=sys.stderr)
         return 130
+
+
+#: Exit code when the reader of stdout went away before the command finished
+#: printing: 128 + SIGPIPE, what a shell reports for a process a closed pipe
+#: ended (common practice, no source).
+CLOSED_PIPE_EXIT = 141
+
+
+def _reader_gone(code: int | None) -> int:
+    """``gainloom ... | head``: stop printing quietly, no traceback.
+
+    Further writes to stdout (Python flushes it at exit) go to the null
+    device.  The command's own exit code is kept when it had one.
+    """
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError, AttributeError):  # stdout without a descriptor (e.g. captured)
+        pass
+    return CLOSED_PIPE_EXIT if code is None else code

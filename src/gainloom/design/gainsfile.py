@@ -19,9 +19,11 @@ import numpy as np
 import yaml
 
 from ..errors import ScheduleError
+from ..inputs import read_input_file
 from ..outputs import write_outputs
 from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
 from ..plain import to_plain
+from ..schedule.limits import MAX_GAINS_BYTES
 from .table import GainTable, TableAxis
 
 __all__ = ["GAINS_FORMAT", "render_gains", "write_gains", "read_gains", "gains_document", "GainsMetadata"]
@@ -311,12 +313,14 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
     """
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as error:
-        raise ScheduleError(f"cannot read gains file: {error.strerror}", file=str(path)) from None
+        text = read_input_file(path, "gains file", MAX_GAINS_BYTES).decode("utf-8")
+    except UnicodeDecodeError as error:
+        raise ScheduleError(f"gains file is not UTF-8 text (byte {error.start})", file=str(path)) from None
     try:
         root = yaml.compose(text, Loader=_Loader)
         data = yaml.load(text, Loader=_Loader)  # noqa: S506 - _Loader is a SafeLoader
+    except (ValueError, TypeError, OverflowError) as error:  # e.g. !!float abc
+        raise ScheduleError(f"a value cannot be read as tagged: {error}", file=str(path)) from None
     except yaml.YAMLError as error:
         mark = getattr(error, "problem_mark", None)
         raise ScheduleError(

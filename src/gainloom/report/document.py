@@ -136,6 +136,8 @@ def _point_entries(sched, result, table) -> list[dict[str, Any]]:
     points = np.asarray(result.points, dtype=float)
     models = sched.evaluate(points)
     delays = np.broadcast_to(np.asarray(models.delay, dtype=float), (analysis.points,))
+    dead = models.plant.dead_time
+    dead_times = np.zeros(analysis.points) if dead is None else np.broadcast_to(np.asarray(dead, float), (analysis.points,))
     names = [a.name for a in table.axes]
     binding = getattr(result, "binding", (None,) * analysis.points)
     notes = getattr(result, "notes", ((),) * analysis.points)
@@ -153,6 +155,9 @@ def _point_entries(sched, result, table) -> list[dict[str, Any]]:
             "notes": list(notes[p]),
             "sample_period_s": float(models.sample_period[p]),
             "delay_samples": float(delays[p]),
+            "dead_time_s": float(dead_times[p]),
+            # what discretisation used: computation delay + dead time / ts, fraction kept
+            "total_delay_samples": float(delays[p] + dead_times[p] / models.sample_period[p]),
             "parameters": {name: float(np.asarray(values, float).reshape(-1)[p] if np.ndim(values) else values)
                            for name, values in sorted(models.parameters.items())},
         })

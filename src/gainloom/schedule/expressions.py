@@ -17,6 +17,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import ScheduleError
+from .limits import MAX_EXPRESSION_DEPTH, MAX_EXPRESSION_LENGTH
 from .nodes import Node, did_you_mean
 
 __all__ = ["Expression", "FUNCTIONS", "CONSTANTS", "parse_expression"]
@@ -148,6 +149,13 @@ def _walk(tree: ast.expr, env: Mapping[str, np.ndarray]) -> np.ndarray | float:
     raise AssertionError(f"unchecked node {type(tree).__name__}")  # _check refuses everything else
 
 
+def _finite(value: int | float) -> bool:
+    try:
+        return math.isfinite(float(value))
+    except OverflowError:  # an integer beyond the float range
+        return False
+
+
 def parse_expression(node: Node, what: str = "expression") -> Expression:
     """Read a number or an expression string from ``node``.
 
@@ -168,17 +176,26 @@ def parse_expression(node: Node, what: str = "expression") -> Expression:
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
         raise node.error(f"expected a number or an expression for the {what}; found {node.kind}")
     if isinstance(value, (int, float)):
-        if not math.isfinite(float(value)):
-            raise node.error(f"expected a finite number for the {what}; found {node.raw.value!r}")
+        if not _finite(value):
+            raise node.error(f"expected a finite number for the {what}; found {node.brief()}")
         return Expression(repr(value), ast.Constant(float(value)), frozenset(), node)
     text = value.strip()
     if not text:
         raise node.error(f"empty expression for the {what}")
     if "\n" in text:
         raise node.error(f"expression for the {what} must be on one line")
+    if len(text) > MAX_EXPRESSION_LENGTH:
+        raise node.error(
+            f"expression for the {what} has {len(text):,} characters; at most {MAX_EXPRESSION_LENGTH:,} are "
+            "accepted (split it into parameters)"
+        )
     try:
         tree = ast.parse(text, mode="eval").body
+    except (RecursionError, MemoryError):  # the parser's own stack, before any of our checks
+        raise node.error(_too_deep(text, what)) from None
     except SyntaxError as error:
+        if "too many nested" in str(error.msg):
+            raise node.error(_too_deep(text, what)) from None
         offset = node.single_line_offset
         shift = 0 if offset is None or error.offset is None else offset + error.offset - 1 + (len(value) - len(value.lstrip()))
         raise node.error(
@@ -186,6 +203,8 @@ def parse_expression(node: Node, what: str = "expression") -> Expression:
             + ("" if error.offset is None else f" at character {error.offset}"),
             column_offset=shift,
         ) from None
+    if _depth(tree) > MAX_EXPRESSION_DEPTH:
+        raise node.error(_too_deep(text, what))
     names: set[str] = set()
     _check(tree, node, text, names)
     offsets: dict[str, int] = {}
@@ -199,6 +218,28 @@ def parse_expression(node: Node, what: str = "expression") -> Expression:
     return Expression(text, tree, frozenset(names), node, offsets)
 
 
+def _too_deep(text: str, what: str) -> str:
+    shown = text if len(text) <= 40 else text[:40] + "..."
+    return (
+        f"expression {shown!r} for the {what} nests deeper than {MAX_EXPRESSION_DEPTH} levels (parentheses, "
+        "signs, operator chains and calls each add one); split it into parameters"
+    )
+
+
+def _depth(tree: ast.AST) -> int:
+    """Nesting depth of a tree, found without recursion (the tree may be deep)."""
+    deepest = 0
+    stack = [(tree, 1)]
+    while stack:
+        item, level = stack.pop()
+        deepest = max(deepest, level)
+        if level > MAX_EXPRESSION_DEPTH:
+            break
+        stack.extend((child, level + 1) for child in ast.iter_child_nodes(item)
+                     if not isinstance(child, (ast.operator, ast.unaryop, ast.expr_context)))
+    return deepest
+
+
 def _check(tree: ast.AST, node: Node, text: str, names: set[str]) -> None:
     def refuse(message: str, at: ast.AST) -> ScheduleError:
         offset = node.single_line_offset
@@ -209,6 +250,8 @@ def _check(tree: ast.AST, node: Node, text: str, names: set[str]) -> None:
     if isinstance(tree, ast.Constant):
         if isinstance(tree.value, bool) or not isinstance(tree.value, (int, float)):
             raise refuse(f"only real numbers are allowed, not {tree.value!r}", tree)
+        if not _finite(tree.value):
+            raise refuse("a number beyond the floating-point range (about 1.8e308) is not allowed", tree)
         return
     if isinstance(tree, ast.Name):
         if tree.id in FUNCTIONS:

@@ -18,6 +18,7 @@ import numpy as np
 from ..errors import InputError
 from ..lti.convert import poly_from_roots, ss_to_tf
 from ..lti.loop import Loop
+from .limits import MAX_DELAY_SAMPLES, SAMPLE_PERIOD_RANGE
 from .expressions import Expression
 from .model import Axis, PointModels
 from .nodes import Node
@@ -127,7 +128,7 @@ class Family:
         bad = ~np.isfinite(value)
         if np.any(bad):
             index = int(np.flatnonzero(bad)[0])
-            kind = "infinite (division by zero?)" if np.isinf(value[index]) else "not a number (e.g. sqrt or log of a negative value)"
+            kind = "infinite (division by zero or overflow)" if np.isinf(value[index]) else "not a number (e.g. sqrt or log of a negative value)"
             raise expression.node.error(f"{what} {expression.source!r} is {kind} {self._first_bad(bad, points)}")
         if positive and np.any(value <= 0):
             bad = value <= 0
@@ -180,6 +181,14 @@ class Family:
             values[parameter.name] = value
 
         ts = self._checked(self.period, env, points, "sample period", positive=True)
+        low, high = SAMPLE_PERIOD_RANGE
+        bad = (ts < low) | (ts > high)
+        if np.any(bad):
+            index = int(np.flatnonzero(bad)[0])
+            raise self.period.node.error(
+                f"sample period {ts[index]:.3g} s {self._first_bad(bad, points)} is outside {low:g} .. {high:g} s "
+                "(limits in docs/schedule-format.md)"
+            )
         env_ts = dict(env)
         env_ts[SAMPLE_PERIOD_NAME] = ts
         delay = np.zeros(count)
@@ -192,6 +201,7 @@ class Family:
             dead_time = self._checked(self.plant.dead_time, env_ts, points, "dead time", non_negative=True)
             if self.method != "zoh":
                 self._refuse_fraction(delay + dead_time / ts, self.plant.dead_time.node, points, "dead time plus computation delay")
+        self._check_delay_samples(delay, dead_time, ts, points)
         if self.prewarp is not None:
             prewarp = self._checked(self.prewarp, env, points, "prewarp frequency", positive=True)
             bad = prewarp * ts >= np.pi
@@ -204,6 +214,26 @@ class Family:
         num, den = self._plant_coefficients(env, points)
         plant = Loop(num=num, den=den, dead_time=dead_time)
         return PointModels(points=points, parameters=values, plant=plant, sample_period=ts, delay=delay)
+
+    def _check_delay_samples(self, delay: np.ndarray, dead_time: np.ndarray, ts: np.ndarray, points: np.ndarray) -> None:
+        """Refuse more delay samples than :data:`MAX_DELAY_SAMPLES`: each is one more discrete pole."""
+        with np.errstate(over="ignore"):
+            total = delay + dead_time / ts
+        bad = ~(total <= MAX_DELAY_SAMPLES)
+        if not np.any(bad):
+            return
+        index = int(np.flatnonzero(bad)[0])
+        if dead_time[index] > 0:
+            node = self.plant.dead_time.node  # type: ignore[union-attr]
+            detail = f"dead time {dead_time[index]:.3g} s / ts {ts[index]:.3g} s"
+            detail += f" + computation delay {delay[index]:g}" if delay[index] else ""
+        else:
+            node = self.delay.node  # type: ignore[union-attr]
+            detail = "computation delay"
+        raise node.error(
+            f"{detail} is {total[index]:.4g} samples {self._first_bad(bad, points)}; at most {MAX_DELAY_SAMPLES} "
+            "are accepted (each sample is one more pole of the discrete loop; limits in docs/schedule-format.md)"
+        )
 
     def _refuse_fraction(self, delay: np.ndarray, node: Node, points: np.ndarray, what: str) -> None:
         bad = np.abs(delay - np.round(delay)) > _INTEGER_SLACK

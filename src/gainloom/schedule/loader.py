@@ -19,7 +19,9 @@ import numpy as np
 from .. import names
 from ..c_names import comment_text_problem
 from ..errors import ScheduleError
+from ..inputs import read_input_file
 from ..lti.polynomials import batched_roots
+from . import limits
 from .expressions import CONSTANTS, FUNCTIONS, Expression, parse_expression
 from .family import SAMPLE_PERIOD_NAME, Family, Pair, ParameterDef, PlantRecipe, TableDef
 from .model import Axis, Sampling, Schedule
@@ -76,10 +78,7 @@ def load_schedule(path: str | Path) -> Schedule:
         problem found.
     """
     file = str(path)
-    try:
-        data = Path(path).read_bytes()
-    except OSError as error:
-        raise ScheduleError(f"cannot read schedule file: {error.strerror or error}", file=file) from None
+    data = read_input_file(path, "schedule file", limits.MAX_SCHEDULE_BYTES)
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as error:
@@ -124,6 +123,8 @@ def load_schedule(path: str | Path) -> Schedule:
     table_checks = read_table_checks(keys.get("table"), controller.structure)
     tolerances = read_tolerances(keys.get("tolerances"), {p.name: p.independent for p in parameters})
     codegen = read_codegen(keys.get("codegen"), name, keys["name"])
+    _check_workload(keys, axes, table_checks, tolerances)
+    _check_full_scale(keys, controller.output_limits, codegen.output_full_scale)
 
     for array in (points, models.sample_period, models.delay, *models.parameters.values()):
         array.setflags(write=False)  # the Schedule is frozen; so are its arrays
@@ -180,6 +181,13 @@ def _read_variables(node: Node) -> tuple[Axis, ...]:
         if problem:
             raise keys["unit"].error(f"unit {problem}; it cannot go into the generated C")
         axes.append(Axis(name=name, unit=unit, values=_read_grid_values(keys["values"], name)))
+    total = int(np.prod([axis.values.size for axis in axes]))
+    if total > limits.MAX_OPERATING_POINTS:
+        sizes = " x ".join(str(axis.values.size) for axis in axes)
+        raise node.error(
+            f"the grid has {sizes} = {total:,} operating points; at most {limits.MAX_OPERATING_POINTS:,} are "
+            "accepted (limits in docs/schedule-format.md)"
+        )
     return tuple(axes)
 
 
@@ -187,9 +195,7 @@ def _read_grid_values(node: Node, name: str) -> np.ndarray:
     if node.is_mapping:
         keys = node.mapping(("start", "stop", "count"), required=("start", "stop", "count"))
         start, stop = keys["start"].number(), keys["stop"].number()
-        count = keys["count"].integer()
-        if count < 2:
-            raise keys["count"].error(f"grid of {name!r} needs at least 2 values; count is {count}")
+        count = keys["count"].count(f"value count of the grid of {name!r}", 2, limits.MAX_OPERATING_POINTS)
         if not stop > start:
             raise keys["stop"].error(f"grid of {name!r} must increase: stop {stop:g} is not above start {start:g}")
         values = np.linspace(start, stop, count)
@@ -314,6 +320,8 @@ def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
     section = keys[form]
     if form == "transfer_function":
         parts = section.mapping(("numerator", "denominator"), required=("numerator", "denominator"))
+        _check_order(parts["denominator"], len(parts["denominator"].sequence()) - 1,
+                     "the denominator has no s term: the plant is a static gain")
         numerator = _coefficients(parts["numerator"], "numerator", known)
         denominator = _coefficients(parts["denominator"], "denominator", known)
         # leading numerator entries written as literal zero only pad the list
@@ -331,6 +339,7 @@ def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
         zeros = _roots(parts["zeros"], "zero", known) if "zeros" in parts else ()
         poles = _roots(parts["poles"], "pole", known)
         degree = lambda roots: sum(2 if isinstance(r, Pair) else 1 for r in roots)  # noqa: E731
+        _check_order(parts["poles"], degree(poles), "zpk without poles is a static gain")
         if degree(zeros) > degree(poles):
             raise parts["zeros"].error(
                 f"improper plant: {degree(zeros)} zeros but only {degree(poles)} pole{'s' if degree(poles) != 1 else ''}; "
@@ -340,6 +349,64 @@ def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
         gain.check_names(known, _TS_ONLY)
         return PlantRecipe("zpk", zeros=zeros, poles=poles, gain=gain, dead_time=dead_time)
     return _read_state_space(section, known, dead_time)
+
+
+def _check_workload(keys: dict[str, Node], axes: tuple[Axis, ...], table_checks, tolerances) -> None:
+    """Refuse checks whose point counts could not be allocated, before the design starts."""
+    sizes = [axis.values.size for axis in axes]
+    points = int(np.prod(sizes))
+    between = table_checks.between_points
+    if len(sizes) == 1:
+        checked = between * (sizes[0] - 1)
+    else:  # every cell: `between` on two edges and the centre; the far edges once more
+        cells = (sizes[0] - 1) * (sizes[1] - 1)
+        checked = cells * (2 * between + 1) + between * (sizes[0] - 1 + sizes[1] - 1)
+    if checked > limits.MAX_CHECK_POINTS:
+        node = keys["table"].mapping()["between_points"]
+        raise node.error(
+            f"between_points {between} on this grid means {checked:,} intermediate points; at most "
+            f"{limits.MAX_CHECK_POINTS:,} are accepted (limits in docs/schedule-format.md)"
+        )
+    inserted = table_checks.refine_max_inserted
+    if points + inserted * max(sizes) > limits.MAX_OPERATING_POINTS and inserted:
+        node = keys["table"].mapping()["refine"].mapping()["max_inserted"]
+        raise node.error(
+            f"max_inserted {inserted} could grow the grid of {points:,} points to {points + inserted * max(sizes):,}; "
+            f"at most {limits.MAX_OPERATING_POINTS:,} operating points are accepted"
+        )
+    if isinstance(tolerances.samples, tuple):
+        samples = tolerances.samples[0]
+        if samples * points > limits.MAX_TOLERANCE_EVALUATIONS:
+            node = keys["tolerances"].mapping()["samples"].mapping()["space_filling"]
+            raise node.error(
+                f"{samples:,} tolerance samples at {points:,} operating points are {samples * points:,} loops to "
+                f"check; at most {limits.MAX_TOLERANCE_EVALUATIONS:,} are accepted"
+            )
+
+
+def _check_full_scale(keys: dict[str, Node], limits_pair: tuple[float, float], full_scale: float | None) -> None:
+    """The fixed-point output must reach the output limits (else the C would clip short of them)."""
+    reach = max(abs(limits_pair[0]), abs(limits_pair[1]))
+    if full_scale is not None and full_scale < reach:
+        node = keys["codegen"].mapping()["output_full_scale"]
+        raise node.error(
+            f"output_full_scale {full_scale:g} does not cover the output limits [{limits_pair[0]:g}, "
+            f"{limits_pair[1]:g}]; use at least {reach:g}"
+        )
+
+
+def _check_order(node: Node, order: int, static: str) -> None:
+    """Refuse a plant without poles or of an order beyond the limit, before evaluating it."""
+    if order < 1:
+        raise node.error(
+            f"{static}; gainloom designs loops around a plant with at least one pole (write the fastest lag "
+            "you know, e.g. a denominator [tau, 1])"
+        )
+    if order > limits.MAX_PLANT_ORDER:
+        raise node.error(
+            f"plant of order {order:,}; at most {limits.MAX_PLANT_ORDER} is accepted (polynomial roots of higher "
+            "orders lose their digits; reduce the model)"
+        )
 
 
 def _roots(node: Node, what: str, known: dict[str, str]) -> tuple[Expression | Pair, ...]:
@@ -363,6 +430,7 @@ def _read_state_space(node: Node, known: dict[str, str], dead_time: Expression |
     parts = node.mapping(("A", "B", "C", "D"), required=("A", "B", "C"))
     a_rows = parts["A"].sequence(min_length=1, what="rows")
     n = len(a_rows)
+    _check_order(parts["A"], n, "")
     shapes = {"A": (n, n), "B": (n, 1), "C": (1, n), "D": (1, 1)}
     matrices: dict[str, tuple[tuple[Expression, ...], ...]] = {}
     for key, (rows, cols) in shapes.items():

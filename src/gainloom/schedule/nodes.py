@@ -19,6 +19,7 @@ import yaml
 
 from ..errors import ScheduleError
 from ..names import unknown_name_message
+from .limits import size_text
 
 __all__ = ["Node", "compose_text", "did_you_mean"]
 
@@ -157,6 +158,9 @@ class Node:
             return loader.construct_object(self.raw, deep=True)
         except yaml.YAMLError as error:
             raise self.error(f"cannot read value: {error}") from None
+        except (ValueError, TypeError, OverflowError):  # e.g. !!float abc, !!int 1.5
+            shown = self.raw.value if len(self.raw.value) <= 40 else self.raw.value[:40] + "..."
+            raise self.error(f"{shown!r} cannot be read as {self.kind}; write a plain number or text") from None
         finally:
             loader.dispose()
 
@@ -219,10 +223,18 @@ class Node:
         value = self.scalar()
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise self.error(f"expected a number; found {self.kind} {self.raw.value!r}")
-        value = float(value)
+        try:
+            value = float(value)
+        except OverflowError:  # an integer beyond the float range
+            value = math.inf
         if not math.isfinite(value):
-            raise self.error(f"expected a finite number; found {self.raw.value!r}")
+            raise self.error(f"expected a finite number; found {self.brief()}")
         return value
+
+    def brief(self) -> str:
+        """The scalar as written, for messages (a long one is described, not quoted)."""
+        text = self.raw.value
+        return repr(text) if len(text) <= 40 else f"a number of {len(text)} characters"
 
     def integer(self) -> int:
         """An integer (a float with an integral value is accepted)."""
@@ -231,6 +243,23 @@ class Node:
             return int(value)
         if isinstance(value, bool) or not isinstance(value, int):
             raise self.error(f"expected an integer; found {self.kind} {self.raw.value!r}")
+        return value
+
+    def count(self, what: str, low: int, high: int) -> int:
+        """An integer in ``[low, high]``, refused with both bounds otherwise.
+
+        Parameters
+        ----------
+        what : str
+            What is counted, for the message (e.g. ``"sweep count"``).
+        low, high : int
+            Smallest and largest value accepted.
+        """
+        value = self.integer()
+        if value < low:
+            raise self.error(f"{what} must be at least {low}; found {size_text(value)}")
+        if value > high:
+            raise self.error(f"{what} is {size_text(value)}; at most {size_text(high)} are accepted (limits in docs/schedule-format.md)")
         return value
 
     def boolean(self) -> bool:

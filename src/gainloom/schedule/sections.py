@@ -25,6 +25,7 @@ from .model import (
     Tolerances,
 )
 from .nodes import Node
+from . import limits
 
 __all__ = [
     "read_controller",
@@ -186,9 +187,7 @@ def _read_sweep(node: Node) -> Sweep:
         )
     count = DEFAULT_SWEEP.count
     if "count" in keys:
-        count = keys["count"].integer()
-        if count < 2:
-            raise keys["count"].error(f"sweep count must be at least 2; found {count}")
+        count = keys["count"].count("sweep count", 2, limits.MAX_SWEEP_COUNT)
     return Sweep(range=(low, high), count=count)
 
 
@@ -222,15 +221,37 @@ SPEC_KEYS: dict[str, Callable[[Node], Any]] = {
     "max_sensitivity_peak": lambda n: _in_range(n, "max_sensitivity_peak", 1.0, float("inf"), open_high=True),
     "system_type": _read_system_type,
     "max_gain": lambda n: _positive(n, "max_gain"),
+    "min_crossover": lambda n: _positive(n, "min_crossover (rad/s)"),
+    "max_crossover": lambda n: _positive(n, "max_crossover (rad/s)"),
+    "min_bandwidth": lambda n: _positive(n, "min_bandwidth (rad/s)"),
 }
+
+#: Keys of the ``specs`` section besides the spec values: ``poles`` (which
+#: closed-loop poles the pole-region specs judge) and ``overrides``.
+SPEC_SECTION_KEYS: tuple[str, ...] = ("poles", "overrides")
+
+
+def _check_crossover_band(values: dict[str, Any], keys: dict[str, Node]) -> None:
+    """Refuse ``min_crossover > max_crossover`` written in the same mapping (located at ``max_crossover``)."""
+    low, high = values.get("min_crossover"), values.get("max_crossover")
+    if low is not None and high is not None and low > high:
+        raise keys["max_crossover"].error(
+            f"min_crossover ({low:g} rad/s) is above max_crossover ({high:g} rad/s): no loop can meet both"
+        )
 
 
 def read_specs(node: Node | None, axis_names: tuple[str, ...]) -> SpecSection:
     """Read the optional ``specs`` section; overrides name scheduling variables."""
     if node is None or node.is_null:
         return SpecSection()
-    keys = node.mapping(tuple(SPEC_KEYS) + ("overrides",))
-    values = {key: None if child.is_null else SPEC_KEYS[key](child) for key, child in keys.items() if key != "overrides"}
+    keys = node.mapping(tuple(SPEC_KEYS) + SPEC_SECTION_KEYS)
+    values: dict[str, Any] = {
+        key: None if child.is_null else SPEC_KEYS[key](child)
+        for key, child in keys.items() if key not in SPEC_SECTION_KEYS
+    }
+    _check_crossover_band(values, keys)
+    if "poles" in keys:
+        values["poles"] = keys["poles"].choice("pole selection", names.POLE_SELECTIONS)
     overrides: list[SpecOverride] = []
     if "overrides" in keys:
         for item in keys["overrides"].sequence():
@@ -243,6 +264,7 @@ def read_specs(node: Node | None, axis_names: tuple[str, ...]) -> SpecSection:
             settings = entry["set"].mapping(tuple(SPEC_KEYS))
             if not settings:
                 raise entry["set"].error("set names no spec")
+            _check_crossover_band({k: None if v.is_null else SPEC_KEYS[k](v) for k, v in settings.items()}, settings)
             overrides.append(
                 SpecOverride(
                     where=where,
@@ -283,15 +305,11 @@ def read_table_checks(node: Node | None, structure: str) -> TableChecks:
             monotone[name] = direction.choice("monotone direction", names.MONOTONE_DIRECTIONS)
     between = 3
     if "between_points" in keys:
-        between = keys["between_points"].integer()
-        if between < 0:
-            raise keys["between_points"].error(f"between_points must be 0 or more; found {between}")
+        between = keys["between_points"].count("between_points", 0, limits.MAX_BETWEEN_POINTS)
     inserted = 0
     if "refine" in keys:
         refine = keys["refine"].mapping(("max_inserted",), required=("max_inserted",))
-        inserted = refine["max_inserted"].integer()
-        if inserted < 0:
-            raise refine["max_inserted"].error(f"max_inserted must be 0 (off) or more; found {inserted}")
+        inserted = refine["max_inserted"].count("max_inserted", 0, limits.MAX_REFINE_INSERTED)
     return TableChecks(max_relative_step=step, monotone=monotone, between_points=between, refine_max_inserted=inserted)
 
 
@@ -339,9 +357,7 @@ def read_tolerances(node: Node | None, independent: dict[str, bool]) -> Toleranc
         sample_node = keys["samples"]
         if sample_node.is_mapping:
             entry = sample_node.mapping(("space_filling", "seed"), required=("space_filling",))
-            count = entry["space_filling"].integer()
-            if count < 1:
-                raise entry["space_filling"].error(f"space_filling sample count must be at least 1; found {count}")
+            count = entry["space_filling"].count("space_filling sample count", 1, limits.MAX_TOLERANCE_SAMPLES)
             seed = entry["seed"].integer() if "seed" in entry else 0
             if seed < 0:
                 raise entry["seed"].error(f"seed must be 0 or more; found {seed}")
