@@ -76,7 +76,7 @@ def test_foreign_file_exits_two_and_force_overwrites(tmp_path, schedule, main):
     forced = main("design", schedule, "--out", out, "--quiet", "--no-simulate", "--no-compile", "--force")
     assert forced.returncode == 0, forced.stdout + forced.stderr
     assert "my own controller" not in (out / "fan.c").read_text()
-    assert "not checked: C check, simulation" in forced.stdout
+    assert "not checked: C check, target, C rules, simulation" in forced.stdout
 
 
 def test_failing_schedule_exits_one_and_names_the_binding_spec(tmp_path, main):
