@@ -1,17 +1,21 @@
 """Benchmark: the generated C on the target cores, and what the target stage costs.
 
-Designs a schedule (default: the spindle demo), emits its table in every
-number format, builds each for every target core and counts the
-instructions per lookup and per controller step on the emulated core
-(:mod:`gainloom.codegen.target_run`: exact instruction counts from qemu's
-single-step trace, not cycles).  Then runs the whole design job twice, with
-and without the target stage, and prints their wall times and the ratio.
+Emits a fixed gain table (``benchmarks/target_gains.yaml``: the spindle demo's
+table as designed once, kept so that the figures change only when the
+generated C or the toolchain does) in every number format, builds each for
+every target core and counts the instructions per lookup and per controller
+step on the emulated core (:mod:`gainloom.codegen.target_run`: exact
+instruction counts from qemu's single-step trace, not cycles; soft-float
+helpers take data-dependent paths, so the counts depend on the table).
+Then runs the whole design job on a schedule (default: the spindle demo)
+twice, with and without the target stage, and prints their wall times and
+the ratio.
 
 ``--readme`` rewrites the figures block of README.md (between the
 ``target-figures`` markers) from this run; ``tests/test_readme.py`` runs
 :func:`readme_block` again and fails when the README's figures are stale.
 
-Run:  PYTHONPATH=src python benchmarks/target.py [--schedule FILE] [--readme] [--no-timing]
+Run:  PYTHONPATH=src python benchmarks/target.py [--gains FILE] [--schedule FILE] [--readme] [--no-timing]
 """
 
 from __future__ import annotations
@@ -29,31 +33,32 @@ from gainloom.codegen.harness import generated_files, harness_program
 from gainloom.codegen.target_build import build_for_core
 from gainloom.codegen.target_run import count_instructions
 from gainloom.codegen.target_tools import CORES, find_target_tools
-from gainloom.design.engine import design
+from gainloom.design.gainsfile import read_gains
 from gainloom.names import NUMBER_FORMATS
 from gainloom.report.run import run_design_job
-from gainloom.schedule import load_schedule
 
 ROOT = Path(__file__).resolve().parents[1]
 DEFAULT_SCHEDULE = ROOT / "schedules" / "spindle_speed.yaml"
+DEFAULT_GAINS = ROOT / "benchmarks" / "target_gains.yaml"
+PREFIX = "spd"
 BEGIN, END = "<!-- target-figures:begin -->", "<!-- target-figures:end -->"
 
 
-def figures(schedule_path: Path) -> tuple[str, list[list[str]]]:
-    """(toolchain version, one row per format and core: lookup and step instruction counts)."""
+def figures(gains_path: Path) -> tuple[str, list[list[str]]]:
+    """(toolchain version, one row per format and core: lookup and step instruction counts).
+
+    Fixed point with the default full scales (error 1, output the larger limit).
+    """
     tools = find_target_tools()
-    schedule = load_schedule(schedule_path)
-    result = design(schedule)
-    scales = {"error_full_scale": schedule.codegen.error_full_scale,
-              "output_full_scale": schedule.codegen.output_full_scale}
+    table, _ = read_gains(gains_path)
     version = subprocess.run([tools.gcc, "--version"], capture_output=True, text=True, check=True).stdout
     rows = []
     with tempfile.TemporaryDirectory(prefix="gainloom-bench-") as tmp:
         for number_format in NUMBER_FORMATS:
             work = Path(tmp) / number_format
-            files = emit_c(result.table, work, number_format, schedule.codegen.prefix, None, **scales)
+            files = emit_c(table, work, number_format, PREFIX, None)
             generated = generated_files(files)
-            program = harness_program(result.table, generated)
+            program = harness_program(table, generated)
             for core in CORES:
                 build = build_for_core(tools, core, [work / s.name for s in generated.sources], work,
                                        program.layout.fmt.is_fixed, generated.defines)
@@ -64,13 +69,13 @@ def figures(schedule_path: Path) -> tuple[str, list[list[str]]]:
     return version.splitlines()[0].strip(), rows
 
 
-def readme_block(schedule_path: Path = DEFAULT_SCHEDULE) -> str:
+def readme_block(gains_path: Path = DEFAULT_GAINS) -> str:
     """The README's figures block (markers included), as this machine measures it."""
-    version, rows = figures(schedule_path)
-    name = schedule_path.relative_to(ROOT) if schedule_path.is_relative_to(ROOT) else schedule_path
+    version, rows = figures(gains_path)
+    name = gains_path.relative_to(ROOT) if gains_path.is_relative_to(ROOT) else gains_path
     lines = [
         BEGIN,
-        f"Instructions executed per call, `{name}` table, `-O2`, {version}",
+        f"Instructions executed per call, table `{name}` (spindle demo, PI, 13 points), `-O2`, {version}",
         "(regenerate: `PYTHONPATH=src python benchmarks/target.py --readme`):",
         "",
         "| format | core | lookup median | lookup max | step median | step max |",
@@ -94,7 +99,8 @@ def _timing(schedule_path: Path) -> None:
 
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--schedule", type=Path, default=DEFAULT_SCHEDULE)
+    parser.add_argument("--gains", type=Path, default=DEFAULT_GAINS, help="table of the instruction figures")
+    parser.add_argument("--schedule", type=Path, default=DEFAULT_SCHEDULE, help="schedule of the timed design jobs")
     parser.add_argument("--readme", action="store_true", help="rewrite the README's figures block")
     parser.add_argument("--no-timing", action="store_true", help="skip the two timed design jobs")
     args = parser.parse_args(argv)
@@ -102,7 +108,7 @@ def main(argv: list[str] | None = None) -> int:
     if not tools.can_run:
         print(f"not measured: {', '.join(tools.missing('gcc', 'nm', 'size', 'readelf', 'qemu'))} not found")
         return 1
-    block = readme_block(args.schedule.resolve())
+    block = readme_block(args.gains.resolve())
     print(block)
     if args.readme:
         readme = ROOT / "README.md"
