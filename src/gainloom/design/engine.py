@@ -306,6 +306,11 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
     if objective not in SWEEP_OBJECTIVES:
         raise DesignError(unknown_name_message("objective", objective, SWEEP_OBJECTIVES))
     target = _target(controller)
+    if controller.compare_continuous and uses_crossover(controller, objective):
+        raise DesignError(
+            f"compare_continuous is not available with objective {objective!r} (crossover objectives); "
+            "remove compare_continuous or use a pole-region objective"
+        )
     if sched.tolerances.design == "worst-case" and not uses_crossover(controller, objective):
         raise DesignError(
             "tolerances.design worst-case needs objective max-crossover or nearest-target with a crossover "
