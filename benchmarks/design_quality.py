@@ -161,6 +161,16 @@ class LoopResult:
     tool_seconds: float
     ref_seconds: float
     plant_difference: float
+    dc_gain: tuple[float, float]
+
+
+def dc_loop_gain(plant: ref.SampledPlant, structure: str, coefficients: dict[str, float]) -> float:
+    """``|C(1) P(1)|``, the loop gain at zero frequency (infinite with an integrator)."""
+    cnum, cden = ref.controller_polynomials(structure, coefficients)
+    c_dc = np.polyval(cden, 1.0)
+    if c_dc == 0:
+        return math.inf
+    return float(abs(np.polyval(cnum, 1.0) / c_dc * plant.response(np.array([0.0]))[0]))
 
 
 def recheck(plant: ref.SampledPlant, structure: str, coefficients: dict[str, float], pm: float, gm: float):
@@ -218,6 +228,9 @@ def run_loop(name: str, structure: str, folder: Path, quick: bool, grid: int | N
         if says_pass and not ok:
             failed += 1
         ratio[p] = m.crossover / designs[p].crossover if (ok and says_pass) else 0.0
+    dc_tool = min(dc_loop_gain(plants[p], structure, {k: float(v[p]) for k, v in coefs.items()}) for p in range(P))
+    dc_ref = min((dc_loop_gain(plants[p], structure, d.coefficients) for p, d in enumerate(designs) if d.feasible),
+                 default=math.nan)
     steps = {}
     for k in coefs:
         ref_values = np.array([d.coefficients.get(k, math.nan) for d in designs])
@@ -226,6 +239,7 @@ def run_loop(name: str, structure: str, folder: Path, quick: bool, grid: int | N
         name=name, structure=structure, points=P, ratio=ratio, tool_crossover=tool_wc, ref_crossover=ref_wc,
         wrong_infeasible=wrong, recheck_failed=failed, reference_infeasible=ref_none, steps=steps,
         tool_seconds=tool_seconds, ref_seconds=ref_seconds, plant_difference=plant_agreement(sched, points, plants),
+        dc_gain=(dc_tool, dc_ref),
     )
 
 
@@ -303,6 +317,8 @@ def format_result(r: LoopResult) -> list[str]:
         f"  wrong infeasible {r.wrong_infeasible}; tool pass but re-check fails {r.recheck_failed}; "
         f"reference infeasible {r.reference_infeasible}",
         f"  largest relative step tool/reference: {steps}",
+        *([] if not math.isfinite(r.dc_gain[0] + r.dc_gain[1]) else [
+            f"  smallest loop gain at zero frequency tool/reference: {r.dc_gain[0]:.3g}/{r.dc_gain[1]:.3g}"]),
         f"  time tool {r.tool_seconds:.2f} s, reference {r.ref_seconds:.2f} s "
         f"(reference/tool {r.ref_seconds / max(r.tool_seconds, 1e-9):.2f}x); "
         f"sampled plants agree to {r.plant_difference:.1e}",

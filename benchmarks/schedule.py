@@ -88,6 +88,7 @@ controller:
 specs:
   min_damping: {ZETA}
   min_gain_margin: {GM_DB}
+  poles: all   # the peers judge every closed-loop pole
 table:
   between_points: 0
 codegen:

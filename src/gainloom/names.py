@@ -23,6 +23,7 @@ __all__ = [
     "TOLERANCE_DESIGNS",
     "CROSSOVER_OBJECTIVES",
     "MONOTONE_DIRECTIONS",
+    "POLE_SELECTIONS",
 ]
 
 #: Discretisation methods: zero-order hold, first-order (triangle) hold,
@@ -76,6 +77,10 @@ TOLERANCE_DESIGNS: tuple[str, ...] = ("check", "worst-case")
 
 #: Required direction of a coefficient along each table axis (table.monotone).
 MONOTONE_DIRECTIONS: tuple[str, ...] = ("increasing", "decreasing")
+
+#: Which closed-loop poles the damping, decay and natural-frequency specs
+#: judge (specs.poles): the dominant ones (docs/design.md) or every pole.
+POLE_SELECTIONS: tuple[str, ...] = ("dominant", "all")
 
 
 def unknown_name_message(kind: str, name: str, known: tuple[str, ...]) -> str:

@@ -121,7 +121,12 @@ def _is_terminal(stream) -> bool:
 
 
 def summary_rows(labels, analysis, status, binding=None):
-    """Rows of the per-point summary table."""
+    """Rows of the per-point summary table.
+
+    ``zeta`` and ``wn`` are those of one pole: the least-damped judged pole
+    (``PointAnalysis.damping_pole_s``); ``wc`` is the gain crossover and
+    ``wb`` the closed-loop bandwidth.
+    """
     rows = []
     names = list(analysis.physical)
     for p, label in enumerate(labels):
@@ -129,15 +134,37 @@ def summary_rows(labels, analysis, status, binding=None):
         row += [float(analysis.physical[n][p]) for n in names]
         row += [
             float(analysis.damping[p]),
-            float(analysis.natural_frequency[p]),
+            float(analysis.damping_pole_frequency[p]),
             float(analysis.gain_margin_db[p]),
             float(analysis.phase_margin[p]),
+            float(analysis.crossover[p]),
+            float(analysis.bandwidth[p]),
             float(analysis.overshoot[p]),
         ]
         row.append("" if binding is None or binding[p] is None else binding[p])
         rows.append(row)
-    headers = ["point", "status"] + names + ["zeta", "wn rad/s", "GM dB", "PM deg", "OS %", "binding"]
+    headers = ["point", "status"] + names + [
+        "zeta", "wn rad/s", "GM dB", "PM deg", "wc rad/s", "wb rad/s", "OS %", "binding"]
     return headers, rows
+
+
+def point_summaries(labels, analysis, status) -> list[dict]:
+    """Per-point numbers of the ``--json`` output (the table's columns and the least-damped pole)."""
+    out = []
+    for p, label in enumerate(labels):
+        pole = complex(analysis.damping_pole_s[p])
+        out.append({
+            "point": label,
+            "status": status[p],
+            "damping": float(analysis.damping[p]),
+            "damping_pole": {"s": [pole.real, pole.imag], "natural_frequency": float(analysis.damping_pole_frequency[p]),
+                             "origin": analysis.damping_pole_origin[p]},
+            "gain_margin_db": float(analysis.gain_margin_db[p]),
+            "phase_margin_deg": float(analysis.phase_margin[p]),
+            "crossover_rad_s": float(analysis.crossover[p]),
+            "bandwidth_rad_s": float(analysis.bandwidth[p]),
+        })
+    return out
 
 
 def _where(values: dict) -> str:
@@ -211,6 +238,7 @@ def run(args: argparse.Namespace) -> int:
             "not_checked": list(job.not_checked),
             "status": list(result.status),
             "binding": list(result.binding),
+            "points": point_summaries(result.point_labels, result.analysis, result.status),
             "notes": [list(n) for n in result.notes],
             "table_checks": result.table_report.as_document(),
             "c_check": None if job.harness is None else job.harness.summary(),

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from .design import SAFETY_CAUTION, Counter, print_table_report, summary_rows
+from .design import SAFETY_CAUTION, Counter, point_summaries, print_table_report, summary_rows
 from .output import format_table, print_json
 
 HELP = "re-check a gains file (designed or tuned by hand) against a schedule"
@@ -29,6 +29,7 @@ def run(args: argparse.Namespace) -> int:
             "passed": result.passed,
             "status": list(result.status),
             "failed_specs": [result.analysis.failed_specs(p) for p in range(result.analysis.points)],
+            "points": point_summaries(result.point_labels, result.analysis, result.status),
             "table_checks": result.table_report.as_document(),
             "warnings": list(result.warnings),
         })

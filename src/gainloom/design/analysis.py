@@ -29,11 +29,14 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.signal
 
+from ..lti.bandwidth import closed_loop_bandwidth
 from ..lti.closed_loop import closed_loop_poles
 from ..lti.loop import Loop
 from ..lti.margins import loop_margins
 from ..lti.poles import damping_and_frequency
 from .cancel import cancelled_zeros, mask_cancelled
+from .dominant import judged_poles
+from .pole_origin import pole_origins
 from .specs import SPEC_ORDER, SpecLimits
 from .structures import locus_from_coefficients, open_loop, physical_from_coefficients
 
@@ -68,17 +71,37 @@ class PointAnalysis:
         Closed-loop poles in ``z`` and their equivalents ``ln(z)/ts`` [rad/s],
         sorted by decreasing ``|z|``.
     damping : ndarray
-        Smallest damping ratio over the closed-loop poles.
+        Smallest damping ratio over the judged closed-loop poles (dominant
+        ones under ``specs: {poles: dominant}``, :mod:`gainloom.design.dominant`).
+    damping_pole_s : ndarray of complex
+        That least-damped judged pole as ``ln(z)/ts`` [rad/s]; among equal
+        damping (e.g. all real) the slowest.
+    damping_pole_frequency : ndarray
+        Natural frequency ``|s|`` of the same pole, rad/s (the ``ωn`` that
+        belongs to ``damping``).
+    damping_pole_origin : tuple of str
+        What that pole's locus branch starts at
+        (:data:`gainloom.design.pole_origin.ORIGIN_KINDS`).
+    damping_pole_start_z : ndarray of complex
+        The open-loop pole (``z``) it starts at.
     natural_frequency : ndarray
         Natural frequency of the dominant (slowest) pole, rad/s.
     decay : ndarray
-        Smallest decay rate ``-ln|z|/ts`` over the poles, 1/s.
+        Smallest decay rate ``-ln|z|/ts`` over the judged poles, 1/s.
     pole_radius : ndarray
         Largest ``|z|``.
     fastest_frequency : ndarray
         Largest natural frequency over the poles, rad/s.
     gain_margin_db, phase_margin, delay_margin, sensitivity_peak : ndarray
         dB, degrees, seconds, absolute.
+    crossover : ndarray
+        Lowest frequency where ``|L|`` falls below 1, rad/s (the gain
+        crossover; ``min_crossover`` is judged on it).
+    last_crossover : ndarray
+        Highest frequency where ``|L|`` is 1, rad/s (``max_crossover`` is
+        judged on it; equal to ``crossover`` for a loop with one crossover).
+    bandwidth : ndarray
+        Half-power bandwidth of ``T = L/(1 + L)``, rad/s.
     overshoot : ndarray
         Percent, from the discrete step response (NaN if unstable).
     settling_time : ndarray
@@ -105,6 +128,10 @@ class PointAnalysis:
     poles_z: np.ndarray
     poles_s: np.ndarray
     damping: np.ndarray
+    damping_pole_s: np.ndarray
+    damping_pole_frequency: np.ndarray
+    damping_pole_origin: tuple[str, ...]
+    damping_pole_start_z: np.ndarray
     natural_frequency: np.ndarray
     decay: np.ndarray
     pole_radius: np.ndarray
@@ -113,6 +140,9 @@ class PointAnalysis:
     phase_margin: np.ndarray
     delay_margin: np.ndarray
     sensitivity_peak: np.ndarray
+    crossover: np.ndarray
+    last_crossover: np.ndarray
+    bandwidth: np.ndarray
     overshoot: np.ndarray
     settling_time: np.ndarray
     system_type: np.ndarray
@@ -140,42 +170,55 @@ class PointAnalysis:
         return [name for name in SPEC_ORDER if not self.verdicts[name][point]]
 
 
-def pole_metrics(poles: np.ndarray, ts: np.ndarray) -> dict[str, np.ndarray]:
+def pole_metrics(poles: np.ndarray, ts: np.ndarray, selection: str = "all") -> dict[str, np.ndarray]:
     """Region metrics of closed-loop poles (batched over leading axes).
 
     Parameters
     ----------
     poles : ndarray of complex, shape B + (n,)
-        Poles in ``z``.
+        Poles in ``z`` (cancelled ones moved to ``z = 0``).
     ts : ndarray
         Sample period in seconds, broadcastable to ``B``.
+    selection : str
+        Which poles the damping and decay judge: ``"dominant"`` or ``"all"``
+        (:func:`gainloom.design.dominant.judged_poles`).
 
     Returns
     -------
-    dict with ``radius`` (max |z|), ``damping`` (min zeta), ``decay``
-    (min ``-ln|z|/ts``, 1/s), ``dominant_frequency`` (wn of the largest-|z|
-    pole, rad/s), ``fastest_frequency`` (max wn, rad/s), all shape ``B``.
+    dict with ``radius`` (max |z|), ``damping`` (min zeta over the judged
+    poles), ``least_damped`` (index of that pole along the last axis; among
+    equal damping the slowest), ``decay`` (min ``-ln|z|/ts`` over the judged
+    poles, 1/s), ``dominant_frequency`` (wn of the largest-|z| pole, rad/s),
+    ``fastest_frequency`` (max wn, rad/s), all shape ``B``.
     Non-finite poles (a biproper loop's root at infinity) count as unstable.
     """
     ts = np.asarray(ts, dtype=float)
     tsb = np.broadcast_to(ts[..., None] if ts.ndim else ts, poles.shape)
+    if poles.shape[-1] == 0:
+        empty = np.zeros(poles.shape[:-1])
+        return {"radius": empty, "damping": empty + 1, "least_damped": empty.astype(int), "decay": empty + np.inf,
+                "dominant_frequency": empty + np.inf, "fastest_frequency": empty}
     zeta, wn = damping_and_frequency(poles, tsb)
     magnitude = np.abs(poles)
     finite = np.isfinite(magnitude)
     magnitude = np.where(finite, magnitude, np.inf)
     zeta = np.where(finite, zeta, -1.0)
-    if poles.shape[-1] == 0:
-        empty = np.zeros(poles.shape[:-1])
-        return {"radius": empty, "damping": empty + 1, "decay": empty + np.inf,
-                "dominant_frequency": empty + np.inf, "fastest_frequency": empty}
+    zeta = np.where(np.isnan(zeta), -1.0, zeta)
+    judged = judged_poles(poles, tsb, selection)
+    judged_zeta = np.where(judged, zeta, np.inf)
+    # least damped judged pole; ties (e.g. every pole real) go to the slowest
+    least = np.lexsort((-magnitude, judged_zeta), axis=-1)[..., 0]
+    damping = np.take_along_axis(judged_zeta, least[..., None], axis=-1)[..., 0]
     radius = magnitude.max(axis=-1)
     dominant = np.argmax(magnitude, axis=-1)
     dom_wn = np.take_along_axis(wn, dominant[..., None], axis=-1)[..., 0]
     with np.errstate(divide="ignore", invalid="ignore"):
-        decay = -np.log(radius) / np.broadcast_to(ts, radius.shape)
+        slowest = np.max(np.where(judged, magnitude, 0.0), axis=-1)
+        decay = -np.log(slowest) / np.broadcast_to(ts, radius.shape)
     return {
         "radius": radius,
-        "damping": np.nanmin(np.where(np.isnan(zeta), -1.0, zeta), axis=-1),
+        "damping": np.where(np.isfinite(damping), damping, 1.0),
+        "least_damped": least,
         "decay": decay,
         "dominant_frequency": np.where(finite.all(axis=-1), dom_wn, np.nan),
         "fastest_frequency": np.where(finite, np.where(np.isfinite(wn), wn, np.inf), np.inf).max(axis=-1),
@@ -285,8 +328,14 @@ def analyse(
     cancelled = cancelled_zeros(zeros, plant.den)
     full_radius = np.max(np.abs(poles), axis=-1) if poles.shape[-1] else np.zeros(plant.points)
     # cancelled plant poles stay in the report but not in the region specs
-    metrics = pole_metrics(mask_cancelled(poles, cancelled), ts)
+    metrics = pole_metrics(mask_cancelled(poles, cancelled), ts, limits.poles)
+    least = metrics["least_damped"][:, None]
+    damping_pole = np.take_along_axis(poles, least, axis=-1)[:, 0] if poles.shape[-1] else np.full(plant.points, np.nan)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        damping_pole_s = np.log(damping_pole) / ts
+    origin, start = pole_origins(loop, plant, damping_pole)
     margins = loop_margins(loop, 1.0)
+    bandwidth = closed_loop_bandwidth(loop, 1.0)
     if step:
         overshoot, settling, _ = step_metrics(loop)
     else:
@@ -304,6 +353,9 @@ def analyse(
         "min_phase_margin": np.asarray(margins.phase_margin, float),
         "min_delay_margin": np.asarray(margins.delay_margin, float),
         "max_sensitivity_peak": np.asarray(margins.sensitivity_peak, float),
+        "min_crossover": np.asarray(margins.crossover, float),
+        "max_crossover": np.asarray(margins.last_crossover, float),
+        "min_bandwidth": bandwidth,
         "max_gain": np.abs(form.gain),
         "system_type": system_type.astype(float),
         "max_overshoot": overshoot,
@@ -320,6 +372,9 @@ def analyse(
         "min_phase_margin": _at_least(values["min_phase_margin"], limits.min_phase_margin),
         "min_delay_margin": _at_least(values["min_delay_margin"], limits.min_delay_margin),
         "max_sensitivity_peak": _at_most(values["max_sensitivity_peak"], limits.max_sensitivity_peak),
+        "min_crossover": _at_least(values["min_crossover"], limits.min_crossover),
+        "max_crossover": _at_most(values["max_crossover"], limits.max_crossover),
+        "min_bandwidth": _at_least(values["min_bandwidth"], limits.min_bandwidth),
         "max_gain": _at_most(values["max_gain"], limits.max_gain),
         "system_type": _at_least(values["system_type"], limits.system_type),
         "max_overshoot": _at_most(values["max_overshoot"], limits.max_overshoot)
@@ -338,6 +393,10 @@ def analyse(
         poles_z=poles,
         poles_s=poles_s,
         damping=metrics["damping"],
+        damping_pole_s=damping_pole_s,
+        damping_pole_frequency=np.abs(damping_pole_s),
+        damping_pole_origin=origin,
+        damping_pole_start_z=start,
         natural_frequency=metrics["dominant_frequency"],
         decay=metrics["decay"],
         pole_radius=metrics["radius"],
@@ -346,6 +405,9 @@ def analyse(
         phase_margin=values["min_phase_margin"],
         delay_margin=values["min_delay_margin"],
         sensitivity_peak=values["max_sensitivity_peak"],
+        crossover=values["min_crossover"],
+        last_crossover=values["max_crossover"],
+        bandwidth=bandwidth,
         overshoot=overshoot,
         settling_time=settling,
         system_type=system_type,

@@ -1,10 +1,11 @@
 """Why a point fails: the binding spec and the best value reachable there.
 
 For a point where no gain of any searched shape meets every spec, each
-pole-region spec is tried *alone* over the searched family: damping, decay
-rate and pole radius with the exact interval solver (so "unreachable" is a
-proof over all positive gains of every searched shape, not a sampling
-artefact), the natural-frequency band on the coarse gain samples.  The first
+pole-region spec is tried *alone* over the searched family: decay rate and
+pole radius (and damping under ``specs: {poles: all}``) with the exact
+interval solver (so "unreachable" is a proof over all positive gains of
+every searched shape, not a sampling artefact), the natural-frequency band
+(and damping of the dominant poles) on the coarse gain samples.  The first
 spec (in report order) that is unreachable alone is the binding one; its
 best value over the samples is quoted with the gain and shape reaching it.
 If every spec is reachable alone, they conflict: the binding spec is the one
@@ -38,6 +39,9 @@ SPEC_WORDS = {
     "min_phase_margin": ("phase margin", "max", " deg"),
     "min_delay_margin": ("delay margin", "max", " s"),
     "max_sensitivity_peak": ("sensitivity peak", "min", ""),
+    "min_crossover": ("gain crossover", "max", " rad/s"),
+    "max_crossover": ("highest gain crossover", "min", " rad/s"),
+    "min_bandwidth": ("closed-loop bandwidth", "max", " rad/s"),
     "max_gain": ("controller gain", "min", ""),
     "system_type": ("system type", "max", ""),
     "max_overshoot": ("step overshoot", "min", " %"),
@@ -133,7 +137,9 @@ def _exact_alone_loops(loops, name: str, value: float) -> bool:
 BEST_SAMPLES = 400
 
 
-def _best_reachable(plant, shapes: Shapes, p: int, key: str, maximise: bool) -> tuple[float, float, int]:
+def _best_reachable(
+    plant, shapes: Shapes, p: int, key: str, maximise: bool, selection: str = "all"
+) -> tuple[float, float, int]:
     """Best value of a pole metric over the stable gains of every valid shape at point ``p``.
 
     The stable intervals are exact; inside them ``BEST_SAMPLES`` geometric
@@ -156,7 +162,7 @@ def _best_reachable(plant, shapes: Shapes, p: int, key: str, maximise: bool) -> 
             gains[r, : row.size] = row
     cancelled = cancelled_zeros(shapes.zeros[p, valid], plant.den[np.full(valid.size, p)])
     poles = mask_cancelled(closed_loop_poles(loops, np.nan_to_num(gains, nan=0.0)), cancelled)
-    values = pole_metrics(poles, loops.ts[:, None])[key]
+    values = pole_metrics(poles, loops.ts[:, None], selection)[key]
     values = np.where(np.isfinite(gains), values, np.nan)
     flat = np.where(np.isnan(values), -np.inf if maximise else np.inf, values)
     r, k = np.unravel_index(int(np.argmax(flat) if maximise else np.argmin(flat)), flat.shape)
@@ -204,7 +210,10 @@ def diagnose(
                 continue
             key = _SAMPLED[name]
             values = np.where(stable, metrics[key], np.nan)
-            if name in ("min_damping", "min_decay", "max_pole_radius"):
+            # under poles: dominant the exact solver (every pole) cannot prove
+            # a damping bound unreachable; the samples judge it
+            exact = name in ("min_decay", "max_pole_radius") or (name == "min_damping" and limits.poles == "all")
+            if exact:
                 reachable = _exact_alone(plant, shapes, p, name, limits)
             else:
                 ok = values >= limit if SPEC_WORDS[name][1] == "max" else values <= limit
@@ -212,7 +221,7 @@ def diagnose(
             if reachable:
                 continue
             best_is_max = SPEC_WORDS[name][1] == "max"
-            value, gain, s_best = _best_reachable(plant, shapes, p, key, best_is_max)
+            value, gain, s_best = _best_reachable(plant, shapes, p, key, best_is_max, limits.poles)
             quantity, _, unit = SPEC_WORDS[name]
             word = "at most" if best_is_max else "at least"
             params = shapes.params[p, s_best]

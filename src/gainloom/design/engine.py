@@ -57,7 +57,7 @@ def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = No
 def limits_at(sched, points: np.ndarray) -> SpecLimits:
     """Specs per point (overrides resolved)."""
     points = np.asarray(points, dtype=float)
-    return SpecLimits.from_values(sched.spec_values(points), points.shape[0])
+    return SpecLimits.from_values(sched.spec_values(points), points.shape[0], poles=sched.specs.poles)
 
 
 def _objective(controller) -> str:
@@ -123,7 +123,7 @@ def _step_retry(plant, structure, shapes, choice: Choice, coefficients, limits, 
             # crossover objectives: the gain nearest the search's choice (crossover moves with it)
             scores = -np.abs(np.log(gains[good] / choice.gain[p]))
         else:
-            scores = objective_values(trial.poles_z[good], trial.sample_period[good], objective, target)
+            scores = objective_values(trial.poles_z[good], trial.sample_period[good], objective, target, limits.poles)
         k = good[np.argmax(scores)]
         for name in coefficients:
             coefficients[name][p] = coefs[name][k]

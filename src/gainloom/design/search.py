@@ -29,6 +29,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..lti.bandwidth import closed_loop_bandwidth
 from ..lti.closed_loop import closed_loop_poles
 from ..lti.intervals import spec_gain_intervals, stable_gain_intervals
 from ..lti.loop import Loop
@@ -130,9 +131,14 @@ def _target_s(limits_target: tuple[float, float] | None) -> complex | None:
     return complex(-zeta * wn, wn * math.sqrt(max(1 - zeta * zeta, 0.0)))
 
 
-def objective_values(poles: np.ndarray, ts: np.ndarray, objective: str, target: tuple[float, float] | None) -> np.ndarray:
-    """Score (larger is better) of closed-loop poles ``B + (n,)`` for an objective."""
-    metrics = pole_metrics(poles, ts)
+def objective_values(
+    poles: np.ndarray, ts: np.ndarray, objective: str, target: tuple[float, float] | None, selection: str = "all"
+) -> np.ndarray:
+    """Score (larger is better) of closed-loop poles ``B + (n,)`` for an objective.
+
+    ``selection`` is the pole selection of the specs (``SpecLimits.poles``).
+    """
+    metrics = pole_metrics(poles, ts, selection)
     if objective == "fastest":
         return metrics["decay"]
     if objective == "most-damped":
@@ -151,7 +157,7 @@ def objective_values(poles: np.ndarray, ts: np.ndarray, objective: str, target: 
 
 def region_ok(poles: np.ndarray, ts: np.ndarray, limits: SpecLimits, rows: np.ndarray) -> tuple[np.ndarray, dict]:
     """Pole-region verdict of samples ``(R, M, n)`` for the limits of ``rows``."""
-    metrics = pole_metrics(poles, ts[:, None])
+    metrics = pole_metrics(poles, ts[:, None], limits.poles)
 
     def lim(name: str) -> np.ndarray:
         return getattr(limits, name)[rows][:, None]
@@ -199,11 +205,17 @@ def _coarse_grid(loop: Loop) -> np.ndarray:
 
 
 def _region_groups(limits: SpecLimits, points: np.ndarray, ts: np.ndarray):
-    """Rows grouped by identical exact-region specs (one solver call per group)."""
+    """Rows grouped by identical exact-region specs (one solver call per group).
+
+    Under ``poles: dominant`` the damping bound is left to the samples
+    (:func:`region_ok`): the exact solver bounds every pole, and a fast pole
+    the dominant selection ignores would cut the feasible set.
+    """
     keys = {}
+    exact_damping = limits.poles == "all"
     for row, p in enumerate(points):
         key = (
-            float(np.nan_to_num(limits.min_damping[p], nan=0.0)),
+            float(np.nan_to_num(limits.min_damping[p], nan=0.0)) if exact_damping else 0.0,
             float(np.nan_to_num(limits.min_decay[p], nan=0.0)),
             float(np.nan_to_num(limits.max_pole_radius[p], nan=1.0)),
         )
@@ -357,7 +369,7 @@ def choose_gains(
     ok, metrics = region_ok(poles, ts_rows, limits, rows_p)
     cap = limits.max_gain[rows_p][:, None]
     ok &= np.isnan(cap) | (grid <= cap)
-    score = objective_values(poles, ts_rows[:, None], objective, target)
+    score = objective_values(poles, ts_rows[:, None], objective, target, limits.poles)
     score = np.where(ok & flat(shapes.valid)[:, None], score, -np.inf)
     best_per_shape = score.max(axis=-1).reshape(P, S)
     # Shapes feasible nowhere on the coarse grid (a narrow feasible gain
@@ -430,7 +442,7 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S, cancelle
     fine_poles = mask_cancelled(_poles_at(sub, fine), sub_cancelled)
     ok_f, _ = region_ok(fine_poles, sub.ts, limits, sel_points)
     ok_f &= np.isfinite(fine)
-    score_f = objective_values(fine_poles, sub.ts[:, None], objective, target)
+    score_f = objective_values(fine_poles, sub.ts[:, None], objective, target, limits.poles)
     score_f = np.where(ok_f, score_f, -np.inf)
     has_asked = np.isfinite(fine[:, -1]) & ok_f[:, -1]
     R = sel_rows.size
@@ -449,13 +461,14 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S, cancelle
                                [feasible_sets[r] for r in row_pick[refine]], limits, sel_points[row_pick[refine]],
                                objective, target, gain[refine], sub_cancelled[row_pick[refine]])
 
-    # margins other than GM at the choice; fall back on the samples
-    need = ~(np.isnan(limits.min_phase_margin) & np.isnan(limits.min_delay_margin) & np.isnan(limits.max_sensitivity_peak))
+    # frequency-domain specs other than GM at the choice; fall back on the samples
+    need = np.zeros(limits.points, dtype=bool)
+    for name in FREQUENCY_SPECS:
+        need |= ~np.isnan(getattr(limits, name))
     notes: list[list[str]] = [[] for _ in range(n)]
     check = np.flatnonzero(feasible & need[points])
     if check.size:
-        margins = loop_margins(sub.select(row_pick[check]), gain[check])
-        good = _margins_ok(margins, limits, points[check])
+        good = frequency_specs_ok(sub.select(row_pick[check]), gain[check], limits, points[check])
         bad = check[~good]
         if bad.size:
             rows_b = (bad[:, None] * take + np.arange(take)[None, :]).ravel()
@@ -467,8 +480,9 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S, cancelle
             chosen_row = np.full(bad.size, -1)
             chosen_gain = np.full(bad.size, np.nan)
             if np.any(usable):
-                m = loop_margins(sub.select(flat_rows[usable]), flat_gain[usable])
-                good_b = _margins_ok(m, limits, sel_points[flat_rows[usable]])
+                good_b = frequency_specs_ok(
+                    sub.select(flat_rows[usable]), flat_gain[usable], limits, sel_points[flat_rows[usable]]
+                )
                 scores = score_f[rows_b].ravel()[usable]
                 for j, q in enumerate(bad):
                     mask = (owner[usable] == q) & good_b
@@ -480,7 +494,10 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S, cancelle
                 if chosen_row[j] >= 0:
                     gain[q] = chosen_gain[j]
                     pick[q] = chosen_row[j] - q * take
-                    notes[q].append("margins (PM/delay/Ms) ruled out the objective's best gain; took the best sample meeting them")
+                    notes[q].append(
+                        "frequency-domain specs (PM/delay/Ms/crossover/bandwidth) ruled out the objective's best gain; "
+                        "took the best sample meeting them"
+                    )
                 else:
                     feasible[q] = False
     row_final = np.arange(n) * take + pick
@@ -488,16 +505,34 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S, cancelle
     return gain, shape_col, feasible, [feasible_sets[r] for r in row_final], notes
 
 
-def _margins_ok(margins, limits: SpecLimits, points: np.ndarray) -> np.ndarray:
-    def meets(value, limit, at_least=True):
-        limit = limit[points]
-        return np.isnan(limit) | ((value >= limit) if at_least else (value <= limit))
+#: Specs judged on the frequency response at a chosen gain (not by the exact
+#: pole-region intervals), with the ``Margins`` field each is read from
+#: (``None``: the closed-loop bandwidth) and whether the value must be at least the limit.
+FREQUENCY_SPECS: dict[str, tuple[str | None, bool]] = {
+    "min_phase_margin": ("phase_margin", True),
+    "min_delay_margin": ("delay_margin", True),
+    "max_sensitivity_peak": ("sensitivity_peak", False),
+    "min_crossover": ("crossover", True),
+    "max_crossover": ("last_crossover", False),
+    "min_bandwidth": (None, True),
+}
 
-    return (
-        meets(np.asarray(margins.phase_margin), limits.min_phase_margin)
-        & meets(np.asarray(margins.delay_margin), limits.min_delay_margin)
-        & meets(np.asarray(margins.sensitivity_peak), limits.max_sensitivity_peak, at_least=False)
-    )
+
+def frequency_specs_ok(loop: Loop, gains: np.ndarray, limits: SpecLimits, points: np.ndarray) -> np.ndarray:
+    """True where every frequency-domain spec of ``FREQUENCY_SPECS`` holds for ``K = gains``.
+
+    ``loop`` rows are K-free loops at the operating points ``points``.
+    """
+    margins = loop_margins(loop, gains)
+    bandwidth = closed_loop_bandwidth(loop, gains) if np.any(np.isfinite(limits.min_bandwidth[points])) else None
+    ok = np.ones(loop.points, dtype=bool)
+    for name, (field, at_least) in FREQUENCY_SPECS.items():
+        limit = getattr(limits, name)[points]
+        if np.all(np.isnan(limit)):
+            continue
+        value = np.asarray(bandwidth if field is None else getattr(margins, field), float)
+        ok &= np.isnan(limit) | ((value >= limit) if at_least else (value <= limit))
+    return ok
 
 
 def _golden(loop: Loop, samples: np.ndarray, index: np.ndarray, sets, limits, points, objective, target, start, cancelled):
@@ -520,7 +555,7 @@ def _golden(loop: Loop, samples: np.ndarray, index: np.ndarray, sets, limits, po
     def score(g):
         poles = mask_cancelled(closed_loop_poles(loop, g[:, None]), cancelled)
         ok, _ = region_ok(poles, loop.ts, limits, points)
-        value = objective_values(poles, loop.ts[:, None], objective, target)[:, 0]
+        value = objective_values(poles, loop.ts[:, None], objective, target, limits.poles)[:, 0]
         return np.where(ok[:, 0], value, -np.inf)
 
     best_gain = start.copy()

@@ -64,6 +64,9 @@ SPEC_ORDER: tuple[str, ...] = (
     "min_phase_margin",
     "min_delay_margin",
     "max_sensitivity_peak",
+    "min_crossover",
+    "max_crossover",
+    "min_bandwidth",
     "max_gain",
     "system_type",
     "max_overshoot",
@@ -119,6 +122,15 @@ class SpecLimits:
         seconds.
     max_sensitivity_peak : ndarray
         absolute (``Ms = max |1/(1 + L)|``).
+    min_crossover : ndarray
+        rad/s; ``|L| >= 1`` up to this frequency (judged on the lowest
+        frequency where ``|L|`` falls below 1, ``Margins.crossover``).
+    max_crossover : ndarray
+        rad/s; ``|L| <= 1`` above this frequency (judged on the highest gain
+        crossover, ``Margins.last_crossover``).
+    min_bandwidth : ndarray
+        rad/s; half-power bandwidth of ``T = L/(1 + L)``
+        (:func:`gainloom.lti.bandwidth.closed_loop_bandwidth`).
     max_gain : ndarray
         Bound on the controller's instantaneous gain ``u[k]/e[k]`` (the locus
         gain ``K``: ``kp + ki_ts (+ kd_b)`` or ``kc``).
@@ -128,6 +140,9 @@ class SpecLimits:
         Percent, re-checked on the discrete step response.
     max_settling_time : ndarray
         Seconds (2 % band), re-checked on the discrete step response.
+    poles : str
+        Which closed-loop poles the damping, decay and natural-frequency
+        specs judge: ``"dominant"`` or ``"all"`` (``names.POLE_SELECTIONS``).
     """
 
     min_damping: np.ndarray
@@ -143,10 +158,17 @@ class SpecLimits:
     system_type: np.ndarray
     max_overshoot: np.ndarray
     max_settling_time: np.ndarray
+    min_crossover: np.ndarray
+    max_crossover: np.ndarray
+    min_bandwidth: np.ndarray
+    poles: str = "dominant"
 
     @classmethod
-    def from_values(cls, values: dict[str, np.ndarray], count: int) -> "SpecLimits":
-        """Build from ``Schedule.spec_values(points)`` (keys as documented there)."""
+    def from_values(cls, values: dict[str, np.ndarray], count: int, poles: str = "dominant") -> "SpecLimits":
+        """Build from ``Schedule.spec_values(points)`` (keys as documented there).
+
+        ``poles`` is the schedule's ``specs.poles`` (one choice for every point).
+        """
         settle = _array(values, "max_settling_time", count)
         with np.errstate(divide="ignore", invalid="ignore"):
             decay = decay_from_settling(settle)
@@ -168,6 +190,10 @@ class SpecLimits:
             system_type=_array(values, "system_type", count),
             max_overshoot=overshoot,
             max_settling_time=settle,
+            min_crossover=_array(values, "min_crossover", count),
+            max_crossover=_array(values, "max_crossover", count),
+            min_bandwidth=_array(values, "min_bandwidth", count),
+            poles=poles,
         )
 
     @property
@@ -177,7 +203,11 @@ class SpecLimits:
 
     def select(self, index: np.ndarray) -> "SpecLimits":
         """Limits at a subset (or repetition) of the points."""
-        return SpecLimits(**{f.name: getattr(self, f.name)[index] for f in fields(self)})
+        return self.replaced({name: value[index] for name, value in self.as_dict().items()})
+
+    def replaced(self, arrays: dict[str, np.ndarray]) -> "SpecLimits":
+        """The same pole selection with these per-point arrays (every array field)."""
+        return SpecLimits(**arrays, poles=self.poles)
 
     def tightened(self) -> "SpecLimits":
         """The limits moved inside by the design back-off (see ``BACKOFF``).
@@ -202,6 +232,10 @@ class SpecLimits:
             system_type=self.system_type,
             max_overshoot=self.max_overshoot,
             max_settling_time=self.max_settling_time,
+            min_crossover=self.min_crossover * (1 + b["relative"]),
+            max_crossover=self.max_crossover / (1 + b["relative"]),
+            min_bandwidth=self.min_bandwidth * (1 + b["relative"]),
+            poles=self.poles,
         )
 
     def radius_bound(self, ts: np.ndarray) -> np.ndarray:
@@ -211,5 +245,5 @@ class SpecLimits:
         return np.fmin(self.max_pole_radius, from_decay)
 
     def as_dict(self) -> dict[str, np.ndarray]:
-        """Plain dict of the arrays."""
-        return {f.name: getattr(self, f.name) for f in fields(self)}
+        """Plain dict of the per-point arrays (every field but ``poles``)."""
+        return {f.name: getattr(self, f.name) for f in fields(self) if f.name != "poles"}

@@ -30,8 +30,7 @@ from typing import Any
 
 import numpy as np
 
-from .analysis import analyse, pole_metrics
-from .specs import SpecLimits
+from .analysis import analyse
 
 __all__ = ["run_table_checks", "relative_steps", "interpolate", "between_points", "tolerance_scales"]
 
@@ -223,11 +222,11 @@ def _smooth_gains(sched, point_design, shape, structure) -> tuple[dict[str, np.n
     analysis = analyse(point_design.plant, structure, coefficients, point_design.limits)
     for p, old, new in moved:
         if analysis.passed[p] or not point_design.analysis.passed[p]:
-            before = pole_metrics(point_design.analysis.poles_z[p : p + 1], point_design.analysis.sample_period[p])
+            before = point_design.analysis
             notes.append(
                 f"table limits (max_relative_step/monotone) forced a worse design at {sched.describe_point(point_design.points[p])}: "
-                f"K {old:.6g} -> {new:.6g}; slowest decay {float(before['decay'][0]):.6g} -> "
-                f"{float(analysis.decay[p]):.6g} 1/s, damping {float(before['damping'][0]):.4g} -> "
+                f"K {old:.6g} -> {new:.6g}; slowest decay {float(before.decay[p]):.6g} -> "
+                f"{float(analysis.decay[p]):.6g} 1/s, damping {float(before.damping[p]):.4g} -> "
                 f"{float(analysis.damping[p]):.4g}"
             )
         else:
@@ -395,7 +394,7 @@ def _merge_designs(old, fresh, new_points, is_new, old_lookup, structure):
 
     coefficients = {k: pick(old.coefficients[k], fresh.coefficients[k]) for k in old.coefficients}
     plant = _sched_plant(old, fresh, source)
-    limits = SpecLimits(**{k: pick(getattr(old.limits, k), getattr(fresh.limits, k)) for k in old.limits.as_dict()})
+    limits = old.limits.replaced({k: pick(getattr(old.limits, k), getattr(fresh.limits, k)) for k in old.limits.as_dict()})
     analysis = analyse(plant, structure, coefficients, limits)
     return PointDesign(
         points=new_points,

@@ -24,7 +24,17 @@ Conventions (the same as python-control's ``stability_margins``):
   unstable.  For discrete loops it is given in seconds and in (fractional)
   samples of ``ts``;
 - sensitivity peak ``Ms = max_w |1/(1 + L)|`` (python-control's ``sm`` is
-  ``1/Ms``).
+  ``1/Ms``);
+- crossover (the ``min_crossover`` spec): the lowest frequency at which
+  ``|L|`` falls below 1, so ``|L| >= 1`` on all of ``(0, crossover]``; it is
+  0 when ``|L| < 1`` already at the lowest frequency of the grid;
+- last crossover (the ``max_crossover`` spec): the highest frequency at which
+  ``|L|`` is still 1, so ``|L| <= 1`` everywhere above it; 0 when ``|L| <= 1``
+  at every frequency, the Nyquist frequency ``pi/ts`` (discrete) or ``inf``
+  (continuous) when ``|L| > 1`` up to the end.
+  For the usual loop (integrator, one crossing) both equal python-control's
+  ``wgc``; with a resonance poking above 0 dB they bracket every crossover,
+  and each spec is judged on the end that makes it hold everywhere.
 """
 
 from __future__ import annotations
@@ -79,6 +89,11 @@ class Margins:
         Closed-loop poles of the rational loop all strictly stable.
     gain : ndarray
         The loop gain ``K`` the margins were computed at.
+    crossover : ndarray
+        Lowest frequency where ``|L|`` falls below 1, rad/s (see the module
+        notes; 0 when ``|L| < 1`` from the start).
+    last_crossover : ndarray
+        Highest frequency where ``|L|`` is 1, rad/s (``|L| <= 1`` above it).
     warnings : tuple of str
         Conditions a reader of the numbers must know (data, not ``warnings``).
     """
@@ -94,6 +109,8 @@ class Margins:
     sensitivity_peak_frequency: np.ndarray
     stable: np.ndarray
     gain: np.ndarray
+    crossover: np.ndarray
+    last_crossover: np.ndarray
     warnings: tuple[str, ...] = ()
 
 
@@ -226,6 +243,22 @@ def _worst_by_row(points: int, rows: np.ndarray, key: np.ndarray, *values: np.nd
     return best_key, picked
 
 
+def _crossover_ends(grid, num, den, rows, w_gc, discrete: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Lowest frequency where ``|L|`` falls below 1 and highest where it is 1 (module notes)."""
+    points = grid.shape[0]
+    above_first = np.abs(num[:, 0]) >= np.abs(den[:, 0])
+    above_last = np.abs(num[:, -1]) > np.abs(den[:, -1])
+    first = np.full(points, np.inf)
+    last = np.zeros(points)
+    np.minimum.at(first, rows, w_gc)
+    np.maximum.at(last, rows, w_gc)
+    # no downward crossing on the grid: |L| >= 1 throughout, up to the end
+    first = np.where(np.isfinite(first), first, grid[:, -1] if discrete else np.inf)
+    first = np.where(above_first, first, 0.0)
+    last = np.where(above_last, grid[:, -1] if discrete else np.inf, last)
+    return first, last
+
+
 def loop_margins(loop: Loop, gain: object = 1.0) -> Margins:
     """Gain, phase and delay margins and the sensitivity peak of every point.
 
@@ -329,6 +362,7 @@ def loop_margins(loop: Loop, gain: object = 1.0) -> Margins:
         pm = np.where(np.isfinite(pm_key), pm, np.inf)
         dm = np.full(points, np.inf)
         np.minimum.at(dm, g_rows, dm_each)
+        crossover, last_crossover = _crossover_ends(grid, num, den, g_rows, w_gc, loop.is_discrete)
 
         # Sensitivity peak: grid maximum, then golden section in log w.
         sens = np.abs(den) / np.abs(den + num)
@@ -400,5 +434,7 @@ def loop_margins(loop: Loop, gain: object = 1.0) -> Margins:
         sensitivity_peak_frequency=wms,
         stable=stable,
         gain=gains,
+        crossover=crossover,
+        last_crossover=last_crossover,
         warnings=tuple(warnings),
     )

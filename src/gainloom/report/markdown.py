@@ -119,7 +119,8 @@ def _points(doc: dict[str, Any]) -> list[str]:
     names = doc["table"]["coefficient_names"]
     lines = ["## Per-point table", ""]
     headers = ["#", "point", "status", "ts [s]", "delay"] + names + [
-        "ζ min", "ωn [rad/s]", "max \\|z\\|", "GM [dB]", "PM [deg]", "DM [s]", "Ms", "OS [%]", "Ts [s]"]
+        "ζ min", "ωn [rad/s]", "max \\|z\\|", "GM [dB]", "PM [deg]", "DM [s]", "Ms", "ωc [rad/s]", "ωb [rad/s]",
+        "OS [%]", "Ts [s]"]
     rows = []
     for e in doc["points"]:
         status = "pass" if e["status"] == "pass" else f"FAIL ({e['binding']})"
@@ -127,6 +128,7 @@ def _points(doc: dict[str, Any]) -> list[str]:
                     + [number(e["coefficients"][n], 6) for n in names]
                     + [number(e[k]) for k in ("damping", "natural_frequency", "pole_radius", "gain_margin_db",
                                               "phase_margin_deg", "delay_margin_s", "sensitivity_peak",
+                                              "crossover_rad_s", "bandwidth_rad_s",
                                               "overshoot_percent", "settling_time_s")])
     lines += _table(headers, rows)
     lines.append("Closed-loop poles in z and s of every point, physical gains and each spec's value, limit and "

@@ -149,7 +149,11 @@ class SpecSection:
     ``natural_frequency`` rad/s ``(min, max)`` (either may be ``None``),
     ``min_gain_margin`` dB, ``min_phase_margin`` degrees,
     ``min_delay_margin`` s, ``max_sensitivity_peak`` absolute,
-    ``max_gain`` in the units of the controller coefficients.
+    ``max_gain`` in the units of the controller coefficients,
+    ``min_crossover``, ``max_crossover`` and ``min_bandwidth`` rad/s.
+    ``poles`` says which closed-loop poles the damping, decay and
+    natural-frequency specs judge: ``"dominant"`` (default) or ``"all"``
+    (``names.POLE_SELECTIONS``; see docs/design.md).
     """
 
     min_damping: float | None = None
@@ -163,6 +167,10 @@ class SpecSection:
     max_sensitivity_peak: float | None = None
     system_type: int | None = None
     max_gain: float | None = None
+    min_crossover: float | None = None
+    max_crossover: float | None = None
+    min_bandwidth: float | None = None
+    poles: str = "dominant"
     overrides: tuple[SpecOverride, ...] = ()
 
 
@@ -326,7 +334,8 @@ class Schedule:
             ``max_settling_time``, ``min_natural_frequency``,
             ``max_natural_frequency``, ``max_pole_radius``,
             ``min_gain_margin``, ``min_phase_margin``, ``min_delay_margin``,
-            ``max_sensitivity_peak``, ``system_type``, ``max_gain``.  NaN
+            ``max_sensitivity_peak``, ``system_type``, ``max_gain``,
+            ``min_crossover``, ``max_crossover``, ``min_bandwidth``.  NaN
             where a spec is not required.
         """
         from ..errors import InputError

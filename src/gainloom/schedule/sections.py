@@ -221,15 +221,37 @@ SPEC_KEYS: dict[str, Callable[[Node], Any]] = {
     "max_sensitivity_peak": lambda n: _in_range(n, "max_sensitivity_peak", 1.0, float("inf"), open_high=True),
     "system_type": _read_system_type,
     "max_gain": lambda n: _positive(n, "max_gain"),
+    "min_crossover": lambda n: _positive(n, "min_crossover (rad/s)"),
+    "max_crossover": lambda n: _positive(n, "max_crossover (rad/s)"),
+    "min_bandwidth": lambda n: _positive(n, "min_bandwidth (rad/s)"),
 }
+
+#: Keys of the ``specs`` section besides the spec values: ``poles`` (which
+#: closed-loop poles the pole-region specs judge) and ``overrides``.
+SPEC_SECTION_KEYS: tuple[str, ...] = ("poles", "overrides")
+
+
+def _check_crossover_band(values: dict[str, Any], keys: dict[str, Node]) -> None:
+    """Refuse ``min_crossover > max_crossover`` written in the same mapping (located at ``max_crossover``)."""
+    low, high = values.get("min_crossover"), values.get("max_crossover")
+    if low is not None and high is not None and low > high:
+        raise keys["max_crossover"].error(
+            f"min_crossover ({low:g} rad/s) is above max_crossover ({high:g} rad/s): no loop can meet both"
+        )
 
 
 def read_specs(node: Node | None, axis_names: tuple[str, ...]) -> SpecSection:
     """Read the optional ``specs`` section; overrides name scheduling variables."""
     if node is None or node.is_null:
         return SpecSection()
-    keys = node.mapping(tuple(SPEC_KEYS) + ("overrides",))
-    values = {key: None if child.is_null else SPEC_KEYS[key](child) for key, child in keys.items() if key != "overrides"}
+    keys = node.mapping(tuple(SPEC_KEYS) + SPEC_SECTION_KEYS)
+    values: dict[str, Any] = {
+        key: None if child.is_null else SPEC_KEYS[key](child)
+        for key, child in keys.items() if key not in SPEC_SECTION_KEYS
+    }
+    _check_crossover_band(values, keys)
+    if "poles" in keys:
+        values["poles"] = keys["poles"].choice("pole selection", names.POLE_SELECTIONS)
     overrides: list[SpecOverride] = []
     if "overrides" in keys:
         for item in keys["overrides"].sequence():
@@ -242,6 +264,7 @@ def read_specs(node: Node | None, axis_names: tuple[str, ...]) -> SpecSection:
             settings = entry["set"].mapping(tuple(SPEC_KEYS))
             if not settings:
                 raise entry["set"].error("set names no spec")
+            _check_crossover_band({k: None if v.is_null else SPEC_KEYS[k](v) for k, v in settings.items()}, settings)
             overrides.append(
                 SpecOverride(
                     where=where,

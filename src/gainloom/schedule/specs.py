@@ -24,6 +24,9 @@ SPEC_VALUE_KEYS: tuple[str, ...] = (
     "max_sensitivity_peak",
     "system_type",
     "max_gain",
+    "min_crossover",
+    "max_crossover",
+    "min_bandwidth",
 )
 
 
@@ -70,7 +73,7 @@ def resolve_specs(specs: SpecSection, axis_names: tuple[str, ...], points: np.nd
     base = _flat({key: getattr(specs, key) for key in (
         "min_damping", "max_overshoot", "max_settling_time", "natural_frequency", "max_pole_radius",
         "min_gain_margin", "min_phase_margin", "min_delay_margin", "max_sensitivity_peak", "system_type",
-        "max_gain",
+        "max_gain", "min_crossover", "max_crossover", "min_bandwidth",
     )})
     values = {key: np.full(count, base[key]) for key in SPEC_VALUE_KEYS}
     for override in specs.overrides:
