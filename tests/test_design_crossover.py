@@ -17,6 +17,9 @@ import pytest
 import scipy.signal
 
 import gainloom
+from gainloom.design.crossover_job import MARGIN_BACKOFF
+
+BACKOFF_GM, BACKOFF_PM = MARGIN_BACKOFF
 
 RL = """
 name: rl-current
@@ -110,8 +113,8 @@ def test_max_crossover_pi_meets_margins_and_reaches_the_brute_force_crossover(tm
         # control.margin: the written margins hold
         assert 20 * math.log10(gm) >= 6 - 1e-6
         assert pm >= 45 - 1e-6
-        # the design aims at the backed-off specs (design/specs.py BACKOFF: +0.5 dB, +0.5 deg)
-        reference = brute_force_crossover(L, 0.5, TS, 45.5, 6.5)
+        # the design aims at the backed-off margins (design/crossover_job.py MARGIN_BACKOFF)
+        reference = brute_force_crossover(L, 0.5, TS, 45 + BACKOFF_PM, 6 + BACKOFF_GM)
         assert wp >= 0.95 * reference, (wp, reference)
         assert wp <= reference * 1.01  # the brute force is an upper bound up to its grid
 
@@ -255,8 +258,76 @@ def test_table_is_as_smooth_as_the_brute_force_reference(tmp_path):
     # issue 9 goal: each coefficient's largest relative step <= 1.5 x the reference's own + 0.05
     result = design(tmp_path, count=7)
     assert all(s == "pass" for s in result.status), result.notes
-    ref = [brute_force_crossover(2.0e-3 - 1.2e-3 * pt[0] / 30, 0.5, TS, 45.5, 6.5, table=True)[1] for pt in result.points]
+    ref = [brute_force_crossover(2.0e-3 - 1.2e-3 * pt[0] / 30, 0.5, TS, 45 + BACKOFF_PM, 6 + BACKOFF_GM, table=True)[1]
+           for pt in result.points]
     ours = largest_steps(result.analysis.coefficients["kp"], result.analysis.coefficients["ki_ts"])
     theirs = largest_steps(np.array([r[0] for r in ref]), np.array([r[1] for r in ref]))
     for mine, reference in zip(ours, theirs):
         assert mine <= 1.5 * reference + 0.05, (ours, theirs)
+
+
+SCALED = """
+name: scaled-rl
+variables:
+  - name: scale
+    unit: ""
+    values: [1, 2, 3]
+parameters:
+  L: "1.0e-3 * scale"
+  R: "0.4 * scale"
+plant:
+  transfer_function:
+    numerator: ["1"]
+    denominator: ["L", "R"]
+sampling:
+  period: 6.25e-5
+  method: zoh
+  delay: 1
+controller:
+  structure: pi
+  strategy: shape-sweep
+  objective: max-crossover
+  output_limits: [-27, 27]
+specs:
+  min_phase_margin: 45
+  min_gain_margin: 6
+"""
+
+
+def test_identical_normalised_problems_get_the_same_design(tmp_path):
+    # L and R scaled together: the same loop up to a gain, so the same PI zero and a gain
+    # in proportion (ZOH of 1/(L s + R) scales with 1/R exactly; closed form, from memory)
+    path = tmp_path / "s.yaml"
+    path.write_text(SCALED)
+    result = gainloom.design(path)
+    assert result.status == ("pass",) * 3
+    kp = np.asarray(result.analysis.coefficients["kp"])
+    ki_ts = np.asarray(result.analysis.coefficients["ki_ts"])
+    np.testing.assert_allclose(kp / (kp + ki_ts), kp[0] / (kp[0] + ki_ts[0]), rtol=1e-9)  # PI zero
+    np.testing.assert_allclose(kp / np.array([1, 2, 3]), kp[0], rtol=1e-9)
+
+
+@pytest.mark.parametrize(
+    ("extra", "more", "message"),
+    [
+        ("  sweep: {range: [0.9, 0.99], count: 5}", "", "searches the whole controller space"),
+        ("  target: {crossover: 0}", "", "target crossover"),
+        ("  target: {crossover: 100, damping: 0.7}", "", "not both"),
+    ],
+)
+def test_schedule_errors_are_located(tmp_path, extra, more, message):
+    path = tmp_path / "s.yaml"
+    objective = "nearest-target" if "target" in extra else "max-crossover"
+    path.write_text(RL.format(objective=objective, extra=extra, pm=45, gm=6, more=more, count=2))
+    with pytest.raises(gainloom.errors.ScheduleError) as caught:
+        gainloom.load_schedule(path)
+    assert message in str(caught.value) and "s.yaml" in str(caught.value)
+
+
+def test_worst_case_needs_a_crossover_objective(tmp_path):
+    path = tmp_path / "s.yaml"
+    text = RL.format(objective="fastest", extra="", pm=45, gm=6, count=2,
+                     more="tolerances:\n  parameters: {R: 0.2}\n  design: worst-case")
+    path.write_text(text)
+    with pytest.raises(gainloom.errors.DesignError, match="worst-case needs objective max-crossover"):
+        gainloom.design(path)

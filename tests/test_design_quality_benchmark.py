@@ -219,3 +219,14 @@ def test_main_prints_every_loop(quick_results, rule_results, capsys, monkeypatch
         assert f"{name} pi: 4 points" in out or f"{name} pi: 2 points" in out
     assert "all: min ratio" in out
     assert "current_rl modulus-optimum" in out and "boost_voltage: no published rule" in out
+
+
+def test_loop_files_load_as_written():
+    # the benchmark loops are plain schedule files a user could run with `gainloom design`
+    import gainloom
+
+    files = sorted(bench.LOOPS_DIR.glob("*.yaml"))
+    assert [f.stem for f in files] == sorted(bench.LOOPS)
+    for path in files:
+        sched = gainloom.load_schedule(path)
+        assert sched.controller.objective == "max-crossover", path.name

@@ -120,17 +120,19 @@ def _is_terminal(stream) -> bool:
         return False
 
 
-def summary_rows(labels, analysis, status, binding=None):
+def summary_rows(labels, analysis, status, binding=None, point_warnings=None):
     """Rows of the per-point summary table.
 
     ``zeta`` and ``wn`` are those of one pole: the least-damped judged pole
     (``PointAnalysis.damping_pole_s``); ``wc`` is the gain crossover and
-    ``wb`` the closed-loop bandwidth.
+    ``wb`` the closed-loop bandwidth; ``!n`` after the status marks a point
+    with n warnings (printed below the table).
     """
     rows = []
     names = list(analysis.physical)
     for p, label in enumerate(labels):
-        row = [label, status[p]]
+        count = len(point_warnings[p]) if point_warnings else 0
+        row = [label, status[p] + (f" !{count}" if count else "")]
         row += [float(analysis.physical[n][p]) for n in names]
         row += [
             float(analysis.damping[p]),
@@ -148,7 +150,7 @@ def summary_rows(labels, analysis, status, binding=None):
     return headers, rows
 
 
-def point_summaries(labels, analysis, status) -> list[dict]:
+def point_summaries(labels, analysis, status, point_warnings=None) -> list[dict]:
     """Per-point numbers of the ``--json`` output (the table's columns and the least-damped pole)."""
     out = []
     for p, label in enumerate(labels):
@@ -163,6 +165,7 @@ def point_summaries(labels, analysis, status) -> list[dict]:
             "phase_margin_deg": float(analysis.phase_margin[p]),
             "crossover_rad_s": float(analysis.crossover[p]),
             "bandwidth_rad_s": float(analysis.bandwidth[p]),
+            "warnings": list(point_warnings[p]) if point_warnings else [],
         })
     return out
 
@@ -238,7 +241,7 @@ def run(args: argparse.Namespace) -> int:
             "not_checked": list(job.not_checked),
             "status": list(result.status),
             "binding": list(result.binding),
-            "points": point_summaries(result.point_labels, result.analysis, result.status),
+            "points": point_summaries(result.point_labels, result.analysis, result.status, result.point_warnings),
             "notes": [list(n) for n in result.notes],
             "table_checks": result.table_report.as_document(),
             "c_check": None if job.harness is None else job.harness.summary(),
@@ -246,8 +249,12 @@ def run(args: argparse.Namespace) -> int:
             "warnings": list(result.warnings),
         })
     else:
-        headers, rows = summary_rows(result.point_labels, result.analysis, result.status, result.binding)
+        headers, rows = summary_rows(result.point_labels, result.analysis, result.status, result.binding,
+                                     result.point_warnings)
         print(format_table(headers, rows))
+        for p, texts in enumerate(result.point_warnings):
+            for text in texts:
+                print(f"{result.point_labels[p]}: warning: {text}")
         for p, notes in enumerate(result.notes):
             if result.status[p] == "fail":
                 for note in notes:

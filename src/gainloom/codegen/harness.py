@@ -277,6 +277,38 @@ def _step_inputs(layout: TableLayout, rng: np.random.Generator, steps: int) -> t
     return inputs, errors
 
 
+def _step_extras(layout: TableLayout, rng: np.random.Generator, steps: int) -> tuple[np.ndarray, ...]:
+    """Feedforward and run-time limits per step: none at first, then a ripple
+    and sustained feedforward on both sides (also while the output saturates),
+    run-time limits narrower than the table's that move like a bus-voltage
+    ripple, a few invalid pairs (low > high, NaN: the table's limits apply)
+    and, in fixed point, the format's extreme codes."""
+    k = np.arange(steps)
+    segment = steps // 10
+    fixed = layout.fmt.is_fixed
+    full = float(layout.fmt.q_max) if fixed else max(abs(float(v)) for v in layout.limits)
+    feed = 0.4 * full * np.sin(2 * np.pi * k / 151.0)
+    feed[:segment] = 0.0
+    feed[5 * segment : 6 * segment] = 0.9 * full
+    feed[8 * segment : 9 * segment] = -0.9 * full
+    use = np.zeros(steps, dtype=bool)
+    use[2 * segment : 4 * segment] = True
+    use[6 * segment : 8 * segment] = True
+    ripple = 1.0 + 0.2 * np.sin(2 * np.pi * k / 89.0)
+    low, high = -0.3 * full * ripple, 0.5 * full * ripple
+    low[2 * segment + 5 : 2 * segment + 8] = high[2 * segment + 5 : 2 * segment + 8] + 0.01 * full  # low > high
+    if fixed:
+        codes = [np.clip(np.round(v), layout.fmt.q_min, layout.fmt.q_max).astype(np.int64) for v in (feed, low, high)]
+        feed, low, high = codes
+        low[7 * segment : 7 * segment + 40], high[7 * segment : 7 * segment + 40] = layout.fmt.q_min, layout.fmt.q_max
+        feed[7 * segment + 40 : 7 * segment + 43] = layout.fmt.q_min
+        return feed, use, low, high
+    feed, low, high = (v.astype(np.float32) for v in (feed, low, high))
+    feed[[7 * segment, 7 * segment + 1]] = (np.nan, np.inf)  # non-finite feedforward counts as 0
+    low[6 * segment + 3] = np.nan  # a NaN limit: the table's limits apply
+    return feed, use, low, high
+
+
 def c_literals(values: np.ndarray, fixed: bool) -> list[str]:
     """C literals of input vectors (exact: integers, or float32 in hex-float form)."""
     if fixed:
@@ -397,6 +429,9 @@ class HarnessProgram:
         Scheduling inputs per axis of the lookups and of the steps.
     errors : ndarray
         Error sample of each step.
+    feedforward, use_limits, low, high : ndarray
+        Feedforward per step; where ``use_limits`` the run-time limits
+        ``(low, high)`` are passed (else NULL).
     clear_at : int
         Step before which the state is cleared again.
     """
@@ -407,6 +442,10 @@ class HarnessProgram:
     step_inputs: tuple[np.ndarray, ...]
     errors: np.ndarray
     clear_at: int
+    feedforward: np.ndarray
+    use_limits: np.ndarray
+    low: np.ndarray
+    high: np.ndarray
 
     @property
     def steps(self) -> int:
@@ -430,6 +469,7 @@ def harness_program(
     rng = np.random.default_rng(seed)
     point_inputs = _point_inputs(layout, rng, points)
     step_inputs, errors = _step_inputs(layout, rng, steps)
+    feedforward, use_limits, low, high = _step_extras(layout, rng, steps)
     clear_at = steps // 2
     context = template_context(layout, generated.prefix, "0" * 64, {"harness": "host"})
     context.update(
@@ -439,9 +479,14 @@ def harness_program(
         point_inputs=[c_literals(v, fixed) for v in point_inputs],
         step_inputs=[c_literals(v, fixed) for v in step_inputs],
         step_errors=c_literals(errors, fixed),
+        step_feedforward=c_literals(feedforward, fixed),
+        step_use_limits=[f"{int(v)}u" for v in use_limits],
+        step_low=c_literals(low, fixed),
+        step_high=c_literals(high, fixed),
     )
     source = render_template("harness.c.j2", context)
-    return HarnessProgram(layout, source, tuple(point_inputs), tuple(step_inputs), errors, clear_at)
+    return HarnessProgram(layout, source, tuple(point_inputs), tuple(step_inputs), errors, clear_at,
+                          feedforward, use_limits, low, high)
 
 
 @dataclass(frozen=True)
@@ -465,8 +510,11 @@ def _mirror_outputs(program: HarnessProgram) -> tuple[np.ndarray, np.ndarray]:
     layout, clear_at = program.layout, program.clear_at
     mirror_gains = lookup_gains(layout, *program.point_inputs)
     step_gains = lookup_gains(layout, *program.step_inputs)
-    first = run_steps(layout, {n: v[:clear_at] for n, v in step_gains.items()}, program.errors[:clear_at])
-    second = run_steps(layout, {n: v[clear_at:] for n, v in step_gains.items()}, program.errors[clear_at:])
+    extras = (program.use_limits, program.low, program.high)
+    first = run_steps(layout, {n: v[:clear_at] for n, v in step_gains.items()}, program.errors[:clear_at],
+                      program.feedforward[:clear_at], tuple(v[:clear_at] for v in extras))
+    second = run_steps(layout, {n: v[clear_at:] for n, v in step_gains.items()}, program.errors[clear_at:],
+                       program.feedforward[clear_at:], tuple(v[clear_at:] for v in extras))
     fields = state_fields(layout.structure)
     mirror_steps = np.column_stack(
         [np.concatenate([first.output, second.output])]

@@ -178,7 +178,9 @@ class StepTrace:
     states: dict[str, np.ndarray]
 
 
-def run_steps(layout: TableLayout, gains: dict[str, np.ndarray], errors) -> StepTrace:
+def run_steps(
+    layout: TableLayout, gains: dict[str, np.ndarray], errors, feedforward=None, limits=None
+) -> StepTrace:
     """Run the controller step from a cleared state, one step per error sample.
 
     Parameters
@@ -190,16 +192,30 @@ def run_steps(layout: TableLayout, gains: dict[str, np.ndarray], errors) -> Step
     errors : array_like
         Error input per step: Q15/Q31 integers or float32 (physical units;
         non-finite samples count as 0).
+    feedforward : array_like, optional
+        Feedforward per step, in the output's format (default 0).
+    limits : tuple of three array_like, optional
+        ``(use, low, high)`` per step: where ``use`` is true the run-time
+        limits ``(low, high)`` are passed (the C gets a pointer, else NULL).
 
     Returns
     -------
     StepTrace
     """
-    if layout.fmt.is_fixed:
-        return _run(FixedStepper(layout, gains), np.asarray(errors, dtype=np.int64), np.int64)
+    fixed = layout.fmt.is_fixed
+    dtype = np.int64 if fixed else np.float32
+    errors = np.asarray(errors, dtype=dtype)
+    feed = np.zeros(errors.shape, dtype=dtype) if feedforward is None else np.asarray(feedforward, dtype=dtype)
+    if limits is None:
+        use, low, high = np.zeros(errors.shape, dtype=bool), feed, feed
+    else:
+        use, low, high = (np.asarray(limits[0], dtype=bool), np.asarray(limits[1], dtype=dtype),
+                          np.asarray(limits[2], dtype=dtype))
+    if fixed:
+        return _run(FixedStepper(layout, gains), errors, feed, use, low, high, np.int64)
     stepper = FloatStepper(layout.structure, gains, layout.limits, np.float32)
     with np.errstate(all="ignore"):  # overflow to inf is float32 behaviour the C shares
-        return _run(stepper, np.asarray(errors, dtype=np.float32), np.float32)
+        return _run(stepper, errors, feed, use, low, high, np.float32)
 
 
 def output_code(layout: TableLayout, u: int) -> int:
@@ -234,18 +250,27 @@ class FloatStepper:
         self.zero = dtype(0)
         self.state = dict.fromkeys(self.fields, self.zero)
 
-    def step(self, k: int, error):
-        """One step on the error ``e[k]`` (in ``dtype``); returns ``(u, u_unsaturated)``."""
+    def step(self, k: int, error, feedforward=None, limits=None):
+        """One step on the error ``e[k]`` (in ``dtype``); returns ``(u, u_unsaturated)``.
+
+        ``feedforward`` (default 0) is added before saturation; ``limits``
+        ``(low, high)`` replace the table's for this step when ``low <= high``
+        (as the C's optional run-time limits; ``None``: the table's).
+        """
         g, state, structure, zero = self.g, self.state, self.structure, self.zero
         e = error if np.isfinite(error) else zero
+        f = zero if feedforward is None or not np.isfinite(feedforward) else self.dtype(feedforward)
+        u_min, u_max = self.u_min, self.u_max
+        if limits is not None and limits[0] <= limits[1]:
+            u_min, u_max = self.dtype(limits[0]), self.dtype(limits[1])
         if structure in ("lead", "lag"):
             state["v"] = g["pc"][k] * state["v"] + g["kc"][k] * (e - g["zc"][k] * state["e1"])
-            u = state["v"]
+            u = state["v"] + f
         elif structure == "leadlag":
             v1 = g["pc1"][k] * state["v1"] + g["kc"][k] * (e - g["zc1"][k] * state["e1"])
             state["v2"] = g["pc2"][k] * state["v2"] + (v1 - g["zc2"][k] * state["v1"])
             state["v1"] = v1
-            u = state["v2"]
+            u = state["v2"] + f
         else:
             proportional = g["kp"][k] * e
             if "d" in self.fields:
@@ -256,19 +281,21 @@ class FloatStepper:
                 trial = proportional + candidate
                 if "d" in self.fields:
                     trial = trial + state["d"]
-                if not ((trial > self.u_max and increment > zero) or (trial < self.u_min and increment < zero)):
+                trial = trial + f
+                if not ((trial > u_max and increment > zero) or (trial < u_min and increment < zero)):
                     state["x"] = candidate
                 u = proportional + state["x"]
             else:
                 u = proportional
             if "d" in self.fields:
                 u = u + state["d"]
+            u = u + f
         state["e1"] = e
         unsaturated = u
-        if u > self.u_max:
-            u = self.u_max
-        elif u < self.u_min:
-            u = self.u_min
+        if u > u_max:
+            u = u_max
+        elif u < u_min:
+            u = u_min
         return self.dtype(u), self.dtype(unsaturated)
 
 
@@ -296,23 +323,34 @@ class FixedStepper:
     def _mul(self, name: str, k: int, signal: int) -> int:
         return mul_frac(self.g[name][k], signal, self.frac[name], 32)
 
-    def step(self, k: int, error: int):
-        """One step on the error integer; returns ``(output code, internal u before the clamp)``."""
-        state, structure, mul = self.state, self.structure, self._mul
+    def _to_state(self, code: int) -> int:
         shift = self.to_state_shift
-        error = int(error)
-        es = error * (1 << -shift) if shift < 0 else rshift_round(error, shift)
+        return int(code) * (1 << -shift) if shift < 0 else rshift_round(int(code), shift)
+
+    def step(self, k: int, error: int, feedforward: int = 0, limits: tuple[int, int] | None = None):
+        """One step on the error integer; returns ``(output code, internal u before the clamp)``.
+
+        ``feedforward`` and ``limits`` ``(low, high)`` are output codes (Q15/Q31
+        of output full scale), as the C's feedforward and run-time limits;
+        the limits apply when ``low <= high``.
+        """
+        state, structure, mul = self.state, self.structure, self._mul
+        es = self._to_state(error)
+        fs = self._to_state(feedforward)
+        u_min, u_max = self.u_min, self.u_max
+        if limits is not None and int(limits[0]) <= int(limits[1]):
+            u_min, u_max = self._to_state(limits[0]), self._to_state(limits[1])
         if structure in ("lead", "lag"):
             w = saturate(es - mul("zc", k, state["e1"]), 32)
             state["v"] = saturate(mul("pc", k, state["v"]) + mul("kc", k, w), 32)
-            u = state["v"]
+            u = saturate(state["v"] + fs, 32)
         elif structure == "leadlag":
             w1 = saturate(es - mul("zc1", k, state["e1"]), 32)
             v1 = saturate(mul("pc1", k, state["v1"]) + mul("kc", k, w1), 32)
             w2 = saturate(v1 - mul("zc2", k, state["v1"]), 32)
             state["v2"] = saturate(mul("pc2", k, state["v2"]) + w2, 32)
             state["v1"] = v1
-            u = state["v2"]
+            u = saturate(state["v2"] + fs, 32)
         else:
             proportional = mul("kp", k, es)
             derivative = 0
@@ -322,21 +360,21 @@ class FixedStepper:
             if "x" in self.fields:
                 increment = mul("ki_ts", k, es)
                 candidate = saturate(state["x"] + increment, 32)
-                trial = saturate(proportional + candidate + derivative, 32)
-                if not ((trial > self.u_max and increment > 0) or (trial < self.u_min and increment < 0)):
+                trial = saturate(proportional + candidate + derivative + fs, 32)
+                if not ((trial > u_max and increment > 0) or (trial < u_min and increment < 0)):
                     state["x"] = candidate
-                u = saturate(proportional + state["x"] + derivative, 32)
+                u = saturate(proportional + state["x"] + derivative + fs, 32)
             else:
-                u = saturate(proportional + derivative, 32)
+                u = saturate(proportional + derivative + fs, 32)
         state["e1"] = es
-        return output_code(self.layout, min(max(u, self.u_min), self.u_max)), u
+        return output_code(self.layout, min(max(u, u_min), u_max)), u
 
 
-def _run(stepper, errors: np.ndarray, dtype) -> StepTrace:
+def _run(stepper, errors, feed, use, low, high, dtype) -> StepTrace:
     outputs = []
     history = {name: [] for name in stepper.fields}
     for k, error in enumerate(errors):
-        outputs.append(stepper.step(k, error)[0])
+        outputs.append(stepper.step(k, error, feed[k], (low[k], high[k]) if use[k] else None)[0])
         for name in stepper.fields:
             history[name].append(stepper.state[name])
     return StepTrace(np.array(outputs, dtype=dtype), {name: np.array(v, dtype=dtype) for name, v in history.items()})

@@ -276,6 +276,8 @@ def _context(
         "coefficients": coefficients,
         "columns": columns,
         "limits": limits,
+        "table_low": f"{upper}_U_MIN",
+        "table_high": f"{upper}_U_MAX",
         "limits_physical": [repr(float(v)) for v in layout.table.output_limits],
         "error_full_scale": repr(layout.error_full_scale) if fmt.is_fixed else "",
         "output_full_scale": repr(layout.output_full_scale) if fmt.is_fixed else "",

@@ -61,7 +61,8 @@ import numpy as np
 from ..lti import gain_sets as gs
 from ..lti.loop import Loop
 from ..lti.polynomials import batched_roots
-from .search import Shapes, exact_feasible, shape_loops
+from ..lti.closed_loop import closed_loop_poles
+from .search import Shapes, exact_feasible, region_ok, shape_loops
 from .specs import SpecLimits
 from .strategies import LEAD_RATIO, _pack
 from .structures import filter_pole
@@ -71,6 +72,9 @@ __all__ = ["CrossoverChoice", "crossover_design", "INTEGRAL_COST", "shape_space"
 #: Crossover given up for integral action in pi and pid designs (relative).
 #: Our choice (no source), see docs/design.md.
 INTEGRAL_COST = 0.03
+#: Hard floor besides: the slowest zero of pi/pid is at least
+#: crossover / INTEGRAL_SPAN (two decades; our choice, no source).
+INTEGRAL_SPAN = 100.0
 #: Coarse grid points per shape parameter (one- and two-parameter shapes).
 GRID_1D = 48
 GRID_2D = 16
@@ -157,6 +161,13 @@ def _coarse(structure: str, low: np.ndarray, high: np.ndarray) -> np.ndarray:
     return np.stack([axis[:, i], axis[:, j]], axis=-1)
 
 
+def _integral_cap(structure: str, log_rates: np.ndarray) -> np.ndarray:
+    """Highest crossover (rad/s) the integral floor allows each shape (P, S); inf without integrator."""
+    if structure not in ("pi", "pid"):
+        return np.full(log_rates.shape[:2], np.inf)
+    return INTEGRAL_SPAN * np.exp(np.min(log_rates, axis=-1))
+
+
 def _shapes(structure: str, log_rates: np.ndarray, ts: np.ndarray, kd_a: np.ndarray) -> Shapes:
     """Shapes from log rates (P, S, d)."""
     P, S = log_rates.shape[:2]
@@ -196,7 +207,7 @@ def _spec(limits: SpecLimits, name: str) -> np.ndarray:
     return np.full(limits.points, np.nan) if value is None else np.asarray(value, float)
 
 
-def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, rows_p: np.ndarray, flat_rows: np.ndarray):
+def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, cap: np.ndarray, rows_p: np.ndarray, flat_rows: np.ndarray):
     """Feasible gain sets of the flattened shape rows ``flat_rows`` on one plant; and their response grids."""
     P, S = shapes.valid.shape
     zeros = shapes.zeros.reshape((P * S,) + shapes.zeros.shape[2:])[flat_rows]
@@ -206,7 +217,8 @@ def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, rows_p: np.ndarray, f
     lim = ctx.limits
     sets = exact_feasible(loops, lim, points)
     grid = gs.response_grid(loops, ctx.w_low[points])
-    low, high = _spec(lim, "min_crossover")[points], _spec(lim, "max_crossover")[points]
+    low = _spec(lim, "min_crossover")[points]
+    high = np.fmin(_spec(lim, "max_crossover")[points], cap.reshape(-1)[flat_rows])
     if ctx.band is not None:
         low, high = np.fmax(low, ctx.band[0][points]), np.fmin(high, ctx.band[1][points])
     parts = [gs.crossover_band_gains(grid, low, high)]
@@ -220,6 +232,27 @@ def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, rows_p: np.ndarray, f
     if np.any(np.isfinite(bandwidth)):
         parts.append(gs.bandwidth_gains(loops, bandwidth, grid))
     return gs.intersect_all(sets, *parts), grid
+
+
+def _sampled_region_ok(ctx: _Context, loops: list[Loop], gains: np.ndarray, points: np.ndarray) -> np.ndarray:
+    """Pole-region specs the exact sets leave out, judged at the candidate gains (R, C).
+
+    The natural-frequency band of the dominant pole, and under
+    ``poles: dominant`` the damping (:func:`gainloom.design.search.region_ok`),
+    on every plant (nominal and tolerance corners).
+    """
+    lim = ctx.limits
+    names = ["min_natural_frequency", "max_natural_frequency"]
+    if getattr(lim, "poles", "all") != "all":
+        names.append("min_damping")
+    if not any(np.any(np.isfinite(getattr(lim, n)[points])) for n in names):
+        return np.ones(gains.shape, dtype=bool)
+    safe = np.nan_to_num(gains, nan=1.0)
+    ok = np.ones(gains.shape, dtype=bool)
+    for loop in loops:
+        region, _ = region_ok(closed_loop_poles(loop, safe), np.asarray(loop.ts, float), lim, points)
+        ok &= region
+    return ok
 
 
 def _candidates(sets: list, grid: gs.ResponseGrid, target: np.ndarray) -> np.ndarray:
@@ -267,6 +300,7 @@ def _evaluate(ctx: _Context, log_rates: np.ndarray):
     P, S = log_rates.shape[:2]
     ts = np.asarray(ctx.plants[0].ts, float)
     shapes = _shapes(ctx.structure, log_rates, ts, ctx.kd_a)
+    cap = _integral_cap(ctx.structure, log_rates)
     rows_p = np.repeat(np.arange(P), S)
     flat = np.flatnonzero(shapes.valid.reshape(-1))
     sets_all: list = [[] for _ in range(P * S)]
@@ -274,14 +308,16 @@ def _evaluate(ctx: _Context, log_rates: np.ndarray):
     gain = np.full(P * S, np.nan)
     crossover = np.full(P * S, np.nan)
     if flat.size:
-        sets, grid = _gain_sets(ctx, ctx.plants[0], shapes, rows_p, flat)
+        sets, grid = _gain_sets(ctx, ctx.plants[0], shapes, cap, rows_p, flat)
+        loops = [grid.loop]
         for plant in ctx.plants[1:]:
-            corner, _ = _gain_sets(ctx, plant, shapes, rows_p, flat)
+            corner, corner_grid = _gain_sets(ctx, plant, shapes, cap, rows_p, flat)
             sets = gs.intersect_all(sets, corner)
+            loops.append(corner_grid.loop)
         points = rows_p[flat]
         cands = _candidates(sets, grid, ctx.target[points])
         wc = gs.crossover_at(grid, np.nan_to_num(cands, nan=1.0))
-        value = np.where(np.isfinite(cands), _score(ctx, wc, points), -np.inf)
+        value = np.where(np.isfinite(cands) & _sampled_region_ok(ctx, loops, cands, points), _score(ctx, wc, points), -np.inf)
         best = np.argmax(value, axis=1)
         rows = np.arange(flat.size)
         score[flat] = value[rows, best]

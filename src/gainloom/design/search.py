@@ -277,6 +277,11 @@ def _exact_group(loop: Loop, limits: SpecLimits, points: np.ndarray) -> list[lis
     spec = [None] * loop.points
     for (zeta, decay, radius), rows in _region_groups(limits, points, ts).items():
         rows = np.asarray(rows)
+        if zeta == 0.0 and decay == 0.0 and radius >= 1.0 and np.all(gm_needed[rows]):
+            # no region spec: the region is the stable set, already solved for the gain margin
+            for row in rows:
+                spec[row] = [(iv.low, iv.high) for iv in stable[row]]
+            continue
         region = SpecRegion(min_damping=zeta, min_decay=decay, max_pole_radius=None if radius >= 1 else radius)
         sub = loop.select(rows)
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):

@@ -11,7 +11,7 @@ response ``H(e^{j w ts})`` on a dense grid ``0 < w <= pi/ts``:
   crossover frequency itself are functions of ``w`` alone, and a spec on them
   rules out the gains ``k(w)`` of every frequency where it fails.  Each run of
   failing grid frequencies rules out the gain interval it spans (its ends
-  interpolated linearly in ``log w``).  The spec is asked of *every*
+  found by bisection on the response).  The spec is asked of *every*
   crossover, which implies it for the one :func:`~gainloom.lti.margins.loop_margins`
   reports.
 * ``|1 + K H(w)| < 1/Ms`` is a quadratic inequality in ``K`` at each ``w``;
@@ -24,9 +24,9 @@ response ``H(e^{j w ts})`` on a dense grid ``0 < w <= pi/ts``:
 The result for each row is a sorted list of open intervals ``(low, high)`` of
 gains that meet the spec (``high`` may be ``inf``).  Gain margin and pole
 regions are not here: :mod:`gainloom.lti.intervals` gives them exactly.
-The grid spacing bounds the error of the interval ends (second order in the
-spacing where the interpolation applies); callers re-check their choice with
-:func:`~gainloom.lti.margins.loop_margins`.
+Run edges are exact to the bisection; a feature narrower than the grid
+spacing (80 frequencies per decade) can still be missed, so callers re-check
+their choice with :func:`~gainloom.lti.margins.loop_margins`.
 """
 
 from __future__ import annotations
@@ -55,6 +55,8 @@ Intervals = list[tuple[float, float]]
 
 #: Grid frequencies per decade of the response (3 % spacing).
 PER_DECADE = 80
+#: Bisection steps on each run edge (to ~1e-9 of the grid spacing).
+EDGE_BISECTIONS = 30
 
 
 class ResponseGrid:
@@ -72,7 +74,8 @@ class ResponseGrid:
         ``-log|H(1)|`` (``-inf`` for a loop with an integrator).
     """
 
-    def __init__(self, w: np.ndarray, h: np.ndarray, h0: np.ndarray):
+    def __init__(self, loop: Loop, w: np.ndarray, h: np.ndarray, h0: np.ndarray):
+        self.loop = loop
         self.w = w
         self.h = h
         with np.errstate(divide="ignore"):
@@ -105,7 +108,7 @@ def response_grid(loop: Loop, low: np.ndarray) -> ResponseGrid:
         n0, d0 = frequency_response(loop, np.zeros((loop.points, 1)))
         h0 = n0[:, 0] / d0[:, 0]
     h0 = np.where(np.isfinite(h0), h0, np.inf)
-    return ResponseGrid(w, h, h0)
+    return ResponseGrid(loop, w, h, h0)
 
 
 def _runs_to_gains(bad: np.ndarray, low: np.ndarray, high: np.ndarray, first_extra: np.ndarray) -> list[Intervals]:
@@ -151,19 +154,51 @@ def _complement(bad: list[tuple[float, float]]) -> Intervals:
     return good
 
 
-def _crossing_gains(grid: ResponseGrid, slack: np.ndarray) -> list[Intervals]:
-    """Gains whose every crossover has ``slack(w) >= 0`` (per-frequency, K-free)."""
-    slack = np.where(np.isnan(slack), -1.0, np.clip(slack, -1e300, 1e300))
+def _slack_values(slack_fn, h: np.ndarray, w: np.ndarray, rows: np.ndarray | None) -> np.ndarray:
+    """``slack_fn(h, w, rows)`` with NaN counted as failing; rows None: the whole grid."""
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        slack = slack_fn(h, w, rows)
+    return np.where(np.isnan(slack), -1.0, np.clip(slack, -1e300, 1e300))
+
+
+def _edge_gains(grid: ResponseGrid, slack_fn, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+    """Log gain at the frequency where the slack changes sign between grid columns j and j + 1.
+
+    Vectorised bisection in ``log w`` on the loop's own response (a linear
+    interpolation would be off by degrees across a lightly damped resonance).
+    """
+    a = np.log(grid.w[rows, cols])
+    b = np.log(grid.w[rows, cols + 1])
+    sub = grid.loop.select(rows)
+    sign_a = np.signbit(_slack_values(slack_fn, grid.h[rows, cols], grid.w[rows, cols], rows))
+    for _ in range(EDGE_BISECTIONS):
+        mid = 0.5 * (a + b)
+        w = np.exp(mid)[:, None]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            num, den = frequency_response(sub, w)
+        same = np.signbit(_slack_values(slack_fn, (num / den)[:, 0], w[:, 0], rows)) == sign_a
+        a = np.where(same, mid, a)
+        b = np.where(same, b, mid)
+    w = np.exp(0.5 * (a + b))[:, None]
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        num, den = frequency_response(sub, w)
+        return -np.log(np.abs(num / den))[:, 0]
+
+
+def _crossing_gains(grid: ResponseGrid, slack_fn) -> list[Intervals]:
+    """Gains whose every crossover has ``slack_fn(H(w), w, rows) >= 0`` (per-frequency, K-free)."""
+    slack = _slack_values(slack_fn, grid.h, grid.w, None)
     log_k = np.where(np.isfinite(grid.log_k), grid.log_k, np.inf)
     bad = slack < 0
     low = np.where(bad, log_k, np.inf)
     high = np.where(bad, log_k, -np.inf)
-    # interpolate the edge of each failing run between its grid neighbours
-    with np.errstate(divide="ignore", invalid="ignore"):
-        t = slack[:, :-1] / (slack[:, :-1] - slack[:, 1:])
-        edge = log_k[:, :-1] + t * (log_k[:, 1:] - log_k[:, :-1])
+    # the edge of each failing run between its grid neighbours, to the last bits
     change = bad[:, :-1] != bad[:, 1:]
-    edge = np.where(change & np.isfinite(edge), edge, np.nan)
+    edge = np.full(change.shape, np.nan)
+    rows, cols = np.nonzero(change)
+    if rows.size:
+        edge[rows, cols] = _edge_gains(grid, slack_fn, rows, cols)
+    edge = np.where(np.isfinite(edge), edge, np.nan)
     left = np.c_[edge, np.full(edge.shape[0], np.nan)]   # edge to the right of point j
     right = np.c_[np.full(edge.shape[0], np.nan), edge]  # edge to the left of point j
     for e in (left, right):
@@ -172,33 +207,42 @@ def _crossing_gains(grid: ResponseGrid, slack: np.ndarray) -> list[Intervals]:
     return _runs_to_gains(bad, low, high, grid.log_k0)
 
 
+def _phase_margin(h: np.ndarray) -> np.ndarray:
+    """``PM(w) = (arg H mod 360 deg) - 180 deg`` (the convention of lti.margins)."""
+    return np.remainder(np.angle(h, deg=True), 360.0) - 180.0
+
+
 def phase_margin_gains(grid: ResponseGrid, min_pm: np.ndarray) -> list[Intervals]:
     """Gains whose every gain crossover has ``PM >= min_pm`` (deg, per row; NaN: any)."""
-    pm = np.remainder(np.angle(grid.h, deg=True), 360.0) - 180.0
-    need = np.nan_to_num(np.asarray(min_pm, float), nan=-np.inf)[:, None]
-    return _crossing_gains(grid, pm - need)
+    need = np.nan_to_num(np.asarray(min_pm, float), nan=-np.inf)
+    return _crossing_gains(grid, lambda h, w, rows: _phase_margin(h) - _at(need, rows))
 
 
 def delay_margin_gains(grid: ResponseGrid, min_delay: np.ndarray) -> list[Intervals]:
     """Gains whose every gain crossover tolerates an extra delay ``>= min_delay`` (s)."""
-    pm = np.remainder(np.angle(grid.h, deg=True), 360.0) - 180.0
-    delay = np.deg2rad(np.remainder(pm, 360.0)) / grid.w
-    need = np.asarray(min_delay, float)[:, None]
-    # relative slack keeps the edge interpolation well scaled
-    with np.errstate(divide="ignore", invalid="ignore"):
-        slack = np.where(np.isfinite(need) & (need > 0), delay / need - 1.0, 1.0)
+    need = np.asarray(min_delay, float)
+
+    def slack(h, w, rows):
+        n = _at(need, rows)
+        delay = np.deg2rad(np.remainder(_phase_margin(h), 360.0)) / w
+        # relative slack keeps the bisection well scaled
+        return np.where(np.isfinite(n) & (n > 0), delay / np.where(n > 0, n, 1.0) - 1.0, 1.0)
+
     return _crossing_gains(grid, slack)
 
 
 def crossover_band_gains(grid: ResponseGrid, low: np.ndarray, high: np.ndarray) -> list[Intervals]:
     """Gains whose every gain crossover lies in ``[low, high]`` rad/s (NaN: unbounded)."""
-    log_w = np.log(grid.w)
     low, high = np.asarray(low, float), np.asarray(high, float)
     with np.errstate(divide="ignore"):
-        lo = np.where(np.isnan(low), -np.inf, np.log(np.where(np.isnan(low), 1.0, low)))[:, None]
-        hi = np.where(np.isnan(high), np.inf, np.log(np.where(np.isnan(high), 1.0, high)))[:, None]
-    slack = np.minimum(log_w - lo, hi - log_w)
-    return _crossing_gains(grid, slack)
+        lo = np.where(np.isnan(low), -np.inf, np.log(np.where(np.isnan(low), 1.0, low)))
+        hi = np.where(np.isnan(high), np.inf, np.log(np.where(np.isnan(high), 1.0, high)))
+    return _crossing_gains(grid, lambda h, w, rows: np.minimum(np.log(w) - _at(lo, rows), _at(hi, rows) - np.log(w)))
+
+
+def _at(values: np.ndarray, rows: np.ndarray | None) -> np.ndarray:
+    """Per-row spec values against the whole grid (rows None: shape (R, 1)) or edge rows."""
+    return values[:, None] if rows is None else values[rows]
 
 
 def sensitivity_gains(grid: ResponseGrid, max_ms: np.ndarray) -> list[Intervals]:

@@ -141,6 +141,7 @@ def _point_entries(sched, result, table) -> list[dict[str, Any]]:
     names = [a.name for a in table.axes]
     binding = getattr(result, "binding", (None,) * analysis.points)
     notes = getattr(result, "notes", ((),) * analysis.points)
+    point_warnings = getattr(result, "point_warnings", ()) or ((),) * analysis.points
     entries = []
     for p in range(analysis.points):
         entry = point_document(analysis, p)
@@ -153,6 +154,8 @@ def _point_entries(sched, result, table) -> list[dict[str, Any]]:
             "failed": failed,
             "binding": binding[p] if binding[p] is not None else (failed[0] if failed else None),
             "notes": list(notes[p]),
+            "warnings": list(point_warnings[p]),
+            "compromise": bool(hasattr(result, "point_warnings") and result.status[p] == "fail"),
             "sample_period_s": float(models.sample_period[p]),
             "delay_samples": float(delays[p]),
             "dead_time_s": float(dead_times[p]),

@@ -124,6 +124,10 @@ def _points(doc: dict[str, Any]) -> list[str]:
     rows = []
     for e in doc["points"]:
         status = "pass" if e["status"] == "pass" else f"FAIL ({e['binding']})"
+        if e.get("compromise"):
+            status += ", compromise"
+        if e.get("warnings"):
+            status += f" ⚠{len(e['warnings'])}"  # the Warnings section lists them
         rows.append([e["index"], e["label"], status, number(e["sample_period_s"]), number(e["delay_samples"])]
                     + [number(e["coefficients"][n], 6) for n in names]
                     + [number(e[k]) for k in ("damping", "natural_frequency", "pole_radius", "gain_margin_db",
@@ -132,7 +136,8 @@ def _points(doc: dict[str, Any]) -> list[str]:
                                               "overshoot_percent", "settling_time_s")])
     lines += _table(headers, rows)
     lines.append("Closed-loop poles in z and s of every point, physical gains and each spec's value, limit and "
-                 "pass: `points` in verification.json.")
+                 "pass: `points` in verification.json.  ζ and ωn are those of the least-damped judged pole; "
+                 "⚠n: n warnings on the point, listed under Warnings.")
     return lines + [""]
 
 
@@ -297,9 +302,10 @@ def _simulation(doc: dict[str, Any]) -> list[str]:
 
 def _warnings(doc: dict[str, Any]) -> list[str]:
     lines = ["## Warnings", ""]
-    if not doc["warnings"]:
+    per_point = [f"- {e['label']}: {w}" for e in doc["points"] for w in e.get("warnings", [])]
+    if not doc["warnings"] and not per_point:
         return lines + ["None.", ""]
-    return lines + [f"- {w}" for w in doc["warnings"]] + [""]
+    return lines + [f"- {w}" for w in doc["warnings"]] + per_point + [""]
 
 
 def _cautions(doc: dict[str, Any]) -> list[str]:

@@ -46,6 +46,8 @@ _POINT = _obj({
     "failed": {"list": STRING},
     "binding": (STRING, NULL),
     "notes": {"list": STRING},
+    "warnings": {"list": STRING},
+    "compromise": BOOL,
     "sample_period_s": NUMBER,
     "delay_samples": NUMBER,
     "dead_time_s": NUMBER,

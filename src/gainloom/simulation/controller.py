@@ -138,12 +138,23 @@ class TableController:
             return [state[name] * scale for name in self.fields]
         return [float(state[name]) for name in self.fields]
 
-    def step(self, k: int, reference: float, measured: float) -> tuple[float, float]:
+    def step(
+        self,
+        k: int,
+        reference: float,
+        measured: float,
+        feedforward: float = 0.0,
+        limits: tuple[float, float] | None = None,
+    ) -> tuple[float, float]:
         """One controller sample on ``r[k]`` and ``y[k]`` (output units).
 
         The error is formed as the firmware receives it: float formats hold
         ``r`` and ``y`` in their type and subtract there; fixed-point formats
         get ``r - y`` rounded (and saturated) to Q15/Q31 of error full scale.
+        ``feedforward`` (output units) is added before saturation and
+        ``limits`` ``(low, high)`` (output units) replace the table's for
+        this sample, as the generated step's feedforward and run-time limits;
+        in fixed point both are rounded to Q15/Q31 of output full scale.
 
         Returns
         -------
@@ -153,17 +164,21 @@ class TableController:
         if self.layout is None:
             error = np.float64(reference) - np.float64(measured)
             with np.errstate(over="ignore", invalid="ignore"):
-                u, v = self.stepper.step(k, error)
+                u, v = self.stepper.step(k, error, np.float64(feedforward), limits)
             return float(u), float(v)
         fmt = self.layout.fmt
         if not fmt.is_fixed:
             with np.errstate(over="ignore", invalid="ignore"):
                 # a diverging run passes float32's range before it is stopped
                 error = np.float32(reference) - np.float32(measured)
-                u, v = self.stepper.step(k, error)
+                u, v = self.stepper.step(k, error, np.float32(feedforward), limits)
             return float(u), float(v)
         code = int(quantize((reference - measured) / self.layout.error_full_scale, fmt.signal_frac, fmt.bits))
-        out, internal = self.stepper.step(k, code)
+        out_codes = [
+            int(quantize(value / self.layout.output_full_scale, fmt.signal_frac, fmt.bits))
+            for value in (feedforward, *(limits or ()))
+        ]
+        out, internal = self.stepper.step(k, code, out_codes[0], tuple(out_codes[1:]) if limits else None)
         output = float(dequantize(out, fmt.signal_frac)) * self.layout.output_full_scale
         unsaturated = float(dequantize(internal, STATE_FRAC)) * self.layout.output_full_scale
         return output, unsaturated
