@@ -177,7 +177,7 @@ def test_a_read_only_folder_is_one_line(tmp_path, gains, capsys, monkeypatch):
 
 
 def test_too_long_output_file_name_is_refused(tmp_path):
-    with pytest.raises(Exception, match="longer than 255 bytes"):
+    with pytest.raises(outputs.InputError, match="longer than 255 bytes"):
         write_outputs(tmp_path, {"g" * 256 + ".yaml": "x"})
 
 
