@@ -80,7 +80,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument("--no-simulate", action="store_true", help="skip the default scheduled simulation")
     parser.add_argument(
-        "--no-compile", action="store_true", help="skip compiling and checking the C (reported as not checked)"
+        "--no-compile",
+        action="store_true",
+        help="skip compiling and checking the C, on the host and the targets (reported as not checked)",
+    )
+    parser.add_argument(
+        "--no-target",
+        action="store_true",
+        help="skip building the C for the target cores, the emulated runs and the coding-rule check "
+        "(reported as not checked)",
     )
     parser.add_argument("--json", action="store_true", help="print the summary as JSON instead of a table")
     parser.add_argument("--quiet", action="store_true", help="no progress display on stderr")
@@ -223,6 +231,7 @@ def run(args: argparse.Namespace) -> int:
         prefix=args.prefix,
         force=args.force,
         compile=not args.no_compile,
+        target=not args.no_target,
         simulate=not args.no_simulate,
         progress=Counter(enabled=not args.quiet),
         gains_name=args.gains_name,

@@ -62,6 +62,9 @@ def _summary(doc: dict[str, Any]) -> list[str]:
             ["design at every grid point and whole-table checks", _verdict_word(verdict["design"])],
             ["rounding to the number format breaks no spec that held", _verdict_word(verdict["quantisation"])],
             ["generated C (compile + host harness)", _verdict_word(verdict["c_check"])],
+            ["generated C on the target cores (cross-build, helpers, emulated run)",
+             _verdict_word(verdict.get("target"))],
+            ["coding rules (cppcheck, MISRA C:2012 with deviation records)", _verdict_word(verdict.get("c_rules"))],
             ["time-domain simulation", _verdict_word(verdict["simulation"])],
         ],
     )
@@ -324,7 +327,9 @@ def _plots(doc: dict[str, Any]) -> list[str]:
 def render_markdown(doc: dict[str, Any]) -> str:
     """The reviewer's log from the plain verification document."""
     lines: list[str] = []
-    for part in (_summary, _points, _worst, _table_checks, _quantisation, _c_check, _simulation,
+    from .markdown_target import target_section  # it uses this module's table writer
+
+    for part in (_summary, _points, _worst, _table_checks, _quantisation, _c_check, target_section, _simulation,
                  _warnings, _cautions, _inputs, _plots):
         lines += part(doc)
     text = "\n".join(line.rstrip() for line in lines).rstrip() + "\n"
