@@ -26,7 +26,7 @@ from .model import (
 )
 from .expressions import parse_expression
 from .nodes import Node
-from . import limits
+from .. import limits
 
 __all__ = [
     "read_controller",
