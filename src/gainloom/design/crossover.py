@@ -67,7 +67,7 @@ from .specs import SpecLimits
 from .strategies import LEAD_RATIO, _pack
 from .structures import filter_pole
 
-__all__ = ["CrossoverChoice", "crossover_design", "INTEGRAL_COST", "shape_space"]
+__all__ = ["CrossoverChoice", "crossover_design", "ranked_alternatives", "INTEGRAL_COST", "shape_space"]
 
 #: Crossover given up for integral action in pi and pid designs (relative).
 #: Our choice (no source), see docs/design.md.
@@ -461,3 +461,57 @@ def _search(ctx: _Context, low: np.ndarray, high: np.ndarray, neighbours: np.nda
     n = GRID_1D if d == 1 else GRID_2D
     x, value = _refine(ctx, x, score[np.arange(P), pick], ((high - low) / (n - 1))[:, None], relative)
     return x, np.isfinite(value)
+
+
+#: Fractions of each coarse shape's best gain offered as step-response fallbacks.
+STEP_FRACTIONS = (1.0, 0.8, 0.6, 0.4, 0.25)
+
+
+def ranked_alternatives(
+    plant: Loop,
+    structure: str,
+    limits: SpecLimits,
+    objective: str,
+    *,
+    target_crossover: float | None = None,
+    derivative_filter: float | None = None,
+    corners: tuple[Loop, ...] = (),
+) -> tuple[Shapes, np.ndarray]:
+    """Feasible (shape, gain) pairs of the coarse grid, best objective first.
+
+    For the step-response specs, which are not gain sets: each coarse shape's
+    best gain and ``STEP_FRACTIONS`` of it (inside its feasible set), ordered
+    by the objective (the crossover moves with the gain for one shape; the
+    score is scaled by the fraction for ``max-crossover``).
+
+    Returns
+    -------
+    (Shapes, ndarray)
+        Shapes ``(P, C)`` and gains ``(P, C)``, NaN gain where there are fewer.
+    """
+    P = plant.points
+    ts = np.asarray(plant.ts, float)
+    kd_a = filter_pole(derivative_filter if derivative_filter is not None else 0.0, ts)
+    low, high = shape_space(plant)
+    ctx = _Context(
+        structure=structure, plants=(plant,) + tuple(corners), limits=limits, objective=objective,
+        target=np.full(P, np.nan if target_crossover is None else float(target_crossover)),
+        kd_a=np.broadcast_to(kd_a, (P,)).astype(float), w_low=np.exp(low) / 10.0,
+    )
+    coarse = _coarse(structure, low, high)
+    shapes, score, gain, _, sets = _evaluate(ctx, coarse)
+    S = coarse.shape[1]
+    fractions = np.asarray(STEP_FRACTIONS)
+    gains = gain[:, :, None] * fractions  # (P, S, F)
+    inside = np.zeros(gains.shape, dtype=bool)
+    for p in range(P):
+        for s in range(S):
+            for f, g in enumerate(gains[p, s]):
+                inside[p, s, f] = np.isfinite(g) and any(lo < g < hi for lo, hi in sets[p * S + s])
+    rank = np.where(inside, (score[:, :, None] * fractions) if objective == "max-crossover" else score[:, :, None] - fractions, -np.inf)
+    order = np.argsort(-rank.reshape(P, -1), axis=1, kind="stable")
+    flat_gain = np.where(inside, gains, np.nan).reshape(P, -1)
+    rows = np.arange(P)[:, None]
+    shape_of = order // fractions.size
+    picked = Shapes(*(getattr(shapes, f)[rows, shape_of] for f in ("zeros", "poles", "valid", "gain", "params")))
+    return picked, flat_gain[rows, order]

@@ -16,12 +16,12 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..lti.loop import Loop
-from .crossover import CrossoverChoice, crossover_design, shape_space
+from .crossover import CrossoverChoice, crossover_design, ranked_alternatives, shape_space
 from .diagnose import SPEC_WORDS
 from .search import Shapes
 from .specs import SpecLimits
 
-__all__ = ["CrossoverRun", "choose_by_crossover", "uses_crossover", "crossover_target"]
+__all__ = ["CrossoverRun", "choose_by_crossover", "uses_crossover", "crossover_target", "step_fallback"]
 
 #: Margin back-off of the crossover objectives (dB, deg), smaller than the
 #: general one (design/specs.py BACKOFF: 0.5 dB, 0.5 deg).  These objectives
@@ -270,3 +270,48 @@ def _text(name: str, kind: str, best: float, written: float, structure: str, spa
         f"with every other spec met, the best {quantity} over that space is {best:.4g}{unit} "
         f"(spec {relation} {written:.6g}{unit}); the table holds that compromise (infeasible)"
     )
+
+
+#: Most (shape, gain) candidates simulated per point by :func:`step_fallback`.
+STEP_CANDIDATES = 60
+
+
+def step_fallback(sched, points: np.ndarray, plant: Loop, limits: SpecLimits, objective: str, failing: np.ndarray) -> dict:
+    """The best-ranked (shape, gain) over the whole space whose step response passes.
+
+    For points whose crossover design misses overshoot or settling time
+    (step-response specs are not gain sets): the coarse shapes' best gains and
+    fractions of them (:func:`gainloom.design.crossover.ranked_alternatives`)
+    are simulated in rank order, all points and candidates in one batch.
+
+    Returns
+    -------
+    dict
+        ``{point: (zeros, poles, params, gain, rank, count)}`` for the points
+        where a candidate passes every spec.
+    """
+    from .analysis import analyse
+    from .structures import LocusForm, coefficients_from_locus
+
+    controller = sched.controller
+    rows = np.asarray(failing)
+    shapes, gains = ranked_alternatives(
+        plant.select(rows), controller.structure, _tightened(limits).select(rows), objective,
+        target_crossover=crossover_target(controller), derivative_filter=controller.derivative_filter,
+        corners=_corners(sched, points[rows]),
+    )
+    count = min(STEP_CANDIDATES, gains.shape[1])
+    gains = gains[:, :count]
+    j, k = np.nonzero(np.isfinite(gains))
+    if j.size == 0:
+        return {}
+    form = LocusForm(gain=gains[j, k], zeros=shapes.zeros[j, k], poles=shapes.poles[j, k])
+    coefficients = coefficients_from_locus(controller.structure, form)
+    trial = analyse(plant.select(rows[j]), controller.structure, coefficients, limits.select(rows[j]))
+    out = {}
+    for n in np.flatnonzero(trial.passed):  # j, k ascend: the first passing one per point is the best ranked
+        p = int(rows[j[n]])
+        if p not in out:
+            out[p] = (shapes.zeros[j[n], k[n]], shapes.poles[j[n], k[n]], shapes.params[j[n], k[n]],
+                      float(gains[j[n], k[n]]), int(k[n]) + 1, int(np.count_nonzero(j == j[n])))
+    return out
