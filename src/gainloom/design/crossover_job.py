@@ -127,13 +127,25 @@ def choose_by_crossover(sched, points: np.ndarray, plant: Loop, limits: SpecLimi
     corners = _corners(sched, points)
     kwargs = dict(target_crossover=crossover_target(controller), derivative_filter=controller.derivative_filter)
 
-    def run(rows: np.ndarray, lim: SpecLimits) -> CrossoverChoice:
-        return crossover_design(
-            _select(plant, rows), controller.structure, lim.select(rows), objective, points[rows],
-            corners=tuple(_select(c, rows) for c in corners), **kwargs,
-        )
-
     P = plant.points
+    ruled_out: set[int] = set()
+
+    def run(rows: np.ndarray, lim: SpecLimits) -> CrossoverChoice:
+        """Design ``rows``: with the integral and tracking rules, then without them where that finds nothing."""
+        def search(sub: np.ndarray, rules: bool) -> CrossoverChoice:
+            return crossover_design(
+                _select(plant, sub), controller.structure, lim.select(sub), objective, points[sub],
+                corners=tuple(_select(c, sub) for c in corners), rules=rules, **kwargs,
+            )
+
+        choice = search(rows, True)
+        miss = np.flatnonzero(~choice.feasible)
+        if miss.size:
+            bare = search(rows[miss], False)
+            choice = _merge(choice, bare, miss)
+            ruled_out.update(int(rows[m]) for m in miss[bare.feasible])
+        return choice
+
     everything = np.arange(P)
     choice = run(everything, _tightened(limits))
     notes: list[list[str]] = [[] for _ in range(P)]
@@ -145,6 +157,14 @@ def choose_by_crossover(sched, points: np.ndarray, plant: Loop, limits: SpecLimi
     if corners:
         for p in np.flatnonzero(choice.feasible):
             notes[p].append(f"designed for every spec at each of {len(corners)} tolerance samples (worst case)")
+    rule = (
+        "integral action slower than crossover/100 (the integral floor is dropped here)"
+        if controller.structure in ("pi", "pid")
+        else "a loop gain at zero frequency below 1 (static error above 50 %: it will not track well)"
+    )
+    for p in sorted(ruled_out):
+        if choice.feasible[p]:
+            notes[p].append(f"met the specs only with {rule}")
     binding: dict = {}
     gain = choice.gain.copy()
     failed = np.flatnonzero(~choice.feasible)
