@@ -352,6 +352,8 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
                         intervals=run.intervals, notes=run.notes, samples={})
         for p in range(P):
             notes[p].extend(run.notes[p])
+            # a rule of the search dropped to meet the specs: the choice is not what the rules ask for
+            warnings[p].extend(t for t in run.notes[p] if t.startswith("met the specs only with "))
         if progress is not None:
             progress("design", P, P)
     else:
@@ -382,6 +384,8 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
         retry_notes = _step_whole_space(sched, points, plant, structure, shapes, coefficients, limits, objective, step_fail)
         for p, text in retry_notes.items():
             notes[p].append(text)
+            missed = [n for n in ("max_overshoot", "max_settling_time") if not analysis.verdicts[n][p]]
+            warnings[p].append(f"the {objective} design fails {shortfall(analysis, p, missed)}; {text}")
         if retry_notes:
             analysis = analyse(plant, structure, coefficients, limits)
     elif step_fail.size:
