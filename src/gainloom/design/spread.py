@@ -286,6 +286,8 @@ class SpreadResult:
         the Clopper-Pearson intervals.
     totals : UnitResult
         Merged counts and worst draws.
+    table : GainTable
+        The table studied (its axes shape the grid).
     """
 
     axis_names: tuple[str, ...]
@@ -300,6 +302,7 @@ class SpreadResult:
     seed: int
     confidence: float
     totals: UnitResult
+    table: Any
 
     @property
     def fraction(self) -> np.ndarray:
@@ -337,7 +340,7 @@ class SpreadResult:
                     "fraction": float(self.fraction[p, s]),
                     "interval": [float(low[p, s]), float(high[p, s])],
                     "limit": float(self.limits[p, s]),
-                    "worst": self._worst(p, s),
+                    "worst": self.worst(p, s),
                 }
             points.append({
                 "point": {a: float(v) for a, v in zip(self.axis_names, self.points[p])},
@@ -356,7 +359,8 @@ class SpreadResult:
             "passed": self.passed, "points": points,
         }
 
-    def _worst(self, p: int, s: int) -> dict[str, Any]:
+    def worst(self, p: int, s: int) -> dict[str, Any]:
+        """The worst draw of spec ``s`` at point ``p``: draw index, spec value, factors and parameter values."""
         factors = self.totals.worst_factors[p, s]
         return {
             "draw": int(self.totals.worst_draw[p, s]),
@@ -371,16 +375,16 @@ def reported_specs(limits) -> tuple[str, ...]:
     return tuple(s for s in SPEC_ORDER if s == "stable" or np.isfinite(getattr(limits, s)).any())
 
 
-def run_study(sched, table, *, progress=None, workers: int | None = None,
+def run_study(schedule, gains, *, progress=None, workers: int | None = None,
               chunk_points: int | None = None, chunk_blocks: int | None = None) -> SpreadResult:
-    """Run the statistical tolerance study of ``table`` on ``sched``.
+    """Run the statistical tolerance study of a gains table on a schedule.
 
     Parameters
     ----------
-    sched : Schedule
+    schedule : Schedule or str or Path
         With ``tolerances.samples`` a number of draws and parameters toleranced.
-    table : GainTable
-        The gains to judge (axes as the schedule's).
+    gains : GainTable or str or Path
+        The gains to judge (axes as the schedule's); a path is a gains file.
     progress : callable, optional
         ``progress(stage, done, total)`` in loops analysed.
     workers : int, optional
@@ -393,9 +397,13 @@ def run_study(sched, table, *, progress=None, workers: int | None = None,
     -------
     SpreadResult
     """
-    from .engine import _grid_points, _workers, limits_at
+    from .engine import _grid_points, _load, _workers, limits_at
+    from .gainsfile import read_gains
     from .pool import map_units
+    from .table import GainTable
 
+    sched = _load(schedule)
+    table = gains if isinstance(gains, GainTable) else read_gains(gains)[0]
     tolerances = sched.tolerances
     if tolerances.draws is None:
         raise InputError(f"{sched.path}: tolerances.samples must be a number of random draws for the study "
@@ -422,4 +430,5 @@ def run_study(sched, table, *, progress=None, workers: int | None = None,
         limits=np.stack([_limit_of(limits, s) for s in specs], axis=-1),
         draws=tolerances.draws, distribution=tolerances.distribution, seed=tolerances.seed,
         confidence=CONFIDENCE, totals=merge_results(points.shape[0], parts, len(specs), len(parameters)),
+        table=table,
     )
