@@ -53,7 +53,7 @@ def test_full_run_in_a_subprocess(tmp_path, schedule):
     done = subprocess.run([sys.executable, "-m", "gainloom", "design", str(schedule), "--out", str(out)],
                           capture_output=True, text=True, env=env, timeout=300, check=False)
     assert done.returncode == 0, done.stdout + done.stderr
-    for stage in ("design", "C code", "C check", "quantisation", "simulation", "log"):
+    for stage in ("design", "C code", "C check", "target", "C rules", "quantisation", "simulation", "log"):
         assert any(line.startswith(stage + " ") for line in done.stdout.splitlines()), stage
     assert "\nPASS" in done.stdout
     assert f"gains file: {out / 'gains.yaml'}" in done.stdout
@@ -76,7 +76,7 @@ def test_foreign_file_exits_two_and_force_overwrites(tmp_path, schedule, main):
     forced = main("design", schedule, "--out", out, "--quiet", "--no-simulate", "--no-compile", "--force")
     assert forced.returncode == 0, forced.stdout + forced.stderr
     assert "my own controller" not in (out / "fan.c").read_text()
-    assert "not checked: C check, simulation" in forced.stdout
+    assert "not checked: C check, target, C rules, simulation" in forced.stdout
 
 
 def test_failing_schedule_exits_one_and_names_the_binding_spec(tmp_path, main):
@@ -96,8 +96,8 @@ def test_format_prefix_and_json(tmp_path, schedule, main):
     assert done.returncode == 0, done.stderr
     report = json.loads(done.stdout)
     assert report["number_format"] == "float32" and report["prefix"] == "fanx"
-    assert [s["stage"] for s in report["stages"]] == ["design", "C code", "C check", "quantisation",
-                                                      "simulation", "log"]
+    assert [s["stage"] for s in report["stages"]] == ["design", "C code", "C check", "target", "C rules",
+                                                      "quantisation", "simulation", "log"]
     assert "simulation" in report["not_checked"]
     header = (out / "fanx.h").read_text()
     assert "float32" in header[:2000] and not (out / "fan.h").exists()

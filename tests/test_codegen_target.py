@@ -4,6 +4,7 @@ models, its instructions counted, and checked with cppcheck + MISRA.
 Each test skips with its reason when a tool is missing (Debian packages
 gcc-arm-none-eabi, libnewlib-arm-none-eabi, qemu-system-arm, cppcheck)."""
 
+import json
 import re
 import subprocess
 from pathlib import Path
@@ -157,13 +158,14 @@ def test_helper_names_are_classified_by_the_run_time_abi():
 
 
 @needs_run
-def test_instruction_count_of_straight_line_code_matches_the_disassembly(tmp_path):
+@pytest.mark.parametrize("core", CORES, ids=lambda c: c.name)
+def test_instruction_count_of_straight_line_code_matches_the_disassembly(tmp_path, core):
     # Reference: the disassembler (arm-none-eabi-objdump) lists the clear
     # function's instructions; it has no branch, so each runs exactly once.
     objdump = TOOLS.gcc.replace("gcc", "objdump")
     table, files = _emit(tmp_path, "q15", "pid", 1, True)
     work = files[0].parent
-    build = build_for_core(TOOLS, M4F, [work / "motor_ctl.c"], work, True)
+    build = build_for_core(TOOLS, core, [work / "motor_ctl.c"], work, True, generated_files(files).defines)
     clear = NAMES.clear
     listing = subprocess.run([objdump, "-d", f"--disassemble={clear}", str(build.object_path)],
                              capture_output=True, text=True, check=True).stdout
@@ -179,7 +181,7 @@ def test_instruction_count_of_straight_line_code_matches_the_disassembly(tmp_pat
     elf, problem = _link(TOOLS, build, source, "count", work)
     assert elf is not None, problem
     trace = work / "count.trace"
-    ran = _emulate(TOOLS, M4F, elf, trace)
+    ran = _emulate(TOOLS, core, elf, trace)
     assert ran.returncode in (0, 1), ran.stderr
     counts = parse_trace(trace.read_text().splitlines())
     assert counts["step"] == [len(body)]
@@ -240,6 +242,77 @@ def test_every_deviation_is_documented_with_its_reason():
         number = rule.removeprefix("misra-c2012-")
         assert f"| {number} |" in text, rule
         assert " ".join(reason.split()) in text, rule
+
+
+@needs_run
+def test_readme_target_figures_are_what_the_benchmark_measures():
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("gainloom_benchmark_target", REPO / "benchmarks" / "target.py")
+    bench = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(bench)
+    readme = (REPO / "README.md").read_text()
+    block = re.search(re.escape(bench.BEGIN) + ".*?" + re.escape(bench.END), readme, re.S).group(0)
+    recorded = re.search(r"`-O2`, (.+)\n", block).group(1)
+    installed = subprocess.run([TOOLS.gcc, "--version"], capture_output=True, text=True, check=True).stdout
+    if recorded != installed.splitlines()[0].strip():
+        pytest.skip(f"README figures were measured with {recorded}; regenerate them with benchmarks/target.py")
+    # instruction counts are exact and deterministic for one toolchain: any change must be regenerated
+    assert bench.readme_block() == block
+
+
+def test_the_docs_state_how_many_calls_are_measured():
+    from gainloom.codegen.target_run import MEASURED_LOOKUPS, MEASURED_STEPS
+
+    text = " ".join((REPO / "docs" / "codegen.md").read_text().split())
+    assert f"calls the lookup ({MEASURED_LOOKUPS} inputs" in text
+    assert f"controller step ({MEASURED_STEPS} steps" in text
+
+
+@pytest.fixture(scope="module")
+def fan_jobs(tmp_path_factory):
+    """The invented fan schedule of the job tests in float32, run with and without the target stage."""
+    from gainloom.report.run import run_design_job
+    from test_design_job import PASSING
+
+    root = tmp_path_factory.mktemp("jobs")
+    schedule = root / "fan.yaml"
+    schedule.write_text(PASSING.replace("format: q15", "format: float32"))
+    with_target = run_design_job(schedule, root / "with", simulate=False)
+    without = run_design_job(schedule, root / "without", simulate=False, target=False)
+    return with_target, without
+
+
+@needs_run
+def test_the_design_job_reports_the_target_figures(fan_jobs):
+    job, _ = fan_jobs
+    stages = {s.stage: s for s in job.stages}
+    assert stages["target"].status == "pass", stages["target"].detail
+    assert "cortex-m0plus" in stages["target"].detail and "instructions" in stages["target"].detail
+    assert stages["C rules"].status == ("pass" if TOOLS.cppcheck else "not checked")
+    doc = json.loads((job.out_dir / "verification.json").read_text())
+    assert doc["verdict"]["target"] is True
+    cores = doc["target"]["cores"]
+    assert [c["core"] for c in cores] == ["cortex-m0plus", "cortex-m4f"]
+    for core in cores:
+        counts = core["instructions"]
+        assert counts["lookup"]["calls"] > 0 and counts["lookup"]["min"] <= counts["lookup"]["max"]
+        assert counts["step"]["calls"] > 0 and counts["step"]["max"] > 0
+        assert core["emulated_run"]["identical_to_host"] is True
+        assert core["build"]["table_bytes"] > 0
+    text = (job.out_dir / "verification.md").read_text()
+    assert "## Target cores" in text and "instructions per lookup" in text
+
+
+def test_a_skipped_target_stage_is_not_checked_never_passed(fan_jobs):
+    _, job = fan_jobs
+    stages = {s.stage: s for s in job.stages}
+    assert stages["target"].status == "not checked" and "--no-target" in stages["target"].detail
+    assert stages["C rules"].status == "not checked"
+    assert {"target", "C rules"} <= set(job.not_checked)
+    doc = json.loads((job.out_dir / "verification.json").read_text())
+    assert doc["target"] is None and doc["verdict"]["target"] is None and doc["verdict"]["c_rules"] is None
+    assert {"target cores", "coding rules"} <= set(doc["verdict"]["not_checked"])
 
 
 @needs_cppcheck

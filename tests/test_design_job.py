@@ -188,8 +188,8 @@ def test_every_stage_uses_the_emitted_number_format(passing):
     assert doc["options"]["number_format"] == "q15"
     assert doc["quantisation"]["number_format"] == "q15"
     assert doc["simulation"]["number_format"] == "q15"
-    assert [s.stage for s in passing.job.stages] == ["design", "C code", "C check", "quantisation", "simulation",
-                                                     "log"]
+    assert [s.stage for s in passing.job.stages] == ["design", "C code", "C check", "target", "C rules",
+                                                     "quantisation", "simulation", "log"]
 
 
 def test_default_scenario_follows_the_documented_rule(passing):

@@ -22,7 +22,7 @@ from gainloom.cli import CLOSED_PIPE_EXIT, main
 from gainloom.cli.design import Counter
 from gainloom.design.gainsfile import read_gains
 from gainloom.errors import ScheduleError
-from gainloom.schedule.limits import MAX_SCHEDULE_BYTES
+from gainloom.limits import MAX_SCHEDULE_BYTES
 from test_design_job import PASSING
 
 
@@ -145,3 +145,30 @@ def test_a_gains_file_with_a_bad_tag_is_one_error(tmp_path):
         """))
     with pytest.raises(ScheduleError):
         read_gains(path)
+
+
+LONG = ",".join(["1"] * 201)
+
+
+@pytest.mark.parametrize(
+    "args, message",
+    [
+        (["locus", "--num", "1", "--den", "1,3,2", "--ts", "1e-300"], "sample period 1e-300 s"),
+        (["locus", "--num", "1", "--den", "1,3,2", "--ts", "5e-324"], "is outside 1e-09 .. 1000 s"),
+        (["locus", "--num", "1", "--den", "1,3,2", "--ts", "1e300"], "sample period 1e+300 s"),
+        (["locus", "--num", "1", "--den", LONG], "--den has degree 200; at most 30"),
+        (["locus", "--num", "1", "--den", "1,3,2", "--ts", "1e-3", "--delay", "100000"], "delay of 1e+05 samples"),
+        (["discretize", "--num", "1", "--den", LONG, "--ts", "1e-3"], "plant of order 200; at most 30"),
+        (["discretize", "--num", "1", "--den", "1,3,2", "--ts", "1e-3", "--delay", "1e300"], "1e+300 samples"),
+        (["discretize", "--num", "1", "--den", "1,3,2", "--ts", "1e-6", "--dead-time", "1"], "1e+06 samples"),
+        (["locus", "--num", "9" * 400, "--den", "1,3,2"], "finite numbers"),
+    ],
+    ids=["ts-tiny", "ts-subnormal", "ts-huge", "order-200", "delay-1e5", "discretize-order", "delay-1e300",
+         "dead-time-1s", "huge-integer"],
+)
+def test_absurd_loops_on_the_command_line_are_one_line(args, message, capsys):
+    # same limits as the schedule (gainloom.limits); before this they were
+    # a LinAlgError, an overflow or a wrong message
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert message in err and err.count("\n") == 1 and "Traceback" not in err, err

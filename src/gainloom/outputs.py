@@ -184,8 +184,9 @@ def check_output_folder(folder: str | os.PathLike) -> Path:
             kind = "a file" if stat.S_ISREG(mode) else file_kind(mode)
             raise InputError(f"output folder {path} {what} {kind}, not a folder")
         if not os.access(probe, os.W_OK | os.X_OK):
-            doing = "write into" if probe == path else f"create it: no permission to write {probe}, so cannot create"
-            raise OutputWriteError(f"cannot {doing} output folder {path} (read-only or no permission)")
+            if probe == path:
+                raise OutputWriteError(f"cannot write into output folder {path}: read-only or no permission")
+            raise OutputWriteError(f"cannot create output folder {path}: no permission to write in {probe}")
         break
     return path
 

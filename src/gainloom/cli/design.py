@@ -80,7 +80,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument("--no-simulate", action="store_true", help="skip the default scheduled simulation")
     parser.add_argument(
-        "--no-compile", action="store_true", help="skip compiling and checking the C (reported as not checked)"
+        "--no-compile",
+        action="store_true",
+        help="skip compiling and checking the C, on the host and the targets (reported as not checked)",
+    )
+    parser.add_argument(
+        "--no-target",
+        action="store_true",
+        help="skip building the C for the target cores, the emulated runs and the coding-rule check "
+        "(reported as not checked)",
     )
     parser.add_argument("--json", action="store_true", help="print the summary as JSON instead of a table")
     parser.add_argument("--quiet", action="store_true", help="no progress display on stderr")
@@ -120,17 +128,19 @@ def _is_terminal(stream) -> bool:
         return False
 
 
-def summary_rows(labels, analysis, status, binding=None):
+def summary_rows(labels, analysis, status, binding=None, point_warnings=None):
     """Rows of the per-point summary table.
 
     ``zeta`` and ``wn`` are those of one pole: the least-damped judged pole
     (``PointAnalysis.damping_pole_s``); ``wc`` is the gain crossover and
-    ``wb`` the closed-loop bandwidth.
+    ``wb`` the closed-loop bandwidth; ``!n`` after the status marks a point
+    with n warnings (printed below the table).
     """
     rows = []
     names = list(analysis.physical)
     for p, label in enumerate(labels):
-        row = [label, status[p]]
+        count = len(point_warnings[p]) if point_warnings else 0
+        row = [label, status[p] + (f" !{count}" if count else "")]
         row += [float(analysis.physical[n][p]) for n in names]
         row += [
             float(analysis.damping[p]),
@@ -148,7 +158,7 @@ def summary_rows(labels, analysis, status, binding=None):
     return headers, rows
 
 
-def point_summaries(labels, analysis, status) -> list[dict]:
+def point_summaries(labels, analysis, status, point_warnings=None) -> list[dict]:
     """Per-point numbers of the ``--json`` output (the table's columns and the least-damped pole)."""
     out = []
     for p, label in enumerate(labels):
@@ -163,6 +173,7 @@ def point_summaries(labels, analysis, status) -> list[dict]:
             "phase_margin_deg": float(analysis.phase_margin[p]),
             "crossover_rad_s": float(analysis.crossover[p]),
             "bandwidth_rad_s": float(analysis.bandwidth[p]),
+            "warnings": list(point_warnings[p]) if point_warnings else [],
         })
     return out
 
@@ -220,6 +231,7 @@ def run(args: argparse.Namespace) -> int:
         prefix=args.prefix,
         force=args.force,
         compile=not args.no_compile,
+        target=not args.no_target,
         simulate=not args.no_simulate,
         progress=Counter(enabled=not args.quiet),
         gains_name=args.gains_name,
@@ -238,7 +250,7 @@ def run(args: argparse.Namespace) -> int:
             "not_checked": list(job.not_checked),
             "status": list(result.status),
             "binding": list(result.binding),
-            "points": point_summaries(result.point_labels, result.analysis, result.status),
+            "points": point_summaries(result.point_labels, result.analysis, result.status, result.point_warnings),
             "notes": [list(n) for n in result.notes],
             "table_checks": result.table_report.as_document(),
             "c_check": None if job.harness is None else job.harness.summary(),
@@ -246,8 +258,12 @@ def run(args: argparse.Namespace) -> int:
             "warnings": list(result.warnings),
         })
     else:
-        headers, rows = summary_rows(result.point_labels, result.analysis, result.status, result.binding)
+        headers, rows = summary_rows(result.point_labels, result.analysis, result.status, result.binding,
+                                     result.point_warnings)
         print(format_table(headers, rows))
+        for p, texts in enumerate(result.point_warnings):
+            for text in texts:
+                print(f"{result.point_labels[p]}: warning: {text}")
         for p, notes in enumerate(result.notes):
             if result.status[p] == "fail":
                 for note in notes:

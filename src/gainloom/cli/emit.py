@@ -102,6 +102,11 @@ def run(args: argparse.Namespace) -> int:
     # the header's verdict: the design recorded in the gains file and the
     # re-check of the rounded table; either unknown counts as not verified
     recorded = metadata.get("passed")
+    compromises = [entry.get("index") for entry in metadata.get("points") or []
+                   if isinstance(entry, dict) and entry.get("compromise") is True]
+    report["compromise_points"] = compromises
+    if compromises:
+        recorded = False  # a best compromise is not a design: never emitted as verified
     verdict = table_verdict(recorded if isinstance(recorded, bool) else None, stored_passed, args.number_format)
     report["verified"] = verdict.verified
     report["verdict"] = verdict.basis
@@ -127,6 +132,10 @@ def run(args: argparse.Namespace) -> int:
             print(result.diagnostics, file=sys.stderr)
     if metadata.get("passed") is False:
         report["warning"] = "the gains file records a design that did not meet every spec"
+    if compromises:
+        report["warning"] = (f"the gains file marks {len(compromises)} point(s) as a best compromise, not a "
+                             f"design (indices {', '.join(str(i) for i in compromises[:10])}"
+                             f"{', ...' if len(compromises) > 10 else ''}); the header is NOT VERIFIED")
     if args.json:
         print_json(report)
     else:

@@ -8,6 +8,7 @@ import math
 import numpy as np
 
 from ..errors import InputError
+from ..limits import MAX_DELAY_SAMPLES, MAX_PLANT_ORDER
 from ..lti.discretize import discretize_loop
 from ..lti.facts import LocusFacts, locus_facts
 from ..lti.loop import Loop
@@ -54,6 +55,10 @@ def _build_loop(args: argparse.Namespace) -> tuple[Loop, str]:
     """Return the loop to analyse (one point) and how it was made."""
     num = parse_coefficients(args.num, "num")
     den = parse_coefficients(args.den, "den")
+    # a loop given in z carries its delay poles in the polynomial
+    most = MAX_PLANT_ORDER + (MAX_DELAY_SAMPLES if args.discrete else 0)
+    if len(den) - 1 > most:
+        raise InputError(f"--den has degree {len(den) - 1}; at most {most} is accepted")
     if args.discrete and args.ts is None:
         raise InputError("--discrete says num/den are in z; give their sample period with --ts")
     if args.ts is None:

@@ -27,6 +27,7 @@ import os
 import shutil
 import tempfile
 from collections.abc import Iterable
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -42,7 +43,7 @@ from .target_run import (
     measure_source,
     run_harness,
 )
-from .target_tools import CORES, TargetTools, find_target_tools
+from .target_tools import CORES, TargetCore, TargetTools, find_target_tools
 
 __all__ = ["TargetResult", "check_target"]
 
@@ -163,26 +164,35 @@ def check_target(
     tools = tools or find_target_tools()
     program = harness_program(table, generated)
     fixed = program.layout.fmt.is_fixed
-    host_sha256 = host.output_sha256 if host is not None and host.passed else None
     missing = tuple(tools.missing("gcc", "nm", "size", "readelf", "qemu"))
-    builds, runs, counts = [], [], []
     with tempfile.TemporaryDirectory(prefix="gainloom-target-") as tmp:
         work = Path(tmp)
         for f in files:
             shutil.copyfile(f, work / f.name)
         caller = work / "caller.c"
         caller.write_text(measure_source(program, generated.prefix), encoding="utf-8")
-        rules = check_rules([work / f.name for f in files], caller, tools.cppcheck, generated.defines)
         if missing:
+            rules = check_rules([work / f.name for f in files], caller, tools.cppcheck, generated.defines)
             return TargetResult("not-checked", f"not checked: {', '.join(missing)} not found",
                                 generated.number_format, missing=missing, rules=rules)
         sources = [work / s.name for s in generated.sources]
-        for core in CORES:
+
+        def on_core(core: TargetCore):
             build = build_for_core(tools, core, sources, work, fixed, generated.defines)
-            builds.append(build)
-            if build.builds:
-                runs.append(run_harness(tools, build, program, work, host_sha256))
-                counts.append(count_instructions(tools, build, program, generated.prefix, work))
+            if not build.builds:
+                return build, None, None
+            run = run_harness(tools, build, program, work, host)
+            return build, run, count_instructions(tools, build, program, generated.prefix, work)
+
+        # the cores and the rule check are independent subprocess work: run them side by side
+        with ThreadPoolExecutor(max_workers=len(CORES) + 1) as pool:
+            rules_job = pool.submit(check_rules, [work / f.name for f in files], caller, tools.cppcheck,
+                                    generated.defines)
+            per_core = list(pool.map(on_core, CORES))
+            rules = rules_job.result()
+    builds = [b for b, _, _ in per_core]
+    runs = [r for _, r, _ in per_core if r is not None]
+    counts = [c for _, _, c in per_core if c is not None]
     status, message = _verdict(builds, runs, counts)
     return TargetResult(status, message, generated.number_format, tuple(builds), tuple(runs), tuple(counts),
                         rules=rules)

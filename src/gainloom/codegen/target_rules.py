@@ -121,8 +121,9 @@ class RulesResult:
         return None if self.status == "not-checked" else self.status == "passed"
 
     def deviations(self) -> dict[str, int]:
-        """Documented rule -> findings in the generated files."""
-        return dict(sorted(Counter(f.rule for f in self.findings if f.documented).items()))
+        """Documented rule -> findings in the generated files, in rule order."""
+        counts = Counter(f.rule for f in self.findings if f.documented)
+        return {rule: counts[rule] for rule in sorted(counts, key=_rule_order)}
 
     def to_dict(self) -> dict:
         return {
@@ -134,6 +135,11 @@ class RulesResult:
             "deviations": [{"rule": rule, "findings": count, "reason": DEVIATIONS[rule]}
                            for rule, count in self.deviations().items()],
         }
+
+
+def _rule_order(rule: str) -> tuple[int, ...]:
+    """``misra-c2012-10.1`` sorts after ``misra-c2012-2.3``."""
+    return tuple(int(part) for part in re.findall(r"\d+", rule.removeprefix("misra-c2012-")))
 
 
 def _findings(text: str, generated: set[str]) -> list[RuleFinding]:
@@ -196,7 +202,7 @@ def check_rules(
         more = f" and {len(undocumented) - 4} more" if len(undocumented) > 4 else ""
         return RulesResult("failed", f"{len(undocumented)} undocumented finding(s): {shown}{more}", version,
                            tuple(findings))
-    rules = sorted({f.rule.removeprefix("misra-c2012-") for f in findings})
+    rules = [rule.removeprefix("misra-c2012-") for rule in sorted({f.rule for f in findings}, key=_rule_order)]
     detail = f"; {documented} finding(s) under documented deviations ({', '.join(rules)})" if findings else ""
     return RulesResult("passed", f"cppcheck --enable=all and MISRA C:2012: no undocumented finding{detail}",
                        version, tuple(findings))

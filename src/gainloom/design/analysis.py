@@ -41,7 +41,7 @@ from .pole_origin import pole_origins
 from .specs import SPEC_ORDER, SpecLimits
 from .structures import locus_from_coefficients, open_loop, physical_from_coefficients
 
-__all__ = ["PointAnalysis", "analyse", "step_metrics", "pole_metrics", "SETTLING_BAND", "integrator_count"]
+__all__ = ["PointAnalysis", "analyse", "judge", "step_metrics", "pole_metrics", "SETTLING_BAND", "integrator_count"]
 
 #: Settling band of the step-response check (2 %, as ``max_settling_time``).
 SETTLING_BAND = 0.02
@@ -295,6 +295,38 @@ def _at_most(value: np.ndarray, limit: np.ndarray) -> np.ndarray:
     return np.isnan(limit) | (value <= limit)
 
 
+def judge(values: dict[str, np.ndarray], limits: SpecLimits, *, step: bool = True) -> dict[str, np.ndarray]:
+    """Verdict per spec of ``SPEC_ORDER``: True where it holds or is not required.
+
+    ``values`` are the measured values of :attr:`PointAnalysis.values`
+    (``stable`` holds the largest ``|z|``); without a step response
+    (``step=False``) overshoot and settling are not judged.  A NaN value
+    fails a required spec.
+    """
+    stable = values["stable"] < 1
+    return {
+        "stable": stable,
+        "min_damping": _at_least(values["min_damping"], limits.min_damping),
+        "min_decay": _at_least(values["min_decay"], limits.min_decay),
+        "min_natural_frequency": _at_least(values["min_natural_frequency"], limits.min_natural_frequency),
+        "max_natural_frequency": _at_most(values["max_natural_frequency"], limits.max_natural_frequency),
+        "max_pole_radius": _at_most(values["max_pole_radius"], limits.max_pole_radius),
+        "min_gain_margin": _at_least(values["min_gain_margin"], limits.min_gain_margin),
+        "min_phase_margin": _at_least(values["min_phase_margin"], limits.min_phase_margin),
+        "min_delay_margin": _at_least(values["min_delay_margin"], limits.min_delay_margin),
+        "max_sensitivity_peak": _at_most(values["max_sensitivity_peak"], limits.max_sensitivity_peak),
+        "min_crossover": _at_least(values["min_crossover"], limits.min_crossover),
+        "max_crossover": _at_most(values["max_crossover"], limits.max_crossover),
+        "min_bandwidth": _at_least(values["min_bandwidth"], limits.min_bandwidth),
+        "max_gain": _at_most(values["max_gain"], limits.max_gain),
+        "system_type": _at_least(values["system_type"], limits.system_type),
+        "max_overshoot": _at_most(values["max_overshoot"], limits.max_overshoot)
+        | (np.isnan(values["max_overshoot"]) & (not step)),
+        "max_settling_time": _at_most(values["max_settling_time"], limits.max_settling_time)
+        | (np.isnan(values["max_settling_time"]) & (not step)),
+    }
+
+
 def analyse(
     plant: Loop,
     structure: str,
@@ -359,7 +391,6 @@ def analyse(
     else:
         overshoot = settling = np.full(plant.points, np.nan)
     system_type = integrator_count(loop)
-    stable = full_radius < 1
     values = {
         "stable": full_radius,
         "min_damping": metrics["damping"],
@@ -379,27 +410,7 @@ def analyse(
         "max_overshoot": overshoot,
         "max_settling_time": settling,
     }
-    verdicts = {
-        "stable": stable,
-        "min_damping": _at_least(values["min_damping"], limits.min_damping),
-        "min_decay": _at_least(values["min_decay"], limits.min_decay),
-        "min_natural_frequency": _at_least(values["min_natural_frequency"], limits.min_natural_frequency),
-        "max_natural_frequency": _at_most(values["max_natural_frequency"], limits.max_natural_frequency),
-        "max_pole_radius": _at_most(values["max_pole_radius"], limits.max_pole_radius),
-        "min_gain_margin": _at_least(values["min_gain_margin"], limits.min_gain_margin),
-        "min_phase_margin": _at_least(values["min_phase_margin"], limits.min_phase_margin),
-        "min_delay_margin": _at_least(values["min_delay_margin"], limits.min_delay_margin),
-        "max_sensitivity_peak": _at_most(values["max_sensitivity_peak"], limits.max_sensitivity_peak),
-        "min_crossover": _at_least(values["min_crossover"], limits.min_crossover),
-        "max_crossover": _at_most(values["max_crossover"], limits.max_crossover),
-        "min_bandwidth": _at_least(values["min_bandwidth"], limits.min_bandwidth),
-        "max_gain": _at_most(values["max_gain"], limits.max_gain),
-        "system_type": _at_least(values["system_type"], limits.system_type),
-        "max_overshoot": _at_most(values["max_overshoot"], limits.max_overshoot)
-        | (np.isnan(values["max_overshoot"]) & (not step)),
-        "max_settling_time": _at_most(values["max_settling_time"], limits.max_settling_time)
-        | (np.isnan(values["max_settling_time"]) & (not step)),
-    }
+    verdicts = judge(values, limits, step=step)
     # A NaN measurement (unstable) fails a required spec: comparisons with
     # NaN are False, which the _at_* helpers keep.
     return PointAnalysis(

@@ -25,7 +25,7 @@ from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .search import Choice, Shapes, shape_loops
 from .specs import SpecLimits
 
-__all__ = ["diagnose", "compromise", "SPEC_WORDS"]
+__all__ = ["diagnose", "compromise", "SPEC_WORDS", "limit_text"]
 
 #: Plain words for each spec in the notes: (quantity, best is "max"/"min", unit).
 SPEC_WORDS = {
@@ -96,7 +96,8 @@ def compromise(samples: dict, limits: SpecLimits, points: np.ndarray) -> tuple[n
     return shapes, gains
 
 
-def _limit_text(name: str, limit: float) -> str:
+def limit_text(name: str, limit: float) -> str:
+    """``">= 45 deg"``-style text of a spec's bound."""
     quantity, best, unit = SPEC_WORDS[name]
     relation = ">=" if best == "max" else "<="
     if name == "stable":
@@ -192,7 +193,7 @@ def diagnose(
             quantity = SPEC_WORDS[name][0]
             out[p] = (
                 name,
-                f"{name} fails: {quantity} {value:.6g}{SPEC_WORDS[name][2]} (needs {_limit_text(name, limit)}) at the "
+                f"{name} fails: {quantity} {value:.6g}{SPEC_WORDS[name][2]} (needs {limit_text(name, limit)}) at the "
                 f"chosen K = {analysis.gain[p]:.6g}; no searched gain met every spec and this one",
             )
             continue
@@ -229,7 +230,7 @@ def diagnose(
             found = (
                 name,
                 f"{name} binds: {quantity} {word} {value:.6g}{unit} over the searched gains "
-                f"(needs {_limit_text(name, limit)}), reached at K = {gain:.6g}{where}",
+                f"(needs {limit_text(name, limit)}), reached at K = {gain:.6g}{where}",
             )
             break
         if found is None:
@@ -240,7 +241,7 @@ def diagnose(
             found = (
                 name,
                 f"every spec is reachable alone but not together; at the best compromise K = {analysis.gain[p]:.6g} "
-                f"{SPEC_WORDS[name][0]} is {value:.6g}{SPEC_WORDS[name][2]} (needs {_limit_text(name, limit)})"
+                f"{SPEC_WORDS[name][0]} is {value:.6g}{SPEC_WORDS[name][2]} (needs {limit_text(name, limit)})"
                 + (f"; also failing: {', '.join(names[1:])}" if len(names) > 1 else ""),
             )
         out[p] = found

@@ -21,6 +21,7 @@ from ..names import CROSSOVER_OBJECTIVES, DESIGN_STRATEGIES, SWEEP_OBJECTIVES, T
 from .analysis import PointAnalysis, analyse
 from .crossover_job import choose_by_crossover, uses_crossover
 from .diagnose import diagnose, compromise
+from .fallbacks import boundary_warnings, compromise_warnings, shortfall, strategy_gain_warning, target_warnings
 from .results import DesignResult, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, _samples_in, choose_gains, objective_values
 from .specs import SAMPLING_FRACTION, SpecLimits
@@ -89,6 +90,10 @@ class PointDesign:
     notes: tuple[tuple[str, ...], ...]
     intervals: list
     shape_params: np.ndarray
+    #: per point: where the choice is not what the strategy or objective asked
+    #: for (:mod:`gainloom.design.fallbacks`; targets, back-off and compromises
+    #: are added on the final table by :func:`design`)
+    warnings: tuple[tuple[str, ...], ...] = ()
 
 
 def _coefficients(structure: str, shapes, shape_index: np.ndarray, gain: np.ndarray) -> dict[str, np.ndarray]:
@@ -317,6 +322,7 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
     limits = limits_at(sched, points)
     structure = controller.structure
     notes: list[list[str]] = [[] for _ in range(P)]
+    warnings: list[list[str]] = [[] for _ in range(P)]
     certified: dict | None = None
     if uses_crossover(controller, objective):
         if progress is not None:
@@ -347,6 +353,9 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
                 derivative_filter=controller.derivative_filter,
             )
         choice, shape_index, gain = _sweep_choice(plant, shapes, limits, objective, target, controller, notes, progress)
+        if controller.strategy == "dominant-pair" or controller.strategy in TUNING_RULES:
+            for p, text in _own_gain_warnings(plant, structure, shapes, choice, limits, controller.strategy).items():
+                warnings[p].append(text)
     coefficients = _coefficients(structure, shapes, shape_index, gain)
     analysis = analyse(plant, structure, coefficients, limits)
     step_fail = np.flatnonzero(
@@ -356,6 +365,9 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
         retry_notes = _step_retry(plant, structure, shapes, choice, coefficients, limits, objective, target, step_fail)
         for p, text in retry_notes.items():
             notes[p].append(text)
+            missed = [n for n in ("max_overshoot", "max_settling_time") if not analysis.verdicts[n][p]]
+            warnings[p].append(f"the objective's best gain K = {analysis.gain[p]:.6g} fails {shortfall(analysis, p, missed)}; "
+                               f"{text}")
         if retry_notes:
             analysis = analyse(plant, structure, coefficients, limits)
     passed = analysis.passed
@@ -393,7 +405,44 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
         notes=tuple(tuple(n) for n in notes),
         intervals=choice.intervals,
         shape_params=shapes.params[np.arange(P), shape_index],
+        warnings=tuple(tuple(w) for w in warnings),
     )
+
+
+def _own_gain_warnings(plant, structure, shapes, choice: Choice, limits, strategy: str) -> dict[int, str]:
+    """Points where the strategy's own gain misses a spec: which spec, by how much."""
+    P = plant.points
+    asked = shapes.gain[np.arange(P), np.maximum(choice.shape, 0)]
+    moved = np.flatnonzero(choice.feasible & np.isfinite(asked) & ~np.isclose(np.nan_to_num(choice.gain, nan=-1.0), asked, rtol=1e-12))
+    if moved.size == 0:
+        return {}
+    s = np.maximum(choice.shape[moved], 0)
+    form = LocusForm(gain=asked[moved], zeros=shapes.zeros[moved, s], poles=shapes.poles[moved, s])
+    trial = analyse(plant.select(moved), structure, coefficients_from_locus(structure, form), limits.select(moved))
+    own = "magnitude-condition" if strategy == "dominant-pair" else strategy
+    out = {}
+    for q, p in enumerate(moved):
+        if not trial.passed[q]:
+            out[int(p)] = strategy_gain_warning(trial, q, float(choice.gain[p]), own)
+    return out
+
+
+def point_warnings(sched, point_design: PointDesign) -> tuple[tuple[str, ...], ...]:
+    """Every per-point warning of a finished design (:mod:`gainloom.design.fallbacks`)."""
+    analysis = point_design.analysis
+    P = analysis.points
+    out = [list(point_design.warnings[p]) if point_design.warnings else [] for p in range(P)]
+    controller = sched.controller
+    asks_target = controller.strategy == "dominant-pair" or _objective(controller) == "nearest-target"
+    extra = [
+        target_warnings(analysis, controller.target if asks_target else None),
+        boundary_warnings(analysis),
+        compromise_warnings(analysis, point_design.status, point_design.binding),
+    ]
+    for found in extra:
+        for p, text in found.items():
+            out[p].append(text)
+    return tuple(tuple(w) for w in out)
 
 
 def sampling_warnings(sched, points: np.ndarray, plant: Loop, analysis: PointAnalysis | None = None) -> list[str]:
@@ -517,6 +566,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
         points=point_design.points,
         point_labels=tuple(sched.describe_point(p) for p in point_design.points),
         continuous=continuous,
+        point_warnings=point_warnings(sched, point_design),
     )
 
 

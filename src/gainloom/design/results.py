@@ -186,6 +186,11 @@ class DesignResult:
         Human-readable operating point per index.
     continuous : dict or None
         The ``compare_continuous`` report.
+    point_warnings : tuple of tuple of str
+        Per point: where the choice is not what the objective or target asked
+        for, naming the spec or target and the shortfall
+        (:mod:`gainloom.design.fallbacks`); failing points say the table holds
+        a best compromise.
     """
 
     table: GainTable
@@ -201,6 +206,7 @@ class DesignResult:
     points: np.ndarray
     point_labels: tuple[str, ...]
     continuous: dict[str, Any] | None = None
+    point_warnings: tuple[tuple[str, ...], ...] = ()
 
     @property
     def points_passed(self) -> bool:
@@ -228,7 +234,10 @@ class DesignResult:
             }
             if self.binding[p] is not None:
                 entry["binding"] = self.binding[p]
+            # a failing point holds the best compromise, not a design
+            entry["compromise"] = self.status[p] == "fail"
             entry["notes"] = list(self.notes[p])
+            entry["warnings"] = list(self.point_warnings[p]) if self.point_warnings else []
             entry.update(point_document(self.analysis, p))
             entries.append(entry)
         return {

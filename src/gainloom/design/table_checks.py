@@ -317,6 +317,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
             coefficients=coefficients, analysis=analysis, feasible=point_design.feasible,
             status=tuple("pass" if ok else "fail" for ok in analysis.passed), binding=point_design.binding,
             notes=point_design.notes, intervals=point_design.intervals, shape_params=point_design.shape_params,
+            warnings=point_design.warnings,
         )
     count = int(sched.table_checks.between_points)
     budget = int(sched.table_checks.refine_max_inserted) if redesign else 0
@@ -408,6 +409,8 @@ def _merge_designs(old, fresh, new_points, is_new, old_lookup, structure):
         notes=tuple(fresh.notes[j] if kind == "new" else old.notes[j] for kind, j in source),
         intervals=[fresh.intervals[j] if kind == "new" else old.intervals[j] for kind, j in source],
         shape_params=pick(old.shape_params, fresh.shape_params),
+        warnings=tuple((fresh.warnings[j] if fresh.warnings else ()) if kind == "new"
+                       else (old.warnings[j] if old.warnings else ()) for kind, j in source),
     )
 
 

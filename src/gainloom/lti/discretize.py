@@ -67,6 +67,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..names import HOLD_METHODS, unknown_name_message
+from ..limits import MAX_DELAY_SAMPLES, MAX_PLANT_ORDER, SAMPLE_PERIOD_RANGE
 from .convert import poly_from_roots, roots_with_origin, ss_to_tf, tf_to_ss, tf_to_zpk
 from .expm import batched_expm
 from .loop import Loop
@@ -127,12 +128,25 @@ def _validate(plant: Loop, ts, method, delay, prewarp):
     ts = _per_point(ts, points, "ts")
     if not np.all(np.isfinite(ts) & (ts > 0)):
         raise InputError(f"sample period ts must be finite and positive (seconds); got {ts}")
+    low, high = SAMPLE_PERIOD_RANGE
+    if np.any((ts < low) | (ts > high)):
+        bad = int(np.flatnonzero((ts < low) | (ts > high))[0])
+        raise InputError(f"sample period {ts[bad]:.3g} s (point {bad}) is outside {low:g} .. {high:g} s")
+    if plant.order > MAX_PLANT_ORDER:
+        raise InputError(f"plant of order {plant.order}; at most {MAX_PLANT_ORDER} is accepted")
     delay_arr = _per_point(delay, points, "delay")
     if not np.all(np.isfinite(delay_arr) & (delay_arr >= 0)):
         raise InputError(f"delay must be finite and non-negative (samples); got {delay_arr}")
     if not np.all(np.isfinite(plant.dead_time) & (plant.dead_time >= 0)):
         raise InputError(f"dead_time must be finite and non-negative (seconds); got {plant.dead_time}")
-    total = total_delay(plant, ts, delay_arr)
+    with np.errstate(over="ignore"):
+        total = total_delay(plant, ts, delay_arr)
+    if not np.all(total <= MAX_DELAY_SAMPLES):
+        bad = int(np.flatnonzero(~(total <= MAX_DELAY_SAMPLES))[0])
+        raise InputError(
+            f"delay of {total[bad]:.4g} samples (point {bad}, dead time included); at most {MAX_DELAY_SAMPLES} are "
+            "accepted (each sample is one more pole of the discrete loop)"
+        )
     fractional = total != np.floor(total)
     if np.any(fractional) and method != "zoh":
         bad = int(np.flatnonzero(fractional)[0])
@@ -444,7 +458,8 @@ def discretize_loop(
     InputError
         Unknown method, bad ``ts``/``delay``/``prewarp``, a fractional delay
         with a method other than ``zoh``, ``impulse`` on a plant with direct
-        feedthrough.
+        feedthrough; a sample period, total delay or plant order beyond
+        :mod:`gainloom.limits`.
 
     Notes
     -----

@@ -141,6 +141,7 @@ def _point_entries(sched, result, table) -> list[dict[str, Any]]:
     names = [a.name for a in table.axes]
     binding = getattr(result, "binding", (None,) * analysis.points)
     notes = getattr(result, "notes", ((),) * analysis.points)
+    point_warnings = getattr(result, "point_warnings", ()) or ((),) * analysis.points
     entries = []
     for p in range(analysis.points):
         entry = point_document(analysis, p)
@@ -153,6 +154,8 @@ def _point_entries(sched, result, table) -> list[dict[str, Any]]:
             "failed": failed,
             "binding": binding[p] if binding[p] is not None else (failed[0] if failed else None),
             "notes": list(notes[p]),
+            "warnings": list(point_warnings[p]),
+            "compromise": bool(hasattr(result, "point_warnings") and result.status[p] == "fail"),
             "sample_period_s": float(models.sample_period[p]),
             "delay_samples": float(delays[p]),
             "dead_time_s": float(dead_times[p]),
@@ -200,10 +203,12 @@ def _worst_cases(entries: list[dict[str, Any]]) -> dict[str, Any]:
     return worst
 
 
-def _verdict(result, entries, quantisation, harness, simulation) -> dict[str, Any]:
+def _verdict(result, entries, quantisation, harness, simulation, target=None) -> dict[str, Any]:
     design_ok = bool(result.passed)
     quant_ok = None if quantisation is None else bool(quantisation.passed)
     c_ok = None if harness is None else harness.passed
+    target_ok = None if target is None else target.passed
+    rules_ok = None if target is None or target.rules is None else target.rules.passed
     sim_ok = None if simulation is None else bool(simulation.passed)
     failed_points = []
     for e in entries:
@@ -229,6 +234,10 @@ def _verdict(result, entries, quantisation, harness, simulation) -> dict[str, An
         reasons.append("rounding to the number format breaks a spec")
     if c_ok is False:
         reasons.append("the generated C failed its compile/harness check")
+    if target_ok is False:
+        reasons.append("the generated C fails on the target cores (build, runtime helpers or emulated run)")
+    if rules_ok is False:
+        reasons.append("the generated C has coding-rule findings without a deviation record")
     if sim_ok is False:
         reasons.append("the time-domain simulation fails")
     not_checked = []
@@ -236,6 +245,10 @@ def _verdict(result, entries, quantisation, harness, simulation) -> dict[str, An
         not_checked.append("quantisation")
     if harness is None or c_ok is None:
         not_checked.append("generated C")
+    if target_ok is None:
+        not_checked.append("target cores")
+    if rules_ok is None:
+        not_checked.append("coding rules")
     if simulation is None:
         not_checked.append("simulation")
     return {
@@ -243,6 +256,8 @@ def _verdict(result, entries, quantisation, harness, simulation) -> dict[str, An
         "design": design_ok,
         "quantisation": quant_ok,
         "c_check": c_ok,
+        "target": target_ok,
+        "c_rules": rules_ok,
         "simulation": sim_ok,
         "reasons": reasons,
         "not_checked": not_checked,
@@ -262,6 +277,7 @@ def verification_document(
     options: dict[str, Any] | None = None,
     plots: list[str] | None = None,
     timestamp: str | None = None,
+    target: Any = None,
 ) -> dict[str, Any]:
     """Everything of the verification log as plain, JSON-ready data.
 
@@ -284,6 +300,8 @@ def verification_document(
         File names of the PNG plots written beside the log.
     timestamp : str, optional
         ISO-8601 UTC time, only when the caller asks for one.
+    target : TargetResult, optional
+        The generated C on the target cores (:func:`gainloom.codegen.target.check_target`).
 
     Returns
     -------
@@ -308,7 +326,7 @@ def verification_document(
     }
     document: dict[str, Any] = {
         "format": VERIFICATION_FORMAT,
-        "verdict": _verdict(result, entries, quantisation, harness, simulation),
+        "verdict": _verdict(result, entries, quantisation, harness, simulation, target),
         "inputs": inputs,
         "tools": _versions(harness),
         "options": dict(options or {}),
@@ -330,6 +348,7 @@ def verification_document(
         "table_checks": result.table_report.as_document(),
         "quantisation": None if quantisation is None else quantisation.as_document(),
         "c_check": None if harness is None else harness.summary(),
+        "target": None if target is None else target.to_dict(),
         "simulation": None if simulation is None else simulation.to_dict(series=False),
         "warnings": list(result.warnings) + ([] if simulation is None else [
             f"simulation: {w}" for w in simulation.warnings if w not in result.warnings]),

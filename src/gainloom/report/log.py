@@ -63,6 +63,7 @@ def render_verification(
     options: dict[str, Any] | None = None,
     plots: bool = True,
     timestamp: bool = False,
+    target: Any = None,
 ) -> dict[str, str | bytes]:
     """Render every file of the log without writing it.
 
@@ -94,7 +95,7 @@ def render_verification(
         names = ["gains.png", "margins.png", "step.png"]
     draft = verification_document(schedule=sched, result=result, table=table, gains_path=gains_path,
                                   harness=harness, quantisation=quantisation, simulation=simulation,
-                                  options=options, plots=names, timestamp=stamp)
+                                  options=options, plots=names, timestamp=stamp, target=target)
     if plots:
         points = draft["points"]
         loop = _open_loop(sched, result, table)
@@ -130,6 +131,7 @@ def write_verification(
     plots: bool = True,
     timestamp: bool = False,
     force: bool = False,
+    target: Any = None,
 ) -> list[Path]:
     """Write the verification log of a gain table into ``out_dir``.
 
@@ -161,6 +163,8 @@ def write_verification(
         byte-identical for the same inputs).
     force : bool
         Overwrite files in ``out_dir`` that gainloom did not write.
+    target : TargetResult, optional
+        ``gainloom.codegen.target.check_target(...)`` of the emitted C.
 
     Returns
     -------
@@ -174,5 +178,5 @@ def write_verification(
     """
     files = render_verification(schedule=schedule, result=result, table=table, gains_path=gains_path,
                                 harness=harness, quantisation=quantisation, simulation=simulation,
-                                options=options, plots=plots, timestamp=timestamp)
+                                options=options, plots=plots, timestamp=timestamp, target=target)
     return write_outputs(out_dir, files, force=force)

@@ -62,6 +62,9 @@ def _summary(doc: dict[str, Any]) -> list[str]:
             ["design at every grid point and whole-table checks", _verdict_word(verdict["design"])],
             ["rounding to the number format breaks no spec that held", _verdict_word(verdict["quantisation"])],
             ["generated C (compile + host harness)", _verdict_word(verdict["c_check"])],
+            ["generated C on the target cores (cross-build, helpers, emulated run)",
+             _verdict_word(verdict.get("target"))],
+            ["coding rules (cppcheck, MISRA C:2012 with deviation records)", _verdict_word(verdict.get("c_rules"))],
             ["time-domain simulation", _verdict_word(verdict["simulation"])],
         ],
     )
@@ -124,6 +127,10 @@ def _points(doc: dict[str, Any]) -> list[str]:
     rows = []
     for e in doc["points"]:
         status = "pass" if e["status"] == "pass" else f"FAIL ({e['binding']})"
+        if e.get("compromise"):
+            status += ", compromise"
+        if e.get("warnings"):
+            status += f" ⚠{len(e['warnings'])}"  # the Warnings section lists them
         rows.append([e["index"], e["label"], status, number(e["sample_period_s"]), number(e["delay_samples"])]
                     + [number(e["coefficients"][n], 6) for n in names]
                     + [number(e[k]) for k in ("damping", "natural_frequency", "pole_radius", "gain_margin_db",
@@ -132,7 +139,8 @@ def _points(doc: dict[str, Any]) -> list[str]:
                                               "overshoot_percent", "settling_time_s")])
     lines += _table(headers, rows)
     lines.append("Closed-loop poles in z and s of every point, physical gains and each spec's value, limit and "
-                 "pass: `points` in verification.json.")
+                 "pass: `points` in verification.json.  ζ and ωn are those of the least-damped judged pole; "
+                 "⚠n: n warnings on the point, listed under Warnings.")
     return lines + [""]
 
 
@@ -297,9 +305,10 @@ def _simulation(doc: dict[str, Any]) -> list[str]:
 
 def _warnings(doc: dict[str, Any]) -> list[str]:
     lines = ["## Warnings", ""]
-    if not doc["warnings"]:
+    per_point = [f"- {e['label']}: {w}" for e in doc["points"] for w in e.get("warnings", [])]
+    if not doc["warnings"] and not per_point:
         return lines + ["None.", ""]
-    return lines + [f"- {w}" for w in doc["warnings"]] + [""]
+    return lines + [f"- {w}" for w in doc["warnings"]] + per_point + [""]
 
 
 def _cautions(doc: dict[str, Any]) -> list[str]:
@@ -318,7 +327,9 @@ def _plots(doc: dict[str, Any]) -> list[str]:
 def render_markdown(doc: dict[str, Any]) -> str:
     """The reviewer's log from the plain verification document."""
     lines: list[str] = []
-    for part in (_summary, _points, _worst, _table_checks, _quantisation, _c_check, _simulation,
+    from .markdown_target import target_section  # it uses this module's table writer
+
+    for part in (_summary, _points, _worst, _table_checks, _quantisation, _c_check, target_section, _simulation,
                  _warnings, _cautions, _inputs, _plots):
         lines += part(doc)
     text = "\n".join(line.rstrip() for line in lines).rstrip() + "\n"

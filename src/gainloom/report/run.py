@@ -8,6 +8,10 @@
    verdict (design and re-check, :mod:`gainloom.codegen.verdict`);
 4. compile them and run the host harness against the Python mirror, when a
    C compiler is present (none found: "not checked", neither pass nor fail);
+   then build them for the target cores, run the harness on emulated boards,
+   count instructions and check the coding rules
+   (:func:`gainloom.codegen.target.check_target`; without the tools: "not
+   checked");
 5. run a default scheduled simulation (:func:`default_scenario`) in that
    number format;
 6. render the verification log (JSON, Markdown, PNGs);
@@ -80,8 +84,8 @@ class StageVerdict:
     Parameters
     ----------
     stage : str
-        ``design``, ``C code``, ``C check``, ``quantisation``, ``simulation``
-        or ``log``.
+        ``design``, ``C code``, ``C check``, ``target``, ``C rules``,
+        ``quantisation``, ``simulation`` or ``log``.
     status : str
         ``pass``, ``FAIL``, ``not checked`` or ``written``.
     detail : str
@@ -118,6 +122,8 @@ class JobResult:
     design : DesignResult
     harness : HarnessResult or None
         None when the C check was not asked for.
+    target : TargetResult or None
+        None when the target check was not asked for.
     quantisation : QuantisationResult
     simulation : SimulationResult or None
         None when the simulation was skipped.
@@ -136,6 +142,7 @@ class JobResult:
     schedule: Any
     design: Any
     harness: Any
+    target: Any
     quantisation: Any
     simulation: Any
     scenario: dict[str, Any] | None
@@ -302,6 +309,37 @@ def _harness_stage(harness: Any) -> StageVerdict:
     return StageVerdict("C check", "FAIL", f"{harness.compiler_version}: {harness.message}")
 
 
+def _target_figures(target: Any) -> str:
+    parts = []
+    for core in target.to_dict()["cores"]:
+        counts, build = core["instructions"], core["build"]
+        stack = max((f["stack_bytes"] or 0 for f in build["functions"]), default=0)
+        text = f"{core['core']}: {build['flash_bytes']} B flash, {build['ram_bytes']} B RAM, stack <= {stack} B"
+        if counts:
+            text += (f", lookup {counts['lookup']['min']}..{counts['lookup']['max']}, "
+                     f"step {counts['step']['min']}..{counts['step']['max']} instructions")
+        parts.append(text)
+    return "; ".join(parts)
+
+
+def _target_stage(target: Any, skipped: str) -> StageVerdict:
+    if target is None:
+        return StageVerdict("target", "not checked", f"not checked: skipped on request ({skipped})")
+    if target.passed is None:
+        return StageVerdict("target", "not checked", target.message)
+    if target.passed:
+        return StageVerdict("target", "pass", _target_figures(target))
+    return StageVerdict("target", "FAIL", target.message)
+
+
+def _rules_stage(target: Any, skipped: str) -> StageVerdict:
+    if target is None:
+        return StageVerdict("C rules", "not checked", f"not checked: skipped on request ({skipped})")
+    rules = target.rules
+    status = {True: "pass", False: "FAIL", None: "not checked"}[rules.passed]
+    return StageVerdict("C rules", status, rules.message)
+
+
 def _quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
     if quantisation.passed:
         return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec")
@@ -338,6 +376,7 @@ def run_design_job(
     prefix: str | None = None,
     force: bool = False,
     compile: bool = True,
+    target: bool = True,
     simulate: bool = True,
     progress: Progress | None = None,
     gains_name: str = "gains.yaml",
@@ -362,6 +401,10 @@ def run_design_job(
         were edited since.
     compile : bool
         Compile the C and run the host harness (when a compiler exists).
+    target : bool
+        Build the C for the target cores, run it emulated, count its
+        instructions and check its coding rules (when the tools exist; not
+        without ``compile``).
     simulate : bool
         Run the default scheduled simulation (:func:`default_scenario`).
     progress : callable, optional
@@ -386,6 +429,7 @@ def run_design_job(
     from ..codegen.emit import render_files
     from ..codegen.harness import check_generated_c
     from ..codegen.quantisation import check_quantisation
+    from ..codegen.target import check_target
     from ..codegen.verdict import table_verdict
     from ..design.engine import design
     from ..design.gainsfile import render_gains
@@ -439,6 +483,11 @@ def run_design_job(
             step("check C", 0)
             harness = check_generated_c([stage / n for n in c_texts], result.table, **scales)
             step("check C", 1)
+        target_result = None
+        if target and compile:
+            step("target", 0)
+            target_result = check_target([stage / n for n in c_texts], result.table, host=harness, **scales)
+            step("target", 1)
 
         simulation = description = None
         if simulate:
@@ -454,6 +503,7 @@ def run_design_job(
             "c_files": sorted(c_texts),
             "gains_file": gains_name,
             "compile": bool(compile),
+            "target": bool(target and compile),
             "simulate": bool(simulate),
             **{key: value for key, value in scales.items() if value is not None},
         }
@@ -462,6 +512,7 @@ def run_design_job(
         log_files = render_verification(
             schedule=schedule, result=result, table=result.table, gains_path=stage / gains_name,
             harness=harness, quantisation=quantisation, simulation=simulation, options=options, plots=True,
+            target=target_result,
         )
         step("log", 1)
 
@@ -481,6 +532,8 @@ def run_design_job(
                      + ("header marked verified" if verdict.verified else
                         f"header NOT VERIFIED: builds only with {c_names(prefix).accept_unverified} defined")),
         _harness_stage(harness),
+        _target_stage(target_result, "--no-compile" if not compile else "--no-target"),
+        _rules_stage(target_result, "--no-compile" if not compile else "--no-target"),
         _quantisation_stage(quantisation, number_format),
         _simulation_stage(simulation),
         StageVerdict("log", "written", ", ".join(sorted(log_files))),
@@ -495,6 +548,7 @@ def run_design_job(
         schedule=schedule,
         design=result,
         harness=harness,
+        target=target_result,
         quantisation=quantisation,
         simulation=simulation,
         scenario=description,

@@ -46,6 +46,8 @@ _POINT = _obj({
     "failed": {"list": STRING},
     "binding": (STRING, NULL),
     "notes": {"list": STRING},
+    "warnings": {"list": STRING},
+    "compromise": BOOL,
     "sample_period_s": NUMBER,
     "delay_samples": NUMBER,
     "dead_time_s": NUMBER,
@@ -145,6 +147,59 @@ _C_CHECK = _obj({
     "output_sha256": (STRING, NULL),
 })
 
+# The target block is TargetResult.to_dict() of gainloom.codegen.target.
+_SPREAD = _obj({"calls": INT, "min": (INT, NULL), "median": (NUMBER, NULL), "max": (INT, NULL)})
+_TARGET_CORE = _obj({
+    "core": STRING,
+    "label": STRING,
+    "machine": STRING,
+    "machine_note": STRING,
+    "build": _obj({
+        "core": STRING,
+        "compiled": {"map": BOOL},
+        "flags": {"list": STRING},
+        "functions": {"list": _obj({
+            "name": STRING,
+            "code_bytes": INT,
+            "stack_bytes": (INT, NULL),
+            "stack_bounded": BOOL,
+            "helpers": {"list": _obj({"symbol": STRING, "kind": STRING, "allowed": BOOL})},
+        })},
+        "tables": {"map": INT},
+        "table_bytes": INT,
+        "flash_bytes": INT,
+        "ram_bytes": INT,
+        "diagnostics": STRING,
+    }),
+    "emulated_run": (_obj({
+        "core": STRING,
+        "status": STRING,
+        "message": STRING,
+        "identical_to_host": (BOOL, NULL),
+        "worst_gain_error": NUMBER,
+        "worst_step_error": NUMBER,
+    }), NULL),
+    "instructions": (_obj({"core": STRING, "lookup": _SPREAD, "step": _SPREAD}), NULL),
+})
+_RULES = _obj({
+    "status": STRING,
+    "message": STRING,
+    "tool": (STRING, NULL),
+    "flags": {"list": STRING},
+    "undocumented": {"list": _obj({"file": STRING, "line": INT, "severity": STRING, "rule": STRING,
+                                   "documented": BOOL})},
+    "deviations": {"list": _obj({"rule": STRING, "findings": INT, "reason": STRING})},
+})
+_TARGET = _obj({
+    "status": STRING,
+    "message": STRING,
+    "number_format": STRING,
+    "instruction_method": STRING,
+    "missing_tools": {"list": STRING},
+    "cores": {"list": _TARGET_CORE},
+    "rules": (_RULES, NULL),
+})
+
 # The simulation block is SimulationResult.to_dict(series=False) of the
 # simulation layer; its inner layout is documented there.
 _SIMULATION = _obj(
@@ -177,6 +232,8 @@ SCHEMA: dict[str, Any] = _obj(
             "design": BOOL,
             "quantisation": (BOOL, NULL),
             "c_check": (BOOL, NULL),
+            "target": (BOOL, NULL),
+            "c_rules": (BOOL, NULL),
             "simulation": (BOOL, NULL),
             "reasons": {"list": STRING},
             "not_checked": {"list": STRING},
@@ -214,6 +271,7 @@ SCHEMA: dict[str, Any] = _obj(
         "table_checks": _TABLE_CHECKS,
         "quantisation": (_QUANTISATION, NULL),
         "c_check": (_C_CHECK, NULL),
+        "target": (_TARGET, NULL),
         "simulation": (_SIMULATION, NULL),
         "warnings": {"list": STRING},
         "cautions": {"list": STRING},

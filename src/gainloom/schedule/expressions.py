@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import ScheduleError
-from .limits import MAX_EXPRESSION_DEPTH, MAX_EXPRESSION_LENGTH
+from ..limits import MAX_EXPRESSION_DEPTH, MAX_EXPRESSION_LENGTH
 from .nodes import Node, did_you_mean
 
 __all__ = ["Expression", "FUNCTIONS", "CONSTANTS", "parse_expression"]

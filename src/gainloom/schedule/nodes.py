@@ -19,7 +19,7 @@ import yaml
 
 from ..errors import ScheduleError
 from ..names import unknown_name_message
-from .limits import size_text
+from ..limits import size_text
 
 __all__ = ["Node", "compose_text", "did_you_mean"]
 

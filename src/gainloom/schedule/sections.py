@@ -25,7 +25,7 @@ from .model import (
     Tolerances,
 )
 from .nodes import Node
-from . import limits
+from .. import limits
 
 __all__ = [
     "read_controller",

@@ -1,6 +1,7 @@
-"""What a schedule may ask for: limits checked before anything is evaluated
-or allocated, so an absurd input is one located error, never a hang, a
-``MemoryError`` or a ``RecursionError``.
+"""What a schedule, or a loop given on the command line, may ask for:
+limits checked before anything is evaluated or allocated, so an absurd
+input is one located error, never a hang, a ``MemoryError`` or a
+``RecursionError``.  Any layer may read them (like :mod:`gainloom.names`).
 
 Every limit is documented in ``docs/schedule-format.md`` ("Limits"); the
 values are generous for motor drives and power converters (common practice,

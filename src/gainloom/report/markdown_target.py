@@ -1,0 +1,78 @@
+"""The "Target cores" section of ``verification.md``: builds, helpers, sizes,
+emulated runs and instruction counts per core, and the coding-rule check."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from .markdown import _table as table_lines  # the one Markdown table writer of the log
+from .markdown import number
+
+__all__ = ["target_section"]
+
+
+def _spread(spread: dict[str, Any] | None) -> str:
+    if not spread or not spread["calls"]:
+        return "-"
+    return f"{spread['min']} / {number(spread['median'])} / {spread['max']}"
+
+
+def _helpers(function: dict[str, Any]) -> str:
+    if not function["helpers"]:
+        return "none"
+    kinds: dict[tuple[str, bool], list[str]] = {}
+    for h in function["helpers"]:
+        kinds.setdefault((h["kind"], h["allowed"]), []).append(h["symbol"])
+    return "; ".join(f"{kind}{'' if allowed else ' (NOT acceptable)'}: {', '.join(symbols)}"
+                     for (kind, allowed), symbols in kinds.items())
+
+
+def _cores(target: dict[str, Any]) -> list[str]:
+    rows, functions = [], []
+    for core in target["cores"]:
+        build, run, counts = core["build"], core["emulated_run"], core["instructions"]
+        compiled = ", ".join(f"{std} {'clean' if ok else 'FAILS'}" for std, ok in build["compiled"].items())
+        rows.append([
+            core["label"], core["machine"], compiled, build["flash_bytes"], build["ram_bytes"], build["table_bytes"],
+            _spread(counts["lookup"]) if counts else "-", _spread(counts["step"]) if counts else "-",
+            "-" if run is None else f"{run['status']}: {run['message']}",
+        ])
+        for f in build["functions"]:
+            stack = "-" if f["stack_bytes"] is None else f["stack_bytes"]
+            functions.append([core["core"], f["name"], f["code_bytes"], stack, _helpers(f)])
+    lines = table_lines(["core", "emulated on", "build", "flash B", "RAM B", "tables B",
+                         "instructions per lookup (min / median / max)", "per step (min / median / max)",
+                         "emulated run"], rows)
+    lines += table_lines(["core", "function", "code B", "stack B", "runtime helpers called"], functions)
+    lines += [f"Instruction counts: {target['instruction_method']}.", ""]
+    return lines
+
+
+def _rules(rules: dict[str, Any] | None) -> list[str]:
+    lines = ["### Coding rules: cppcheck and MISRA C:2012", ""]
+    if rules is None:
+        return lines + ["Not checked in this run.", ""]
+    lines += [f"Status **{rules['status']}**: {rules['message']}", ""]
+    if rules["undocumented"]:
+        lines += table_lines(["file", "line", "finding"],
+                             [[f["file"], f["line"], f["rule"]] for f in rules["undocumented"]])
+    if rules["deviations"]:
+        lines += ["Deviation records (docs/codegen.md):", ""]
+        lines += table_lines(["rule", "findings", "reason"],
+                             [[d["rule"], d["findings"], d["reason"]] for d in rules["deviations"]])
+    return lines
+
+
+def target_section(doc: dict[str, Any]) -> list[str]:
+    """Markdown lines of the target section (``doc["target"]`` may be null)."""
+    target = doc.get("target")
+    lines = ["## Target cores", ""]
+    if target is None:
+        return lines + ["Not checked in this run.", ""]
+    if target["status"] == "not-checked":
+        lines += [f"Not checked: {target['message'].removeprefix('not checked: ')}. This is neither a pass nor "
+                  "a failure: build and run the generated C with your firmware toolchain before use.", ""]
+    else:
+        lines += [f"Status **{target['status']}** ({target['number_format']}): {target['message']}", ""]
+        lines += _cores(target)
+    return lines + _rules(target["rules"])
