@@ -209,3 +209,22 @@ def test_command_refuses_a_schedule_without_draws(tmp_path, capsys):
     assert main(["spread", str(schedule), "--gains", str(gains), "--quiet"]) == 2
     error = capsys.readouterr().err.strip()
     assert error.startswith("gainloom spread: error:") and "\n" not in error and "samples: 10000" in error
+
+
+def test_merge_keeps_the_lowest_draw_among_equals_in_any_order():
+    from gainloom.design.spread import UnitResult, merge_results
+
+    def part(first_draw: int, badness: float) -> UnitResult:
+        return UnitResult(
+            point_index=np.array([0]), draws=np.array([10]), violations=np.array([[1]]),
+            any_violations=np.array([1]), worst_badness=np.array([[badness]]), worst_draw=np.array([[first_draw]]),
+            worst_value=np.array([[float(first_draw)]]), worst_factors=np.array([[[1.0 + first_draw]]]),
+        )
+
+    # -inf: a min-spec whose value is +inf at every draw (e.g. no phase crossover)
+    for badness in (-np.inf, 0.5):
+        parts = [part(30, badness), part(10, badness), part(20, badness)]
+        for order in (parts, parts[::-1]):
+            merged = merge_results(1, order, 1, 1)
+            assert merged.worst_draw[0, 0] == 10 and merged.worst_factors[0, 0, 0] == 11.0
+            assert merged.draws[0] == 30 and merged.violations[0, 0] == 3

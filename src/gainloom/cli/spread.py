@@ -49,10 +49,9 @@ def print_result(result) -> None:
             + [_percent(result.fraction[p, s]) for s in range(len(result.specs))]
             for p, label in enumerate(result.point_labels)]
     print(format_table(headers, rows))
-    totals = result.totals
     print("worst draw per spec (over all points):")
     for s, name in enumerate(result.specs):
-        p = int(np.argmax(np.where(totals.worst_draw[:, s] >= 0, totals.worst_badness[:, s], -np.inf)))
+        p = int(np.argmax(result.totals.worst_badness[:, s]))
         worst = result.worst(p, s)
         values = ", ".join(f"{n} = {format_number(v)} (x{format_number(worst['factors'][n], 4)})"
                            for n, v in worst["parameters"].items())

@@ -247,7 +247,8 @@ def merge_results(total: int, parts: list[UnitResult], specs: int, parameters: i
     out = UnitResult(
         point_index=np.arange(total), draws=np.zeros(total, int), violations=np.zeros((total, specs), int),
         any_violations=np.zeros(total, int), worst_badness=np.full((total, specs), -np.inf),
-        worst_draw=np.full((total, specs), -1), worst_value=np.full((total, specs), np.nan),
+        # no draw yet: below every badness (-inf included) on ties, so the lowest draw index wins
+        worst_draw=np.full((total, specs), np.iinfo(np.int64).max), worst_value=np.full((total, specs), np.nan),
         worst_factors=np.full((total, specs, parameters), np.nan),
     )
     for part in parts:
