@@ -522,7 +522,7 @@ def _table(sched, points_shape, axes_values, coefficients, plant) -> GainTable:
         axes=axes,
         coefficients={k: np.asarray(v, float).reshape(shape) for k, v in coefficients.items()},
         sample_period=np.asarray(plant.ts, float).reshape(shape),
-        output_limits=tuple(sched.controller.output_limits),
+        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(_grid_points(list(axes_values)))),
     )
 
 
