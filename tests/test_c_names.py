@@ -186,3 +186,20 @@ def test_a_bad_unit_in_the_schedule_is_refused_at_its_line(tmp_path):
     assert caught.value.line == 4 and caught.value.key_path == "variables[0].unit"
     assert "'*/'" in caught.value.message
 
+
+
+@pytest.mark.parametrize("command", ["emit", "design"])
+def test_an_empty_prefix_option_is_refused_not_replaced_by_the_default(tmp_path, capsys, command):
+    from gainloom.cli import main
+    from gainloom.design.gainsfile import write_gains
+    from test_design_job import PASSING
+
+    if command == "emit":
+        source = write_gains(make_table("pi"), tmp_path / "g.yaml")
+    else:
+        source = tmp_path / "s.yaml"
+        source.write_text(PASSING)
+    assert main([command, str(source), "--out", str(tmp_path / "out"), "--prefix", ""]) == 2
+    err = capsys.readouterr().err
+    assert "prefix is empty" in err and err.count("\n") == 1
+    assert not (tmp_path / "out").exists()

@@ -216,9 +216,12 @@ def test_cppcheck_and_misra_find_nothing_undocumented(tmp_path, number_format):
     table, files = _emit(tmp_path, number_format)
     caller = tmp_path / "caller.c"
     caller.write_text(measure_source(harness_program(table, generated_files(files)), "motor_ctl"))
-    result = check_rules(files, caller, TOOLS.cppcheck)
+    result = check_rules(files, caller, TOOLS.cppcheck, generated_files(files).defines)
     assert result.status == "passed", result.message
     assert all(f.rule.startswith("misra-c2012-") for f in result.findings)
+    if number_format == "q15":
+        # the fixed-point 2-D table meets every deviation: no record is kept that nothing needs
+        assert set(result.deviations()) == set(DEVIATIONS)
 
 
 @needs_cppcheck
@@ -280,12 +283,16 @@ def fan_jobs(tmp_path_factory):
     schedule.write_text(PASSING.replace("format: q15", "format: float32"))
     with_target = run_design_job(schedule, root / "with", simulate=False)
     without = run_design_job(schedule, root / "without", simulate=False, target=False)
-    return with_target, without
+    with pytest.MonkeyPatch.context() as patch:
+        # a machine without any target tool
+        patch.setattr("gainloom.codegen.target.find_target_tools", lambda: TargetTools(*[None] * 6))
+        no_tools = run_design_job(schedule, root / "no-tools", simulate=False)
+    return with_target, without, no_tools
 
 
 @needs_run
 def test_the_design_job_reports_the_target_figures(fan_jobs):
-    job, _ = fan_jobs
+    job, _, _ = fan_jobs
     stages = {s.stage: s for s in job.stages}
     assert stages["target"].status == "pass", stages["target"].detail
     assert "cortex-m0plus" in stages["target"].detail and "instructions" in stages["target"].detail
@@ -305,7 +312,7 @@ def test_the_design_job_reports_the_target_figures(fan_jobs):
 
 
 def test_a_skipped_target_stage_is_not_checked_never_passed(fan_jobs):
-    _, job = fan_jobs
+    _, job, _ = fan_jobs
     stages = {s.stage: s for s in job.stages}
     assert stages["target"].status == "not checked" and "--no-target" in stages["target"].detail
     assert stages["C rules"].status == "not checked"
@@ -324,3 +331,23 @@ def test_cppcheck_and_misra_on_uniform_fixed_point_axes(tmp_path, number_format)
     caller.write_text(measure_source(harness_program(table, generated_files(files)), "motor_ctl"))
     result = check_rules(files, caller, TOOLS.cppcheck)
     assert result.status == "passed", result.message
+
+
+def test_a_machine_without_the_tools_reports_not_checked(fan_jobs):
+    _, _, job = fan_jobs
+    stages = {s.stage: s for s in job.stages}
+    assert stages["target"].status == "not checked" and "arm-none-eabi-gcc" in stages["target"].detail
+    assert stages["C rules"].status == "not checked" and "cppcheck not found" in stages["C rules"].detail
+    assert job.exit_code == 0 and {"target", "C rules"} <= set(job.not_checked)
+    doc = json.loads((job.out_dir / "verification.json").read_text())
+    assert doc["target"]["status"] == "not-checked" and doc["verdict"]["target"] is None
+    assert "Not checked:" in (job.out_dir / "verification.md").read_text()
+
+
+@needs_run
+def test_the_log_names_the_toolchain_of_the_figures(fan_jobs):
+    job, _, _ = fan_jobs
+    doc = json.loads((job.out_dir / "verification.json").read_text())
+    installed = subprocess.run([TOOLS.gcc, "--version"], capture_output=True, text=True, check=True).stdout
+    assert doc["target"]["toolchain"]["gcc"] == installed.splitlines()[0].strip()
+    assert doc["target"]["toolchain"]["qemu"].startswith("QEMU emulator version")

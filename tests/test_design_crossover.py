@@ -331,3 +331,38 @@ def test_worst_case_needs_a_crossover_objective(tmp_path):
     path.write_text(text)
     with pytest.raises(gainloom.errors.DesignError, match="worst-case needs objective max-crossover"):
         gainloom.design(path)
+
+
+def test_step_specs_fall_back_over_the_whole_space(tmp_path):
+    # overshoot is not a gain set: the largest-crossover PI at PM 50 deg overshoots more than 8 %,
+    # so the design takes the best-ranked (shape, gain) whose step response passes
+    path = tmp_path / "s.yaml"
+    path.write_text(SPINDLE.format(tolerances="").replace("  min_gain_margin: 8", "  min_gain_margin: 8\n  max_overshoot: 8"))
+    result = gainloom.design(path)
+    assert result.status == ("pass",) * 3, result.notes
+    assert all("missed overshoot/settling" in " ".join(n) for n in result.notes), result.notes
+    for p, point in enumerate(result.points):
+        c = {k: float(v[p]) for k, v in result.analysis.coefficients.items()}
+        closed = control.feedback(spindle_loop(2.5e-3 * point[0], 0.35, c["kp"], c["ki_ts"]), 1)
+        info = control.step_info(closed, T=np.arange(0, 0.5, 1.25e-4))  # python-control step response
+        assert info["Overshoot"] <= 8 + 1e-6
+        gm, pm = poly_margins(spindle_loop(2.5e-3 * point[0], 0.35, c["kp"], c["ki_ts"]))
+        assert pm >= 50 - 1e-6 and 20 * math.log10(gm) >= 8 - 1e-6
+
+
+def test_lead_keeps_low_frequency_gain(tmp_path):
+    # docs/design.md tracking rule: without an integrator the loop gain at zero frequency is >= 1
+    path = tmp_path / "s.yaml"
+    path.write_text(RL.format(objective="max-crossover", extra="", pm=45, gm=6, more="", count=2)
+                    .replace("structure: pi", "structure: lead"))
+    result = gainloom.design(path)
+    assert result.status == ("pass", "pass"), result.notes
+    for p, point in enumerate(result.points):
+        c = {k: float(v[p]) for k, v in result.analysis.coefficients.items()}
+        L = 2.0e-3 - 1.2e-3 * point[0] / 30
+        plant = control.c2d(control.tf([1.0], [L, 0.5]), TS, method="zoh")
+        z = control.tf([1.0, 0.0], [1.0], TS)
+        loop = c["kc"] * (z - c["zc"]) / (z - c["pc"]) * plant / z  # DEVELOPERS.md lead form
+        assert abs(control.dcgain(loop)) >= 1 - 1e-9  # python-control: L(z = 1)
+        gm, pm, _, _ = control.margin(loop)
+        assert pm >= 45 - 1e-6 and 20 * math.log10(gm) >= 6 - 1e-6

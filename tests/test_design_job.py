@@ -296,7 +296,7 @@ def _fake(settling, decay, ts=1e-3, limits=(-1.0, 2.0)):
     other = SimpleNamespace(name="y", values=np.array([1.0, 2.0, 7.0]))
     result = SimpleNamespace(
         analysis=SimpleNamespace(settling_time=np.array(settling), decay=np.array(decay)),
-        table=SimpleNamespace(sample_period=np.full(len(settling), ts), output_limits=limits),
+        table=SimpleNamespace(sample_period=np.full(len(settling), ts), output_limits=limits, limit_envelope=limits),
     )
     return SimpleNamespace(axes=(axis, other)), result
 

@@ -23,6 +23,10 @@ from gainloom.outputs import MANIFEST_NAME, OutputConflictError, OutputWriteErro
 from test_codegen_cases import make_table
 from test_design_job import PASSING
 
+# the passing demo schedule on two points, no between-point check: fast full runs
+TINY = PASSING.replace("values: [10, 40, 70, 100]", "values: [10, 100]").replace("between_points: 2", "between_points: 0")
+assert TINY != PASSING
+
 
 def _cli(capsys, *args):
     code = main([str(a) for a in args])
@@ -177,7 +181,7 @@ def test_a_read_only_folder_is_one_line(tmp_path, gains, capsys, monkeypatch):
 
 
 def test_too_long_output_file_name_is_refused(tmp_path):
-    with pytest.raises(Exception, match="longer than 255 bytes"):
+    with pytest.raises(outputs.InputError, match="longer than 255 bytes"):
         write_outputs(tmp_path, {"g" * 256 + ".yaml": "x"})
 
 
@@ -216,7 +220,7 @@ def test_disk_full_during_emit_keeps_the_earlier_files(tmp_path, gains, capsys, 
 
 def test_disk_full_on_a_new_folder_leaves_nothing_and_never_reports_success(tmp_path, capsys, monkeypatch):
     schedule = tmp_path / "s.yaml"
-    schedule.write_text(PASSING)
+    schedule.write_text(TINY)
     out = tmp_path / "new" / "out"
     _disk_fills_after(monkeypatch, 20000)
     code, stdout, err = _cli(capsys, "design", schedule, "--out", out, "--no-compile", "--no-simulate", "--quiet")
@@ -264,7 +268,7 @@ def test_locus_plot_with_an_empty_name_is_refused(capsys):
 
 def test_simulate_plot_into_a_design_folder_does_not_block_the_next_design(tmp_path, capsys):
     schedule = tmp_path / "s.yaml"
-    schedule.write_text(PASSING)
+    schedule.write_text(TINY)
     out = tmp_path / "out"
     fast = ("--no-compile", "--no-simulate", "--quiet")
     assert _cli(capsys, "design", schedule, "--out", out, *fast)[0] == 0

@@ -520,16 +520,16 @@ def _mirror_outputs(program: HarnessProgram) -> tuple[np.ndarray, np.ndarray]:
         [np.concatenate([first.output, second.output])]
         + [np.concatenate([first.states[f], second.states[f]]) for f in fields]
     )
-    mirror_table = np.column_stack([mirror_gains[c.name] for c in layout.coefficients])
+    mirror_table = np.column_stack([mirror_gains[c.name] for c in layout.looked_up])
     return mirror_table, mirror_steps
 
 
 def _tolerances(layout: TableLayout, mirror_steps: np.ndarray, steps: int) -> tuple[np.ndarray, np.ndarray]:
     """Accepted differences per coefficient and per printed signal (see the module notes)."""
     if layout.fmt.is_fixed:
-        return np.zeros(len(layout.coefficients)), np.zeros(mirror_steps.shape[1])
+        return np.zeros(len(layout.looked_up)), np.zeros(mirror_steps.shape[1])
     stages = 3 if len(layout.axes) == 2 else 1
-    gain_tol = np.array([4 * stages * _EPS32 * float(np.max(np.abs(c.stored))) for c in layout.coefficients])
+    gain_tol = np.array([4 * stages * _EPS32 * float(np.max(np.abs(c.stored))) for c in layout.looked_up])
     with np.errstate(invalid="ignore"):
         scale = np.nanmax(np.abs(mirror_steps), axis=0)
     step_tol = 8 * _EPS32 * np.sqrt(steps) * np.maximum(scale, max(abs(float(v)) for v in layout.limits))

@@ -54,11 +54,14 @@ from .qformat import (
     segment_reciprocals,
 )
 
-__all__ = ["GAIN_COEFFICIENTS", "AxisLayout", "CoefficientLayout", "TableLayout", "layout_table"]
+__all__ = ["GAIN_COEFFICIENTS", "LIMIT_TABLES", "AxisLayout", "CoefficientLayout", "TableLayout", "layout_table"]
 
 #: Coefficients that carry the loop gain (output units per error unit); they
 #: are normalised by ``error_full_scale / output_full_scale`` in fixed point.
 GAIN_COEFFICIENTS: frozenset[str] = frozenset({"kp", "ki_ts", "kd_b", "kc"})
+
+#: Names of the tabulated output limits in the tables and ``<prefix>_gains_t``.
+LIMIT_TABLES: tuple[str, str] = ("u_min", "u_max")
 
 _FLOAT32_MAX = float(np.finfo(np.float32).max)
 #: Largest axis breakpoint magnitude in the fixed-point axis format.
@@ -167,7 +170,13 @@ class TableLayout:
     error_full_scale, output_full_scale : float or None
         Signal full-scale values (fixed point); ``None`` for float32.
     limits : tuple
-        Output limits as stored: Q3.28 integers (fixed point) or float32.
+        Output limits as stored: Q3.28 integers (fixed point) or float32;
+        for tabulated limits their envelope (lowest ``u_min``, highest
+        ``u_max``).
+    limit_tables : tuple of CoefficientLayout
+        Tabulated limits ``u_min``, ``u_max`` (empty when the limits are
+        constant), stored in the output's format (Q15/Q31 of output full
+        scale, or float32) and looked up with the coefficients.
     """
 
     table: GainTable
@@ -177,6 +186,12 @@ class TableLayout:
     error_full_scale: float | None
     output_full_scale: float | None
     limits: tuple
+    limit_tables: tuple[CoefficientLayout, ...] = ()
+
+    @property
+    def looked_up(self) -> tuple[CoefficientLayout, ...]:
+        """Everything the lookup interpolates: the coefficients, then any tabulated limits."""
+        return self.coefficients + self.limit_tables
 
     @property
     def structure(self) -> str:
@@ -198,7 +213,9 @@ class TableLayout:
         """
         axes = tuple(TableAxis(a.name, a.unit, a.stored_physical) for a in self.axes)
         coefficients = {c.name: c.physical for c in self.coefficients}
-        if self.fmt.is_fixed:
+        if self.limit_tables:
+            limits = tuple(item.physical for item in self.limit_tables)
+        elif self.fmt.is_fixed:
             scale = self.output_full_scale / 2.0**STATE_FRAC
             limits = (self.limits[0] * scale, self.limits[1] * scale)
         else:
@@ -297,7 +314,7 @@ def layout_table(
         identifier fragment, or full-scale values are given for float32.
     """
     fmt = number_format if isinstance(number_format, NumberFormat) else _format(number_format)
-    low, high = table.output_limits
+    low, high = table.limit_envelope
     if not fmt.is_fixed:
         if error_full_scale is not None or output_full_scale is not None:
             raise CodegenError("full-scale values apply to q15 and q31 only; float32 works in physical units")
@@ -305,7 +322,12 @@ def layout_table(
         coefficients = tuple(
             _coefficient_layout(name, table.coefficients[name], fmt, 1.0) for name in table.coefficient_names
         )
-        return TableLayout(table, fmt, axes, coefficients, None, None, (np.float32(low), np.float32(high)))
+        limit_tables = ()
+        if table.limits_vary:
+            limit_tables = tuple(CoefficientLayout(name, grid.astype(np.float32), None, 1.0)
+                                 for name, grid in zip(LIMIT_TABLES, table.limit_grids))
+        return TableLayout(table, fmt, axes, coefficients, None, None, (np.float32(low), np.float32(high)),
+                           limit_tables)
     error_fs = 1.0 if error_full_scale is None else float(error_full_scale)
     output_fs = max(abs(low), abs(high)) if output_full_scale is None else float(output_full_scale)
     for label, value in (("error_full_scale", error_fs), ("output_full_scale", output_fs)):
@@ -324,7 +346,14 @@ def layout_table(
     limits = tuple(int(quantize(value / output_fs, STATE_FRAC, 32)) for value in (low, high))
     if not limits[0] < limits[1]:
         raise CodegenError(f"output limits ({low:g}, {high:g}) collapse in Q3.28 of full scale {output_fs:g}")
-    return TableLayout(table, fmt, axes, coefficients, error_fs, output_fs, limits)
+    limit_tables = ()
+    if table.limits_vary:
+        frac = fmt.signal_frac
+        limit_tables = tuple(CoefficientLayout(name, quantize(grid / output_fs, frac, fmt.bits), frac, output_fs)
+                             for name, grid in zip(LIMIT_TABLES, table.limit_grids))
+        if not np.all(limit_tables[0].stored < limit_tables[1].stored):
+            raise CodegenError(f"tabulated output limits collapse somewhere in {fmt.name} of full scale {output_fs:g}")
+    return TableLayout(table, fmt, axes, coefficients, error_fs, output_fs, limits, limit_tables)
 
 
 def _format(name: str) -> NumberFormat:

@@ -148,7 +148,7 @@ def lookup_gains(layout: TableLayout, *inputs) -> dict[str, np.ndarray]:
     inputs = np.broadcast_arrays(*[np.asarray(v) for v in inputs])
     located = [locate(axis, layout.fmt.is_fixed, layout.fmt.interp_frac, x) for axis, x in zip(layout.axes, inputs)]
     result = {}
-    for coefficient in layout.coefficients:
+    for coefficient in layout.looked_up:
         table = coefficient.stored
         if len(located) == 1:
             (i, t), = located
@@ -247,6 +247,7 @@ class FloatStepper:
         self.fields = state_fields(structure)
         self.g = {name: np.asarray(values).astype(dtype) for name, values in gains.items()}
         self.u_min, self.u_max = dtype(limits[0]), dtype(limits[1])
+        self.tabulated = "u_min" in self.g  # limits looked up per sample with the coefficients
         self.zero = dtype(0)
         self.state = dict.fromkeys(self.fields, self.zero)
 
@@ -260,7 +261,7 @@ class FloatStepper:
         g, state, structure, zero = self.g, self.state, self.structure, self.zero
         e = error if np.isfinite(error) else zero
         f = zero if feedforward is None or not np.isfinite(feedforward) else self.dtype(feedforward)
-        u_min, u_max = self.u_min, self.u_max
+        u_min, u_max = (g["u_min"][k], g["u_max"][k]) if self.tabulated else (self.u_min, self.u_max)
         if limits is not None and limits[0] <= limits[1]:
             u_min, u_max = self.dtype(limits[0]), self.dtype(limits[1])
         if structure in ("lead", "lag"):
@@ -338,6 +339,8 @@ class FixedStepper:
         es = self._to_state(error)
         fs = self._to_state(feedforward)
         u_min, u_max = self.u_min, self.u_max
+        if "u_min" in self.g:  # tabulated limits, in the output's format
+            u_min, u_max = self._to_state(self.g["u_min"][k]), self._to_state(self.g["u_max"][k])
         if limits is not None and int(limits[0]) <= int(limits[1]):
             u_min, u_max = self._to_state(limits[0]), self._to_state(limits[1])
         if structure in ("lead", "lag"):

@@ -212,10 +212,12 @@ def _context(
         )
     columns = layout.axes[1].size if len(layout.axes) == 2 else 1
     coefficients = []
-    for item in layout.coefficients:
+    for item in layout.looked_up:
         rows = np.asarray(item.stored).reshape(-1, columns)
         if fmt.is_fixed:
-            if item.name in GAIN_COEFFICIENTS:
+            if item in layout.limit_tables:
+                recipe = f"round({item.name} / output_full_scale * 2^{item.frac}), ties away from zero (output format)"
+            elif item.name in GAIN_COEFFICIENTS:
                 recipe = (
                     f"round({item.name} * error_full_scale / output_full_scale * 2^{item.frac}), "
                     "ties away from zero"
@@ -276,9 +278,13 @@ def _context(
         "coefficients": coefficients,
         "columns": columns,
         "limits": limits,
-        "table_low": f"{upper}_U_MIN",
-        "table_high": f"{upper}_U_MAX",
-        "limits_physical": [repr(float(v)) for v in layout.table.output_limits],
+        # the limits in force without run-time limits: looked up per point when tabulated
+        "table_low": (f"{names.local('to_state')}(gains->u_min)" if fmt.is_fixed else "gains->u_min")
+        if layout.limit_tables else f"{upper}_U_MIN",
+        "table_high": (f"{names.local('to_state')}(gains->u_max)" if fmt.is_fixed else "gains->u_max")
+        if layout.limit_tables else f"{upper}_U_MAX",
+        "limits_tabulated": bool(layout.limit_tables),
+        "limits_physical": [repr(float(v)) for v in layout.table.limit_envelope],
         "error_full_scale": repr(layout.error_full_scale) if fmt.is_fixed else "",
         "output_full_scale": repr(layout.output_full_scale) if fmt.is_fixed else "",
         "sample_period": (

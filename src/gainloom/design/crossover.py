@@ -42,6 +42,14 @@ first pass reached) and, among the shapes that do, takes the one whose
 slowest zero is fastest: the most integral action for a bounded, stated
 crossover cost.
 
+Tracking (our rule).  Without an integrator, the largest crossover under
+margin specs alone is often a band-pass loop: a lead zero at ``z -> 1`` and
+its pole at ``z -> 0`` kill the low-frequency gain, and the "crossover" is
+bought with a loop that no longer follows its reference.  So for p, pd, lead,
+lag and leadlag the loop gain at zero frequency must be at least
+``DC_GAIN`` (a step leaves at most 50 % static error); a gain set like the
+others, ``K >= DC_GAIN / |H(1)|``.
+
 Shapes.  The coarse grid is evaluated for all points at once; ties (within
 ``TIE``) go to the shape nearest the neighbouring point's choice, which keeps
 tables smooth; then a pattern search refines each point's shape (moving only
@@ -67,7 +75,7 @@ from .specs import SpecLimits
 from .strategies import LEAD_RATIO, _pack
 from .structures import filter_pole
 
-__all__ = ["CrossoverChoice", "crossover_design", "INTEGRAL_COST", "shape_space"]
+__all__ = ["CrossoverChoice", "crossover_design", "ranked_alternatives", "INTEGRAL_COST", "shape_space"]
 
 #: Crossover given up for integral action in pi and pid designs (relative).
 #: Our choice (no source), see docs/design.md.
@@ -75,6 +83,10 @@ INTEGRAL_COST = 0.03
 #: Hard floor besides: the slowest zero of pi/pid is at least
 #: crossover / INTEGRAL_SPAN (two decades; our choice, no source).
 INTEGRAL_SPAN = 100.0
+#: Least loop gain at zero frequency, ``|K H(1)|``, of structures without an
+#: integrator (p, pd, lead, lag, leadlag): static error of a step at most
+#: 1/(1 + DC_GAIN) = 50 %.  Our rule (no source), see the module docstring.
+DC_GAIN = 1.0
 #: Coarse grid points per shape parameter (one- and two-parameter shapes).
 GRID_1D = 48
 GRID_2D = 16
@@ -200,6 +212,8 @@ class _Context:
     w_low: np.ndarray
     #: crossover band the shapes must keep (second pass), rad/s
     band: tuple[np.ndarray, np.ndarray] | None = None
+    #: apply the integral floor and the tracking rule (off: the specs alone)
+    rules: bool = True
 
 
 def _spec(limits: SpecLimits, name: str) -> np.ndarray:
@@ -231,6 +245,11 @@ def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, cap: np.ndarray, rows
     bandwidth = _spec(lim, "min_bandwidth")[points]
     if np.any(np.isfinite(bandwidth)):
         parts.append(gs.bandwidth_gains(loops, bandwidth, grid))
+    if ctx.rules and ctx.structure not in ("pi", "pid"):
+        # loop gain at zero frequency at least DC_GAIN: otherwise the best
+        # "crossover" is a band-pass loop that does not track (see module doc)
+        floor = np.where(np.isfinite(grid.log_k0), DC_GAIN * np.exp(grid.log_k0), 0.0)
+        parts.append([[(float(f), math.inf)] for f in floor])
     return gs.intersect_all(sets, *parts), grid
 
 
@@ -300,7 +319,7 @@ def _evaluate(ctx: _Context, log_rates: np.ndarray):
     P, S = log_rates.shape[:2]
     ts = np.asarray(ctx.plants[0].ts, float)
     shapes = _shapes(ctx.structure, log_rates, ts, ctx.kd_a)
-    cap = _integral_cap(ctx.structure, log_rates)
+    cap = _integral_cap(ctx.structure, log_rates) if ctx.rules else np.full(log_rates.shape[:2], np.inf)
     rows_p = np.repeat(np.arange(P), S)
     flat = np.flatnonzero(shapes.valid.reshape(-1))
     sets_all: list = [[] for _ in range(P * S)]
@@ -357,8 +376,9 @@ def _tie_break(score: np.ndarray, log_rates: np.ndarray, neighbours: np.ndarray,
     return pick
 
 
-def _refine(ctx: _Context, x: np.ndarray, value: np.ndarray, step: np.ndarray, relative: bool):
-    """Pattern search on the log rates ``x`` (P, d) from their coarse scores."""
+def _refine(ctx: _Context, x: np.ndarray, value: np.ndarray, step: np.ndarray, relative: bool,
+            bounds: tuple[np.ndarray, np.ndarray]):
+    """Pattern search on the log rates ``x`` (P, d) from their coarse scores, inside the shape space."""
     P, d = x.shape
     if d == 0:
         return x, value
@@ -366,6 +386,9 @@ def _refine(ctx: _Context, x: np.ndarray, value: np.ndarray, step: np.ndarray, r
     step = np.broadcast_to(step, (P, d)).copy()
     for _ in range(REFINE_ROUNDS):
         trial = x[:, None, :] + offsets[None, :, :] * step[:, None, :]
+        # stay inside the searched space: a pole pushed past its end would only
+        # wander in the numerically empty region z < e^-2pi
+        trial = np.clip(trial, bounds[0][:, None, None], bounds[1][:, None, None])
         _, score, _, _, _ = _evaluate(ctx, trial)
         j = np.argmax(score, axis=1)
         best = score[np.arange(P), j]
@@ -387,6 +410,7 @@ def crossover_design(
     target_crossover: float | None = None,
     derivative_filter: float | None = None,
     corners: tuple[Loop, ...] = (),
+    rules: bool = True,
 ) -> CrossoverChoice:
     """Search the whole shape space and gain for every point (see the module docstring).
 
@@ -406,6 +430,9 @@ def crossover_design(
         Derivative filter time constant, s (pd, pid).
     corners : tuple of Loop
         The plant at each tolerance corner (worst-case design), same points.
+    rules : bool
+        Apply the integral floor and the tracking rule (default); off, only
+        the specs bound the search.
 
     Returns
     -------
@@ -423,6 +450,7 @@ def crossover_design(
         target=np.full(P, np.nan if target_crossover is None else float(target_crossover)),
         kd_a=np.broadcast_to(kd_a, (P,)).astype(float),
         w_low=np.exp(low) / 10.0,
+        rules=rules,
     )
     neighbours = _neighbours(np.asarray(points, float).reshape(P, -1))
     x, found = _search(ctx, low, high, neighbours, relative=objective == "max-crossover")
@@ -459,5 +487,59 @@ def _search(ctx: _Context, low: np.ndarray, high: np.ndarray, neighbours: np.nda
     x = coarse[np.arange(P), pick]
     d = coarse.shape[-1]
     n = GRID_1D if d == 1 else GRID_2D
-    x, value = _refine(ctx, x, score[np.arange(P), pick], ((high - low) / (n - 1))[:, None], relative)
+    x, value = _refine(ctx, x, score[np.arange(P), pick], ((high - low) / (n - 1))[:, None], relative, (low, high))
     return x, np.isfinite(value)
+
+
+#: Fractions of each coarse shape's best gain offered as step-response fallbacks.
+STEP_FRACTIONS = (1.0, 0.8, 0.6, 0.4, 0.25)
+
+
+def ranked_alternatives(
+    plant: Loop,
+    structure: str,
+    limits: SpecLimits,
+    objective: str,
+    *,
+    target_crossover: float | None = None,
+    derivative_filter: float | None = None,
+    corners: tuple[Loop, ...] = (),
+) -> tuple[Shapes, np.ndarray]:
+    """Feasible (shape, gain) pairs of the coarse grid, best objective first.
+
+    For the step-response specs, which are not gain sets: each coarse shape's
+    best gain and ``STEP_FRACTIONS`` of it (inside its feasible set), ordered
+    by the objective (the crossover moves with the gain for one shape; the
+    score is scaled by the fraction for ``max-crossover``).
+
+    Returns
+    -------
+    (Shapes, ndarray)
+        Shapes ``(P, C)`` and gains ``(P, C)``, NaN gain where there are fewer.
+    """
+    P = plant.points
+    ts = np.asarray(plant.ts, float)
+    kd_a = filter_pole(derivative_filter if derivative_filter is not None else 0.0, ts)
+    low, high = shape_space(plant)
+    ctx = _Context(
+        structure=structure, plants=(plant,) + tuple(corners), limits=limits, objective=objective,
+        target=np.full(P, np.nan if target_crossover is None else float(target_crossover)),
+        kd_a=np.broadcast_to(kd_a, (P,)).astype(float), w_low=np.exp(low) / 10.0,
+    )
+    coarse = _coarse(structure, low, high)
+    shapes, score, gain, _, sets = _evaluate(ctx, coarse)
+    S = coarse.shape[1]
+    fractions = np.asarray(STEP_FRACTIONS)
+    gains = gain[:, :, None] * fractions  # (P, S, F)
+    inside = np.zeros(gains.shape, dtype=bool)
+    for p in range(P):
+        for s in range(S):
+            for f, g in enumerate(gains[p, s]):
+                inside[p, s, f] = np.isfinite(g) and any(lo < g < hi for lo, hi in sets[p * S + s])
+    rank = np.where(inside, (score[:, :, None] * fractions) if objective == "max-crossover" else score[:, :, None] - fractions, -np.inf)
+    order = np.argsort(-rank.reshape(P, -1), axis=1, kind="stable")
+    flat_gain = np.where(inside, gains, np.nan).reshape(P, -1)
+    rows = np.arange(P)[:, None]
+    shape_of = order // fractions.size
+    picked = Shapes(*(getattr(shapes, f)[rows, shape_of] for f in ("zeros", "poles", "valid", "gain", "params")))
+    return picked, flat_gain[rows, order]

@@ -16,12 +16,12 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..lti.loop import Loop
-from .crossover import CrossoverChoice, crossover_design, shape_space
+from .crossover import CrossoverChoice, crossover_design, ranked_alternatives, shape_space
 from .diagnose import SPEC_WORDS
 from .search import Shapes
 from .specs import SpecLimits
 
-__all__ = ["CrossoverRun", "choose_by_crossover", "uses_crossover", "crossover_target"]
+__all__ = ["CrossoverRun", "choose_by_crossover", "uses_crossover", "crossover_target", "step_fallback"]
 
 #: Margin back-off of the crossover objectives (dB, deg), smaller than the
 #: general one (design/specs.py BACKOFF: 0.5 dB, 0.5 deg).  These objectives
@@ -127,13 +127,25 @@ def choose_by_crossover(sched, points: np.ndarray, plant: Loop, limits: SpecLimi
     corners = _corners(sched, points)
     kwargs = dict(target_crossover=crossover_target(controller), derivative_filter=controller.derivative_filter)
 
-    def run(rows: np.ndarray, lim: SpecLimits) -> CrossoverChoice:
-        return crossover_design(
-            _select(plant, rows), controller.structure, lim.select(rows), objective, points[rows],
-            corners=tuple(_select(c, rows) for c in corners), **kwargs,
-        )
-
     P = plant.points
+    ruled_out: set[int] = set()
+
+    def run(rows: np.ndarray, lim: SpecLimits) -> CrossoverChoice:
+        """Design ``rows``: with the integral and tracking rules, then without them where that finds nothing."""
+        def search(sub: np.ndarray, rules: bool) -> CrossoverChoice:
+            return crossover_design(
+                _select(plant, sub), controller.structure, lim.select(sub), objective, points[sub],
+                corners=tuple(_select(c, sub) for c in corners), rules=rules, **kwargs,
+            )
+
+        choice = search(rows, True)
+        miss = np.flatnonzero(~choice.feasible)
+        if miss.size:
+            bare = search(rows[miss], False)
+            choice = _merge(choice, bare, miss)
+            ruled_out.update(int(rows[m]) for m in miss[bare.feasible])
+        return choice
+
     everything = np.arange(P)
     choice = run(everything, _tightened(limits))
     notes: list[list[str]] = [[] for _ in range(P)]
@@ -145,6 +157,14 @@ def choose_by_crossover(sched, points: np.ndarray, plant: Loop, limits: SpecLimi
     if corners:
         for p in np.flatnonzero(choice.feasible):
             notes[p].append(f"designed for every spec at each of {len(corners)} tolerance samples (worst case)")
+    rule = (
+        "integral action slower than crossover/100 (the integral floor is dropped here)"
+        if controller.structure in ("pi", "pid")
+        else "a loop gain at zero frequency below 1 (static error above 50 %: it will not track well)"
+    )
+    for p in sorted(ruled_out):
+        if choice.feasible[p]:
+            notes[p].append(f"met the specs only with {rule}")
     binding: dict = {}
     gain = choice.gain.copy()
     failed = np.flatnonzero(~choice.feasible)
@@ -270,3 +290,48 @@ def _text(name: str, kind: str, best: float, written: float, structure: str, spa
         f"with every other spec met, the best {quantity} over that space is {best:.4g}{unit} "
         f"(spec {relation} {written:.6g}{unit}); the table holds that compromise (infeasible)"
     )
+
+
+#: Most (shape, gain) candidates simulated per point by :func:`step_fallback`.
+STEP_CANDIDATES = 60
+
+
+def step_fallback(sched, points: np.ndarray, plant: Loop, limits: SpecLimits, objective: str, failing: np.ndarray) -> dict:
+    """The best-ranked (shape, gain) over the whole space whose step response passes.
+
+    For points whose crossover design misses overshoot or settling time
+    (step-response specs are not gain sets): the coarse shapes' best gains and
+    fractions of them (:func:`gainloom.design.crossover.ranked_alternatives`)
+    are simulated in rank order, all points and candidates in one batch.
+
+    Returns
+    -------
+    dict
+        ``{point: (zeros, poles, params, gain, rank, count)}`` for the points
+        where a candidate passes every spec.
+    """
+    from .analysis import analyse
+    from .structures import LocusForm, coefficients_from_locus
+
+    controller = sched.controller
+    rows = np.asarray(failing)
+    shapes, gains = ranked_alternatives(
+        plant.select(rows), controller.structure, _tightened(limits).select(rows), objective,
+        target_crossover=crossover_target(controller), derivative_filter=controller.derivative_filter,
+        corners=_corners(sched, points[rows]),
+    )
+    count = min(STEP_CANDIDATES, gains.shape[1])
+    gains = gains[:, :count]
+    j, k = np.nonzero(np.isfinite(gains))
+    if j.size == 0:
+        return {}
+    form = LocusForm(gain=gains[j, k], zeros=shapes.zeros[j, k], poles=shapes.poles[j, k])
+    coefficients = coefficients_from_locus(controller.structure, form)
+    trial = analyse(plant.select(rows[j]), controller.structure, coefficients, limits.select(rows[j]))
+    out = {}
+    for n in np.flatnonzero(trial.passed):  # j, k ascend: the first passing one per point is the best ranked
+        p = int(rows[j[n]])
+        if p not in out:
+            out[p] = (shapes.zeros[j[n], k[n]], shapes.poles[j[n], k[n]], shapes.params[j[n], k[n]],
+                      float(gains[j[n], k[n]]), int(k[n]) + 1, int(np.count_nonzero(j == j[n])))
+    return out

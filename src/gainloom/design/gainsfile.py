@@ -86,7 +86,11 @@ def gains_document(
         "axes": [{"name": a.name, "unit": a.unit, "values": a.values.tolist()} for a in table.axes],
         "coefficients": {name: _grid(table.coefficients[name]) for name in table.coefficient_names},
         "sample_period": _grid(table.sample_period),
-        "output_limits": [float(table.output_limits[0]), float(table.output_limits[1])],
+        # two numbers, or two grids (first axis slowest) when the limits vary
+        "output_limits": (
+            [_grid(v) for v in table.output_limits] if table.limits_vary
+            else [float(table.output_limits[0]), float(table.output_limits[1])]
+        ),
     }
     if design is not None:
         doc["design"] = design
@@ -373,15 +377,22 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
     if not np.all(ts > 0):
         raise reader.error("sample periods must be positive seconds", "sample_period")
     limits = reader.get(data, "output_limits", "", (list,))
-    limits_array = reader.array(limits, "output_limits", (2,))
-    if not limits_array[0] < limits_array[1]:
-        raise reader.error(f"expected [u_min, u_max] with u_min < u_max; found {limits}", "output_limits")
+    if len(limits) == 2 and all(isinstance(v, list) for v in limits):
+        # tabulated limits: one grid per limit
+        limit_values = tuple(reader.array(v, f"output_limits[{i}]", shape) for i, v in enumerate(limits))
+        if not np.all(limit_values[0] < limit_values[1]):
+            raise reader.error("expected u_min < u_max at every grid point", "output_limits")
+    else:
+        limits_array = reader.array(limits, "output_limits", (2,))
+        if not limits_array[0] < limits_array[1]:
+            raise reader.error(f"expected [u_min, u_max] with u_min < u_max; found {limits}", "output_limits")
+        limit_values = (float(limits_array[0]), float(limits_array[1]))
     table = GainTable(
         structure=structure,
         axes=tuple(axes),
         coefficients=coefficients,
         sample_period=ts,
-        output_limits=(float(limits_array[0]), float(limits_array[1])),
+        output_limits=limit_values,
     )
     schedule = data.get("schedule") or {}
     if not isinstance(schedule, dict):

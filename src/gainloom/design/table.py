@@ -63,15 +63,18 @@ class GainTable:
         the grid's shape ``tuple(len(a.values) for a in axes)``.
     sample_period : ndarray
         Sample period in seconds at each grid point (grid shape).
-    output_limits : tuple of float
-        Controller output saturation ``(u_min, u_max)``, ``u_min < u_max``.
+    output_limits : tuple
+        Controller output saturation ``(u_min, u_max)``, ``u_min < u_max`` at
+        every point: two floats, or two arrays of the grid's shape when the
+        limits vary across the table (e.g. ``bus / sqrt(3)``); limits equal
+        at every point are stored as floats.
     """
 
     structure: str
     axes: tuple[TableAxis, ...]
     coefficients: dict[str, np.ndarray]
     sample_period: np.ndarray
-    output_limits: tuple[float, float]
+    output_limits: tuple
 
     def __post_init__(self) -> None:
         if self.structure not in CONTROLLER_STRUCTURES:
@@ -95,15 +98,43 @@ class GainTable:
         if not np.all(np.isfinite(ts) & (ts > 0)):
             raise InputError("sample periods must be finite and positive")
         object.__setattr__(self, "sample_period", ts)
-        low, high = (float(v) for v in self.output_limits)
-        if not low < high:
-            raise InputError(f"output limits must satisfy u_min < u_max; got {low}, {high}")
-        object.__setattr__(self, "output_limits", (low, high))
+        if len(self.output_limits) != 2:
+            raise InputError(f"output limits must be (u_min, u_max); got {self.output_limits!r}")
+        try:
+            low, high = (np.broadcast_to(np.asarray(v, dtype=float), shape) for v in self.output_limits)
+        except ValueError:
+            raise InputError(f"output limits must be numbers or arrays of the grid shape {shape}") from None
+        if not (np.all(np.isfinite(low)) and np.all(np.isfinite(high)) and np.all(low < high)):
+            raise InputError(
+                f"output limits must be finite with u_min < u_max at every point; got {low.ravel()[:4]}, "
+                f"{high.ravel()[:4]}"
+            )
+        if np.all(low == low.flat[0]) and np.all(high == high.flat[0]):
+            limits = (float(low.flat[0]), float(high.flat[0]))
+        else:
+            limits = (low.copy(), high.copy())
+        object.__setattr__(self, "output_limits", limits)
 
     @property
     def shape(self) -> tuple[int, ...]:
         """Grid shape, one entry per axis."""
         return tuple(axis.values.size for axis in self.axes)
+
+    @property
+    def limits_vary(self) -> bool:
+        """True when the output limits differ between points (tabulated)."""
+        return isinstance(self.output_limits[0], np.ndarray)
+
+    @property
+    def limit_grids(self) -> tuple[np.ndarray, np.ndarray]:
+        """``(u_min, u_max)`` as arrays of the grid's shape."""
+        return tuple(np.broadcast_to(np.asarray(v, dtype=float), self.shape) for v in self.output_limits)
+
+    @property
+    def limit_envelope(self) -> tuple[float, float]:
+        """The lowest ``u_min`` and the highest ``u_max`` over the table."""
+        low, high = self.limit_grids
+        return float(np.min(low)), float(np.max(high))
 
     @property
     def coefficient_names(self) -> tuple[str, ...]:

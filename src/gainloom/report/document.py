@@ -341,7 +341,8 @@ def verification_document(
             "structure": table.structure,
             "axes": [{"name": a.name, "unit": a.unit, "values": a.values.tolist()} for a in table.axes],
             "coefficient_names": list(table.coefficient_names),
-            "output_limits": list(table.output_limits),
+            # tabulated limits: their envelope (the per-point values are in the gains file)
+            "output_limits": list(table.limit_envelope),
         },
         "points": entries,
         "worst_cases": _worst_cases(entries),

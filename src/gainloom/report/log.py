@@ -77,6 +77,7 @@ def render_verification(
     """
     from ..schedule import Schedule, load_schedule
     from . import plots as drawing
+    from .frequency_plot import plot_frequency
 
     sched = schedule if isinstance(schedule, Schedule) else load_schedule(schedule)
     if int(np.prod(table.shape)) != len(result.points):
@@ -92,7 +93,7 @@ def render_verification(
     # entries, the document needs the plot names.
     names: list[str] = []
     if plots:
-        names = ["gains.png", "margins.png", "step.png"]
+        names = ["gains.png", "margins.png", "step.png", "frequency.png"]
     draft = verification_document(schedule=sched, result=result, table=table, gains_path=gains_path,
                                   harness=harness, quantisation=quantisation, simulation=simulation,
                                   options=options, plots=names, timestamp=stamp, target=target)
@@ -103,6 +104,7 @@ def render_verification(
         images["gains.png"] = drawing.plot_gains(table, tuple(result.status))
         images["margins.png"] = drawing.plot_margins(table, points)
         images["step.png"] = drawing.plot_steps(loop, chosen, points)
+        images["frequency.png"] = plot_frequency(loop, chosen, points)
         for index, role in chosen:
             name = f"locus_{index}.png"
             images[name] = drawing.plot_locus_point(loop, index, points[index], role)

@@ -122,7 +122,7 @@ def _points(doc: dict[str, Any]) -> list[str]:
     names = doc["table"]["coefficient_names"]
     lines = ["## Per-point table", ""]
     headers = ["#", "point", "status", "ts [s]", "delay"] + names + [
-        "ζ min", "ωn [rad/s]", "max \\|z\\|", "GM [dB]", "PM [deg]", "DM [s]", "Ms", "ωc [rad/s]", "ωb [rad/s]",
+        "ζ min", "ωn [rad/s]", "that pole from", "max \\|z\\|", "GM [dB]", "PM [deg]", "DM [s]", "Ms", "ωc [rad/s]", "ωb [rad/s]",
         "OS [%]", "Ts [s]"]
     rows = []
     for e in doc["points"]:
@@ -133,7 +133,9 @@ def _points(doc: dict[str, Any]) -> list[str]:
             status += f" ⚠{len(e['warnings'])}"  # the Warnings section lists them
         rows.append([e["index"], e["label"], status, number(e["sample_period_s"]), number(e["delay_samples"])]
                     + [number(e["coefficients"][n], 6) for n in names]
-                    + [number(e[k]) for k in ("damping", "natural_frequency", "pole_radius", "gain_margin_db",
+                    + [number(e["damping"]), number(e["damping_pole"]["natural_frequency"]),
+                       e["damping_pole"]["origin"]]
+                    + [number(e[k]) for k in ("pole_radius", "gain_margin_db",
                                               "phase_margin_deg", "delay_margin_s", "sensitivity_peak",
                                               "crossover_rad_s", "bandwidth_rad_s",
                                               "overshoot_percent", "settling_time_s")])

@@ -10,10 +10,13 @@ Plots
 * ``gains.png``: each table coefficient against the first scheduling
   variable; 2-D tables draw one line per value of the second variable.
 * ``margins.png``: damping, dominant natural frequency, gain and phase
-  margin, delay margin and sensitivity peak against the first variable,
+  margin, delay margin, sensitivity peak, gain crossover and closed-loop
+  bandwidth against the first variable,
   with each spec limit drawn (a step line, since overrides may change it per
   point) and failing points circled.
 * ``step.png``: the sampled loop's unit step response at the chosen points.
+* ``frequency.png``: ``|L|`` and phase of ``L`` with the margins marked,
+  and ``|S|``, ``|T|`` at the chosen points (:mod:`gainloom.report.frequency_plot`).
 * ``locus_<n>.png``: root locus of the sampled loop ``K L(z)`` at a chosen
   point, ``K`` a multiple of the table's loop gain (``K = 1``: the designed
   poles), in the z-plane, near ``z = 1`` magnified, and mapped to
@@ -142,13 +145,15 @@ def plot_gains(table: Any, status: tuple[str, ...]) -> bytes:
 
 #: Panels of ``margins.png``: (point key, spec names (lower, upper), title, unit, log y).
 _MARGIN_PANELS = (
-    ("damping", ("min_damping", None), "smallest damping ratio ζ", "", False),
+    ("damping", ("min_damping", None), "smallest damping ratio ζ (judged poles)", "", False),
     ("natural_frequency", ("min_natural_frequency", "max_natural_frequency"),
      "dominant natural frequency ωn", "rad/s", True),
     ("gain_margin_db", ("min_gain_margin", None), "gain margin", "dB", False),
     ("phase_margin_deg", ("min_phase_margin", None), "phase margin", "deg", False),
     ("delay_margin_s", ("min_delay_margin", None), "delay margin", "s", True),
     ("sensitivity_peak", (None, "max_sensitivity_peak"), "sensitivity peak Ms", "", False),
+    ("crossover_rad_s", ("min_crossover", "max_crossover"), "gain crossover ωc", "rad/s", True),
+    ("bandwidth_rad_s", ("min_bandwidth", None), "closed-loop bandwidth ωb", "rad/s", True),
 )
 
 
@@ -165,10 +170,10 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
     points : list of dict
         The log's per-point entries (grid order).
     """
-    figure = _figure((9.0, 8.4))
+    figure = _figure((9.0, 11.0))
     shape = table.shape
     for k, (key, (low, high), title, unit, log) in enumerate(_MARGIN_PANELS):
-        ax = figure.add_subplot(3, 2, k + 1)
+        ax = figure.add_subplot(4, 2, k + 1)
         values = np.array([_as_float(e[key]) for e in points]).reshape(shape)
         # limits of all lines, grouped: lines that share a limit share one
         # dashed line, named at its right end when the limits differ
@@ -219,8 +224,9 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
                            label="dashed: spec limit (named where it differs between lines)"),
                     Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4, label="spec fails")]
     figure.legend(handles=handles, loc="lower center", ncol=min(4, len(handles)), fontsize=8, frameon=False)
-    figure.suptitle("Closed-loop damping and margins of the sampled loop", fontsize=11, x=0.01, ha="left")
-    figure.subplots_adjust(left=0.08, right=0.98, top=0.92, bottom=0.12 + 0.025 * (len(handles) > 4),
+    figure.suptitle("Closed-loop damping, margins, crossover and bandwidth of the sampled loop", fontsize=11,
+                    x=0.01, ha="left")
+    figure.subplots_adjust(left=0.08, right=0.98, top=0.935, bottom=0.1 + 0.02 * (len(handles) > 4),
                            hspace=0.6, wspace=0.25)
     return png_bytes(figure)
 

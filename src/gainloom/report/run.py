@@ -246,7 +246,7 @@ def default_scenario(schedule: Any, result: Any) -> tuple[Any, dict[str, Any]]:
         middle = 0.5 * (float(np.min(axis.values)) + float(np.max(axis.values)))
         trajectory[axis.name] = middle
         held[axis.name] = middle
-    limits = result.table.output_limits
+    limits = result.table.limit_envelope
     amplitude = LOAD_STEP_FRACTION * max(abs(float(limits[0])), abs(float(limits[1])))
     load_time = 0.5 * (ramp_start + ramp_end)
     if not (np.isfinite(amplitude) and amplitude > 0):

@@ -15,7 +15,7 @@ from typing import Literal
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import InputError, ScheduleError
 from ..lti.convert import poly_from_roots, ss_to_tf
 from ..lti.loop import Loop
 from ..limits import MAX_DELAY_SAMPLES, SAMPLE_PERIOD_RANGE
@@ -142,6 +142,49 @@ class Family:
                 f"{what} must not be negative; {expression.source!r} = {value[index]:g} {self._first_bad(bad, points)}"
             )
         return value
+
+    def output_limits(
+        self, limits: tuple, points: np.ndarray, parameters: dict[str, np.ndarray]
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """``controller.output_limits`` at ``points``: numbers, or expressions of
+        the scheduling variables and parameters (e.g. ``bus / sqrt(3)``).
+
+        Parameters
+        ----------
+        limits : tuple
+            ``(low, high)``, each a float or an :class:`Expression`.
+        points : ndarray, shape (Q, n_axes)
+        parameters : dict of str to ndarray
+            Parameter values at ``points``.
+
+        Returns
+        -------
+        low, high : ndarray, shape (Q,)
+
+        Raises
+        ------
+        ScheduleError
+            At the limit's line: a non-finite value, or ``low >= high``, with
+            the first operating point where it happens.
+        """
+        env = {axis.name: points[:, i] for i, axis in enumerate(self.axes)} | dict(parameters)
+        values = []
+        for which, limit in zip(("lower", "upper"), limits):
+            if isinstance(limit, Expression):
+                values.append(self._checked(limit, env, points, f"{which} output limit"))
+            else:
+                values.append(np.full(points.shape[0], float(limit)))
+        low, high = values
+        bad = ~(low < high)
+        if np.any(bad):
+            index = int(np.flatnonzero(bad)[0])
+            node = next((v.node for v in limits if isinstance(v, Expression)), None)
+            message = (
+                f"output_limits must satisfy low < high at every operating point; found "
+                f"[{low[index]:g}, {high[index]:g}] {self._first_bad(bad, points)}"
+            )
+            raise node.error(message) if node is not None else ScheduleError(message, file=self.file)
+        return low, high
 
     # -- evaluation -----------------------------------------------------------
     def evaluate(self, points: np.ndarray, scale: dict[str, float] | None = None) -> PointModels:

@@ -12,6 +12,7 @@ import ast
 import hashlib
 import keyword
 import re
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -118,13 +119,15 @@ def load_schedule(path: str | Path) -> Schedule:
             raise prewarp.node.error("prewarp frequency must be one value for the whole grid (rad/s)")
         prewarp_value = float(values[0])
 
-    controller = read_controller(keys["controller"])
+    controller = _resolve_output_limits(read_controller(keys["controller"]), family, points, models.parameters,
+                                        known)
     specs = read_specs(keys.get("specs"), axis_names)
     table_checks = read_table_checks(keys.get("table"), controller.structure)
     tolerances = read_tolerances(keys.get("tolerances"), {p.name: p.independent for p in parameters})
     codegen = read_codegen(keys.get("codegen"), name, keys["name"])
     _check_workload(keys, axes, table_checks, tolerances)
-    _check_full_scale(keys, controller.output_limits, codegen.output_full_scale)
+    low, high = family.output_limits(controller.output_limits, points, models.parameters)
+    _check_full_scale(keys, (float(low.min()), float(high.max())), codegen.output_full_scale)
 
     for array in (points, models.sample_period, models.delay, *models.parameters.values()):
         array.setflags(write=False)  # the Schedule is frozen; so are its arrays
@@ -382,6 +385,20 @@ def _check_workload(keys: dict[str, Node], axes: tuple[Axis, ...], table_checks,
                 f"{samples:,} tolerance samples at {points:,} operating points are {samples * points:,} loops to "
                 f"check; at most {limits.MAX_TOLERANCE_EVALUATIONS:,} are accepted"
             )
+
+
+def _resolve_output_limits(controller, family: Family, points: np.ndarray, parameters, known: dict[str, str]):
+    """Check the names of output-limit expressions and their values on the grid;
+    limits equal at every grid point become numbers."""
+    limits = controller.output_limits
+    if not any(isinstance(v, Expression) for v in limits):
+        return controller
+    for limit in limits:
+        limit.check_names(known, _TS_ONLY)
+    low, high = family.output_limits(limits, points, parameters)
+    if np.all(low == low[0]) and np.all(high == high[0]):  # the same at every point: numbers
+        return replace(controller, output_limits=(float(low[0]), float(high[0])))
+    return controller
 
 
 def _check_full_scale(keys: dict[str, Node], limits_pair: tuple[float, float], full_scale: float | None) -> None:

@@ -109,12 +109,15 @@ class ControllerSection:
     ``pole-cancel``, ``sweep`` only for ``shape-sweep`` (defaulted), ``target``
     for ``dominant-pair`` and ``nearest-target``; ``derivative_filter``
     (seconds) only for ``pd``/``pid``.  ``output_limits`` is ``(low, high)``
-    in actuator units.
+    in actuator units: numbers, or expressions of the scheduling variables
+    and parameters (:class:`~gainloom.schedule.expressions.Expression`)
+    when they vary across the schedule; :meth:`Schedule.output_limits_at`
+    evaluates them.
     """
 
     structure: str
     strategy: str
-    output_limits: tuple[float, float]
+    output_limits: tuple
     objective: str | None = None
     zero_on: str | None = None
     target: Target | None = None
@@ -332,6 +335,18 @@ class Schedule:
             Bad ``points`` shape or a scale on an unknown or dependent parameter.
         """
         return self.family.evaluate(points, scale)
+
+    def output_limits_at(self, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Output limits ``(low, high)`` at operating points, shape (Q,) each.
+
+        Numbers are repeated; expressions are evaluated with the parameters
+        at ``points`` (so a refined table gets its limits at the inserted
+        breakpoints too).
+        """
+        points = np.asarray(points, dtype=float).reshape(-1, len(self.axes))
+        varying = any(not isinstance(v, (int, float)) for v in self.controller.output_limits)
+        parameters = self.evaluate(points).parameters if varying else {}
+        return self.family.output_limits(self.controller.output_limits, points, parameters)
 
     def spec_values(self, points: np.ndarray) -> dict[str, np.ndarray]:
         """Spec bounds at each point with overrides resolved.

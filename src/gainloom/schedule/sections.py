@@ -24,6 +24,7 @@ from .model import (
     Target,
     Tolerances,
 )
+from .expressions import parse_expression
 from .nodes import Node
 from .. import limits
 
@@ -138,7 +139,7 @@ def read_controller(node: Node) -> ControllerSection:
         derivative_filter = _positive(keys["derivative_filter"], "derivative filter time constant")
     elif "derivative_filter" in keys:
         raise keys["derivative_filter"].error(f"derivative_filter applies only to pd and pid, not {structure!r}")
-    low, high = _pair(keys["output_limits"], "output_limits")
+    low, high = _output_limits(keys["output_limits"])
     compare = keys["compare_continuous"].boolean() if "compare_continuous" in keys else False
     if compare and strategy in names.TUNING_RULES:
         raise keys["compare_continuous"].error(
@@ -156,6 +157,17 @@ def read_controller(node: Node) -> ControllerSection:
         derivative_filter=derivative_filter,
         compare_continuous=compare,
     )
+
+
+def _output_limits(node: Node) -> tuple:
+    """``[low, high]``: numbers, or expressions of variables and parameters
+    (names are checked, and values evaluated, by the loader)."""
+    items = node.sequence()
+    if len(items) == 2 and not any(item.is_scalar and isinstance(item.scalar(), str) for item in items):
+        return _pair(node, "output_limits")
+    if len(items) != 2:
+        raise node.error(f"output_limits must be a list of two entries [low, high]; found {len(items)} entries")
+    return tuple(parse_expression(item, f"{which} output limit") for which, item in zip(("lower", "upper"), items))
 
 
 def _read_target(node: Node, allow_crossover: bool) -> Target:

@@ -31,13 +31,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..codegen.layout import layout_table
+from ..codegen.layout import LIMIT_TABLES, layout_table
 from ..codegen.mirror import FixedStepper, FloatStepper, lookup_gains, state_fields
 from ..codegen.qformat import STATE_FRAC, dequantize, quantize
 from ..design.table import GainTable
 from ..errors import InputError
 from ..names import NUMBER_FORMATS, unknown_name_message
-from .interpolation import interpolate_table
+from .interpolation import interpolate_grid, interpolate_table
 
 __all__ = ["SIMULATION_FORMATS", "STATE_NAMES", "TableController"]
 
@@ -81,7 +81,8 @@ class TableController:
         Coefficients per sample in physical units, exactly the values the
         step uses (float32 values, or stored integers scaled back).
     limits : tuple of float
-        Output limits as the format holds them, physical units.
+        Output limits as the format holds them, physical units (tabulated
+        limits: their envelope; the step uses the per-sample values).
     """
 
     def __init__(
@@ -102,9 +103,14 @@ class TableController:
         if number_format == "float64":
             gains = interpolate_table(table, points, np.float64)
             self.layout = None
-            self.stepper = FloatStepper(table.structure, gains, table.output_limits, np.float64)
+            stepped = dict(gains)
+            if table.limits_vary:  # looked up per sample with the coefficients, as the C does
+                axes_values = tuple(axis.values for axis in table.axes)
+                for name, grid in zip(LIMIT_TABLES, table.limit_grids):
+                    stepped[name] = interpolate_grid(axes_values, grid, points, np.float64)
+            self.stepper = FloatStepper(table.structure, stepped, table.limit_envelope, np.float64)
             self.gains = gains
-            self.limits = table.output_limits
+            self.limits = table.limit_envelope
             return
         layout = layout_table(
             table, number_format, error_full_scale=error_full_scale, output_full_scale=output_full_scale
