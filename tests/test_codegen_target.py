@@ -342,3 +342,12 @@ def test_a_machine_without_the_tools_reports_not_checked(fan_jobs):
     doc = json.loads((job.out_dir / "verification.json").read_text())
     assert doc["target"]["status"] == "not-checked" and doc["verdict"]["target"] is None
     assert "Not checked:" in (job.out_dir / "verification.md").read_text()
+
+
+@needs_run
+def test_the_log_names_the_toolchain_of_the_figures(fan_jobs):
+    job, _, _ = fan_jobs
+    doc = json.loads((job.out_dir / "verification.json").read_text())
+    installed = subprocess.run([TOOLS.gcc, "--version"], capture_output=True, text=True, check=True).stdout
+    assert doc["target"]["toolchain"]["gcc"] == installed.splitlines()[0].strip()
+    assert doc["target"]["toolchain"]["qemu"].startswith("QEMU emulator version")

@@ -21,7 +21,7 @@ KEYS = (
     + ["state_space", "A", "B", "C", "D", "dead_time", "period", "method", "delay", "prewarp"]
     + ["max_relative_step", "monotone", "between_points", "refine", "max_inserted"]
     + ["parameters", "samples", "space_filling", "seed", "prefix", "format", "damping", "range"]
-    + ["crossover", "design"]
+    + ["crossover", "design", "distribution"]
 )
 REGISTRY_NAMES = (
     names.HOLD_METHODS
@@ -32,6 +32,7 @@ REGISTRY_NAMES = (
     + names.CANCEL_TARGETS
     + names.TOLERANCE_SAMPLINGS
     + names.TOLERANCE_DESIGNS
+    + names.TOLERANCE_DISTRIBUTIONS
     + names.MONOTONE_DIRECTIONS
 )
 

@@ -23,6 +23,7 @@ __all__ = [
     "MAX_REFINE_INSERTED",
     "MAX_TOLERANCE_SAMPLES",
     "MAX_TOLERANCE_EVALUATIONS",
+    "MAX_STUDY_DRAWS",
     "MAX_PLANT_ORDER",
     "MAX_DELAY_SAMPLES",
     "SAMPLE_PERIOD_RANGE",
@@ -54,6 +55,9 @@ MAX_REFINE_INSERTED = 1_000
 MAX_TOLERANCE_SAMPLES = 10_000
 #: Most loops the tolerance check evaluates: samples x operating points.
 MAX_TOLERANCE_EVALUATIONS = 2_000_000
+#: Most random draws per point of the statistical study (``tolerances.samples: N``);
+#: the study runs in chunks, so memory does not grow with it, only time.
+MAX_STUDY_DRAWS = 10_000_000
 #: Highest plant order (poles, states or denominator degree).
 MAX_PLANT_ORDER = 30
 #: Longest delay in samples: computation delay plus dead time / ts.  Each

@@ -21,6 +21,7 @@ __all__ = [
     "CANCEL_TARGETS",
     "TOLERANCE_SAMPLINGS",
     "TOLERANCE_DESIGNS",
+    "TOLERANCE_DISTRIBUTIONS",
     "CROSSOVER_OBJECTIVES",
     "MONOTONE_DIRECTIONS",
     "POLE_SELECTIONS",
@@ -74,6 +75,10 @@ TOLERANCE_SAMPLINGS: tuple[str, ...] = ("corners", "space_filling")
 #: What the design does with the tolerances (tolerances.design): only check
 #: the table at every tolerance sample, or design against them (worst case).
 TOLERANCE_DESIGNS: tuple[str, ...] = ("check", "worst-case")
+
+#: How the statistical study draws parameters (tolerances.distribution):
+#: uniform over the tolerance box, or normal with the tolerance as 3 sigma.
+TOLERANCE_DISTRIBUTIONS: tuple[str, ...] = ("uniform", "normal")
 
 #: Required direction of a coefficient along each table axis (table.monotone).
 MONOTONE_DIRECTIONS: tuple[str, ...] = ("increasing", "decreasing")

@@ -27,6 +27,7 @@ COMMANDS: tuple[str, ...] = (
     "verify",
     "emit",
     "simulate",
+    "spread",
 )
 
 

@@ -64,6 +64,8 @@ class TargetResult:
     instructions : tuple of InstructionCounts
     missing : tuple of str
         Tools not found.
+    toolchain : dict
+        ``gcc`` and ``qemu``: first line of their ``--version`` (``None`` when missing).
     rules : RulesResult or None
         cppcheck and its MISRA addon on the generated files.
     """
@@ -76,6 +78,7 @@ class TargetResult:
     instructions: tuple[InstructionCounts, ...] = ()
     missing: tuple[str, ...] = ()
     rules: RulesResult | None = None
+    toolchain: dict[str, str | None] | None = None
 
     @property
     def passed(self) -> bool | None:
@@ -99,6 +102,7 @@ class TargetResult:
             "number_format": self.number_format,
             "instruction_method": INSTRUCTION_METHOD,
             "missing_tools": list(self.missing),
+            "toolchain": dict(self.toolchain or {"gcc": None, "qemu": None}),
             "cores": cores,
             "rules": None if self.rules is None else self.rules.to_dict(),
         }
@@ -174,7 +178,8 @@ def check_target(
         if missing:
             rules = check_rules([work / f.name for f in files], caller, tools.cppcheck, generated.defines)
             return TargetResult("not-checked", f"not checked: {', '.join(missing)} not found",
-                                generated.number_format, missing=missing, rules=rules)
+                                generated.number_format, missing=missing, rules=rules,
+                                toolchain=tools.versions())
         sources = [work / s.name for s in generated.sources]
 
         def on_core(core: TargetCore):
@@ -195,4 +200,4 @@ def check_target(
     counts = [c for _, _, c in per_core if c is not None]
     status, message = _verdict(builds, runs, counts)
     return TargetResult(status, message, generated.number_format, tuple(builds), tuple(runs), tuple(counts),
-                        rules=rules)
+                        rules=rules, toolchain=tools.versions())

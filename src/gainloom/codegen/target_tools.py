@@ -16,7 +16,9 @@ it "not checked", never passed.
 
 from __future__ import annotations
 
+import functools
 import shutil
+import subprocess
 from dataclasses import dataclass
 
 __all__ = ["TargetCore", "CORES", "TargetTools", "find_target_tools"]
@@ -117,10 +119,23 @@ class TargetTools:
         """Can build and run on the emulator."""
         return self.can_build and self.qemu is not None
 
+    def versions(self) -> dict[str, str | None]:
+        """First line of ``--version`` of the compiler and the emulator (``None`` when missing)."""
+        return {"gcc": _version(self.gcc), "qemu": _version(self.qemu)}
+
     def missing(self, *keys: str) -> list[str]:
         """Program names among ``keys`` (all when none given) that were not found."""
         keys = keys or tuple(_PROGRAMS)
         return [_PROGRAMS[k] for k in keys if getattr(self, k) is None]
+
+
+@functools.lru_cache(maxsize=8)
+def _version(program: str | None) -> str | None:
+    if program is None:
+        return None
+    ran = subprocess.run([program, "--version"], capture_output=True, text=True, timeout=30, check=False)
+    lines = (ran.stdout or ran.stderr).splitlines()
+    return lines[0].strip() if ran.returncode == 0 and lines else None
 
 
 def find_target_tools() -> TargetTools:

@@ -25,6 +25,7 @@ Pole-region verdicts (the same region the design searches):
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from types import SimpleNamespace
 
 import numpy as np
 import scipy.signal
@@ -279,6 +280,13 @@ def step_metrics(loop: Loop, max_samples: int = MAX_STEP_SAMPLES) -> tuple[np.nd
     return overshoot, settling, final
 
 
+def _no_margins(count: int) -> SimpleNamespace:
+    """Margins left uncomputed (``analyse(..., frequency=False)``): NaN everywhere."""
+    nan = np.full(count, np.nan)
+    return SimpleNamespace(gain_margin_db=nan, phase_margin=nan, delay_margin=nan, sensitivity_peak=nan,
+                           crossover=nan, last_crossover=nan, warnings=())
+
+
 def _at_least(value: np.ndarray, limit: np.ndarray) -> np.ndarray:
     return np.isnan(limit) | (value >= limit)
 
@@ -326,6 +334,7 @@ def analyse(
     limits: SpecLimits,
     *,
     step: bool = True,
+    frequency: bool = True,
 ) -> PointAnalysis:
     """Analyse table coefficients on the discretised plant at every point.
 
@@ -341,6 +350,11 @@ def analyse(
         Specs per point.
     step : bool
         Simulate the step response for overshoot and settling (default).
+    frequency : bool
+        Compute margins, crossovers and bandwidth (default).  ``False``
+        leaves them NaN (a required frequency-domain spec then fails): for
+        callers that judge no such spec, as the tolerance study on a
+        schedule without one, where they are most of the cost.
 
     Returns
     -------
@@ -366,8 +380,12 @@ def analyse(
     with np.errstate(divide="ignore", invalid="ignore"):
         damping_pole_s = np.log(damping_pole) / ts
     origin, start = pole_origins(loop, plant, damping_pole)
-    margins = loop_margins(loop, 1.0)
-    bandwidth = closed_loop_bandwidth(loop, 1.0)
+    if frequency:
+        margins = loop_margins(loop, 1.0)
+        bandwidth = closed_loop_bandwidth(loop, 1.0)
+    else:
+        margins = _no_margins(plant.points)
+        bandwidth = np.full(plant.points, np.nan)
     if step:
         overshoot, settling, _ = step_metrics(loop)
     else:

@@ -360,6 +360,13 @@ def _neighbours(points: np.ndarray) -> np.ndarray:
     return out
 
 
+def _later_neighbours(points: np.ndarray) -> np.ndarray:
+    """Index of the nearest later point (normalised axes), -1 for the last."""
+    P = points.shape[0]
+    reverse = _neighbours(points[::-1])[::-1]  # indices into the reversed order
+    return np.where(reverse >= 0, P - 1 - reverse, -1)
+
+
 def _tie_break(score: np.ndarray, log_rates: np.ndarray, neighbours: np.ndarray, relative: bool) -> np.ndarray:
     """Per point the best shape; within ``TIE`` of the best, the one nearest the neighbour's choice."""
     P = score.shape[0]
@@ -466,6 +473,9 @@ def crossover_design(
         x2, found2 = _search(second, low, high, neighbours, relative=False)
         x = np.where(found2[:, None], x2, x)
         ctx = replace(ctx, band=None)
+    if structure not in ("pi", "pid"):
+        x = _smooth(ctx, x, _later_neighbours(np.asarray(points, float).reshape(P, -1)),
+                    relative=objective == "max-crossover")
     shapes, score, gain, crossover, sets = _evaluate(ctx, x[:, None, :])
     feasible = np.isfinite(score[:, 0])
     return CrossoverChoice(
@@ -476,6 +486,34 @@ def crossover_design(
         crossover=crossover[:, 0],
         rates=np.exp(x),
     )
+
+
+#: Rounds of the smoothing pass of :func:`_smooth`.
+SMOOTH_ROUNDS = 2
+
+
+def _smooth(ctx: _Context, x: np.ndarray, later: np.ndarray, relative: bool) -> np.ndarray:
+    """Take the next point's shape where it scores within ``TIE`` of the point's own.
+
+    The forward tie-break cannot help the first points of the grid; where the
+    objective is flat over the shapes (a lead's zero and pole trade against
+    each other), the pattern search may settle anywhere in the flat valley.
+    ``later`` indexes the nearest later point (-1 for none).  Not used for
+    pi/pid, whose second pass (integral action) already pins the shape.
+    """
+    P = x.shape[0]
+    has = later >= 0
+    for _ in range(SMOOTH_ROUNDS):
+        _, own, _, _, _ = _evaluate(ctx, x[:, None, :])
+        other = x[np.where(has, later, np.arange(P))]
+        _, theirs, _, _, _ = _evaluate(ctx, other[:, None, :])
+        own, theirs = own[:, 0], theirs[:, 0]
+        band = own - TIE * np.abs(own) if relative else own - TIE
+        take = has & np.isfinite(theirs) & (theirs >= band)
+        if not np.any(take & np.any(other != x, axis=1)):
+            break
+        x = np.where(take[:, None], other, x)
+    return x
 
 
 def _search(ctx: _Context, low: np.ndarray, high: np.ndarray, neighbours: np.ndarray, relative: bool):

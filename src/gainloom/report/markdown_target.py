@@ -44,7 +44,9 @@ def _cores(target: dict[str, Any]) -> list[str]:
                          "instructions per lookup (min / median / max)", "per step (min / median / max)",
                          "emulated run"], rows)
     lines += table_lines(["core", "function", "code B", "stack B", "runtime helpers called"], functions)
-    lines += [f"Instruction counts: {target['instruction_method']}.", ""]
+    tools = target["toolchain"]
+    lines += [f"Instruction counts: {target['instruction_method']}.  Built with {tools['gcc']}; "
+              f"emulated with {tools['qemu']}.", ""]
     return lines
 
 

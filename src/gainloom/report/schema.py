@@ -196,6 +196,7 @@ _TARGET = _obj({
     "number_format": STRING,
     "instruction_method": STRING,
     "missing_tools": {"list": STRING},
+    "toolchain": _obj({"gcc": (STRING, NULL), "qemu": (STRING, NULL)}),
     "cores": {"list": _TARGET_CORE},
     "rules": (_RULES, NULL),
 })

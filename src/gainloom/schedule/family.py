@@ -208,7 +208,7 @@ class Family:
                 raise InputError(
                     f"cannot scale parameter {name!r}: it is computed from {', '.join(sorted(by_name[name].depends_on))}"
                 )
-            if not np.isfinite(factor):
+            if not np.all(np.isfinite(factor)):
                 raise InputError(f"scale of {name!r} must be finite; got {factor}")
         count = points.shape[0]
         env: dict[str, np.ndarray] = {axis.name: points[:, i].copy() for i, axis in enumerate(self.axes)}
@@ -219,7 +219,8 @@ class Family:
             else:
                 value = self._interpolate(parameter.table, env, points)
             if parameter.name in scale:
-                value = value * float(scale[parameter.name])
+                # a number, or one factor per point (the statistical study's draws)
+                value = value * np.asarray(scale[parameter.name], dtype=float)
             env[parameter.name] = value
             values[parameter.name] = value
 

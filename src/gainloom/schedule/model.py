@@ -210,16 +210,29 @@ class Tolerances:
         Independent parameter -> ``(minus, plus)`` relative magnitudes: the
         parameter ranges over ``[1 - minus, 1 + plus]`` times its nominal value.
     samples : str or (int, int)
-        ``"corners"`` or ``(count, seed)`` for space-filling samples.
+        ``"corners"`` or ``(count, seed)`` for space-filling samples (the
+        design's table check).
     design : str
         ``"check"`` (the table is checked at every sample) or
         ``"worst-case"`` (each point is designed so that every spec holds at
         every sample), ``names.TOLERANCE_DESIGNS``.
+    draws : int or None
+        Random draws per operating point of the statistical study
+        (``samples: N``; ``gainloom spread``), ``None`` when not asked for.
+        The design's table check then keeps the corners.
+    distribution : str
+        ``names.TOLERANCE_DISTRIBUTIONS``: ``uniform`` over the tolerance box,
+        or ``normal`` with the tolerance as 3 sigma.
+    seed : int
+        Seed of the study's random draws.
     """
 
     parameters: dict[str, tuple[float, float]] = field(default_factory=dict)
     samples: str | tuple[int, int] = "corners"
     design: str = "check"
+    draws: int | None = None
+    distribution: str = "uniform"
+    seed: int = 0
 
 
 @dataclass(frozen=True)
@@ -304,9 +317,10 @@ class Schedule:
         points : ndarray, shape (Q, n_axes)
             Scheduling-variable values (units as in the schedule), e.g.
             points between grid points.
-        scale : dict of str to float, optional
+        scale : dict of str to float or ndarray (Q,), optional
             Factors applied to named independent parameters before any
-            dependent expression is evaluated (tolerance corners).
+            dependent expression is evaluated (tolerance corners; one factor
+            per point for the statistical study's draws).
 
         Returns
         -------

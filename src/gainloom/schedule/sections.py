@@ -336,7 +336,7 @@ def read_tolerances(node: Node | None, independent: dict[str, bool]) -> Toleranc
     """
     if node is None or node.is_null:
         return Tolerances()
-    keys = node.mapping(("parameters", "samples", "design"))
+    keys = node.mapping(("parameters", "samples", "design", "distribution", "seed"))
     parameters: dict[str, tuple[float, float]] = {}
     if "parameters" in keys:
         for name, value in keys["parameters"].mapping().items():
@@ -365,9 +365,12 @@ def read_tolerances(node: Node | None, independent: dict[str, bool]) -> Toleranc
                 raise value.error(f"relative tolerance below nominal must be less than 1 (100 %); found {minus:g}")
             parameters[name] = (minus, plus)
     samples: str | tuple[int, int] = "corners"
+    draws: int | None = None
     if "samples" in keys:
         sample_node = keys["samples"]
-        if sample_node.is_mapping:
+        if sample_node.kind in ("an integer", "a number"):
+            draws = sample_node.count("number of random draws (samples)", 1, limits.MAX_STUDY_DRAWS)
+        elif sample_node.is_mapping:
             entry = sample_node.mapping(("space_filling", "seed"), required=("space_filling",))
             count = entry["space_filling"].count("space_filling sample count", 1, limits.MAX_TOLERANCE_SAMPLES)
             seed = entry["seed"].integer() if "seed" in entry else 0
@@ -377,7 +380,38 @@ def read_tolerances(node: Node | None, independent: dict[str, bool]) -> Toleranc
         else:
             samples = sample_node.choice("tolerance sampling", ("corners",))
     design = keys["design"].choice("tolerance design", names.TOLERANCE_DESIGNS) if "design" in keys else "check"
-    return Tolerances(parameters=parameters, samples=samples, design=design)
+    distribution, seed = _study_keys(keys, draws, parameters)
+    return Tolerances(parameters=parameters, samples=samples, design=design, draws=draws,
+                      distribution=distribution, seed=seed)
+
+
+#: Below this relative tolerance under nominal a normal draw (tolerance =
+#: 3 sigma, clipped at 6 sigma) keeps every parameter positive: 6 sigma = 2 x minus.
+NORMAL_MINUS_LIMIT = 0.5
+
+
+def _study_keys(keys: dict[str, Node], draws: int | None, parameters: dict[str, tuple[float, float]]) -> tuple[str, int]:
+    """``distribution`` and ``seed`` of the statistical study (``samples: N`` only)."""
+    for key in ("distribution", "seed"):
+        if key in keys and draws is None:
+            raise keys[key].error(
+                f"{key} applies to random draws for the statistical study: write samples as a number of draws, "
+                "e.g. samples: 10000 (space_filling takes its own seed)"
+            )
+    distribution = keys["distribution"].choice("tolerance distribution", names.TOLERANCE_DISTRIBUTIONS) \
+        if "distribution" in keys else "uniform"
+    seed = keys["seed"].integer() if "seed" in keys else 0
+    if seed < 0:
+        raise keys["seed"].error(f"seed must be 0 or more; found {seed}")
+    if distribution == "normal":
+        for name, (minus, _plus) in parameters.items():
+            if minus >= NORMAL_MINUS_LIMIT:
+                raise keys["distribution"].error(
+                    f"normal draws take the tolerance as 3 sigma and reach 6 sigma below nominal; {name!r} has "
+                    f"{minus:g} below nominal, which could draw a value at or below 0: keep it under "
+                    f"{NORMAL_MINUS_LIMIT:g} or use distribution: uniform"
+                )
+    return distribution, seed
 
 
 def read_codegen(node: Node | None, schedule_name: str, name_node: Node) -> CodegenSection:
