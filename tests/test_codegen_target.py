@@ -351,3 +351,23 @@ def test_the_log_names_the_toolchain_of_the_figures(fan_jobs):
     installed = subprocess.run([TOOLS.gcc, "--version"], capture_output=True, text=True, check=True).stdout
     assert doc["target"]["toolchain"]["gcc"] == installed.splitlines()[0].strip()
     assert doc["target"]["toolchain"]["qemu"].startswith("QEMU emulator version")
+
+
+@needs_cppcheck
+@pytest.mark.parametrize("number_format", ["float32", "q15"])
+def test_cppcheck_and_misra_on_tabulated_output_limits(tmp_path, number_format):
+    # limits that vary between points take the lookup path into gains.u_min / gains.u_max
+    import numpy as np
+
+    from gainloom.design.table import GainTable
+
+    base = make_table("pi", dims=1, seed=11)
+    high = np.linspace(6.0, 12.0, base.shape[0])
+    table = GainTable(base.structure, base.axes, base.coefficients, base.sample_period, (-high, high))
+    scale = None if number_format == "float32" else 20.0
+    files = emit_c(table, tmp_path / number_format, number_format, "motor_ctl", "ab" * 32, error_full_scale=scale,
+                   verdict=table_verdict(True, True, number_format))
+    caller = tmp_path / "caller.c"
+    caller.write_text(measure_source(harness_program(table, generated_files(files)), "motor_ctl"))
+    result = check_rules(files, caller, TOOLS.cppcheck)
+    assert result.status == "passed", result.message
