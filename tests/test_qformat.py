@@ -54,6 +54,14 @@ def test_q15_and_q31_definitions():
     assert number_format("q31").c_type == "int32_t"
 
 
+def test_every_registered_number_format_is_defined():
+    # The registry in gainloom.names is what --help, docs and validation
+    # list; each name must resolve to a format whose name is that name.
+    from gainloom.names import NUMBER_FORMATS
+
+    assert [number_format(name).name for name in NUMBER_FORMATS] == list(NUMBER_FORMATS)
+
+
 @pytest.mark.parametrize(
     ("lsb", "expected"), [(0.5, 1), (-0.5, -1), (1.5, 2), (2.5, 3), (-2.5, -3), (0.49, 0), (-0.51, -1)]
 )

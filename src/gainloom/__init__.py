@@ -47,7 +47,6 @@ __all__ = [
     "emit_c",
     "check_generated_c",
     "HarnessResult",
-    "discretize_loop",
     "design",
     "verify",
     "DesignResult",

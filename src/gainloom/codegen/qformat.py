@@ -109,7 +109,6 @@ _FORMATS = {
     "q15": NumberFormat("q15", 16, "int16_t", 15),
     "q31": NumberFormat("q31", 32, "int32_t", 30),
 }
-assert tuple(_FORMATS) == NUMBER_FORMATS
 
 
 def number_format(name: str) -> NumberFormat:

@@ -25,7 +25,8 @@ def _start_worker(function: Callable[..., Any], context: tuple[Any, ...]) -> Non
 
 
 def _run_one(unit: Any) -> Any:
-    assert _WORKER is not None, "worker started without its context"
+    if _WORKER is None:
+        raise RuntimeError("pool worker started without its context")
     function, context = _WORKER
     return function(*context, unit)
 

@@ -38,7 +38,7 @@ __all__ = [
 #: Format tag of ``verification.json``.
 VERIFICATION_FORMAT = "gainloom-verification/1"
 
-#: Safety cautions carried by every log (DESIGN.md, "Safety").
+#: Safety cautions carried by every log (the project's safety rule: the trade's usual cautions, deferring to codes and licensed engineers).
 CAUTIONS: tuple[str, ...] = (
     "These gains drive motors and power stages that can injure people and destroy hardware.",
     "Validate the gains on the real hardware before use, with current and speed limits active "
