@@ -75,7 +75,7 @@ def _build_loop(args: argparse.Namespace) -> tuple[Loop, str]:
         return Loop(num=num, den=den, ts=args.ts), "given in z"
     if args.method not in HOLD_METHODS:
         raise InputError(unknown_name_message("hold method", args.method, HOLD_METHODS))
-    loop = discretize_loop(Loop(num=num, den=den), args.ts, args.method, args.delay, args.prewarp)
+    loop = discretize_loop(Loop(num=num, den=den), args.ts, args.method, delay=args.delay, prewarp=args.prewarp)
     how = f"{args.method}, ts = {args.ts:g} s, delay = {loop.delay[0]:g} samples"
     if args.prewarp is not None:
         how += f", prewarp {args.prewarp:g} rad/s"

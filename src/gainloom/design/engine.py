@@ -52,7 +52,9 @@ def _load(schedule: Any):
 def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = None) -> Loop:
     """The discretised plant (hold, sample period, computation delay) at ``points``."""
     models = sched.evaluate(np.asarray(points, dtype=float), scale=scale)
-    return discretize_loop(models.plant, models.sample_period, sched.sampling.method, models.delay, sched.sampling.prewarp)
+    return discretize_loop(
+        models.plant, models.sample_period, sched.sampling.method, delay=models.delay, prewarp=sched.sampling.prewarp
+    )
 
 
 def limits_at(sched, points: np.ndarray) -> SpecLimits:

@@ -423,6 +423,7 @@ def discretize_loop(
     plant: Loop,
     ts: float | np.ndarray,
     method: str = "zoh",
+    *,
     delay: float | np.ndarray = 0.0,
     prewarp: float | None = None,
 ) -> Loop:
@@ -565,8 +566,9 @@ def discretize(
     den: object,
     ts: float,
     method: str = "zoh",
-    prewarp: float | None = None,
+    *,
     delay: float = 0.0,
+    prewarp: float | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Discretise one continuous transfer function.
 
@@ -578,10 +580,10 @@ def discretize(
         Sample period in seconds.
     method : str
         One of :data:`gainloom.names.HOLD_METHODS`.
-    prewarp : float, optional
-        Tustin prewarp frequency in rad/s (below ``pi/ts``).
     delay : float
         Computation delay in samples (fractional only with ``"zoh"``).
+    prewarp : float, optional
+        Tustin prewarp frequency in rad/s (below ``pi/ts``).
 
     Returns
     -------
