@@ -139,7 +139,7 @@ for name, edits, fragment, key, marker, check_col in CASES:
         assert body.count(old) >= 1, (name, old)
         body = body.replace(old, new, 1)
     # header: 5 comment lines, fixed count so positions are known before writing
-    def header(line, col):
+    def header(line, col, fragment=fragment, key=key, check_col=check_col):
         return (f"# expect: {fragment}\n# line: {line}\n# column: {col if check_col else '-'}\n"
                 f"# key: {key if key else '-'}\n# Malformed on purpose (gainloom test corpus).\n")
     text = header(0, 0) + body

@@ -292,11 +292,11 @@ def check_quantisation(
             broken.append({"where": where, "point": label, "spec": spec})
     # Rounding can also reorder two nearly equal neighbours (monotone) or
     # widen a step past the smoothness limit.
-    for where in ("smoothness", "monotone"):
-        def keys(report):
-            return {(e["coefficient"], e["axis"], tuple(e["index"])) for e in getattr(report, where)}
+    def keys(report, where):
+        return {(e["coefficient"], e["axis"], tuple(e["index"])) for e in getattr(report, where)}
 
-        for coefficient, axis, index in sorted(keys(rounded.table_report) - keys(original.table_report)):
+    for where in ("smoothness", "monotone"):
+        for coefficient, axis, index in sorted(keys(rounded.table_report, where) - keys(original.table_report, where)):
             broken.append({"where": where, "point": f"{axis} index {list(index)}", "spec": f"{where} of {coefficient}"})
 
     worst: dict[str, dict[str, Any]] = {}

@@ -24,7 +24,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..lti.loop import Loop
-from ..lti.polynomials import batched_roots
+from ..lti.polynomials import batched_roots, pad_left
 
 __all__ = ["CANCEL_TOLERANCE", "cancelled_zeros", "mask_cancelled", "deflate"]
 
@@ -130,10 +130,12 @@ def deflate(loop: Loop, cancelled: np.ndarray) -> list[tuple[np.ndarray, Loop]]:
             dnums.append(dnum)
             ddens.append(dden)
         width = max(d.size for d in dens)
-        pad = lambda a: np.concatenate([np.zeros(width - a.size), a])  # noqa: E731
-        delta = None if ddens[0] is None else (np.stack([pad(a) for a in dnums]), np.stack([pad(a) for a in ddens]))
+        def stacked(polys):
+            return np.stack([pad_left(poly, width) for poly in polys])
+
+        delta = None if ddens[0] is None else (stacked(dnums), stacked(ddens))
         groups.append((rows, Loop(
-            num=np.stack([pad(a) for a in nums]), den=np.stack([pad(a) for a in dens]), ts=sub.ts, hold=sub.hold,
+            num=stacked(nums), den=stacked(dens), ts=sub.ts, hold=sub.hold,
             delay=sub.delay, prewarp=sub.prewarp,
             delta_num=None if delta is None else delta[0], delta_den=None if delta is None else delta[1],
         )))
