@@ -130,13 +130,15 @@ def deflate(loop: Loop, cancelled: np.ndarray) -> list[tuple[np.ndarray, Loop]]:
             dnums.append(dnum)
             ddens.append(dden)
         width = max(d.size for d in dens)
-        def stacked(polys):
-            return np.stack([pad_left(poly, width) for poly in polys])
-
-        delta = None if ddens[0] is None else (stacked(dnums), stacked(ddens))
+        delta = None if ddens[0] is None else (_stacked(dnums, width), _stacked(ddens, width))
         groups.append((rows, Loop(
-            num=stacked(nums), den=stacked(dens), ts=sub.ts, hold=sub.hold,
+            num=_stacked(nums, width), den=_stacked(dens, width), ts=sub.ts, hold=sub.hold,
             delay=sub.delay, prewarp=sub.prewarp,
             delta_num=None if delta is None else delta[0], delta_den=None if delta is None else delta[1],
         )))
     return groups
+
+
+def _stacked(polys: list[np.ndarray], width: int) -> np.ndarray:
+    """Polynomials of mixed length as one left-padded ``(n, width)`` array."""
+    return np.stack([pad_left(poly, width) for poly in polys])
