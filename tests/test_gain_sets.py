@@ -24,7 +24,7 @@ ZERO = 0.98  # PI zero in z
 
 
 def shape_loop():
-    plant = discretize_loop(Loop(num=np.array([[0.0, 1.0]]), den=np.array([[1.5e-3, 0.5]])), TS, "zoh", 1.0)
+    plant = discretize_loop(Loop(num=np.array([[0.0, 1.0]]), den=np.array([[1.5e-3, 0.5]])), TS, "zoh", delay=1.0)
     num = np.polymul([1.0, -ZERO], plant.num[0])
     den = np.polymul([1.0, -1.0], plant.den[0])
     return Loop(num=num[None, :], den=den[None, :], ts=np.array([TS])), control.tf(num, den, TS)
