@@ -34,13 +34,14 @@ from ..lti.closed_loop import closed_loop_poles
 from ..lti.intervals import spec_gain_intervals, stable_gain_intervals
 from ..lti.loop import Loop
 from ..lti.margins import loop_margins
+from ..lti.polynomials import polymul, z_to_delta
 from ..lti.regions import SpecRegion
 from .analysis import pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .specs import SpecLimits
-from .structures import _roots_poly, _z_to_delta, polymul
+from .structures import _roots_poly
 
-__all__ = ["Shapes", "Choice", "shape_loops", "choose_gains", "objective_values", "OBJECTIVE_TEXT"]
+__all__ = ["OBJECTIVE_TEXT", "Choice", "Shapes", "choose_gains", "objective_values", "shape_loops"]
 
 #: Coarse gain samples per shape (ranking only).
 COARSE_SAMPLES = 30
@@ -115,8 +116,8 @@ def shape_loops(plant: Loop, zeros: np.ndarray, poles: np.ndarray, rows: np.ndar
     den = polymul(den_c, plant.den[rows])
     delta_num = delta_den = None
     if plant.delta_den is not None:
-        dz = _z_to_delta(zeros, ts)
-        dq = _z_to_delta(den_c, ts)
+        dz = z_to_delta(zeros, ts)
+        dq = z_to_delta(den_c, ts)
         lead = dq[..., :1]
         delta_num = polymul(dz / lead, plant.delta_num[rows])
         delta_den = polymul(dq / lead, plant.delta_den[rows])
@@ -363,7 +364,7 @@ def choose_gains(
     """
     P, S = shapes.valid.shape
     rows_p = np.repeat(np.arange(P), S)
-    flat = lambda a: a.reshape((P * S,) + a.shape[2:])  # noqa: E731
+    flat = lambda a: a.reshape((P * S,) + a.shape[2:])
     loops = shape_loops(plant, flat(shapes.zeros), flat(shapes.poles), rows_p)
     ts_rows = plant.ts[rows_p]
 

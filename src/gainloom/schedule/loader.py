@@ -17,19 +17,32 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import names
+from .. import limits, names
 from ..c_names import comment_text_problem
 from ..errors import ScheduleError
 from ..inputs import read_input_file
 from ..lti.polynomials import batched_roots
-from .. import limits
 from .expressions import CONSTANTS, FUNCTIONS, Expression, parse_expression
-from .family import SAMPLE_PERIOD_NAME, Family, Pair, ParameterDef, PlantRecipe, TableDef
+from .family import (
+    SAMPLE_PERIOD_NAME,
+    Family,
+    Pair,
+    ParameterDef,
+    PlantRecipe,
+    TableDef,
+)
+from .filters import check_filter_names, evaluate_filters
 from .model import Axis, Sampling, Schedule
 from .nodes import Node, compose_text
-from .sections import read_codegen, read_controller, read_specs, read_table_checks, read_tolerances
+from .sections import (
+    read_codegen,
+    read_controller,
+    read_specs,
+    read_table_checks,
+    read_tolerances,
+)
 
-__all__ = ["load_schedule", "TOP_LEVEL_KEYS", "SLOW_SAMPLING_LIMIT"]
+__all__ = ["SLOW_SAMPLING_LIMIT", "TOP_LEVEL_KEYS", "load_schedule"]
 
 #: Keys of the schedule file, in the order the docs describe them.
 TOP_LEVEL_KEYS: tuple[str, ...] = (
@@ -121,6 +134,8 @@ def load_schedule(path: str | Path) -> Schedule:
 
     controller = _resolve_output_limits(read_controller(keys["controller"]), family, points, models.parameters,
                                         known)
+    check_filter_names(controller.filters, known, _TS_ONLY)
+    evaluate_filters(family, controller.filters, points, models.parameters, models.plant.den, models.sample_period)
     specs = read_specs(keys.get("specs"), axis_names)
     table_checks = read_table_checks(keys.get("table"), controller.structure)
     tolerances = read_tolerances(keys.get("tolerances"), {p.name: p.independent for p in parameters})
@@ -341,7 +356,7 @@ def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
         parts = section.mapping(("zeros", "poles", "gain"), required=("poles", "gain"))
         zeros = _roots(parts["zeros"], "zero", known) if "zeros" in parts else ()
         poles = _roots(parts["poles"], "pole", known)
-        degree = lambda roots: sum(2 if isinstance(r, Pair) else 1 for r in roots)  # noqa: E731
+        degree = lambda roots: sum(2 if isinstance(r, Pair) else 1 for r in roots)
         _check_order(parts["poles"], degree(poles), "zpk without poles is a static gain")
         if degree(zeros) > degree(poles):
             raise parts["zeros"].error(

@@ -12,8 +12,10 @@ import re
 from collections.abc import Callable
 from typing import Any
 
-from .. import names
+from .. import limits, names
 from ..c_names import prefix_problem
+from .expressions import parse_expression
+from .filters import read_filters
 from .model import (
     CodegenSection,
     ControllerSection,
@@ -24,17 +26,15 @@ from .model import (
     Target,
     Tolerances,
 )
-from .expressions import parse_expression
 from .nodes import Node
-from .. import limits
 
 __all__ = [
+    "SPEC_KEYS",
+    "read_codegen",
     "read_controller",
     "read_specs",
     "read_table_checks",
     "read_tolerances",
-    "read_codegen",
-    "SPEC_KEYS",
 ]
 
 CONTROLLER_KEYS = (
@@ -47,6 +47,7 @@ CONTROLLER_KEYS = (
     "derivative_filter",
     "output_limits",
     "compare_continuous",
+    "filters",
 )
 
 #: Default controller-zero sweep of shape-sweep: location in z and count.
@@ -156,6 +157,7 @@ def read_controller(node: Node) -> ControllerSection:
         sweep=sweep,
         derivative_filter=derivative_filter,
         compare_continuous=compare,
+        filters=read_filters(keys["filters"]) if "filters" in keys else (),
     )
 
 
