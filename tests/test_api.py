@@ -43,6 +43,8 @@ EXPECTED_PUBLIC_NAMES = {
     "ScenarioSpecs",
     "PiecewiseLinear",
     "LoadStep",
+    "Feedforward",
+    "LimitStep",
     "SimulationResult",
     "check_quantisation",
     "QuantisationResult",

@@ -24,7 +24,7 @@ from .lti.trace import LocusBranches, trace_locus
 from .lti.intervals import GainInterval, region_crossings, spec_gain_intervals, stable_gain_intervals
 from .lti.regions import SpecRegion
 from .lti.stability import jury_test, routh_array
-from .simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
+from .simulation import Feedforward, LimitStep, LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
 from .codegen.quantisation import QuantisationResult, check_quantisation
 from .report import write_verification
 from .report.run import JobResult, run_design_job
@@ -69,6 +69,8 @@ __all__ = [
     "ScenarioSpecs",
     "PiecewiseLinear",
     "LoadStep",
+    "Feedforward",
+    "LimitStep",
     "SimulationResult",
     "check_quantisation",
     "QuantisationResult",
