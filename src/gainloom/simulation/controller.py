@@ -37,7 +37,7 @@ from ..codegen.qformat import STATE_FRAC, dequantize, quantize
 from ..design.table import GainTable
 from ..errors import InputError
 from ..names import NUMBER_FORMATS, unknown_name_message
-from .interpolation import interpolate_grid, interpolate_table
+from ..design.lookup import interpolate_grid, interpolate_table
 
 __all__ = ["SIMULATION_FORMATS", "STATE_NAMES", "TableController"]
 

@@ -10,7 +10,7 @@ from ..design.table import GainTable
 from ..errors import InputError
 from ..names import unknown_name_message
 from .controller import SIMULATION_FORMATS, TableController
-from .interpolation import interpolate_grid
+from ..design.lookup import interpolate_grid
 from .metrics import measure
 from .plant import sample_plant
 from .result import SimulationResult, SpecCheck
