@@ -17,6 +17,7 @@ import sys
 import numpy as np
 import pytest
 
+from gainloom import look
 from gainloom.cli import main
 from gainloom.design.gainsfile import write_gains
 from gainloom.design.table import GainTable, TableAxis
@@ -145,7 +146,7 @@ def test_plots_are_deterministic_png_without_metadata(files, capsys):
     assert images[0] == images[1]
     chunks = _png_chunks(images[0])
     width, height = struct.unpack(">II", chunks[0][1][:8])
-    assert (width, height) == (800, 1000)  # 8 x 10 in at 100 dpi
+    assert (width, height) == (8 * look.DPI, 10 * look.DPI)  # 8 x 10 in at the project's one resolution
     assert not [kind for kind, _ in chunks if kind in (b"tEXt", b"iTXt", b"zTXt", b"tIME")]
     assert "plot:" in capsys.readouterr().out
 
