@@ -39,9 +39,9 @@ from ..lti.loop import Loop
 from ..lti.multirate import lift
 from ..lti.polynomials import batched_roots, pad_left
 from .engine import Progress, design
+from .lookup import interpolate_table
 from .structures import controller_polynomials, polymul
 from .table import GainTable
-from .table_checks import interpolate
 
 __all__ = ["CascadeDesign", "design_cascade", "inner_points_at", "outer_plant", "with_inner_loop"]
 
@@ -120,8 +120,7 @@ def outer_plant(outer_sched: Any, inner_sched: Any, inner_table: GainTable, fact
     expected = polymul(a_i, a_o)
     if not np.allclose(np.asarray(g_wv.den), expected, rtol=_POLE_AGREEMENT, atol=_POLE_AGREEMENT):
         raise DesignError("internal: the sampled series plant's poles are not the inner and outer poles sampled")
-    axes_values = [axis.values for axis in inner_table.axes]
-    gains = interpolate(axes_values, inner_table.coefficients, inner_points)
+    gains = interpolate_table(inner_table, inner_points)
     c_n, c_d = controller_polynomials(inner_table.structure, gains)
     num = polymul(c_n, np.asarray(g_wv.num))
     den = polymul(a_o, polymul(c_d, a_i) + polymul(c_n, np.asarray(g_iv.num)))

@@ -23,7 +23,7 @@ import numpy as np
 from .analysis import analyse
 from .cascade import outer_plant
 from .engine import limits_at, sampled_plant
-from .table_checks import interpolate
+from .lookup import interpolate_table
 
 __all__ = ["CascadeChecks", "LoopPairCheck", "check_cascade", "inner_values"]
 
@@ -148,10 +148,10 @@ def check_pair(inner_loop: Any, outer_loop: Any, inner_sched: Any, outer_sched: 
     rows, outer_at, inner_at = _pairs(outer_sched, outer_points, inner_sched)
     plant = outer_plant(outer_sched, inner_sched, inner_result.table, outer_loop.rate_factor, outer_at, inner_at)
     table = outer_result.table
-    outer_gains = interpolate([a.values for a in table.axes], table.coefficients, outer_at)
+    outer_gains = interpolate_table(table, outer_at)
     outer = analyse(plant, table.structure, outer_gains, limits_at(outer_sched, outer_at))
     inner_table = inner_result.table
-    inner_gains = interpolate([a.values for a in inner_table.axes], inner_table.coefficients, inner_at)
+    inner_gains = interpolate_table(inner_table, inner_at)
     inner = analyse(sampled_plant(inner_sched, inner_at), inner_table.structure, inner_gains,
                     limits_at(inner_sched, inner_at), step=False)
     with np.errstate(divide="ignore", invalid="ignore"):
