@@ -51,6 +51,10 @@ EXPECTED_PUBLIC_NAMES = {
     "write_verification",
     "run_design_job",
     "JobResult",
+    "Cascade",
+    "load_cascade",
+    "CascadeDesign",
+    "design_cascade",
 }
 
 

@@ -17,9 +17,11 @@ import sys
 import numpy as np
 import pytest
 
+from gainloom import look
 from gainloom.cli import main
 from gainloom.design.gainsfile import write_gains
 from gainloom.design.table import GainTable, TableAxis
+from gainloom.safety import CAUTION
 
 SCHEDULE = """\
 name: lag-test
@@ -84,7 +86,7 @@ def test_json_run_matches_the_closed_form(files):
     phi = np.exp(-40.0 * 1e-3)
     lam = phi - 3.0 * (1 - phi)
     np.testing.assert_allclose(y, 0.75 * (1 - lam**k), rtol=0, atol=1e-12)
-    assert data["passed"] and data["number_format"] == "float64" and "CAUTION" in data["caution"]
+    assert data["passed"] and data["number_format"] == "float64" and data["caution"] == CAUTION
     assert data["series"]["points"]["speed"][-1] == pytest.approx(2000.0)
 
 
@@ -119,7 +121,7 @@ def test_text_run_fails_a_limit_and_flags_instability(files, capsys):
     options = ["--ramp", "speed=500", "--error-from", "0.25", "--max-error", "0.1"]
     assert main(["simulate", schedule, "--gains", stable, *options]) == 1
     text = capsys.readouterr().out
-    assert "FAIL" in text and "spec max_error <= 0.1: 0.25" in text and "CAUTION" in text
+    assert "FAIL" in text and "spec max_error <= 0.1: 0.25" in text and CAUTION in text
     # K = 60: lam = phi - 60 (1 - phi) = -1.39, outside the unit circle (closed form).
     done = run_cli(schedule, "--gains", unstable, "--ramp", "speed=500")
     assert done.returncode == 1, done.stderr
@@ -173,7 +175,7 @@ def test_plots_are_deterministic_png_without_metadata(files, capsys):
     assert images[0] == images[1]
     chunks = _png_chunks(images[0])
     width, height = struct.unpack(">II", chunks[0][1][:8])
-    assert (width, height) == (800, 1000)  # 8 x 10 in at 100 dpi
+    assert (width, height) == (8 * look.DPI, 10 * look.DPI)  # 8 x 10 in at the project's one resolution
     assert not [kind for kind, _ in chunks if kind in (b"tEXt", b"iTXt", b"zTXt", b"tIME")]
     assert "plot:" in capsys.readouterr().out
 

@@ -28,6 +28,8 @@ from .simulation import Feedforward, LimitStep, LoadStep, PiecewiseLinear, Scena
 from .codegen.quantisation import QuantisationResult, check_quantisation
 from .report import write_verification
 from .report.run import JobResult, run_design_job
+from .schedule.cascade import Cascade, load_cascade
+from .design.cascade import CascadeDesign, design_cascade
 
 __all__ = [
     "__version__",
@@ -77,4 +79,8 @@ __all__ = [
     "write_verification",
     "run_design_job",
     "JobResult",
+    "Cascade",
+    "load_cascade",
+    "CascadeDesign",
+    "design_cascade",
 ]

@@ -12,17 +12,11 @@ from __future__ import annotations
 import argparse
 
 from ..errors import InputError
+from ..safety import CAUTION
 from .arguments import parse_number
 from .output import print_json
 
 HELP = "run the closed loop in time while the scheduling variables move (ramps, steps, load steps)"
-
-#: Printed after every run.
-SAFETY_CAUTION = (
-    "CAUTION: a simulation is evidence, not proof. Validate the table on the hardware with current and "
-    "speed limits and a safe test set-up before use. gainloom does not replace functional-safety "
-    "processes, local codes or licensed engineering judgement."
-)
 
 _EPILOG = """\
 paths of the scheduling variables (one option per variable; every variable
@@ -261,7 +255,7 @@ def run(args: argparse.Namespace) -> int:
         data = result.to_dict(series=args.series)
         data["notes"] = notes
         data["plots"] = plots
-        data["caution"] = SAFETY_CAUTION
+        data["caution"] = CAUTION
         print_json(data)
     else:
         for line in result.summary():
@@ -270,5 +264,5 @@ def run(args: argparse.Namespace) -> int:
             print(f"note: {note}")
         for path in plots:
             print(f"plot: {path}")
-        print(SAFETY_CAUTION)
+        print(CAUTION)
     return 0 if result.passed else 1

@@ -34,10 +34,10 @@ import numpy as np
 from ..codegen.layout import LIMIT_TABLES, layout_table
 from ..codegen.mirror import FixedStepper, FloatStepper, lookup_gains, state_fields
 from ..codegen.qformat import STATE_FRAC, dequantize, quantize
+from ..design.lookup import interpolate_grid, interpolate_table
 from ..design.table import GainTable
 from ..errors import InputError
 from ..names import NUMBER_FORMATS, unknown_name_message
-from .interpolation import interpolate_grid, interpolate_table
 
 __all__ = ["SIMULATION_FORMATS", "STATE_NAMES", "TableController"]
 

@@ -8,7 +8,6 @@ metadata, so the same result gives byte-identical files.
 
 from __future__ import annotations
 
-import io
 import os
 from pathlib import Path
 
@@ -23,7 +22,6 @@ __all__ = ["PLOT_FILE", "render_plots", "write_plots"]
 PLOT_FILE = "simulation.png"
 
 _SIZE_INCHES = (8.0, 10.0)
-_DPI = 100
 
 
 def render_plots(result: SimulationResult) -> dict[str, bytes]:
@@ -44,13 +42,13 @@ def render_plots(result: SimulationResult) -> dict[str, bytes]:
         File name to PNG content.
     """
     import matplotlib.style
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
+    from cycler import cycler
+
+    from ..look import SERIES, new_figure, png_bytes
 
     t = result.time
-    with matplotlib.style.context("default"):
-        figure = Figure(figsize=_SIZE_INCHES, dpi=_DPI)
-        FigureCanvasAgg(figure)
+    with matplotlib.style.context(["default", {"axes.prop_cycle": cycler(color=SERIES)}]):
+        figure = new_figure(_SIZE_INCHES)
         axes = figure.subplots(4, 1, sharex=True)
         tracking, control, schedule, gains = axes
 
@@ -99,9 +97,8 @@ def render_plots(result: SimulationResult) -> dict[str, bytes]:
             panel.grid(True, linewidth=0.4)
             panel.legend(loc="upper right", fontsize="small")
         figure.tight_layout()
-        buffer = io.BytesIO()
-        figure.savefig(buffer, format="png", dpi=_DPI, metadata={"Software": None})
-    return {PLOT_FILE: buffer.getvalue()}
+        data = png_bytes(figure)
+    return {PLOT_FILE: data}
 
 
 def write_plots(result: SimulationResult, directory: str | os.PathLike, *, force: bool = False) -> list[Path]:

@@ -6,11 +6,11 @@ from typing import Any, Protocol
 
 import numpy as np
 
+from ..design.lookup import interpolate_grid
 from ..design.table import GainTable
 from ..errors import InputError
 from ..names import unknown_name_message
 from .controller import SIMULATION_FORMATS, TableController
-from .interpolation import interpolate_grid
 from .metrics import measure
 from .plant import sample_plant
 from .result import SimulationResult, SpecCheck
