@@ -27,6 +27,10 @@ __all__ = [
     "MAX_PLANT_ORDER",
     "MAX_DELAY_SAMPLES",
     "SAMPLE_PERIOD_RANGE",
+    "MAX_RESPONSE_BYTES",
+    "MAX_RESPONSE_SAMPLES",
+    "MIN_RESPONSE_SAMPLES",
+    "MAX_FIT_POLES",
     "size_text",
 ]
 
@@ -65,6 +69,17 @@ MAX_PLANT_ORDER = 30
 MAX_DELAY_SAMPLES = 50
 #: Sample periods accepted, seconds (1 ns to 1,000 s).
 SAMPLE_PERIOD_RANGE = (1e-9, 1e3)
+#: Largest frequency-response (CSV) file read, bytes.
+MAX_RESPONSE_BYTES = 20_000_000
+#: Most samples of a frequency-response file (all its points together).
+MAX_RESPONSE_SAMPLES = 200_000
+#: Fewest samples per operating point of a measured plant: below that a
+#: sweep cannot show a crossover with its neighbourhood (common practice,
+#: no source: about ten per decade over two decades).
+MIN_RESPONSE_SAMPLES = 20
+#: Highest pole count of a fitted model (``plant.measured.fit``): beyond it
+#: the least-squares problem in powers of ``s`` loses its digits.
+MAX_FIT_POLES = 8
 
 
 def size_text(value: int | float) -> str:

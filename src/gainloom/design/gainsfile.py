@@ -47,6 +47,7 @@ _KEYS = (
     "table_checks",
     "warnings",
     "continuous",
+    "measured",
 )
 
 
@@ -408,6 +409,7 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
             "table_checks": _restore_nonfinite(data.get("table_checks")),
             "warnings": list(data.get("warnings") or []),
             "continuous": _restore_nonfinite(data.get("continuous")),
+            "measured": _restore_nonfinite(data.get("measured")),
             "path": str(path),
         }
     )
