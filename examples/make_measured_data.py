@@ -37,7 +37,7 @@ BAD_SAMPLES = ((1.0, 7, 3.0), (2.0, 80, 0.25), (4.0, 85, np.exp(1j * np.radians(
 def frequencies_hz() -> np.ndarray:
     """The sweep's frequencies, logarithmically spaced, Hz."""
     decades = np.log10(SWEEP_HZ[1] / SWEEP_HZ[0])
-    return np.geomspace(*SWEEP_HZ, int(round(decades * PER_DECADE)) + 1)
+    return np.geomspace(*SWEEP_HZ, round(decades * PER_DECADE) + 1)
 
 
 def true_response(load: float, f_hz: np.ndarray) -> np.ndarray:

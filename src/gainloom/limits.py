@@ -12,25 +12,25 @@ minutes on a laptop.
 from __future__ import annotations
 
 __all__ = [
-    "MAX_SCHEDULE_BYTES",
-    "MAX_GAINS_BYTES",
-    "MAX_EXPRESSION_LENGTH",
-    "MAX_EXPRESSION_DEPTH",
-    "MAX_OPERATING_POINTS",
-    "MAX_SWEEP_COUNT",
     "MAX_BETWEEN_POINTS",
     "MAX_CHECK_POINTS",
-    "MAX_REFINE_INSERTED",
-    "MAX_TOLERANCE_SAMPLES",
-    "MAX_TOLERANCE_EVALUATIONS",
-    "MAX_STUDY_DRAWS",
-    "MAX_PLANT_ORDER",
     "MAX_DELAY_SAMPLES",
-    "SAMPLE_PERIOD_RANGE",
+    "MAX_EXPRESSION_DEPTH",
+    "MAX_EXPRESSION_LENGTH",
+    "MAX_FIT_POLES",
+    "MAX_GAINS_BYTES",
+    "MAX_OPERATING_POINTS",
+    "MAX_PLANT_ORDER",
+    "MAX_REFINE_INSERTED",
     "MAX_RESPONSE_BYTES",
     "MAX_RESPONSE_SAMPLES",
+    "MAX_SCHEDULE_BYTES",
+    "MAX_STUDY_DRAWS",
+    "MAX_SWEEP_COUNT",
+    "MAX_TOLERANCE_EVALUATIONS",
+    "MAX_TOLERANCE_SAMPLES",
     "MIN_RESPONSE_SAMPLES",
-    "MAX_FIT_POLES",
+    "SAMPLE_PERIOD_RANGE",
     "size_text",
 ]
 
@@ -82,7 +82,7 @@ MIN_RESPONSE_SAMPLES = 20
 MAX_FIT_POLES = 8
 
 
-def size_text(value: int | float) -> str:
+def size_text(value: float) -> str:
     """A count for a message: digits grouped, or the order of magnitude of a huge one."""
     if isinstance(value, int) and abs(value) >= 10**15:
         return f"about 10^{len(str(abs(value))) - 1}"

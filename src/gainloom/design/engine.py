@@ -28,7 +28,6 @@ from ..names import (
 from .analysis import PointAnalysis, analyse
 from .crossover_job import choose_by_crossover, step_fallback, uses_crossover
 from .diagnose import compromise, diagnose
-from .measured_check import check_on_data, merge_data_verdict
 from .fallbacks import (
     boundary_warnings,
     compromise_warnings,
@@ -36,6 +35,7 @@ from .fallbacks import (
     strategy_gain_warning,
     target_warnings,
 )
+from .measured_check import check_on_data, merge_data_verdict
 from .results import DesignResult, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, _samples_in, choose_gains, objective_values
 from .specs import SAMPLING_FRACTION, SpecLimits

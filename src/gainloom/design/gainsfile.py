@@ -20,13 +20,13 @@ import yaml
 
 from ..errors import ScheduleError
 from ..inputs import read_input_file
-from ..outputs import write_outputs
-from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
-from ..plain import to_plain
 from ..limits import MAX_GAINS_BYTES
+from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
+from ..outputs import write_outputs
+from ..plain import to_plain
 from .table import GainTable, TableAxis
 
-__all__ = ["GAINS_FORMAT", "render_gains", "write_gains", "read_gains", "gains_document", "GainsMetadata"]
+__all__ = ["GAINS_FORMAT", "GainsMetadata", "gains_document", "read_gains", "render_gains", "write_gains"]
 
 #: Format tag of the gains file.
 GAINS_FORMAT = "gainloom-gains/1"
@@ -280,9 +280,8 @@ def _floats(value: Any) -> Any:
         return [_floats(v) for v in value]
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
         raise TypeError
-    if isinstance(value, str):
-        if value not in ("inf", "-inf", "nan"):
-            raise ValueError
+    if isinstance(value, str) and value not in ("inf", "-inf", "nan"):
+        raise ValueError
     return float(value)
 
 
@@ -323,7 +322,7 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
         raise ScheduleError(f"gains file is not UTF-8 text (byte {error.start})", file=str(path)) from None
     try:
         root = yaml.compose(text, Loader=_Loader)
-        data = yaml.load(text, Loader=_Loader)  # noqa: S506 - _Loader is a SafeLoader
+        data = yaml.load(text, Loader=_Loader)
     except (ValueError, TypeError, OverflowError) as error:  # e.g. !!float abc
         raise ScheduleError(f"a value cannot be read as tagged: {error}", file=str(path)) from None
     except yaml.YAMLError as error:

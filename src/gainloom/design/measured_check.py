@@ -23,10 +23,11 @@ import numpy as np
 
 from ..lti.data_margins import DataMargins, data_margins, sampled_loop_on_data
 from ..lti.sweep_fit import model_response, relative_error
+from ..schedule.measured import grid_index
 from .specs import SpecLimits
 from .structures import controller_polynomials
 
-__all__ = ["DataCheck", "check_on_data", "merge_data_verdict", "CROSSOVER_BAND"]
+__all__ = ["CROSSOVER_BAND", "DataCheck", "check_on_data", "merge_data_verdict"]
 
 #: The band where the fit error matters: crossover / 2 .. crossover x 2.
 CROSSOVER_BAND = 2.0
@@ -84,14 +85,6 @@ class DataCheck:
         return {"passed": self.passed, "points": points}
 
 
-def _measured_rows(sched, points: np.ndarray) -> np.ndarray:
-    """Row of each schedule grid point (the measured ones) among the design's ``points``."""
-    grid = np.asarray(sched.points, dtype=float)
-    scale = np.maximum(np.abs(grid).max(axis=0), 1.0)
-    close = np.all(np.abs(grid[:, np.newaxis, :] - points[np.newaxis, :, :]) <= 1e-9 * scale, axis=2)
-    return np.argmax(close, axis=1)
-
-
 def _failures(m: DataMargins, delay_margin: np.ndarray, limits: SpecLimits) -> tuple[tuple[str, ...], ...]:
     """Per point, the frequency specs the data fail, each with value and limit."""
     checks = (
@@ -138,7 +131,7 @@ def check_on_data(sched, points: np.ndarray, structure: str, coefficients: dict[
     measured = sched.family.plant.measured
     if measured is None:
         return None
-    rows = _measured_rows(sched, np.asarray(points, dtype=float))
+    rows = grid_index(np.asarray(sched.points, dtype=float), np.asarray(points, dtype=float))
     num, den = controller_polynomials(structure, {k: np.asarray(v, float)[rows] for k, v in coefficients.items()})
     ts = np.asarray(sched.sampling.period, dtype=float)
     loop = sampled_loop_on_data(measured.w, measured.response, ts, np.asarray(sched.sampling.delay, float), num, den)

@@ -20,7 +20,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from .analysis import PointAnalysis
     from .measured_check import DataCheck
 
-__all__ = ["TableReport", "DesignResult", "VerifyResult", "point_document"]
+__all__ = ["DesignResult", "TableReport", "VerifyResult", "point_document"]
 
 
 def _float(value: Any) -> Any:

@@ -16,9 +16,9 @@ from typing import TYPE_CHECKING, Literal
 import numpy as np
 
 from ..errors import InputError, ScheduleError
+from ..limits import MAX_DELAY_SAMPLES, SAMPLE_PERIOD_RANGE
 from ..lti.convert import poly_from_roots, ss_to_tf
 from ..lti.loop import Loop
-from ..limits import MAX_DELAY_SAMPLES, SAMPLE_PERIOD_RANGE
 from .expressions import Expression
 from .model import Axis, PointModels
 from .nodes import Node
@@ -26,7 +26,7 @@ from .nodes import Node
 if TYPE_CHECKING:  # pragma: no cover
     from .measured import MeasuredPlant
 
-__all__ = ["Family", "ParameterDef", "TableDef", "PlantRecipe", "Pair", "describe_point"]
+__all__ = ["Family", "Pair", "ParameterDef", "PlantRecipe", "TableDef", "describe_point"]
 
 #: Name of the sample period inside ``sampling.delay`` and ``plant.dead_time``.
 SAMPLE_PERIOD_NAME = "ts"

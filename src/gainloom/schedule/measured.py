@@ -27,7 +27,7 @@ from .model import Axis
 from .nodes import Node
 from .response_csv import UNITS, ResponseTable, read_response_csv, to_response
 
-__all__ = ["FIT_KEYS", "MEASURED_KEYS", "FitSettings", "MeasuredPlant", "read_measured"]
+__all__ = ["FIT_KEYS", "MEASURED_KEYS", "FitSettings", "MeasuredPlant", "grid_index", "read_measured"]
 
 MEASURED_KEYS = ("files", "file", "units", "fit")
 FIT_KEYS = ("poles", "zeros", "dead_time", "max_poles", "tolerance")
@@ -195,8 +195,8 @@ def _resolve(item: Node, base: Path) -> str:
     return str(path if path.is_absolute() else base / path)
 
 
-def _grid_index(values: np.ndarray, points: np.ndarray) -> np.ndarray:
-    """Index of the grid point each row of ``values`` (R, n_axes) is, -1 for none."""
+def grid_index(values: np.ndarray, points: np.ndarray) -> np.ndarray:
+    """Index of the row of ``points`` (Q, n_axes) each row of ``values`` (R, n_axes) is, -1 for none."""
     scale = np.maximum(np.abs(points).max(axis=0), 1.0)
     close = np.all(np.abs(values[:, np.newaxis, :] - points[np.newaxis, :, :]) <= _MATCH * scale, axis=2)
     return np.where(close.any(axis=1), np.argmax(close, axis=1), -1)
@@ -218,7 +218,7 @@ def _per_point_files(node: Node, axes, points, base: Path, units) -> list[tuple[
     tables: dict[int, tuple[ResponseTable, np.ndarray]] = {}
     for item in node.sequence(min_length=1, what="files"):
         keys = item.mapping(("at", "file"), required=("at", "file"))
-        index = int(_grid_index(_at(keys["at"], axes)[np.newaxis, :], points)[0])
+        index = int(grid_index(_at(keys["at"], axes)[np.newaxis, :], points)[0])
         if index < 0:
             raise keys["at"].error(f"'at' is not a grid point ({_grid_text(axes)})")
         if index in tables:
@@ -236,7 +236,7 @@ def _one_file(node: Node, axes, points, base: Path, units) -> list[tuple[Respons
     names = tuple(a.name for a in axes)
     table = read_response_csv(_resolve(node, base), names, units)
     values = np.stack([table.columns[n.lower()] for n in names], axis=1)
-    index = _grid_index(values, points)
+    index = grid_index(values, points)
     if np.any(index < 0):
         row = int(np.flatnonzero(index < 0)[0])
         shown = ", ".join(f"{n}={v:g}" for n, v in zip(names, values[row]))
