@@ -15,8 +15,9 @@ import sys
 from pathlib import Path
 
 import pytest
-from gainloom.safety import CAUTION
 from test_design_job import PASSING, UNSTABLE
+
+from gainloom.safety import CAUTION
 
 
 class Done:

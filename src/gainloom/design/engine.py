@@ -8,9 +8,10 @@ discretised at each point with its hold, sample period and computation delay
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 
@@ -20,7 +21,7 @@ from ..lti.loop import Loop
 from ..names import CROSSOVER_OBJECTIVES, DESIGN_STRATEGIES, SWEEP_OBJECTIVES, TUNING_RULES, unknown_name_message
 from .analysis import PointAnalysis, analyse
 from .crossover_job import choose_by_crossover, step_fallback, uses_crossover
-from .diagnose import diagnose, compromise
+from .diagnose import compromise, diagnose
 from .fallbacks import boundary_warnings, compromise_warnings, shortfall, strategy_gain_warning, target_warnings
 from .results import DesignResult, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, _samples_in, choose_gains, objective_values

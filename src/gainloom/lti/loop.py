@@ -128,7 +128,7 @@ class Loop:
         """True for a loop in ``z``."""
         return self.ts is not None
 
-    def select(self, index: int | slice | np.ndarray) -> "Loop":
+    def select(self, index: int | slice | np.ndarray) -> Loop:
         """Return the sub-batch at ``index`` (an int keeps a batch of one)."""
         index = np.atleast_1d(np.arange(self.points)[index])
         return replace(
@@ -158,7 +158,7 @@ class Loop:
         return control.tf(num, self.den[index], 0 if self.ts is None else dt)
 
     @classmethod
-    def from_control(cls, systems) -> "Loop":
+    def from_control(cls, systems) -> Loop:
         """Build a loop from one or a sequence of python-control SISO systems.
 
         ``StateSpace`` systems are converted to transfer functions.  Discrete

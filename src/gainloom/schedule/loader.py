@@ -17,12 +17,11 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import names
+from .. import limits, names
 from ..c_names import comment_text_problem
 from ..errors import ScheduleError
 from ..inputs import read_input_file
 from ..lti.polynomials import batched_roots
-from .. import limits
 from .expressions import CONSTANTS, FUNCTIONS, Expression, parse_expression
 from .family import SAMPLE_PERIOD_NAME, Family, Pair, ParameterDef, PlantRecipe, TableDef
 from .model import Axis, Sampling, Schedule

@@ -298,7 +298,7 @@ class Schedule:
     tolerances: Tolerances
     codegen: CodegenSection
     warnings: tuple[str, ...]
-    family: "Family" = field(repr=False)
+    family: Family = field(repr=False)
 
     @property
     def axis_names(self) -> tuple[str, ...]:

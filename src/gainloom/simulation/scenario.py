@@ -65,12 +65,12 @@ class PiecewiseLinear:
         object.__setattr__(self, "values", values)
 
     @classmethod
-    def constant(cls, value: float) -> "PiecewiseLinear":
+    def constant(cls, value: float) -> PiecewiseLinear:
         """A constant signal ``value``."""
         return cls([0.0], [_finite(value, "constant value")])
 
     @classmethod
-    def ramp(cls, start: float, end: float, t_start: float, t_end: float) -> "PiecewiseLinear":
+    def ramp(cls, start: float, end: float, t_start: float, t_end: float) -> PiecewiseLinear:
         """``start`` until ``t_start`` s, linear to ``end`` at ``t_end`` s, then held."""
         t_start, t_end = _finite(t_start, "ramp start time"), _finite(t_end, "ramp end time")
         if not t_end > t_start:
@@ -78,7 +78,7 @@ class PiecewiseLinear:
         return cls([t_start, t_end], [_finite(start, "ramp start"), _finite(end, "ramp end")])
 
     @classmethod
-    def step(cls, value: float, time: float = 0.0, initial: float = 0.0) -> "PiecewiseLinear":
+    def step(cls, value: float, time: float = 0.0, initial: float = 0.0) -> PiecewiseLinear:
         """``initial`` before ``time`` s, ``value`` from ``time`` on (a jump)."""
         time = _finite(time, "step time")
         return cls([time, time], [_finite(initial, "step initial value"), _finite(value, "step value")])
