@@ -13,7 +13,7 @@ from ..lti.discretize import discretize_loop
 from ..lti.facts import LocusFacts, locus_facts
 from ..lti.loop import Loop
 from ..lti.poles import damping_and_frequency
-from ..lti.trace import trace_locus
+from ..lti.trace import trace_covering
 from ..names import HOLD_METHODS, unknown_name_message
 from ..safety import CAUTION
 from .arguments import parse_coefficients
@@ -186,10 +186,8 @@ def _branches(loop: Loop, facts: LocusFacts) -> tuple[np.ndarray, np.ndarray, tu
     is widened when a crossing or breakaway lies beyond it, so every
     annotated point sits on a drawn branch.
     """
-    special = [abs(c.gain) for c in facts.crossings] + [abs(b.gain) for b in facts.breakaways]
-    traced = trace_locus(loop, negative=facts.negative)
-    if special and 2.0 * max(special) > float(traced.k_max[0]):
-        traced = trace_locus(loop, k_max=2.0 * max(special), negative=facts.negative)
+    special = [c.gain for c in facts.crossings] + [b.gain for b in facts.breakaways]
+    traced = trace_covering(loop, special, negative=facts.negative)
     count = int(traced.counts[0])
     return traced.gains[0, :count], traced.roots[0, :count], traced.warnings
 
