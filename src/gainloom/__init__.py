@@ -6,8 +6,6 @@ package layout and may move.
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
-
 from . import design  # the package is callable: gainloom.design(schedule)
 from .codegen import HarnessResult, check_generated_c, emit_c
 from .codegen.quantisation import QuantisationResult, check_quantisation
@@ -28,6 +26,7 @@ from .report import write_verification
 from .report.run import JobResult, run_design_job
 from .schedule import Schedule, load_schedule
 from .simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
+from .version import __version__
 
 __all__ = [
     "__version__",
