@@ -11,6 +11,7 @@ from ..errors import InputError
 from ..limits import MAX_DELAY_SAMPLES, MAX_PLANT_ORDER
 from ..lti.discretize import discretize_loop
 from ..lti.facts import LocusFacts, locus_facts
+from ..lti.intervals import damping_gain_intervals
 from ..lti.loop import Loop
 from ..lti.poles import damping_and_frequency
 from ..lti.trace import trace_covering
@@ -79,9 +80,8 @@ def _build_loop(args: argparse.Namespace) -> tuple[Loop, str]:
 
 def loop_facts(loop: Loop, negative: bool) -> LocusFacts:
     """Facts of the first point of ``loop`` (delta form used when present)."""
-    delta = None if loop.delta_den is None else (loop.delta_num[0], loop.delta_den[0])
     ts = None if loop.ts is None else float(loop.ts[0])
-    return locus_facts(loop.num[0], loop.den[0], ts=ts, negative=negative, delta=delta)
+    return locus_facts(loop.num[0], loop.den[0], ts=ts, negative=negative, delta=loop.delta(0))
 
 
 def _cx(value: complex) -> str:
@@ -225,21 +225,6 @@ def _limit_marks(loop: Loop, damped: dict[float, list[tuple[float, float]]]) -> 
 
 def _end(value: float) -> float | None:
     return float(value) if math.isfinite(value) else None
-
-
-def damping_gain_intervals(loop: Loop, zetas: list[float]) -> dict[float, list[tuple[float, float]]]:
-    """Per damping ratio, the gains ``K > 0`` that put every closed-loop pole
-    in the stable region with at least that damping (exact boundary solver)."""
-    from ..lti.intervals import spec_gain_intervals
-    from ..lti.regions import SpecRegion
-
-    ts = None if loop.ts is None else float(loop.ts[0])
-    delta = None if loop.delta_den is None else (loop.delta_num[0], loop.delta_den[0])
-    found = {}
-    for zeta in zetas:
-        intervals = spec_gain_intervals(loop.num[0], loop.den[0], SpecRegion(min_damping=zeta, ts=ts), delta=delta)
-        found[zeta] = [(float(i.low), float(i.high)) for i in intervals]
-    return found
 
 
 def run(args: argparse.Namespace) -> int:

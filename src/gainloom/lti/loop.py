@@ -128,6 +128,20 @@ class Loop:
         """True for a loop in ``z``."""
         return self.ts is not None
 
+    def delta(self, index: int | None = None) -> tuple[np.ndarray, np.ndarray] | None:
+        """The delta-form coefficients ``(num, den)``, or ``None`` when the loop has none.
+
+        Parameters
+        ----------
+        index : int, optional
+            One point's rows (1-D arrays); all points' (2-D) by default.
+        """
+        if self.delta_num is None or self.delta_den is None:
+            return None
+        if index is None:
+            return self.delta_num, self.delta_den
+        return self.delta_num[index], self.delta_den[index]
+
     def select(self, index: int | slice | np.ndarray) -> Loop:
         """Return the sub-batch at ``index`` (an int keeps a batch of one)."""
         index = np.atleast_1d(np.arange(self.points)[index])

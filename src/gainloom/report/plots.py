@@ -443,13 +443,12 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     """
     ts = float(loop.ts[p])
     one = loop.select(np.array([p]))
-    delta = None if one.delta_num is None else (one.delta_num[0], one.delta_den[0])
     design = closed_loop_poles(one, np.ones((1, 1)))[0, 0]
     half_s = _s_half_width(entry)
     # Near z = 1, z ~ 1 + s ts: the magnified z view matches the s view.
     half_z = min(1.2, half_s * ts)
     try:
-        facts = locus_facts(one.num[0], one.den[0], ts, delta=delta)
+        facts = locus_facts(one.num[0], one.den[0], ts, delta=one.delta(0))
         branches = _traced(one, facts, step=float(np.clip(0.02 * half_z, 1e-4, 0.02)))
     except GainloomError:
         # a loop the facts or the tracer cannot describe: a plain gain sweep
