@@ -9,6 +9,7 @@ from __future__ import annotations
 from . import design  # the package is callable: gainloom.design(schedule)
 from .codegen import HarnessResult, check_generated_c, emit_c
 from .codegen.quantisation import QuantisationResult, check_quantisation
+from .design.cascade import CascadeDesign, design_cascade
 from .design.engine import verify
 from .design.gainsfile import read_gains, write_gains
 from .design.results import DesignResult, VerifyResult
@@ -25,7 +26,8 @@ from .lti.trace import LocusBranches, trace_locus
 from .report import write_verification
 from .report.run import JobResult, run_design_job
 from .schedule import Schedule, load_schedule
-from .simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
+from .schedule.cascade import Cascade, load_cascade
+from .simulation import Feedforward, LimitStep, LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
 from .version import __version__
 
 __all__ = [
@@ -68,10 +70,16 @@ __all__ = [
     "ScenarioSpecs",
     "PiecewiseLinear",
     "LoadStep",
+    "Feedforward",
+    "LimitStep",
     "SimulationResult",
     "check_quantisation",
     "QuantisationResult",
     "write_verification",
     "run_design_job",
     "JobResult",
+    "Cascade",
+    "load_cascade",
+    "CascadeDesign",
+    "design_cascade",
 ]
