@@ -43,12 +43,18 @@ EXPECTED_PUBLIC_NAMES = {
     "ScenarioSpecs",
     "PiecewiseLinear",
     "LoadStep",
+    "Feedforward",
+    "LimitStep",
     "SimulationResult",
     "check_quantisation",
     "QuantisationResult",
     "write_verification",
     "run_design_job",
     "JobResult",
+    "Cascade",
+    "load_cascade",
+    "CascadeDesign",
+    "design_cascade",
 }
 
 

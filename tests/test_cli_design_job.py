@@ -15,6 +15,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from gainloom.safety import CAUTION
 from test_design_job import PASSING, UNSTABLE
 
 
@@ -101,7 +102,7 @@ def test_format_prefix_and_json(tmp_path, schedule, main):
     assert "simulation" in report["not_checked"]
     header = (out / "fanx.h").read_text()
     assert "float32" in header[:2000] and not (out / "fan.h").exists()
-    assert "functional-safety" in done.stderr  # the caution goes to stderr with --json
+    assert CAUTION in done.stderr  # the caution goes to stderr with --json
 
 
 def test_bad_input_exits_two(tmp_path, schedule, main):

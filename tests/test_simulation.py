@@ -25,7 +25,7 @@ from gainloom.simulation import (
     ScenarioSpecs,
     run_scenario,
 )
-from gainloom.simulation.interpolation import interpolate_grid
+from gainloom.design.lookup import interpolate_grid
 from gainloom.simulation.plant import split_delay
 from gainloom.simulation.timeline import sample_times
 

@@ -24,10 +24,12 @@ from .lti.trace import LocusBranches, trace_locus
 from .lti.intervals import GainInterval, region_crossings, spec_gain_intervals, stable_gain_intervals
 from .lti.regions import SpecRegion
 from .lti.stability import jury_test, routh_array
-from .simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
+from .simulation import Feedforward, LimitStep, LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario
 from .codegen.quantisation import QuantisationResult, check_quantisation
 from .report import write_verification
 from .report.run import JobResult, run_design_job
+from .schedule.cascade import Cascade, load_cascade
+from .design.cascade import CascadeDesign, design_cascade
 
 __all__ = [
     "__version__",
@@ -69,10 +71,16 @@ __all__ = [
     "ScenarioSpecs",
     "PiecewiseLinear",
     "LoadStep",
+    "Feedforward",
+    "LimitStep",
     "SimulationResult",
     "check_quantisation",
     "QuantisationResult",
     "write_verification",
     "run_design_job",
     "JobResult",
+    "Cascade",
+    "load_cascade",
+    "CascadeDesign",
+    "design_cascade",
 ]

@@ -18,7 +18,7 @@ from ..lti.discretize import discrete_roots, discretize_loop
 from ..schedule import Schedule, load_schedule
 from .output import format_number, format_table, print_json
 
-__all__ = ["HELP", "add_arguments", "run", "inspect_data"]
+__all__ = ["HELP", "add_arguments", "inspect_data", "run"]
 
 HELP = "validate a schedule file and list each operating point: parameters, s- and z-plane poles, sampling"
 
@@ -195,12 +195,50 @@ def _text(data: dict) -> str:
     return "\n".join(lines)
 
 
+def cascade_data(cascade) -> dict:
+    """``inspect --json`` of a cascade file: the cascade and each loop's :func:`inspect_data`.
+
+    An outer loop's plant is its plant part as written; the designed inner
+    loop enters it only in the design (docs/cascade.md).
+    """
+    loops = []
+    for loop in cascade.loops:
+        entry = {"name": loop.name, "rate_factor": loop.rate_factor, "inner_at": loop.inner_at or {},
+                 "shared": list(loop.shared)}
+        loops.append({**entry, **inspect_data(loop.schedule)})
+    return {
+        "cascade": {"name": cascade.name, "description": cascade.description, "path": cascade.path,
+                    "sha256": cascade.sha256, "specs": dataclasses.asdict(cascade.cascade)},
+        "loops": loops,
+        "warnings": [w for loop in loops for w in loop["warnings"]],
+    }
+
+
+def _cascade_text(data: dict) -> str:
+    parts = [f"cascade {data['cascade']['name']}: {data['cascade']['path']}"]
+    for k, loop in enumerate(data["loops"]):
+        if k == 0:
+            role = "inner loop, at the base rate"
+        else:
+            inner_at = ", ".join(f"{n}={format_number(v)}" for n, v in loop["inner_at"].items()) or "-"
+            role = (f"around loop {data['loops'][k - 1]['name']}, every {loop['rate_factor']}-th inner sample; "
+                    f"plant part only (the designed inner loop joins it in the design, at {inner_at})")
+        parts += ["", f"== loop {loop['name']} ({role})", _text(loop)]
+    return "\n".join(parts)
+
+
 def run(args: argparse.Namespace) -> int:
     """Load, evaluate, discretise and print; return the exit code (0, or 2 via the dispatcher)."""
-    schedule = load_schedule(args.schedule)
-    data = inspect_data(schedule)
+    from ..schedule.cascade import is_cascade_file, load_cascade
+
+    if is_cascade_file(args.schedule):
+        data = cascade_data(load_cascade(args.schedule))
+        text = _cascade_text
+    else:
+        data = inspect_data(load_schedule(args.schedule))
+        text = _text
     if args.json:
         print_json(data)
     else:
-        print(_text(data))
+        print(text(data))
     return 0

@@ -15,16 +15,11 @@ from ..lti.loop import Loop
 from ..lti.poles import damping_and_frequency
 from ..lti.trace import trace_locus
 from ..names import HOLD_METHODS, unknown_name_message
+from ..safety import CAUTION
 from .arguments import parse_coefficients
 from .output import format_number, format_table, print_json
 
 HELP = "root-locus facts of one loop K N/D (s-plane, or z-plane after sampling)"
-
-CAUTION = (
-    "Caution: these are model results. Validate gains on hardware with current and speed limits "
-    "and a safe test set-up; this tool does not replace functional-safety processes, local codes "
-    "or licensed engineering judgement."
-)
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Register the options of ``gainloom locus``."""
