@@ -12,7 +12,8 @@ import argparse
 import sys
 
 from ..names import NUMBER_FORMATS
-from .design import SAFETY_CAUTION, Counter
+from ..safety import CAUTION
+from .design import Counter
 from .output import format_table, print_json
 
 HELP = "design every variant of a product family (variants file) into its own folder, with an index"
@@ -71,7 +72,7 @@ def run(args: argparse.Namespace) -> int:
     print_notes(result.notes)
     if args.json:
         print_json({**result.index, "notes": list(result.notes)})
-        print(SAFETY_CAUTION, file=sys.stderr)
+        print(CAUTION, file=sys.stderr)
         return result.exit_code
     rows = []
     for v in result.index["variants"]:
@@ -83,5 +84,5 @@ def run(args: argparse.Namespace) -> int:
                         "tightest (passing points)"], rows))
     passing = sum(v["passed"] for v in result.index["variants"])
     print(f"family: {passing}/{len(rows)} variants pass; index: {result.out_dir / 'family.md'} (family.json)")
-    print(SAFETY_CAUTION)
+    print(CAUTION)
     return result.exit_code

@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from ..outputs import sha256_bytes
-from .document import CAUTIONS
+from ..safety import CAUTION_POINTS
 from .markdown import _table as table_lines  # the one Markdown table writer of the log
 
 __all__ = ["FAMILY_FORMAT", "render_family_index"]
@@ -109,6 +109,6 @@ def render_family_index(base, schedule_path, variants_path, variants, outcomes) 
         "variants_file": {"path": Path(variants_path).name, "sha256": sha256_bytes(Path(variants_path).read_bytes())},
         "passed": all(o.summary["passed"] for o in outcomes),
         "variants": [_variant_entry(v, o) for v, o in zip(variants, outcomes)],
-        "cautions": list(CAUTIONS),
+        "cautions": list(CAUTION_POINTS),
     }
     return {"family.json": json.dumps(doc, indent=2, sort_keys=False) + "\n", "family.md": _markdown(doc)}
