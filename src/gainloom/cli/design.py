@@ -15,6 +15,7 @@ from pathlib import Path
 from ..errors import InputError
 from ..names import NUMBER_FORMATS
 from ..outputs import check_output_folder
+from ..safety import CAUTION
 from .output import format_number, format_table, print_json
 
 HELP = "design gains at every operating point, emit and check the C, simulate, and write the verification log"
@@ -47,14 +48,6 @@ exit status: 0 every stage passes (a stage 'not checked' is reported, not
 counted as a failure); 1 some spec fails (design, between points,
 tolerances, quantisation, C check, simulation unstable); 2 bad input.
 """
-
-#: Printed at the end of every design run.
-SAFETY_CAUTION = (
-    "CAUTION: these gains drive motors and power stages. Validate them on the hardware with current and "
-    "speed limits and a safe test set-up before use. gainloom does not replace functional-safety "
-    "processes, local codes or licensed engineering judgement."
-)
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Register the command's options."""
@@ -286,5 +279,5 @@ def run(args: argparse.Namespace) -> int:
         print(f"  C: {', '.join(str(p) for p in job.c_files)}")
         print(f"  log: {job.out_dir / 'verification.md'} (verification.json, "
               f"{sum(p.suffix == '.png' for p in job.files)} PNG plots)")
-    print(SAFETY_CAUTION, file=sys.stderr if args.json else sys.stdout)
+    print(CAUTION, file=sys.stderr if args.json else sys.stdout)
     return job.exit_code

@@ -12,7 +12,8 @@ import argparse
 
 import numpy as np
 
-from .design import SAFETY_CAUTION, Counter
+from ..safety import CAUTION
+from .design import Counter
 from .output import format_number, format_table, print_json
 
 HELP = "statistical tolerance study: fraction of random parameter draws that violate each spec, per point"
@@ -76,11 +77,11 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         data = result.to_dict()
         data["plots"] = plots
-        data["caution"] = SAFETY_CAUTION
+        data["caution"] = CAUTION
         print_json(data)
     else:
         print_result(result)
         for path in plots:
             print(f"plot: {path}")
-        print(SAFETY_CAUTION)
+        print(CAUTION)
     return 0 if result.passed else 1

@@ -20,9 +20,10 @@ from pathlib import Path
 import jinja2
 import numpy as np
 
-from .. import __version__
-from ..errors import CodegenError
 from ..c_names import FORMAT_CODES, c_names, comment_text
+from ..errors import CodegenError
+from ..safety import CAUTION
+from ..version import __version__
 from .layout import GAIN_COEFFICIENTS, TableLayout
 from .mirror import state_fields
 from .qformat import STATE_FRAC
@@ -31,14 +32,6 @@ from .verdict import TableVerdict
 __all__ = ["templates_dir", "c_float", "c_float_exact", "render_c", "render_template", "banner_lines"]
 
 _SHA256 = re.compile(r"[0-9a-f]{64}\Z")
-
-#: Caution carried in every generated file.
-CAUTION = (
-    "Validate on hardware with current and speed limits and a safe test set-up "
-    "before use; this code does not replace functional-safety processes, local "
-    "codes or licensed engineering judgement."
-)
-
 
 def templates_dir() -> Path:
     """Directory of the C templates.

@@ -35,8 +35,9 @@ from dataclasses import replace
 import numpy as np
 
 from .analysis import analyse
+from .lookup import interpolate_grids
 from .structures import SHAPE_COEFFICIENTS
-from .table_checks import between_points, interpolate
+from .table_checks import between_points
 
 __all__ = ["LOWEST_FACTOR", "back_off_between"]
 
@@ -144,16 +145,16 @@ def back_off_between(sched, point_design, axes_values: list[np.ndarray], structu
     if points.shape[0] == 0:
         return point_design, {}
     between = (sampled_plant(sched, points), limits_at(sched, points))
-    owner_rows: dict[tuple, np.ndarray] = {}
+    members: dict[tuple, list[int]] = {}
     for q, cell in enumerate(owner):
-        owner_rows.setdefault(tuple(cell), []).append(q)
-    owner_rows = {cell: np.asarray(rows) for cell, rows in owner_rows.items()}
+        members.setdefault(tuple(cell), []).append(q)
+    owner_rows = {cell: np.asarray(rows) for cell, rows in members.items()}
     original = point_design
     factor = np.ones(point_design.points.shape[0])
     restored: dict[int, set[str]] = {}
     for _ in range(ROUNDS):
         grids = {k: np.asarray(v).reshape(shape) for k, v in point_design.coefficients.items()}
-        inter = interpolate(axes_values, grids, points)
+        inter = interpolate_grids(tuple(axes_values), grids, points)
         check = analyse(between[0], structure, inter, between[1])
         failing = np.flatnonzero(~check.passed)
         cells = sorted({tuple(owner[q]) for q in failing})

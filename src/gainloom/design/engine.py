@@ -8,20 +8,33 @@ discretised at each point with its hold, sample period and computation delay
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 
 from ..errors import DesignError, InputError
 from ..lti.discretize import discretize_loop
 from ..lti.loop import Loop
-from ..names import CROSSOVER_OBJECTIVES, DESIGN_STRATEGIES, SWEEP_OBJECTIVES, TUNING_RULES, unknown_name_message
+from ..names import (
+    CROSSOVER_OBJECTIVES,
+    DESIGN_STRATEGIES,
+    SWEEP_OBJECTIVES,
+    TUNING_RULES,
+    unknown_name_message,
+)
 from .analysis import PointAnalysis, analyse
 from .crossover_job import choose_by_crossover, step_fallback, step_verdicts, tightened_limits, uses_crossover
-from .diagnose import diagnose, compromise
-from .fallbacks import boundary_warnings, compromise_warnings, shortfall, strategy_gain_warning, target_warnings
+from .diagnose import compromise, diagnose
+from .fallbacks import (
+    boundary_warnings,
+    compromise_warnings,
+    shortfall,
+    strategy_gain_warning,
+    target_warnings,
+)
 from .results import DesignResult, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, _samples_in, choose_gains, objective_values
 from .specs import SAMPLING_FRACTION, SpecLimits
@@ -30,7 +43,7 @@ from .structures import LocusForm, coefficients_from_locus
 from .table import GainTable, TableAxis
 from .tuning_rules import rule_shapes
 
-__all__ = ["design", "verify", "PointDesign", "design_points", "sampled_plant", "limits_at", "Progress"]
+__all__ = ["PointDesign", "Progress", "design", "design_points", "limits_at", "sampled_plant", "verify"]
 
 #: Candidates re-tried on the step response when the chosen design's
 #: overshoot or settling time misses its spec.
@@ -50,7 +63,13 @@ def _load(schedule: Any):
 
 
 def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = None) -> Loop:
-    """The discretised plant (hold, sample period, computation delay) at ``points``."""
+    """The discretised plant (hold, sample period, computation delay) at ``points``.
+
+    A schedule with a ``plant_sampler`` (the outer loop of a cascade) gets its
+    plant from it: the inner closed loop as the outer loop samples it.
+    """
+    if sched.plant_sampler is not None:
+        return sched.plant_sampler(np.asarray(points, dtype=float), scale)
     models = sched.evaluate(np.asarray(points, dtype=float), scale=scale)
     return discretize_loop(
         models.plant, models.sample_period, sched.sampling.method, delay=models.delay, prewarp=sched.sampling.prewarp
@@ -254,8 +273,8 @@ def _sweep_choice(plant, shapes, limits, objective, target, controller, notes, p
         shape=np.concatenate([c.shape for c in choices]),
         gain=np.concatenate([c.gain for c in choices]),
         feasible=np.concatenate([c.feasible for c in choices]),
-        intervals=sum((c.intervals for c in choices), []),
-        notes=sum((c.notes for c in choices), []),
+        intervals=[item for c in choices for item in c.intervals],
+        notes=[item for c in choices for item in c.notes],
         samples={
             "grid": np.concatenate([c.samples["grid"] for c in choices]),
             "metrics": {k: np.concatenate([c.samples["metrics"][k] for c in choices]) for k in choices[0].samples["metrics"]},

@@ -33,9 +33,10 @@ from typing import Any
 import numpy as np
 
 from .analysis import analyse
+from .lookup import interpolate_grids
 from .structures import SHAPE_COEFFICIENTS
 
-__all__ = ["run_table_checks", "relative_steps", "interpolate", "between_points", "tolerance_scales"]
+__all__ = ["run_table_checks", "relative_steps", "between_points", "tolerance_scales"]
 
 #: Most tolerance samples checked per point before switching to a seeded
 #: space-filling sample of this size.
@@ -49,37 +50,6 @@ def relative_steps(grid: np.ndarray, axis: int) -> np.ndarray:
     scale = np.maximum(np.abs(a), np.abs(b))
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(scale > 0, np.abs(a - b) / np.where(scale > 0, scale, 1.0), 0.0)
-
-
-def interpolate(axes_values: list[np.ndarray], grids: dict[str, np.ndarray], points: np.ndarray) -> dict[str, np.ndarray]:
-    """Coefficients at ``points`` interpolated as the firmware does.
-
-    1-D: linear between breakpoints; 2-D: bilinear in the cell.  Points
-    outside the table are clamped to its edge (as the emitted lookup does).
-    """
-    points = np.asarray(points, float)
-    index = []
-    frac = []
-    for k, values in enumerate(axes_values):
-        x = np.clip(points[:, k], values[0], values[-1])
-        i = np.clip(np.searchsorted(values, x, side="right") - 1, 0, values.size - 2)
-        t = (x - values[i]) / (values[i + 1] - values[i])
-        index.append(i)
-        frac.append(t)
-    out = {}
-    for name, grid in grids.items():
-        if len(axes_values) == 1:
-            i, t = index[0], frac[0]
-            out[name] = grid[i] + t * (grid[i + 1] - grid[i])
-        else:
-            (i, j), (t, u) = index, frac
-            out[name] = (
-                (1 - t) * (1 - u) * grid[i, j]
-                + t * (1 - u) * grid[i + 1, j]
-                + (1 - t) * u * grid[i, j + 1]
-                + t * u * grid[i + 1, j + 1]
-            )
-    return out
 
 
 def between_points(axes_values: list[np.ndarray], count: int) -> tuple[np.ndarray, list[tuple[int, ...]]]:
@@ -245,7 +215,7 @@ def _between(sched, axes_values, grids, structure, count):
     if count <= 0:
         return [], 0, None
     points, owner = between_points(axes_values, count)
-    coefficients = interpolate(axes_values, grids, points)
+    coefficients = interpolate_grids(tuple(axes_values), grids, points)
     plant = sampled_plant(sched, points)
     limits = limits_at(sched, points)
     analysis = analyse(plant, structure, coefficients, limits)

@@ -17,19 +17,31 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import names
+from .. import limits, names
 from ..c_names import comment_text_problem
 from ..errors import ScheduleError
 from ..inputs import read_input_file
 from ..lti.polynomials import batched_roots
-from .. import limits
 from .expressions import CONSTANTS, FUNCTIONS, Expression, parse_expression
-from .family import SAMPLE_PERIOD_NAME, Family, Pair, ParameterDef, PlantRecipe, TableDef
-from .model import Axis, Sampling, Schedule
+from .family import (
+    SAMPLE_PERIOD_NAME,
+    Family,
+    Pair,
+    ParameterDef,
+    PlantRecipe,
+    TableDef,
+)
+from .model import Axis, CodegenSection, Sampling, Schedule
 from .nodes import Node, compose_text
-from .sections import read_codegen, read_controller, read_specs, read_table_checks, read_tolerances
+from .sections import (
+    read_codegen,
+    read_controller,
+    read_specs,
+    read_table_checks,
+    read_tolerances,
+)
 
-__all__ = ["load_schedule", "TOP_LEVEL_KEYS", "SLOW_SAMPLING_LIMIT"]
+__all__ = ["SLOW_SAMPLING_LIMIT", "TOP_LEVEL_KEYS", "build_schedule", "load_schedule", "read_schedule_root"]
 
 #: Keys of the schedule file, in the order the docs describe them.
 TOP_LEVEL_KEYS: tuple[str, ...] = (
@@ -78,6 +90,33 @@ def load_schedule(path: str | Path) -> Schedule:
         One message naming the file, line, column and key path of the first
         problem found.
     """
+    file, data, root = read_schedule_root(path)
+    if root.is_mapping and "loops" in {str(k.value) for k, _ in root.raw.value}:
+        raise ScheduleError(
+            "this file describes a cascade (top-level key 'loops'); load it with gainloom.load_cascade "
+            "(gainloom design and inspect read both forms; docs/cascade.md)", file=file,
+        )
+    keys = root.mapping(TOP_LEVEL_KEYS, required=REQUIRED_KEYS)
+    return build_schedule(keys, file=file, sha256=hashlib.sha256(data).hexdigest())
+
+
+def read_schedule_root(path: str | Path) -> tuple[str, bytes, Node]:
+    """Read a schedule file and compose its YAML root node.
+
+    Returns
+    -------
+    file : str
+        The path as given, for messages.
+    data : bytes
+        The file's bytes (hashed for provenance).
+    root : Node
+        The composed root (not yet checked to be a mapping).
+
+    Raises
+    ------
+    ScheduleError
+        Not UTF-8, not YAML, or empty.
+    """
     file = str(path)
     data = read_input_file(path, "schedule file", limits.MAX_SCHEDULE_BYTES)
     try:
@@ -89,14 +128,41 @@ def load_schedule(path: str | Path) -> Schedule:
         raise ScheduleError(
             f"schedule file is empty; expected a mapping with keys {', '.join(REQUIRED_KEYS)}", file=file
         )
-    keys = root.mapping(TOP_LEVEL_KEYS, required=REQUIRED_KEYS)
+    return file, data, root
 
+
+def build_schedule(
+    keys: dict[str, Node], *, file: str, sha256: str, codegen: CodegenSection | None = None,
+    description: str | None = None,
+) -> Schedule:
+    """Validate and evaluate one loop from its checked top-level keys.
+
+    Parameters
+    ----------
+    keys : dict of str to Node
+        The loop's keys (``TOP_LEVEL_KEYS``; a cascade's loop entry uses the
+        same ones below ``loops[i]``).
+    file, sha256 : str
+        Path of the file (for messages) and SHA-256 of its bytes.
+    codegen : CodegenSection, optional
+        The loop's code-generation section when the caller made it (a
+        cascade loop's prefix comes from the cascade); read from
+        ``keys["codegen"]`` otherwise.
+    description : str, optional
+        Used when the keys carry none (a cascade loop takes the cascade's).
+
+    Returns
+    -------
+    Schedule
+    """
     name = keys["name"].text()
     if not _NAME.match(name):
         raise keys["name"].error(
             f"schedule name {name!r} must start with a letter and use only letters, digits, '_' and '-'"
         )
-    description = keys["description"].text() if "description" in keys and not keys["description"].is_null else ""
+    if "description" in keys and not keys["description"].is_null:
+        description = keys["description"].text()
+    description = description or ""
 
     axes = _read_variables(keys["variables"])
     axis_names = tuple(axis.name for axis in axes)
@@ -124,7 +190,8 @@ def load_schedule(path: str | Path) -> Schedule:
     specs = read_specs(keys.get("specs"), axis_names)
     table_checks = read_table_checks(keys.get("table"), controller.structure)
     tolerances = read_tolerances(keys.get("tolerances"), {p.name: p.independent for p in parameters})
-    codegen = read_codegen(keys.get("codegen"), name, keys["name"])
+    if codegen is None:
+        codegen = read_codegen(keys.get("codegen"), name, keys["name"])
     _check_workload(keys, axes, table_checks, tolerances)
     low, high = family.output_limits(controller.output_limits, points, models.parameters)
     _check_full_scale(keys, (float(low.min()), float(high.max())), codegen.output_full_scale)
@@ -134,7 +201,7 @@ def load_schedule(path: str | Path) -> Schedule:
     sampling = Sampling(period=models.sample_period, method=method, delay=models.delay, prewarp=prewarp_value)
     return Schedule(
         path=file,
-        sha256=hashlib.sha256(data).hexdigest(),
+        sha256=sha256,
         name=name,
         description=description,
         axes=axes,
@@ -341,7 +408,8 @@ def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
         parts = section.mapping(("zeros", "poles", "gain"), required=("poles", "gain"))
         zeros = _roots(parts["zeros"], "zero", known) if "zeros" in parts else ()
         poles = _roots(parts["poles"], "pole", known)
-        degree = lambda roots: sum(2 if isinstance(r, Pair) else 1 for r in roots)  # noqa: E731
+        def degree(roots):
+            return sum(2 if isinstance(r, Pair) else 1 for r in roots)
         _check_order(parts["poles"], degree(poles), "zpk without poles is a static gain")
         if degree(zeros) > degree(poles):
             raise parts["zeros"].error(

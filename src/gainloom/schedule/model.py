@@ -20,17 +20,17 @@ if TYPE_CHECKING:  # pragma: no cover
 
 __all__ = [
     "Axis",
-    "Sampling",
-    "Target",
-    "Sweep",
+    "CodegenSection",
     "ControllerSection",
+    "PointModels",
+    "Sampling",
+    "Schedule",
     "SpecOverride",
     "SpecSection",
+    "Sweep",
     "TableChecks",
+    "Target",
     "Tolerances",
-    "CodegenSection",
-    "PointModels",
-    "Schedule",
 ]
 
 
@@ -298,7 +298,11 @@ class Schedule:
     tolerances: Tolerances
     codegen: CodegenSection
     warnings: tuple[str, ...]
-    family: "Family" = field(repr=False)
+    family: Family = field(repr=False)
+    #: ``sampler(points, scale) -> Loop``: the sampled plant when it is not
+    #: the family's plant discretised alone (the outer loop of a cascade sees
+    #: the inner closed loop, :mod:`gainloom.design.cascade`); None otherwise.
+    plant_sampler: Any = field(default=None, repr=False)
 
     @property
     def axis_names(self) -> tuple[str, ...]:
