@@ -12,9 +12,9 @@ import importlib
 import os
 import sys
 
-from .. import __version__
 from ..errors import GainloomError
 from ..outputs import describe_os_error
+from ..version import __version__
 
 __all__ = ["COMMANDS", "main"]
 
