@@ -20,7 +20,6 @@ EXPECTED_PUBLIC_NAMES = {
     "emit_c",
     "check_generated_c",
     "HarnessResult",
-    "discretize_loop",
     "design",
     "verify",
     "DesignResult",

@@ -29,6 +29,7 @@ __all__ = [
     "MAX_SWEEP_COUNT",
     "MAX_TOLERANCE_EVALUATIONS",
     "MAX_TOLERANCE_SAMPLES",
+    "MAX_VARIANTS",
     "MIN_RESPONSE_SAMPLES",
     "SAMPLE_PERIOD_RANGE",
     "size_text",
@@ -62,6 +63,8 @@ MAX_TOLERANCE_EVALUATIONS = 2_000_000
 #: Most random draws per point of the statistical study (``tolerances.samples: N``);
 #: the study runs in chunks, so memory does not grow with it, only time.
 MAX_STUDY_DRAWS = 10_000_000
+#: Most variants (rows) of a product family's variants file (`gainloom family`).
+MAX_VARIANTS = 1_000
 #: Highest plant order (poles, states or denominator degree).
 MAX_PLANT_ORDER = 30
 #: Longest delay in samples: computation delay plus dead time / ts.  Each

@@ -77,7 +77,7 @@ def gains_document(
         ``passed``, ``points``, ``table_checks``, ``warnings``, ``continuous``
         (``DesignResult.as_document()``).
     """
-    from .. import __version__
+    from ..version import __version__
 
     doc: dict[str, Any] = {
         "format": GAINS_FORMAT,
