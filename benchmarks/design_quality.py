@@ -52,11 +52,11 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "src"))
 sys.path.insert(0, str(ROOT / "benchmarks"))
 
+import design_reference as ref  # noqa: E402
+
 import gainloom  # noqa: E402
 from gainloom import names  # noqa: E402
 from gainloom.lti.margins import frequency_response  # noqa: E402
-
-import design_reference as ref  # noqa: E402
 
 LOOPS_DIR = ROOT / "benchmarks" / "loops"
 #: Loops in print order, with the published tuning rule that applies (if any).

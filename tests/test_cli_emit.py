@@ -5,11 +5,11 @@ import subprocess
 import sys
 
 import pytest
+from test_codegen_cases import make_table
 
 from gainloom.codegen.harness import find_compiler
 from gainloom.design.gainsfile import write_gains
 from gainloom.safety import CAUTION
-from test_codegen_cases import make_table
 
 
 def _run(*args, cwd):

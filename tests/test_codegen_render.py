@@ -6,14 +6,14 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from test_codegen_cases import make_table
 
 from gainloom import CodegenError, __version__
-from gainloom.codegen.emit import render_files
 from gainloom.c_names import C_KEYWORDS, validate_fragment, validate_prefix
+from gainloom.codegen.emit import render_files
 from gainloom.codegen.render import c_float, c_float_exact, render_template, templates_dir
 from gainloom.design.table import GainTable, TableAxis
 from gainloom.safety import CAUTION
-from test_codegen_cases import make_table
 
 SHA = "0123456789abcdef" * 4
 

@@ -26,8 +26,8 @@ from gainloom.outputs import OutputConflictError
 from gainloom.report import write_verification
 from gainloom.report.document import VERIFICATION_FORMAT
 from gainloom.report.schema import key_paths, validate
-from gainloom.simulation import Scenario, run_scenario
 from gainloom.safety import CAUTION_POINTS
+from gainloom.simulation import Scenario, run_scenario
 
 DOCS = Path(__file__).resolve().parents[1] / "docs" / "verification-log.md"
 

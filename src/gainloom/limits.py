@@ -12,20 +12,21 @@ minutes on a laptop.
 from __future__ import annotations
 
 __all__ = [
-    "MAX_SCHEDULE_BYTES",
-    "MAX_GAINS_BYTES",
-    "MAX_EXPRESSION_LENGTH",
-    "MAX_EXPRESSION_DEPTH",
-    "MAX_OPERATING_POINTS",
-    "MAX_SWEEP_COUNT",
     "MAX_BETWEEN_POINTS",
     "MAX_CHECK_POINTS",
-    "MAX_REFINE_INSERTED",
-    "MAX_TOLERANCE_SAMPLES",
-    "MAX_TOLERANCE_EVALUATIONS",
-    "MAX_STUDY_DRAWS",
-    "MAX_PLANT_ORDER",
     "MAX_DELAY_SAMPLES",
+    "MAX_EXPRESSION_DEPTH",
+    "MAX_EXPRESSION_LENGTH",
+    "MAX_GAINS_BYTES",
+    "MAX_OPERATING_POINTS",
+    "MAX_PLANT_ORDER",
+    "MAX_REFINE_INSERTED",
+    "MAX_SCHEDULE_BYTES",
+    "MAX_STUDY_DRAWS",
+    "MAX_SWEEP_COUNT",
+    "MAX_TOLERANCE_EVALUATIONS",
+    "MAX_TOLERANCE_SAMPLES",
+    "MAX_VARIANTS",
     "SAMPLE_PERIOD_RANGE",
     "size_text",
 ]
@@ -58,6 +59,8 @@ MAX_TOLERANCE_EVALUATIONS = 2_000_000
 #: Most random draws per point of the statistical study (``tolerances.samples: N``);
 #: the study runs in chunks, so memory does not grow with it, only time.
 MAX_STUDY_DRAWS = 10_000_000
+#: Most variants (rows) of a product family's variants file (`gainloom family`).
+MAX_VARIANTS = 1_000
 #: Highest plant order (poles, states or denominator degree).
 MAX_PLANT_ORDER = 30
 #: Longest delay in samples: computation delay plus dead time / ts.  Each
@@ -67,7 +70,7 @@ MAX_DELAY_SAMPLES = 50
 SAMPLE_PERIOD_RANGE = (1e-9, 1e3)
 
 
-def size_text(value: int | float) -> str:
+def size_text(value: float) -> str:
     """A count for a message: digits grouped, or the order of magnitude of a huge one."""
     if isinstance(value, int) and abs(value) >= 10**15:
         return f"about 10^{len(str(abs(value))) - 1}"

@@ -11,10 +11,9 @@ from __future__ import annotations
 import argparse
 import dataclasses
 
-import numpy as np
-
 from ..lti.convert import roots_with_origin
 from ..lti.discretize import discrete_roots, discretize_loop
+from ..lti.poles import root_records
 from ..schedule import Schedule, load_schedule
 from .output import format_number, format_table, print_json
 
@@ -27,19 +26,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Register the options of ``gainloom inspect``."""
     parser.add_argument("schedule", metavar="SCHEDULE", help="schedule file (YAML)")
     parser.add_argument("--json", action="store_true", help="print strict JSON instead of text")
-
-
-def _sorted_roots(roots: np.ndarray) -> np.ndarray:
-    roots = roots[np.isfinite(roots)]
-    # conjugates next to each other, upper half first; deterministic order
-    return np.array(sorted(roots, key=lambda r: (round(float(r.real), 12), -float(r.imag))), dtype=complex)
-
-
-def _root_rows(roots: np.ndarray) -> list[dict]:
-    return [
-        {"real": float(r.real), "imag": float(r.imag), "magnitude": float(abs(r)), "angle_rad": float(np.angle(r))}
-        for r in roots
-    ]
 
 
 def inspect_data(schedule: Schedule) -> dict:
@@ -79,15 +65,15 @@ def inspect_data(schedule: Schedule) -> dict:
                 "continuous": {
                     "num": plant.num[index],
                     "den": plant.den[index],
-                    "poles": _root_rows(_sorted_roots(s_poles[index])),
-                    "zeros": _root_rows(_sorted_roots(s_zeros[index])),
+                    "poles": root_records(s_poles[index]),
+                    "zeros": root_records(s_zeros[index]),
                 },
                 "discrete": {
                     "total_delay_samples": float(discrete.delay[index]),
                     "num": discrete.num[index],
                     "den": discrete.den[index],
-                    "poles": _root_rows(_sorted_roots(z_poles[index])),
-                    "zeros": _root_rows(_sorted_roots(z_zeros[index])),
+                    "poles": root_records(z_poles[index]),
+                    "zeros": root_records(z_zeros[index]),
                 },
             }
         )

@@ -11,9 +11,10 @@ from ..errors import InputError
 from ..limits import MAX_DELAY_SAMPLES, MAX_PLANT_ORDER
 from ..lti.discretize import discretize_loop
 from ..lti.facts import LocusFacts, locus_facts
+from ..lti.intervals import damping_gain_intervals
 from ..lti.loop import Loop
 from ..lti.poles import damping_and_frequency
-from ..lti.trace import trace_locus
+from ..lti.trace import trace_covering
 from ..names import HOLD_METHODS, unknown_name_message
 from ..safety import CAUTION
 from .arguments import parse_coefficients
@@ -79,9 +80,8 @@ def _build_loop(args: argparse.Namespace) -> tuple[Loop, str]:
 
 def loop_facts(loop: Loop, negative: bool) -> LocusFacts:
     """Facts of the first point of ``loop`` (delta form used when present)."""
-    delta = None if loop.delta_den is None else (loop.delta_num[0], loop.delta_den[0])
     ts = None if loop.ts is None else float(loop.ts[0])
-    return locus_facts(loop.num[0], loop.den[0], ts=ts, negative=negative, delta=delta)
+    return locus_facts(loop.num[0], loop.den[0], ts=ts, negative=negative, delta=loop.delta(0))
 
 
 def _cx(value: complex) -> str:
@@ -186,10 +186,8 @@ def _branches(loop: Loop, facts: LocusFacts) -> tuple[np.ndarray, np.ndarray, tu
     is widened when a crossing or breakaway lies beyond it, so every
     annotated point sits on a drawn branch.
     """
-    special = [abs(c.gain) for c in facts.crossings] + [abs(b.gain) for b in facts.breakaways]
-    traced = trace_locus(loop, negative=facts.negative)
-    if special and 2.0 * max(special) > float(traced.k_max[0]):
-        traced = trace_locus(loop, k_max=2.0 * max(special), negative=facts.negative)
+    special = [c.gain for c in facts.crossings] + [b.gain for b in facts.breakaways]
+    traced = trace_covering(loop, special, negative=facts.negative)
     count = int(traced.counts[0])
     return traced.gains[0, :count], traced.roots[0, :count], traced.warnings
 
@@ -227,21 +225,6 @@ def _limit_marks(loop: Loop, damped: dict[float, list[tuple[float, float]]]) -> 
 
 def _end(value: float) -> float | None:
     return float(value) if math.isfinite(value) else None
-
-
-def damping_gain_intervals(loop: Loop, zetas: list[float]) -> dict[float, list[tuple[float, float]]]:
-    """Per damping ratio, the gains ``K > 0`` that put every closed-loop pole
-    in the stable region with at least that damping (exact boundary solver)."""
-    from ..lti.intervals import spec_gain_intervals
-    from ..lti.regions import SpecRegion
-
-    ts = None if loop.ts is None else float(loop.ts[0])
-    delta = None if loop.delta_den is None else (loop.delta_num[0], loop.delta_den[0])
-    found = {}
-    for zeta in zetas:
-        intervals = spec_gain_intervals(loop.num[0], loop.den[0], SpecRegion(min_damping=zeta, ts=ts), delta=delta)
-        found[zeta] = [(float(i.low), float(i.high)) for i in intervals]
-    return found
 
 
 def run(args: argparse.Namespace) -> int:

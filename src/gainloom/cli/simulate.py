@@ -31,6 +31,14 @@ reference: --reference 1.0 is a step from 0 to 1.0 at --reference-at (default
 (repeat a time for a jump).  Load steps at the plant input:
 --load-step TIME:AMPLITUDE, repeatable.
 
+inputs of the controller step besides the error (controller-output units;
+numbers or expressions of t, r, y, the scheduling variables and the
+schedule's parameters, e.g. "ke * speed" or "-vbus / sqrt(3)"):
+  --feedforward EXPR [--feedforward-at SECONDS]  added before saturation,
+                               from that time on (zero before; default 0 s)
+  --limit-step TIME:LOW:HIGH   run-time output limits from TIME on; repeatable
+  --limit-step TIME:table      the table's limits again from TIME on
+
 exit status: 0 stable and every --max-* limit holds, 1 otherwise, 2 bad input.
 """
 
@@ -58,6 +66,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--load-step", metavar="TIME:AMPLITUDE", action="append", default=[],
         help="input-disturbance step at the plant input, controller-output units; repeatable",
+    )
+    parser.add_argument(
+        "--feedforward", metavar="EXPR",
+        help="feedforward term added before saturation: a number or an expression (see below)",
+    )
+    parser.add_argument(
+        "--feedforward-at", metavar="SECONDS", type=float, default=0.0,
+        help="time the feedforward is switched on (zero before; default 0)",
+    )
+    parser.add_argument(
+        "--limit-step", metavar="TIME:LOW:HIGH", action="append", default=[],
+        help="run-time output limits of the step from TIME on (TIME:table: the table's again); repeatable",
     )
     parser.add_argument(
         "--format", dest="number_format", metavar="FORMAT", choices=SIMULATION_FORMATS,
@@ -126,9 +146,32 @@ def parse_ramp(text: str, duration: float):
     return name.strip(), PiecewiseLinear.ramp(start, end, t0, t1)
 
 
+def parse_limit_step(text: str):
+    """``TIME:LOW:HIGH`` or ``TIME:table`` to a :class:`~gainloom.simulation.LimitStep`."""
+    from ..simulation import LimitStep
+    from ..simulation.signals import SignalExpression
+
+    parts = text.split(":")
+    if len(parts) == 2 and parts[1].strip() == "table":
+        return LimitStep(parse_number(parts[0], "--limit-step"))
+    if len(parts) != 3 or not parts[1].strip() or not parts[2].strip():
+        raise InputError(f"--limit-step: expected TIME:LOW:HIGH or TIME:table; got {text!r}")
+    time = parse_number(parts[0], "--limit-step")
+    low, high = (SignalExpression.parse(part.strip(), f"--limit-step {text} {which}")
+                 for part, which in ((parts[1], "LOW"), (parts[2], "HIGH")))
+    return LimitStep(time, low, high)
+
+
 def build_scenario(args: argparse.Namespace):
     """The :class:`~gainloom.simulation.Scenario` the options describe."""
-    from ..simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs
+    from ..simulation import (
+        Feedforward,
+        LoadStep,
+        PiecewiseLinear,
+        Scenario,
+        ScenarioSpecs,
+    )
+    from ..simulation.signals import SignalExpression
 
     trajectory = {}
     for text in args.ramp:
@@ -150,6 +193,11 @@ def build_scenario(args: argparse.Namespace):
     else:
         reference = PiecewiseLinear.step(args.reference, args.reference_at)
     loads = tuple(LoadStep(*_pair(text, "--load-step")) for text in args.load_step)
+    feedforward = None
+    if args.feedforward is not None:
+        feedforward = Feedforward(SignalExpression.parse(args.feedforward, "--feedforward"), args.feedforward_at)
+    elif args.feedforward_at:
+        raise InputError("--feedforward-at needs --feedforward")
     specs = ScenarioSpecs(
         max_overshoot=args.max_overshoot,
         max_settling_time=args.max_settling,
@@ -165,6 +213,8 @@ def build_scenario(args: argparse.Namespace):
         specs=specs,
         settle_band=args.settle_band / 100.0,
         error_from=args.error_from,
+        feedforward=feedforward,
+        limit_steps=tuple(parse_limit_step(text) for text in args.limit_step),
     )
 
 

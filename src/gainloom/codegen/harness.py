@@ -40,11 +40,11 @@ from pathlib import Path
 
 import numpy as np
 
+from ..c_names import c_names
 from ..design.table import GainTable
 from ..errors import CodegenError
 from .layout import AxisLayout, TableLayout, layout_table
 from .mirror import lookup_gains, output_code, run_steps, state_fields
-from ..c_names import c_names
 from .render import c_float_exact, render_template, template_context
 
 __all__ = [

@@ -20,10 +20,10 @@ from pathlib import Path
 import jinja2
 import numpy as np
 
-from .. import __version__
 from ..c_names import FORMAT_CODES, c_names, comment_text
 from ..errors import CodegenError
 from ..safety import CAUTION
+from ..version import __version__
 from .layout import GAIN_COEFFICIENTS, TableLayout
 from .mirror import state_fields
 from .qformat import STATE_FRAC

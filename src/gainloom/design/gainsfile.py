@@ -20,10 +20,10 @@ import yaml
 
 from ..errors import ScheduleError
 from ..inputs import read_input_file
-from ..outputs import write_outputs
-from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
-from ..plain import to_plain
 from ..limits import MAX_GAINS_BYTES
+from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
+from ..outputs import write_outputs
+from ..plain import to_plain
 from .table import GainTable, TableAxis
 
 __all__ = ["GAINS_FORMAT", "render_gains", "write_gains", "read_gains", "gains_document", "GainsMetadata"]
@@ -76,7 +76,7 @@ def gains_document(
         ``passed``, ``points``, ``table_checks``, ``warnings``, ``continuous``
         (``DesignResult.as_document()``).
     """
-    from .. import __version__
+    from ..version import __version__
 
     doc: dict[str, Any] = {
         "format": GAINS_FORMAT,

@@ -118,7 +118,7 @@ def _versions(harness: Any) -> dict[str, Any]:
     import matplotlib
     import scipy
 
-    from .. import __version__
+    from ..version import __version__
 
     return {
         "gainloom": __version__,

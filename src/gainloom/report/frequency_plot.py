@@ -105,7 +105,7 @@ def _db(values: np.ndarray) -> np.ndarray:
 def _phase_deg(curves: FrequencyCurves) -> np.ndarray:
     """Unwrapped phase, shifted by whole turns so the crossover phase lies in (-360, 0]."""
     phase = np.degrees(np.unwrap(np.angle(curves.loop)))
-    if math.isfinite(curves.crossover):
+    if math.isfinite(curves.crossover) and curves.crossover > 0:  # 0: |L| < 1 throughout
         at = np.interp(math.log(curves.crossover), np.log(curves.w), phase)
         phase = phase - 360.0 * math.ceil(at / 360.0)
     return phase
@@ -119,7 +119,7 @@ def _draw_point(axes, curves: FrequencyCurves, colour: str, style, label: str, n
     ax_phase.semilogx(curves.w, phase, color=colour, ls=style, lw=1.4)
     ax_closed.semilogx(curves.w, _db(curves.sensitivity), color=colour, ls=style, lw=1.4)
     ax_closed.semilogx(curves.w, _db(curves.complementary), color=colour, ls=style, lw=0.9, alpha=0.75)
-    if math.isfinite(curves.crossover):
+    if math.isfinite(curves.crossover) and curves.crossover > 0:  # 0: |L| < 1 throughout
         ax_mag.plot([curves.crossover], [0.0], marker="o", ms=5, color=colour)
         ax_mag.annotate(f"ωc {curves.crossover:.4g}", (curves.crossover, 0.0), xytext=(4, 4 + lift),
                         textcoords="offset points", fontsize=7, color=colour)

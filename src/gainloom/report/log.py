@@ -88,7 +88,7 @@ def render_verification(
     images: dict[str, bytes] = {}
     stamp = None
     if timestamp:
-        stamp = datetime.datetime.now(datetime.timezone.utc).replace(microsecond=0).isoformat()
+        stamp = datetime.datetime.now(datetime.UTC).replace(microsecond=0).isoformat()
     # The document is built twice only in name: plots need the per-point
     # entries, the document needs the plot names.
     names: list[str] = []

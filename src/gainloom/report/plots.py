@@ -373,18 +373,6 @@ def _mark_design(ax: Any, poles: np.ndarray) -> None:
     ax.plot(poles.real, poles.imag, ls="none", marker="*", ms=13, mfc="#ffd23f", mec=MARK, mew=0.9, zorder=8)
 
 
-def _traced(one: Loop, facts: Any) -> tuple[np.ndarray, np.ndarray]:
-    """Continuous branches of ``K L`` (tracer), far enough to show every annotated point and K = 1."""
-    from ..lti.trace import trace_locus
-
-    special = [abs(c.gain) for c in facts.crossings] + [abs(b.gain) for b in facts.breakaways] + [1.0]
-    traced = trace_locus(one)
-    if 2.0 * max(special) > float(traced.k_max[0]):
-        traced = trace_locus(one, k_max=2.0 * max(special))
-    count = int(traced.counts[0])
-    return traced.gains[0, :count], traced.roots[0, :count]
-
-
 def _z_layers(ax: Any, facts: Any, branches: np.ndarray, view: tuple[float, float, float, float],
               labels: bool) -> None:
     """Unit circle, branches, open-loop poles and zeros, |z| = 1 crossings (with K) in one view."""
@@ -425,12 +413,9 @@ def _traced(one: Loop, facts: Any, step: float) -> np.ndarray:
     ``step`` is the tracer's largest root move as a fraction of the plot
     scale: small enough to draw smooth curves in the magnified view.
     """
-    from ..lti.trace import trace_locus
+    from ..lti.trace import trace_covering
 
-    special = [abs(c.gain) for c in facts.crossings] + [1.0]
-    traced = trace_locus(one, max_step=step)
-    if 2.0 * max(special) > float(traced.k_max[0]):
-        traced = trace_locus(one, k_max=2.0 * max(special), max_step=step)
+    traced = trace_covering(one, [c.gain for c in facts.crossings] + [1.0], max_step=step)
     return traced.roots[0, : int(traced.counts[0])]
 
 
@@ -458,13 +443,12 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     """
     ts = float(loop.ts[p])
     one = loop.select(np.array([p]))
-    delta = None if one.delta_num is None else (one.delta_num[0], one.delta_den[0])
     design = closed_loop_poles(one, np.ones((1, 1)))[0, 0]
     half_s = _s_half_width(entry)
     # Near z = 1, z ~ 1 + s ts: the magnified z view matches the s view.
     half_z = min(1.2, half_s * ts)
     try:
-        facts = locus_facts(one.num[0], one.den[0], ts, delta=delta)
+        facts = locus_facts(one.num[0], one.den[0], ts, delta=one.delta(0))
         branches = _traced(one, facts, step=float(np.clip(0.02 * half_z, 1e-4, 0.02)))
     except GainloomError:
         # a loop the facts or the tracer cannot describe: a plain gain sweep

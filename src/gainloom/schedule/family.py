@@ -16,9 +16,9 @@ from typing import Literal
 import numpy as np
 
 from ..errors import InputError, ScheduleError
+from ..limits import MAX_DELAY_SAMPLES, SAMPLE_PERIOD_RANGE
 from ..lti.convert import poly_from_roots, ss_to_tf
 from ..lti.loop import Loop
-from ..limits import MAX_DELAY_SAMPLES, SAMPLE_PERIOD_RANGE
 from .expressions import Expression
 from .model import Axis, PointModels
 from .nodes import Node

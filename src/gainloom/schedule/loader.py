@@ -408,7 +408,8 @@ def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
         parts = section.mapping(("zeros", "poles", "gain"), required=("poles", "gain"))
         zeros = _roots(parts["zeros"], "zero", known) if "zeros" in parts else ()
         poles = _roots(parts["poles"], "pole", known)
-        degree = lambda roots: sum(2 if isinstance(r, Pair) else 1 for r in roots)
+        def degree(roots):
+            return sum(2 if isinstance(r, Pair) else 1 for r in roots)
         _check_order(parts["poles"], degree(poles), "zpk without poles is a static gain")
         if degree(zeros) > degree(poles):
             raise parts["zeros"].error(

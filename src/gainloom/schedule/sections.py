@@ -12,8 +12,9 @@ import re
 from collections.abc import Callable
 from typing import Any
 
-from .. import names
+from .. import limits, names
 from ..c_names import prefix_problem
+from .expressions import parse_expression
 from .model import (
     CodegenSection,
     ControllerSection,
@@ -24,9 +25,7 @@ from .model import (
     Target,
     Tolerances,
 )
-from .expressions import parse_expression
 from .nodes import Node
-from .. import limits
 
 __all__ = [
     "read_controller",

@@ -144,6 +144,15 @@ class TableController:
             return [state[name] * scale for name in self.fields]
         return [float(state[name]) for name in self.fields]
 
+    def limits_in_force(self) -> tuple[float, float]:
+        """The output limits the last step used (the table's, tabulated or
+        run-time), physical units."""
+        low, high = self.stepper.in_force
+        if self.layout is not None and self.layout.fmt.is_fixed:
+            scale = self.layout.output_full_scale / 2.0**STATE_FRAC
+            return low * scale, high * scale
+        return float(low), float(high)
+
     def step(
         self,
         k: int,

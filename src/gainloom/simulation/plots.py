@@ -16,7 +16,7 @@ import numpy as np
 from ..outputs import write_outputs
 from .result import SimulationResult
 
-__all__ = ["render_plots", "write_plots", "PLOT_FILE"]
+__all__ = ["PLOT_FILE", "render_plots", "write_plots"]
 
 #: File name of the figure written by :func:`write_plots`.
 PLOT_FILE = "simulation.png"
@@ -64,8 +64,14 @@ def render_plots(result: SimulationResult) -> dict[str, bytes]:
         low, high = result.output_limits
         control.plot(t, result.unsaturated, drawstyle="steps-post", color="0.6", label="before saturation")
         control.plot(t, result.control, drawstyle="steps-post", label="controller output u")
-        control.axhline(low, color="k", linestyle="--", linewidth=0.8, label="limits")
-        control.axhline(high, color="k", linestyle="--", linewidth=0.8)
+        # the limits the step used: tabulated or run-time ones move along the run
+        limit_low, limit_high = result.limits_in_force
+        for values, label in ((limit_low, "limits"), (limit_high, None)):
+            control.plot(t, values, drawstyle="steps-post", color="k", linestyle="--", linewidth=0.8, label=label)
+        low = float(np.min(limit_low[np.isfinite(limit_low)], initial=low))
+        high = float(np.max(limit_high[np.isfinite(limit_high)], initial=high))
+        if np.any(np.isfinite(result.feedforward) & (result.feedforward != 0)):
+            control.plot(t, result.feedforward, drawstyle="steps-post", color="C2", linewidth=0.8, label="feedforward")
         span = high - low
         finite = result.unsaturated[np.isfinite(result.unsaturated)]
         top = min(float(np.max(finite, initial=high)), high + span)
