@@ -20,6 +20,7 @@ import textwrap
 from dataclasses import dataclass
 
 from ..c_names import c_names, comment_text, validate_prefix
+from ..design.table import GainTable
 from ..errors import CodegenError
 from ..safety import CAUTION
 from .emit import render_files
@@ -54,7 +55,7 @@ class CascadeLoopC:
 
     name: str
     prefix: str
-    table: object
+    table: GainTable
     period: float
     rate_factor: int
     delay: float

@@ -184,7 +184,7 @@ def run_cascade_job(
     from ..schedule.cascade import load_cascade
 
     out = check_output_folder(out_dir)
-    cascade = load_cascade(cascade_path)
+    cascade = load_cascade(Path(cascade_path))
     number_format = _resolve_format(cascade.loops[0].schedule, number_format)
     prefix = cascade.codegen.prefix if prefix is None else validate_prefix(prefix)
     cascade = _with_prefix(cascade, prefix, number_format)
@@ -200,17 +200,17 @@ def run_cascade_job(
     ]
     c_texts = render_cascade_files(loops_c, prefix, number_format, cascade.sha256,
                                    {"cascade": Path(cascade.path).name})
-    files: dict[str, str | bytes] = {f"{name}.gains.yaml": text for name, text in gains.items()}
-    files.update(c_texts)
+    texts = {f"{name}.gains.yaml": text for name, text in gains.items()} | c_texts
     with tempfile.TemporaryDirectory(prefix="gainloom-cascade-") as tmp:
         stage_dir = Path(tmp)
-        for name, text in files.items():
+        for name, text in texts.items():
             (stage_dir / name).write_text(text, encoding="utf-8")
         harness = tuple(_harness(stage_dir, c_texts, lc, loops_c, prefix, number_format, cascade.sha256)
                         if compile else None for lc in loops_c)
         stages = _stages(cascade, design, quantisation, harness, number_format, c_texts, compile)
         docs, images = _logs(cascade, design, stage_dir, harness, quantisation, number_format, prefix)
     document = _cascade_document(cascade, design, docs, stages, sorted(c_texts))
+    files: dict[str, str | bytes] = dict(texts)
     files.update(_log_files(document))
     files.update(images)
     written = write_outputs(out, files, force=force)
