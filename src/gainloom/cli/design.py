@@ -99,7 +99,7 @@ class Counter:
         self.stream = stream or sys.stderr
         self.enabled = enabled
         self.live = _is_terminal(self.stream) if live is None else live
-        self.last = None
+        self.last: tuple[str, int] | None = None
 
     def __call__(self, stage: str, done: int, total: int) -> None:
         if not self.enabled or (stage, done) == self.last:

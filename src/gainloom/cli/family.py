@@ -13,6 +13,7 @@ import sys
 
 from ..names import NUMBER_FORMATS
 from ..safety import CAUTION
+from .arguments import add_engine_arguments, engine_options, print_notes
 from .design import Counter
 from .output import format_table, print_json
 
@@ -38,37 +39,16 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--quiet", action="store_true", help="no progress display on stderr")
 
 
-def add_engine_arguments(parser: argparse.ArgumentParser, what: str) -> None:
-    """``--workers`` and ``--cluster``, shared by the commands that run work units."""
-    from ..design.cluster import CLUSTER_ENVIRONMENT, INSTALL_HINT
-
-    parser.add_argument("--workers", metavar="N", type=int, default=None,
-                        help=f"local processes running the {what} (default GAINLOOM_WORKERS or the CPU count)")
-    parser.add_argument("--cluster", metavar="ADDRESS", default=None,
-                        help=f"run the {what} on the Dask scheduler at ADDRESS (e.g. tcp://10.0.0.5:8786; "
-                        f"default {CLUSTER_ENVIRONMENT}); same results as a local run; needs {INSTALL_HINT}")
-
-
-def print_notes(notes, stream=None) -> None:
-    """What the engine reported (a lost worker, ...), one line each, on stderr."""
-    for note in notes:
-        print(f"note: {note}", file=stream or sys.stderr)
-
-
 def run(args: argparse.Namespace) -> int:
     """Run the family and print its summary."""
-    from ..design.cluster import cluster_address
-    from ..errors import InputError
     from ..outputs import check_output_folder
     from ..report.family import run_family
 
-    if args.workers is not None and args.workers < 1:
-        raise InputError(f"--workers must be at least 1; got {args.workers}")
+    engine = engine_options(args)
     check_output_folder(args.out)
     result = run_family(args.schedule, args.variants, args.out, number_format=args.number_format, force=args.force,
                         compile=not args.no_compile, target=not args.no_target, simulate=not args.no_simulate,
-                        workers=args.workers, cluster=cluster_address(args.cluster),
-                        progress=Counter(enabled=not args.quiet))
+                        **engine, progress=Counter(enabled=not args.quiet))
     print_notes(result.notes)
     if args.json:
         print_json({**result.index, "notes": list(result.notes)})

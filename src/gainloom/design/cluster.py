@@ -96,9 +96,9 @@ def run_on_cluster(function: Callable[..., Any], context: tuple[Any, ...], units
     DesignError
         A unit that Dask gave up on (it lost a worker each time it ran).
     """
+    client = _client(address)  # first: says what to install when Dask is missing
     from distributed import KilledWorker, as_completed
 
-    client = _client(address)
     try:
         seen = _workers(client)
         [shared] = client.scatter([context], broadcast=True, hash=False)
@@ -108,11 +108,12 @@ def run_on_cluster(function: Callable[..., Any], context: tuple[Any, ...], units
         index = {future.key: i for i, future in enumerate(futures)}
         lost: set[str] = set()
         try:
-            for future, result in as_completed(futures, with_results=True):
+            for future, result in as_completed(futures, loop=client.loop, with_results=True):
                 record(index[future.key], result)
                 now = _workers(client)
                 lost |= seen - now
                 seen |= now
+            lost |= seen - _workers(client)
         except KilledWorker as error:
             raise DesignError(f"Dask gave up on a work unit that was running each time a worker died ({error}); "
                               "see the workers' logs (memory limit?)") from None
