@@ -379,7 +379,8 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
     limits = reader.get(data, "output_limits", "", (list,))
     if len(limits) == 2 and all(isinstance(v, list) for v in limits):
         # tabulated limits: one grid per limit
-        limit_values = tuple(reader.array(v, f"output_limits[{i}]", shape) for i, v in enumerate(limits))
+        limit_values: tuple[float, float] | tuple[np.ndarray, np.ndarray] = (
+            reader.array(limits[0], "output_limits[0]", shape), reader.array(limits[1], "output_limits[1]", shape))
         if not np.all(limit_values[0] < limit_values[1]):
             raise reader.error("expected u_min < u_max at every grid point", "output_limits")
     else:
