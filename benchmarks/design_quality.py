@@ -182,9 +182,12 @@ def recheck(plant: ref.SampledPlant, structure: str, coefficients: dict[str, flo
 
 
 def loop_schedule(name: str, structure: str, folder: Path, quick: bool, specs: dict | None = None):
-    """The loop as a Schedule; ``quick`` keeps only the two ends of every variable."""
+    """The loop as a Schedule; ``quick`` keeps only the two ends of every variable, unchecked between them."""
     doc = loop_document(name, structure, specs)
     if quick:
+        # the ends of each range are no grid to interpolate over: the
+        # between-point stage (its back-off) is left to the full grids
+        doc.setdefault("table", {})["between_points"] = 0
         for var in doc["variables"]:
             values = var["values"]
             if isinstance(values, dict):

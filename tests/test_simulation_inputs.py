@@ -243,7 +243,7 @@ def test_simulated_step_is_the_mirror_with_feedforward_and_limits(number_format)
     "build,message",
     [
         (lambda: Feedforward("ke * sped"), None),
-        (lambda: Feedforward("2 *"), "cannot parse expression '2 *' for the feedforward"),
+        (lambda: Feedforward("2 *"), "feedforward: cannot parse expression '2 *' for the value"),
         (lambda: Feedforward("__import__('os')"), "unknown function '__import__'"),
         (lambda: Feedforward("y if t else 0"), "conditionals are not supported"),
         (lambda: Feedforward(1.0, start=-1), "feedforward start must be a finite time >= 0 s"),

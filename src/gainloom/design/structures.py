@@ -26,7 +26,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..lti.loop import Loop
-from ..lti.polynomials import pad_left
+from ..lti.polynomials import pad_left, polymul
 from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
 
 __all__ = [
@@ -39,14 +39,18 @@ __all__ = [
     "physical_from_coefficients",
     "coefficients_from_physical",
     "open_loop",
-    "polymul",
     "filter_pole",
     "fixed_poles",
     "zero_count",
     "continuous_fixed_poles",
     "continuous_physical_from_locus",
     "discretize_continuous",
+    "SHAPE_COEFFICIENTS",
 ]
+
+#: Table coefficients that place a controller pole or zero (the shape), as
+#: opposed to those proportional to the loop gain ``K`` for a fixed shape.
+SHAPE_COEFFICIENTS: frozenset[str] = frozenset({"kd_a", "zc", "pc", "zc1", "pc1", "zc2", "pc2"})
 
 #: Names of the physical gains reported per structure (units in the docs:
 #: kp [-], ki [1/s], kd [s], tf [s]; lead/lag: kc [-], zc/pc [-] in z and the
@@ -72,21 +76,6 @@ def check_structure(structure: str) -> str:
 def zero_count(structure: str) -> int:
     """Number of controller zeros a strategy places (0, 1 or 2)."""
     return {"p": 0, "pi": 1, "pd": 1, "pid": 2, "lead": 1, "lag": 1, "leadlag": 2}[check_structure(structure)]
-
-
-def polymul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Batched product of polynomials (descending coefficients, last axis).
-
-    Leading axes broadcast.  The degree is small (controller times plant),
-    so the loop runs over coefficients, never over the batch.
-    """
-    a = np.asarray(a, dtype=float)
-    b = np.asarray(b, dtype=float)
-    shape = np.broadcast_shapes(a.shape[:-1], b.shape[:-1])
-    out = np.zeros(shape + (a.shape[-1] + b.shape[-1] - 1,))
-    for i in range(a.shape[-1]):
-        out[..., i : i + b.shape[-1]] += a[..., i : i + 1] * b
-    return out
 
 
 def _roots_poly(roots: np.ndarray) -> np.ndarray:

@@ -16,7 +16,9 @@ refinement and parameter tolerances.
   specs there.  With ``refine.max_inserted > 0`` a breakpoint is inserted in
   the middle of every failing interval (most failures first, within the
   budget), the new points are designed, and the check repeated until it
-  passes or the budget is spent.
+  passes or the budget is spent.  What still fails then is given the
+  between-point back-off (:mod:`gainloom.design.between_backoff`): the loop
+  gain of the failing cell's breakpoints lowered by at most 10 %.
 * Tolerances: every corner of the declared parameter tolerances (or the
   seeded space-filling sample) at every grid point, with the table's
   coefficients; the worst corner per point is reported.
@@ -32,6 +34,7 @@ import numpy as np
 
 from .analysis import analyse
 from .lookup import interpolate_grids
+from .structures import SHAPE_COEFFICIENTS
 
 __all__ = ["run_table_checks", "relative_steps", "between_points", "tolerance_scales"]
 
@@ -174,7 +177,7 @@ def _smooth_gains(sched, point_design, shape, structure) -> tuple[dict[str, np.n
             if not np.isfinite(gain) or gain == 0:
                 continue
             # coefficients scale with K for a fixed shape, except the filter/lead poles
-            scalable = np.array([k not in ("kd_a", "zc", "pc", "zc1", "pc1", "zc2", "pc2") for k in grids])
+            scalable = np.array([k not in SHAPE_COEFFICIENTS for k in grids])
             trial = b[None, :] * np.where(scalable, ratios[:, None], 1.0)
             fits = acceptable(a[None, :], trial)
             inside = np.array([any(lo < gain * r < hi for lo, hi in point_design.intervals[p]) for r in ratios])
@@ -330,6 +333,11 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         point_design = _merge_designs(point_design, fresh, new_points, is_new, old_lookup, structure)
         axes_values = new_axes
         budget -= len(wanted)
+    if failing and redesign:
+        point_design = _back_off(sched, point_design, axes_values, structure, count)
+        shape = tuple(v.size for v in axes_values)
+        grids = {k: np.asarray(v).reshape(shape) for k, v in point_design.coefficients.items()}
+        failing, checked, detail = _between(sched, axes_values, grids, structure, count)
     smooth, mono = _check_smoothness(sched, {k: np.asarray(v).reshape(tuple(a.size for a in axes_values))
                                             for k, v in point_design.coefficients.items()}, names)
     if progress is not None:
@@ -349,6 +357,21 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         tolerance_worst=tol_worst,
     )
     return report, point_design, axes_values
+
+
+def _back_off(sched, point_design, axes_values, structure, count):
+    """The between-point back-off (:mod:`gainloom.design.between_backoff`), its warnings on the points."""
+    from dataclasses import replace
+
+    from .between_backoff import back_off_between
+
+    moved_design, moved = back_off_between(sched, point_design, axes_values, structure, count)
+    if not moved:
+        return point_design
+    P = moved_design.points.shape[0]
+    old = point_design.warnings or tuple(() for _ in range(P))
+    warnings = tuple(tuple(old[p]) + ((moved[p],) if p in moved else ()) for p in range(P))
+    return replace(moved_design, warnings=warnings)
 
 
 def _merge_designs(old, fresh, new_points, is_new, old_lookup, structure):

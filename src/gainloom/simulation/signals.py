@@ -87,7 +87,7 @@ class SignalExpression:
         start, end = yaml.Mark(what, 0, 0, 0, None, None), yaml.Mark(what, len(value), 0, len(value), None, None)
         node = Node(yaml.ScalarNode(_STR_TAG, value, start, end), "", what)
         try:
-            return cls(what, parse_expression(node, what.lstrip("-")))
+            return cls(what, parse_expression(node, "value"))
         except ScheduleError as error:
             raise _located(error, what) from None
 
