@@ -180,10 +180,10 @@ def read_response_csv(file: str, needed_extra: tuple[str, ...], units: dict[str,
     if header is None:
         raise ScheduleError("frequency-response file holds no header line (frequency, magnitude, phase)", file=file)
     values = np.array(rows, dtype=float).reshape(-1, len(needed))
-    starts = np.array(places, dtype=int).reshape(-1, len(needed))
+    columns_at = np.array(places, dtype=int).reshape(-1, len(needed))
     return ResponseTable(file=file, columns={name: values[:, i] for i, name in enumerate(needed)}, units=resolved,
                          lines=np.array(lines, dtype=int),
-                         places={name: starts[:, i] for i, name in enumerate(needed)})
+                         places={name: columns_at[:, i] for i, name in enumerate(needed)})
 
 
 def to_response(table: ResponseTable, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
