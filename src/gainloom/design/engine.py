@@ -35,6 +35,7 @@ from .fallbacks import (
     strategy_gain_warning,
     target_warnings,
 )
+from .measured_check import check_on_data, merge_data_verdict
 from .results import DesignResult, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, _samples_in, choose_gains, objective_values
 from .specs import SAMPLING_FRACTION, SpecLimits
@@ -581,6 +582,10 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     point_design = design_points(sched, points, progress)
     report, point_design, axes_values = run_table_checks(sched, point_design, axes_values, progress=progress)
     table = _table(sched, None, axes_values, point_design.coefficients, point_design.plant)
+    data_check = check_on_data(sched, point_design.points, sched.controller.structure, point_design.coefficients,
+                               point_design.limits)
+    status, notes, binding = merge_data_verdict(point_design.status, point_design.notes, point_design.binding,
+                                                data_check)
     warnings = list(sched.warnings)
     warnings += sampling_warnings(sched, point_design.points, point_design.plant, point_design.analysis)
     warnings += list(point_design.analysis.warnings)
@@ -608,9 +613,9 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     return DesignResult(
         table=table,
         analysis=point_design.analysis,
-        status=point_design.status,
-        notes=point_design.notes,
-        binding=point_design.binding,
+        status=status,
+        notes=notes,
+        binding=binding,
         table_report=report,
         warnings=tuple(warnings),
         schedule_path=str(sched.path),
@@ -620,6 +625,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
         point_labels=tuple(sched.describe_point(p) for p in point_design.points),
         continuous=continuous,
         point_warnings=point_warnings(sched, point_design),
+        data_check=data_check,
     )
 
 
@@ -678,7 +684,9 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
             f"{sched.describe_point(points[p])}: file {stored_ts[p]:.6g} s, schedule {plant.ts[p]:.6g} s; "
             "checked with the schedule's period (the coefficients are per-sample quantities)"
         )
-    status = tuple("pass" if ok else "fail" for ok in analysis.passed)
+    data_check = check_on_data(sched, points, table.structure, coefficients, limits)
+    status, _, _ = merge_data_verdict(tuple("pass" if ok else "fail" for ok in analysis.passed),
+                                      ((),) * points.shape[0], (None,) * points.shape[0], data_check)
     point_design = PointDesign(
         points=points, plant=plant, limits=limits, coefficients=coefficients, analysis=analysis,
         feasible=analysis.passed, status=status, binding=tuple([None] * points.shape[0]),
@@ -700,4 +708,5 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
         gains_path=gains_path,
         points=points,
         point_labels=tuple(sched.describe_point(p) for p in points),
+        data_check=data_check,
     )

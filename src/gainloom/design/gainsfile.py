@@ -26,7 +26,7 @@ from ..outputs import write_outputs
 from ..plain import to_plain
 from .table import GainTable, TableAxis
 
-__all__ = ["GAINS_FORMAT", "render_gains", "write_gains", "read_gains", "gains_document", "GainsMetadata"]
+__all__ = ["GAINS_FORMAT", "GainsMetadata", "gains_document", "read_gains", "render_gains", "write_gains"]
 
 #: Format tag of the gains file.
 GAINS_FORMAT = "gainloom-gains/1"
@@ -47,6 +47,7 @@ _KEYS = (
     "table_checks",
     "warnings",
     "continuous",
+    "measured",
 )
 
 
@@ -279,9 +280,8 @@ def _floats(value: Any) -> Any:
         return [_floats(v) for v in value]
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
         raise TypeError
-    if isinstance(value, str):
-        if value not in ("inf", "-inf", "nan"):
-            raise ValueError
+    if isinstance(value, str) and value not in ("inf", "-inf", "nan"):
+        raise ValueError
     return float(value)
 
 
@@ -322,7 +322,7 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
         raise ScheduleError(f"gains file is not UTF-8 text (byte {error.start})", file=str(path)) from None
     try:
         root = yaml.compose(text, Loader=_Loader)
-        data = yaml.load(text, Loader=_Loader)  # noqa: S506 - _Loader is a SafeLoader
+        data = yaml.load(text, Loader=_Loader)
     except (ValueError, TypeError, OverflowError) as error:  # e.g. !!float abc
         raise ScheduleError(f"a value cannot be read as tagged: {error}", file=str(path)) from None
     except yaml.YAMLError as error:
@@ -409,6 +409,7 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
             "table_checks": _restore_nonfinite(data.get("table_checks")),
             "warnings": list(data.get("warnings") or []),
             "continuous": _restore_nonfinite(data.get("continuous")),
+            "measured": _restore_nonfinite(data.get("measured")),
             "path": str(path),
         }
     )

@@ -34,11 +34,12 @@ from ..lti.closed_loop import closed_loop_poles
 from ..lti.intervals import spec_gain_intervals, stable_gain_intervals
 from ..lti.loop import Loop
 from ..lti.margins import loop_margins
+from ..lti.polynomials import polymul
 from ..lti.regions import SpecRegion
 from .analysis import pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .specs import SpecLimits
-from .structures import _roots_poly, _z_to_delta, polymul
+from .structures import _roots_poly, _z_to_delta
 
 __all__ = ["Shapes", "Choice", "shape_loops", "choose_gains", "objective_values", "OBJECTIVE_TEXT"]
 

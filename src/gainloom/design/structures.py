@@ -26,7 +26,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..lti.loop import Loop
-from ..lti.polynomials import pad_left
+from ..lti.polynomials import pad_left, polymul
 from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
 
 __all__ = [
@@ -39,7 +39,6 @@ __all__ = [
     "physical_from_coefficients",
     "coefficients_from_physical",
     "open_loop",
-    "polymul",
     "filter_pole",
     "fixed_poles",
     "zero_count",
@@ -77,21 +76,6 @@ def check_structure(structure: str) -> str:
 def zero_count(structure: str) -> int:
     """Number of controller zeros a strategy places (0, 1 or 2)."""
     return {"p": 0, "pi": 1, "pd": 1, "pid": 2, "lead": 1, "lag": 1, "leadlag": 2}[check_structure(structure)]
-
-
-def polymul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Batched product of polynomials (descending coefficients, last axis).
-
-    Leading axes broadcast.  The degree is small (controller times plant),
-    so the loop runs over coefficients, never over the batch.
-    """
-    a = np.asarray(a, dtype=float)
-    b = np.asarray(b, dtype=float)
-    shape = np.broadcast_shapes(a.shape[:-1], b.shape[:-1])
-    out = np.zeros(shape + (a.shape[-1] + b.shape[-1] - 1,))
-    for i in range(a.shape[-1]):
-        out[..., i : i + b.shape[-1]] += a[..., i : i + 1] * b
-    return out
 
 
 def _roots_poly(roots: np.ndarray) -> np.ndarray:

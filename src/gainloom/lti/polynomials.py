@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["as_poly_batch", "pad_left", "batched_roots", "characteristic"]
+__all__ = ["as_poly_batch", "pad_left", "polymul", "batched_roots", "characteristic"]
 
 
 def as_poly_batch(coeffs: object) -> np.ndarray:
@@ -38,6 +38,22 @@ def pad_left(coeffs: np.ndarray, length: int) -> np.ndarray:
         raise ValueError(f"cannot pad {coeffs.shape[-1]} coefficients down to {length}")
     pad = [(0, 0)] * (coeffs.ndim - 1) + [(extra, 0)]
     return np.pad(coeffs, pad)
+
+
+def polymul(a: object, b: object) -> np.ndarray:
+    """Batched product of polynomials (descending coefficients, last axis).
+
+    Leading axes broadcast; the result is float, or complex when either
+    factor is.  The degree is small (controller times plant), so the loop
+    runs over coefficients, never over the batch.
+    """
+    a = np.asarray(a)
+    b = np.asarray(b)
+    shape = np.broadcast_shapes(a.shape[:-1], b.shape[:-1])
+    out = np.zeros(shape + (a.shape[-1] + b.shape[-1] - 1,), dtype=np.result_type(a, b, float))
+    for i in range(a.shape[-1]):
+        out[..., i : i + b.shape[-1]] += a[..., i : i + 1] * b
+    return out
 
 
 def batched_roots(coeffs: np.ndarray) -> np.ndarray:
