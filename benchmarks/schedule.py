@@ -28,7 +28,6 @@ for the smoke test).
 from __future__ import annotations
 
 import argparse
-import math
 import sys
 import tempfile
 import time

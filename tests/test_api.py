@@ -20,7 +20,6 @@ EXPECTED_PUBLIC_NAMES = {
     "emit_c",
     "check_generated_c",
     "HarnessResult",
-    "discretize_loop",
     "design",
     "verify",
     "DesignResult",
@@ -43,12 +42,18 @@ EXPECTED_PUBLIC_NAMES = {
     "ScenarioSpecs",
     "PiecewiseLinear",
     "LoadStep",
+    "Feedforward",
+    "LimitStep",
     "SimulationResult",
     "check_quantisation",
     "QuantisationResult",
     "write_verification",
     "run_design_job",
     "JobResult",
+    "Cascade",
+    "load_cascade",
+    "CascadeDesign",
+    "design_cascade",
 }
 
 

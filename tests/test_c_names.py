@@ -9,12 +9,12 @@ import shutil
 import subprocess
 
 import pytest
+from test_codegen_cases import make_table
 
 from gainloom import CodegenError
 from gainloom.c_names import comment_text, comment_text_problem, prefix_problem, validate_prefix
 from gainloom.codegen.emit import render_files
 from gainloom.codegen.harness import WARNING_FLAGS
-from test_codegen_cases import make_table
 
 SHA = "0123456789abcdef" * 4
 GCC = shutil.which("gcc")
@@ -190,9 +190,10 @@ def test_a_bad_unit_in_the_schedule_is_refused_at_its_line(tmp_path):
 
 @pytest.mark.parametrize("command", ["emit", "design"])
 def test_an_empty_prefix_option_is_refused_not_replaced_by_the_default(tmp_path, capsys, command):
+    from test_design_job import PASSING
+
     from gainloom.cli import main
     from gainloom.design.gainsfile import write_gains
-    from test_design_job import PASSING
 
     if command == "emit":
         source = write_gains(make_table("pi"), tmp_path / "g.yaml")

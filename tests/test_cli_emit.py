@@ -5,10 +5,11 @@ import subprocess
 import sys
 
 import pytest
+from test_codegen_cases import make_table
 
 from gainloom.codegen.harness import find_compiler
 from gainloom.design.gainsfile import write_gains
-from test_codegen_cases import make_table
+from gainloom.safety import CAUTION
 
 
 def _run(*args, cwd):
@@ -27,9 +28,11 @@ def test_emit_writes_byte_identical_files_each_run(tmp_path, gains):
     out = tmp_path / "out"
     first = _run(str(gains), "--out", str(out), "--format", "q15", "--prefix", "spindle", cwd=tmp_path)
     assert first.returncode == 0, first.stderr
-    assert "wrote" in first.stdout and "caution" in first.stdout
+    assert "wrote" in first.stdout and CAUTION in first.stdout
     header, source = (out / "spindle.h").read_bytes(), (out / "spindle.c").read_bytes()
     assert b"spindle_update(" in header and b"SPINDLE_NUMBER_FORMAT (SPINDLE_FORMAT_Q15)" in header
+    banner = header.decode("ascii").split("*/")[0]
+    assert CAUTION in " ".join(line.removeprefix(" * ") for line in banner.splitlines())  # the project's one caution
     assert b"gains_file=motor.gains.yaml" in source
     again = _run(str(gains), "--out", str(out), "--format", "q15", "--prefix", "spindle", cwd=tmp_path)
     assert again.returncode == 0, again.stderr  # its own files: no --force needed

@@ -22,7 +22,8 @@ import pytest
 from gainloom.cli import main
 
 ROOT = Path(__file__).resolve().parents[1]
-DEMOS = sorted((ROOT / "schedules").glob("*.yaml"))
+DEMOS = sorted(p for p in (ROOT / "schedules").glob("*.yaml") if not p.stem.startswith("servo_cascade"))
+CASCADES = sorted((ROOT / "schedules").glob("servo_cascade*.yaml"))
 BAD = ROOT / "tests" / "bad_schedules"
 
 
@@ -31,7 +32,8 @@ def run_cli(*args: str) -> subprocess.CompletedProcess:
     # same gainloom (src/ in a dev run, the installed package in CI).
     env = dict(os.environ, PYTHONPATH=os.pathsep.join(p for p in sys.path if p))
     return subprocess.run(
-        [sys.executable, "-m", "gainloom", "inspect", *args], capture_output=True, text=True, env=env, timeout=120
+        [sys.executable, "-m", "gainloom", "inspect", *args], capture_output=True, text=True, env=env, timeout=120,
+        check=False,
     )
 
 
@@ -50,6 +52,18 @@ def test_demo_schedules_inspect_cleanly(path, capsys):
     data = in_process_json(path, capsys)
     assert data["warnings"] == []
     assert len(data["points"]) == math.prod(data["grid_shape"])
+
+
+@pytest.mark.parametrize("path", CASCADES, ids=[p.stem for p in CASCADES])
+def test_cascade_demos_inspect_cleanly(path, capsys):
+    text = run_cli(str(path))
+    assert text.returncode == 0, text.stderr
+    assert "== loop current" in text.stdout and "== loop speed" in text.stdout and "warning" not in text.stdout
+    data = in_process_json(path, capsys)
+    assert [loop["name"] for loop in data["loops"]] == ["current", "speed"]
+    assert data["warnings"] == []
+    for loop in data["loops"]:
+        assert len(loop["points"]) == math.prod(loop["grid_shape"])
 
 
 def test_json_in_a_subprocess_is_strict():

@@ -12,6 +12,7 @@ import scipy.signal
 
 from gainloom.cli.arguments import parse_coefficients
 from gainloom.errors import InputError
+from gainloom.safety import CAUTION
 
 
 def run_cli(*args, cwd=None):
@@ -31,7 +32,7 @@ def test_table_output_names_the_facts():
     assert result.returncode == 0, result.stderr
     out = result.stdout
     for heading in ("Open-loop poles and zeros", "Real-axis segments", "Asymptotes", "Breakaway",
-                    "Departure and arrival angles", "Stable gain intervals", "Caution"):
+                    "Departure and arrival angles", "Stable gain intervals", CAUTION):
         assert heading in out
     # Breakaway of K/(s(s+1)(s+2)) at -1 + 1/sqrt(3), K = 0.3849 (textbook, from memory).
     assert "-0.42265" in out and "0.3849" in out

@@ -17,9 +17,11 @@ import sys
 import numpy as np
 import pytest
 
+from gainloom import look
 from gainloom.cli import main
 from gainloom.design.gainsfile import write_gains
 from gainloom.design.table import GainTable, TableAxis
+from gainloom.safety import CAUTION
 
 SCHEDULE = """\
 name: lag-test
@@ -68,7 +70,8 @@ def run_cli(*args: str) -> subprocess.CompletedProcess:
     # PYTHONPATH from this interpreter's import path: the subprocess sees the same gainloom.
     env = dict(os.environ, PYTHONPATH=os.pathsep.join(p for p in sys.path if p))
     return subprocess.run(
-        [sys.executable, "-m", "gainloom", "simulate", *args], capture_output=True, text=True, env=env, timeout=120
+        [sys.executable, "-m", "gainloom", "simulate", *args], check=False, capture_output=True, text=True, env=env,
+        timeout=120,
     )
 
 
@@ -83,8 +86,32 @@ def test_json_run_matches_the_closed_form(files):
     phi = np.exp(-40.0 * 1e-3)
     lam = phi - 3.0 * (1 - phi)
     np.testing.assert_allclose(y, 0.75 * (1 - lam**k), rtol=0, atol=1e-12)
-    assert data["passed"] and data["number_format"] == "float64" and "CAUTION" in data["caution"]
+    assert data["passed"] and data["number_format"] == "float64" and data["caution"] == CAUTION
     assert data["series"]["points"]["speed"][-1] == pytest.approx(2000.0)
+
+
+def test_feedforward_and_limit_steps_from_the_command_line(files):
+    schedule, stable, _, _ = files
+    # Feedforward c y with c = a/40 = 1 (a parameter of the schedule): u = K (r - y) + y,
+    # lam = phi - (K - 1)(1 - phi), y[k] = K/(1 + K - 1) (1 - lam^k) = 1 - lam^k
+    # (closed form, geometric series); then a limit step to +-0.5 from 0.1 s clamps u
+    # there on its first sample (definition of saturation) and 0.2:table releases it.
+    done = run_cli(schedule, "--gains", stable, "--ramp", "speed=500", "--duration", "0.3", "--format", "float64",
+                   "--feedforward", "a / 40 * y", "--limit-step", "0.1:-0.5:0.5", "--limit-step", "0.2:table",
+                   "--json", "--series")
+    assert done.returncode == 0, done.stderr
+    data = json.loads(done.stdout)
+    series = data["series"]
+    t, y, u = (np.array(series[name]) for name in ("time", "output", "control"))
+    phi = np.exp(-40.0 * 1e-3)
+    lam = phi - 2.0 * (1 - phi)
+    before = t < 0.1 - 1e-12
+    np.testing.assert_allclose(y[before], 1 - lam ** np.arange(np.count_nonzero(before)), rtol=0, atol=1e-12)
+    sag = ~before & (t < 0.2 - 1e-12)
+    assert np.all(u[sag] == 0.5) and np.all(np.array(series["limit_high"])[sag] == 0.5)
+    assert data["scenario"]["limit_steps"] == [{"time": 0.1, "low": "-0.5", "high": "0.5"},
+                                               {"time": 0.2, "low": None, "high": None}]
+    assert data["metrics"]["saturation_time"] == pytest.approx(np.count_nonzero(sag) * 1e-3, rel=1e-9)
 
 
 def test_text_run_fails_a_limit_and_flags_instability(files, capsys):
@@ -94,7 +121,7 @@ def test_text_run_fails_a_limit_and_flags_instability(files, capsys):
     options = ["--ramp", "speed=500", "--error-from", "0.25", "--max-error", "0.1"]
     assert main(["simulate", schedule, "--gains", stable, *options]) == 1
     text = capsys.readouterr().out
-    assert "FAIL" in text and "spec max_error <= 0.1: 0.25" in text and "CAUTION" in text
+    assert "FAIL" in text and "spec max_error <= 0.1: 0.25" in text and CAUTION in text
     # K = 60: lam = phi - 60 (1 - phi) = -1.39, outside the unit circle (closed form).
     done = run_cli(schedule, "--gains", unstable, "--ramp", "speed=500")
     assert done.returncode == 1, done.stderr
@@ -109,6 +136,10 @@ def test_text_run_fails_a_limit_and_flags_instability(files, capsys):
         (["--ramp", "torque=1"], "the scenario moves torque, which the schedule does not have"),
         (["--ramp", "speed=1", "--load-step", "0.1"], "expected A:B"),
         (["--ramp", "speed=1", "--format", "q15", "--duration", "-1"], "duration must be > 0"),
+        (["--ramp", "speed=1", "--limit-step", "0.1:1"], "--limit-step: expected TIME:LOW:HIGH or TIME:table"),
+        (["--ramp", "speed=1", "--limit-step", "0.1:-1:1+"], "--limit-step 0.1:-1:1+ HIGH: cannot parse expression"),
+        (["--ramp", "speed=1", "--feedforward", "2*sped"], "--feedforward: unknown name 'sped'"),
+        (["--ramp", "speed=1", "--feedforward-at", "0.1"], "--feedforward-at needs --feedforward"),
     ],
 )
 def test_bad_options_exit_2(files, capsys, options, message):
@@ -144,7 +175,7 @@ def test_plots_are_deterministic_png_without_metadata(files, capsys):
     assert images[0] == images[1]
     chunks = _png_chunks(images[0])
     width, height = struct.unpack(">II", chunks[0][1][:8])
-    assert (width, height) == (800, 1000)  # 8 x 10 in at 100 dpi
+    assert (width, height) == (8 * look.DPI, 10 * look.DPI)  # 8 x 10 in at the project's one resolution
     assert not [kind for kind, _ in chunks if kind in (b"tEXt", b"iTXt", b"zTXt", b"tIME")]
     assert "plot:" in capsys.readouterr().out
 
@@ -153,5 +184,5 @@ def test_help_names_every_option():
     done = run_cli("--help")
     assert done.returncode == 0
     for option in ("--gains", "--ramp", "--path", "--reference", "--load-step", "--format", "--plot", "--json",
-                   "--max-overshoot", "--error-full-scale"):
+                   "--max-overshoot", "--error-full-scale", "--feedforward", "--feedforward-at", "--limit-step"):
         assert option in done.stdout

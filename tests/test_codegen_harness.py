@@ -7,11 +7,11 @@ from concurrent.futures import ThreadPoolExecutor
 from itertools import product
 
 import pytest
+from test_codegen_cases import make_table
 
 from gainloom import CodegenError
 from gainloom.codegen.emit import emit_c
 from gainloom.codegen.harness import WARNING_FLAGS, check_generated_c, find_compiler
-from test_codegen_cases import make_table
 
 needs_cc = pytest.mark.needs_cc
 HAVE_CC = find_compiler() is not None

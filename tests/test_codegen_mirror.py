@@ -7,11 +7,11 @@ import numpy as np
 import pytest
 from scipy.interpolate import RegularGridInterpolator
 from scipy.signal import lfilter
+from test_codegen_cases import make_table
 
 from gainloom.codegen.layout import layout_table
 from gainloom.codegen.mirror import lookup_gains, run_steps
 from gainloom.codegen.qformat import dequantize
-from test_codegen_cases import make_table
 
 EPS32 = float(np.finfo(np.float32).eps)
 

@@ -6,13 +6,14 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from test_codegen_cases import make_table
 
 from gainloom import CodegenError, __version__
-from gainloom.codegen.emit import render_files
 from gainloom.c_names import C_KEYWORDS, validate_fragment, validate_prefix
+from gainloom.codegen.emit import render_files
 from gainloom.codegen.render import c_float, c_float_exact, render_template, templates_dir
 from gainloom.design.table import GainTable, TableAxis
-from test_codegen_cases import make_table
+from gainloom.safety import CAUTION
 
 SHA = "0123456789abcdef" * 4
 
@@ -36,7 +37,8 @@ def test_banner_says_generated_hash_options_and_no_timestamp():
         assert f"schedule sha256: {SHA}" in head
         assert "error_full_scale=20.0" in head and "format=q15" in head and "gains_file=g.yaml" in head
         assert "prefix=motor" in head and "output_full_scale=12.0" in head
-        assert "functional-safety" in head
+        banner = text.split("*/")[0]
+        assert CAUTION in " ".join(line.removeprefix(" * ") for line in banner.splitlines())  # the project's one caution
         assert not re.search(r"\d{4}-\d{2}-\d{2}|\d{1,2}:\d{2}(:\d{2})?", text)  # no dates or times
         assert all(line == line.rstrip() for line in text.splitlines())
         assert text.endswith("\n") and not text.endswith("\n\n")

@@ -10,17 +10,17 @@ import subprocess
 from pathlib import Path
 
 import pytest
+from test_codegen_cases import make_table
 
 from gainloom.c_names import CNames
 from gainloom.codegen.emit import emit_c
-from gainloom.codegen.verdict import table_verdict
 from gainloom.codegen.harness import check_generated_c, generated_files, harness_program
 from gainloom.codegen.target import check_target
 from gainloom.codegen.target_build import build_for_core, helper_kind
 from gainloom.codegen.target_rules import DEVIATIONS, check_rules
 from gainloom.codegen.target_run import _emulate, _link, measure_source, parse_trace
 from gainloom.codegen.target_tools import CORES, TargetTools, find_target_tools
-from test_codegen_cases import make_table
+from gainloom.codegen.verdict import table_verdict
 
 TOOLS = find_target_tools()
 needs_build = pytest.mark.skipif(not TOOLS.can_build, reason=f"missing {', '.join(TOOLS.missing('gcc', 'nm', 'size', 'readelf'))}")
@@ -275,8 +275,9 @@ def test_the_docs_state_how_many_calls_are_measured():
 @pytest.fixture(scope="module")
 def fan_jobs(tmp_path_factory):
     """The invented fan schedule of the job tests in float32, run with and without the target stage."""
-    from gainloom.report.run import run_design_job
     from test_design_job import PASSING
+
+    from gainloom.report.run import run_design_job
 
     root = tmp_path_factory.mktemp("jobs")
     schedule = root / "fan.yaml"

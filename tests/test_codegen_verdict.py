@@ -5,11 +5,11 @@ unless the integrator defines ``<PREFIX>_ACCEPT_UNVERIFIED``."""
 import subprocess
 
 import pytest
+from test_codegen_cases import make_table
 
 from gainloom.codegen.emit import render_files
 from gainloom.codegen.harness import WARNING_FLAGS, check_generated_c, find_compiler
 from gainloom.codegen.verdict import table_verdict
-from test_codegen_cases import make_table
 
 SHA = "0123456789abcdef" * 4
 COMPILER = find_compiler()

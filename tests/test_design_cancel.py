@@ -4,7 +4,7 @@ import numpy as np
 
 from gainloom import Loop
 from gainloom.design.cancel import cancelled_zeros, deflate, mask_cancelled
-from gainloom.design.structures import polymul
+from gainloom.lti.polynomials import polymul
 
 
 def test_cancellation_detected_masked_and_deflated():

@@ -8,7 +8,8 @@ import numpy as np
 import pytest
 
 import gainloom
-from gainloom.design.table_checks import between_points, interpolate, relative_steps, tolerance_scales
+from gainloom.design.lookup import interpolate_grids
+from gainloom.design.table_checks import between_points, relative_steps, tolerance_scales
 
 THIRD_ORDER = """
 name: third-order
@@ -151,11 +152,11 @@ def test_interpolation_is_linear_and_bilinear():
     # closed forms of linear and bilinear interpolation
     x = np.array([0.0, 1.0, 3.0])
     grid = {"kp": np.array([1.0, 3.0, 7.0])}
-    out = interpolate([x], grid, np.array([[0.5], [2.0], [3.0]]))
+    out = interpolate_grids((x,), grid, np.array([[0.5], [2.0], [3.0]]))
     np.testing.assert_allclose(out["kp"], [2.0, 5.0, 7.0])
     y = np.array([0.0, 2.0])
     grid2 = {"kp": np.array([[0.0, 2.0], [1.0, 3.0], [3.0, 5.0]])}  # f = x + y on the grid
-    out = interpolate([x, y], grid2, np.array([[0.5, 1.0], [2.0, 0.5]]))
+    out = interpolate_grids((x, y), grid2, np.array([[0.5, 1.0], [2.0, 0.5]]))
     np.testing.assert_allclose(out["kp"], [1.5, 2.5])
 
 

@@ -5,6 +5,7 @@ simulator, and the textbook properties they must have."""
 import numpy as np
 import pytest
 from scipy.signal import cont2discrete
+from test_codegen_cases import make_table
 
 from gainloom.codegen.emit import emit_c
 from gainloom.codegen.harness import _mirror_outputs, generated_files, harness_program
@@ -12,7 +13,6 @@ from gainloom.codegen.layout import layout_table
 from gainloom.codegen.mirror import FixedStepper, lookup_gains, run_steps
 from gainloom.design.table import GainTable, TableAxis
 from gainloom.simulation.controller import TableController
-from test_codegen_cases import make_table
 
 # A current loop of our own invention: R = 0.5 ohm, L = 2 mH, back-EMF 6 V,
 # PI with its zero on the electrical pole, 10 kHz, output limits +-24 V.

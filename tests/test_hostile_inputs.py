@@ -16,6 +16,7 @@ import signal
 import textwrap
 
 import pytest
+from test_design_job import PASSING
 
 from gainloom import load_schedule
 from gainloom.cli import CLOSED_PIPE_EXIT, main
@@ -23,7 +24,6 @@ from gainloom.cli.design import Counter
 from gainloom.design.gainsfile import read_gains
 from gainloom.errors import ScheduleError
 from gainloom.limits import MAX_SCHEDULE_BYTES
-from test_design_job import PASSING
 
 
 @pytest.fixture()
@@ -126,8 +126,9 @@ def test_verification_log_records_the_fractional_dead_time(tmp_path, capsys):
 
 
 def test_emit_refuses_an_output_full_scale_below_the_limits(tmp_path, capsys):
-    from gainloom.design.gainsfile import write_gains
     from test_codegen_cases import make_table
+
+    from gainloom.design.gainsfile import write_gains
 
     gains = write_gains(make_table("pi"), tmp_path / "g.yaml")  # limits (-10, 12)
     code = main(["emit", str(gains), "--out", str(tmp_path / "c"), "--format", "q15", "--output-full-scale", "5"])

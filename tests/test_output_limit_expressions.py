@@ -5,6 +5,7 @@ import math
 
 import numpy as np
 import pytest
+from test_codegen_cases import make_table
 
 from gainloom import ScheduleError, load_schedule
 from gainloom.codegen.emit import emit_c
@@ -12,9 +13,8 @@ from gainloom.codegen.harness import check_generated_c, find_compiler
 from gainloom.codegen.layout import layout_table
 from gainloom.codegen.mirror import lookup_gains, run_steps
 from gainloom.design.gainsfile import read_gains, write_gains
-from gainloom.design.table import GainTable, TableAxis
+from gainloom.design.table import GainTable
 from gainloom.simulation.controller import TableController
-from test_codegen_cases import make_table
 
 # A scenario of our own: a current loop whose voltage limit follows the DC
 # bus (space-vector modulation reaches bus / sqrt(3) phase voltage, common

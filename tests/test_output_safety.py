@@ -15,13 +15,13 @@ import os
 from pathlib import Path
 
 import pytest
+from test_codegen_cases import make_table
+from test_design_job import PASSING
 
 from gainloom import outputs
 from gainloom.cli import main
 from gainloom.design.gainsfile import write_gains
-from gainloom.outputs import MANIFEST_NAME, OutputConflictError, OutputWriteError, write_outputs
-from test_codegen_cases import make_table
-from test_design_job import PASSING
+from gainloom.outputs import MANIFEST_NAME, OutputConflictError, write_outputs
 
 # the passing demo schedule on two points, no between-point check: fast full runs
 TINY = PASSING.replace("values: [10, 40, 70, 100]", "values: [10, 100]").replace("between_points: 2", "between_points: 0")

@@ -6,13 +6,13 @@ import os
 
 import numpy as np
 import pytest
+from test_codegen_cases import make_table
 
 import gainloom.outputs as outputs
 from gainloom import CodegenError
 from gainloom.codegen.emit import emit_c
 from gainloom.design.table import GainTable
 from gainloom.outputs import MANIFEST_NAME, OutputConflictError, read_manifest, write_outputs
-from test_codegen_cases import make_table
 
 
 def test_writes_files_and_a_manifest_of_their_sha256(tmp_path):

@@ -13,6 +13,7 @@ import control
 import numpy as np
 import pytest
 
+from gainloom import look
 from gainloom.lti.loop import Loop
 from gainloom.report import plots
 from gainloom.report.markdown import number
@@ -52,12 +53,12 @@ def test_plotted_step_is_the_sampled_closed_loop_step():
 
 
 def test_png_size_is_fixed():
-    figure = plots._figure((4.0, 3.0))
+    figure = look.new_figure((4.0, 3.0))
     figure.add_subplot(1, 1, 1).plot([0, 1], [0, 1])
-    data = plots.png_bytes(figure)
+    data = look.png_bytes(figure)
     width, height = struct.unpack(">II", data[16:24])
-    assert (width, height) == (4 * plots.DPI, 3 * plots.DPI)
-    assert plots.png_bytes(figure) == data
+    assert (width, height) == (4 * look.DPI, 3 * look.DPI)
+    assert look.png_bytes(figure) == data
 
 
 @pytest.mark.parametrize(

@@ -23,7 +23,8 @@ from gainloom.errors import InputError, ScheduleError
 from gainloom.schedule import overshoot_to_damping
 
 ROOT = Path(__file__).resolve().parents[1]
-DEMOS = sorted((ROOT / "schedules").glob("*.yaml"))
+# cascade demos (top-level `loops`) are loaded by tests/test_cascade_schedule.py
+DEMOS = sorted(p for p in (ROOT / "schedules").glob("*.yaml") if not p.stem.startswith("servo_cascade"))
 
 BASE = """\
 name: unit-base
@@ -65,7 +66,12 @@ def edited(*edits: tuple[str, str]) -> str:
 @pytest.mark.parametrize("path", DEMOS, ids=[p.stem for p in DEMOS])
 def test_demo_schedules_load_cleanly(path):
     schedule = load_schedule(path)
-    assert schedule.warnings == ()
+    if path.stem == "measured_speed":
+        # its sweep holds three bad samples on purpose (examples/make_measured_data.py)
+        assert len(schedule.warnings) == 3
+        assert all("isolated outlier" in w for w in schedule.warnings)
+    else:
+        assert schedule.warnings == ()
     assert schedule.points.shape == (math.prod(schedule.grid_shape), len(schedule.axes))
     assert schedule.plant.points == schedule.points.shape[0]
     assert not schedule.plant.is_discrete

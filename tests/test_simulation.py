@@ -17,6 +17,7 @@ from hypothesis import strategies as st
 from scipy.interpolate import RegularGridInterpolator
 
 from gainloom import InputError, Loop
+from gainloom.design.lookup import interpolate_grid
 from gainloom.design.table import GainTable, TableAxis
 from gainloom.simulation import (
     LoadStep,
@@ -25,7 +26,6 @@ from gainloom.simulation import (
     ScenarioSpecs,
     run_scenario,
 )
-from gainloom.simulation.interpolation import interpolate_grid
 from gainloom.simulation.plant import split_delay
 from gainloom.simulation.timeline import sample_times
 

@@ -10,13 +10,12 @@ from __future__ import annotations
 import control
 import numpy as np
 import pytest
+from test_simulation import SECOND_ORDER, FunctionSchedule, constant_plant, controller_tf
 
 from gainloom.design.table import GainTable, TableAxis
 from gainloom.names import CONTROLLER_COEFFICIENTS
 from gainloom.simulation import LoadStep, Scenario, run_scenario
 from gainloom.simulation.controller import TableController
-
-from test_simulation import SECOND_ORDER, FunctionSchedule, constant_plant, controller_tf
 
 RANGES = {
     "kp": (0.05, 1.5),

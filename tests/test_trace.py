@@ -10,7 +10,7 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from gainloom import InputError, Loop
-from gainloom.lti.trace import angle_residual, trace_locus
+from gainloom.lti.trace import angle_residual, trace_covering, trace_locus
 
 ANGLE_TOL_DEG = 1e-4  # stated tolerance of the angle condition on traced points
 
@@ -105,6 +105,22 @@ def test_discrete_crossing_gain_matches_jury():
     tr = trace_locus(Loop(num=[0, 0, 1.0], den=[1.0, -1.5, 0.5], ts=0.01))
     assert tr.discrete
     assert tr.crossing_gains[0][0] == pytest.approx(0.5, rel=1e-6)
+
+
+def test_trace_covering_reaches_a_gain_far_past_the_default_range():
+    # K/(s + 1)^3: the closed loop (s + 1)^3 + K has roots s = -1 + K^(1/3) e^(j pi/3)
+    # and s = -1 - K^(1/3) (closed form), at any K, however far past the asymptotic start.
+    loop = Loop(num=[0, 0, 0, 1.0], den=[1.0, 3.0, 3.0, 1.0])
+    far = 50.0 * float(trace_locus(loop).k_max[0])
+    tr = trace_covering(loop, [far, -3.0])
+    gains, roots = _branches(tr, 0)
+    assert gains[-1] >= 2.0 * far
+    at = np.argmin(np.abs(gains - far))
+    cube = np.cbrt(gains[at])
+    expected = np.array([-1 - cube, -1 + cube * np.exp(1j * np.pi / 3), -1 + cube * np.exp(-1j * np.pi / 3)])
+    assert all(np.min(np.abs(roots[at] - e)) < 1e-6 * cube for e in expected)
+    # gains already inside the default range leave the default trace alone
+    assert float(trace_covering(loop, [1.0]).k_max[0]) == float(trace_locus(loop).k_max[0])
 
 
 def test_asymptotic_regime_at_k_max():

@@ -12,20 +12,25 @@ minutes on a laptop.
 from __future__ import annotations
 
 __all__ = [
-    "MAX_SCHEDULE_BYTES",
-    "MAX_GAINS_BYTES",
-    "MAX_EXPRESSION_LENGTH",
-    "MAX_EXPRESSION_DEPTH",
-    "MAX_OPERATING_POINTS",
-    "MAX_SWEEP_COUNT",
     "MAX_BETWEEN_POINTS",
     "MAX_CHECK_POINTS",
-    "MAX_REFINE_INSERTED",
-    "MAX_TOLERANCE_SAMPLES",
-    "MAX_TOLERANCE_EVALUATIONS",
-    "MAX_STUDY_DRAWS",
-    "MAX_PLANT_ORDER",
     "MAX_DELAY_SAMPLES",
+    "MAX_EXPRESSION_DEPTH",
+    "MAX_EXPRESSION_LENGTH",
+    "MAX_FIT_POLES",
+    "MAX_GAINS_BYTES",
+    "MAX_OPERATING_POINTS",
+    "MAX_PLANT_ORDER",
+    "MAX_REFINE_INSERTED",
+    "MAX_RESPONSE_BYTES",
+    "MAX_RESPONSE_SAMPLES",
+    "MAX_SCHEDULE_BYTES",
+    "MAX_STUDY_DRAWS",
+    "MAX_SWEEP_COUNT",
+    "MAX_TOLERANCE_EVALUATIONS",
+    "MAX_TOLERANCE_SAMPLES",
+    "MAX_VARIANTS",
+    "MIN_RESPONSE_SAMPLES",
     "SAMPLE_PERIOD_RANGE",
     "size_text",
 ]
@@ -58,6 +63,8 @@ MAX_TOLERANCE_EVALUATIONS = 2_000_000
 #: Most random draws per point of the statistical study (``tolerances.samples: N``);
 #: the study runs in chunks, so memory does not grow with it, only time.
 MAX_STUDY_DRAWS = 10_000_000
+#: Most variants (rows) of a product family's variants file (`gainloom family`).
+MAX_VARIANTS = 1_000
 #: Highest plant order (poles, states or denominator degree).
 MAX_PLANT_ORDER = 30
 #: Longest delay in samples: computation delay plus dead time / ts.  Each
@@ -65,9 +72,20 @@ MAX_PLANT_ORDER = 30
 MAX_DELAY_SAMPLES = 50
 #: Sample periods accepted, seconds (1 ns to 1,000 s).
 SAMPLE_PERIOD_RANGE = (1e-9, 1e3)
+#: Largest frequency-response (CSV) file read, bytes.
+MAX_RESPONSE_BYTES = 20_000_000
+#: Most samples of a frequency-response file (all its points together).
+MAX_RESPONSE_SAMPLES = 200_000
+#: Fewest samples per operating point of a measured plant: below that a
+#: sweep cannot show a crossover with its neighbourhood (common practice,
+#: no source: about ten per decade over two decades).
+MIN_RESPONSE_SAMPLES = 20
+#: Highest pole count of a fitted model (``plant.measured.fit``): beyond it
+#: the least-squares problem in powers of ``s`` loses its digits.
+MAX_FIT_POLES = 8
 
 
-def size_text(value: int | float) -> str:
+def size_text(value: float) -> str:
     """A count for a message: digits grouped, or the order of magnitude of a huge one."""
     if isinstance(value, int) and abs(value) >= 10**15:
         return f"about 10^{len(str(abs(value))) - 1}"

@@ -56,9 +56,10 @@ __all__ = [
     "check_output_folder",
     "describe_os_error",
     "file_kind",
-    "write_outputs",
+    "find_conflicts",
     "read_manifest",
     "sha256_bytes",
+    "write_outputs",
 ]
 
 #: File name of the manifest in every output folder gainloom writes.
@@ -274,6 +275,18 @@ def _conflicts(folder: Path, names, manifest: dict[str, str]) -> list[str]:
         elif sha256_bytes(_read_regular(target)) != manifest[name]:
             found.append(f"{target} was changed since gainloom wrote it")
     return found
+
+
+def find_conflicts(folder: str | os.PathLike, names) -> list[str]:
+    """Files of ``names`` in ``folder`` that :func:`write_outputs` would refuse without ``force``.
+
+    For a job that writes several folders and checks them all before writing
+    any.  A missing folder has none.
+    """
+    path = Path(folder)
+    if not path.is_dir():
+        return []
+    return _conflicts(path, names, read_manifest(path))
 
 
 def _make_folder(folder: Path) -> Path | None:

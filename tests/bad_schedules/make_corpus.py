@@ -7,6 +7,7 @@ written by hand.
 """
 import os
 import textwrap
+
 BASE = textwrap.dedent('''\
 name: corpus-base
 variables:

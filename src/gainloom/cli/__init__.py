@@ -12,11 +12,11 @@ import importlib
 import os
 import sys
 
-from .. import __version__
 from ..errors import GainloomError
 from ..outputs import describe_os_error
+from ..version import __version__
 
-__all__ = ["main", "COMMANDS"]
+__all__ = ["COMMANDS", "main"]
 
 #: Registered commands, in the order ``--help`` lists them.
 COMMANDS: tuple[str, ...] = (
@@ -28,6 +28,7 @@ COMMANDS: tuple[str, ...] = (
     "emit",
     "simulate",
     "spread",
+    "family",
 )
 
 

@@ -1,15 +1,18 @@
-"""Reading numbers and coefficient lists from command-line text (never eval)."""
+"""Reading numbers and coefficient lists from command-line text (never eval),
+and the options shared by the commands that run work units."""
 
 from __future__ import annotations
 
+import argparse
 import math
 import re
+import sys
 
 import numpy as np
 
 from ..errors import InputError
 
-__all__ = ["parse_number", "parse_coefficients"]
+__all__ = ["add_engine_arguments", "engine_options", "parse_coefficients", "parse_number", "print_notes"]
 
 _NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
 
@@ -51,3 +54,29 @@ def parse_coefficients(text: str, what: str) -> np.ndarray:
     if not np.all(np.isfinite(values)):
         raise InputError(f"--{what}: coefficients must be finite numbers")
     return values
+
+
+def add_engine_arguments(parser: argparse.ArgumentParser, what: str) -> None:
+    """``--workers`` and ``--cluster``, shared by the commands that run work units."""
+    from ..design.cluster import CLUSTER_ENVIRONMENT, INSTALL_HINT
+
+    parser.add_argument("--workers", metavar="N", type=int, default=None,
+                        help=f"local processes running the {what} (default GAINLOOM_WORKERS or the CPU count)")
+    parser.add_argument("--cluster", metavar="ADDRESS", default=None,
+                        help=f"run the {what} on the Dask scheduler at ADDRESS (e.g. tcp://10.0.0.5:8786; "
+                        f"default {CLUSTER_ENVIRONMENT}); same results as a local run; needs {INSTALL_HINT}")
+
+
+def print_notes(notes, stream=None) -> None:
+    """What the engine reported (a lost worker, ...), one line each, on stderr."""
+    for note in notes:
+        print(f"note: {note}", file=stream or sys.stderr)
+
+
+def engine_options(args: argparse.Namespace) -> dict:
+    """``workers`` and ``cluster`` keyword arguments from ``--workers`` / ``--cluster`` (or ``GAINLOOM_CLUSTER``)."""
+    from ..design.cluster import cluster_address
+
+    if args.workers is not None and args.workers < 1:
+        raise InputError(f"--workers must be at least 1; got {args.workers}")
+    return {"workers": args.workers, "cluster": cluster_address(args.cluster)}

@@ -9,6 +9,7 @@ import numpy as np
 from ..errors import InputError
 from ..lti.discretize import discrete_roots, discretize_loop
 from ..lti.loop import Loop
+from ..lti.poles import root_records
 from ..names import HOLD_METHODS
 from .arguments import parse_coefficients, parse_number
 from .output import format_number, format_table, print_json
@@ -36,30 +37,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print JSON instead of text")
 
 
-def _roots_in_z(z_coeffs: np.ndarray, delta_coeffs: np.ndarray, ts: float) -> np.ndarray:
-    # Roots via the delta form (z = 1 + ts g) keep their digits at fast sampling.
-    roots = discrete_roots(z_coeffs, delta_coeffs, ts)[0]
-    roots = roots[np.isfinite(roots)]
-    return np.array(sorted(roots, key=lambda r: (round(r.real, 12), r.imag)))
-
-
-def _root_rows(roots: np.ndarray) -> list[dict]:
-    return [
-        {
-            "real": float(r.real),
-            "imag": float(r.imag),
-            "magnitude": float(abs(r)),
-            "angle_rad": float(np.angle(r)),
-        }
-        for r in roots
-    ]
-
-
 def describe(num, den, ts, method="zoh", delay=0.0, dead_time=0.0, prewarp=None) -> dict:
     """The discretised loop as a plain dict (what ``--json`` prints)."""
     plant = Loop(num=num, den=np.trim_zeros(den, "f") if np.any(den) else den, dead_time=dead_time)
     loop = discretize_loop(plant, ts, method=method, delay=delay, prewarp=prewarp)
-    dnum, dden = loop.delta_num[0], loop.delta_den[0]
+    dnum, dden = np.asarray(loop.delta_num)[0], np.asarray(loop.delta_den)[0]  # discretize_loop always sets them
     # G(z = 1) = G_delta(g = 0): exact zero trailing coefficient for a pole at z = 1.
     infinite = dden[-1] == 0
     dc_gain = None if infinite else float(dnum[-1] / dden[-1])
@@ -72,8 +54,8 @@ def describe(num, den, ts, method="zoh", delay=0.0, dead_time=0.0, prewarp=None)
         "den": loop.den[0],
         "delta_num": dnum,
         "delta_den": dden,
-        "poles": _root_rows(_roots_in_z(loop.den[0], dden, ts)),
-        "zeros": _root_rows(_roots_in_z(loop.num[0], dnum, ts)),
+        "poles": root_records(discrete_roots(loop.den[0], dden, ts)[0]),
+        "zeros": root_records(discrete_roots(loop.num[0], dnum, ts)[0]),
         "zeros_at_infinity": int(np.argmax(loop.num[0] != 0)) if np.any(loop.num[0]) else loop.order,
         "dc_gain": dc_gain,
         "dc_gain_infinite": bool(infinite),

@@ -9,19 +9,14 @@ from pathlib import Path
 
 from ..c_names import c_names
 from ..codegen.emit import emit_c
-from ..codegen.verdict import table_verdict
 from ..codegen.harness import check_generated_c
+from ..codegen.verdict import table_verdict
 from ..design.gainsfile import read_gains
 from ..names import NUMBER_FORMATS
+from ..safety import CAUTION
 from .output import print_json
 
 HELP = "write C lookup tables and the controller step for a gains file"
-
-CAUTION = (
-    "caution: validate the generated controller on hardware with current and speed limits and a safe "
-    "test set-up; gainloom does not replace functional-safety processes, local codes or licensed engineers."
-)
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Options of ``gainloom emit``."""

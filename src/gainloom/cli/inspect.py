@@ -11,14 +11,13 @@ from __future__ import annotations
 import argparse
 import dataclasses
 
-import numpy as np
-
 from ..lti.convert import roots_with_origin
 from ..lti.discretize import discrete_roots, discretize_loop
+from ..lti.poles import root_records
 from ..schedule import Schedule, load_schedule
 from .output import format_number, format_table, print_json
 
-__all__ = ["HELP", "add_arguments", "run", "inspect_data"]
+__all__ = ["HELP", "add_arguments", "inspect_data", "run"]
 
 HELP = "validate a schedule file and list each operating point: parameters, s- and z-plane poles, sampling"
 
@@ -27,19 +26,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Register the options of ``gainloom inspect``."""
     parser.add_argument("schedule", metavar="SCHEDULE", help="schedule file (YAML)")
     parser.add_argument("--json", action="store_true", help="print strict JSON instead of text")
-
-
-def _sorted_roots(roots: np.ndarray) -> np.ndarray:
-    roots = roots[np.isfinite(roots)]
-    # conjugates next to each other, upper half first; deterministic order
-    return np.array(sorted(roots, key=lambda r: (round(float(r.real), 12), -float(r.imag))), dtype=complex)
-
-
-def _root_rows(roots: np.ndarray) -> list[dict]:
-    return [
-        {"real": float(r.real), "imag": float(r.imag), "magnitude": float(abs(r)), "angle_rad": float(np.angle(r))}
-        for r in roots
-    ]
 
 
 def inspect_data(schedule: Schedule) -> dict:
@@ -79,15 +65,15 @@ def inspect_data(schedule: Schedule) -> dict:
                 "continuous": {
                     "num": plant.num[index],
                     "den": plant.den[index],
-                    "poles": _root_rows(_sorted_roots(s_poles[index])),
-                    "zeros": _root_rows(_sorted_roots(s_zeros[index])),
+                    "poles": root_records(s_poles[index]),
+                    "zeros": root_records(s_zeros[index]),
                 },
                 "discrete": {
                     "total_delay_samples": float(discrete.delay[index]),
                     "num": discrete.num[index],
                     "den": discrete.den[index],
-                    "poles": _root_rows(_sorted_roots(z_poles[index])),
-                    "zeros": _root_rows(_sorted_roots(z_zeros[index])),
+                    "poles": root_records(z_poles[index]),
+                    "zeros": root_records(z_zeros[index]),
                 },
             }
         )
@@ -195,12 +181,50 @@ def _text(data: dict) -> str:
     return "\n".join(lines)
 
 
+def cascade_data(cascade) -> dict:
+    """``inspect --json`` of a cascade file: the cascade and each loop's :func:`inspect_data`.
+
+    An outer loop's plant is its plant part as written; the designed inner
+    loop enters it only in the design (docs/cascade.md).
+    """
+    loops = []
+    for loop in cascade.loops:
+        entry = {"name": loop.name, "rate_factor": loop.rate_factor, "inner_at": loop.inner_at or {},
+                 "shared": list(loop.shared)}
+        loops.append({**entry, **inspect_data(loop.schedule)})
+    return {
+        "cascade": {"name": cascade.name, "description": cascade.description, "path": cascade.path,
+                    "sha256": cascade.sha256, "specs": dataclasses.asdict(cascade.cascade)},
+        "loops": loops,
+        "warnings": [w for loop in loops for w in loop["warnings"]],
+    }
+
+
+def _cascade_text(data: dict) -> str:
+    parts = [f"cascade {data['cascade']['name']}: {data['cascade']['path']}"]
+    for k, loop in enumerate(data["loops"]):
+        if k == 0:
+            role = "inner loop, at the base rate"
+        else:
+            inner_at = ", ".join(f"{n}={format_number(v)}" for n, v in loop["inner_at"].items()) or "-"
+            role = (f"around loop {data['loops'][k - 1]['name']}, every {loop['rate_factor']}-th inner sample; "
+                    f"plant part only (the designed inner loop joins it in the design, at {inner_at})")
+        parts += ["", f"== loop {loop['name']} ({role})", _text(loop)]
+    return "\n".join(parts)
+
+
 def run(args: argparse.Namespace) -> int:
     """Load, evaluate, discretise and print; return the exit code (0, or 2 via the dispatcher)."""
-    schedule = load_schedule(args.schedule)
-    data = inspect_data(schedule)
+    from ..schedule.cascade import is_cascade_file, load_cascade
+
+    if is_cascade_file(args.schedule):
+        data = cascade_data(load_cascade(args.schedule))
+        text = _cascade_text
+    else:
+        data = inspect_data(load_schedule(args.schedule))
+        text = _text
     if args.json:
         print_json(data)
     else:
-        print(_text(data))
+        print(text(data))
     return 0

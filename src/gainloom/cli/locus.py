@@ -11,20 +11,16 @@ from ..errors import InputError
 from ..limits import MAX_DELAY_SAMPLES, MAX_PLANT_ORDER
 from ..lti.discretize import discretize_loop
 from ..lti.facts import LocusFacts, locus_facts
+from ..lti.intervals import damping_gain_intervals
 from ..lti.loop import Loop
 from ..lti.poles import damping_and_frequency
-from ..lti.trace import trace_locus
+from ..lti.trace import trace_covering
 from ..names import HOLD_METHODS, unknown_name_message
+from ..safety import CAUTION
 from .arguments import parse_coefficients
 from .output import format_number, format_table, print_json
 
 HELP = "root-locus facts of one loop K N/D (s-plane, or z-plane after sampling)"
-
-CAUTION = (
-    "Caution: these are model results. Validate gains on hardware with current and speed limits "
-    "and a safe test set-up; this tool does not replace functional-safety processes, local codes "
-    "or licensed engineering judgement."
-)
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Register the options of ``gainloom locus``."""
@@ -84,9 +80,8 @@ def _build_loop(args: argparse.Namespace) -> tuple[Loop, str]:
 
 def loop_facts(loop: Loop, negative: bool) -> LocusFacts:
     """Facts of the first point of ``loop`` (delta form used when present)."""
-    delta = None if loop.delta_den is None else (loop.delta_num[0], loop.delta_den[0])
     ts = None if loop.ts is None else float(loop.ts[0])
-    return locus_facts(loop.num[0], loop.den[0], ts=ts, negative=negative, delta=delta)
+    return locus_facts(loop.num[0], loop.den[0], ts=ts, negative=negative, delta=loop.delta(0))
 
 
 def _cx(value: complex) -> str:
@@ -173,8 +168,8 @@ def format_facts(
         out += [f"Stable gain intervals: none for {sign}", ""]
     if damped:
         out.append("Gains K > 0 with every closed-loop pole stable and damped at least")
-        for zeta, pairs in damped.items():
-            out.append(f"  zeta >= {zeta:g}: " + (", ".join(_interval(p) for p in pairs) if pairs else "no gain"))
+        for ratio, pairs in damped.items():
+            out.append(f"  zeta >= {ratio:g}: " + (", ".join(_interval(p) for p in pairs) if pairs else "no gain"))
         out.append("")
     elif damping_asked and facts.negative:
         out += ["Damping gain intervals are only computed for K > 0.", ""]
@@ -191,10 +186,8 @@ def _branches(loop: Loop, facts: LocusFacts) -> tuple[np.ndarray, np.ndarray, tu
     is widened when a crossing or breakaway lies beyond it, so every
     annotated point sits on a drawn branch.
     """
-    special = [abs(c.gain) for c in facts.crossings] + [abs(b.gain) for b in facts.breakaways]
-    traced = trace_locus(loop, negative=facts.negative)
-    if special and 2.0 * max(special) > float(traced.k_max[0]):
-        traced = trace_locus(loop, k_max=2.0 * max(special), negative=facts.negative)
+    special = [c.gain for c in facts.crossings] + [b.gain for b in facts.breakaways]
+    traced = trace_covering(loop, special, negative=facts.negative)
     count = int(traced.counts[0])
     return traced.gains[0, :count], traced.roots[0, :count], traced.warnings
 
@@ -234,21 +227,6 @@ def _end(value: float) -> float | None:
     return float(value) if math.isfinite(value) else None
 
 
-def damping_gain_intervals(loop: Loop, zetas: list[float]) -> dict[float, list[tuple[float, float]]]:
-    """Per damping ratio, the gains ``K > 0`` that put every closed-loop pole
-    in the stable region with at least that damping (exact boundary solver)."""
-    from ..lti.intervals import spec_gain_intervals
-    from ..lti.regions import SpecRegion
-
-    ts = None if loop.ts is None else float(loop.ts[0])
-    delta = None if loop.delta_den is None else (loop.delta_num[0], loop.delta_den[0])
-    found = {}
-    for zeta in zetas:
-        intervals = spec_gain_intervals(loop.num[0], loop.den[0], SpecRegion(min_damping=zeta, ts=ts), delta=delta)
-        found[zeta] = [(float(i.low), float(i.high)) for i in intervals]
-    return found
-
-
 def run(args: argparse.Namespace) -> int:
     """Compute, print and optionally plot; return the exit code."""
     for zeta in args.damping:
@@ -262,7 +240,7 @@ def run(args: argparse.Namespace) -> int:
         data["discretization"] = how
         data["sampling"] = (
             None
-            if loop.hold is None
+            if loop.hold is None or loop.ts is None
             else {
                 "method": loop.hold,
                 "ts": float(loop.ts[0]),

@@ -12,17 +12,11 @@ from __future__ import annotations
 import argparse
 
 from ..errors import InputError
+from ..safety import CAUTION
 from .arguments import parse_number
 from .output import print_json
 
 HELP = "run the closed loop in time while the scheduling variables move (ramps, steps, load steps)"
-
-#: Printed after every run.
-SAFETY_CAUTION = (
-    "CAUTION: a simulation is evidence, not proof. Validate the table on the hardware with current and "
-    "speed limits and a safe test set-up before use. gainloom does not replace functional-safety "
-    "processes, local codes or licensed engineering judgement."
-)
 
 _EPILOG = """\
 paths of the scheduling variables (one option per variable; every variable
@@ -36,6 +30,14 @@ reference: --reference 1.0 is a step from 0 to 1.0 at --reference-at (default
 0 s); --reference-path TIME:VALUE,... gives a piecewise-linear reference
 (repeat a time for a jump).  Load steps at the plant input:
 --load-step TIME:AMPLITUDE, repeatable.
+
+inputs of the controller step besides the error (controller-output units;
+numbers or expressions of t, r, y, the scheduling variables and the
+schedule's parameters, e.g. "ke * speed" or "-vbus / sqrt(3)"):
+  --feedforward EXPR [--feedforward-at SECONDS]  added before saturation,
+                               from that time on (zero before; default 0 s)
+  --limit-step TIME:LOW:HIGH   run-time output limits from TIME on; repeatable
+  --limit-step TIME:table      the table's limits again from TIME on
 
 exit status: 0 stable and every --max-* limit holds, 1 otherwise, 2 bad input.
 """
@@ -64,6 +66,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--load-step", metavar="TIME:AMPLITUDE", action="append", default=[],
         help="input-disturbance step at the plant input, controller-output units; repeatable",
+    )
+    parser.add_argument(
+        "--feedforward", metavar="EXPR",
+        help="feedforward term added before saturation: a number or an expression (see below)",
+    )
+    parser.add_argument(
+        "--feedforward-at", metavar="SECONDS", type=float, default=0.0,
+        help="time the feedforward is switched on (zero before; default 0)",
+    )
+    parser.add_argument(
+        "--limit-step", metavar="TIME:LOW:HIGH", action="append", default=[],
+        help="run-time output limits of the step from TIME on (TIME:table: the table's again); repeatable",
     )
     parser.add_argument(
         "--format", dest="number_format", metavar="FORMAT", choices=SIMULATION_FORMATS,
@@ -105,16 +119,19 @@ def _pair(text: str, what: str) -> tuple[float, float]:
 
 
 def _breakpoints(text: str, what: str):
+    import numpy as np
+
     from ..simulation import PiecewiseLinear
 
     pairs = [_pair(item, what) for item in text.split(",") if item.strip()]
     if not pairs:
         raise InputError(f"{what}: expected TIME:VALUE,...; got {text!r}")
-    return PiecewiseLinear([p[0] for p in pairs], [p[1] for p in pairs])
+    return PiecewiseLinear(np.array([p[0] for p in pairs]), np.array([p[1] for p in pairs]))
 
 
 def parse_ramp(text: str, duration: float):
     """``AXIS=START[:END[@T0:T1]]`` to ``(axis, PiecewiseLinear)``."""
+
     from ..simulation import PiecewiseLinear
 
     name, sep, spec = text.partition("=")
@@ -132,9 +149,32 @@ def parse_ramp(text: str, duration: float):
     return name.strip(), PiecewiseLinear.ramp(start, end, t0, t1)
 
 
+def parse_limit_step(text: str):
+    """``TIME:LOW:HIGH`` or ``TIME:table`` to a :class:`~gainloom.simulation.LimitStep`."""
+    from ..simulation import LimitStep
+    from ..simulation.signals import SignalExpression
+
+    parts = text.split(":")
+    if len(parts) == 2 and parts[1].strip() == "table":
+        return LimitStep(parse_number(parts[0], "--limit-step"))
+    if len(parts) != 3 or not parts[1].strip() or not parts[2].strip():
+        raise InputError(f"--limit-step: expected TIME:LOW:HIGH or TIME:table; got {text!r}")
+    time = parse_number(parts[0], "--limit-step")
+    low, high = (SignalExpression.parse(part.strip(), f"--limit-step {text} {which}")
+                 for part, which in ((parts[1], "LOW"), (parts[2], "HIGH")))
+    return LimitStep(time, low, high)
+
+
 def build_scenario(args: argparse.Namespace):
     """The :class:`~gainloom.simulation.Scenario` the options describe."""
-    from ..simulation import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs
+    from ..simulation import (
+        Feedforward,
+        LoadStep,
+        PiecewiseLinear,
+        Scenario,
+        ScenarioSpecs,
+    )
+    from ..simulation.signals import SignalExpression
 
     trajectory = {}
     for text in args.ramp:
@@ -156,6 +196,11 @@ def build_scenario(args: argparse.Namespace):
     else:
         reference = PiecewiseLinear.step(args.reference, args.reference_at)
     loads = tuple(LoadStep(*_pair(text, "--load-step")) for text in args.load_step)
+    feedforward = None
+    if args.feedforward is not None:
+        feedforward = Feedforward(SignalExpression.parse(args.feedforward, "--feedforward"), args.feedforward_at)
+    elif args.feedforward_at:
+        raise InputError("--feedforward-at needs --feedforward")
     specs = ScenarioSpecs(
         max_overshoot=args.max_overshoot,
         max_settling_time=args.max_settling,
@@ -171,6 +216,8 @@ def build_scenario(args: argparse.Namespace):
         specs=specs,
         settle_band=args.settle_band / 100.0,
         error_from=args.error_from,
+        feedforward=feedforward,
+        limit_steps=tuple(parse_limit_step(text) for text in args.limit_step),
     )
 
 
@@ -211,7 +258,7 @@ def run(args: argparse.Namespace) -> int:
         data = result.to_dict(series=args.series)
         data["notes"] = notes
         data["plots"] = plots
-        data["caution"] = SAFETY_CAUTION
+        data["caution"] = CAUTION
         print_json(data)
     else:
         for line in result.summary():
@@ -220,5 +267,5 @@ def run(args: argparse.Namespace) -> int:
             print(f"note: {note}")
         for path in plots:
             print(f"plot: {path}")
-        print(SAFETY_CAUTION)
+        print(CAUTION)
     return 0 if result.passed else 1

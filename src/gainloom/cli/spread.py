@@ -12,7 +12,9 @@ import argparse
 
 import numpy as np
 
-from .design import SAFETY_CAUTION, Counter
+from ..safety import CAUTION
+from .arguments import add_engine_arguments, engine_options, print_notes
+from .design import Counter
 from .output import format_number, format_table, print_json
 
 HELP = "statistical tolerance study: fraction of random parameter draws that violate each spec, per point"
@@ -26,6 +28,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--plot", metavar="DIR", help="write spread.png (violation fraction over the grid) into DIR")
     parser.add_argument("--force", action="store_true",
                         help="with --plot: overwrite a spread.png that gainloom did not write")
+    add_engine_arguments(parser, "chunks of points x draws")
     parser.add_argument("--quiet", action="store_true", help="no progress display on stderr")
 
 
@@ -65,9 +68,12 @@ def run(args: argparse.Namespace) -> int:
     from ..design.spread import run_study
     from ..outputs import check_output_folder
 
+    engine = engine_options(args)
     if args.plot is not None:
         check_output_folder(args.plot)
-    result = run_study(args.schedule, args.gains, progress=Counter(enabled=not args.quiet))
+    notes: list[str] = []
+    result = run_study(args.schedule, args.gains, progress=Counter(enabled=not args.quiet), notes=notes, **engine)
+    print_notes(notes)
     plots = []
     if args.plot is not None:
         from ..report.spread_plot import write_spread_plot
@@ -76,11 +82,12 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         data = result.to_dict()
         data["plots"] = plots
-        data["caution"] = SAFETY_CAUTION
+        data["notes"] = notes
+        data["caution"] = CAUTION
         print_json(data)
     else:
         print_result(result)
         for path in plots:
             print(f"plot: {path}")
-        print(SAFETY_CAUTION)
+        print(CAUTION)
     return 0 if result.passed else 1

@@ -5,7 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from .design import SAFETY_CAUTION, Counter, point_summaries, print_table_report, summary_rows
+from ..safety import CAUTION
+from .design import Counter, point_summaries, print_table_report, summary_rows
 from .output import format_table, print_json
 
 HELP = "re-check a gains file (designed or tuned by hand) against a schedule"
@@ -43,5 +44,5 @@ def run(args: argparse.Namespace) -> int:
     failed = sum(s == "fail" for s in result.status)
     print(f"{'PASS' if result.passed else 'FAIL'}: {len(result.status) - failed}/{len(result.status)} points meet "
           f"every spec; whole-table checks {'pass' if result.table_report.passed else 'fail'}")
-    print(SAFETY_CAUTION)
+    print(CAUTION)
     return result.exit_code

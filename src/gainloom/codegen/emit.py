@@ -11,9 +11,9 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
+from ..c_names import validate_prefix
 from ..design.table import GainTable
 from ..outputs import write_outputs
-from ..c_names import validate_prefix
 from .layout import layout_table
 from .render import render_c
 from .verdict import TableVerdict

@@ -40,9 +40,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..c_names import validate_fragment
 from ..design.table import GainTable, TableAxis
 from ..errors import CodegenError
-from ..c_names import validate_fragment
 from .qformat import (
     STATE_FRAC,
     NumberFormat,

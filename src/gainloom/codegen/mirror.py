@@ -37,17 +37,24 @@ import numpy as np
 
 from ..errors import CodegenError
 from .layout import AxisLayout, TableLayout
-from .qformat import STATE_FRAC, lerp_fixed, mul_frac, rshift_round, saturate, weight_fixed
+from .qformat import (
+    STATE_FRAC,
+    lerp_fixed,
+    mul_frac,
+    rshift_round,
+    saturate,
+    weight_fixed,
+)
 
 __all__ = [
-    "state_fields",
+    "FixedStepper",
+    "FloatStepper",
+    "StepTrace",
     "locate",
     "lookup_gains",
-    "StepTrace",
-    "run_steps",
     "output_code",
-    "FloatStepper",
-    "FixedStepper",
+    "run_steps",
+    "state_fields",
 ]
 
 _STATE_FIELDS = {
@@ -104,6 +111,8 @@ def locate(axis: AxisLayout, fmt_is_fixed: bool, interp_frac: int, x) -> tuple[n
         one = np.int64(1) << interp_frac
         inside = ~(low | high)
         offset = np.where(inside, x - a[index], 0)
+        if axis.weight_shift is None or axis.weight_scale is None:
+            raise CodegenError("a fixed-point axis needs its per-segment reciprocals (layout_table sets them)")
         weight = weight_fixed(offset, axis.weight_shift[index], axis.weight_scale[index])
         index = np.where(low, 0, np.where(high, n - 2, index))
         weight = np.where(low, 0, np.where(high, one, weight)).astype(np.int64)
@@ -247,6 +256,7 @@ class FloatStepper:
         self.fields = state_fields(structure)
         self.g = {name: np.asarray(values).astype(dtype) for name, values in gains.items()}
         self.u_min, self.u_max = dtype(limits[0]), dtype(limits[1])
+        self.in_force = (self.u_min, self.u_max)
         self.tabulated = "u_min" in self.g  # limits looked up per sample with the coefficients
         self.zero = dtype(0)
         self.state = dict.fromkeys(self.fields, self.zero)
@@ -256,7 +266,8 @@ class FloatStepper:
 
         ``feedforward`` (default 0) is added before saturation; ``limits``
         ``(low, high)`` replace the table's for this step when ``low <= high``
-        (as the C's optional run-time limits; ``None``: the table's).
+        (as the C's optional run-time limits; ``None``: the table's).  The
+        limits the step used are left in ``in_force``.
         """
         g, state, structure, zero = self.g, self.state, self.structure, self.zero
         e = error if np.isfinite(error) else zero
@@ -264,6 +275,7 @@ class FloatStepper:
         u_min, u_max = (g["u_min"][k], g["u_max"][k]) if self.tabulated else (self.u_min, self.u_max)
         if limits is not None and limits[0] <= limits[1]:
             u_min, u_max = self.dtype(limits[0]), self.dtype(limits[1])
+        self.in_force = (u_min, u_max)  # read by the simulator (time in saturation)
         if structure in ("lead", "lag"):
             state["v"] = g["pc"][k] * state["v"] + g["kc"][k] * (e - g["zc"][k] * state["e1"])
             u = state["v"] + f
@@ -318,6 +330,7 @@ class FixedStepper:
         self.frac = {c.name: c.frac for c in layout.coefficients}
         self.g = {name: [int(v) for v in values] for name, values in gains.items()}
         self.u_min, self.u_max = layout.limits
+        self.in_force = (self.u_min, self.u_max)
         self.to_state_shift = layout.fmt.signal_frac - STATE_FRAC
         self.state = dict.fromkeys(self.fields, 0)
 
@@ -333,7 +346,8 @@ class FixedStepper:
 
         ``feedforward`` and ``limits`` ``(low, high)`` are output codes (Q15/Q31
         of output full scale), as the C's feedforward and run-time limits;
-        the limits apply when ``low <= high``.
+        the limits apply when ``low <= high``.  The limits the step used
+        (Q3.28) are left in ``in_force``.
         """
         state, structure, mul = self.state, self.structure, self._mul
         es = self._to_state(error)
@@ -343,6 +357,7 @@ class FixedStepper:
             u_min, u_max = self._to_state(self.g["u_min"][k]), self._to_state(self.g["u_max"][k])
         if limits is not None and int(limits[0]) <= int(limits[1]):
             u_min, u_max = self._to_state(limits[0]), self._to_state(limits[1])
+        self.in_force = (u_min, u_max)  # Q3.28; read by the simulator (time in saturation)
         if structure in ("lead", "lag"):
             w = saturate(es - mul("zc", k, state["e1"]), 32)
             state["v"] = saturate(mul("pc", k, state["v"]) + mul("kc", k, w), 32)
@@ -375,7 +390,7 @@ class FixedStepper:
 
 def _run(stepper, errors, feed, use, low, high, dtype) -> StepTrace:
     outputs = []
-    history = {name: [] for name in stepper.fields}
+    history: dict[str, list] = {name: [] for name in stepper.fields}
     for k, error in enumerate(errors):
         outputs.append(stepper.step(k, error, feed[k], (low[k], high[k]) if use[k] else None)[0])
         for name in stepper.fields:

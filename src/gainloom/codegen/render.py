@@ -20,9 +20,10 @@ from pathlib import Path
 import jinja2
 import numpy as np
 
-from .. import __version__
-from ..errors import CodegenError
 from ..c_names import FORMAT_CODES, c_names, comment_text
+from ..errors import CodegenError
+from ..safety import CAUTION
+from ..version import __version__
 from .layout import GAIN_COEFFICIENTS, TableLayout
 from .mirror import state_fields
 from .qformat import STATE_FRAC
@@ -31,14 +32,6 @@ from .verdict import TableVerdict
 __all__ = ["templates_dir", "c_float", "c_float_exact", "render_c", "render_template", "banner_lines"]
 
 _SHA256 = re.compile(r"[0-9a-f]{64}\Z")
-
-#: Caution carried in every generated file.
-CAUTION = (
-    "Validate on hardware with current and speed limits and a safe test set-up "
-    "before use; this code does not replace functional-safety processes, local "
-    "codes or licensed engineering judgement."
-)
-
 
 def templates_dir() -> Path:
     """Directory of the C templates.
@@ -94,7 +87,7 @@ def render_template(name: str, context: dict) -> str:
         text = _environment().get_template(name).render(**context)
     except jinja2.TemplateError as error:
         raise CodegenError(f"template {name}: {error}") from None
-    lines = []
+    lines: list[str] = []
     for line in text.splitlines():
         line = line.rstrip()
         if line or (lines and lines[-1]):  # no leading or repeated blank lines
@@ -146,7 +139,7 @@ def verdict_lines(verdict: TableVerdict, macro: str) -> list[str]:
     return textwrap.wrap(f"verification: {state}: {verdict.basis}.", 74, subsequent_indent="  ")
 
 
-def banner_lines(number_format: str, prefix: str, source_sha256: str, options: dict) -> list[str]:
+def banner_lines(number_format: str, prefix: str, source_sha256: str | None, options: dict) -> list[str]:
     """Lines of the banner comment: generator, source hash, options, caution.
 
     Parameters
@@ -179,7 +172,7 @@ def _literal(layout: TableLayout, value) -> str:
 
 
 def _context(
-    layout: TableLayout, prefix: str, source_sha256: str, options: dict, verdict: TableVerdict | None
+    layout: TableLayout, prefix: str, source_sha256: str | None, options: dict, verdict: TableVerdict | None
 ) -> dict:
     names = c_names(prefix)
     if verdict is None:

@@ -18,14 +18,13 @@ from typing import Any
 
 import numpy as np
 
-from ..lti.polynomials import batched_roots
+from ..lti.polynomials import batched_roots, polymul
 from .analysis import analyse
 from .structures import (
     _roots_poly,
     continuous_fixed_poles,
     continuous_physical_from_locus,
     discretize_continuous,
-    polymul,
     zero_count,
 )
 

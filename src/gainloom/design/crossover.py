@@ -67,9 +67,9 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..lti import gain_sets as gs
+from ..lti.closed_loop import closed_loop_poles
 from ..lti.loop import Loop
 from ..lti.polynomials import batched_roots
-from ..lti.closed_loop import closed_loop_poles
 from .search import Shapes, exact_feasible, region_ok, shape_loops
 from .specs import SpecLimits
 from .strategies import LEAD_RATIO, _pack

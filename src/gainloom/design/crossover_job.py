@@ -21,7 +21,8 @@ from .diagnose import SPEC_WORDS
 from .search import Shapes
 from .specs import SpecLimits
 
-__all__ = ["CrossoverRun", "choose_by_crossover", "uses_crossover", "crossover_target", "step_fallback"]
+__all__ = ["CrossoverRun", "choose_by_crossover", "uses_crossover", "crossover_target", "step_fallback", "tightened_limits",
+           "tolerance_plants", "step_verdicts"]
 
 #: Margin back-off of the crossover objectives (dB, deg), smaller than the
 #: general one (design/specs.py BACKOFF: 0.5 dB, 0.5 deg).  These objectives
@@ -108,7 +109,8 @@ def _merge(first: CrossoverChoice, second: CrossoverChoice, rows: np.ndarray) ->
     )
 
 
-def _corners(sched, points: np.ndarray) -> tuple[Loop, ...]:
+def tolerance_plants(sched, points: np.ndarray) -> tuple[Loop, ...]:
+    """The sampled plant at every tolerance sample under ``design: worst-case``, else none."""
     if sched.tolerances.design != "worst-case" or not sched.tolerances.parameters:
         return ()
     from .engine import sampled_plant
@@ -124,7 +126,7 @@ def _select(loop: Loop, rows: np.ndarray) -> Loop:
 def choose_by_crossover(sched, points: np.ndarray, plant: Loop, limits: SpecLimits, objective: str) -> CrossoverRun:
     """Design every point with a crossover objective (see the module docstring)."""
     controller = sched.controller
-    corners = _corners(sched, points)
+    corners = tolerance_plants(sched, points)
     kwargs = dict(target_crossover=crossover_target(controller), derivative_filter=controller.derivative_filter)
 
     P = plant.points
@@ -147,7 +149,7 @@ def choose_by_crossover(sched, points: np.ndarray, plant: Loop, limits: SpecLimi
         return choice
 
     everything = np.arange(P)
-    choice = run(everything, _tightened(limits))
+    choice = run(everything, tightened_limits(limits))
     notes: list[list[str]] = [[] for _ in range(P)]
     retry = np.flatnonzero(~choice.feasible)
     if retry.size:
@@ -179,8 +181,8 @@ def choose_by_crossover(sched, points: np.ndarray, plant: Loop, limits: SpecLimi
     )
 
 
-def _tightened(limits: SpecLimits) -> SpecLimits:
-    """The design back-off, with the margin part of ``MARGIN_BACKOFF``."""
+def tightened_limits(limits: SpecLimits) -> SpecLimits:
+    """The specs the crossover objectives aim at: the design back-off with ``MARGIN_BACKOFF`` margins."""
     gm, pm = MARGIN_BACKOFF
     return replace(limits.tightened(), min_gain_margin=limits.min_gain_margin + gm,
                    min_phase_margin=limits.min_phase_margin + pm)
@@ -303,6 +305,8 @@ def step_fallback(sched, points: np.ndarray, plant: Loop, limits: SpecLimits, ob
     (step-response specs are not gain sets): the coarse shapes' best gains and
     fractions of them (:func:`gainloom.design.crossover.ranked_alternatives`)
     are simulated in rank order, all points and candidates in one batch.
+    Under ``design: worst-case`` a candidate must pass every spec at every
+    tolerance sample too.
 
     Returns
     -------
@@ -315,10 +319,11 @@ def step_fallback(sched, points: np.ndarray, plant: Loop, limits: SpecLimits, ob
 
     controller = sched.controller
     rows = np.asarray(failing)
+    corners = tolerance_plants(sched, points[rows])
     shapes, gains = ranked_alternatives(
-        plant.select(rows), controller.structure, _tightened(limits).select(rows), objective,
+        plant.select(rows), controller.structure, tightened_limits(limits).select(rows), objective,
         target_crossover=crossover_target(controller), derivative_filter=controller.derivative_filter,
-        corners=_corners(sched, points[rows]),
+        corners=corners,
     )
     count = min(STEP_CANDIDATES, gains.shape[1])
     gains = gains[:, :count]
@@ -328,10 +333,33 @@ def step_fallback(sched, points: np.ndarray, plant: Loop, limits: SpecLimits, ob
     form = LocusForm(gain=gains[j, k], zeros=shapes.zeros[j, k], poles=shapes.poles[j, k])
     coefficients = coefficients_from_locus(controller.structure, form)
     trial = analyse(plant.select(rows[j]), controller.structure, coefficients, limits.select(rows[j]))
+    passed = trial.passed.copy()
+    for corner in corners:  # worst case: every spec at every tolerance sample
+        passed &= analyse(corner.select(j), controller.structure, coefficients, limits.select(rows[j])).passed
     out = {}
-    for n in np.flatnonzero(trial.passed):  # j, k ascend: the first passing one per point is the best ranked
+    for n in np.flatnonzero(passed):  # j, k ascend: the first passing one per point is the best ranked
         p = int(rows[j[n]])
         if p not in out:
             out[p] = (shapes.zeros[j[n], k[n]], shapes.poles[j[n], k[n]], shapes.params[j[n], k[n]],
                       float(gains[j[n], k[n]]), int(k[n]) + 1, int(np.count_nonzero(j == j[n])))
     return out
+
+
+def step_verdicts(sched, points: np.ndarray, plant: Loop, structure: str, coefficients: dict, limits: SpecLimits,
+                  nominal) -> tuple[np.ndarray, np.ndarray]:
+    """Where overshoot and settling hold: on the nominal plant, and at every tolerance sample of a worst-case design.
+
+    ``nominal`` is the analysis of ``coefficients`` on ``plant``.  Returns
+    ``(nominal_ok, corners_ok)``, boolean per point (``corners_ok`` all true
+    without worst-case corners or step-response specs).
+    """
+    from .analysis import analyse
+
+    def ok(analysis) -> np.ndarray:
+        return analysis.verdicts["max_overshoot"] & analysis.verdicts["max_settling_time"]
+
+    corners_ok = np.ones(plant.points, dtype=bool)
+    asked = np.any(np.isfinite(limits.max_overshoot)) or np.any(np.isfinite(limits.max_settling_time))
+    for corner in tolerance_plants(sched, points) if asked else ():
+        corners_ok &= ok(analyse(corner, structure, coefficients, limits, frequency=False))
+    return ok(nominal), corners_ok

@@ -17,9 +17,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..lti.closed_loop import closed_loop_poles
 from ..lti.intervals import spec_gain_intervals, stable_gain_intervals
 from ..lti.regions import SpecRegion
-from ..lti.closed_loop import closed_loop_poles
 from .analysis import PointAnalysis, pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .search import Choice, Shapes, shape_loops

@@ -27,7 +27,7 @@ from ..names import (
     unknown_name_message,
 )
 from .analysis import PointAnalysis, analyse
-from .crossover_job import choose_by_crossover, step_fallback, uses_crossover
+from .crossover_job import choose_by_crossover, step_fallback, step_verdicts, tightened_limits, uses_crossover
 from .diagnose import compromise, diagnose
 from .fallbacks import (
     boundary_warnings,
@@ -36,6 +36,7 @@ from .fallbacks import (
     strategy_gain_warning,
     target_warnings,
 )
+from .measured_check import check_on_data, merge_data_verdict
 from .results import DesignResult, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, _samples_in, choose_gains, objective_values
 from .specs import SAMPLING_FRACTION, SpecLimits
@@ -71,13 +72,20 @@ def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = No
     are in the locus, margins, intervals, specs, between-point and tolerance
     checks through this one function.  The filters are evaluated at the
     nominal parameters whatever ``scale`` says (the firmware's filter does
-    not follow a tolerance); the plant is scaled.
+    not follow a tolerance); the plant is scaled.  A schedule with a
+    ``plant_sampler`` (the outer loop of a cascade) gets its plant from it:
+    the inner closed loop as the outer loop samples it.
     """
     points = np.asarray(points, dtype=float)
-    models = sched.evaluate(points, scale=scale)
-    plant = discretize_loop(
-        models.plant, models.sample_period, sched.sampling.method, delay=models.delay, prewarp=sched.sampling.prewarp
-    )
+    models = None
+    if sched.plant_sampler is not None:
+        plant = sched.plant_sampler(points, scale)
+    else:
+        models = sched.evaluate(points, scale=scale)
+        plant = discretize_loop(
+            models.plant, models.sample_period, sched.sampling.method, delay=models.delay,
+            prewarp=sched.sampling.prewarp,
+        )
     filters = sched.filters_at(points, None if scale else models)
     if filters is None:
         return plant
@@ -282,8 +290,8 @@ def _sweep_choice(plant, shapes, limits, objective, target, controller, notes, p
         shape=np.concatenate([c.shape for c in choices]),
         gain=np.concatenate([c.gain for c in choices]),
         feasible=np.concatenate([c.feasible for c in choices]),
-        intervals=[i for c in choices for i in c.intervals],
-        notes=[n for c in choices for n in c.notes],
+        intervals=[item for c in choices for item in c.intervals],
+        notes=[item for c in choices for item in c.notes],
         samples={
             "grid": np.concatenate([c.samples["grid"] for c in choices]),
             "metrics": {k: np.concatenate([c.samples["metrics"][k] for c in choices]) for k in choices[0].samples["metrics"]},
@@ -407,15 +415,19 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
                 warnings[p].append(text)
     coefficients = _coefficients(structure, shapes, shape_index, gain)
     analysis = analyse(plant, structure, coefficients, limits)
-    step_fail = np.flatnonzero(
-        choice.feasible & ~(analysis.verdicts["max_overshoot"] & analysis.verdicts["max_settling_time"])
-    )
+    if certified is not None:
+        nominal_ok, corners_ok = step_verdicts(sched, points, plant, structure, coefficients, limits, analysis)
+    else:
+        nominal_ok = analysis.verdicts["max_overshoot"] & analysis.verdicts["max_settling_time"]
+        corners_ok = np.ones(P, dtype=bool)
+    step_fail = np.flatnonzero(choice.feasible & ~(nominal_ok & corners_ok))
     if step_fail.size and certified is not None:
         retry_notes = _step_whole_space(sched, points, plant, structure, shapes, coefficients, limits, objective, step_fail)
         for p, text in retry_notes.items():
             notes[p].append(text)
             missed = [n for n in ("max_overshoot", "max_settling_time") if not analysis.verdicts[n][p]]
-            warnings[p].append(f"the {objective} design fails {shortfall(analysis, p, missed)}; {text}")
+            where = shortfall(analysis, p, missed) if missed else "overshoot/settling at a tolerance sample (worst case)"
+            warnings[p].append(f"the {objective} design fails {where}; {text}")
         if retry_notes:
             analysis = analyse(plant, structure, coefficients, limits)
     elif step_fail.size:
@@ -491,9 +503,10 @@ def point_warnings(sched, point_design: PointDesign) -> tuple[tuple[str, ...], .
     out = [list(point_design.warnings[p]) if point_design.warnings else [] for p in range(P)]
     controller = sched.controller
     asks_target = controller.strategy == "dominant-pair" or _objective(controller) == "nearest-target"
+    aimed = tightened_limits(analysis.limits) if uses_crossover(controller, _objective(controller)) else None
     extra = [
         target_warnings(analysis, controller.target if asks_target else None),
-        boundary_warnings(analysis),
+        boundary_warnings(analysis, aimed),
         compromise_warnings(analysis, point_design.status, point_design.binding),
     ]
     for found in extra:
@@ -585,6 +598,10 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     point_design = design_points(sched, points, progress)
     report, point_design, axes_values = run_table_checks(sched, point_design, axes_values, progress=progress)
     table = _table(sched, None, axes_values, point_design.coefficients, point_design.plant)
+    data_check = check_on_data(sched, point_design.points, sched.controller.structure, point_design.coefficients,
+                               point_design.limits)
+    status, notes, binding = merge_data_verdict(point_design.status, point_design.notes, point_design.binding,
+                                                data_check)
     warnings = list(sched.warnings)
     warnings += sampling_warnings(sched, point_design.points, point_design.plant, point_design.analysis)
     warnings += list(point_design.analysis.warnings)
@@ -612,9 +629,9 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     return DesignResult(
         table=table,
         analysis=point_design.analysis,
-        status=point_design.status,
-        notes=point_design.notes,
-        binding=point_design.binding,
+        status=status,
+        notes=notes,
+        binding=binding,
         table_report=report,
         warnings=tuple(warnings),
         schedule_path=str(sched.path),
@@ -624,6 +641,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
         point_labels=tuple(sched.describe_point(p) for p in point_design.points),
         continuous=continuous,
         point_warnings=point_warnings(sched, point_design),
+        data_check=data_check,
     )
 
 
@@ -682,7 +700,9 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
             f"{sched.describe_point(points[p])}: file {stored_ts[p]:.6g} s, schedule {plant.ts[p]:.6g} s; "
             "checked with the schedule's period (the coefficients are per-sample quantities)"
         )
-    status = tuple("pass" if ok else "fail" for ok in analysis.passed)
+    data_check = check_on_data(sched, points, table.structure, coefficients, limits)
+    status, _, _ = merge_data_verdict(tuple("pass" if ok else "fail" for ok in analysis.passed),
+                                      ((),) * points.shape[0], (None,) * points.shape[0], data_check)
     point_design = PointDesign(
         points=points, plant=plant, limits=limits, coefficients=coefficients, analysis=analysis,
         feasible=analysis.passed, status=status, binding=tuple([None] * points.shape[0]),
@@ -704,4 +724,5 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
         gains_path=gains_path,
         points=points,
         point_labels=tuple(sched.describe_point(p) for p in points),
+        data_check=data_check,
     )

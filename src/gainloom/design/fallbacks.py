@@ -27,7 +27,7 @@ import numpy as np
 
 from .analysis import PointAnalysis, judge
 from .diagnose import SPEC_WORDS, limit_text
-from .specs import SPEC_ORDER
+from .specs import SPEC_ORDER, SpecLimits
 
 __all__ = ["TARGET_TOLERANCE", "shortfall", "compromise_warnings", "boundary_warnings", "target_warnings",
            "strategy_gain_warning"]
@@ -58,9 +58,15 @@ def compromise_warnings(analysis: PointAnalysis, status: tuple[str, ...], bindin
     return out
 
 
-def boundary_warnings(analysis: PointAnalysis) -> dict[int, str]:
-    """Passing points that meet a spec only inside the design back-off (``SpecLimits.tightened``)."""
-    tight = judge(analysis.values, analysis.limits.tightened(), step=True)
+def boundary_warnings(analysis: PointAnalysis, aimed: SpecLimits | None = None) -> dict[int, str]:
+    """Passing points that meet a spec only inside the design back-off.
+
+    ``aimed`` are the specs the design aimed at (default
+    ``SpecLimits.tightened``; the crossover objectives aim at a smaller
+    margin back-off, :func:`gainloom.design.crossover_job.tightened_limits`).
+    """
+    aimed = analysis.limits.tightened() if aimed is None else aimed
+    tight = judge(analysis.values, aimed, step=True)
     out = {}
     for p in np.flatnonzero(analysis.passed):
         names = [n for n in SPEC_ORDER if not tight[n][p]]

@@ -364,7 +364,10 @@ def choose_gains(
     """
     P, S = shapes.valid.shape
     rows_p = np.repeat(np.arange(P), S)
-    flat = lambda a: a.reshape((P * S,) + a.shape[2:])
+
+    def flat(a: np.ndarray) -> np.ndarray:
+        return a.reshape((P * S,) + a.shape[2:])
+
     loops = shape_loops(plant, flat(shapes.zeros), flat(shapes.poles), rows_p)
     ts_rows = plant.ts[rows_p]
 

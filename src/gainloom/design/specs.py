@@ -164,7 +164,7 @@ class SpecLimits:
     poles: str = "dominant"
 
     @classmethod
-    def from_values(cls, values: dict[str, np.ndarray], count: int, poles: str = "dominant") -> "SpecLimits":
+    def from_values(cls, values: dict[str, np.ndarray], count: int, poles: str = "dominant") -> SpecLimits:
         """Build from ``Schedule.spec_values(points)`` (keys as documented there).
 
         ``poles`` is the schedule's ``specs.poles`` (one choice for every point).
@@ -201,15 +201,15 @@ class SpecLimits:
         """Number of points."""
         return self.min_damping.shape[0]
 
-    def select(self, index: np.ndarray) -> "SpecLimits":
+    def select(self, index: np.ndarray) -> SpecLimits:
         """Limits at a subset (or repetition) of the points."""
         return self.replaced({name: value[index] for name, value in self.as_dict().items()})
 
-    def replaced(self, arrays: dict[str, np.ndarray]) -> "SpecLimits":
+    def replaced(self, arrays: dict[str, np.ndarray]) -> SpecLimits:
         """The same pole selection with these per-point arrays (every array field)."""
         return SpecLimits(**arrays, poles=self.poles)
 
-    def tightened(self) -> "SpecLimits":
+    def tightened(self) -> SpecLimits:
         """The limits moved inside by the design back-off (see ``BACKOFF``).
 
         The scheduler picks gains against these so that a design is not left

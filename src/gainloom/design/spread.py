@@ -31,8 +31,9 @@ Work units
 A :class:`StudyUnit` is plain arrays: grid indices, operating points and
 coefficients of some points, and a range of draw blocks.  The batched core
 (:func:`gainloom.design.analysis.analyse`) sees points x draws flattened into
-one batch.  Units run in forked local processes; the schedule reaches them
-once per process, not per unit.
+one batch.  Units run in forked local processes, the schedule reaching them
+once per process, not per unit; or on a Dask cluster, the schedule sent
+once per worker (:mod:`gainloom.design.cluster`).
 """
 
 from __future__ import annotations
@@ -45,10 +46,19 @@ import numpy as np
 from ..errors import InputError
 from .analysis import analyse
 from .confidence import CONFIDENCE, clopper_pearson
+from .slack import spec_badness, spec_limit
 from .specs import SPEC_ORDER
 
-__all__ = ["DRAW_BLOCK", "StudyUnit", "UnitResult", "SpreadResult", "draw_factors", "study_units",
-           "run_unit", "run_study"]
+__all__ = [
+    "DRAW_BLOCK",
+    "SpreadResult",
+    "StudyUnit",
+    "UnitResult",
+    "draw_factors",
+    "run_study",
+    "run_unit",
+    "study_units",
+]
 
 #: Draws per seeded stream block: the grain of chunking along draws.
 DRAW_BLOCK = 256
@@ -170,21 +180,6 @@ def study_units(points: np.ndarray, coefficients: dict[str, np.ndarray], draws: 
     return units
 
 
-def _badness(name: str, value: np.ndarray, limit: np.ndarray) -> np.ndarray:
-    """Distance on the wrong side of the bound (negative inside it); NaN values are worst."""
-    lower_bound = name.startswith("min_") or name == "system_type"
-    with np.errstate(invalid="ignore"):
-        out = (limit - value) if lower_bound else (value - limit)
-    return np.where(np.isnan(value), np.inf, out)
-
-
-def _limit_of(limits, name: str) -> np.ndarray:
-    """The bound judged for ``name`` (``stable``: pole radius 1)."""
-    if name == "stable":
-        return np.ones(limits.min_damping.shape)
-    return getattr(limits, name)
-
-
 def run_unit(sched, structure: str, specs: tuple[str, ...], draws: int, unit: StudyUnit) -> UnitResult:
     """Analyse one unit: its points x its draws flattened into one batch.
 
@@ -218,10 +213,10 @@ def run_unit(sched, structure: str, specs: tuple[str, ...], draws: int, unit: St
     step = "max_overshoot" in specs or "max_settling_time" in specs
     frequency = any(s in specs for s in FREQUENCY_SPECS)
     analysis = analyse(plant, structure, {k: v[owner] for k, v in unit.coefficients.items()}, limits,
-                       step=step, frequency=frequency)
+                       step=step, frequency=frequency, origins=False)
     shape = (unit.point_index.size, count)
     failed = np.stack([~analysis.verdicts[s] for s in specs], axis=-1).reshape(shape + (len(specs),))
-    badness = np.stack([_badness(s, analysis.values[s], _limit_of(limits, s)) for s in specs], axis=-1)
+    badness = np.stack([spec_badness(s, analysis.values[s], spec_limit(limits, s)) for s in specs], axis=-1)
     badness = badness.reshape(shape + (len(specs),))
     worst = np.argmax(badness, axis=1)  # first (lowest draw) among equals
     take = worst[:, None, :]
@@ -377,7 +372,8 @@ def reported_specs(limits) -> tuple[str, ...]:
 
 
 def run_study(schedule, gains, *, progress=None, workers: int | None = None,
-              chunk_points: int | None = None, chunk_blocks: int | None = None) -> SpreadResult:
+              chunk_points: int | None = None, chunk_blocks: int | None = None, cluster: str | None = None,
+              notes: list[str] | None = None) -> SpreadResult:
     """Run the statistical tolerance study of a gains table on a schedule.
 
     Parameters
@@ -393,6 +389,11 @@ def run_study(schedule, gains, *, progress=None, workers: int | None = None,
     chunk_points, chunk_blocks : int, optional
         Unit size (points x blocks of :data:`DRAW_BLOCK` draws); the result
         does not depend on it.
+    cluster : str, optional
+        Address of a Dask scheduler: the units run there, with the same
+        result bit for bit (``workers`` is then ignored).
+    notes : list of str, optional
+        Receives what the engine reports (e.g. a lost worker's units rerun).
 
     Returns
     -------
@@ -422,13 +423,13 @@ def run_study(schedule, gains, *, progress=None, workers: int | None = None,
     units = study_units(points, coefficients, tolerances.draws, chunk_points, chunk_blocks)
     count = _workers(len(units)) if workers is None else max(1, workers)
     parts = map_units(run_unit, (sched, table.structure, specs, tolerances.draws), units, count,
-                      progress, tolerances.draws * points.shape[0])
+                      progress, tolerances.draws * points.shape[0], cluster=cluster, notes=notes)
     nominal = sched.evaluate(points).parameters
     return SpreadResult(
         axis_names=sched.axis_names, points=points,
         point_labels=tuple(sched.describe_point(q) for q in points), specs=specs, parameters=parameters,
         nominal=np.stack([nominal[n] for n in parameters], axis=-1),
-        limits=np.stack([_limit_of(limits, s) for s in specs], axis=-1),
+        limits=np.stack([spec_limit(limits, s) for s in specs], axis=-1),
         draws=tolerances.draws, distribution=tolerances.distribution, seed=tolerances.seed,
         confidence=CONFIDENCE, totals=merge_results(points.shape[0], parts, len(specs), len(parameters)),
         table=table,

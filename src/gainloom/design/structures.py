@@ -46,7 +46,12 @@ __all__ = [
     "physical_from_coefficients",
     "polymul",
     "zero_count",
+    "SHAPE_COEFFICIENTS",
 ]
+
+#: Table coefficients that place a controller pole or zero (the shape), as
+#: opposed to those proportional to the loop gain ``K`` for a fixed shape.
+SHAPE_COEFFICIENTS: frozenset[str] = frozenset({"kd_a", "zc", "pc", "zc1", "pc1", "zc2", "pc2"})
 
 #: Names of the physical gains reported per structure (units in the docs:
 #: kp [-], ki [1/s], kd [s], tf [s]; lead/lag: kc [-], zc/pc [-] in z and the

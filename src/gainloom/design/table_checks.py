@@ -16,7 +16,9 @@ refinement and parameter tolerances.
   specs there.  With ``refine.max_inserted > 0`` a breakpoint is inserted in
   the middle of every failing interval (most failures first, within the
   budget), the new points are designed, and the check repeated until it
-  passes or the budget is spent.
+  passes or the budget is spent.  What still fails then is given the
+  between-point back-off (:mod:`gainloom.design.between_backoff`): the loop
+  gain of the failing cell's breakpoints lowered by at most 10 %.
 * Tolerances: every corner of the declared parameter tolerances (or the
   seeded space-filling sample) at every grid point, with the table's
   coefficients; the worst corner per point is reported.
@@ -31,8 +33,10 @@ from typing import Any
 import numpy as np
 
 from .analysis import analyse
+from .lookup import interpolate_grids
+from .structures import SHAPE_COEFFICIENTS
 
-__all__ = ["run_table_checks", "relative_steps", "interpolate", "between_points", "tolerance_scales"]
+__all__ = ["run_table_checks", "relative_steps", "between_points", "tolerance_scales"]
 
 #: Most tolerance samples checked per point before switching to a seeded
 #: space-filling sample of this size.
@@ -46,37 +50,6 @@ def relative_steps(grid: np.ndarray, axis: int) -> np.ndarray:
     scale = np.maximum(np.abs(a), np.abs(b))
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(scale > 0, np.abs(a - b) / np.where(scale > 0, scale, 1.0), 0.0)
-
-
-def interpolate(axes_values: list[np.ndarray], grids: dict[str, np.ndarray], points: np.ndarray) -> dict[str, np.ndarray]:
-    """Coefficients at ``points`` interpolated as the firmware does.
-
-    1-D: linear between breakpoints; 2-D: bilinear in the cell.  Points
-    outside the table are clamped to its edge (as the emitted lookup does).
-    """
-    points = np.asarray(points, float)
-    index = []
-    frac = []
-    for k, values in enumerate(axes_values):
-        x = np.clip(points[:, k], values[0], values[-1])
-        i = np.clip(np.searchsorted(values, x, side="right") - 1, 0, values.size - 2)
-        t = (x - values[i]) / (values[i + 1] - values[i])
-        index.append(i)
-        frac.append(t)
-    out = {}
-    for name, grid in grids.items():
-        if len(axes_values) == 1:
-            i, t = index[0], frac[0]
-            out[name] = grid[i] + t * (grid[i + 1] - grid[i])
-        else:
-            (i, j), (t, u) = index, frac
-            out[name] = (
-                (1 - t) * (1 - u) * grid[i, j]
-                + t * (1 - u) * grid[i + 1, j]
-                + (1 - t) * u * grid[i, j + 1]
-                + t * u * grid[i + 1, j + 1]
-            )
-    return out
 
 
 def between_points(axes_values: list[np.ndarray], count: int) -> tuple[np.ndarray, list[tuple[int, ...]]]:
@@ -204,7 +177,7 @@ def _smooth_gains(sched, point_design, shape, structure) -> tuple[dict[str, np.n
             if not np.isfinite(gain) or gain == 0:
                 continue
             # coefficients scale with K for a fixed shape, except the filter/lead poles
-            scalable = np.array([k not in ("kd_a", "zc", "pc", "zc1", "pc1", "zc2", "pc2") for k in grids])
+            scalable = np.array([k not in SHAPE_COEFFICIENTS for k in grids])
             trial = b[None, :] * np.where(scalable, ratios[:, None], 1.0)
             fits = acceptable(a[None, :], trial)
             inside = np.array([any(lo < gain * r < hi for lo, hi in point_design.intervals[p]) for r in ratios])
@@ -242,7 +215,7 @@ def _between(sched, axes_values, grids, structure, count):
     if count <= 0:
         return [], 0, None
     points, owner = between_points(axes_values, count)
-    coefficients = interpolate(axes_values, grids, points)
+    coefficients = interpolate_grids(tuple(axes_values), grids, points)
     plant = sampled_plant(sched, points)
     limits = limits_at(sched, points)
     analysis = analyse(plant, structure, coefficients, limits)
@@ -360,6 +333,11 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         point_design = _merge_designs(point_design, fresh, new_points, is_new, old_lookup, structure)
         axes_values = new_axes
         budget -= len(wanted)
+    if failing and redesign:
+        point_design = _back_off(sched, point_design, axes_values, structure, count)
+        shape = tuple(v.size for v in axes_values)
+        grids = {k: np.asarray(v).reshape(shape) for k, v in point_design.coefficients.items()}
+        failing, checked, detail = _between(sched, axes_values, grids, structure, count)
     smooth, mono = _check_smoothness(sched, {k: np.asarray(v).reshape(tuple(a.size for a in axes_values))
                                             for k, v in point_design.coefficients.items()}, names)
     if progress is not None:
@@ -379,6 +357,21 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         tolerance_worst=tol_worst,
     )
     return report, point_design, axes_values
+
+
+def _back_off(sched, point_design, axes_values, structure, count):
+    """The between-point back-off (:mod:`gainloom.design.between_backoff`), its warnings on the points."""
+    from dataclasses import replace
+
+    from .between_backoff import back_off_between
+
+    moved_design, moved = back_off_between(sched, point_design, axes_values, structure, count)
+    if not moved:
+        return point_design
+    P = moved_design.points.shape[0]
+    old = point_design.warnings or tuple(() for _ in range(P))
+    warnings = tuple(tuple(old[p]) + ((moved[p],) if p in moved else ()) for p in range(P))
+    return replace(moved_design, warnings=warnings)
 
 
 def _merge_designs(old, fresh, new_points, is_new, old_lookup, structure):

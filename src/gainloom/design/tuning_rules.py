@@ -34,8 +34,8 @@ half-plane, no finite zeros and a positive gain; anything else is refused.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Callable
 
 import numpy as np
 

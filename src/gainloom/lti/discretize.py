@@ -66,8 +66,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
-from ..names import HOLD_METHODS, unknown_name_message
 from ..limits import MAX_DELAY_SAMPLES, MAX_PLANT_ORDER, SAMPLE_PERIOD_RANGE
+from ..names import HOLD_METHODS, unknown_name_message
 from .convert import poly_from_roots, roots_with_origin, ss_to_tf, tf_to_ss, tf_to_zpk
 from .expm import batched_expm
 from .loop import Loop
@@ -532,7 +532,7 @@ def discretize_loop(
     )
 
 
-def discrete_roots(z_coeffs: np.ndarray, delta_coeffs: np.ndarray, ts: object) -> np.ndarray:
+def discrete_roots(z_coeffs: object, delta_coeffs: object, ts: object) -> np.ndarray:
     """Roots in ``z`` of a discrete polynomial known in both ``z`` and ``g`` form.
 
     Parameters

@@ -63,7 +63,9 @@ from .loop import Loop
 from .polynomials import batched_roots
 from .regions import SpecRegion, s_from_log, spiral_s, wn_contour_arcs
 
-__all__ = ["GainInterval", "stable_gain_intervals", "spec_gain_intervals", "region_crossings", "CURVE_NAMES"]
+__all__ = [
+    "GainInterval", "stable_gain_intervals", "spec_gain_intervals", "damping_gain_intervals", "region_crossings", "CURVE_NAMES",
+]
 
 #: Names of the boundary curves of a spec region, as keys of
 #: :func:`region_crossings`: stability (imaginary axis / unit circle), decay
@@ -506,3 +508,32 @@ def region_crossings(
             found[name] = c
         out.append(found)
     return out[0] if single else out
+
+
+def damping_gain_intervals(loop: Loop, zetas: list[float], point: int = 0) -> dict[float, list[tuple[float, float]]]:
+    """Per damping ratio, the gains ``K > 0`` putting every closed-loop pole in the stable region with at least that damping.
+
+    Exact boundary solver (:func:`spec_gain_intervals`) on one point of
+    ``loop``, in its delta form when it has one.
+
+    Parameters
+    ----------
+    loop : Loop
+        Open loops ``N/D`` (s or z).
+    zetas : list of float
+        Damping ratios in ``[0, 1)``.
+    point : int
+        Which point of the batch.
+
+    Returns
+    -------
+    dict of float to list of (float, float)
+        ``(low, high)`` gain intervals per damping ratio (``inf`` for no upper end).
+    """
+    ts = None if loop.ts is None else float(loop.ts[point])
+    found = {}
+    for zeta in zetas:
+        region = SpecRegion(min_damping=zeta, ts=ts)
+        intervals = spec_gain_intervals(loop.num[point], loop.den[point], region, delta=loop.delta(point))
+        found[zeta] = [(float(i.low), float(i.high)) for i in intervals]
+    return found

@@ -128,7 +128,21 @@ class Loop:
         """True for a loop in ``z``."""
         return self.ts is not None
 
-    def select(self, index: int | slice | np.ndarray) -> "Loop":
+    def delta(self, index: int | None = None) -> tuple[np.ndarray, np.ndarray] | None:
+        """The delta-form coefficients ``(num, den)``, or ``None`` when the loop has none.
+
+        Parameters
+        ----------
+        index : int, optional
+            One point's rows (1-D arrays); all points' (2-D) by default.
+        """
+        if self.delta_num is None or self.delta_den is None:
+            return None
+        if index is None:
+            return self.delta_num, self.delta_den
+        return self.delta_num[index], self.delta_den[index]
+
+    def select(self, index: int | slice | np.ndarray) -> Loop:
         """Return the sub-batch at ``index`` (an int keeps a batch of one)."""
         index = np.atleast_1d(np.arange(self.points)[index])
         return replace(
@@ -158,7 +172,7 @@ class Loop:
         return control.tf(num, self.den[index], 0 if self.ts is None else dt)
 
     @classmethod
-    def from_control(cls, systems) -> "Loop":
+    def from_control(cls, systems) -> Loop:
         """Build a loop from one or a sequence of python-control SISO systems.
 
         ``StateSpace`` systems are converted to transfer functions.  Discrete

@@ -35,7 +35,7 @@ import numpy as np
 
 from ..errors import InputError
 
-__all__ = ["damping_and_frequency"]
+__all__ = ["damping_and_frequency", "root_records"]
 
 
 def damping_and_frequency(poles: object, ts: object = None) -> tuple[np.ndarray, np.ndarray]:
@@ -105,3 +105,29 @@ def damping_and_frequency(poles: object, ts: object = None) -> tuple[np.ndarray,
     zeta = np.where(nan_in | ~finite, np.nan, zeta)
     wn = np.where(nan_in, np.nan, wn)
     return np.asarray(zeta, dtype=float), np.asarray(wn, dtype=float)
+
+
+def root_records(roots: np.ndarray) -> list[dict[str, float]]:
+    """Finite roots as plain records in one deterministic order.
+
+    Sorted by real part (rounded to 12 digits so rounding noise cannot swap
+    a conjugate pair), then upper half-plane first, so each conjugate pair is
+    adjacent with its positive imaginary part leading.
+
+    Parameters
+    ----------
+    roots : array_like of complex
+        Roots of one polynomial (non-finite entries, roots at infinity, are dropped).
+
+    Returns
+    -------
+    list of dict
+        ``real``, ``imag``, ``magnitude`` and ``angle_rad`` of each root.
+    """
+    values = np.asarray(roots, dtype=complex)
+    values = values[np.isfinite(values)]
+    ordered = sorted(values, key=lambda r: (round(float(r.real), 12), -float(r.imag)))
+    return [
+        {"real": float(r.real), "imag": float(r.imag), "magnitude": float(abs(r)), "angle_rad": float(np.angle(r))}
+        for r in ordered
+    ]

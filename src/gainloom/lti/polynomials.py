@@ -42,6 +42,22 @@ def pad_left(coeffs: np.ndarray, length: int) -> np.ndarray:
     return np.pad(coeffs, pad)
 
 
+def polymul(a: object, b: object) -> np.ndarray:
+    """Batched product of polynomials (descending coefficients, last axis).
+
+    Leading axes broadcast; the result is float, or complex when either
+    factor is.  The degree is small (controller times plant), so the loop
+    runs over coefficients, never over the batch.
+    """
+    a = np.asarray(a)
+    b = np.asarray(b)
+    shape = np.broadcast_shapes(a.shape[:-1], b.shape[:-1])
+    out = np.zeros(shape + (a.shape[-1] + b.shape[-1] - 1,), dtype=np.result_type(a, b, float))
+    for i in range(a.shape[-1]):
+        out[..., i : i + b.shape[-1]] += a[..., i : i + 1] * b
+    return out
+
+
 def batched_roots(coeffs: np.ndarray) -> np.ndarray:
     """Roots of many polynomials of one degree at once.
 
@@ -92,21 +108,6 @@ def characteristic(num: np.ndarray, den: np.ndarray, gains: np.ndarray) -> np.nd
     gains = np.asarray(gains, dtype=float)
     num = pad_left(num, den.shape[-1])
     return den[..., np.newaxis, :] + gains[:, np.newaxis] * num[..., np.newaxis, :]
-
-
-def polymul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Batched product of polynomials (descending coefficients, last axis).
-
-    Leading axes broadcast.  The degree is small (controller times plant),
-    so the loop runs over coefficients, never over the batch.
-    """
-    a = np.asarray(a, dtype=float)
-    b = np.asarray(b, dtype=float)
-    shape = np.broadcast_shapes(a.shape[:-1], b.shape[:-1])
-    out = np.zeros(shape + (a.shape[-1] + b.shape[-1] - 1,))
-    for i in range(a.shape[-1]):
-        out[..., i : i + b.shape[-1]] += a[..., i : i + 1] * b
-    return out
 
 
 def z_to_delta(poly: np.ndarray, ts: np.ndarray) -> np.ndarray:

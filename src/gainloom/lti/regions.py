@@ -192,7 +192,7 @@ class SpecRegion:
             curves.append(self.max_pole_radius * np.exp(1j * theta))
         return curves
 
-    def with_period(self, ts: float | None) -> "SpecRegion":
+    def with_period(self, ts: float | None) -> SpecRegion:
         """The same specs read in another plane (``ts=None``: s-plane)."""
         return SpecRegion(self.min_damping, self.min_decay, self.wn_range, self.max_pole_radius, ts)
 

@@ -39,6 +39,7 @@ Discrete loops with a delta-operator form are traced in ``g = (z - 1)/ts``
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
 
@@ -48,7 +49,7 @@ from ..errors import InputError
 from .loop import Loop
 from .polynomials import batched_roots
 
-__all__ = ["LocusBranches", "trace_locus", "angle_residual"]
+__all__ = ["LocusBranches", "trace_locus", "trace_covering", "angle_residual"]
 
 #: Relative distance below which a root counts as sitting on an open-loop
 #: pole or zero for the angle residual.
@@ -888,3 +889,31 @@ def trace_locus(
         warnings=tuple(warnings),
         _check=(num, den, poles, zeros, work_roots[take], ts),
     )
+
+
+def trace_covering(loop: Loop, gains: Sequence[float], *, negative: bool = False, max_step: float = 0.05) -> LocusBranches:
+    """Trace one loop far enough that every gain of interest lies on a drawn branch.
+
+    The tracer's default range ends where the locus turns asymptotic; a
+    crossing, breakaway or designed gain beyond it would sit off the drawn
+    branches, so the range is widened to twice the largest such ``|K|``
+    (the factor leaves some branch visible past the last marked point).
+
+    Parameters
+    ----------
+    loop : Loop
+        One loop ``N/D`` (batch of one).
+    gains : sequence of float
+        Gains that must be covered (crossings, breakaways, ``K = 1``).
+    negative, max_step
+        As :func:`trace_locus`.
+
+    Returns
+    -------
+    LocusBranches
+    """
+    traced = trace_locus(loop, negative=negative, max_step=max_step)
+    needed = 2.0 * max((abs(float(g)) for g in gains), default=0.0)
+    if needed > float(traced.k_max[0]):
+        traced = trace_locus(loop, k_max=needed, negative=negative, max_step=max_step)
+    return traced

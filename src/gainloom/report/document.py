@@ -25,10 +25,10 @@ import numpy as np
 from ..design.results import point_document
 from ..design.specs import SPEC_ORDER
 from ..plain import to_plain
+from ..safety import CAUTION_POINTS
 
 __all__ = [
     "VERIFICATION_FORMAT",
-    "CAUTIONS",
     "METHODS",
     "spec_sense",
     "verification_document",
@@ -118,7 +118,7 @@ def _versions(harness: Any) -> dict[str, Any]:
     import matplotlib
     import scipy
 
-    from .. import __version__
+    from ..version import __version__
 
     return {
         "gainloom": __version__,
@@ -353,7 +353,7 @@ def verification_document(
         "simulation": None if simulation is None else simulation.to_dict(series=False),
         "warnings": list(result.warnings) + ([] if simulation is None else [
             f"simulation: {w}" for w in simulation.warnings if w not in result.warnings]),
-        "cautions": list(CAUTIONS),
+        "cautions": list(CAUTION_POINTS),
         "plots": list(plots or []),
     }
     if timestamp is not None:

@@ -23,10 +23,10 @@ from typing import Any
 
 import numpy as np
 
+from ..look import LIMIT, SERIES, new_figure, png_bytes
 from ..lti.bandwidth import closed_loop_bandwidth
 from ..lti.loop import Loop
 from ..lti.margins import frequency_response, loop_margins
-from .plots import _LIMIT, _SERIES, _figure, png_bytes
 
 __all__ = ["FrequencyCurves", "frequency_curves", "plot_frequency"]
 
@@ -105,7 +105,7 @@ def _db(values: np.ndarray) -> np.ndarray:
 def _phase_deg(curves: FrequencyCurves) -> np.ndarray:
     """Unwrapped phase, shifted by whole turns so the crossover phase lies in (-360, 0]."""
     phase = np.degrees(np.unwrap(np.angle(curves.loop)))
-    if math.isfinite(curves.crossover):
+    if math.isfinite(curves.crossover) and curves.crossover > 0:  # 0: |L| < 1 throughout
         at = np.interp(math.log(curves.crossover), np.log(curves.w), phase)
         phase = phase - 360.0 * math.ceil(at / 360.0)
     return phase
@@ -119,7 +119,7 @@ def _draw_point(axes, curves: FrequencyCurves, colour: str, style, label: str, n
     ax_phase.semilogx(curves.w, phase, color=colour, ls=style, lw=1.4)
     ax_closed.semilogx(curves.w, _db(curves.sensitivity), color=colour, ls=style, lw=1.4)
     ax_closed.semilogx(curves.w, _db(curves.complementary), color=colour, ls=style, lw=0.9, alpha=0.75)
-    if math.isfinite(curves.crossover):
+    if math.isfinite(curves.crossover) and curves.crossover > 0:  # 0: |L| < 1 throughout
         ax_mag.plot([curves.crossover], [0.0], marker="o", ms=5, color=colour)
         ax_mag.annotate(f"ωc {curves.crossover:.4g}", (curves.crossover, 0.0), xytext=(4, 4 + lift),
                         textcoords="offset points", fontsize=7, color=colour)
@@ -156,17 +156,17 @@ def plot_frequency(loop: Loop, chosen: list[tuple[int, str]], points: list[dict[
     points : list of dict
         The log's per-point entries (labels).
     """
-    figure = _figure((9.0, 9.6))
+    figure = new_figure((9.0, 9.6))
     axes = [figure.add_axes((0.09, 0.70, 0.88, 0.24)), figure.add_axes((0.09, 0.41, 0.88, 0.24)),
             figure.add_axes((0.09, 0.12, 0.88, 0.24))]
     nyquist = []
     for n, (p, role) in enumerate(chosen):
         curves = frequency_curves(loop, p)
         nyquist.append(curves.nyquist)
-        _draw_point(axes, curves, _SERIES[n % len(_SERIES)], ("-", (0, (6, 3)), (0, (2, 2)))[n % 3],
+        _draw_point(axes, curves, SERIES[n % len(SERIES)], ("-", (0, (6, 3)), (0, (2, 2)))[n % 3],
                     f"{role}: {points[p]['label']}", n)
-    axes[0].axhline(0.0, color=_LIMIT, lw=0.9, ls=(0, (5, 3)))
-    axes[1].axhline(-180.0, color=_LIMIT, lw=0.9, ls=(0, (5, 3)))
+    axes[0].axhline(0.0, color=LIMIT, lw=0.9, ls=(0, (5, 3)))
+    axes[1].axhline(-180.0, color=LIMIT, lw=0.9, ls=(0, (5, 3)))
     axes[2].axhline(0.0, color="#999999", lw=0.7)
     axes[2].axhline(20 * math.log10(1 / math.sqrt(2)), color="#999999", lw=0.7, ls=(0, (2, 2)))
     titles = ("|L| of the sampled loop [dB]: gain crossover ωc and gain margin (bar) [rad/s]",

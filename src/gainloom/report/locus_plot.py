@@ -9,36 +9,24 @@ no software or date entries in the PNG metadata.
 
 from __future__ import annotations
 
-import io
 import math
 from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from ..errors import InputError
+from ..look import BOUNDARY, LIMIT, MARK, SERIES, STABLE_FILL, new_figure, png_bytes
 from ..lti.facts import LocusFacts
 from ..outputs import write_outputs
 
-__all__ = ["plot_locus", "FIGURE_SIZE", "DPI"]
+__all__ = ["plot_locus", "FIGURE_SIZE"]
 
-#: Figure size in inches and resolution in dots per inch (fixed for
-#: byte-stable output).
+#: Figure size in inches (fixed for byte-stable output).
 FIGURE_SIZE = (8.0, 6.6)
-DPI = 110
 
-# Our palette: muted, distinguishable branch colours on white, marks in
-# near-black, the stability boundary in a dark slate.
-_BRANCH_COLOURS = (
-    "#1f6f8b", "#b5562d", "#5b8c2a", "#7b4f9d", "#c29a1a", "#2f4858", "#a23b72", "#3e8e7e",
-)
-_MARK = "#202020"
-_BOUNDARY = "#44546a"
-_STABLE_FILL = "#eef5ee"
-_CROSSING = "#c0262d"
+# The project's look (gainloom.look), plus the marks only a locus has.
 _BREAK = "#d98c00"
 _ASYMPTOTE = "#8a8a8a"
 _DAMPING = "#6a7fb5"
@@ -151,14 +139,14 @@ def _draw(
     # Stability boundary and the stable side, lightly tinted.
     if discrete:
         circle = np.exp(1j * np.linspace(0.0, 2 * math.pi, 721))
-        ax.fill(circle.real, circle.imag, color=_STABLE_FILL, zorder=0)
-        ax.plot(circle.real, circle.imag, color=_BOUNDARY, lw=1.1, zorder=1)
+        ax.fill(circle.real, circle.imag, color=STABLE_FILL, zorder=0)
+        ax.plot(circle.real, circle.imag, color=BOUNDARY, lw=1.1, zorder=1)
         ax.axhline(0.0, color="#c8c8c8", lw=0.8, zorder=1)
         ax.axvline(0.0, color="#c8c8c8", lw=0.8, zorder=1)
     else:
         big = 10 * (abs(x0) + abs(x1) + abs(y0) + abs(y1))
-        ax.fill([-big, 0, 0, -big], [-big, -big, big, big], color=_STABLE_FILL, zorder=0)
-        ax.axvline(0.0, color=_BOUNDARY, lw=1.1, zorder=1)
+        ax.fill([-big, 0, 0, -big], [-big, -big, big, big], color=STABLE_FILL, zorder=0)
+        ax.axvline(0.0, color=BOUNDARY, lw=1.1, zorder=1)
         ax.axhline(0.0, color="#c8c8c8", lw=0.8, zorder=1)
     ax.grid(True, color="#e2e2e2", lw=0.6, zorder=0)
 
@@ -189,18 +177,18 @@ def _draw(
     for k in range(branches.shape[1] if branches.ndim == 2 else 0):
         column = branches[:, k]
         column = np.where(np.isfinite(column), column, np.nan)
-        ax.plot(column.real, column.imag, color=_BRANCH_COLOURS[k % len(_BRANCH_COLOURS)], lw=1.7,
+        ax.plot(column.real, column.imag, color=SERIES[k % len(SERIES)], lw=1.7,
                 zorder=3, solid_capstyle="round")
 
     poles = np.array([r.value for r in facts.poles], dtype=complex)
     zeros = np.array([r.value for r in facts.zeros], dtype=complex)
-    ax.plot(poles.real, poles.imag, marker="x", ms=9, mew=2.0, color=_MARK, ls="none", zorder=5)
+    ax.plot(poles.real, poles.imag, marker="x", ms=9, mew=2.0, color=MARK, ls="none", zorder=5)
     for root in facts.poles + facts.zeros:
         if root.multiplicity > 1:
             ax.annotate(f"×{root.multiplicity}", (root.value.real, root.value.imag), fontsize=8,
-                        color=_MARK, xytext=(6, -11), textcoords="offset points", zorder=6)
+                        color=MARK, xytext=(6, -11), textcoords="offset points", zorder=6)
     if zeros.size:
-        ax.plot(zeros.real, zeros.imag, marker="o", ms=8, mfc="white", mec=_MARK, mew=1.8, ls="none",
+        ax.plot(zeros.real, zeros.imag, marker="o", ms=8, mfc="white", mec=MARK, mew=1.8, ls="none",
                 zorder=5)
 
     def in_view(p: complex) -> bool:
@@ -212,7 +200,7 @@ def _draw(
     for brk in facts.breakaways:
         if not in_view(brk.point):
             continue
-        ax.plot([brk.point.real], [brk.point.imag], marker="^", ms=7, color=_BREAK, mec=_MARK, mew=0.6,
+        ax.plot([brk.point.real], [brk.point.imag], marker="^", ms=7, color=_BREAK, mec=MARK, mew=0.6,
                 ls="none", zorder=6)
         if labelled(brk.point):
             ax.annotate(_fmt_gain(brk.gain), (brk.point.real, brk.point.imag), fontsize=8, color="#7a4f00",
@@ -235,11 +223,11 @@ def _draw(
             continue
         # Closed-loop roots come in conjugate pairs: mark both, label one.
         ax.plot([crossing.point.real] * 2, [crossing.point.imag, -crossing.point.imag], marker="s", ms=6.5,
-                color=_CROSSING, mec="white", mew=0.8, ls="none", zorder=6)
+                color=LIMIT, mec="white", mew=0.8, ls="none", zorder=6)
         if labelled(crossing.point):
             ax.annotate(_fmt_gain(crossing.gain), (crossing.point.real, crossing.point.imag), fontsize=8,
-                        color=_CROSSING, xytext=(7, 4), textcoords="offset points", zorder=7,
-                        bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": _CROSSING, "lw": 0.6})
+                        color=LIMIT, xytext=(7, 4), textcoords="offset points", zorder=7,
+                        bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": LIMIT, "lw": 0.6})
 
 
 
@@ -291,8 +279,7 @@ def plot_locus(
         raise InputError(f"plot file {str(path)!r} is empty or names no file; give a file such as locus.png")
     path = Path(path)
     branches = np.asarray(branches, dtype=complex)
-    figure = Figure(figsize=FIGURE_SIZE, dpi=DPI)
-    FigureCanvasAgg(figure)
+    figure = new_figure(FIGURE_SIZE)
     ax = figure.add_axes((0.09, 0.20, 0.86, 0.72))
     view = _view(facts, branches)
     discrete = facts.ts is not None
@@ -315,18 +302,18 @@ def plot_locus(
     ax.set_ylabel("Im(z)" if discrete else "Im(s)  [rad/s]")
 
     handles = [
-        Line2D([], [], color=_BRANCH_COLOURS[0], lw=1.7, label="closed-loop pole branches (one colour each)"),
-        Line2D([], [], marker="x", ms=8, mew=2, color=_MARK, ls="none", label="open-loop pole"),
+        Line2D([], [], color=SERIES[0], lw=1.7, label="closed-loop pole branches (one colour each)"),
+        Line2D([], [], marker="x", ms=8, mew=2, color=MARK, ls="none", label="open-loop pole"),
     ]
     if facts.zeros:
         handles.append(
-            Line2D([], [], marker="o", ms=7, mfc="white", mec=_MARK, mew=1.6, ls="none", label="open-loop zero")
+            Line2D([], [], marker="o", ms=7, mfc="white", mec=MARK, mew=1.6, ls="none", label="open-loop zero")
         )
     if facts.crossings:
-        handles.append(Line2D([], [], marker="s", ms=6, color=_CROSSING, ls="none",
+        handles.append(Line2D([], [], marker="s", ms=6, color=LIMIT, ls="none",
                               label="root on " + ("|z| = 1" if discrete else "jω axis") + " at gain K"))
     if facts.breakaways:
-        handles.append(Line2D([], [], marker="^", ms=7, color=_BREAK, mec=_MARK, mew=0.6, ls="none",
+        handles.append(Line2D([], [], marker="^", ms=7, color=_BREAK, mec=MARK, mew=0.6, ls="none",
                               label="breakaway / break-in at gain K"))
     if facts.asymptote_angles:
         handles.append(Line2D([], [], color=_ASYMPTOTE, lw=0.9, ls=(0, (7, 4)), label="asymptotes from centroid"))
@@ -335,11 +322,9 @@ def plot_locus(
     if gain_marks:
         handles.append(Line2D([], [], marker="o", ms=5.5, color=_DAMPING, mec="white", ls="none",
                               label="poles at the damping-limit gain K"))
-    handles.append(Line2D([], [], color=_STABLE_FILL, lw=6, label="stable region"))
+    handles.append(Line2D([], [], color=STABLE_FILL, lw=6, label="stable region"))
     figure.legend(handles=handles, loc="lower center", ncol=3, fontsize=8, frameon=False,
                   bbox_to_anchor=(0.5, 0.035))
     figure.text(0.01, 0.008, _loop_caption(facts), ha="left", va="bottom", fontsize=7.5, color="#555555")
-    buffer = io.BytesIO()
-    figure.savefig(buffer, format="png", dpi=DPI, metadata={"Software": None})
-    (written,) = write_outputs(path.parent, {path.name: buffer.getvalue()}, force=force)
+    (written,) = write_outputs(path.parent, {path.name: png_bytes(figure)}, force=force)
     return written

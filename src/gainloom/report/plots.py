@@ -28,25 +28,30 @@ Plots
 
 from __future__ import annotations
 
-import io
 import math
 from typing import Any
 
 import numpy as np
 import scipy.signal
-from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from ..errors import GainloomError
+from ..look import (
+    BOUNDARY,
+    LIMIT,
+    MARK,
+    REGION,
+    SERIES,
+    STABLE_FILL,
+    new_figure,
+    png_bytes,
+)
 from ..lti.closed_loop import closed_loop_poles
 from ..lti.facts import locus_facts
 from ..lti.loop import Loop
 from ..lti.regions import SpecRegion
 
 __all__ = [
-    "DPI",
-    "png_bytes",
     "plot_gains",
     "plot_margins",
     "plot_steps",
@@ -55,34 +60,8 @@ __all__ = [
     "LOCUS_GAINS",
 ]
 
-#: Resolution of every plot, dots per inch.
-DPI = 110
-
 #: Multiples of the designed loop gain swept when the tracer cannot be used.
 LOCUS_GAINS = np.geomspace(1e-3, 1e3, 481)
-
-# Our look: one accent per role, muted series colours.
-_SERIES = ("#1f6f8b", "#b5562d", "#5b8c2a", "#7b4f9d", "#c29a1a", "#2f4858", "#a23b72", "#3e8e7e")
-_LIMIT = "#c0262d"
-_FAIL = "#c0262d"
-_DESIGN = "#111111"
-_REGION = "#2b7a3d"
-_STABLE = "#eef5ee"
-_BOUNDARY = "#44546a"
-
-
-def png_bytes(figure: Figure) -> bytes:
-    """Render a figure to PNG bytes without software or time metadata."""
-    buffer = io.BytesIO()
-    figure.savefig(buffer, format="png", dpi=DPI, metadata={"Software": None})
-    return buffer.getvalue()
-
-
-def _figure(size: tuple[float, float]) -> Figure:
-    figure = Figure(figsize=size, dpi=DPI)
-    FigureCanvasAgg(figure)
-    return figure
-
 
 def _axis_label(axis: Any) -> str:
     return f"{axis.name} [{axis.unit}]" if axis.unit else axis.name
@@ -114,24 +93,24 @@ def plot_gains(table: Any, status: tuple[str, ...]) -> bytes:
     names = table.coefficient_names
     columns = 2 if len(names) > 1 else 1
     rows = math.ceil(len(names) / columns)
-    figure = _figure((9.0, 2.6 * rows + 1.2))
+    figure = new_figure((9.0, 2.6 * rows + 1.2))
     failed = np.array([s != "pass" for s in status])
     for k, name in enumerate(names):
         ax = figure.add_subplot(rows, columns, k + 1)
         grid = np.asarray(table.coefficients[name])
         for n, (label, x, y, flat) in enumerate(_lines_2d(table, grid)):
-            colour = _SERIES[n % len(_SERIES)]
+            colour = SERIES[n % len(SERIES)]
             ax.plot(x, y, marker="o", ms=3.5, lw=1.4, color=colour, label=label)
             bad = failed[flat]
             if bad.any():
-                ax.plot(x[bad], y[bad], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4)
+                ax.plot(x[bad], y[bad], ls="none", marker="o", ms=9, mfc="none", mec=LIMIT, mew=1.4)
         ax.set_title(f"{name}", fontsize=10, loc="left")
         ax.set_xlabel(_axis_label(table.axes[0]), fontsize=8.5)
         ax.grid(True, color="#e4e4e4", lw=0.6)
         ax.tick_params(labelsize=8)
         ax.ticklabel_format(axis="y", style="sci", scilimits=(-3, 4), useOffset=False)
     handles, labels = figure.axes[0].get_legend_handles_labels()
-    extra = [Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4,
+    extra = [Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=LIMIT, mew=1.4,
                     label="point fails a spec")] if failed.any() else []
     figure.legend(handles=[h for h, lab in zip(handles, labels) if lab] + extra, loc="lower center",
                   ncol=min(5, len(handles) + 1), fontsize=8, frameon=False)
@@ -170,7 +149,7 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
     points : list of dict
         The log's per-point entries (grid order).
     """
-    figure = _figure((9.0, 11.0))
+    figure = new_figure((9.0, 11.0))
     shape = table.shape
     for k, (key, (low, high), title, unit, log) in enumerate(_MARGIN_PANELS):
         ax = figure.add_subplot(4, 2, k + 1)
@@ -180,7 +159,7 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
         groups: dict[tuple, list[int]] = {}
         drawn: dict[tuple, tuple] = {}
         for n, (label, x, y, flat) in enumerate(_lines_2d(table, values)):
-            colour = _SERIES[n % len(_SERIES)]
+            colour = SERIES[n % len(SERIES)]
             ax.plot(x, _finite(y), marker="o", ms=3.2, lw=1.3, color=colour, label=label)
             for spec in (low, high):
                 if spec is None:
@@ -194,12 +173,12 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
                 drawn[signature] = (x, limits)
                 bad = np.array([spec in points[i]["specs"] and not points[i]["specs"][spec]["pass"] for i in flat])
                 if bad.any():
-                    ax.plot(x[bad], _finite(y[bad]), ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4)
+                    ax.plot(x[bad], _finite(y[bad]), ls="none", marker="o", ms=9, mfc="none", mec=LIMIT, mew=1.4)
         labels = [label for label, *_ in _lines_2d(table, values)]
         several = len({sig[0] for sig in groups}) < len(groups)
         for signature, members in groups.items():
             x, limits = drawn[signature]
-            colour = _SERIES[members[0] % len(_SERIES)] if several and len(members) == 1 else _LIMIT
+            colour = SERIES[members[0] % len(SERIES)] if several and len(members) == 1 else LIMIT
             ax.step(x, limits, where="mid", color=colour, lw=1.1, ls=(0, (5, 3)))
             if several and labels[0] is not None:
                 names = ", ".join(labels[m].split(" = ", 1)[1] for m in members)
@@ -214,15 +193,15 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
         ax.set_xlabel(_axis_label(table.axes[0]), fontsize=8.5)
         ax.grid(True, color="#e4e4e4", lw=0.6)
         ax.tick_params(labelsize=8)
-    handles = [Line2D([], [], color=_SERIES[0], marker="o", ms=3.2, lw=1.3, label="designed table"),
-               Line2D([], [], color=_LIMIT, lw=1.1, ls=(0, (5, 3)), label="spec limit (per point)"),
-               Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4, label="spec fails")]
+    handles = [Line2D([], [], color=SERIES[0], marker="o", ms=3.2, lw=1.3, label="designed table"),
+               Line2D([], [], color=LIMIT, lw=1.1, ls=(0, (5, 3)), label="spec limit (per point)"),
+               Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=LIMIT, mew=1.4, label="spec fails")]
     if len(table.axes) == 2:
-        handles = [Line2D([], [], color=_SERIES[n % len(_SERIES)], marker="o", ms=3.2, lw=1.3, label=label)
+        handles = [Line2D([], [], color=SERIES[n % len(SERIES)], marker="o", ms=3.2, lw=1.3, label=label)
                    for n, (label, *_rest) in enumerate(_lines_2d(table, np.zeros(table.shape)))]
-        handles += [Line2D([], [], color=_LIMIT, lw=1.1, ls=(0, (5, 3)),
+        handles += [Line2D([], [], color=LIMIT, lw=1.1, ls=(0, (5, 3)),
                            label="dashed: spec limit (named where it differs between lines)"),
-                    Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=_FAIL, mew=1.4, label="spec fails")]
+                    Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=LIMIT, mew=1.4, label="spec fails")]
     figure.legend(handles=handles, loc="lower center", ncol=min(4, len(handles)), fontsize=8, frameon=False)
     figure.suptitle("Closed-loop damping, margins, crossover and bandwidth of the sampled loop", fontsize=11,
                     x=0.01, ha="left")
@@ -277,7 +256,7 @@ def plot_steps(loop: Loop, chosen: list[tuple[int, str]], points: list[dict[str,
     The horizon is three times the slowest logged settling time (at least
     60 samples), so the settled tail is visible.
     """
-    figure = _figure((9.0, 4.8))
+    figure = new_figure((9.0, 4.8))
     ax = figure.add_axes((0.08, 0.22, 0.9, 0.68))
     horizon = []
     for p, _ in chosen:
@@ -290,7 +269,7 @@ def plot_steps(loop: Loop, chosen: list[tuple[int, str]], points: list[dict[str,
         ts = float(loop.ts[p])
         y = step_response(loop, p, samples)
         t = np.arange(samples) * ts
-        colour = _SERIES[n % len(_SERIES)]
+        colour = SERIES[n % len(SERIES)]
         # later lines dashed so that identical responses stay visible
         ax.step(t, np.where(np.isfinite(y), y, np.nan), where="post", lw=1.6 - 0.3 * n, color=colour,
                 ls=("-", (0, (6, 3)), (0, (2, 2)))[n % 3], label=f"{label}: {points[p]['label']}")
@@ -302,7 +281,7 @@ def plot_steps(loop: Loop, chosen: list[tuple[int, str]], points: list[dict[str,
         level = final[0]
         ax.axhspan(level * 0.98, level * 1.02, color="#dcebdc", zorder=0, label="±2 % settling band")
         for limit in sorted(overshoot_limits):
-            ax.axhline(level * (1 + limit / 100), color=_LIMIT, lw=1.0, ls=(0, (5, 3)),
+            ax.axhline(level * (1 + limit / 100), color=LIMIT, lw=1.0, ls=(0, (5, 3)),
                        label=f"overshoot limit {limit:g} %")
     ax.set_xlabel("time [s]", fontsize=9)
     ax.set_ylabel("output y / reference step", fontsize=9)
@@ -391,19 +370,7 @@ def _s_half_width(entry: dict[str, Any]) -> float:
 
 
 def _mark_design(ax: Any, poles: np.ndarray) -> None:
-    ax.plot(poles.real, poles.imag, ls="none", marker="*", ms=13, mfc="#ffd23f", mec=_DESIGN, mew=0.9, zorder=8)
-
-
-def _traced(one: Loop, facts: Any) -> tuple[np.ndarray, np.ndarray]:
-    """Continuous branches of ``K L`` (tracer), far enough to show every annotated point and K = 1."""
-    from ..lti.trace import trace_locus
-
-    special = [abs(c.gain) for c in facts.crossings] + [abs(b.gain) for b in facts.breakaways] + [1.0]
-    traced = trace_locus(one)
-    if 2.0 * max(special) > float(traced.k_max[0]):
-        traced = trace_locus(one, k_max=2.0 * max(special))
-    count = int(traced.counts[0])
-    return traced.gains[0, :count], traced.roots[0, :count]
+    ax.plot(poles.real, poles.imag, ls="none", marker="*", ms=13, mfc="#ffd23f", mec=MARK, mew=0.9, zorder=8)
 
 
 def _z_layers(ax: Any, facts: Any, branches: np.ndarray, view: tuple[float, float, float, float],
@@ -414,13 +381,13 @@ def _z_layers(ax: Any, facts: Any, branches: np.ndarray, view: tuple[float, floa
     ax.set_ylim(y0, y1)
     ax.set_aspect("equal", adjustable="box")
     circle = np.exp(1j * np.linspace(0.0, 2 * math.pi, 1441))
-    ax.fill(circle.real, circle.imag, color=_STABLE, zorder=0)
-    ax.plot(circle.real, circle.imag, color=_BOUNDARY, lw=1.1, zorder=1)
+    ax.fill(circle.real, circle.imag, color=STABLE_FILL, zorder=0)
+    ax.plot(circle.real, circle.imag, color=BOUNDARY, lw=1.1, zorder=1)
     ax.axhline(0.0, color="#c8c8c8", lw=0.8, zorder=1)
     ax.grid(True, color="#e2e2e2", lw=0.6, zorder=0)
     for k in range(branches.shape[1] if branches.ndim == 2 else 0):
         column = np.where(np.isfinite(branches[:, k]), branches[:, k], np.nan)
-        ax.plot(column.real, column.imag, color=_SERIES[k % len(_SERIES)], lw=1.5, zorder=3)
+        ax.plot(column.real, column.imag, color=SERIES[k % len(SERIES)], lw=1.5, zorder=3)
     if facts is None:
         return
     poles = np.array([r.value for r in facts.poles], dtype=complex)
@@ -432,12 +399,12 @@ def _z_layers(ax: Any, facts: Any, branches: np.ndarray, view: tuple[float, floa
         point = crossing.point
         if not (x0 <= point.real <= x1 and y0 <= abs(point.imag) <= y1 or y0 <= point.imag <= y1):
             continue
-        ax.plot([point.real] * 2, [point.imag, -point.imag], marker="s", ms=6.5, color=_FAIL, mec="white",
+        ax.plot([point.real] * 2, [point.imag, -point.imag], marker="s", ms=6.5, color=LIMIT, mec="white",
                 mew=0.8, ls="none", zorder=6)
         if labels:
-            ax.annotate(f"K={crossing.gain:.4g}", (point.real, abs(point.imag)), fontsize=8, color=_FAIL,
+            ax.annotate(f"K={crossing.gain:.4g}", (point.real, abs(point.imag)), fontsize=8, color=LIMIT,
                         xytext=(7, 4), textcoords="offset points", zorder=7,
-                        bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": _FAIL, "lw": 0.6})
+                        bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": LIMIT, "lw": 0.6})
 
 
 def _traced(one: Loop, facts: Any, step: float) -> np.ndarray:
@@ -446,12 +413,9 @@ def _traced(one: Loop, facts: Any, step: float) -> np.ndarray:
     ``step`` is the tracer's largest root move as a fraction of the plot
     scale: small enough to draw smooth curves in the magnified view.
     """
-    from ..lti.trace import trace_locus
+    from ..lti.trace import trace_covering
 
-    special = [abs(c.gain) for c in facts.crossings] + [1.0]
-    traced = trace_locus(one, max_step=step)
-    if 2.0 * max(special) > float(traced.k_max[0]):
-        traced = trace_locus(one, k_max=2.0 * max(special), max_step=step)
+    traced = trace_covering(one, [c.gain for c in facts.crossings] + [1.0], max_step=step)
     return traced.roots[0, : int(traced.counts[0])]
 
 
@@ -479,13 +443,12 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     """
     ts = float(loop.ts[p])
     one = loop.select(np.array([p]))
-    delta = None if one.delta_num is None else (one.delta_num[0], one.delta_den[0])
     design = closed_loop_poles(one, np.ones((1, 1)))[0, 0]
     half_s = _s_half_width(entry)
     # Near z = 1, z ~ 1 + s ts: the magnified z view matches the s view.
     half_z = min(1.2, half_s * ts)
     try:
-        facts = locus_facts(one.num[0], one.den[0], ts, delta=delta)
+        facts = locus_facts(one.num[0], one.den[0], ts, delta=one.delta(0))
         branches = _traced(one, facts, step=float(np.clip(0.02 * half_z, 1e-4, 0.02)))
     except GainloomError:
         # a loop the facts or the tracer cannot describe: a plain gain sweep
@@ -495,15 +458,15 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     zoom = (1.0 - 1.6 * half_z, 1.0 + 0.4 * half_z, -half_z, half_z)
     region_z = _region(entry["specs"], ts)
 
-    figure = _figure((15.0, 6.0))
+    figure = new_figure((15.0, 6.0))
     full, near, splane = [figure.add_axes((0.045 + 0.33 * k, 0.24, 0.28, 0.64)) for k in range(3)]
     for ax, view, title in ((full, (-1.45, 1.45, -1.45, 1.45), f"z-plane, ts = {ts:.4g} s"),
                             (near, zoom, "z-plane near z = 1, magnified")):
         _z_layers(ax, facts, branches if facts is not None else np.zeros((0, 0)), view, labels=True)
         if facts is None:
-            ax.plot(branches.real.ravel(), branches.imag.ravel(), ls="none", marker=".", ms=2, color=_SERIES[0])
+            ax.plot(branches.real.ravel(), branches.imag.ravel(), ls="none", marker=".", ms=2, color=SERIES[0])
         for _label, curve in region_z:
-            ax.plot(curve.real, curve.imag, color=_REGION, lw=1.2, ls=(0, (3, 2)), zorder=2)
+            ax.plot(curve.real, curve.imag, color=REGION, lw=1.2, ls=(0, (3, 2)), zorder=2)
         _mark_design(ax, design)
         ax.set_title(title, fontsize=10, loc="left")
         ax.set_xlabel("Re(z)")
@@ -513,12 +476,12 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     with np.errstate(divide="ignore", invalid="ignore"):
         s_branches = np.log(np.asarray(branches, dtype=complex)) / ts
         s_design = np.log(design) / ts
-    splane.axvspan(-20 * half_s, 0, color=_STABLE, zorder=0)
-    splane.axvline(0.0, color=_BOUNDARY, lw=1.1, zorder=1)
+    splane.axvspan(-20 * half_s, 0, color=STABLE_FILL, zorder=0)
+    splane.axvline(0.0, color=BOUNDARY, lw=1.1, zorder=1)
     splane.axhline(0.0, color="#c8c8c8", lw=0.8, zorder=1)
     named: set[str] = set()
     for label, curve in _region(entry["specs"], None):
-        splane.plot(curve.real, curve.imag, color=_REGION, lw=1.2, ls=(0, (3, 2)), zorder=2)
+        splane.plot(curve.real, curve.imag, color=REGION, lw=1.2, ls=(0, (3, 2)), zorder=2)
         # name each boundary once, on its upper half inside the view
         inside = np.flatnonzero((curve.real > -1.55 * half_s) & (curve.real < 0.35 * half_s)
                                 & (curve.imag > 0.05 * half_s) & (curve.imag < 0.9 * half_s))
@@ -526,18 +489,18 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
             named.add(label)
             spot = curve[inside[int(0.6 * (inside.size - 1))]]
             right = spot.real > -0.5 * half_s  # keep the text inside the axes
-            splane.annotate(label, (spot.real, spot.imag), fontsize=7.5, color=_REGION,
+            splane.annotate(label, (spot.real, spot.imag), fontsize=7.5, color=REGION,
                             xytext=(-4 if right else 4, 3), textcoords="offset points",
                             ha="right" if right else "left", zorder=7)
     if facts is None:
-        splane.plot(s_branches.real.ravel(), s_branches.imag.ravel(), ls="none", marker=".", ms=2, color=_SERIES[0])
+        splane.plot(s_branches.real.ravel(), s_branches.imag.ravel(), ls="none", marker=".", ms=2, color=SERIES[0])
     else:
         for k in range(s_branches.shape[1]):
             column = np.where(np.isfinite(s_branches[:, k]), s_branches[:, k], np.nan)
             # ln z jumps by 2 pi j / ts where a branch crosses the negative real z axis
             cut = np.flatnonzero(np.abs(np.diff(column.imag)) > math.pi / ts) + 1
             column = np.insert(column, cut, np.nan)
-            splane.plot(column.real, column.imag, color=_SERIES[k % len(_SERIES)], lw=1.5, zorder=3)
+            splane.plot(column.real, column.imag, color=SERIES[k % len(SERIES)], lw=1.5, zorder=3)
     shown = np.isfinite(s_design)
     _mark_design(splane, s_design[shown])
     splane.set_xlim(-1.6 * half_s, 0.4 * half_s)
@@ -553,14 +516,14 @@ def plot_locus_point(loop: Loop, p: int, entry: dict[str, Any], role: str) -> by
     splane.set_ylabel("Im(s)  [rad/s]")
 
     handles = [
-        Line2D([], [], color=_SERIES[0], lw=1.5, label="closed-loop pole branches as K rises from 0 (one colour each)"),
-        Line2D([], [], ls="none", marker="*", ms=12, mfc="#ffd23f", mec=_DESIGN,
+        Line2D([], [], color=SERIES[0], lw=1.5, label="closed-loop pole branches as K rises from 0 (one colour each)"),
+        Line2D([], [], ls="none", marker="*", ms=12, mfc="#ffd23f", mec=MARK,
                label="designed closed-loop poles (K = 1)"),
-        Line2D([], [], color=_REGION, lw=1.2, ls=(0, (3, 2)), label="spec region boundary at this point"),
+        Line2D([], [], color=REGION, lw=1.2, ls=(0, (3, 2)), label="spec region boundary at this point"),
         Line2D([], [], marker="x", ms=8, mew=2, color="#202020", ls="none", label="open-loop pole"),
         Line2D([], [], marker="o", ms=7, mfc="white", mec="#202020", ls="none", label="open-loop zero"),
-        Line2D([], [], marker="s", ms=6, color=_FAIL, ls="none", label="on |z| = 1 at K (gain margin factor)"),
-        Line2D([], [], color=_STABLE, lw=6, label="stable region"),
+        Line2D([], [], marker="s", ms=6, color=LIMIT, ls="none", label="on |z| = 1 at K (gain margin factor)"),
+        Line2D([], [], color=STABLE_FILL, lw=6, label="stable region"),
     ]
     figure.legend(handles=handles, loc="lower center", ncol=4, fontsize=8, frameon=False)
     figure.suptitle(f"Root locus of K·L(z) at the {role} point: {entry['label']}   "

@@ -54,6 +54,7 @@ __all__ = [
     "SIMULATION_SPAN",
     "JobResult",
     "StageVerdict",
+    "StagedOutcome",
     "default_scenario",
     "run_design_job",
 ]
@@ -108,8 +109,29 @@ class StageVerdict:
         return self.status == "FAIL"
 
 
+class StagedOutcome:
+    """Verdict properties of a job result with a ``stages`` tuple of :class:`StageVerdict`."""
+
+    stages: tuple[StageVerdict, ...]
+
+    @property
+    def passed(self) -> bool:
+        """True when no stage failed ("not checked" stages do not count as a pass; see ``not_checked``)."""
+        return not any(s.failed for s in self.stages)
+
+    @property
+    def not_checked(self) -> tuple[str, ...]:
+        """Stages that did not run or could not check anything."""
+        return tuple(s.stage for s in self.stages if s.status == "not checked")
+
+    @property
+    def exit_code(self) -> int:
+        """CLI exit code: 0 every stage passes (or was not checked), 1 some spec fails."""
+        return 0 if self.passed else 1
+
+
 @dataclass(frozen=True, eq=False)
-class JobResult:
+class JobResult(StagedOutcome):
     """What :func:`run_design_job` returns.
 
     Attributes
@@ -153,21 +175,6 @@ class JobResult:
     simulation: Any
     scenario: dict[str, Any] | None
     stages: tuple[StageVerdict, ...]
-
-    @property
-    def passed(self) -> bool:
-        """True when no stage failed ("not checked" stages do not count as a pass; see ``not_checked``)."""
-        return not any(s.failed for s in self.stages)
-
-    @property
-    def not_checked(self) -> tuple[str, ...]:
-        """Stages that did not run or could not check anything."""
-        return tuple(s.stage for s in self.stages if s.status == "not checked")
-
-    @property
-    def exit_code(self) -> int:
-        """CLI exit code: 0 every stage passes (or was not checked), 1 some spec fails."""
-        return 0 if self.passed else 1
 
 
 def _time_scale(result: Any) -> tuple[float, str]:

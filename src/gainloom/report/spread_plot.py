@@ -15,8 +15,9 @@ from typing import Any
 
 import numpy as np
 
+from ..look import SERIES, new_figure, png_bytes
 from ..outputs import write_outputs
-from .plots import _SERIES, _axis_label, _figure, _lines_2d, png_bytes
+from .plots import _axis_label, _lines_2d
 
 __all__ = ["plot_spread", "write_spread_plot", "SPREAD_PLOT"]
 
@@ -37,13 +38,13 @@ def plot_spread(result: Any) -> bytes:
     low, high = result.any_interval()
     grids = {k: 100.0 * np.asarray(v).reshape(shape) for k, v in
              (("fraction", result.any_fraction), ("low", low), ("high", high))}
-    figure = _figure((8.0, 4.4))
+    figure = new_figure((8.0, 4.4))
     ax = figure.add_subplot(1, 1, 1)
     for n, (label, x, y, flat) in enumerate(_lines_2d(table, grids["fraction"])):
         below = y - grids["low"].ravel()[flat]
         above = grids["high"].ravel()[flat] - y
         ax.errorbar(x, y, yerr=[below, above], marker="o", ms=3.5, lw=1.4, capsize=3,
-                    color=_SERIES[n % len(_SERIES)], label=label)
+                    color=SERIES[n % len(SERIES)], label=label)
     ax.set_xlabel(_axis_label(table.axes[0]), fontsize=8.5)
     ax.set_ylabel("draws violating a spec [%]", fontsize=8.5)
     ax.set_ylim(bottom=0)

@@ -30,9 +30,11 @@ from .family import (
     ParameterDef,
     PlantRecipe,
     TableDef,
+    describe_point,
 )
 from .filters import check_filter_names, evaluate_filters
-from .model import Axis, Sampling, Schedule
+from .measured import read_measured
+from .model import Axis, CodegenSection, Sampling, Schedule
 from .nodes import Node, compose_text
 from .sections import (
     read_codegen,
@@ -42,7 +44,7 @@ from .sections import (
     read_tolerances,
 )
 
-__all__ = ["SLOW_SAMPLING_LIMIT", "TOP_LEVEL_KEYS", "load_schedule"]
+__all__ = ["SLOW_SAMPLING_LIMIT", "TOP_LEVEL_KEYS", "build_schedule", "load_schedule", "read_schedule_root"]
 
 #: Keys of the schedule file, in the order the docs describe them.
 TOP_LEVEL_KEYS: tuple[str, ...] = (
@@ -91,6 +93,33 @@ def load_schedule(path: str | Path) -> Schedule:
         One message naming the file, line, column and key path of the first
         problem found.
     """
+    file, data, root = read_schedule_root(path)
+    if root.is_mapping and "loops" in {str(k.value) for k, _ in root.raw.value}:
+        raise ScheduleError(
+            "this file describes a cascade (top-level key 'loops'); load it with gainloom.load_cascade "
+            "(gainloom design and inspect read both forms; docs/cascade.md)", file=file,
+        )
+    keys = root.mapping(TOP_LEVEL_KEYS, required=REQUIRED_KEYS)
+    return build_schedule(keys, file=file, sha256=hashlib.sha256(data).hexdigest())
+
+
+def read_schedule_root(path: str | Path) -> tuple[str, bytes, Node]:
+    """Read a schedule file and compose its YAML root node.
+
+    Returns
+    -------
+    file : str
+        The path as given, for messages.
+    data : bytes
+        The file's bytes (hashed for provenance).
+    root : Node
+        The composed root (not yet checked to be a mapping).
+
+    Raises
+    ------
+    ScheduleError
+        Not UTF-8, not YAML, or empty.
+    """
     file = str(path)
     data = read_input_file(path, "schedule file", limits.MAX_SCHEDULE_BYTES)
     try:
@@ -102,27 +131,56 @@ def load_schedule(path: str | Path) -> Schedule:
         raise ScheduleError(
             f"schedule file is empty; expected a mapping with keys {', '.join(REQUIRED_KEYS)}", file=file
         )
-    keys = root.mapping(TOP_LEVEL_KEYS, required=REQUIRED_KEYS)
+    return file, data, root
 
+
+def build_schedule(
+    keys: dict[str, Node], *, file: str, sha256: str, codegen: CodegenSection | None = None,
+    description: str | None = None,
+) -> Schedule:
+    """Validate and evaluate one loop from its checked top-level keys.
+
+    Parameters
+    ----------
+    keys : dict of str to Node
+        The loop's keys (``TOP_LEVEL_KEYS``; a cascade's loop entry uses the
+        same ones below ``loops[i]``).
+    file, sha256 : str
+        Path of the file (for messages) and SHA-256 of its bytes.
+    codegen : CodegenSection, optional
+        The loop's code-generation section when the caller made it (a
+        cascade loop's prefix comes from the cascade); read from
+        ``keys["codegen"]`` otherwise.
+    description : str, optional
+        Used when the keys carry none (a cascade loop takes the cascade's).
+
+    Returns
+    -------
+    Schedule
+    """
     name = keys["name"].text()
     if not _NAME.match(name):
         raise keys["name"].error(
             f"schedule name {name!r} must start with a letter and use only letters, digits, '_' and '-'"
         )
-    description = keys["description"].text() if "description" in keys and not keys["description"].is_null else ""
+    if "description" in keys and not keys["description"].is_null:
+        description = keys["description"].text()
+    description = description or ""
 
     axes = _read_variables(keys["variables"])
     axis_names = tuple(axis.name for axis in axes)
     parameters = _read_parameters(keys.get("parameters"), axis_names)
     known = {a: "variables" for a in axis_names} | {p.name: "parameters" for p in parameters}
-    plant = _read_plant(keys["plant"], known)
+    points = _grid(axes)
+    plant = _read_plant(keys["plant"], known, axes, points)
     method, period, delay, prewarp = _read_sampling(keys["sampling"], known)
+    if plant.measured is not None:
+        _check_measured_use(keys, method)
 
     family = Family(
         file=file, axes=axes, parameters=parameters, plant=plant, period=period, delay=delay, method=method,
         prewarp=prewarp,
     )
-    points = _grid(axes)
     models = family.evaluate(points)
     prewarp_value = None
     if prewarp is not None:
@@ -139,7 +197,8 @@ def load_schedule(path: str | Path) -> Schedule:
     specs = read_specs(keys.get("specs"), axis_names)
     table_checks = read_table_checks(keys.get("table"), controller.structure)
     tolerances = read_tolerances(keys.get("tolerances"), {p.name: p.independent for p in parameters})
-    codegen = read_codegen(keys.get("codegen"), name, keys["name"])
+    if codegen is None:
+        codegen = read_codegen(keys.get("codegen"), name, keys["name"])
     _check_workload(keys, axes, table_checks, tolerances)
     low, high = family.output_limits(controller.output_limits, points, models.parameters)
     _check_full_scale(keys, (float(low.min()), float(high.max())), codegen.output_full_scale)
@@ -149,7 +208,7 @@ def load_schedule(path: str | Path) -> Schedule:
     sampling = Sampling(period=models.sample_period, method=method, delay=models.delay, prewarp=prewarp_value)
     return Schedule(
         path=file,
-        sha256=hashlib.sha256(data).hexdigest(),
+        sha256=sha256,
         name=name,
         description=description,
         axes=axes,
@@ -323,13 +382,18 @@ def _coefficients(node: Node, what: str, known: dict[str, str]) -> tuple[Express
     return tuple(expressions)
 
 
-def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
-    forms = ("transfer_function", "zpk", "state_space")
+def _read_plant(node: Node, known: dict[str, str], axes: tuple[Axis, ...], points: np.ndarray) -> PlantRecipe:
+    forms = ("transfer_function", "zpk", "state_space", "measured")
     keys = node.mapping(forms + ("dead_time",))
     given = [form for form in forms if form in keys]
     if len(given) != 1:
         found = "none" if not given else " and ".join(given)
         raise node.error(f"plant needs exactly one of {', '.join(forms)}; found {found}")
+    if given[0] == "measured":
+        if "dead_time" in keys:
+            raise keys["dead_time"].error("a measured plant's dead time is fitted from its data; remove plant.dead_time")
+        measured = read_measured(keys["measured"], axes, points, lambda point: describe_point(axes, point))
+        return PlantRecipe("measured", measured=measured)
     dead_time = None
     if "dead_time" in keys:
         dead_time = parse_expression(keys["dead_time"], "dead time (s)")
@@ -356,7 +420,8 @@ def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
         parts = section.mapping(("zeros", "poles", "gain"), required=("poles", "gain"))
         zeros = _roots(parts["zeros"], "zero", known) if "zeros" in parts else ()
         poles = _roots(parts["poles"], "pole", known)
-        degree = lambda roots: sum(2 if isinstance(r, Pair) else 1 for r in roots)
+        def degree(roots):
+            return sum(2 if isinstance(r, Pair) else 1 for r in roots)
         _check_order(parts["poles"], degree(poles), "zpk without poles is a static gain")
         if degree(zeros) > degree(poles):
             raise parts["zeros"].error(
@@ -367,6 +432,17 @@ def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
         gain.check_names(known, _TS_ONLY)
         return PlantRecipe("zpk", zeros=zeros, poles=poles, gain=gain, dead_time=dead_time)
     return _read_state_space(section, known, dead_time)
+
+
+def _check_measured_use(keys: dict[str, Node], method: str) -> None:
+    """A measured plant is judged with the zero-order hold and has no parameters to vary."""
+    if method != "zoh":
+        node = keys["sampling"].mapping()["method"]
+        raise node.error(f"a measured plant needs method 'zoh' (its data are judged with the zero-order hold "
+                         f"of the actuator); found {method!r}")
+    if "tolerances" in keys and not keys["tolerances"].is_null:
+        raise keys["tolerances"].error("tolerances vary parameters of a plant model; a measured plant has none "
+                                       "(measure the spread instead, as more operating points)")
 
 
 def _check_workload(keys: dict[str, Node], axes: tuple[Axis, ...], table_checks, tolerances) -> None:
@@ -515,7 +591,7 @@ def _read_sampling(node: Node, known: dict[str, str]):
 
 
 def _warnings(family: Family, models) -> list[str]:
-    warnings: list[str] = []
+    warnings: list[str] = list(family.plant.measured.warnings) if family.plant.measured is not None else []
     plant = models.plant
     if plant.order > 0:
         poles = batched_roots(plant.den)

@@ -328,6 +328,10 @@ class Schedule:
     codegen: CodegenSection
     warnings: tuple[str, ...]
     family: Family = field(repr=False)
+    #: ``sampler(points, scale) -> Loop``: the sampled plant when it is not
+    #: the family's plant discretised alone (the outer loop of a cascade sees
+    #: the inner closed loop, :mod:`gainloom.design.cascade`); None otherwise.
+    plant_sampler: Any = field(default=None, repr=False)
 
     @property
     def axis_names(self) -> tuple[str, ...]:

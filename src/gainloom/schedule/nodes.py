@@ -18,8 +18,8 @@ from typing import Any
 import yaml
 
 from ..errors import ScheduleError
-from ..names import unknown_name_message
 from ..limits import size_text
+from ..names import unknown_name_message
 
 __all__ = ["Node", "compose_text", "did_you_mean"]
 
@@ -38,7 +38,7 @@ def did_you_mean(name: str, known: Iterable[str]) -> str:
     return f" (did you mean {close[0]!r}?)" if close else ""
 
 
-def compose_text(text: str, file: str) -> "Node | None":
+def compose_text(text: str, file: str) -> Node | None:
     """Compose YAML ``text`` into a root :class:`Node` (``None`` for an empty document).
 
     Syntax errors become one :class:`ScheduleError` at the parser's mark.
@@ -164,7 +164,7 @@ class Node:
         finally:
             loader.dispose()
 
-    def mapping(self, allowed: Iterable[str] | None = None, required: Iterable[str] = ()) -> dict[str, "Node"]:
+    def mapping(self, allowed: Iterable[str] | None = None, required: Iterable[str] = ()) -> dict[str, Node]:
         """Children of a mapping node by key, after checking the keys.
 
         Parameters
@@ -202,7 +202,7 @@ class Node:
                 raise self.error(f"missing required key {key!r} in {where}", path=self.child_path(key))
         return children
 
-    def sequence(self, min_length: int = 0, what: str = "entries") -> list["Node"]:
+    def sequence(self, min_length: int = 0, what: str = "entries") -> list[Node]:
         """Children of a list node, checking a minimum length."""
         if not self.is_sequence:
             raise self.error(f"expected a list; found {self.kind}")

@@ -11,18 +11,21 @@ from .metrics import Instability, LoadResponse, SimulationMetrics
 from .result import REALISATION, SimulationResult, SpecCheck
 from .run import run_scenario
 from .scenario import LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs
+from .signals import Feedforward, LimitStep
 
 __all__ = [
-    "run_scenario",
+    "REALISATION",
+    "SIMULATION_FORMATS",
+    "Feedforward",
+    "Instability",
+    "LimitStep",
+    "LoadResponse",
+    "LoadStep",
+    "PiecewiseLinear",
     "Scenario",
     "ScenarioSpecs",
-    "PiecewiseLinear",
-    "LoadStep",
-    "SimulationResult",
     "SimulationMetrics",
+    "SimulationResult",
     "SpecCheck",
-    "Instability",
-    "LoadResponse",
-    "SIMULATION_FORMATS",
-    "REALISATION",
+    "run_scenario",
 ]

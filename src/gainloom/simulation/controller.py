@@ -34,10 +34,10 @@ import numpy as np
 from ..codegen.layout import LIMIT_TABLES, layout_table
 from ..codegen.mirror import FixedStepper, FloatStepper, lookup_gains, state_fields
 from ..codegen.qformat import STATE_FRAC, dequantize, quantize
+from ..design.lookup import interpolate_grid, interpolate_table
 from ..design.table import GainTable
 from ..errors import InputError
 from ..names import NUMBER_FORMATS, unknown_name_message
-from .interpolation import interpolate_grid, interpolate_table
 
 __all__ = ["SIMULATION_FORMATS", "STATE_NAMES", "TableController"]
 
@@ -143,6 +143,15 @@ class TableController:
             scale = self.layout.output_full_scale / 2.0**STATE_FRAC
             return [state[name] * scale for name in self.fields]
         return [float(state[name]) for name in self.fields]
+
+    def limits_in_force(self) -> tuple[float, float]:
+        """The output limits the last step used (the table's, tabulated or
+        run-time), physical units."""
+        low, high = self.stepper.in_force
+        if self.layout is not None and self.layout.fmt.is_fixed:
+            scale = self.layout.output_full_scale / 2.0**STATE_FRAC
+            return low * scale, high * scale
+        return float(low), float(high)
 
     def step(
         self,

@@ -6,8 +6,8 @@ Definitions
 - Tracking error ``e = r - y`` at the samples; RMS weighted by each
   sample's period, over ``t >= error_from``.
 - Overshoot and settling refer to the reference's first jump (a step), in
-  the window from the jump to the next event (a later reference breakpoint
-  or load step) or the end of the run.  Overshoot: largest excursion past
+  the window from the jump to the next event (a later reference breakpoint,
+  load step, limit step or the feedforward's start) or the end of the run.  Overshoot: largest excursion past
   the new reference value, percent of the step.  Settling time: from the
   jump to the first sample after which ``|y - r|`` stays within
   ``settle_band * |step|`` to the window's end; ``None`` if it never does.
@@ -19,13 +19,14 @@ Definitions
   ``diverged``: a non-finite value (a run is stopped once ``|y|`` passes
   1e100) or ``|e| > 1e6 * scale``, where scale is the largest of ``|r|``
   and of ``|y|`` over the first 3 samples after each event (the start, a
-  reference breakpoint, a load step): the size of the run's excitation;
+  other event): the size of the run's excitation;
   ``growing``: the run cut into 8 equal time windows, the peak ``|e|`` in
   each of the last three windows is at least 1.5 times that of the window
   before, and the last peak exceeds ``1e-6 * scale`` (geometric growth;
   linear or quadratic drift under a ramp does not fire);
   ``limit_cycle``: in each of the last two windows the controller output
-  changes between unsaturated, low rail and high rail at least 4 times (a
+  changes between unsaturated, low rail and high rail (the limits in force
+  at its sample) at least 4 times (a
   saturated oscillation; a steady saturation at one rail is not flagged
   here, it shows in the saturation time).
   A loop whose growth is slower than 1.5 times per eighth of the run is
@@ -142,7 +143,7 @@ def measure(
     reference: np.ndarray,
     output: np.ndarray,
     unsaturated: np.ndarray,
-    limits: tuple[float, float],
+    limits: tuple[float | np.ndarray, float | np.ndarray],
     scenario,
 ) -> SimulationMetrics:
     """Measure one run.
@@ -156,8 +157,9 @@ def measure(
         a run stopped by divergence.
     unsaturated : ndarray, shape (K,)
         Controller output before saturation.
-    limits : tuple of float
-        Output saturation ``(u_min, u_max)``.
+    limits : tuple of float or of ndarray, shape (K,)
+        Output saturation ``(u_min, u_max)`` in force at each sample
+        (tabulated or run-time limits vary).
     scenario : Scenario
         The scenario (events, band, error window).
     """
@@ -174,7 +176,7 @@ def measure(
     if not np.all(finite[window]):
         rms = peak = float("inf")
 
-    events = sorted({float(t) for t in scenario.reference.times} | {s.time for s in scenario.load_steps})
+    events = list(scenario.event_times)
     end = float(times[-1]) + float(periods[-1])
 
     def next_event(after: float) -> float:
@@ -232,13 +234,14 @@ def detect_instability(
     reference: np.ndarray,
     output: np.ndarray,
     unsaturated: np.ndarray,
-    limits: tuple[float, float],
+    limits: tuple[float | np.ndarray, float | np.ndarray],
     events: list[float] | tuple[float, ...] = (0.0,),
 ) -> Instability:
     """Apply the three criteria of the module docstring in order.
 
-    ``events`` are the times (s) of the start, reference breakpoints and
-    load steps; the output just after them sets the divergence scale.
+    ``events`` are the times (s) of the start and the scenario's events;
+    the output just after them sets the divergence scale.  ``limits`` are
+    the limits in force, numbers or one per sample.
     """
     error = reference - output
     span = float(times[-1] + periods[-1])

@@ -38,6 +38,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+
 from ..errors import InputError
 from ..lti.convert import tf_to_ss
 from ..lti.discretize import total_delay

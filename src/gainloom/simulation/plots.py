@@ -8,7 +8,6 @@ metadata, so the same result gives byte-identical files.
 
 from __future__ import annotations
 
-import io
 import os
 from pathlib import Path
 
@@ -17,13 +16,12 @@ import numpy as np
 from ..outputs import write_outputs
 from .result import SimulationResult
 
-__all__ = ["render_plots", "write_plots", "PLOT_FILE"]
+__all__ = ["PLOT_FILE", "render_plots", "write_plots"]
 
 #: File name of the figure written by :func:`write_plots`.
 PLOT_FILE = "simulation.png"
 
 _SIZE_INCHES = (8.0, 10.0)
-_DPI = 100
 
 
 def render_plots(result: SimulationResult) -> dict[str, bytes]:
@@ -44,13 +42,13 @@ def render_plots(result: SimulationResult) -> dict[str, bytes]:
         File name to PNG content.
     """
     import matplotlib.style
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
+    from cycler import cycler
+
+    from ..look import SERIES, new_figure, png_bytes
 
     t = result.time
-    with matplotlib.style.context("default"):
-        figure = Figure(figsize=_SIZE_INCHES, dpi=_DPI)
-        FigureCanvasAgg(figure)
+    with matplotlib.style.context(["default", {"axes.prop_cycle": cycler(color=SERIES)}]):
+        figure = new_figure(_SIZE_INCHES)
         axes = figure.subplots(4, 1, sharex=True)
         tracking, control, schedule, gains = axes
 
@@ -66,8 +64,14 @@ def render_plots(result: SimulationResult) -> dict[str, bytes]:
         low, high = result.output_limits
         control.plot(t, result.unsaturated, drawstyle="steps-post", color="0.6", label="before saturation")
         control.plot(t, result.control, drawstyle="steps-post", label="controller output u")
-        control.axhline(low, color="k", linestyle="--", linewidth=0.8, label="limits")
-        control.axhline(high, color="k", linestyle="--", linewidth=0.8)
+        # the limits the step used: tabulated or run-time ones move along the run
+        limit_low, limit_high = result.limits_in_force
+        for values, label in ((limit_low, "limits"), (limit_high, None)):
+            control.plot(t, values, drawstyle="steps-post", color="k", linestyle="--", linewidth=0.8, label=label)
+        low = float(np.min(limit_low[np.isfinite(limit_low)], initial=low))
+        high = float(np.max(limit_high[np.isfinite(limit_high)], initial=high))
+        if np.any(np.isfinite(result.feedforward) & (result.feedforward != 0)):
+            control.plot(t, result.feedforward, drawstyle="steps-post", color="C2", linewidth=0.8, label="feedforward")
         span = high - low
         finite = result.unsaturated[np.isfinite(result.unsaturated)]
         top = min(float(np.max(finite, initial=high)), high + span)
@@ -93,9 +97,8 @@ def render_plots(result: SimulationResult) -> dict[str, bytes]:
             panel.grid(True, linewidth=0.4)
             panel.legend(loc="upper right", fontsize="small")
         figure.tight_layout()
-        buffer = io.BytesIO()
-        figure.savefig(buffer, format="png", dpi=_DPI, metadata={"Software": None})
-    return {PLOT_FILE: buffer.getvalue()}
+        data = png_bytes(figure)
+    return {PLOT_FILE: data}
 
 
 def write_plots(result: SimulationResult, directory: str | os.PathLike, *, force: bool = False) -> list[Path]:

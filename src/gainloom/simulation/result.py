@@ -9,7 +9,7 @@ import numpy as np
 from ..plain import to_plain
 from .metrics import SimulationMetrics
 
-__all__ = ["SpecCheck", "SimulationResult", "REALISATION"]
+__all__ = ["REALISATION", "SimulationResult", "SpecCheck"]
 
 
 #: The plant realisation the simulator carries the state in (see plant.py).
@@ -39,7 +39,8 @@ class SimulationResult:
     axis_names : tuple of str
         Scheduling variables, in the columns of ``points``.
     output_limits : tuple of float
-        Controller output saturation ``(u_min, u_max)``.
+        Controller output saturation ``(u_min, u_max)`` of the table (its
+        envelope when the limits are tabulated).
     time, sample_period : ndarray, shape (K,)
         Sample instants and the period in force at each, s.
     points : ndarray, shape (K, n_axes)
@@ -50,6 +51,12 @@ class SimulationResult:
         Controller output after and before saturation.
     disturbance : ndarray, shape (K,)
         Load added to the plant input.
+    feedforward : ndarray, shape (K,)
+        Feedforward the step got (0 where the scenario has none).
+    limits_in_force : tuple of two ndarray, shape (K,)
+        Output limits ``(low, high)`` the step used at each sample: the
+        table's (tabulated ones at the sample's point) or the run-time
+        limits of the scenario; saturation time is measured against them.
     gains : dict of str to ndarray, shape (K,)
         Interpolated coefficients as the controller used them.
     states : dict of str to ndarray, shape (K,)
@@ -74,6 +81,8 @@ class SimulationResult:
     control: np.ndarray
     unsaturated: np.ndarray
     disturbance: np.ndarray
+    feedforward: np.ndarray
+    limits_in_force: tuple[np.ndarray, np.ndarray]
     gains: dict[str, np.ndarray]
     states: dict[str, np.ndarray]
     metrics: SimulationMetrics
@@ -120,6 +129,9 @@ class SimulationResult:
                 "control": self.control,
                 "unsaturated": self.unsaturated,
                 "disturbance": self.disturbance,
+                "feedforward": self.feedforward,
+                "limit_low": self.limits_in_force[0],
+                "limit_high": self.limits_in_force[1],
                 "gains": self.gains,
                 "states": self.states,
             }
@@ -134,8 +146,8 @@ class SimulationResult:
 
         verdict = "PASS" if self.passed else "FAIL"
         lines = [
-            f"{verdict}: {self.structure} controller in {self.number_format}, {self.time.size} samples "
-            f"over {self.scenario['duration']:g} s",
+            (f"{verdict}: {self.structure} controller in {self.number_format}, {self.time.size} samples "
+             f"over {self.scenario['duration']:g} s"),
             f"tracking error: RMS {num(m.rms_error)}, max {num(m.max_error)}",
         ]
         if m.step_time is not None:
@@ -155,11 +167,13 @@ class SimulationResult:
                 f"load step of {load.amplitude:g} at {load.time:g} s: peak deviation {num(load.peak_deviation)}, "
                 f"recovery {recovery}"
             )
-        lines.append(
-            f"saturation: {num(m.saturation_time, ' s')} ({m.saturation_fraction * 100:.3g} % of the run) "
-            f"at limits [{self.output_limits[0]:g}, {self.output_limits[1]:g}]"
-        )
-        lines.append(f"stability: {'UNSTABLE (' + m.instability.kind + ')' if not self.stable else 'ok'}: "
+        low, high = (values[np.isfinite(values)] for values in self.limits_in_force)
+        if low.size and (np.ptp(low) > 0 or np.ptp(high) > 0):
+            where = f"at the limits in force (low {np.min(low):g} to {np.max(low):g}, high {np.min(high):g} to {np.max(high):g})"
+        else:
+            where = f"at limits [{self.output_limits[0]:g}, {self.output_limits[1]:g}]"
+        lines.append(f"saturation: {num(m.saturation_time, ' s')} ({m.saturation_fraction * 100:.3g} % of the run) {where}")
+        lines.append(f"stability: {f'UNSTABLE ({m.instability.kind})' if not self.stable else 'ok'}: "
                      f"{m.instability.detail}")
         for check in self.checks:
             mark = "ok" if check.passed else "FAILED"

@@ -6,15 +6,16 @@ from typing import Any, Protocol
 
 import numpy as np
 
+from ..design.lookup import interpolate_grid
 from ..design.table import GainTable
 from ..errors import InputError
 from ..names import unknown_name_message
 from .controller import SIMULATION_FORMATS, TableController
-from .interpolation import interpolate_grid
 from .metrics import measure
 from .plant import sample_plant
 from .result import SimulationResult, SpecCheck
 from .scenario import Scenario
+from .signals import RunInputs
 from .timeline import sample_times
 
 __all__ = ["run_scenario"]
@@ -27,7 +28,9 @@ _STOP_MAGNITUDE = 1e100
 class ScheduleLike(Protocol):
     """What the simulator needs of a schedule: its axes and batched evaluation."""
 
-    axes: Any
+    @property
+    def axes(self) -> Any:  # pragma: no cover - protocol
+        ...
 
     def evaluate(self, points: np.ndarray, scale: Any = None) -> Any:  # pragma: no cover - protocol
         ...
@@ -54,6 +57,43 @@ def _check_specs(scenario: Scenario, metrics) -> tuple[SpecCheck, ...]:
         passed = value is not None and np.isfinite(value) and value <= limit
         checks.append(SpecCheck(name, limit, value, bool(passed)))
     return tuple(checks)
+
+
+def _run_inputs(
+    scenario: Scenario, axis_names: tuple[str, ...], points: np.ndarray, models: Any, times, reference
+) -> RunInputs:
+    """Feedforward and run-time limits of the scenario at the run's samples."""
+    variables = {name: points[:, i] for i, name in enumerate(axis_names)}
+    kinds = dict.fromkeys(axis_names, "scheduling variable")
+    for name, values in (getattr(models, "parameters", None) or {}).items():
+        if name not in variables:
+            variables[name] = np.broadcast_to(np.asarray(values, dtype=float), times.shape)
+            kinds[name] = "parameter"
+    return RunInputs(scenario.feedforward, scenario.limit_steps, times, reference, variables, kinds)
+
+
+def _input_warnings(
+    controller: TableController, times: np.ndarray, feedforward: np.ndarray, requested: np.ndarray
+) -> list[str]:
+    """What the step did with the feedforward and run-time limits that the user may not expect."""
+    warnings = []
+    ignored = requested[:, 0] > requested[:, 1]
+    if np.any(ignored):
+        warnings.append(
+            f"run-time limits with low > high at {np.count_nonzero(ignored)} samples (first at "
+            f"t = {times[np.argmax(ignored)]:.6g} s): the step ignored them and used the table's, as the generated C does"
+        )
+    layout = controller.layout
+    if layout is not None and layout.fmt.is_fixed:
+        full = layout.output_full_scale
+        beyond = (np.abs(feedforward) > full) | np.any(np.abs(requested) > full, axis=1)
+        if np.any(beyond):
+            warnings.append(
+                f"feedforward or run-time limits beyond the output full scale {full:g} at {np.count_nonzero(beyond)} "
+                f"samples (first at t = {times[np.argmax(beyond)]:.6g} s): they reached the step saturated at full "
+                "scale (raise --output-full-scale if the firmware scales them otherwise)"
+            )
+    return warnings
 
 
 def run_scenario(
@@ -132,9 +172,9 @@ def run_scenario(
             f"the scenario moves {', '.join(extra)}, which the schedule does not have "
             f"(schedule axes: {', '.join(schedule_axes)})"
         )
-    if scenario.specs.max_overshoot is not None or scenario.specs.max_settling_time is not None:
-        if not scenario.reference.jumps:
-            raise InputError("overshoot and settling specs need a reference step; the scenario's reference has none")
+    asks_step = scenario.specs.max_overshoot is not None or scenario.specs.max_settling_time is not None
+    if asks_step and not scenario.reference.jumps:
+        raise InputError("overshoot and settling specs need a reference step; the scenario's reference has none")
 
     times = sample_times(
         scenario.duration, lambda t: schedule.evaluate(scenario.points(schedule_axes, t)).sample_period
@@ -183,7 +223,9 @@ def run_scenario(
     controller = TableController(table, number_format, table_points, error_full_scale, output_full_scale)
     reference = scenario.reference(times)
     disturbance = scenario.disturbance(times)
-    output, control, unsaturated = (np.full(count, np.nan) for _ in range(3))
+    inputs = _run_inputs(scenario, schedule_axes, points, models, times, reference)
+    output, control, unsaturated, feedforward, limit_low, limit_high = (np.full(count, np.nan) for _ in range(6))
+    requested = np.full((count, 2), np.nan)  # run-time limits asked for (NaN: none)
     state_names = controller.state_names
     states = np.full((count, len(state_names)), np.nan)
 
@@ -195,7 +237,11 @@ def run_scenario(
         y = float(c[k] @ x + d[k] * previous_input)
         if not np.isfinite(y) or abs(y) > _STOP_MAGNITUDE:
             break
-        output[k], (control[k], unsaturated[k]) = y, controller.step(k, reference[k], y)
+        feedforward[k], limits = inputs.at(k, y)
+        output[k], (control[k], unsaturated[k]) = y, controller.step(k, reference[k], y, feedforward[k], limits)
+        limit_low[k], limit_high[k] = controller.limits_in_force()
+        if limits is not None:
+            requested[k] = limits
         states[k] = controller.states()
         lag = k - whole[k]
         newer = control[lag] if lag >= 0 else 0.0
@@ -217,7 +263,8 @@ def run_scenario(
                 "saw a saturated error there (raise --error-full-scale if the firmware scales it otherwise)"
             )
 
-    metrics = measure(times, period, reference, output, unsaturated, controller.limits, scenario)
+    warnings += _input_warnings(controller, times, feedforward, requested)
+    metrics = measure(times, period, reference, output, unsaturated, (limit_low, limit_high), scenario)
     return SimulationResult(
         number_format=number_format,
         structure=table.structure,
@@ -232,6 +279,8 @@ def run_scenario(
         control=control,
         unsaturated=unsaturated,
         disturbance=disturbance,
+        feedforward=feedforward,
+        limits_in_force=(limit_low, limit_high),
         gains={name: np.asarray(values, dtype=float) for name, values in controller.gains.items()},
         states={name: states[:, i] for i, name in enumerate(state_names)},
         metrics=metrics,

@@ -2,12 +2,15 @@
 
 A :class:`Scenario` names how long to run, how the scheduling variables move
 (piecewise-linear paths in time), what the output should follow (the
-reference) and which load (input-disturbance) steps hit the plant.  Optional
-:class:`ScenarioSpecs` turn the run into a pass/fail check.
+reference), which load (input-disturbance) steps hit the plant, and what the
+controller step gets besides the error: a feedforward term and run-time
+output limits (:mod:`.signals`).  Optional :class:`ScenarioSpecs` turn the
+run into a pass/fail check.
 """
 
 from __future__ import annotations
 
+import itertools
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -15,8 +18,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import InputError
+from .signals import Feedforward, LimitStep
 
-__all__ = ["PiecewiseLinear", "LoadStep", "ScenarioSpecs", "Scenario"]
+__all__ = ["LoadStep", "PiecewiseLinear", "Scenario", "ScenarioSpecs"]
 
 
 def _finite(value: float, what: str) -> float:
@@ -65,12 +69,12 @@ class PiecewiseLinear:
         object.__setattr__(self, "values", values)
 
     @classmethod
-    def constant(cls, value: float) -> "PiecewiseLinear":
+    def constant(cls, value: float) -> PiecewiseLinear:
         """A constant signal ``value``."""
         return cls([0.0], [_finite(value, "constant value")])
 
     @classmethod
-    def ramp(cls, start: float, end: float, t_start: float, t_end: float) -> "PiecewiseLinear":
+    def ramp(cls, start: float, end: float, t_start: float, t_end: float) -> PiecewiseLinear:
         """``start`` until ``t_start`` s, linear to ``end`` at ``t_end`` s, then held."""
         t_start, t_end = _finite(t_start, "ramp start time"), _finite(t_end, "ramp end time")
         if not t_end > t_start:
@@ -78,7 +82,7 @@ class PiecewiseLinear:
         return cls([t_start, t_end], [_finite(start, "ramp start"), _finite(end, "ramp end")])
 
     @classmethod
-    def step(cls, value: float, time: float = 0.0, initial: float = 0.0) -> "PiecewiseLinear":
+    def step(cls, value: float, time: float = 0.0, initial: float = 0.0) -> PiecewiseLinear:
         """``initial`` before ``time`` s, ``value`` from ``time`` on (a jump)."""
         time = _finite(time, "step time")
         return cls([time, time], [_finite(initial, "step initial value"), _finite(value, "step value")])
@@ -206,6 +210,12 @@ class Scenario:
     error_from : float, optional
         Start of the window (s) over which RMS and maximum tracking error
         are measured (default 0: the whole run).
+    feedforward : Feedforward, optional
+        Feedforward term of the controller step, added before saturation
+        (default: none, i.e. 0).
+    limit_steps : sequence of LimitStep, optional
+        Run-time output limits of the controller step and when they change
+        (default: none, the table's limits throughout).
     """
 
     duration: float
@@ -215,6 +225,8 @@ class Scenario:
     specs: ScenarioSpecs = field(default_factory=ScenarioSpecs)
     settle_band: float = 0.02
     error_from: float = 0.0
+    feedforward: Feedforward | None = None
+    limit_steps: tuple[LimitStep, ...] = ()
 
     def __post_init__(self) -> None:
         duration = _finite(self.duration, "duration")
@@ -247,6 +259,26 @@ class Scenario:
         if not 0 <= start < duration:
             raise InputError(f"error_from must lie in [0, duration) = [0, {duration}) s; got {start}")
         object.__setattr__(self, "error_from", start)
+        if self.feedforward is not None and not isinstance(self.feedforward, Feedforward):
+            raise InputError("feedforward must be a Feedforward")
+        limit_steps = tuple(self.limit_steps)
+        if not all(isinstance(s, LimitStep) for s in limit_steps):
+            raise InputError("limit_steps must be LimitStep objects")
+        limit_steps = tuple(sorted(limit_steps, key=lambda s: s.time))
+        for before, after in itertools.pairwise(limit_steps):
+            if before.time == after.time:
+                raise InputError(f"two limit steps at {after.time:g} s; give one per time")
+        object.__setattr__(self, "limit_steps", limit_steps)
+
+    @property
+    def event_times(self) -> tuple[float, ...]:
+        """Times at which the run is disturbed, in order: reference
+        breakpoints, load steps, limit steps and the feedforward's start."""
+        times = {float(t) for t in self.reference.times} | {s.time for s in self.load_steps}
+        times |= {s.time for s in self.limit_steps}
+        if self.feedforward is not None:
+            times.add(self.feedforward.start)
+        return tuple(sorted(times))
 
     def points(self, axis_names: tuple[str, ...], times: np.ndarray) -> np.ndarray:
         """Scheduling-variable values at ``times`` (s), shape ``(K, len(axis_names))``."""
@@ -277,4 +309,6 @@ class Scenario:
             "specs": self.specs.to_dict(),
             "settle_band": self.settle_band,
             "error_from": self.error_from,
+            "feedforward": None if self.feedforward is None else self.feedforward.to_dict(),
+            "limit_steps": [s.to_dict() for s in self.limit_steps],
         }

@@ -18,7 +18,7 @@ import numpy as np
 
 from ..errors import InputError
 
-__all__ = ["sample_times", "MAX_SAMPLES"]
+__all__ = ["MAX_SAMPLES", "sample_times"]
 
 #: Refuse runs longer than this many samples (a typo in duration or period).
 MAX_SAMPLES = 2_000_000

@@ -1,9 +1,10 @@
-"""Gain-table interpolation in float64: the ideal reference.
+"""Gain-table interpolation as the firmware does it, in floating point.
 
-The firmware formats (float32, Q15, Q31) are looked up by the
-code-generation layer's mirror of the C (:func:`gainloom.codegen.mirror.lookup_gains`);
-this module serves the ``float64`` reference run and the sample-period
-comparison.  Per axis the segment is found and the position in it taken as
+One implementation for every floating-point use: the between-point checks
+of the design, the ``float64`` reference simulation and the sample-period
+comparison.  The fixed-point formats (Q15, Q31) are looked up by the
+code-generation layer's bit-exact mirror of the C
+(:func:`gainloom.codegen.mirror.lookup_gains`).  Per axis the segment is found and the position in it taken as
 a fraction ``t``, clamped to the table's ends::
 
     i = segment with values[i] <= x < values[i+1]   (first/last at the ends)
@@ -18,10 +19,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..design.table import GainTable
 from ..errors import InputError
+from .table import GainTable
 
-__all__ = ["axis_segments", "interpolate_grid", "interpolate_table"]
+__all__ = ["axis_segments", "interpolate_grid", "interpolate_grids", "interpolate_table"]
 
 
 def axis_segments(values: np.ndarray, x: np.ndarray, dtype: type = np.float64) -> tuple[np.ndarray, np.ndarray]:
@@ -91,6 +92,19 @@ def interpolate_grid(
     raise InputError(f"interpolation supports one or two axes; got {len(axes_values)}")
 
 
+def interpolate_grids(
+    axes_values: tuple[np.ndarray, ...], grids: dict[str, np.ndarray], points: np.ndarray, dtype: type = np.float64
+) -> dict[str, np.ndarray]:
+    """Several grids on the same axes at the same points (see :func:`interpolate_grid`).
+
+    Returns
+    -------
+    dict of str to ndarray of dtype, shape (K,)
+        One entry per grid, in the order of ``grids``.
+    """
+    return {name: interpolate_grid(axes_values, grid, points, dtype) for name, grid in grids.items()}
+
+
 def interpolate_table(table: GainTable, points: np.ndarray, dtype: type = np.float64) -> dict[str, np.ndarray]:
     """Every coefficient of ``table`` at ``points``, in table order.
 
@@ -108,8 +122,5 @@ def interpolate_table(table: GainTable, points: np.ndarray, dtype: type = np.flo
     -------
     dict of str to ndarray of dtype, shape (K,)
     """
-    axes_values = tuple(axis.values for axis in table.axes)
-    return {
-        name: interpolate_grid(axes_values, table.coefficients[name], points, dtype)
-        for name in table.coefficient_names
-    }
+    grids = {name: table.coefficients[name] for name in table.coefficient_names}
+    return interpolate_grids(tuple(axis.values for axis in table.axes), grids, points, dtype)
