@@ -74,7 +74,7 @@ class DataCheck:
         points = []
         for i, row in enumerate(self.rows):
             points.append({
-                "index": int(row), "at": self.labels[i], "passed": not self.failed[i],
+                "index": int(row), "label": self.labels[i], "passed": not self.failed[i],
                 "failed": list(self.failed[i]), "coverage": list(m.coverage[i]),
                 "gain_margin_db": float(m.gain_margin_db[i]), "phase_margin_deg": float(m.phase_margin[i]),
                 "crossover_rad_s": float(m.crossover[i]), "last_crossover_rad_s": float(m.last_crossover[i]),
