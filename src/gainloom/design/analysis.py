@@ -335,6 +335,7 @@ def analyse(
     *,
     step: bool = True,
     frequency: bool = True,
+    origins: bool = True,
 ) -> PointAnalysis:
     """Analyse table coefficients on the discretised plant at every point.
 
@@ -355,6 +356,11 @@ def analyse(
         leaves them NaN (a required frequency-domain spec then fails): for
         callers that judge no such spec, as the tolerance study on a
         schedule without one, where they are most of the cost.
+    origins : bool
+        Trace the least-damped pole back to the open-loop pole its branch
+        starts at (default).  ``False`` reports ``"not traced"``: for the
+        tolerance study, which reports no origin and where the trace (many
+        root solves per loop) is most of the cost of a pole-only analysis.
 
     Returns
     -------
@@ -379,7 +385,10 @@ def analyse(
     damping_pole = np.take_along_axis(poles, least, axis=-1)[:, 0] if poles.shape[-1] else np.full(plant.points, np.nan)
     with np.errstate(divide="ignore", invalid="ignore"):
         damping_pole_s = np.log(damping_pole) / ts
-    origin, start = pole_origins(loop, plant, damping_pole)
+    if origins:
+        origin, start = pole_origins(loop, plant, damping_pole)
+    else:
+        origin, start = ("not traced",) * plant.points, np.full(plant.points, complex(np.nan, np.nan))
     if frequency:
         margins = loop_margins(loop, 1.0)
         bandwidth = closed_loop_bandwidth(loop, 1.0)

@@ -213,7 +213,7 @@ def run_unit(sched, structure: str, specs: tuple[str, ...], draws: int, unit: St
     step = "max_overshoot" in specs or "max_settling_time" in specs
     frequency = any(s in specs for s in FREQUENCY_SPECS)
     analysis = analyse(plant, structure, {k: v[owner] for k, v in unit.coefficients.items()}, limits,
-                       step=step, frequency=frequency)
+                       step=step, frequency=frequency, origins=False)
     shape = (unit.point_index.size, count)
     failed = np.stack([~analysis.verdicts[s] for s in specs], axis=-1).reshape(shape + (len(specs),))
     badness = np.stack([spec_badness(s, analysis.values[s], spec_limit(limits, s)) for s in specs], axis=-1)
