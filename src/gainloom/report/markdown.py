@@ -264,7 +264,7 @@ def _measured(doc: dict[str, Any]) -> list[str]:
              number(e["crossover_rad_s"]), number(e["sensitivity_peak"]),
              f"{number(100 * e['fit_error'])} / {number(100 * e['fit_error_near_crossover'])}",
              "pass" if e["passed"] else "FAIL: " + "; ".join(e["failed"])] for e in m["points"]]
-    lines += _table(["#", "point", "GM [dB]", "PM [deg]", "ωc [rad/s]", "Ms", "fit error % (all / near ωc)",
+    lines += table_lines(["#", "point", "GM [dB]", "PM [deg]", "ωc [rad/s]", "Ms", "fit error % (all / near ωc)",
                      "on the data"], rows)
     notes = [f"- {e['label']}: {note}" for e in m["points"] for note in e["coverage"]]
     return lines + (notes + [""] if notes else [])
