@@ -75,7 +75,7 @@ class DataCheck:
         points = []
         for i, row in enumerate(self.rows):
             points.append({
-                "index": int(row), "at": self.labels[i], "passed": not self.failed[i],
+                "index": int(row), "label": self.labels[i], "passed": not self.failed[i],
                 "failed": list(self.failed[i]), "coverage": list(m.coverage[i]),
                 "gain_margin_db": float(m.gain_margin_db[i]), "phase_margin_deg": float(m.phase_margin[i]),
                 "crossover_rad_s": float(m.crossover[i]), "last_crossover_rad_s": float(m.last_crossover[i]),
@@ -133,6 +133,7 @@ def check_on_data(sched, points: np.ndarray, structure: str, coefficients: dict[
     if measured is None:
         return None
     rows = grid_index(np.asarray(sched.points, dtype=float), np.asarray(points, dtype=float))
+    # C(z) of the table; controller sections added to the loop elsewhere must be multiplied in here too
     num, den = controller_polynomials(structure, {k: np.asarray(v, float)[rows] for k, v in coefficients.items()})
     ts = np.asarray(sched.sampling.period, dtype=float)
     filters = sched.filters_at(sched.points)
