@@ -123,17 +123,7 @@ def test_a_point_that_passes_on_the_model_but_fails_on_the_data_fails(tmp_path):
     # peak, as a compliant coupling gives) at load 2, which a fixed 2-pole fit cannot
     # follow: on the model the design passes, on the data the peak lifts |L| near
     # the phase crossover.
-    schedule = _copy_demo(tmp_path)
-    text = schedule.read_text().replace("      max_poles: 3", "      poles: 2\n      zeros: 0")
-    schedule.write_text(text.replace("tolerance: 0.03", "tolerance: 0.5"))
-    wr = 2 * np.pi * 320
-
-    def resonance(f, mag, ph):
-        s = 2j * np.pi * f
-        r = (s**2 + 2 * 0.3 * wr * s + wr**2) / (s**2 + 2 * 0.05 * wr * s + wr**2)
-        return mag + 20 * np.log10(abs(r)), ph + np.degrees(np.angle(r))
-
-    _rewrite(tmp_path / "measured_speed" / "load_2.csv", resonance)
+    schedule = _resonant_demo(tmp_path, 0.05, 0.3)
     result = gainloom.design(schedule)
     assert not result.passed
     assert result.status == ("pass", "fail", "pass", "pass")
@@ -180,3 +170,38 @@ def test_controller_polynomials_are_the_tables(demo_design):
     z = np.exp(1j * 0.3)
     kp, ki = demo_design.table.coefficients["kp"], demo_design.table.coefficients["ki_ts"]
     np.testing.assert_allclose((num[:, 0] * z + num[:, 1]) / (den[:, 0] * z + den[:, 1]), kp + ki * z / (z - 1))
+
+
+def _resonant_demo(tmp_path: Path, pole_zeta: float, zero_zeta: float | None) -> Path:
+    """The demo with an invented 320 Hz resonance at load 2 and a fixed 2-pole fit."""
+    schedule = _copy_demo(tmp_path)
+    text = schedule.read_text().replace("      max_poles: 3", "      poles: 2\n      zeros: 0")
+    schedule.write_text(text.replace("tolerance: 0.03", "tolerance: 0.5"))
+    wr = 2 * np.pi * 320
+
+    def resonance(f, mag, ph):
+        s = 2j * np.pi * f
+        zeros = wr**2 if zero_zeta is None else s**2 + 2 * zero_zeta * wr * s + wr**2
+        r = zeros / (s**2 + 2 * pole_zeta * wr * s + wr**2)
+        return mag + 20 * np.log10(abs(r)), ph + np.degrees(np.angle(r))
+
+    _rewrite(tmp_path / "measured_speed" / "load_2.csv", resonance)
+    return schedule
+
+
+def test_verify_judges_a_table_on_the_data_too(tmp_path, demo_design):
+    # the demo's own table, re-checked against data with the resonance at load 2
+    result = gainloom.verify(_resonant_demo(tmp_path, 0.05, 0.3), demo_design.table)
+    assert result.status == ("pass", "fail", "pass", "pass")
+    assert not result.passed and not result.data_check.passed
+
+
+def test_a_fit_with_right_half_plane_poles_is_refused_at_the_section(tmp_path):
+    # a sharp peak (zeta 0.03, +24 dB) that 2 poles cannot follow: the least squares put
+    # poles in the right half plane, which no plant swept in open loop has
+    schedule = _resonant_demo(tmp_path, 0.03, None)
+    with pytest.raises(gainloom.errors.ScheduleError) as caught:
+        gainloom.load_schedule(schedule)
+    error = caught.value
+    assert error.key_path == "plant.measured" and error.file == str(schedule)
+    assert "right-half-plane pole" in error.message and "load=2" in error.message

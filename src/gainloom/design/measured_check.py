@@ -132,6 +132,7 @@ def check_on_data(sched, points: np.ndarray, structure: str, coefficients: dict[
     if measured is None:
         return None
     rows = grid_index(np.asarray(sched.points, dtype=float), np.asarray(points, dtype=float))
+    # C(z) of the table; controller sections added to the loop elsewhere must be multiplied in here too
     num, den = controller_polynomials(structure, {k: np.asarray(v, float)[rows] for k, v in coefficients.items()})
     ts = np.asarray(sched.sampling.period, dtype=float)
     loop = sampled_loop_on_data(measured.w, measured.response, ts, np.asarray(sched.sampling.delay, float), num, den)

@@ -36,6 +36,9 @@ FIT_KEYS = ("poles", "zeros", "dead_time", "max_poles", "tolerance")
 #: percent is the repeatability of a good sweep).
 DEFAULT_TOLERANCE = 0.05
 DEFAULT_MAX_POLES = 4
+#: A right-half-plane pole closer to the origin than the lowest measured
+#: frequency over this factor is left unresolved (a warning), not an error.
+UNRESOLVED_FACTOR = 10.0
 # Grid values of a point in the data match the schedule's within this (relative).
 _MATCH = 1e-9
 
@@ -263,12 +266,23 @@ def _fit(node: Node, w: np.ndarray, h: np.ndarray, settings: FitSettings) -> Res
             fit = fit_response(w, h, poles, zeros, fit_delay=settings.dead_time)
         except InputError as error:
             raise node.error(str(error)) from None
-        if np.all(fit.rms_error <= settings.tolerance):
+        stable = not np.any(_right_half_plane(fit, w)[1])
+        if stable and np.all(fit.rms_error <= settings.tolerance):
             return fit
-        if best is None or np.max(fit.rms_error) < np.max(best.rms_error):
-            best = fit
+        # the best so far: a stable model first, then the smaller worst error
+        if best is None or (stable, -np.max(fit.rms_error)) > best[0]:
+            best = ((stable, -np.max(fit.rms_error)), fit)
     assert best is not None
-    return best
+    return best[1]
+
+
+def _right_half_plane(fit: ResponseFit, w: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Poles (P, n), those in the right half plane far below the data (unresolved), and the others."""
+    poles = batched_roots(fit.den)
+    lowest = np.nanmin(w, axis=1)[:, np.newaxis]
+    # a pole far below the data's band is not pinned down: an integrator may come out at +0.01 rad/s
+    unresolved = (poles.real > 0) & (np.abs(poles) < lowest / UNRESOLVED_FACTOR)
+    return poles, (poles.real > 0) & ~unresolved, unresolved
 
 
 def _fit_warnings(plant: MeasuredPlant, points: np.ndarray, describe) -> list[str]:
@@ -287,12 +301,19 @@ def _fit_warnings(plant: MeasuredPlant, points: np.ndarray, describe) -> list[st
         warnings.append(f"measured plant: sample at {plant.source(int(p), int(k))} ({plant.w[p, k] / (2 * np.pi):.4g} "
                         "Hz) is an isolated outlier, left out of the fit (the data-judged margins still use it; "
                         "check or delete the row)")
-    poles = batched_roots(fit.den)
-    unstable = np.flatnonzero(np.any(poles.real > 0, axis=1))
-    if unstable.size:
-        p = int(unstable[0])
-        worst = poles[p][np.argmax(poles[p].real)]
-        warnings.append(f"measured plant: the fitted model has a right-half-plane pole at {worst:.4g} rad/s at "
-                        f"{describe(points[p])} (and {unstable.size - 1} more point(s)); if the plant is stable, "
-                        "the data below the lowest frequency do not pin that pole down")
+    poles, unstable, unresolved = _right_half_plane(fit, plant.w)
+    lowest = np.nanmin(plant.w, axis=1)[:, np.newaxis]
+    if np.any(unstable):
+        p = int(np.flatnonzero(np.any(unstable, axis=1))[0])
+        worst = poles[p][np.argmax(np.where(unstable[p], poles[p].real, -np.inf))]
+        raise plant.node.error(
+            f"the fitted model at {describe(points[p])} has a right-half-plane pole at {worst:.4g} rad/s "
+            f"(rms fit error {100 * fit.rms_error[p]:.1f} %); a plant swept in open loop is stable, so the fit "
+            f"failed: give plant.measured.fit an order that follows the data ({fit.poles} poles, {fit.zeros} "
+            "zeros now), or check the data there")
+    if np.any(unresolved):
+        p = int(np.flatnonzero(np.any(unresolved, axis=1))[0])
+        warnings.append(f"measured plant: the fitted model has a pole at {np.max(poles[p].real):.3g} rad/s at "
+                        f"{describe(points[p])}, far below the lowest measured frequency {lowest[p, 0]:.4g} rad/s: "
+                        "the data do not pin it down (an integrator?); the design treats it as it is")
     return warnings
