@@ -37,7 +37,7 @@ from .fallbacks import (
 )
 from .measured_check import check_on_data, merge_data_verdict
 from .results import DesignResult, VerifyResult
-from .search import OBJECTIVE_TEXT, Choice, _samples_in, choose_gains, objective_values
+from .search import OBJECTIVE_TEXT, Choice, choose_gains, objective_values, samples_in
 from .specs import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
 from .structures import LocusForm, coefficients_from_locus
@@ -53,7 +53,7 @@ STEP_RETRIES = 24
 Progress = Callable[[str, int, int], None]
 
 
-def _load(schedule: Any):
+def load_for_design(schedule: Any):
     from ..schedule import Schedule, load_schedule
 
     if isinstance(schedule, Schedule):
@@ -132,7 +132,7 @@ def _step_retry(plant, structure, shapes, choice: Choice, coefficients, limits, 
         intervals = choice.intervals[p]
         if not intervals:
             continue
-        gains = _samples_in(intervals, STEP_RETRIES)
+        gains = samples_in(intervals, STEP_RETRIES)
         gains = gains[np.isfinite(gains)]
         if gains.size == 0:
             continue
@@ -193,7 +193,7 @@ def _choose_chunk(args) -> Choice:
     return first
 
 
-def _workers(chunks: int) -> int:
+def worker_count(chunks: int) -> int:
     """Worker processes for the search: ``GAINLOOM_WORKERS`` or the CPU count (max 8); 1 for one chunk."""
     import os
 
@@ -217,7 +217,7 @@ def _run_chunks(chunks, progress, total) -> list[Choice]:
     """
     import multiprocessing
 
-    workers = _workers(len(chunks))
+    workers = worker_count(len(chunks))
     done = 0
     results: list[Choice] = []
     if workers > 1 and "fork" in multiprocessing.get_all_start_methods():
@@ -549,11 +549,11 @@ def _table(sched, points_shape, axes_values, coefficients, plant) -> GainTable:
         axes=axes,
         coefficients={k: np.asarray(v, float).reshape(shape) for k, v in coefficients.items()},
         sample_period=np.asarray(plant.ts, float).reshape(shape),
-        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(_grid_points(list(axes_values)))),
+        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(grid_points(list(axes_values)))),
     )
 
 
-def _grid_points(axes_values: list[np.ndarray]) -> np.ndarray:
+def grid_points(axes_values: list[np.ndarray]) -> np.ndarray:
     mesh = np.meshgrid(*axes_values, indexing="ij")
     return np.stack([m.ravel() for m in mesh], axis=-1)
 
@@ -576,9 +576,9 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     """
     from .table_checks import run_table_checks
 
-    sched = _load(schedule)
+    sched = load_for_design(schedule)
     axes_values = [np.asarray(a.values, float) for a in sched.axes]
-    points = _grid_points(axes_values)
+    points = grid_points(axes_values)
     point_design = design_points(sched, points, progress)
     report, point_design, axes_values = run_table_checks(sched, point_design, axes_values, progress=progress)
     table = _table(sched, None, axes_values, point_design.coefficients, point_design.plant)
@@ -650,7 +650,7 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
     from .gainsfile import read_gains
     from .table_checks import run_table_checks
 
-    sched = _load(schedule)
+    sched = load_for_design(schedule)
     if isinstance(gains, GainTable):
         table, gains_path = gains, ""
     else:
@@ -666,7 +666,7 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
             "checked as written in the gains file"
         )
     axes_values = [a.values for a in table.axes]
-    points = _grid_points(axes_values)
+    points = grid_points(axes_values)
     plant = sampled_plant(sched, points)
     limits = limits_at(sched, points)
     coefficients = {k: v.ravel() for k, v in table.coefficients.items()}

@@ -25,6 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
+from ..lti.convert import poly_from_roots
 from ..lti.loop import Loop
 from ..lti.polynomials import pad_left, polymul
 from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
@@ -76,16 +77,6 @@ def check_structure(structure: str) -> str:
 def zero_count(structure: str) -> int:
     """Number of controller zeros a strategy places (0, 1 or 2)."""
     return {"p": 0, "pi": 1, "pd": 1, "pid": 2, "lead": 1, "lag": 1, "leadlag": 2}[check_structure(structure)]
-
-
-def _roots_poly(roots: np.ndarray) -> np.ndarray:
-    """Monic polynomial with the given real roots on the last axis (batched)."""
-    roots = np.asarray(roots, dtype=float)
-    poly = np.ones(roots.shape[:-1] + (1,))
-    for k in range(roots.shape[-1]):
-        factor = np.stack([np.ones_like(roots[..., k]), -roots[..., k]], axis=-1)
-        poly = polymul(poly, factor)
-    return poly
 
 
 def _coef(coefficients: dict[str, np.ndarray], name: str) -> np.ndarray:
@@ -161,14 +152,14 @@ def controller_polynomials(structure: str, coefficients: dict[str, np.ndarray]) 
         num = c["kc"][..., None] * np.stack([one, -c["zc"]], axis=-1)
         den = np.stack([one, -c["pc"]], axis=-1)
     else:  # leadlag
-        zeros = _roots_poly(np.stack([c["zc1"], c["zc2"]], axis=-1))
+        zeros = poly_from_roots(np.stack([c["zc1"], c["zc2"]], axis=-1))
         num = c["kc"][..., None] * zeros
-        den = _roots_poly(np.stack([c["pc1"], c["pc2"]], axis=-1))
+        den = poly_from_roots(np.stack([c["pc1"], c["pc2"]], axis=-1))
     del zero
     return pad_left(num, den.shape[-1]), den
 
 
-def _z_to_delta(poly: np.ndarray, ts: np.ndarray) -> np.ndarray:
+def z_to_delta(poly: np.ndarray, ts: np.ndarray) -> np.ndarray:
     """Substitute ``z = 1 + ts g`` into descending ``poly`` (exact algebra).
 
     ``ts`` broadcasts against the batch axes of ``poly``.
@@ -198,8 +189,8 @@ def controller_delta_polynomials(
     is 1 (the same rational function, better scaled).
     """
     num, den = controller_polynomials(structure, coefficients)
-    dnum = _z_to_delta(num, ts)
-    dden = _z_to_delta(den, ts)
+    dnum = z_to_delta(num, ts)
+    dden = z_to_delta(den, ts)
     lead = dden[..., :1]
     return dnum / lead, dden / lead
 
@@ -225,7 +216,7 @@ class LocusForm:
     @property
     def denominator(self) -> np.ndarray:
         """Monic denominator ``Q`` with roots :attr:`poles`."""
-        return _roots_poly(self.poles)
+        return poly_from_roots(self.poles)
 
 
 def fixed_poles(structure: str, kd_a: np.ndarray | float | None = None, pc: np.ndarray | None = None) -> np.ndarray:

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from .markdown import _table, number, render_markdown
+from .markdown import number, render_markdown, table_lines
 
 __all__ = ["render_cascade_markdown"]
 
@@ -15,7 +15,7 @@ def _pair_lines(pair: dict[str, Any]) -> list[str]:
     outer, separation = pair["outer_specs_with_inner"], pair["bandwidth_separation"]
     worst = separation["worst"]
     lines = [f"### {pair['outer']} around {pair['inner']}", ""]
-    lines += _table(["check", "result", "measured"], [
+    lines += table_lines(["check", "result", "measured"], [
         ["outer specs with the inner loop at every inner breakpoint and midpoint",
          "pass" if outer["passed"] else "FAIL",
          (f"{outer['failed_pairs']} of {pair['pairs_checked']} point pairs fail; min GM "
@@ -27,7 +27,7 @@ def _pair_lines(pair: dict[str, Any]) -> list[str]:
          f"({number(worst['inner_crossover'])} / {number(worst['outer_crossover'])} rad/s)")],
     ])
     if outer["failures"]:
-        lines += _table(["outer point", "inner point", "failing specs"],
+        lines += table_lines(["outer point", "inner point", "failing specs"],
                         [[f["outer_point"], f["inner_point"], ", ".join(f["failed_specs"])] for f in outer["failures"]])
     return lines
 
@@ -44,7 +44,7 @@ def render_cascade_markdown(doc: dict[str, Any]) -> str:
     lines = [f"# Cascade verification log: {info['path']}", "", f"**Verdict: {word}.**", ""]
     lines += [(f"Loops, inner first: {', '.join(info['loops'])}; one C module: {', '.join(info['c_files'])} "
               "(calling order in the header)."), ""]
-    lines += _table(["stage", "result", "detail"],
+    lines += table_lines(["stage", "result", "detail"],
                     [[s["stage"], s["status"], s["detail"]] for s in info["stages"]])
     lines += ["## Cascade checks", ""]
     for pair in info["checks"]["pairs"]:
