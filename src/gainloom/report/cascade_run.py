@@ -40,10 +40,10 @@ from .run import (
     Progress,
     StagedOutcome,
     StageVerdict,
-    _design_stage,
-    _harness_stage,
-    _quantisation_stage,
-    _resolve_format,
+    design_stage,
+    harness_stage,
+    quantisation_stage,
+    resolve_format,
 )
 
 __all__ = ["CascadeJobResult", "cascade_stage", "run_cascade_job"]
@@ -109,11 +109,11 @@ def default_cascade_scenario(design: Any) -> Any:
     loop's ``inner_at`` and the shared variables.
     """
     from ..simulation.cascade import CascadeScenario
-    from .run import LOAD_STEP_FRACTION, SIMULATION_MAX_SAMPLES, _time_scale
+    from .run import LOAD_STEP_FRACTION, SIMULATION_MAX_SAMPLES, time_scale
 
     inner_sched, outer_sched = design.schedules
     outer_loop = design.cascade.loops[1]
-    scale, _basis = _time_scale(design.results[1])
+    scale, _basis = time_scale(design.results[1])
     base = float(inner_sched.sampling.period[0])
     scale = min(scale, SIMULATION_MAX_SAMPLES * base / 6.0)
     outer_point = {a.name: 0.5 * (float(a.values[0]) + float(a.values[-1])) for a in outer_sched.axes}
@@ -244,7 +244,7 @@ def run_cascade_job(
 
     out = check_output_folder(out_dir)
     cascade = load_cascade(Path(cascade_path))
-    number_format = _resolve_format(cascade.loops[0].schedule, number_format)
+    number_format = resolve_format(cascade.loops[0].schedule, number_format)
     prefix = cascade.codegen.prefix if prefix is None else validate_prefix(prefix)
     cascade = _with_prefix(cascade, prefix, number_format)
     design = design_cascade(cascade, progress=progress)
@@ -327,7 +327,7 @@ def _stages(cascade: Any, design: Any, quantisation: tuple, harness: tuple, numb
             c_texts: dict[str, str], run: Any) -> list[StageVerdict]:
     stages: list[StageVerdict] = []
     for loop, result, quant, check in zip(cascade.loops, design.results, quantisation, harness):
-        for stage in (_design_stage(result), _quantisation_stage(quant, number_format), _harness_stage(check)):
+        for stage in (design_stage(result), quantisation_stage(quant, number_format), harness_stage(check)):
             stages.append(StageVerdict(f"{loop.name}: {stage.stage}", stage.status, stage.detail))
     stages.append(cascade_stage(design.checks))
     stages.append(StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, one module "

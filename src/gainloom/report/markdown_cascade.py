@@ -53,7 +53,7 @@ def render_cascade_markdown(doc: dict[str, Any]) -> str:
     if simulation is not None:
         lines += ["## Cascade run", "", f"Number format {simulation['number_format']}; "
                   f"{'stable' if simulation['stable'] else 'UNSTABLE'}; plot cascade_simulation.png.", ""]
-        lines += _table(["loop", "samples", "saturated %", "step overshoot %", "settling s", "load peak deviation"],
+        lines += table_lines(["loop", "samples", "saturated %", "step overshoot %", "settling s", "load peak deviation"],
                         [[r["name"], r["samples"], number(100 * r["metrics"]["saturation_fraction"]),
                           number(r["metrics"]["overshoot_percent"]), number(r["metrics"]["settling_time"]),
                           number(r["metrics"]["load_responses"][0]["peak_deviation"]
