@@ -46,3 +46,17 @@ def test_the_log_of_a_measured_design_has_the_plot(demo):
     files = render_verification(schedule=demo, result=result, table=result.table)
     assert MEASURED_PLOT in files
     assert files[MEASURED_PLOT][:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_the_log_carries_the_data_verdict_and_fits_its_schema(demo):
+    import json
+
+    from gainloom.report.schema import validate
+
+    result = gainloom.design(demo)
+    files = render_verification(schedule=demo, result=result, table=result.table, plots=False)
+    document = json.loads(files["verification.json"])
+    assert validate(document) == []
+    assert document["measured"]["passed"] is True
+    assert [e["index"] for e in document["measured"]["points"]] == [0, 1, 2, 3]
+    assert "## Measured data" in files["verification.md"]

@@ -252,6 +252,24 @@ def _c_check(doc: dict[str, Any]) -> list[str]:
     return lines
 
 
+def _measured(doc: dict[str, Any]) -> list[str]:
+    m = doc.get("measured")
+    if m is None:
+        return []
+    lines = ["## Measured data", "",
+             f"**{'pass' if m['passed'] else 'FAIL'}**: the table's frequency specs judged again on the raw "
+             "sweep samples (zero-order hold and computation delay applied on the data's grid); the design "
+             "ran on the fitted models.", ""]
+    rows = [[e["index"], e["label"], number(e["gain_margin_db"]), number(e["phase_margin_deg"]),
+             number(e["crossover_rad_s"]), number(e["sensitivity_peak"]),
+             f"{number(100 * e['fit_error'])} / {number(100 * e['fit_error_near_crossover'])}",
+             "pass" if e["passed"] else "FAIL: " + "; ".join(e["failed"])] for e in m["points"]]
+    lines += table_lines(["#", "point", "GM [dB]", "PM [deg]", "ωc [rad/s]", "Ms", "fit error % (all / near ωc)",
+                     "on the data"], rows)
+    notes = [f"- {e['label']}: {note}" for e in m["points"] for note in e["coverage"]]
+    return lines + (notes + [""] if notes else [])
+
+
 def _simulation(doc: dict[str, Any]) -> list[str]:
     s = doc["simulation"]
     lines = ["## Simulation", ""]
@@ -331,7 +349,7 @@ def render_markdown(doc: dict[str, Any]) -> str:
     lines: list[str] = []
     from .markdown_target import target_section  # it uses this module's table writer
 
-    for part in (_summary, _points, _worst, _table_checks, _quantisation, _c_check, target_section, _simulation,
+    for part in (_summary, _points, _worst, _measured, _table_checks, _quantisation, _c_check, target_section, _simulation,
                  _warnings, _cautions, _inputs, _plots):
         lines += part(doc)
     text = "\n".join(line.rstrip() for line in lines).rstrip() + "\n"
