@@ -48,9 +48,11 @@ def test_demo_schedules_inspect_cleanly(path, capsys):
     text = run_cli(str(path))
     assert text.returncode == 0, text.stderr
     assert text.stderr == ""
-    assert "z poles" in text.stdout and "warning" not in text.stdout
+    # the measured demo's sweep holds three bad samples on purpose (examples/make_measured_data.py)
+    expected = 3 if path.stem == "measured_speed" else 0
+    assert "z poles" in text.stdout and text.stdout.count("warning") == expected
     data = in_process_json(path, capsys)
-    assert data["warnings"] == []
+    assert len(data["warnings"]) == expected
     assert len(data["points"]) == math.prod(data["grid_shape"])
 
 

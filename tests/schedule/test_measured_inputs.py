@@ -142,3 +142,12 @@ def test_cli_prints_one_located_line_and_exits_2(copy, tmp_path):
     assert done.returncode == 2
     assert "Traceback" not in done.stderr
     assert f"{path}:{HEADER + 4}:6: magnitude 'abc' is not a number" in done.stderr
+
+
+def test_inspect_lists_the_fit_per_point():
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join(p for p in sys.path if p))
+    done = subprocess.run([sys.executable, "-m", "gainloom", "inspect", str(DEMO)], check=False,
+                          capture_output=True, text=True, env=env, timeout=300)
+    assert done.returncode == 0, done.stderr
+    assert "measured plant: fitted 2 poles, 0 zeros and a dead time (order chosen" in done.stdout
+    assert done.stdout.count("load_") >= 4 + 3  # four files in the table, three outlier warnings

@@ -291,7 +291,7 @@ def run(args: argparse.Namespace) -> int:
         print(verdict_line(job))
         print(f"output folder: {job.out_dir}")
         print(f"  gains file: {job.gains_path}")
-        print(f"  C: {', '.join(str(p) for p in job.c_files)}")
+        print(f"  C: {', '.join(str(p) for p in job.c_files) or 'not generated (see the C code stage)'}")
         print(f"  log: {job.out_dir / 'verification.md'} (verification.json, "
               f"{sum(p.suffix == '.png' for p in job.files)} PNG plots)")
     print(CAUTION, file=sys.stderr if args.json else sys.stdout)

@@ -17,6 +17,7 @@ import numpy as np
 
 from ..errors import DesignError, InputError
 from ..lti.discretize import discretize_loop
+from ..lti.filters import with_filter
 from ..lti.loop import Loop
 from ..names import (
     CROSSOVER_OBJECTIVES,
@@ -64,17 +65,32 @@ def load_for_design(schedule: Any):
 
 
 def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = None) -> Loop:
-    """The discretised plant (hold, sample period, computation delay) at ``points``.
+    """The fixed part of the loop at ``points``: the discretised plant (hold,
+    sample period, computation delay) followed by the ``controller.filters``.
 
-    A schedule with a ``plant_sampler`` (the outer loop of a cascade) gets its
-    plant from it: the inner closed loop as the outer loop samples it.
+    Every analysis multiplies the controller into this loop, so the filters
+    are in the locus, margins, intervals, specs, between-point and tolerance
+    checks through this one function.  The filters are evaluated at the
+    nominal parameters whatever ``scale`` says (the firmware's filter does
+    not follow a tolerance); the plant is scaled.  A schedule with a
+    ``plant_sampler`` (the outer loop of a cascade) gets its plant from it:
+    the inner closed loop as the outer loop samples it.
     """
+    points = np.asarray(points, dtype=float)
+    models = None
     if sched.plant_sampler is not None:
-        return sched.plant_sampler(np.asarray(points, dtype=float), scale)
-    models = sched.evaluate(np.asarray(points, dtype=float), scale=scale)
-    return discretize_loop(
-        models.plant, models.sample_period, sched.sampling.method, delay=models.delay, prewarp=sched.sampling.prewarp
-    )
+        plant = sched.plant_sampler(points, scale)
+    else:
+        models = sched.evaluate(points, scale=scale)
+        plant = discretize_loop(
+            models.plant, models.sample_period, sched.sampling.method, delay=models.delay,
+            prewarp=sched.sampling.prewarp,
+        )
+    filters = sched.filters_at(points, None if scale else models)
+    if filters is None:
+        return plant
+    num, den = filters.discrete(plant.ts)
+    return with_filter(plant, num, den)
 
 
 def limits_at(sched, points: np.ndarray) -> SpecLimits:

@@ -22,6 +22,7 @@ from typing import Any
 import numpy as np
 
 from ..lti.data_margins import DataMargins, data_margins, sampled_loop_on_data
+from ..lti.polynomials import polymul
 from ..lti.sweep_fit import model_response, relative_error
 from ..schedule.measured import grid_index
 from .specs import SpecLimits
@@ -132,9 +133,13 @@ def check_on_data(sched, points: np.ndarray, structure: str, coefficients: dict[
     if measured is None:
         return None
     rows = grid_index(np.asarray(sched.points, dtype=float), np.asarray(points, dtype=float))
-    # C(z) of the table; controller sections added to the loop elsewhere must be multiplied in here too
+    # C(z) of the table, then the filter sections: the whole controller acts on the data
     num, den = controller_polynomials(structure, {k: np.asarray(v, float)[rows] for k, v in coefficients.items()})
     ts = np.asarray(sched.sampling.period, dtype=float)
+    filters = sched.filters_at(sched.points)
+    if filters is not None:  # the controller's filter sections act on the data too
+        fnum, fden = filters.discrete(ts)
+        num, den = polymul(num, fnum), polymul(den, fden)
     loop = sampled_loop_on_data(measured.w, measured.response, ts, np.asarray(sched.sampling.delay, float), num, den)
     margins = data_margins(measured.w, loop)
     with np.errstate(all="ignore"):

@@ -35,14 +35,13 @@ from ..lti.convert import poly_from_roots
 from ..lti.intervals import spec_gain_intervals, stable_gain_intervals
 from ..lti.loop import Loop
 from ..lti.margins import loop_margins
-from ..lti.polynomials import polymul
+from ..lti.polynomials import polymul, z_to_delta
 from ..lti.regions import SpecRegion
 from .analysis import pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .specs import SpecLimits
-from .structures import z_to_delta
 
-__all__ = ["Shapes", "Choice", "shape_loops", "choose_gains", "objective_values", "OBJECTIVE_TEXT"]
+__all__ = ["OBJECTIVE_TEXT", "Choice", "Shapes", "choose_gains", "objective_values", "shape_loops"]
 
 #: Coarse gain samples per shape (ranking only).
 COARSE_SAMPLES = 30
@@ -365,7 +364,10 @@ def choose_gains(
     """
     P, S = shapes.valid.shape
     rows_p = np.repeat(np.arange(P), S)
-    flat = lambda a: a.reshape((P * S,) + a.shape[2:])  # noqa: E731
+
+    def flat(a: np.ndarray) -> np.ndarray:
+        return a.reshape((P * S,) + a.shape[2:])
+
     loops = shape_loops(plant, flat(shapes.zeros), flat(shapes.poles), rows_p)
     ts_rows = plant.ts[rows_p]
 

@@ -27,25 +27,27 @@ import numpy as np
 from ..errors import InputError
 from ..lti.convert import poly_from_roots
 from ..lti.loop import Loop
-from ..lti.polynomials import pad_left, polymul
+from ..lti.polynomials import pad_left, polymul, z_to_delta
 from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
 
 __all__ = [
     "LocusForm",
     "check_structure",
-    "controller_polynomials",
-    "controller_delta_polynomials",
-    "locus_from_coefficients",
     "coefficients_from_locus",
-    "physical_from_coefficients",
     "coefficients_from_physical",
-    "open_loop",
-    "filter_pole",
-    "fixed_poles",
-    "zero_count",
     "continuous_fixed_poles",
     "continuous_physical_from_locus",
+    "controller_delta_polynomials",
+    "controller_polynomials",
     "discretize_continuous",
+    "filter_pole",
+    "fixed_poles",
+    "locus_from_coefficients",
+    "open_loop",
+    "physical_from_coefficients",
+    "polymul",
+    "z_to_delta",
+    "zero_count",
     "SHAPE_COEFFICIENTS",
 ]
 
@@ -159,25 +161,6 @@ def controller_polynomials(structure: str, coefficients: dict[str, np.ndarray]) 
     return pad_left(num, den.shape[-1]), den
 
 
-def z_to_delta(poly: np.ndarray, ts: np.ndarray) -> np.ndarray:
-    """Substitute ``z = 1 + ts g`` into descending ``poly`` (exact algebra).
-
-    ``ts`` broadcasts against the batch axes of ``poly``.
-    """
-    poly = np.asarray(poly, dtype=float)
-    n = poly.shape[-1] - 1
-    ascending = poly[..., ::-1]
-    ts = np.asarray(ts, dtype=float)[..., None]
-    out = np.zeros(np.broadcast_shapes(poly.shape[:-1], ts.shape[:-1]) + (n + 1,))
-    from math import comb
-
-    for j in range(n + 1):
-        # coefficient of g^j: ts^j * sum_{k>=j} a_k C(k, j)
-        total = sum(ascending[..., k] * comb(k, j) for k in range(j, n + 1))
-        out[..., j] = total * ts[..., 0] ** j
-    return out[..., ::-1]
-
-
 def controller_delta_polynomials(
     structure: str, coefficients: dict[str, np.ndarray], ts: np.ndarray
 ) -> tuple[np.ndarray, np.ndarray]:
@@ -244,7 +227,7 @@ def fixed_poles(structure: str, kd_a: np.ndarray | float | None = None, pc: np.n
 
 def locus_from_coefficients(structure: str, coefficients: dict[str, np.ndarray]) -> LocusForm:
     """Split table coefficients into ``K``, monic zeros polynomial and poles."""
-    num, den = controller_polynomials(structure, coefficients)
+    num, _den = controller_polynomials(structure, coefficients)
     # Trim the padding: numerator degree equals denominator degree for every
     # structure except P (degree 0 over degree 0).
     gain = num[..., 0]

@@ -49,14 +49,14 @@ from ..names import NUMBER_FORMATS, unknown_name_message
 from ..outputs import check_output_folder, write_outputs
 
 __all__ = [
+    "LOAD_STEP_FRACTION",
+    "SIMULATION_MAX_SAMPLES",
+    "SIMULATION_SPAN",
     "JobResult",
     "StageVerdict",
     "StagedOutcome",
-    "run_design_job",
     "default_scenario",
-    "SIMULATION_SPAN",
-    "SIMULATION_MAX_SAMPLES",
-    "LOAD_STEP_FRACTION",
+    "run_design_job",
 ]
 
 Progress = Callable[[str, int, int], None]
@@ -74,6 +74,12 @@ SIMULATION_MAX_SAMPLES = 100_000
 #: limit (common practice for a representative disturbance, no source).
 LOAD_STEP_FRACTION = 0.1
 
+#: Why a schedule with ``controller.filters`` gets no C (issue 12 item 2 open).
+FILTERS_NOT_IN_C = (
+    "the generated C and the simulation do not implement controller.filters yet; C without the filters "
+    "would be another controller than the one verified, so none is generated"
+)
+
 #: Shortest time scale, in sample periods (a window needs enough samples).
 _MIN_SCALE_SAMPLES = 20.0
 
@@ -88,7 +94,7 @@ class StageVerdict:
         ``design``, ``C code``, ``C check``, ``target``, ``C rules``,
         ``quantisation``, ``simulation`` or ``log``.
     status : str
-        ``pass``, ``FAIL``, ``not checked`` or ``written``.
+        ``pass``, ``FAIL``, ``not checked``, ``written`` or ``not generated``.
     detail : str
         One line saying why.
     """
@@ -305,10 +311,10 @@ def _design_stage(result: Any) -> StageVerdict:
     return StageVerdict("design", "FAIL", "; ".join(parts))
 
 
-def _harness_stage(harness: Any) -> StageVerdict:
+def _harness_stage(harness: Any, skipped: str | None = None) -> StageVerdict:
     if harness is None:
-        return StageVerdict("C check", "not checked",
-                            "not checked: compile-and-harness check skipped on request (--no-compile)")
+        return StageVerdict("C check", "not checked", "not checked: " + (
+            skipped or "compile-and-harness check skipped on request (--no-compile)"))
     if harness.status == "no-compiler":
         return StageVerdict("C check", "not checked", "not checked: no C compiler found")
     if harness.passed:
@@ -331,7 +337,7 @@ def _target_figures(target: Any) -> str:
 
 def _target_stage(target: Any, skipped: str) -> StageVerdict:
     if target is None:
-        return StageVerdict("target", "not checked", f"not checked: skipped on request ({skipped})")
+        return StageVerdict("target", "not checked", f"not checked: {skipped}")
     if target.passed is None:
         return StageVerdict("target", "not checked", target.message)
     if target.passed:
@@ -341,7 +347,7 @@ def _target_stage(target: Any, skipped: str) -> StageVerdict:
 
 def _rules_stage(target: Any, skipped: str) -> StageVerdict:
     if target is None:
-        return StageVerdict("C rules", "not checked", f"not checked: skipped on request ({skipped})")
+        return StageVerdict("C rules", "not checked", f"not checked: {skipped}")
     rules = target.rules
     status = {True: "pass", False: "FAIL", None: "not checked"}[rules.passed]
     return StageVerdict("C rules", status, rules.message)
@@ -356,9 +362,10 @@ def _quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
     return StageVerdict("quantisation", "FAIL", f"rounding to {number_format} breaks {shown}{more}")
 
 
-def _simulation_stage(simulation: Any) -> StageVerdict:
+def _simulation_stage(simulation: Any, skipped: str | None = None) -> StageVerdict:
     if simulation is None:
-        return StageVerdict("simulation", "not checked", "not checked: skipped on request (--no-simulate)")
+        return StageVerdict("simulation", "not checked",
+                            "not checked: " + (skipped or "skipped on request (--no-simulate)"))
     m = simulation.metrics
     if simulation.stable:
         overshoot = "-" if m.overshoot is None else f"{m.overshoot:.3g} %"
@@ -474,8 +481,15 @@ def run_design_job(
 
     step("emit C", 0)
     verdict = table_verdict(result.passed, quantisation.rounded.passed, number_format)
-    c_texts = render_files(result.table, number_format, prefix, str(result.schedule_sha256),
-                           {"gains_file": gains_name, "gains_sha256": gains_sha256}, verdict=verdict, **scales)
+    # C without the filter sections would be another controller than the one
+    # verified: none is generated, and nothing that runs it (harness, target,
+    # simulation) is run, until the C carries them
+    no_c = FILTERS_NOT_IN_C if schedule.controller.filters else None
+    not_run = "no C was generated (controller.filters)" if no_c else None
+    c_texts = {} if no_c else render_files(
+        result.table, number_format, prefix, str(result.schedule_sha256),
+        {"gains_file": gains_name, "gains_sha256": gains_sha256}, verdict=verdict, **scales)
+    compile, simulate = compile and not no_c, simulate and not no_c
     step("emit C", 1)
 
     with tempfile.TemporaryDirectory(prefix="gainloom-job-") as tmp:
@@ -535,14 +549,15 @@ def run_design_job(
 
     stages = (
         _design_stage(result),
+        StageVerdict("C code", "not generated", no_c) if no_c else
         StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix}); "
                      + ("header marked verified" if verdict.verified else
                         f"header NOT VERIFIED: builds only with {c_names(prefix).accept_unverified} defined")),
-        _harness_stage(harness),
-        _target_stage(target_result, "--no-compile" if not compile else "--no-target"),
-        _rules_stage(target_result, "--no-compile" if not compile else "--no-target"),
+        _harness_stage(harness, not_run),
+        _target_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
+        _rules_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
         _quantisation_stage(quantisation, number_format),
-        _simulation_stage(simulation),
+        _simulation_stage(simulation, not_run and "the simulation does not run controller.filters yet"),
         StageVerdict("log", "written", ", ".join(sorted(log_files))),
     )
     return JobResult(

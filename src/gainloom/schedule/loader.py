@@ -32,6 +32,7 @@ from .family import (
     TableDef,
     describe_point,
 )
+from .filters import check_filter_names, evaluate_filters
 from .measured import read_measured
 from .model import Axis, CodegenSection, Sampling, Schedule
 from .nodes import Node, compose_text
@@ -191,6 +192,8 @@ def build_schedule(
 
     controller = _resolve_output_limits(read_controller(keys["controller"]), family, points, models.parameters,
                                         known)
+    check_filter_names(controller.filters, known, _TS_ONLY)
+    evaluate_filters(family, controller.filters, points, models.parameters, models.plant.den, models.sample_period)
     specs = read_specs(keys.get("specs"), axis_names)
     table_checks = read_table_checks(keys.get("table"), controller.structure)
     tolerances = read_tolerances(keys.get("tolerances"), {p.name: p.independent for p in parameters})
