@@ -14,7 +14,7 @@ import gainloom
 from gainloom import load_schedule
 from gainloom.design.engine import sampled_plant
 
-SCHEDULES = Path(__file__).resolve().parents[1] / "schedules"
+SCHEDULES = Path(__file__).resolve().parents[2] / "schedules"
 
 
 @pytest.fixture(scope="module")
