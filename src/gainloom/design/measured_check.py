@@ -133,7 +133,7 @@ def check_on_data(sched, points: np.ndarray, structure: str, coefficients: dict[
     if measured is None:
         return None
     rows = grid_index(np.asarray(sched.points, dtype=float), np.asarray(points, dtype=float))
-    # C(z) of the table; controller sections added to the loop elsewhere must be multiplied in here too
+    # C(z) of the table, then the filter sections: the whole controller acts on the data
     num, den = controller_polynomials(structure, {k: np.asarray(v, float)[rows] for k, v in coefficients.items()})
     ts = np.asarray(sched.sampling.period, dtype=float)
     filters = sched.filters_at(sched.points)

@@ -88,6 +88,19 @@ class MeasuredPlant:
     axes_values: tuple[np.ndarray, ...]
     warnings: tuple[str, ...]
 
+    def summary(self) -> dict:
+        """Plain data: the model order and, per grid point, file, samples, band and fit error."""
+        fit = self.fit
+        points = []
+        for p, file in enumerate(self.files):
+            w = self.w[p][np.isfinite(self.w[p])]
+            points.append({"file": file, "samples": int(w.size), "band_rad_s": [float(w[0]), float(w[-1])],
+                           "rms_error": float(fit.rms_error[p]), "max_error": float(fit.max_error[p]),
+                           "outliers": int(np.count_nonzero(fit.outliers[p])),
+                           "dead_time_s": float(fit.dead_time[p])})
+        return {"poles": fit.poles, "zeros": fit.zeros, "dead_time": self.settings.dead_time, "order": "given" if self.settings.poles is not None
+                else "chosen", "tolerance": self.settings.tolerance, "points": points}
+
     def source(self, point: int, sample: int) -> str:
         """``file:line`` of one sample."""
         return f"{self.files[point]}:{int(self.lines[point, sample])}"
