@@ -41,7 +41,8 @@ def test_demo_runs_end_to_end(demo):
     assert "== loop current" in done.stdout and "== loop speed" in done.stdout
     assert "cascade PASS" in done.stdout and "functional-safety" in done.stdout
     assert {"current.gains.yaml", "speed.gains.yaml", "servo.h", "servo.c", "verification.json",
-            "verification.md", "current_gains.png", "speed_gains.png"} <= {p.name for p in out.iterdir()}
+            "verification.md", "current_gains.png", "speed_gains.png", "cascade_simulation.png"} <= {
+        p.name for p in out.iterdir()}
 
 
 def test_log_has_loops_inner_first_and_a_cascade_section(demo):
@@ -51,6 +52,9 @@ def test_log_has_loops_inner_first_and_a_cascade_section(demo):
     assert doc["loops"][1]["loop"]["rate_factor"] == 8
     for loop in doc["loops"]:  # each entry is a whole single-loop document
         assert loop["verdict"]["passed"] is True and len(loop["points"]) == 12
+    simulation = doc["cascade"]["simulation"]
+    assert simulation["stable"] is True and [loop["name"] for loop in simulation["loops"]] == ["current", "speed"]
+    assert simulation["loops"][1]["metrics"]["overshoot_percent"] is not None
     checks = doc["cascade"]["checks"]
     assert checks["passed"] is True
     assert checks["pairs"][0]["bandwidth_separation"]["required"] == 4
