@@ -17,7 +17,7 @@ from gainloom.report.cascade_run import default_cascade_scenario
 from gainloom.simulation.cascade import run_cascade
 from gainloom.simulation.cascade_plot import plot_cascade
 
-DEMO = Path(__file__).resolve().parents[1] / "schedules" / "servo_cascade.yaml"
+DEMO = Path(__file__).resolve().parents[2] / "schedules" / "servo_cascade.yaml"
 
 
 @pytest.fixture(scope="module")
