@@ -191,7 +191,7 @@ def with_filter(plant: Loop, num: np.ndarray, den: np.ndarray) -> Loop:
     if not plant.is_discrete:
         raise InputError("filters are discrete sections; discretise the plant first")
     delta_num = delta_den = None
-    if plant.delta_den is not None:
+    if plant.delta_den is not None and plant.ts is not None:
         fnum, fden = z_to_delta(num, plant.ts), z_to_delta(den, plant.ts)
         lead = fden[..., :1]
         delta_num = polymul(fnum / lead, plant.delta_num)

@@ -17,8 +17,12 @@ module, checked and logged into one output folder.
    first; each entry the single-loop document) and a ``cascade`` section,
    ``verification.md`` the same, and each loop's plots as ``<loop>_*.png``.
 
-The target build and the scheduled simulation of a cascade are not built
-yet: those stages say "not checked".  Files are written once, at the end,
+6. a run of the cascade at its rates (:mod:`gainloom.simulation.cascade`):
+   a reference step and a load step, in the number format of the C, with
+   ``cascade_simulation.png``.
+
+The target build of a cascade module is not built yet: that stage says
+"not checked".  Files are written once, at the end,
 as by the single-loop job.
 """
 
@@ -36,10 +40,10 @@ from .run import (
     Progress,
     StagedOutcome,
     StageVerdict,
-    _design_stage,
-    _harness_stage,
-    _quantisation_stage,
-    _resolve_format,
+    design_stage,
+    harness_stage,
+    quantisation_stage,
+    resolve_format,
 )
 
 __all__ = ["CascadeJobResult", "cascade_stage", "run_cascade_job"]
@@ -89,6 +93,57 @@ def cascade_stage(checks: Any) -> StageVerdict:
         parts.append(f"{pair.outer} around {pair.inner}: {pair.pairs} point pairs{failing}, {ratio}, "
                      f"min GM {pair.min_gain_margin_db:.3g} dB, min PM {pair.min_phase_margin:.3g} deg")
     return StageVerdict("cascade", "pass" if checks.passed else "FAIL", "; ".join(parts))
+
+
+def default_cascade_scenario(design: Any) -> Any:
+    """The cascade run the full job does: a speed-reference step and a load step.
+
+    With ``T`` the outer loop's time scale (as the single-loop job's,
+    :func:`gainloom.report.run.default_scenario`): the outer reference steps
+    at 0 s by 0.1 of the outer error full scale (1 output unit when none is
+    set), a load of ``LOAD_STEP_FRACTION`` times the larger outer output
+    limit (inner measurement units, at the outer plant part's input) steps
+    in at ``3 T``, and the run ends at ``6 T`` (at most
+    ``SIMULATION_MAX_SAMPLES`` inner samples).  The outer loop sits at the
+    middle of each of its variables' ranges, the inner loop at the outer
+    loop's ``inner_at`` and the shared variables.
+    """
+    from ..simulation.cascade import CascadeScenario
+    from .run import LOAD_STEP_FRACTION, SIMULATION_MAX_SAMPLES, time_scale
+
+    inner_sched, outer_sched = design.schedules
+    outer_loop = design.cascade.loops[1]
+    scale, _basis = time_scale(design.results[1])
+    base = float(inner_sched.sampling.period[0])
+    scale = min(scale, SIMULATION_MAX_SAMPLES * base / 6.0)
+    outer_point = {a.name: 0.5 * (float(a.values[0]) + float(a.values[-1])) for a in outer_sched.axes}
+    inner_point = {name: outer_point.get(name, (outer_loop.inner_at or {}).get(name, 0.0))
+                   for name in inner_sched.axis_names}
+    full_scale = outer_sched.codegen.error_full_scale
+    limits = design.results[1].table.limit_envelope
+    return CascadeScenario(
+        duration=6.0 * scale, reference_step=0.1 * full_scale if full_scale else 1.0, load_time=3.0 * scale,
+        load_amplitude=LOAD_STEP_FRACTION * max(abs(float(limits[0])), abs(float(limits[1]))),
+        outer_point=outer_point, inner_point=inner_point,
+    )
+
+
+def simulation_stage(run: Any) -> StageVerdict:
+    """The cascade run as one stage line: stability and per-loop figures."""
+    if run is None:
+        return StageVerdict("simulation", "not checked", "not checked: skipped on request (--no-simulate)")
+    parts = []
+    for loop in run.loops:
+        m = loop.metrics
+        text = f"{loop.name}: saturated {100 * m.saturation_fraction:.3g} %"
+        if m.overshoot is not None:
+            text += f", step overshoot {m.overshoot:.3g} %"
+        if m.settling_time is not None:
+            text += f", settling {m.settling_time:.3g} s"
+        if m.instability.detected:
+            text += f", UNSTABLE ({m.instability.kind})"
+        parts.append(text)
+    return StageVerdict("simulation", "pass" if run.stable else "FAIL", "; ".join(parts))
 
 
 def _loop_c(loop: Any, schedule: Any, result: Any, verdict: Any) -> Any:
@@ -150,6 +205,7 @@ def run_cascade_job(
     prefix: str | None = None,
     force: bool = False,
     compile: bool = True,
+    simulate: bool = True,
     progress: Progress | None = None,
 ) -> CascadeJobResult:
     """Design, emit, check and log a cascade into one output folder (module docstring).
@@ -169,6 +225,9 @@ def run_cascade_job(
         Overwrite files gainloom did not write or that were edited.
     compile : bool
         Compile the module and run each loop's host harness (when a compiler exists).
+    simulate : bool
+        Run the cascade at its rates (:func:`default_cascade_scenario`) in
+        the number format, with a plot ``cascade_simulation.png``.
     progress : callable, optional
 
     Returns
@@ -185,7 +244,7 @@ def run_cascade_job(
 
     out = check_output_folder(out_dir)
     cascade = load_cascade(Path(cascade_path))
-    number_format = _resolve_format(cascade.loops[0].schedule, number_format)
+    number_format = resolve_format(cascade.loops[0].schedule, number_format)
     prefix = cascade.codegen.prefix if prefix is None else validate_prefix(prefix)
     cascade = _with_prefix(cascade, prefix, number_format)
     design = design_cascade(cascade, progress=progress)
@@ -207,10 +266,21 @@ def run_cascade_job(
             (stage_dir / name).write_text(text, encoding="utf-8")
         harness = tuple(_harness(stage_dir, c_texts, lc, loops_c, prefix, number_format, cascade.sha256)
                         if compile else None for lc in loops_c)
-        stages = _stages(cascade, design, quantisation, harness, number_format, c_texts, compile)
+        run = None
+        if simulate:
+            from ..simulation.cascade import run_cascade
+
+            run = run_cascade(cascade, design.schedules, design.results, default_cascade_scenario(design),
+                              number_format)
+        stages = _stages(cascade, design, quantisation, harness, number_format, c_texts, run)
         docs, images = _logs(cascade, design, stage_dir, harness, quantisation, number_format, prefix)
     document = _cascade_document(cascade, design, docs, stages, sorted(c_texts))
     files: dict[str, str | bytes] = dict(texts)
+    if run is not None:
+        from ..simulation.cascade_plot import PLOT_FILE, plot_cascade
+
+        document["cascade"]["simulation"] = run.to_dict()
+        files[PLOT_FILE] = plot_cascade(run)
     files.update(_log_files(document))
     files.update(images)
     written = write_outputs(out, files, force=force)
@@ -254,17 +324,17 @@ def _harness(stage_dir: Path, c_texts: dict[str, str], loop_c: Any, loops_c: lis
 
 
 def _stages(cascade: Any, design: Any, quantisation: tuple, harness: tuple, number_format: str,
-            c_texts: dict[str, str], compile: bool) -> list[StageVerdict]:
+            c_texts: dict[str, str], run: Any) -> list[StageVerdict]:
     stages: list[StageVerdict] = []
     for loop, result, quant, check in zip(cascade.loops, design.results, quantisation, harness):
-        for stage in (_design_stage(result), _quantisation_stage(quant, number_format), _harness_stage(check)):
+        for stage in (design_stage(result), quantisation_stage(quant, number_format), harness_stage(check)):
             stages.append(StageVerdict(f"{loop.name}: {stage.stage}", stage.status, stage.detail))
     stages.append(cascade_stage(design.checks))
     stages.append(StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, one module "
                                f"for {', '.join(loop.name for loop in cascade.loops)})"))
     stages.append(StageVerdict("target", "not checked", "not checked: the target build of a cascade module is "
                                "not built yet"))
-    stages.append(StageVerdict("simulation", "not checked", "not checked: the cascade simulation is not built yet"))
+    stages.append(simulation_stage(run))
     return stages
 
 

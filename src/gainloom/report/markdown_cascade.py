@@ -49,6 +49,16 @@ def render_cascade_markdown(doc: dict[str, Any]) -> str:
     lines += ["## Cascade checks", ""]
     for pair in info["checks"]["pairs"]:
         lines += _pair_lines(pair)
+    simulation = info.get("simulation")
+    if simulation is not None:
+        lines += ["## Cascade run", "", f"Number format {simulation['number_format']}; "
+                  f"{'stable' if simulation['stable'] else 'UNSTABLE'}; plot cascade_simulation.png.", ""]
+        lines += table_lines(["loop", "samples", "saturated %", "step overshoot %", "settling s", "load peak deviation"],
+                        [[r["name"], r["samples"], number(100 * r["metrics"]["saturation_fraction"]),
+                          number(r["metrics"]["overshoot_percent"]), number(r["metrics"]["settling_time"]),
+                          number(r["metrics"]["load_responses"][0]["peak_deviation"]
+                                 if r["metrics"]["load_responses"] else None)]
+                         for r in simulation["loops"]])
     for loop in doc["loops"]:
         lines += [f"## Loop {loop['loop']['name']}", ""]
         lines += _demoted(render_markdown(loop))

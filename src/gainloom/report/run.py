@@ -55,6 +55,11 @@ __all__ = [
     "JobResult",
     "StageVerdict",
     "StagedOutcome",
+    "design_stage",
+    "harness_stage",
+    "quantisation_stage",
+    "resolve_format",
+    "time_scale",
     "default_scenario",
     "run_design_job",
 ]
@@ -177,7 +182,7 @@ class JobResult(StagedOutcome):
     stages: tuple[StageVerdict, ...]
 
 
-def _time_scale(result: Any) -> tuple[float, str]:
+def time_scale(result: Any) -> tuple[float, str]:
     """The loop's slowest time scale in seconds, and where it came from."""
     analysis = result.analysis
     periods = np.asarray(result.table.sample_period, dtype=float)
@@ -235,7 +240,7 @@ def default_scenario(schedule: Any, result: Any) -> tuple[Any, dict[str, Any]]:
     """
     from ..simulation import LoadStep, PiecewiseLinear, Scenario
 
-    scale, basis = _time_scale(result)
+    scale, basis = time_scale(result)
     span = SIMULATION_SPAN
     total = sum(span.values())
     shortest = float(np.min(np.asarray(result.table.sample_period, dtype=float)))
@@ -286,7 +291,8 @@ def default_scenario(schedule: Any, result: Any) -> tuple[Any, dict[str, Any]]:
     return scenario, description
 
 
-def _design_stage(result: Any) -> StageVerdict:
+def design_stage(result: Any) -> StageVerdict:
+    """The design as one stage line: points passing, binding specs and whole-table checks that fail."""
     failed = [p for p, s in enumerate(result.status) if s != "pass"]
     if not failed and result.table_report.passed:
         return StageVerdict("design", "pass", f"{len(result.status)}/{len(result.status)} points meet every spec; "
@@ -311,7 +317,8 @@ def _design_stage(result: Any) -> StageVerdict:
     return StageVerdict("design", "FAIL", "; ".join(parts))
 
 
-def _harness_stage(harness: Any, skipped: str | None = None) -> StageVerdict:
+def harness_stage(harness: Any, skipped: str | None = None) -> StageVerdict:
+    """The host harness as one stage line (``None``: not run, for the reason ``skipped``)."""
     if harness is None:
         return StageVerdict("C check", "not checked", "not checked: " + (
             skipped or "compile-and-harness check skipped on request (--no-compile)"))
@@ -353,7 +360,8 @@ def _rules_stage(target: Any, skipped: str) -> StageVerdict:
     return StageVerdict("C rules", status, rules.message)
 
 
-def _quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
+def quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
+    """The re-check of the table as stored in ``number_format`` as one stage line."""
     if quantisation.passed:
         return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec")
     broken = quantisation.broken
@@ -375,7 +383,8 @@ def _simulation_stage(simulation: Any, skipped: str | None = None) -> StageVerdi
     return StageVerdict("simulation", "FAIL", f"unstable ({m.instability.kind}): {m.instability.detail}")
 
 
-def _resolve_format(schedule: Any, number_format: str | None) -> str:
+def resolve_format(schedule: Any, number_format: str | None) -> str:
+    """The number format asked for, else the schedule's ``codegen.format``; refuses an unknown one."""
     fmt = number_format or schedule.codegen.format
     if fmt not in NUMBER_FORMATS:
         raise InputError(unknown_name_message("number format", fmt, NUMBER_FORMATS))
@@ -461,7 +470,7 @@ def run_design_job(
         raise InputError(f"gains file name must be a plain file name ending .yaml, .yml or .json; got {gains_name!r}")
     out = check_output_folder(out_dir)  # a bad output path is bad input, found before the design
     schedule = load_schedule(schedule_path)
-    number_format = _resolve_format(schedule, number_format)
+    number_format = resolve_format(schedule, number_format)
     prefix = schedule.codegen.prefix if prefix is None else prefix
     validate_prefix(prefix)  # before the design: a bad prefix is bad input, found at once
 
@@ -548,15 +557,15 @@ def run_design_job(
     step("write", 1)
 
     stages = (
-        _design_stage(result),
+        design_stage(result),
         StageVerdict("C code", "not generated", no_c) if no_c else
         StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix}); "
                      + ("header marked verified" if verdict.verified else
                         f"header NOT VERIFIED: builds only with {c_names(prefix).accept_unverified} defined")),
-        _harness_stage(harness, not_run),
+        harness_stage(harness, not_run),
         _target_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
         _rules_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
-        _quantisation_stage(quantisation, number_format),
+        quantisation_stage(quantisation, number_format),
         _simulation_stage(simulation, not_run and "the simulation does not run controller.filters yet"),
         StageVerdict("log", "written", ", ".join(sorted(log_files))),
     )
