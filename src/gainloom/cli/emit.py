@@ -164,21 +164,22 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _recheck_stored(schedule, table, args: argparse.Namespace) -> dict:
-    """Verify the table as stored in the chosen format against the schedule."""
-    from ..codegen.layout import layout_table
-    from ..design.engine import verify
+    """Verify the table as stored in the chosen format against the schedule.
 
-    stored = layout_table(
-        table,
-        args.number_format,
-        error_full_scale=args.error_full_scale,
-        output_full_scale=args.output_full_scale,
-    ).stored_table()
-    checked = verify(schedule, stored)
+    The same re-check after rounding as the design job's quantisation stage
+    (:func:`gainloom.codegen.quantisation.check_quantisation`), so both give
+    the header the same verdict.
+    """
+    from ..codegen.quantisation import check_quantisation
+
+    quantisation = check_quantisation(schedule, table, args.number_format,
+                                      error_full_scale=args.error_full_scale, output_full_scale=args.output_full_scale)
+    checked = quantisation.rounded
     return {
         "passed": checked.passed,
         "points_passing": sum(s == "pass" for s in checked.status),
         "points": len(checked.status),
         "table_checks_passed": checked.table_report.passed,
         "failed_specs": [checked.analysis.failed_specs(p) for p in range(checked.analysis.points)],
+        "broken_by_rounding": quantisation.broken,
     }
