@@ -11,7 +11,7 @@ from ..c_names import c_names
 from ..codegen.emit import emit_c
 from ..codegen.harness import check_generated_c
 from ..codegen.verdict import table_verdict
-from ..design.gainsfile import read_gains
+from ..design.gainsfile import compromise_points, read_gains
 from ..names import NUMBER_FORMATS
 from ..safety import CAUTION
 from .output import print_json
@@ -97,8 +97,7 @@ def run(args: argparse.Namespace) -> int:
     # the header's verdict: the design recorded in the gains file and the
     # re-check of the rounded table; either unknown counts as not verified
     recorded = metadata.get("passed")
-    compromises = [entry.get("index") for entry in metadata.get("points") or []
-                   if isinstance(entry, dict) and entry.get("compromise") is True]
+    compromises = compromise_points(metadata)
     report["compromise_points"] = compromises
     if compromises:
         recorded = False  # a best compromise is not a design: never emitted as verified

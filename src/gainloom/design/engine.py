@@ -641,15 +641,15 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
     -------
     VerifyResult
     """
-    from .gainsfile import read_gains
+    from .gainsfile import compromise_points, read_gains
     from .table_checks import run_table_checks
 
     sched = _load(schedule)
     if isinstance(gains, GainTable):
-        table, gains_path = gains, ""
+        table, gains_path, marked = gains, "", []
     else:
-        table, _meta = read_gains(gains)
-        gains_path = str(gains)
+        table, meta = read_gains(gains)
+        gains_path, marked = str(gains), compromise_points(meta)
     warnings = list(sched.warnings)
     names = tuple(a.name for a in sched.axes)
     if tuple(a.name for a in table.axes) != names:
@@ -678,7 +678,16 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
             f"{sched.describe_point(points[p])}: file {stored_ts[p]:.6g} s, schedule {plant.ts[p]:.6g} s; "
             "checked with the schedule's period (the coefficients are per-sample quantities)"
         )
-    status = tuple("pass" if ok else "fail" for ok in analysis.passed)
+    # a point the design could not meet is a best compromise, whatever it scores now
+    # (gainloom emit never marks such a table verified either); re-design to clear it
+    marked = sorted(p for p in set(marked) if 0 <= p < points.shape[0])
+    for p in marked:
+        warnings.append(
+            f"{sched.describe_point(points[p])}: the gains file marks this point compromise (its design met no "
+            f"set of gains for every spec); counted as failing whatever the re-check finds "
+            f"({'passes' if analysis.passed[p] else 'fails'} now); design the table again to replace it"
+        )
+    status = tuple("pass" if ok and p not in marked else "fail" for p, ok in enumerate(analysis.passed))
     point_design = PointDesign(
         points=points, plant=plant, limits=limits, coefficients=coefficients, analysis=analysis,
         feasible=analysis.passed, status=status, binding=tuple([None] * points.shape[0]),
@@ -700,4 +709,5 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
         gains_path=gains_path,
         points=points,
         point_labels=tuple(sched.describe_point(p) for p in points),
+        compromise_points=tuple(marked),
     )

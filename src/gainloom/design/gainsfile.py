@@ -26,7 +26,8 @@ from ..outputs import write_outputs
 from ..plain import to_plain
 from .table import GainTable, TableAxis
 
-__all__ = ["GAINS_FORMAT", "render_gains", "write_gains", "read_gains", "gains_document", "GainsMetadata"]
+__all__ = ["GAINS_FORMAT", "render_gains", "write_gains", "read_gains", "gains_document", "GainsMetadata",
+           "compromise_points"]
 
 #: Format tag of the gains file.
 GAINS_FORMAT = "gainloom-gains/1"
@@ -219,6 +220,12 @@ class GainsMetadata(dict):
     ``design``, ``passed``, ``points``, ``table_checks``, ``warnings``,
     ``continuous``, ``path`` (the gains file read).
     """
+
+
+def compromise_points(metadata: dict) -> list[int]:
+    """Flat grid indices of the points a gains file marks ``compromise: true`` (best compromises, not designs)."""
+    return [entry["index"] for entry in metadata.get("points") or []
+            if isinstance(entry, dict) and entry.get("compromise") is True and isinstance(entry.get("index"), int)]
 
 
 def _node_at(node: yaml.Node, key: str) -> yaml.Node | None:

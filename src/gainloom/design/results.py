@@ -266,6 +266,9 @@ class VerifyResult:
     gains_path : str
     points : ndarray
     point_labels : tuple of str
+    compromise_points : tuple of int
+        Flat indices of the points the gains file marks ``compromise``: their
+        status is ``fail`` whatever the re-check finds.
     """
 
     table: GainTable
@@ -278,6 +281,7 @@ class VerifyResult:
     gains_path: str
     points: np.ndarray
     point_labels: tuple[str, ...]
+    compromise_points: tuple[int, ...] = ()
 
     @property
     def passed(self) -> bool:
