@@ -9,7 +9,7 @@ import shutil
 import subprocess
 
 import pytest
-from test_codegen_cases import make_table
+from cases import make_table
 
 from gainloom import CodegenError
 from gainloom.c_names import comment_text, comment_text_problem, prefix_problem, validate_prefix
@@ -190,7 +190,7 @@ def test_a_bad_unit_in_the_schedule_is_refused_at_its_line(tmp_path):
 
 @pytest.mark.parametrize("command", ["emit", "design"])
 def test_an_empty_prefix_option_is_refused_not_replaced_by_the_default(tmp_path, capsys, command):
-    from test_design_job import PASSING
+    from cases import PASSING
 
     from gainloom.cli import main
     from gainloom.design.gainsfile import write_gains

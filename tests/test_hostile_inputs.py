@@ -16,7 +16,7 @@ import signal
 import textwrap
 
 import pytest
-from test_design_job import PASSING
+from cases import PASSING
 
 from gainloom import load_schedule
 from gainloom.cli import CLOSED_PIPE_EXIT, main
@@ -126,7 +126,7 @@ def test_verification_log_records_the_fractional_dead_time(tmp_path, capsys):
 
 
 def test_emit_refuses_an_output_full_scale_below_the_limits(tmp_path, capsys):
-    from test_codegen_cases import make_table
+    from cases import make_table
 
     from gainloom.design.gainsfile import write_gains
 

@@ -15,8 +15,7 @@ import os
 from pathlib import Path
 
 import pytest
-from test_codegen_cases import make_table
-from test_design_job import PASSING
+from cases import PASSING, make_table
 
 from gainloom import outputs
 from gainloom.cli import main

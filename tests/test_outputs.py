@@ -6,7 +6,7 @@ import os
 
 import numpy as np
 import pytest
-from test_codegen_cases import make_table
+from cases import make_table
 
 import gainloom.outputs as outputs
 from gainloom import CodegenError

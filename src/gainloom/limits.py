@@ -17,16 +17,20 @@ __all__ = [
     "MAX_DELAY_SAMPLES",
     "MAX_EXPRESSION_DEPTH",
     "MAX_EXPRESSION_LENGTH",
+    "MAX_FIT_POLES",
     "MAX_GAINS_BYTES",
     "MAX_OPERATING_POINTS",
     "MAX_PLANT_ORDER",
     "MAX_REFINE_INSERTED",
+    "MAX_RESPONSE_BYTES",
+    "MAX_RESPONSE_SAMPLES",
     "MAX_SCHEDULE_BYTES",
     "MAX_STUDY_DRAWS",
     "MAX_SWEEP_COUNT",
     "MAX_TOLERANCE_EVALUATIONS",
     "MAX_TOLERANCE_SAMPLES",
     "MAX_VARIANTS",
+    "MIN_RESPONSE_SAMPLES",
     "SAMPLE_PERIOD_RANGE",
     "size_text",
 ]
@@ -68,6 +72,17 @@ MAX_PLANT_ORDER = 30
 MAX_DELAY_SAMPLES = 50
 #: Sample periods accepted, seconds (1 ns to 1,000 s).
 SAMPLE_PERIOD_RANGE = (1e-9, 1e3)
+#: Largest frequency-response (CSV) file read, bytes.
+MAX_RESPONSE_BYTES = 20_000_000
+#: Most samples of a frequency-response file (all its points together).
+MAX_RESPONSE_SAMPLES = 200_000
+#: Fewest samples per operating point of a measured plant: below that a
+#: sweep cannot show a crossover with its neighbourhood (common practice,
+#: no source: about ten per decade over two decades).
+MIN_RESPONSE_SAMPLES = 20
+#: Highest pole count of a fitted model (``plant.measured.fit``): beyond it
+#: the least-squares problem in powers of ``s`` loses its digits.
+MAX_FIT_POLES = 8
 
 
 def size_text(value: float) -> str:

@@ -9,22 +9,24 @@ from __future__ import annotations
 from difflib import get_close_matches
 
 __all__ = [
-    "HOLD_METHODS",
-    "CONTROLLER_STRUCTURES",
-    "NUMBER_FORMATS",
-    "INTERPOLATIONS",
-    "CONTROLLER_COEFFICIENTS",
-    "unknown_name_message",
-    "DESIGN_STRATEGIES",
-    "TUNING_RULES",
-    "SWEEP_OBJECTIVES",
     "CANCEL_TARGETS",
-    "TOLERANCE_SAMPLINGS",
+    "CONTROLLER_COEFFICIENTS",
+    "CONTROLLER_STRUCTURES",
+    "CROSSOVER_OBJECTIVES",
+    "DESIGN_STRATEGIES",
+    "FILTER_KEYS",
+    "FILTER_KINDS",
+    "HOLD_METHODS",
+    "INTERPOLATIONS",
+    "MONOTONE_DIRECTIONS",
+    "NUMBER_FORMATS",
+    "POLE_SELECTIONS",
+    "SWEEP_OBJECTIVES",
     "TOLERANCE_DESIGNS",
     "TOLERANCE_DISTRIBUTIONS",
-    "CROSSOVER_OBJECTIVES",
-    "MONOTONE_DIRECTIONS",
-    "POLE_SELECTIONS",
+    "TOLERANCE_SAMPLINGS",
+    "TUNING_RULES",
+    "unknown_name_message",
 ]
 
 #: Discretisation methods: zero-order hold, first-order (triangle) hold,
@@ -86,6 +88,17 @@ MONOTONE_DIRECTIONS: tuple[str, ...] = ("increasing", "decreasing")
 #: Which closed-loop poles the damping, decay and natural-frequency specs
 #: judge (specs.poles): the dominant ones (docs/design.md) or every pole.
 POLE_SELECTIONS: tuple[str, ...] = ("dominant", "all")
+
+
+#: Second-order filter sections after the controller (``controller.filters``).
+FILTER_KINDS: tuple[str, ...] = ("notch", "low_pass")
+
+#: Keys of each filter section: notch centre frequency (rad/s), depth (dB)
+#: and half-depth width (rad/s); low-pass frequency (rad/s) and damping.
+FILTER_KEYS: dict[str, tuple[str, ...]] = {
+    "notch": ("frequency", "depth", "width"),
+    "low_pass": ("frequency", "damping"),
+}
 
 
 def unknown_name_message(kind: str, name: str, known: tuple[str, ...]) -> str:

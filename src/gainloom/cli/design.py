@@ -53,7 +53,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Register the command's options."""
     parser.formatter_class = argparse.RawDescriptionHelpFormatter
     parser.epilog = _EPILOG
-    parser.add_argument("schedule", metavar="SCHEDULE", help="schedule file (YAML)")
+    parser.add_argument("schedule", metavar="SCHEDULE", help="schedule or cascade file (YAML; docs/cascade.md)")
     parser.add_argument("--out", metavar="DIR", required=True, help="output folder (created if missing)")
     parser.add_argument(
         "--gains-name", metavar="NAME", default="gains.yaml",
@@ -99,7 +99,7 @@ class Counter:
         self.stream = stream or sys.stderr
         self.enabled = enabled
         self.live = _is_terminal(self.stream) if live is None else live
-        self.last = None
+        self.last: tuple[str, int] | None = None
 
     def __call__(self, stage: str, done: int, total: int) -> None:
         if not self.enabled or (stage, done) == self.last:
@@ -209,11 +209,44 @@ def print_stages(job, stream) -> None:
         print(f"{stage.stage:<{width}}  {stage.status:<11}  {stage.detail}", file=stream)
 
 
+def print_result(result) -> None:
+    """A design's per-point table, warnings, failed points' notes, whole-table checks and verdict line."""
+    headers, rows = summary_rows(result.point_labels, result.analysis, result.status, result.binding,
+                                 result.point_warnings)
+    print(format_table(headers, rows))
+    for p, texts in enumerate(result.point_warnings):
+        for text in texts:
+            print(f"{result.point_labels[p]}: warning: {text}")
+    for p, notes in enumerate(result.notes):
+        if result.status[p] == "fail":
+            for note in notes:
+                print(f"{result.point_labels[p]}: {note}")
+    print_table_report(result.table_report, sys.stdout)
+    for warning in result.warnings:
+        print(f"warning: {warning}")
+    failed = sum(s == "fail" for s in result.status)
+    print(f"design: {len(result.status) - failed}/{len(result.status)} points meet every spec; "
+          f"whole-table checks {'pass' if result.table_report.passed else 'fail'}")
+
+
+def verdict_line(job) -> str:
+    """The run's verdict: PASS or the failing stages, and the stages not checked."""
+    failing = [s.stage for s in job.stages if s.failed]
+    verdict = "PASS" if job.passed else "FAIL: " + ", ".join(failing)
+    unchecked = f" (not checked: {', '.join(job.not_checked)})" if job.not_checked else ""
+    return f"{verdict}{unchecked}; the verdict and its reasons are in verification.md"
+
+
 def run(args: argparse.Namespace) -> int:
     """Run the whole job, print the summary and the caution."""
     from ..report.run import run_design_job
+    from ..schedule.cascade import is_cascade_file
 
     out = check_output_folder(args.out)
+    if is_cascade_file(args.schedule):
+        from .design_cascade import run_cascade
+
+        return run_cascade(args, out)
     name = Path(args.gains_name)
     if name.name != args.gains_name or name.suffix.lower() not in (".yaml", ".yml", ".json"):
         raise InputError(f"--gains-name must be a plain file name ending .yaml, .yml or .json; got {args.gains_name!r}")
@@ -251,32 +284,14 @@ def run(args: argparse.Namespace) -> int:
             "warnings": list(result.warnings),
         })
     else:
-        headers, rows = summary_rows(result.point_labels, result.analysis, result.status, result.binding,
-                                     result.point_warnings)
-        print(format_table(headers, rows))
-        for p, texts in enumerate(result.point_warnings):
-            for text in texts:
-                print(f"{result.point_labels[p]}: warning: {text}")
-        for p, notes in enumerate(result.notes):
-            if result.status[p] == "fail":
-                for note in notes:
-                    print(f"{result.point_labels[p]}: {note}")
-        print_table_report(result.table_report, sys.stdout)
-        for warning in result.warnings:
-            print(f"warning: {warning}")
-        failed = sum(s == "fail" for s in result.status)
-        print(f"design: {len(result.status) - failed}/{len(result.status)} points meet every spec; "
-              f"whole-table checks {'pass' if result.table_report.passed else 'fail'}")
+        print_result(result)
         print()
         print_stages(job, sys.stdout)
         print()
-        failing = [s.stage for s in job.stages if s.failed]
-        verdict = "PASS" if job.passed else "FAIL: " + ", ".join(failing)
-        unchecked = f" (not checked: {', '.join(job.not_checked)})" if job.not_checked else ""
-        print(f"{verdict}{unchecked}; the verdict and its reasons are in verification.md")
+        print(verdict_line(job))
         print(f"output folder: {job.out_dir}")
         print(f"  gains file: {job.gains_path}")
-        print(f"  C: {', '.join(str(p) for p in job.c_files)}")
+        print(f"  C: {', '.join(str(p) for p in job.c_files) or 'not generated (see the C code stage)'}")
         print(f"  log: {job.out_dir / 'verification.md'} (verification.json, "
               f"{sum(p.suffix == '.png' for p in job.files)} PNG plots)")
     print(CAUTION, file=sys.stderr if args.json else sys.stdout)

@@ -41,7 +41,7 @@ def describe(num, den, ts, method="zoh", delay=0.0, dead_time=0.0, prewarp=None)
     """The discretised loop as a plain dict (what ``--json`` prints)."""
     plant = Loop(num=num, den=np.trim_zeros(den, "f") if np.any(den) else den, dead_time=dead_time)
     loop = discretize_loop(plant, ts, method=method, delay=delay, prewarp=prewarp)
-    dnum, dden = loop.delta_num[0], loop.delta_den[0]
+    dnum, dden = np.asarray(loop.delta_num)[0], np.asarray(loop.delta_den)[0]  # discretize_loop always sets them
     # G(z = 1) = G_delta(g = 0): exact zero trailing coefficient for a pole at z = 1.
     infinite = dden[-1] == 0
     dc_gain = None if infinite else float(dnum[-1] / dden[-1])

@@ -93,6 +93,7 @@ def inspect_data(schedule: Schedule) -> dict:
         "tolerances": dataclasses.asdict(schedule.tolerances),
         "codegen": dataclasses.asdict(schedule.codegen),
         "points": points,
+        "measured": None if schedule.family.plant.measured is None else schedule.family.plant.measured.summary(),
         "warnings": list(schedule.warnings),
     }
 
@@ -175,10 +176,24 @@ def _text(data: dict) -> str:
             rows,
         )
     )
+    if data["measured"] is not None:
+        lines += ["", *_measured_text(data["measured"], points, axes, axis_headers)]
     if data["warnings"]:
         lines.append("")
         lines += [f"warning: {w}" for w in data["warnings"]]
     return "\n".join(lines)
+
+
+def _measured_text(measured: dict, points: list[dict], axes: list[dict], axis_headers: list[str]) -> list[str]:
+    rows = [[p["index"]] + [p["coordinates"][a["name"]] for a in axes]
+            + [m["file"], m["samples"], f"{format_number(m['band_rad_s'][0])} .. {format_number(m['band_rad_s'][1])}",
+               format_number(100 * m["rms_error"]), format_number(100 * m["max_error"]), m["outliers"]]
+            for p, m in zip(points, measured["points"])]
+    delay = " and a dead time" if measured["dead_time"] else ", no dead time"
+    title = (f"measured plant: fitted {measured['poles']} poles, {measured['zeros']} zeros{delay} "
+             f"(order {measured['order']}; tolerance {format_number(100 * measured['tolerance'])} % rms)")
+    return [title, format_table(["#"] + axis_headers + ["file", "samples", "band [rad/s]", "rms error [%]",
+                                                         "max error [%]", "outliers"], rows)]
 
 
 def cascade_data(cascade) -> dict:

@@ -168,8 +168,8 @@ def format_facts(
         out += [f"Stable gain intervals: none for {sign}", ""]
     if damped:
         out.append("Gains K > 0 with every closed-loop pole stable and damped at least")
-        for zeta, pairs in damped.items():
-            out.append(f"  zeta >= {zeta:g}: " + (", ".join(_interval(p) for p in pairs) if pairs else "no gain"))
+        for ratio, pairs in damped.items():
+            out.append(f"  zeta >= {ratio:g}: " + (", ".join(_interval(p) for p in pairs) if pairs else "no gain"))
         out.append("")
     elif damping_asked and facts.negative:
         out += ["Damping gain intervals are only computed for K > 0.", ""]
@@ -240,7 +240,7 @@ def run(args: argparse.Namespace) -> int:
         data["discretization"] = how
         data["sampling"] = (
             None
-            if loop.hold is None
+            if loop.hold is None or loop.ts is None
             else {
                 "method": loop.hold,
                 "ts": float(loop.ts[0]),

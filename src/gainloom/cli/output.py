@@ -19,7 +19,7 @@ def print_json(value: Any, stream: TextIO | None = None) -> None:
     (stream or sys.stdout).write("\n")
 
 
-def format_number(value: float, digits: int = 6) -> str:
+def format_number(value: float | None, digits: int = 6) -> str:
     """Format a float compactly with ``digits`` significant digits."""
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return "-" if value is None else str(value)

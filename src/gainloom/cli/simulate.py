@@ -119,16 +119,19 @@ def _pair(text: str, what: str) -> tuple[float, float]:
 
 
 def _breakpoints(text: str, what: str):
+    import numpy as np
+
     from ..simulation import PiecewiseLinear
 
     pairs = [_pair(item, what) for item in text.split(",") if item.strip()]
     if not pairs:
         raise InputError(f"{what}: expected TIME:VALUE,...; got {text!r}")
-    return PiecewiseLinear([p[0] for p in pairs], [p[1] for p in pairs])
+    return PiecewiseLinear(np.array([p[0] for p in pairs]), np.array([p[1] for p in pairs]))
 
 
 def parse_ramp(text: str, duration: float):
     """``AXIS=START[:END[@T0:T1]]`` to ``(axis, PiecewiseLinear)``."""
+
     from ..simulation import PiecewiseLinear
 
     name, sep, spec = text.partition("=")

@@ -595,6 +595,7 @@ def check_generated_c(
     steps: int = 6000,
     seed: int = 0,
     compiler: list[str] | None = None,
+    accept: tuple[str, ...] = (),
 ) -> HarnessResult:
     """Compile the generated C, run a host harness and compare with the mirror.
 
@@ -618,6 +619,11 @@ def check_generated_c(
         Seed of the random inputs (results are deterministic).
     compiler : list of str, optional
         Compiler command; default :func:`find_compiler`.
+    accept : tuple of str
+        Further prefixes whose tables the build accepts unverified (the
+        other loops of a cascade module, :mod:`gainloom.codegen.cascade`);
+        the checks test arithmetic, so they build as an integrator who
+        accepted every table would.
 
     Returns
     -------
@@ -640,7 +646,8 @@ def check_generated_c(
         )
     version, sanitizers = _compiler_facts(tuple(command))
     program = harness_program(table, generated, points=points, steps=steps, seed=seed)
-    flags = ("-std=c99", "-O1", *WARNING_FLAGS, *generated.defines) + (SANITIZER_FLAGS if sanitizers else ())
+    defines = (*generated.defines, *(f"-D{c_names(p).accept_unverified}" for p in accept))
+    flags = ("-std=c99", "-O1", *WARNING_FLAGS, *defines) + (SANITIZER_FLAGS if sanitizers else ())
     common = dict(compiler=" ".join(command), compiler_version=version, flags=flags, sanitizers=sanitizers)
     sources = [s.name for s in generated.sources]
 
@@ -649,7 +656,7 @@ def check_generated_c(
         for f in files:
             shutil.copyfile(f, work / f.name)
         (work / "harness.c").write_text(program.source, encoding="utf-8")
-        c11 = _run([*command, "-std=c11", *WARNING_FLAGS, *generated.defines, "-fsyntax-only", *sources], work)
+        c11 = _run([*command, "-std=c11", *WARNING_FLAGS, *defines, "-fsyntax-only", *sources], work)
         if c11.returncode != 0:
             return HarnessResult("failed", "generated C does not compile as C11", diagnostics=c11.stderr, **common)
         built = _run([*command, *flags, *sources, "harness.c", "-o", "harness"], work)

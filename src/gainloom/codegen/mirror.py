@@ -111,6 +111,8 @@ def locate(axis: AxisLayout, fmt_is_fixed: bool, interp_frac: int, x) -> tuple[n
         one = np.int64(1) << interp_frac
         inside = ~(low | high)
         offset = np.where(inside, x - a[index], 0)
+        if axis.weight_shift is None or axis.weight_scale is None:
+            raise CodegenError("a fixed-point axis needs its per-segment reciprocals (layout_table sets them)")
         weight = weight_fixed(offset, axis.weight_shift[index], axis.weight_scale[index])
         index = np.where(low, 0, np.where(high, n - 2, index))
         weight = np.where(low, 0, np.where(high, one, weight)).astype(np.int64)
@@ -388,7 +390,7 @@ class FixedStepper:
 
 def _run(stepper, errors, feed, use, low, high, dtype) -> StepTrace:
     outputs = []
-    history = {name: [] for name in stepper.fields}
+    history: dict[str, list] = {name: [] for name in stepper.fields}
     for k, error in enumerate(errors):
         outputs.append(stepper.step(k, error, feed[k], (low[k], high[k]) if use[k] else None)[0])
         for name in stepper.fields:

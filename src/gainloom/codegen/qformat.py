@@ -243,6 +243,7 @@ def mul_frac(coefficient, signal, frac: int, bits: int = 32):
     bits : int
         Width of the saturated result.
     """
+    product: int | np.ndarray
     if isinstance(coefficient, np.ndarray) or isinstance(signal, np.ndarray):
         product = np.asarray(coefficient, dtype=np.int64) * np.asarray(signal, dtype=np.int64)
     else:

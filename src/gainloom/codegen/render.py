@@ -87,7 +87,7 @@ def render_template(name: str, context: dict) -> str:
         text = _environment().get_template(name).render(**context)
     except jinja2.TemplateError as error:
         raise CodegenError(f"template {name}: {error}") from None
-    lines = []
+    lines: list[str] = []
     for line in text.splitlines():
         line = line.rstrip()
         if line or (lines and lines[-1]):  # no leading or repeated blank lines
@@ -139,7 +139,7 @@ def verdict_lines(verdict: TableVerdict, macro: str) -> list[str]:
     return textwrap.wrap(f"verification: {state}: {verdict.basis}.", 74, subsequent_indent="  ")
 
 
-def banner_lines(number_format: str, prefix: str, source_sha256: str, options: dict) -> list[str]:
+def banner_lines(number_format: str, prefix: str, source_sha256: str | None, options: dict) -> list[str]:
     """Lines of the banner comment: generator, source hash, options, caution.
 
     Parameters
@@ -172,7 +172,7 @@ def _literal(layout: TableLayout, value) -> str:
 
 
 def _context(
-    layout: TableLayout, prefix: str, source_sha256: str, options: dict, verdict: TableVerdict | None
+    layout: TableLayout, prefix: str, source_sha256: str | None, options: dict, verdict: TableVerdict | None
 ) -> dict:
     names = c_names(prefix)
     if verdict is None:

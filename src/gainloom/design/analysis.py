@@ -41,7 +41,7 @@ from .pole_origin import pole_origins
 from .specs import SPEC_ORDER, SpecLimits
 from .structures import locus_from_coefficients, open_loop, physical_from_coefficients
 
-__all__ = ["PointAnalysis", "analyse", "judge", "step_metrics", "pole_metrics", "SETTLING_BAND", "integrator_count"]
+__all__ = ["SETTLING_BAND", "PointAnalysis", "analyse", "integrator_count", "judge", "pole_metrics", "step_metrics"]
 
 #: Settling band of the step-response check (2 %, as ``max_settling_time``).
 SETTLING_BAND = 0.02
@@ -227,9 +227,19 @@ def pole_metrics(poles: np.ndarray, ts: np.ndarray, selection: str = "all") -> d
 
 
 def integrator_count(loop: Loop) -> np.ndarray:
-    """Open-loop poles at ``z = 1`` per point (system type)."""
+    """Open-loop poles at ``z = 1`` per point (system type).
+
+    Read on the delta-operator form when the loop has one (poles at
+    ``g = 0``, per sample ``|g ts|``): a double pole at ``z = 1`` in a
+    high-order z-polynomial (plant integrator, PI integrator, filters) comes
+    out of the root finder about ``sqrt(eps)`` times the polynomial's scale
+    away from 1, beyond the tolerance, while in ``g`` it is an exact zero.
+    """
     from ..lti.polynomials import batched_roots
 
+    if loop.delta_den is not None:
+        roots = batched_roots(loop.delta_den) * np.asarray(loop.ts, float)[:, None]
+        return np.sum(np.abs(roots) < INTEGRATOR_TOLERANCE, axis=-1)
     roots = batched_roots(loop.den)
     return np.sum(np.abs(roots - 1.0) < 1e-6, axis=-1)
 
@@ -335,6 +345,7 @@ def analyse(
     *,
     step: bool = True,
     frequency: bool = True,
+    origins: bool = True,
 ) -> PointAnalysis:
     """Analyse table coefficients on the discretised plant at every point.
 
@@ -355,6 +366,11 @@ def analyse(
         leaves them NaN (a required frequency-domain spec then fails): for
         callers that judge no such spec, as the tolerance study on a
         schedule without one, where they are most of the cost.
+    origins : bool
+        Trace the least-damped pole back to the open-loop pole its branch
+        starts at (default).  ``False`` reports ``"not traced"``: for the
+        tolerance study, which reports no origin and where the trace (many
+        root solves per loop) is most of the cost of a pole-only analysis.
 
     Returns
     -------
@@ -379,7 +395,10 @@ def analyse(
     damping_pole = np.take_along_axis(poles, least, axis=-1)[:, 0] if poles.shape[-1] else np.full(plant.points, np.nan)
     with np.errstate(divide="ignore", invalid="ignore"):
         damping_pole_s = np.log(damping_pole) / ts
-    origin, start = pole_origins(loop, plant, damping_pole)
+    if origins:
+        origin, start = pole_origins(loop, plant, damping_pole)
+    else:
+        origin, start = ("not traced",) * plant.points, np.full(plant.points, complex(np.nan, np.nan))
     if frequency:
         margins = loop_margins(loop, 1.0)
         bandwidth = closed_loop_bandwidth(loop, 1.0)

@@ -37,10 +37,10 @@ from ..lti.convert import poly_from_roots
 from ..lti.discretize import discretize_loop
 from ..lti.loop import Loop
 from ..lti.multirate import lift
-from ..lti.polynomials import batched_roots, pad_left
+from ..lti.polynomials import batched_roots, pad_left, polymul
 from .engine import Progress, design
 from .lookup import interpolate_table
-from .structures import controller_polynomials, polymul
+from .structures import controller_polynomials
 from .table import GainTable
 
 __all__ = ["CascadeDesign", "design_cascade", "inner_points_at", "outer_plant", "with_inner_loop"]

@@ -18,14 +18,13 @@ from typing import Any
 
 import numpy as np
 
-from ..lti.polynomials import batched_roots
+from ..lti.convert import poly_from_roots
+from ..lti.polynomials import batched_roots, polymul
 from .analysis import analyse
 from .structures import (
-    _roots_poly,
     continuous_fixed_poles,
     continuous_physical_from_locus,
     discretize_continuous,
-    polymul,
     zero_count,
 )
 
@@ -108,8 +107,8 @@ def continuous_design(sched, point_design) -> dict[str, np.ndarray] | None:
         poles = -wp[..., None]
     else:
         poles = np.broadcast_to(continuous_fixed_poles(structure, tf), (P, S, max(0, {"p": 0, "pi": 1, "pd": 1, "pid": 2}[structure])))
-    Z = _roots_poly(-np.nan_to_num(zeros, nan=1.0))
-    Q = _roots_poly(np.asarray(poles, float))
+    Z = poly_from_roots(-np.nan_to_num(zeros, nan=1.0))
+    Q = poly_from_roots(np.asarray(poles, float))
     N = polymul(Z, num[:, None, :])
     D = polymul(Q, den[:, None, :])
     width = D.shape[-1]

@@ -72,7 +72,7 @@ from ..lti.loop import Loop
 from ..lti.polynomials import batched_roots
 from .search import Shapes, exact_feasible, region_ok, shape_loops
 from .specs import SpecLimits
-from .strategies import LEAD_RATIO, _pack
+from .strategies import LEAD_RATIO, pack_shapes
 from .structures import filter_pole
 
 __all__ = ["CrossoverChoice", "crossover_design", "ranked_alternatives", "INTEGRAL_COST", "shape_space"]
@@ -198,7 +198,7 @@ def _shapes(structure: str, log_rates: np.ndarray, ts: np.ndarray, kd_a: np.ndar
     else:  # leadlag: lead zero, lag zero; poles by the corner ratio
         roots = z
         poles = np.stack([z[..., 0] ** LEAD_RATIO, z[..., 1] ** (1 / LEAD_RATIO)], axis=-1)
-    return _pack(structure, roots, poles)
+    return pack_shapes(structure, roots, poles)
 
 
 @dataclass(frozen=True, eq=False)

@@ -17,6 +17,7 @@ import numpy as np
 
 from ..errors import DesignError, InputError
 from ..lti.discretize import discretize_loop
+from ..lti.filters import with_filter
 from ..lti.loop import Loop
 from ..names import (
     CROSSOVER_OBJECTIVES,
@@ -35,8 +36,9 @@ from .fallbacks import (
     strategy_gain_warning,
     target_warnings,
 )
+from .measured_check import check_on_data, merge_data_verdict
 from .results import DesignResult, VerifyResult
-from .search import OBJECTIVE_TEXT, Choice, _samples_in, choose_gains, objective_values
+from .search import OBJECTIVE_TEXT, Choice, choose_gains, objective_values, samples_in
 from .specs import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
 from .structures import LocusForm, coefficients_from_locus
@@ -52,7 +54,7 @@ STEP_RETRIES = 24
 Progress = Callable[[str, int, int], None]
 
 
-def _load(schedule: Any):
+def load_for_design(schedule: Any):
     from ..schedule import Schedule, load_schedule
 
     if isinstance(schedule, Schedule):
@@ -63,17 +65,32 @@ def _load(schedule: Any):
 
 
 def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = None) -> Loop:
-    """The discretised plant (hold, sample period, computation delay) at ``points``.
+    """The fixed part of the loop at ``points``: the discretised plant (hold,
+    sample period, computation delay) followed by the ``controller.filters``.
 
-    A schedule with a ``plant_sampler`` (the outer loop of a cascade) gets its
-    plant from it: the inner closed loop as the outer loop samples it.
+    Every analysis multiplies the controller into this loop, so the filters
+    are in the locus, margins, intervals, specs, between-point and tolerance
+    checks through this one function.  The filters are evaluated at the
+    nominal parameters whatever ``scale`` says (the firmware's filter does
+    not follow a tolerance); the plant is scaled.  A schedule with a
+    ``plant_sampler`` (the outer loop of a cascade) gets its plant from it:
+    the inner closed loop as the outer loop samples it.
     """
+    points = np.asarray(points, dtype=float)
+    models = None
     if sched.plant_sampler is not None:
-        return sched.plant_sampler(np.asarray(points, dtype=float), scale)
-    models = sched.evaluate(np.asarray(points, dtype=float), scale=scale)
-    return discretize_loop(
-        models.plant, models.sample_period, sched.sampling.method, delay=models.delay, prewarp=sched.sampling.prewarp
-    )
+        plant = sched.plant_sampler(points, scale)
+    else:
+        models = sched.evaluate(points, scale=scale)
+        plant = discretize_loop(
+            models.plant, models.sample_period, sched.sampling.method, delay=models.delay,
+            prewarp=sched.sampling.prewarp,
+        )
+    filters = sched.filters_at(points, None if scale else models)
+    if filters is None:
+        return plant
+    num, den = filters.discrete(plant.ts)
+    return with_filter(plant, num, den)
 
 
 def limits_at(sched, points: np.ndarray) -> SpecLimits:
@@ -131,7 +148,7 @@ def _step_retry(plant, structure, shapes, choice: Choice, coefficients, limits, 
         intervals = choice.intervals[p]
         if not intervals:
             continue
-        gains = _samples_in(intervals, STEP_RETRIES)
+        gains = samples_in(intervals, STEP_RETRIES)
         gains = gains[np.isfinite(gains)]
         if gains.size == 0:
             continue
@@ -192,7 +209,7 @@ def _choose_chunk(args) -> Choice:
     return first
 
 
-def _workers(chunks: int) -> int:
+def worker_count(chunks: int) -> int:
     """Worker processes for the search: ``GAINLOOM_WORKERS`` or the CPU count (max 8); 1 for one chunk."""
     import os
 
@@ -216,7 +233,7 @@ def _run_chunks(chunks, progress, total) -> list[Choice]:
     """
     import multiprocessing
 
-    workers = _workers(len(chunks))
+    workers = worker_count(len(chunks))
     done = 0
     results: list[Choice] = []
     if workers > 1 and "fork" in multiprocessing.get_all_start_methods():
@@ -548,11 +565,11 @@ def _table(sched, points_shape, axes_values, coefficients, plant) -> GainTable:
         axes=axes,
         coefficients={k: np.asarray(v, float).reshape(shape) for k, v in coefficients.items()},
         sample_period=np.asarray(plant.ts, float).reshape(shape),
-        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(_grid_points(list(axes_values)))),
+        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(grid_points(list(axes_values)))),
     )
 
 
-def _grid_points(axes_values: list[np.ndarray]) -> np.ndarray:
+def grid_points(axes_values: list[np.ndarray]) -> np.ndarray:
     mesh = np.meshgrid(*axes_values, indexing="ij")
     return np.stack([m.ravel() for m in mesh], axis=-1)
 
@@ -575,12 +592,16 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     """
     from .table_checks import run_table_checks
 
-    sched = _load(schedule)
+    sched = load_for_design(schedule)
     axes_values = [np.asarray(a.values, float) for a in sched.axes]
-    points = _grid_points(axes_values)
+    points = grid_points(axes_values)
     point_design = design_points(sched, points, progress)
     report, point_design, axes_values = run_table_checks(sched, point_design, axes_values, progress=progress)
     table = _table(sched, None, axes_values, point_design.coefficients, point_design.plant)
+    data_check = check_on_data(sched, point_design.points, sched.controller.structure, point_design.coefficients,
+                               point_design.limits)
+    status, notes, binding = merge_data_verdict(point_design.status, point_design.notes, point_design.binding,
+                                                data_check)
     warnings = list(sched.warnings)
     warnings += sampling_warnings(sched, point_design.points, point_design.plant, point_design.analysis)
     warnings += list(point_design.analysis.warnings)
@@ -608,9 +629,9 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     return DesignResult(
         table=table,
         analysis=point_design.analysis,
-        status=point_design.status,
-        notes=point_design.notes,
-        binding=point_design.binding,
+        status=status,
+        notes=notes,
+        binding=binding,
         table_report=report,
         warnings=tuple(warnings),
         schedule_path=str(sched.path),
@@ -620,6 +641,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
         point_labels=tuple(sched.describe_point(p) for p in point_design.points),
         continuous=continuous,
         point_warnings=point_warnings(sched, point_design),
+        data_check=data_check,
     )
 
 
@@ -644,7 +666,7 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
     from .gainsfile import compromise_points, read_gains
     from .table_checks import run_table_checks
 
-    sched = _load(schedule)
+    sched = load_for_design(schedule)
     if isinstance(gains, GainTable):
         table, gains_path, marked = gains, "", []
     else:
@@ -660,7 +682,7 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
             "checked as written in the gains file"
         )
     axes_values = [a.values for a in table.axes]
-    points = _grid_points(axes_values)
+    points = grid_points(axes_values)
     plant = sampled_plant(sched, points)
     limits = limits_at(sched, points)
     coefficients = {k: v.ravel() for k, v in table.coefficients.items()}
@@ -687,7 +709,9 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
             f"set of gains for every spec); counted as failing whatever the re-check finds "
             f"({'passes' if analysis.passed[p] else 'fails'} now); design the table again to replace it"
         )
-    status = tuple("pass" if ok and p not in marked else "fail" for p, ok in enumerate(analysis.passed))
+    data_check = check_on_data(sched, points, table.structure, coefficients, limits)
+    status, _, _ = merge_data_verdict(tuple("pass" if ok and p not in marked else "fail" for p, ok in enumerate(analysis.passed)),
+                                      ((),) * points.shape[0], (None,) * points.shape[0], data_check)
     point_design = PointDesign(
         points=points, plant=plant, limits=limits, coefficients=coefficients, analysis=analysis,
         feasible=analysis.passed, status=status, binding=tuple([None] * points.shape[0]),
@@ -710,4 +734,5 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
         points=points,
         point_labels=tuple(sched.describe_point(p) for p in points),
         compromise_points=tuple(marked),
+        data_check=data_check,
     )

@@ -26,8 +26,8 @@ from ..outputs import write_outputs
 from ..plain import to_plain
 from .table import GainTable, TableAxis
 
-__all__ = ["GAINS_FORMAT", "render_gains", "write_gains", "read_gains", "gains_document", "GainsMetadata",
-           "compromise_points"]
+__all__ = ["GAINS_FORMAT", "GainsMetadata", "compromise_points", "gains_document", "read_gains", "render_gains",
+           "write_gains"]
 
 #: Format tag of the gains file.
 GAINS_FORMAT = "gainloom-gains/1"
@@ -48,6 +48,7 @@ _KEYS = (
     "table_checks",
     "warnings",
     "continuous",
+    "measured",
 )
 
 
@@ -286,9 +287,8 @@ def _floats(value: Any) -> Any:
         return [_floats(v) for v in value]
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
         raise TypeError
-    if isinstance(value, str):
-        if value not in ("inf", "-inf", "nan"):
-            raise ValueError
+    if isinstance(value, str) and value not in ("inf", "-inf", "nan"):
+        raise ValueError
     return float(value)
 
 
@@ -329,7 +329,7 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
         raise ScheduleError(f"gains file is not UTF-8 text (byte {error.start})", file=str(path)) from None
     try:
         root = yaml.compose(text, Loader=_Loader)
-        data = yaml.load(text, Loader=_Loader)  # noqa: S506 - _Loader is a SafeLoader
+        data = yaml.load(text, Loader=_Loader)
     except (ValueError, TypeError, OverflowError) as error:  # e.g. !!float abc
         raise ScheduleError(f"a value cannot be read as tagged: {error}", file=str(path)) from None
     except yaml.YAMLError as error:
@@ -386,7 +386,8 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
     limits = reader.get(data, "output_limits", "", (list,))
     if len(limits) == 2 and all(isinstance(v, list) for v in limits):
         # tabulated limits: one grid per limit
-        limit_values = tuple(reader.array(v, f"output_limits[{i}]", shape) for i, v in enumerate(limits))
+        limit_values: tuple[float, float] | tuple[np.ndarray, np.ndarray] = (
+            reader.array(limits[0], "output_limits[0]", shape), reader.array(limits[1], "output_limits[1]", shape))
         if not np.all(limit_values[0] < limit_values[1]):
             raise reader.error("expected u_min < u_max at every grid point", "output_limits")
     else:
@@ -415,6 +416,7 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
             "table_checks": _restore_nonfinite(data.get("table_checks")),
             "warnings": list(data.get("warnings") or []),
             "continuous": _restore_nonfinite(data.get("continuous")),
+            "measured": _restore_nonfinite(data.get("measured")),
             "path": str(path),
         }
     )

@@ -18,8 +18,9 @@ from .table import GainTable
 
 if TYPE_CHECKING:  # pragma: no cover
     from .analysis import PointAnalysis
+    from .measured_check import DataCheck
 
-__all__ = ["TableReport", "DesignResult", "VerifyResult", "point_document"]
+__all__ = ["DesignResult", "TableReport", "VerifyResult", "point_document"]
 
 
 def _float(value: Any) -> Any:
@@ -191,6 +192,10 @@ class DesignResult:
         for, naming the spec or target and the shortfall
         (:mod:`gainloom.design.fallbacks`); failing points say the table holds
         a best compromise.
+    data_check : DataCheck or None
+        With a measured plant: the frequency specs judged on the raw data
+        (:mod:`gainloom.design.measured_check`); its failures are in
+        ``status``.
     """
 
     table: GainTable
@@ -207,6 +212,7 @@ class DesignResult:
     point_labels: tuple[str, ...]
     continuous: dict[str, Any] | None = None
     point_warnings: tuple[tuple[str, ...], ...] = ()
+    data_check: DataCheck | None = None
 
     @property
     def points_passed(self) -> bool:
@@ -246,6 +252,7 @@ class DesignResult:
             "table_checks": self.table_report.as_document(),
             "warnings": list(self.warnings),
             "continuous": self.continuous,
+            "measured": None if self.data_check is None else self.data_check.as_document(),
         }
 
 
@@ -269,6 +276,9 @@ class VerifyResult:
     compromise_points : tuple of int
         Flat indices of the points the gains file marks ``compromise``: their
         status is ``fail`` whatever the re-check finds.
+    data_check : DataCheck or None
+        With a measured plant: the frequency specs judged on the raw data;
+        its failures are in ``status``.
     """
 
     table: GainTable
@@ -282,6 +292,7 @@ class VerifyResult:
     points: np.ndarray
     point_labels: tuple[str, ...]
     compromise_points: tuple[int, ...] = ()
+    data_check: DataCheck | None = None
 
     @property
     def passed(self) -> bool:

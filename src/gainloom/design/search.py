@@ -31,16 +31,17 @@ import numpy as np
 
 from ..lti.bandwidth import closed_loop_bandwidth
 from ..lti.closed_loop import closed_loop_poles
+from ..lti.convert import poly_from_roots
 from ..lti.intervals import spec_gain_intervals, stable_gain_intervals
 from ..lti.loop import Loop
 from ..lti.margins import loop_margins
+from ..lti.polynomials import polymul, z_to_delta
 from ..lti.regions import SpecRegion
 from .analysis import pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .specs import SpecLimits
-from .structures import _roots_poly, _z_to_delta, polymul
 
-__all__ = ["Shapes", "Choice", "shape_loops", "choose_gains", "objective_values", "OBJECTIVE_TEXT"]
+__all__ = ["OBJECTIVE_TEXT", "Choice", "Shapes", "choose_gains", "objective_values", "shape_loops"]
 
 #: Coarse gain samples per shape (ranking only).
 COARSE_SAMPLES = 30
@@ -110,13 +111,13 @@ def shape_loops(plant: Loop, zeros: np.ndarray, poles: np.ndarray, rows: np.ndar
         Plant point of each row.
     """
     ts = plant.ts[rows]
-    den_c = _roots_poly(poles)
+    den_c = poly_from_roots(poles)
     num = polymul(zeros, plant.num[rows])
     den = polymul(den_c, plant.den[rows])
     delta_num = delta_den = None
     if plant.delta_den is not None:
-        dz = _z_to_delta(zeros, ts)
-        dq = _z_to_delta(den_c, ts)
+        dz = z_to_delta(zeros, ts)
+        dq = z_to_delta(den_c, ts)
         lead = dq[..., :1]
         delta_num = polymul(dz / lead, plant.delta_num[rows])
         delta_den = polymul(dq / lead, plant.delta_den[rows])
@@ -309,7 +310,7 @@ def _exact_group(loop: Loop, limits: SpecLimits, points: np.ndarray) -> list[lis
     return out
 
 
-def _samples_in(intervals: list[tuple[float, float]], count: int) -> np.ndarray:
+def samples_in(intervals: list[tuple[float, float]], count: int) -> np.ndarray:
     """``count`` gains inside open intervals, including points next to each end."""
     if not intervals:
         return np.full(count, np.nan)
@@ -363,7 +364,10 @@ def choose_gains(
     """
     P, S = shapes.valid.shape
     rows_p = np.repeat(np.arange(P), S)
-    flat = lambda a: a.reshape((P * S,) + a.shape[2:])  # noqa: E731
+
+    def flat(a: np.ndarray) -> np.ndarray:
+        return a.reshape((P * S,) + a.shape[2:])
+
     loops = shape_loops(plant, flat(shapes.zeros), flat(shapes.poles), rows_p)
     ts_rows = plant.ts[rows_p]
 
@@ -437,10 +441,10 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S, cancelle
     feasible_sets = exact_feasible(sub, limits, sel_points, sub_cancelled)
     feasible_sets = [f if flat_valid[r] else [] for f, r in zip(feasible_sets, sel_rows)]
 
-    fine = np.stack([_samples_in(f, FINE_SAMPLES) for f in feasible_sets])
+    fine = np.stack([samples_in(f, FINE_SAMPLES) for f in feasible_sets])
     asked = shapes.gain.reshape(-1)[sel_rows]
     fine = np.concatenate([fine, asked[:, None]], axis=1)  # the strategy's own gain, if any
-    # The fine samples lie inside their sets by construction (_samples_in);
+    # The fine samples lie inside their sets by construction (samples_in);
     # only the strategy's own gain needs the membership test.
     asked_in = np.array([any(lo < g < hi for lo, hi in f) for f, g in zip(feasible_sets, asked)], dtype=bool)
     fine[:, -1] = np.where(asked_in, asked, np.nan)

@@ -213,7 +213,7 @@ def run_unit(sched, structure: str, specs: tuple[str, ...], draws: int, unit: St
     step = "max_overshoot" in specs or "max_settling_time" in specs
     frequency = any(s in specs for s in FREQUENCY_SPECS)
     analysis = analyse(plant, structure, {k: v[owner] for k, v in unit.coefficients.items()}, limits,
-                       step=step, frequency=frequency)
+                       step=step, frequency=frequency, origins=False)
     shape = (unit.point_index.size, count)
     failed = np.stack([~analysis.verdicts[s] for s in specs], axis=-1).reshape(shape + (len(specs),))
     badness = np.stack([spec_badness(s, analysis.values[s], spec_limit(limits, s)) for s in specs], axis=-1)
@@ -399,12 +399,12 @@ def run_study(schedule, gains, *, progress=None, workers: int | None = None,
     -------
     SpreadResult
     """
-    from .engine import _grid_points, _load, _workers, limits_at
+    from .engine import grid_points, limits_at, load_for_design, worker_count
     from .gainsfile import read_gains
     from .pool import map_units
     from .table import GainTable
 
-    sched = _load(schedule)
+    sched = load_for_design(schedule)
     table = gains if isinstance(gains, GainTable) else read_gains(gains)[0]
     tolerances = sched.tolerances
     if tolerances.draws is None:
@@ -415,13 +415,13 @@ def run_study(schedule, gains, *, progress=None, workers: int | None = None,
     if tuple(a.name for a in table.axes) != sched.axis_names:
         raise InputError(f"the gains file's axes {[a.name for a in table.axes]} are not the schedule's "
                          f"{list(sched.axis_names)}")
-    points = _grid_points([a.values for a in table.axes])
+    points = grid_points([a.values for a in table.axes])
     limits = limits_at(sched, points)
     specs = reported_specs(limits)
     parameters = tuple(sorted(tolerances.parameters))
     coefficients = {k: np.asarray(v, float).ravel() for k, v in table.coefficients.items()}
     units = study_units(points, coefficients, tolerances.draws, chunk_points, chunk_blocks)
-    count = _workers(len(units)) if workers is None else max(1, workers)
+    count = worker_count(len(units)) if workers is None else max(1, workers)
     parts = map_units(run_unit, (sched, table.structure, specs, tolerances.draws), units, count,
                       progress, tolerances.draws * points.shape[0], cluster=cluster, notes=notes)
     nominal = sched.evaluate(points).parameters

@@ -29,10 +29,11 @@ import math
 import numpy as np
 
 from ..errors import DesignError
+from ..lti.convert import poly_from_roots
 from ..lti.loop import Loop
 from ..lti.polynomials import batched_roots
 from .search import Shapes
-from .structures import _roots_poly, filter_pole, zero_count
+from .structures import filter_pole, zero_count
 
 __all__ = ["make_shapes", "LEAD_RATIO", "stable_real_poles"]
 
@@ -93,9 +94,9 @@ def _valid(structure: str, roots: np.ndarray, poles: np.ndarray) -> np.ndarray:
     return ok
 
 
-def _pack(structure: str, roots: np.ndarray, poles: np.ndarray, gain: np.ndarray | None = None) -> Shapes:
+def pack_shapes(structure: str, roots: np.ndarray, poles: np.ndarray, gain: np.ndarray | None = None) -> Shapes:
     P, S = roots.shape[:2]
-    zeros = _roots_poly(np.nan_to_num(roots, nan=0.0))
+    zeros = poly_from_roots(np.nan_to_num(roots, nan=0.0))
     valid = _valid(structure, roots, poles)
     return Shapes(
         zeros=zeros,
@@ -137,7 +138,7 @@ def _dominant_pair(plant: Loop, structure: str, kd_a: np.ndarray, target: tuple[
         poles = np.zeros((P, 1, 0))
         # no free element: the target is generally not on the locus of K P,
         # so the objective nearest-target picks the gain
-        return _pack(structure, roots, poles)
+        return pack_shapes(structure, roots, poles)
     cancel = _cancel_roots(plant, 1, "slowest")[:, 0, 0]
     if structure in ("pi", "pd", "pid"):
         fixed = _controller_poles(structure, kd_a, roots)[:, 0, :]  # (P, nq)
@@ -168,7 +169,7 @@ def _dominant_pair(plant: Loop, structure: str, kd_a: np.ndarray, target: tuple[
         pole = np.where((needed > 0) & (needed < np.pi), pole, np.nan)
         poles = pole[:, None, None]
         gain = np.abs(z_t - pole) / np.abs((z_t - cancel) * plant_value)
-    shapes = _pack(structure, roots, poles, gain[:, None])
+    shapes = pack_shapes(structure, roots, poles, gain[:, None])
     return Shapes(shapes.zeros, shapes.poles, shapes.valid & np.isfinite(gain)[:, None], np.where(np.isfinite(gain), gain, np.nan)[:, None], shapes.params)
 
 
@@ -211,12 +212,12 @@ def make_shapes(
         return _dominant_pair(plant, structure, kd_a, target)
     if nz == 0:
         roots = np.zeros((P, 1, 0))
-        return _pack(structure, roots, _controller_poles(structure, kd_a, roots))
+        return pack_shapes(structure, roots, _controller_poles(structure, kd_a, roots))
     if strategy == "pole-cancel":
         roots = _cancel_roots(plant, nz, zero_on or "slowest")
         if nz == 2:
             roots = np.sort(roots, axis=-1)
-        return _pack(structure, roots, _controller_poles(structure, kd_a, roots))
+        return pack_shapes(structure, roots, _controller_poles(structure, kd_a, roots))
     if strategy == "shape-sweep":
         (low, high), count = sweep if sweep is not None else ((0.5, 0.999), 24)
         values = np.linspace(low, high, count)
@@ -226,5 +227,5 @@ def make_shapes(
             i, j = np.triu_indices(count)
             pairs = np.stack([values[i], values[j]], axis=-1)
             roots = np.broadcast_to(pairs[None], (P,) + pairs.shape).copy()
-        return _pack(structure, roots, _controller_poles(structure, kd_a, roots))
+        return pack_shapes(structure, roots, _controller_poles(structure, kd_a, roots))
     raise DesignError(f"unknown strategy {strategy!r}")

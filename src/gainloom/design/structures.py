@@ -25,27 +25,29 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
+from ..lti.convert import poly_from_roots
 from ..lti.loop import Loop
-from ..lti.polynomials import pad_left
+from ..lti.polynomials import pad_left, polymul, z_to_delta
 from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
 
 __all__ = [
     "LocusForm",
     "check_structure",
-    "controller_polynomials",
-    "controller_delta_polynomials",
-    "locus_from_coefficients",
     "coefficients_from_locus",
-    "physical_from_coefficients",
     "coefficients_from_physical",
-    "open_loop",
-    "polymul",
-    "filter_pole",
-    "fixed_poles",
-    "zero_count",
     "continuous_fixed_poles",
     "continuous_physical_from_locus",
+    "controller_delta_polynomials",
+    "controller_polynomials",
     "discretize_continuous",
+    "filter_pole",
+    "fixed_poles",
+    "locus_from_coefficients",
+    "open_loop",
+    "physical_from_coefficients",
+    "polymul",
+    "z_to_delta",
+    "zero_count",
     "SHAPE_COEFFICIENTS",
 ]
 
@@ -77,31 +79,6 @@ def check_structure(structure: str) -> str:
 def zero_count(structure: str) -> int:
     """Number of controller zeros a strategy places (0, 1 or 2)."""
     return {"p": 0, "pi": 1, "pd": 1, "pid": 2, "lead": 1, "lag": 1, "leadlag": 2}[check_structure(structure)]
-
-
-def polymul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Batched product of polynomials (descending coefficients, last axis).
-
-    Leading axes broadcast.  The degree is small (controller times plant),
-    so the loop runs over coefficients, never over the batch.
-    """
-    a = np.asarray(a, dtype=float)
-    b = np.asarray(b, dtype=float)
-    shape = np.broadcast_shapes(a.shape[:-1], b.shape[:-1])
-    out = np.zeros(shape + (a.shape[-1] + b.shape[-1] - 1,))
-    for i in range(a.shape[-1]):
-        out[..., i : i + b.shape[-1]] += a[..., i : i + 1] * b
-    return out
-
-
-def _roots_poly(roots: np.ndarray) -> np.ndarray:
-    """Monic polynomial with the given real roots on the last axis (batched)."""
-    roots = np.asarray(roots, dtype=float)
-    poly = np.ones(roots.shape[:-1] + (1,))
-    for k in range(roots.shape[-1]):
-        factor = np.stack([np.ones_like(roots[..., k]), -roots[..., k]], axis=-1)
-        poly = polymul(poly, factor)
-    return poly
 
 
 def _coef(coefficients: dict[str, np.ndarray], name: str) -> np.ndarray:
@@ -177,30 +154,11 @@ def controller_polynomials(structure: str, coefficients: dict[str, np.ndarray]) 
         num = c["kc"][..., None] * np.stack([one, -c["zc"]], axis=-1)
         den = np.stack([one, -c["pc"]], axis=-1)
     else:  # leadlag
-        zeros = _roots_poly(np.stack([c["zc1"], c["zc2"]], axis=-1))
+        zeros = poly_from_roots(np.stack([c["zc1"], c["zc2"]], axis=-1))
         num = c["kc"][..., None] * zeros
-        den = _roots_poly(np.stack([c["pc1"], c["pc2"]], axis=-1))
+        den = poly_from_roots(np.stack([c["pc1"], c["pc2"]], axis=-1))
     del zero
     return pad_left(num, den.shape[-1]), den
-
-
-def _z_to_delta(poly: np.ndarray, ts: np.ndarray) -> np.ndarray:
-    """Substitute ``z = 1 + ts g`` into descending ``poly`` (exact algebra).
-
-    ``ts`` broadcasts against the batch axes of ``poly``.
-    """
-    poly = np.asarray(poly, dtype=float)
-    n = poly.shape[-1] - 1
-    ascending = poly[..., ::-1]
-    ts = np.asarray(ts, dtype=float)[..., None]
-    out = np.zeros(np.broadcast_shapes(poly.shape[:-1], ts.shape[:-1]) + (n + 1,))
-    from math import comb
-
-    for j in range(n + 1):
-        # coefficient of g^j: ts^j * sum_{k>=j} a_k C(k, j)
-        total = sum(ascending[..., k] * comb(k, j) for k in range(j, n + 1))
-        out[..., j] = total * ts[..., 0] ** j
-    return out[..., ::-1]
 
 
 def controller_delta_polynomials(
@@ -214,8 +172,8 @@ def controller_delta_polynomials(
     is 1 (the same rational function, better scaled).
     """
     num, den = controller_polynomials(structure, coefficients)
-    dnum = _z_to_delta(num, ts)
-    dden = _z_to_delta(den, ts)
+    dnum = z_to_delta(num, ts)
+    dden = z_to_delta(den, ts)
     lead = dden[..., :1]
     return dnum / lead, dden / lead
 
@@ -241,7 +199,7 @@ class LocusForm:
     @property
     def denominator(self) -> np.ndarray:
         """Monic denominator ``Q`` with roots :attr:`poles`."""
-        return _roots_poly(self.poles)
+        return poly_from_roots(self.poles)
 
 
 def fixed_poles(structure: str, kd_a: np.ndarray | float | None = None, pc: np.ndarray | None = None) -> np.ndarray:
@@ -269,7 +227,7 @@ def fixed_poles(structure: str, kd_a: np.ndarray | float | None = None, pc: np.n
 
 def locus_from_coefficients(structure: str, coefficients: dict[str, np.ndarray]) -> LocusForm:
     """Split table coefficients into ``K``, monic zeros polynomial and poles."""
-    num, den = controller_polynomials(structure, coefficients)
+    num, _den = controller_polynomials(structure, coefficients)
     # Trim the padding: numerator degree equals denominator degree for every
     # structure except P (degree 0 over degree 0).
     gain = num[..., 0]

@@ -109,6 +109,7 @@ class GainTable:
                 f"output limits must be finite with u_min < u_max at every point; got {low.ravel()[:4]}, "
                 f"{high.ravel()[:4]}"
             )
+        limits: tuple[float, float] | tuple[np.ndarray, np.ndarray]
         if np.all(low == low.flat[0]) and np.all(high == high.flat[0]):
             limits = (float(low.flat[0]), float(high.flat[0]))
         else:
@@ -128,7 +129,8 @@ class GainTable:
     @property
     def limit_grids(self) -> tuple[np.ndarray, np.ndarray]:
         """``(u_min, u_max)`` as arrays of the grid's shape."""
-        return tuple(np.broadcast_to(np.asarray(v, dtype=float), self.shape) for v in self.output_limits)
+        low, high = (np.broadcast_to(np.asarray(v, dtype=float), self.shape) for v in self.output_limits)
+        return low, high
 
     @property
     def limit_envelope(self) -> tuple[float, float]:

@@ -274,7 +274,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         The report, the (possibly smoothed/refined) point design, and the
         (possibly refined) axis values.
     """
-    from .engine import PointDesign, _grid_points, design_points
+    from .engine import PointDesign, design_points, grid_points
     from .results import TableReport
 
     structure = structure or sched.controller.structure
@@ -325,7 +325,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         for axis, value in wanted:
             new_axes[axis] = np.sort(np.append(new_axes[axis], value))
             inserted.append({"axis": names[axis], "value": value})
-        new_points = _grid_points(new_axes)
+        new_points = grid_points(new_axes)
         # reuse the designs of existing points, design only the new ones
         old_lookup = {tuple(p): q for q, p in enumerate(point_design.points)}
         is_new = np.array([tuple(p) not in old_lookup for p in new_points])

@@ -23,7 +23,7 @@ import numpy as np
 
 from ..errors import InputError
 from .loop import Loop
-from .margins import _bisect, _brackets, _frequency_grid, frequency_response
+from .margins import bisect_rows, frequency_grid, frequency_response, sign_change_brackets
 
 __all__ = ["closed_loop_bandwidth", "HALF_POWER"]
 
@@ -53,7 +53,7 @@ def closed_loop_bandwidth(loop: Loop, gain: object = 1.0) -> np.ndarray:
     if gains.ndim != 1 or not np.all(np.isfinite(gains)) or np.any(gains == 0):
         raise InputError(f"gain must be finite and non-zero, scalar or one per point; got {gain!r}")
     points = loop.points
-    grid = _frequency_grid(loop, gains)
+    grid = frequency_grid(loop, gains)
 
     def magnitude(w: np.ndarray, rows: np.ndarray) -> np.ndarray:
         num, den = frequency_response(loop.select(rows), w.reshape(rows.size, -1))
@@ -73,7 +73,7 @@ def closed_loop_bandwidth(loop: Loop, gain: object = 1.0) -> np.ndarray:
         values = np.where(np.isnan(values), -np.inf, values)
         # |T| below the level already at the grid's first frequency: bracket from w -> 0
         starts_below = values[:, 0] < 0
-        rows, cols = _brackets(values)
+        rows, cols = sign_change_brackets(values)
         downward = values[rows, cols] >= 0
         rows, cols = rows[downward], cols[downward]
         first = np.full(points, -1)
@@ -83,8 +83,8 @@ def closed_loop_bandwidth(loop: Loop, gain: object = 1.0) -> np.ndarray:
         out = np.where(defined, np.inf, np.nan)
         if found.size:
             c = first[found]
-            out[found] = _bisect(excess, grid[found, c], grid[found, c + 1], values[found, c], found)
+            out[found] = bisect_rows(excess, grid[found, c], grid[found, c + 1], values[found, c], found)
         low = np.flatnonzero(defined & starts_below)
         if low.size:
-            out[low] = _bisect(excess, grid[low, 0] * 1e-9, grid[low, 0], np.ones(low.size), low)
+            out[low] = bisect_rows(excess, grid[low, 0] * 1e-9, grid[low, 0], np.ones(low.size), low)
     return out

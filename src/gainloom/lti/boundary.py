@@ -51,6 +51,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from ..errors import InputError
+from .polynomials import polymul
 
 __all__ = [
     "Crossings",
@@ -178,14 +179,6 @@ def _bpolyder(coeffs: np.ndarray) -> np.ndarray:
     return coeffs[:, :-1] * np.arange(n, 0, -1)
 
 
-def _bconv(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Row-wise polynomial product of (M, la) and (M, lb)."""
-    out = np.zeros((a.shape[0], a.shape[1] + b.shape[1] - 1), dtype=np.result_type(a, b))
-    for i in range(a.shape[1]):
-        out[:, i : i + b.shape[1]] += a[:, i : i + 1] * b
-    return out
-
-
 def _basis(top: np.ndarray, bottom: np.ndarray, n: int) -> np.ndarray:
     """``R[p, i] = top^(n-i) bottom^i`` as (P, n+1, n+1) coefficients in ``t``.
 
@@ -196,11 +189,11 @@ def _basis(top: np.ndarray, bottom: np.ndarray, n: int) -> np.ndarray:
     top_powers = [np.ones((rows, 1), dtype=complex)]
     bottom_powers = [np.ones((rows, 1), dtype=complex)]
     for _ in range(n):
-        top_powers.append(_bconv(top_powers[-1], top))
-        bottom_powers.append(_bconv(bottom_powers[-1], bottom))
+        top_powers.append(polymul(top_powers[-1], top))
+        bottom_powers.append(polymul(bottom_powers[-1], bottom))
     basis = np.zeros((rows, n + 1, n + 1), dtype=complex)
     for i in range(n + 1):
-        product = _bconv(top_powers[n - i], bottom_powers[i])
+        product = polymul(top_powers[n - i], bottom_powers[i])
         basis[:, i, n + 1 - product.shape[1] :] = product[:, -(n + 1) :]
     return basis
 
@@ -295,7 +288,7 @@ def _rational_crossings(
     basis = _basis(top, bottom, n)
     a = np.einsum("pi,pik->pk", den.astype(complex), basis)
     b = np.einsum("pi,pik->pk", num.astype(complex), basis)
-    q = _bconv(a, np.conj(b)).imag
+    q = polymul(a, np.conj(b)).imag
     # t = 0 is the curve's real-axis point: there A and B are real, so the
     # constant coefficient is an exact zero; the real point is added exactly.
     q = q[:, :-1]

@@ -129,9 +129,11 @@ def sampled_loop_on_data(
         c_num = c_num * z + controller_num[:, k : k + 1]
     for k in range(controller_den.shape[1]):
         c_den = c_den * z + controller_den[:, k : k + 1]
-    loop = (c_num / c_den) * zoh_response(w, ts) * np.exp(-1j * w * (ts * np.asarray(delay, float))[:, np.newaxis])
-    loop = loop * plant
-    below_nyquist = w * ts[:, np.newaxis] < np.pi
+    with np.errstate(all="ignore"):  # nan pads stay nan
+        delay_factor = np.exp(-1j * w * (ts * np.asarray(delay, float))[:, np.newaxis])
+        loop = (c_num / c_den) * zoh_response(w, ts) * delay_factor * plant
+    with np.errstate(invalid="ignore"):
+        below_nyquist = w * ts[:, np.newaxis] < np.pi
     return np.where(below_nyquist, loop, np.nan)
 
 

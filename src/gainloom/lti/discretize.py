@@ -532,7 +532,7 @@ def discretize_loop(
     )
 
 
-def discrete_roots(z_coeffs: np.ndarray, delta_coeffs: np.ndarray, ts: object) -> np.ndarray:
+def discrete_roots(z_coeffs: object, delta_coeffs: object, ts: object) -> np.ndarray:
     """Roots in ``z`` of a discrete polynomial known in both ``z`` and ``g`` form.
 
     Parameters

@@ -163,7 +163,7 @@ def _continuous_equivalent(roots: np.ndarray, ts: np.ndarray | None) -> np.ndarr
     return np.where(np.isfinite(s), s, np.nan)
 
 
-def _frequency_grid(loop: Loop, gains: np.ndarray) -> np.ndarray:
+def frequency_grid(loop: Loop, gains: np.ndarray) -> np.ndarray:
     """Per-point frequency grid, rad/s, shape (P, M), sorted, strictly positive."""
     points = loop.points
     features = [batched_roots(loop.den)]
@@ -207,7 +207,7 @@ def _frequency_grid(loop: Loop, gains: np.ndarray) -> np.ndarray:
     return grid
 
 
-def _bisect(func, lo: np.ndarray, hi: np.ndarray, f_lo: np.ndarray, rows: np.ndarray) -> np.ndarray:
+def bisect_rows(func, lo: np.ndarray, hi: np.ndarray, f_lo: np.ndarray, rows: np.ndarray) -> np.ndarray:
     """Vectorised bisection in log w on brackets where ``func`` changes sign."""
     a, b = np.log(lo), np.log(hi)
     sign_a = np.signbit(f_lo)
@@ -220,7 +220,7 @@ def _bisect(func, lo: np.ndarray, hi: np.ndarray, f_lo: np.ndarray, rows: np.nda
     return np.exp(0.5 * (a + b))
 
 
-def _brackets(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def sign_change_brackets(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(row, column) of every sign change between grid columns j and j + 1."""
     sign = np.signbit(values)
     change = sign[:, 1:] != sign[:, :-1]
@@ -293,7 +293,7 @@ def loop_margins(loop: Loop, gain: object = 1.0) -> Margins:
     if gains.ndim != 1 or not np.all(np.isfinite(gains)) or np.any(gains == 0):
         raise InputError(f"gain must be finite and non-zero, scalar or one per point; got {gain!r}")
     points = loop.points
-    grid = _frequency_grid(loop, gains)
+    grid = frequency_grid(loop, gains)
     k = gains[:, np.newaxis]
 
     def parts(w, rows):
@@ -317,10 +317,10 @@ def loop_margins(loop: Loop, gain: object = 1.0) -> Margins:
             return (n * np.conj(d)).imag
 
         def refine(values, func):
-            r, c = _brackets(values)
+            r, c = sign_change_brackets(values)
             if r.size == 0:
                 return r, np.zeros(0)
-            w = _bisect(func, grid[r, c], grid[r, c + 1], values[r, c], r)
+            w = bisect_rows(func, grid[r, c], grid[r, c + 1], values[r, c], r)
             return r, w
 
         g_rows, w_gc = refine(np.log(np.abs(num)) - np.log(np.abs(den)), f_gain)

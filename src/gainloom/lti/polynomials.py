@@ -7,9 +7,11 @@ batch.
 
 from __future__ import annotations
 
+from math import comb
+
 import numpy as np
 
-__all__ = ["as_poly_batch", "pad_left", "batched_roots", "characteristic"]
+__all__ = ["as_poly_batch", "batched_roots", "characteristic", "pad_left", "polymul", "z_to_delta"]
 
 
 def as_poly_batch(coeffs: object) -> np.ndarray:
@@ -38,6 +40,22 @@ def pad_left(coeffs: np.ndarray, length: int) -> np.ndarray:
         raise ValueError(f"cannot pad {coeffs.shape[-1]} coefficients down to {length}")
     pad = [(0, 0)] * (coeffs.ndim - 1) + [(extra, 0)]
     return np.pad(coeffs, pad)
+
+
+def polymul(a: object, b: object) -> np.ndarray:
+    """Batched product of polynomials (descending coefficients, last axis).
+
+    Leading axes broadcast; the result is float, or complex when either
+    factor is.  The degree is small (controller times plant), so the loop
+    runs over coefficients, never over the batch.
+    """
+    a = np.asarray(a)
+    b = np.asarray(b)
+    shape = np.broadcast_shapes(a.shape[:-1], b.shape[:-1])
+    out = np.zeros(shape + (a.shape[-1] + b.shape[-1] - 1,), dtype=np.result_type(a, b, float))
+    for i in range(a.shape[-1]):
+        out[..., i : i + b.shape[-1]] += a[..., i : i + 1] * b
+    return out
 
 
 def batched_roots(coeffs: np.ndarray) -> np.ndarray:
@@ -90,3 +108,20 @@ def characteristic(num: np.ndarray, den: np.ndarray, gains: np.ndarray) -> np.nd
     gains = np.asarray(gains, dtype=float)
     num = pad_left(num, den.shape[-1])
     return den[..., np.newaxis, :] + gains[:, np.newaxis] * num[..., np.newaxis, :]
+
+
+def z_to_delta(poly: np.ndarray, ts: np.ndarray) -> np.ndarray:
+    """Substitute ``z = 1 + ts g`` into descending ``poly`` (exact algebra).
+
+    ``ts`` broadcasts against the batch axes of ``poly``.
+    """
+    poly = np.asarray(poly, dtype=float)
+    n = poly.shape[-1] - 1
+    ascending = poly[..., ::-1]
+    ts = np.asarray(ts, dtype=float)[..., None]
+    out = np.zeros(np.broadcast_shapes(poly.shape[:-1], ts.shape[:-1]) + (n + 1,))
+    for j in range(n + 1):
+        # coefficient of g^j: ts^j * sum_{k>=j} a_k C(k, j)
+        total = sum(ascending[..., k] * comb(k, j) for k in range(j, n + 1))
+        out[..., j] = total * ts[..., 0] ** j
+    return out[..., ::-1]

@@ -276,6 +276,8 @@ def fit_response(
             break
         # a suspect the model (fitted without the suspects) follows is kept
         confirmed = suspect & _beyond_spread(error, usable)
+        # a run of neighbours the model misses is a feature of the plant, not a bad sample
+        confirmed = confirmed & ~(np.roll(confirmed, 1, axis=1) | np.roll(confirmed, -1, axis=1))
         if np.array_equal(confirmed, suspect):
             break
         outliers = confirmed

@@ -358,4 +358,7 @@ def verification_document(
     }
     if timestamp is not None:
         document["timestamp"] = timestamp
+    check = getattr(result, "data_check", None)
+    if check is not None:  # a measured plant: the table judged on the raw data
+        document["measured"] = check.as_document()
     return to_plain(document, "text")

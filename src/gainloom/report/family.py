@@ -269,7 +269,7 @@ def run_family(
         Bad schedule, variants file or options, or a file in the way.  No
         folder is written then.
     """
-    from ..design.engine import _workers
+    from ..design.engine import worker_count
     from ..design.pool import map_units
     from .family_index import render_family_index
 
@@ -277,7 +277,7 @@ def run_family(
     units, base, variants = variant_units(schedule_path, variants_path, out)
     for unit in units:
         check_output_folder(out / unit.name)
-    count = _workers(len(units)) if workers is None else max(1, workers)
+    count = worker_count(len(units)) if workers is None else max(1, workers)
     parallel = count > 1 or cluster is not None
     options = {"number_format": number_format, "compile": compile, "target": target, "simulate": simulate,
                "inner_workers": 1 if parallel else None}

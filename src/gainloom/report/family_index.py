@@ -16,7 +16,7 @@ from typing import Any
 
 from ..outputs import sha256_bytes
 from ..safety import CAUTION_POINTS
-from .markdown import _table as table_lines  # the one Markdown table writer of the log
+from .markdown import table_lines  # the one Markdown table writer of the log
 
 __all__ = ["FAMILY_FORMAT", "render_family_index"]
 

@@ -42,6 +42,8 @@ def _open_loop(schedule: Any, result: Any, table: Any):
 
 #: File name of the simulation figure in the log folder.
 _SIMULATION_PLOT = "simulation.png"
+#: The measured plant's data and fit (schedules with plant.measured).
+MEASURED_PLOT = "measured.png"
 
 
 def _simulation_png(simulation: Any) -> bytes:
@@ -56,7 +58,7 @@ def render_verification(
     schedule: Any,
     result: Any,
     table: Any,
-    gains_path: str | os.PathLike | None = None,
+    gains_path: str | Path | None = None,
     harness: Any = None,
     quantisation: Any = None,
     simulation: Any = None,
@@ -94,6 +96,8 @@ def render_verification(
     names: list[str] = []
     if plots:
         names = ["gains.png", "margins.png", "step.png", "frequency.png"]
+        if sched.family.plant.measured is not None:
+            names.append(MEASURED_PLOT)
     draft = verification_document(schedule=sched, result=result, table=table, gains_path=gains_path,
                                   harness=harness, quantisation=quantisation, simulation=simulation,
                                   options=options, plots=names, timestamp=stamp, target=target)
@@ -105,6 +109,8 @@ def render_verification(
         images["margins.png"] = drawing.plot_margins(table, points)
         images["step.png"] = drawing.plot_steps(loop, chosen, points)
         images["frequency.png"] = plot_frequency(loop, chosen, points)
+        if sched.family.plant.measured is not None:
+            images[MEASURED_PLOT] = _measured_png(sched, result)
         for index, role in chosen:
             name = f"locus_{index}.png"
             images[name] = drawing.plot_locus_point(loop, index, points[index], role)
@@ -119,13 +125,23 @@ def render_verification(
     return files
 
 
+def _measured_png(sched, result) -> bytes:
+    """The measured plant's data and fit, with the data-judged crossover where the result has one."""
+    from .measured_plot import plot_measured
+
+    check = getattr(result, "data_check", None)
+    crossover = None if check is None else check.margins.gain_crossover
+    return plot_measured(sched.family.plant.measured, tuple(sched.describe_point(p) for p in sched.points),
+                         crossover)
+
+
 def write_verification(
     out_dir: str | os.PathLike,
     *,
     schedule: Any,
     result: Any,
     table: Any,
-    gains_path: str | os.PathLike | None = None,
+    gains_path: str | Path | None = None,
     harness: Any = None,
     quantisation: Any = None,
     simulation: Any = None,

@@ -40,7 +40,7 @@ def _cell(text: Any) -> str:
     return str(text).replace("|", "\\|").replace("\n", " ")
 
 
-def _table(headers: list[str], rows: list[list[Any]]) -> list[str]:
+def table_lines(headers: list[str], rows: list[list[Any]]) -> list[str]:
     lines = ["| " + " | ".join(headers) + " |", "|" + "|".join("---" for _ in headers) + "|"]
     lines += ["| " + " | ".join(_cell(c) for c in row) + " |" for row in rows]
     return lines + [""]
@@ -56,7 +56,7 @@ def _summary(doc: dict[str, Any]) -> list[str]:
     word = "PASS" if verdict["passed"] else "FAIL"
     lines.append(f"**Verdict: {word}.**" + ("" if verdict["passed"] else " " + "; ".join(verdict["reasons"]) + "."))
     lines.append("")
-    lines += _table(
+    lines += table_lines(
         ["check", "result"],
         [
             ["design at every grid point and whole-table checks", _verdict_word(verdict["design"])],
@@ -77,7 +77,7 @@ def _summary(doc: dict[str, Any]) -> list[str]:
         for f in failed[:FAILED_ROWS]:
             rows.append([f["index"], f["label"], f["binding"] or "-", number(f["value"]), number(f["limit"]),
                          ", ".join(f["failed"]), " ".join(f["notes"]) or "-"])
-        lines += _table(["#", "point", "binding spec", "value", "limit", "all failed specs",
+        lines += table_lines(["#", "point", "binding spec", "value", "limit", "all failed specs",
                          "best reachable / notes"], rows)
         if len(failed) > FAILED_ROWS:
             counts: dict[str, int] = {}
@@ -95,7 +95,7 @@ def _inputs(doc: dict[str, Any]) -> list[str]:
     rows = [["schedule file", inputs["schedule"]["path"], f"`{inputs['schedule']['sha256']}`"]]
     if inputs["gains"] is not None:
         rows.append(["gains file", inputs["gains"]["path"], f"`{inputs['gains']['sha256']}`"])
-    lines += _table(["input", "file", "SHA-256"], rows)
+    lines += table_lines(["input", "file", "SHA-256"], rows)
     lines.append("Tools: " + ", ".join(f"{k} {v}" for k, v in sorted(tools.items()) if v is not None) + ".")
     if tools.get("c_compiler") is None:
         lines.append("No C compiler result in this log.")
@@ -139,7 +139,7 @@ def _points(doc: dict[str, Any]) -> list[str]:
                                               "phase_margin_deg", "delay_margin_s", "sensitivity_peak",
                                               "crossover_rad_s", "bandwidth_rad_s",
                                               "overshoot_percent", "settling_time_s")])
-    lines += _table(headers, rows)
+    lines += table_lines(headers, rows)
     lines.append("Closed-loop poles in z and s of every point, physical gains and each spec's value, limit and "
                  "pass: `points` in verification.json.  ζ and ωn are those of the least-damped judged pole; "
                  "⚠n: n warnings on the point, listed under Warnings.")
@@ -156,7 +156,7 @@ def _worst(doc: dict[str, Any]) -> list[str]:
         rows.append([name, f"{bound} {number(w['limit'])}", number(w["value"]), number(w["margin"]),
                      number(w["relative_margin"], 3), f"{w['index']}: {w['label']}",
                      "pass" if w["pass"] else f"FAIL at {w['failing_points']} point(s)"])
-    lines += _table(["spec", "limit", "worst value", "distance to limit", "relative", "at point", "result"], rows)
+    lines += table_lines(["spec", "limit", "worst value", "distance to limit", "relative", "at point", "result"], rows)
     lines.append("Distance to limit is positive on the passing side (for `stable`: 1 - largest |z|).")
     return lines + [""]
 
@@ -174,7 +174,7 @@ def _table_checks(doc: dict[str, Any]) -> list[str]:
         [f"tolerances ({tol['samples_per_point']} samples per point)",
          "pass" if not tol["failing"] else f"FAIL at {len(tol['failing'])} point(s)"],
     ]
-    lines += _table(["check", "result"], rows)
+    lines += table_lines(["check", "result"], rows)
     shown = 10
 
     def more(items: list) -> None:
@@ -213,7 +213,7 @@ def _quantisation(doc: dict[str, Any]) -> list[str]:
     word = "pass: rounding breaks no spec" if q["passed"] else "FAIL: rounding breaks a spec"
     lines += [f"Format `{q['number_format']}`: **{word}**. Largest closed-loop pole shift "
               f"largest |dz| = {number(q['max_pole_shift'])}.", ""]
-    lines += _table(["coefficient", "fraction bits", "scale", "largest rounding error"],
+    lines += table_lines(["coefficient", "fraction bits", "scale", "largest rounding error"],
                     [[c["name"], "-" if c["frac"] is None else c["frac"], number(c["scale"]),
                       number(c["max_abs_error"])] for c in q["coefficients"]])
     rows = []
@@ -222,7 +222,7 @@ def _quantisation(doc: dict[str, Any]) -> list[str]:
             continue
         rows.append([name, "-" if w["label"] is None else w["label"], number(w["before"], 8), number(w["after"], 8),
                      number(w["change"])])
-    lines += _table(["quantity", "worst point", "before", "after", "change (negative: worse)"], rows)
+    lines += table_lines(["quantity", "worst point", "before", "after", "change (negative: worse)"], rows)
     for b in q["broken"]:
         lines.append(f"- broken by rounding ({b['where']}): {b['spec']} at {b['point']}")
     offsets = ", ".join(f"{k} {number(v)}" for k, v in q["axis_offsets"].items())
@@ -241,7 +241,7 @@ def _c_check(doc: dict[str, Any]) -> list[str]:
     lines.append(f"Status **{c['status']}**: {c['message']}")
     lines.append("")
     if c["compiler"] is not None:
-        lines += _table(["item", "value"], [
+        lines += table_lines(["item", "value"], [
             ["compiler", f"{c['compiler']} ({c['compiler_version']})"],
             ["flags", " ".join(c["flags"])],
             ["sanitizers", number(c["sanitizers"])],
@@ -250,6 +250,24 @@ def _c_check(doc: dict[str, Any]) -> list[str]:
             ["worst step error (tolerance)", f"{number(c['worst_step_error'])} ({number(c['step_tolerance'])})"],
         ])
     return lines
+
+
+def _measured(doc: dict[str, Any]) -> list[str]:
+    m = doc.get("measured")
+    if m is None:
+        return []
+    lines = ["## Measured data", "",
+             f"**{'pass' if m['passed'] else 'FAIL'}**: the table's frequency specs judged again on the raw "
+             "sweep samples (zero-order hold and computation delay applied on the data's grid); the design "
+             "ran on the fitted models.", ""]
+    rows = [[e["index"], e["label"], number(e["gain_margin_db"]), number(e["phase_margin_deg"]),
+             number(e["crossover_rad_s"]), number(e["sensitivity_peak"]),
+             f"{number(100 * e['fit_error'])} / {number(100 * e['fit_error_near_crossover'])}",
+             "pass" if e["passed"] else "FAIL: " + "; ".join(e["failed"])] for e in m["points"]]
+    lines += table_lines(["#", "point", "GM [dB]", "PM [deg]", "ωc [rad/s]", "Ms", "fit error % (all / near ωc)",
+                     "on the data"], rows)
+    notes = [f"- {e['label']}: {note}" for e in m["points"] for note in e["coverage"]]
+    return lines + (notes + [""] if notes else [])
 
 
 def _simulation(doc: dict[str, Any]) -> list[str]:
@@ -281,7 +299,7 @@ def _simulation(doc: dict[str, Any]) -> list[str]:
         if instability:
             rows.append(["stability", ("UNSTABLE (" + str(instability["kind"]) + "): " if instability["detected"]
                                        else "ok: ") + str(instability["detail"])])
-        lines += _table(["measured", "value"], rows)
+        lines += table_lines(["measured", "value"], rows)
     scenario = (doc.get("options") or {}).get("simulation_scenario")
     if isinstance(scenario, dict) and scenario.get("kind") == "default":
         ramp, load = scenario["ramp"], scenario["load_step"]
@@ -299,7 +317,7 @@ def _simulation(doc: dict[str, Any]) -> list[str]:
         ]
         lines += [f"- note: {n}" for n in scenario.get("notes", [])] + ([""] if scenario.get("notes") else [])
     if s["checks"]:
-        lines += _table(["scenario spec", "limit", "value", "result"],
+        lines += table_lines(["scenario spec", "limit", "value", "result"],
                         [[c["name"], number(c["limit"]), number(c["value"]), "pass" if c["passed"] else "FAIL"]
                          for c in s["checks"]])
     return lines
@@ -331,7 +349,7 @@ def render_markdown(doc: dict[str, Any]) -> str:
     lines: list[str] = []
     from .markdown_target import target_section  # it uses this module's table writer
 
-    for part in (_summary, _points, _worst, _table_checks, _quantisation, _c_check, target_section, _simulation,
+    for part in (_summary, _points, _worst, _measured, _table_checks, _quantisation, _c_check, target_section, _simulation,
                  _warnings, _cautions, _inputs, _plots):
         lines += part(doc)
     text = "\n".join(line.rstrip() for line in lines).rstrip() + "\n"

@@ -5,8 +5,10 @@ from __future__ import annotations
 
 from typing import Any
 
-from .markdown import _table as table_lines  # the one Markdown table writer of the log
-from .markdown import number
+from .markdown import (
+    number,
+    table_lines,  # the one Markdown table writer of the log
+)
 
 __all__ = ["target_section"]
 

@@ -63,11 +63,11 @@ __all__ = [
 #: Multiples of the designed loop gain swept when the tracer cannot be used.
 LOCUS_GAINS = np.geomspace(1e-3, 1e3, 481)
 
-def _axis_label(axis: Any) -> str:
+def axis_label(axis: Any) -> str:
     return f"{axis.name} [{axis.unit}]" if axis.unit else axis.name
 
 
-def _lines_2d(table: Any, grid: np.ndarray):
+def grid_lines(table: Any, grid: np.ndarray):
     """(label, x, y, flat indices) per line of a 1-D or 2-D grid."""
     x = table.axes[0].values
     if len(table.axes) == 1:
@@ -98,14 +98,14 @@ def plot_gains(table: Any, status: tuple[str, ...]) -> bytes:
     for k, name in enumerate(names):
         ax = figure.add_subplot(rows, columns, k + 1)
         grid = np.asarray(table.coefficients[name])
-        for n, (label, x, y, flat) in enumerate(_lines_2d(table, grid)):
+        for n, (label, x, y, flat) in enumerate(grid_lines(table, grid)):
             colour = SERIES[n % len(SERIES)]
             ax.plot(x, y, marker="o", ms=3.5, lw=1.4, color=colour, label=label)
             bad = failed[flat]
             if bad.any():
                 ax.plot(x[bad], y[bad], ls="none", marker="o", ms=9, mfc="none", mec=LIMIT, mew=1.4)
         ax.set_title(f"{name}", fontsize=10, loc="left")
-        ax.set_xlabel(_axis_label(table.axes[0]), fontsize=8.5)
+        ax.set_xlabel(axis_label(table.axes[0]), fontsize=8.5)
         ax.grid(True, color="#e4e4e4", lw=0.6)
         ax.tick_params(labelsize=8)
         ax.ticklabel_format(axis="y", style="sci", scilimits=(-3, 4), useOffset=False)
@@ -158,7 +158,7 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
         # dashed line, named at its right end when the limits differ
         groups: dict[tuple, list[int]] = {}
         drawn: dict[tuple, tuple] = {}
-        for n, (label, x, y, flat) in enumerate(_lines_2d(table, values)):
+        for n, (label, x, y, flat) in enumerate(grid_lines(table, values)):
             colour = SERIES[n % len(SERIES)]
             ax.plot(x, _finite(y), marker="o", ms=3.2, lw=1.3, color=colour, label=label)
             for spec in (low, high):
@@ -174,7 +174,7 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
                 bad = np.array([spec in points[i]["specs"] and not points[i]["specs"][spec]["pass"] for i in flat])
                 if bad.any():
                     ax.plot(x[bad], _finite(y[bad]), ls="none", marker="o", ms=9, mfc="none", mec=LIMIT, mew=1.4)
-        labels = [label for label, *_ in _lines_2d(table, values)]
+        labels = [label for label, *_ in grid_lines(table, values)]
         several = len({sig[0] for sig in groups}) < len(groups)
         for signature, members in groups.items():
             x, limits = drawn[signature]
@@ -190,7 +190,7 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
                     ha="right", va="bottom", fontsize=7, color="#555555")
         _y_axis(ax, log)
         ax.set_title(title + (f"  [{unit}]" if unit else ""), fontsize=9.5, loc="left")
-        ax.set_xlabel(_axis_label(table.axes[0]), fontsize=8.5)
+        ax.set_xlabel(axis_label(table.axes[0]), fontsize=8.5)
         ax.grid(True, color="#e4e4e4", lw=0.6)
         ax.tick_params(labelsize=8)
     handles = [Line2D([], [], color=SERIES[0], marker="o", ms=3.2, lw=1.3, label="designed table"),
@@ -198,7 +198,7 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
                Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=LIMIT, mew=1.4, label="spec fails")]
     if len(table.axes) == 2:
         handles = [Line2D([], [], color=SERIES[n % len(SERIES)], marker="o", ms=3.2, lw=1.3, label=label)
-                   for n, (label, *_rest) in enumerate(_lines_2d(table, np.zeros(table.shape)))]
+                   for n, (label, *_rest) in enumerate(grid_lines(table, np.zeros(table.shape)))]
         handles += [Line2D([], [], color=LIMIT, lw=1.1, ls=(0, (5, 3)),
                            label="dashed: spec limit (named where it differs between lines)"),
                     Line2D([], [], ls="none", marker="o", ms=9, mfc="none", mec=LIMIT, mew=1.4, label="spec fails")]

@@ -49,13 +49,19 @@ from ..names import NUMBER_FORMATS, unknown_name_message
 from ..outputs import check_output_folder, write_outputs
 
 __all__ = [
+    "LOAD_STEP_FRACTION",
+    "SIMULATION_MAX_SAMPLES",
+    "SIMULATION_SPAN",
     "JobResult",
     "StageVerdict",
-    "run_design_job",
+    "StagedOutcome",
+    "design_stage",
+    "harness_stage",
+    "quantisation_stage",
+    "resolve_format",
+    "time_scale",
     "default_scenario",
-    "SIMULATION_SPAN",
-    "SIMULATION_MAX_SAMPLES",
-    "LOAD_STEP_FRACTION",
+    "run_design_job",
 ]
 
 Progress = Callable[[str, int, int], None]
@@ -73,6 +79,12 @@ SIMULATION_MAX_SAMPLES = 100_000
 #: limit (common practice for a representative disturbance, no source).
 LOAD_STEP_FRACTION = 0.1
 
+#: Why a schedule with ``controller.filters`` gets no C (issue 12 item 2 open).
+FILTERS_NOT_IN_C = (
+    "the generated C and the simulation do not implement controller.filters yet; C without the filters "
+    "would be another controller than the one verified, so none is generated"
+)
+
 #: Shortest time scale, in sample periods (a window needs enough samples).
 _MIN_SCALE_SAMPLES = 20.0
 
@@ -87,7 +99,7 @@ class StageVerdict:
         ``design``, ``C code``, ``C check``, ``target``, ``C rules``,
         ``quantisation``, ``simulation`` or ``log``.
     status : str
-        ``pass``, ``FAIL``, ``not checked`` or ``written``.
+        ``pass``, ``FAIL``, ``not checked``, ``written`` or ``not generated``.
     detail : str
         One line saying why.
     """
@@ -102,8 +114,29 @@ class StageVerdict:
         return self.status == "FAIL"
 
 
+class StagedOutcome:
+    """Verdict properties of a job result with a ``stages`` tuple of :class:`StageVerdict`."""
+
+    stages: tuple[StageVerdict, ...]
+
+    @property
+    def passed(self) -> bool:
+        """True when no stage failed ("not checked" stages do not count as a pass; see ``not_checked``)."""
+        return not any(s.failed for s in self.stages)
+
+    @property
+    def not_checked(self) -> tuple[str, ...]:
+        """Stages that did not run or could not check anything."""
+        return tuple(s.stage for s in self.stages if s.status == "not checked")
+
+    @property
+    def exit_code(self) -> int:
+        """CLI exit code: 0 every stage passes (or was not checked), 1 some spec fails."""
+        return 0 if self.passed else 1
+
+
 @dataclass(frozen=True, eq=False)
-class JobResult:
+class JobResult(StagedOutcome):
     """What :func:`run_design_job` returns.
 
     Attributes
@@ -148,23 +181,8 @@ class JobResult:
     scenario: dict[str, Any] | None
     stages: tuple[StageVerdict, ...]
 
-    @property
-    def passed(self) -> bool:
-        """True when no stage failed ("not checked" stages do not count as a pass; see ``not_checked``)."""
-        return not any(s.failed for s in self.stages)
 
-    @property
-    def not_checked(self) -> tuple[str, ...]:
-        """Stages that did not run or could not check anything."""
-        return tuple(s.stage for s in self.stages if s.status == "not checked")
-
-    @property
-    def exit_code(self) -> int:
-        """CLI exit code: 0 every stage passes (or was not checked), 1 some spec fails."""
-        return 0 if self.passed else 1
-
-
-def _time_scale(result: Any) -> tuple[float, str]:
+def time_scale(result: Any) -> tuple[float, str]:
     """The loop's slowest time scale in seconds, and where it came from."""
     analysis = result.analysis
     periods = np.asarray(result.table.sample_period, dtype=float)
@@ -222,7 +240,7 @@ def default_scenario(schedule: Any, result: Any) -> tuple[Any, dict[str, Any]]:
     """
     from ..simulation import LoadStep, PiecewiseLinear, Scenario
 
-    scale, basis = _time_scale(result)
+    scale, basis = time_scale(result)
     span = SIMULATION_SPAN
     total = sum(span.values())
     shortest = float(np.min(np.asarray(result.table.sample_period, dtype=float)))
@@ -273,7 +291,8 @@ def default_scenario(schedule: Any, result: Any) -> tuple[Any, dict[str, Any]]:
     return scenario, description
 
 
-def _design_stage(result: Any) -> StageVerdict:
+def design_stage(result: Any) -> StageVerdict:
+    """The design as one stage line: points passing, binding specs and whole-table checks that fail."""
     failed = [p for p, s in enumerate(result.status) if s != "pass"]
     if not failed and result.table_report.passed:
         return StageVerdict("design", "pass", f"{len(result.status)}/{len(result.status)} points meet every spec; "
@@ -298,10 +317,11 @@ def _design_stage(result: Any) -> StageVerdict:
     return StageVerdict("design", "FAIL", "; ".join(parts))
 
 
-def _harness_stage(harness: Any) -> StageVerdict:
+def harness_stage(harness: Any, skipped: str | None = None) -> StageVerdict:
+    """The host harness as one stage line (``None``: not run, for the reason ``skipped``)."""
     if harness is None:
-        return StageVerdict("C check", "not checked",
-                            "not checked: compile-and-harness check skipped on request (--no-compile)")
+        return StageVerdict("C check", "not checked", "not checked: " + (
+            skipped or "compile-and-harness check skipped on request (--no-compile)"))
     if harness.status == "no-compiler":
         return StageVerdict("C check", "not checked", "not checked: no C compiler found")
     if harness.passed:
@@ -324,7 +344,7 @@ def _target_figures(target: Any) -> str:
 
 def _target_stage(target: Any, skipped: str) -> StageVerdict:
     if target is None:
-        return StageVerdict("target", "not checked", f"not checked: skipped on request ({skipped})")
+        return StageVerdict("target", "not checked", f"not checked: {skipped}")
     if target.passed is None:
         return StageVerdict("target", "not checked", target.message)
     if target.passed:
@@ -334,13 +354,14 @@ def _target_stage(target: Any, skipped: str) -> StageVerdict:
 
 def _rules_stage(target: Any, skipped: str) -> StageVerdict:
     if target is None:
-        return StageVerdict("C rules", "not checked", f"not checked: skipped on request ({skipped})")
+        return StageVerdict("C rules", "not checked", f"not checked: {skipped}")
     rules = target.rules
     status = {True: "pass", False: "FAIL", None: "not checked"}[rules.passed]
     return StageVerdict("C rules", status, rules.message)
 
 
-def _quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
+def quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
+    """The re-check of the table as stored in ``number_format`` as one stage line."""
     if quantisation.passed:
         return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec")
     broken = quantisation.broken
@@ -349,9 +370,10 @@ def _quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
     return StageVerdict("quantisation", "FAIL", f"rounding to {number_format} breaks {shown}{more}")
 
 
-def _simulation_stage(simulation: Any) -> StageVerdict:
+def _simulation_stage(simulation: Any, skipped: str | None = None) -> StageVerdict:
     if simulation is None:
-        return StageVerdict("simulation", "not checked", "not checked: skipped on request (--no-simulate)")
+        return StageVerdict("simulation", "not checked",
+                            "not checked: " + (skipped or "skipped on request (--no-simulate)"))
     m = simulation.metrics
     if simulation.stable:
         overshoot = "-" if m.overshoot is None else f"{m.overshoot:.3g} %"
@@ -361,7 +383,8 @@ def _simulation_stage(simulation: Any) -> StageVerdict:
     return StageVerdict("simulation", "FAIL", f"unstable ({m.instability.kind}): {m.instability.detail}")
 
 
-def _resolve_format(schedule: Any, number_format: str | None) -> str:
+def resolve_format(schedule: Any, number_format: str | None) -> str:
+    """The number format asked for, else the schedule's ``codegen.format``; refuses an unknown one."""
     fmt = number_format or schedule.codegen.format
     if fmt not in NUMBER_FORMATS:
         raise InputError(unknown_name_message("number format", fmt, NUMBER_FORMATS))
@@ -447,7 +470,7 @@ def run_design_job(
         raise InputError(f"gains file name must be a plain file name ending .yaml, .yml or .json; got {gains_name!r}")
     out = check_output_folder(out_dir)  # a bad output path is bad input, found before the design
     schedule = load_schedule(schedule_path)
-    number_format = _resolve_format(schedule, number_format)
+    number_format = resolve_format(schedule, number_format)
     prefix = schedule.codegen.prefix if prefix is None else prefix
     validate_prefix(prefix)  # before the design: a bad prefix is bad input, found at once
 
@@ -467,8 +490,15 @@ def run_design_job(
 
     step("emit C", 0)
     verdict = table_verdict(result.passed, quantisation.rounded.passed, number_format)
-    c_texts = render_files(result.table, number_format, prefix, str(result.schedule_sha256),
-                           {"gains_file": gains_name, "gains_sha256": gains_sha256}, verdict=verdict, **scales)
+    # C without the filter sections would be another controller than the one
+    # verified: none is generated, and nothing that runs it (harness, target,
+    # simulation) is run, until the C carries them
+    no_c = FILTERS_NOT_IN_C if schedule.controller.filters else None
+    not_run = "no C was generated (controller.filters)" if no_c else None
+    c_texts = {} if no_c else render_files(
+        result.table, number_format, prefix, str(result.schedule_sha256),
+        {"gains_file": gains_name, "gains_sha256": gains_sha256}, verdict=verdict, **scales)
+    compile, simulate = compile and not no_c, simulate and not no_c
     step("emit C", 1)
 
     with tempfile.TemporaryDirectory(prefix="gainloom-job-") as tmp:
@@ -527,15 +557,16 @@ def run_design_job(
     step("write", 1)
 
     stages = (
-        _design_stage(result),
+        design_stage(result),
+        StageVerdict("C code", "not generated", no_c) if no_c else
         StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix}); "
                      + ("header marked verified" if verdict.verified else
                         f"header NOT VERIFIED: builds only with {c_names(prefix).accept_unverified} defined")),
-        _harness_stage(harness),
-        _target_stage(target_result, "--no-compile" if not compile else "--no-target"),
-        _rules_stage(target_result, "--no-compile" if not compile else "--no-target"),
-        _quantisation_stage(quantisation, number_format),
-        _simulation_stage(simulation),
+        harness_stage(harness, not_run),
+        _target_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
+        _rules_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
+        quantisation_stage(quantisation, number_format),
+        _simulation_stage(simulation, not_run and "the simulation does not run controller.filters yet"),
         StageVerdict("log", "written", ", ".join(sorted(log_files))),
     )
     return JobResult(

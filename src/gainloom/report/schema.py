@@ -38,6 +38,16 @@ def _obj(keys: dict[str, Any], optional: dict[str, Any] | None = None, open_: bo
 
 _SPEC = _obj({"value": NUMBER, "limit": NUMBER, "pass": BOOL, "margin": NUMBER})
 
+_MEASURED = _obj({
+    "passed": BOOL,
+    "points": {"list": _obj({
+        "index": INT, "label": STRING, "passed": BOOL, "failed": {"list": STRING}, "coverage": {"list": STRING},
+        "gain_margin_db": NUMBER, "phase_margin_deg": NUMBER, "crossover_rad_s": NUMBER,
+        "last_crossover_rad_s": NUMBER, "sensitivity_peak": NUMBER, "bandwidth_rad_s": NUMBER,
+        "delay_margin_s": NUMBER, "fit_error": NUMBER, "fit_error_near_crossover": NUMBER,
+    })},
+})
+
 _POINT = _obj({
     "index": INT,
     "at": {"map": NUMBER},
@@ -278,7 +288,7 @@ SCHEMA: dict[str, Any] = _obj(
         "cautions": {"list": STRING},
         "plots": {"list": STRING},
     },
-    {"timestamp": STRING},
+    {"timestamp": STRING, "measured": _MEASURED},
 )
 
 _NONFINITE = ("inf", "-inf", "nan")

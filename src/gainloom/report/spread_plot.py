@@ -17,7 +17,7 @@ import numpy as np
 
 from ..look import SERIES, new_figure, png_bytes
 from ..outputs import write_outputs
-from .plots import _axis_label, _lines_2d
+from .plots import axis_label, grid_lines
 
 __all__ = ["plot_spread", "write_spread_plot", "SPREAD_PLOT"]
 
@@ -40,12 +40,12 @@ def plot_spread(result: Any) -> bytes:
              (("fraction", result.any_fraction), ("low", low), ("high", high))}
     figure = new_figure((8.0, 4.4))
     ax = figure.add_subplot(1, 1, 1)
-    for n, (label, x, y, flat) in enumerate(_lines_2d(table, grids["fraction"])):
+    for n, (label, x, y, flat) in enumerate(grid_lines(table, grids["fraction"])):
         below = y - grids["low"].ravel()[flat]
         above = grids["high"].ravel()[flat] - y
         ax.errorbar(x, y, yerr=[below, above], marker="o", ms=3.5, lw=1.4, capsize=3,
                     color=SERIES[n % len(SERIES)], label=label)
-    ax.set_xlabel(_axis_label(table.axes[0]), fontsize=8.5)
+    ax.set_xlabel(axis_label(table.axes[0]), fontsize=8.5)
     ax.set_ylabel("draws violating a spec [%]", fontsize=8.5)
     ax.set_ylim(bottom=0)
     ax.grid(True, color="#e4e4e4", lw=0.6)

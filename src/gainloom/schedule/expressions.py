@@ -131,7 +131,7 @@ class Expression:
 
 
 def _walk(tree: ast.expr, env: Mapping[str, np.ndarray]) -> np.ndarray | float:
-    if isinstance(tree, ast.Constant):
+    if isinstance(tree, ast.Constant) and isinstance(tree.value, int | float):
         return float(tree.value)
     if isinstance(tree, ast.Name):
         if tree.id in CONSTANTS:
@@ -289,5 +289,5 @@ def _check(tree: ast.AST, node: Node, text: str, names: set[str]) -> None:
                 raise refuse("starred arguments are not allowed", arg)
             _check(arg, node, text, names)
         return
-    hint = _HINTS.get(type(tree))
-    raise refuse(f"{type(tree).__name__} is not allowed" + (f" ({hint})" if hint else ""), tree)
+    construct_hint = _HINTS.get(type(tree))
+    raise refuse(f"{type(tree).__name__} is not allowed" + (f" ({construct_hint})" if construct_hint else ""), tree)

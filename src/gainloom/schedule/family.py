@@ -11,7 +11,7 @@ YAML node that defined it and names the first offending operating point.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Literal
+from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 
@@ -23,7 +23,10 @@ from .expressions import Expression
 from .model import Axis, PointModels
 from .nodes import Node
 
-__all__ = ["Family", "ParameterDef", "TableDef", "PlantRecipe", "Pair"]
+if TYPE_CHECKING:  # pragma: no cover
+    from .measured import MeasuredPlant
+
+__all__ = ["Family", "Pair", "ParameterDef", "PlantRecipe", "TableDef", "describe_point"]
 
 #: Name of the sample period inside ``sampling.delay`` and ``plant.dead_time``.
 SAMPLE_PERIOD_NAME = "ts"
@@ -76,7 +79,7 @@ class Pair:
 class PlantRecipe:
     """How to build the plant's coefficients from evaluated names."""
 
-    kind: Literal["transfer_function", "zpk", "state_space"]
+    kind: Literal["transfer_function", "zpk", "state_space", "measured"]
     numerator: tuple[Expression, ...] = ()
     denominator: tuple[Expression, ...] = ()
     numerator_node: Node | None = None
@@ -85,6 +88,16 @@ class PlantRecipe:
     gain: Expression | None = None
     matrices: dict[str, tuple[tuple[Expression, ...], ...]] | None = None
     dead_time: Expression | None = None
+    #: ``plant.measured``: the data and the models fitted to them
+    measured: MeasuredPlant | None = None
+
+
+def describe_point(axes: tuple[Axis, ...], point: np.ndarray) -> str:
+    """``"speed=3000 rpm, load=0.5"`` for one operating point."""
+    parts = []
+    for axis, value in zip(axes, np.atleast_1d(point)):
+        parts.append(f"{axis.name}={float(value):g}" + (f" {axis.unit}" if axis.unit else ""))
+    return ", ".join(parts)
 
 
 @dataclass(frozen=True, eq=False)
@@ -103,10 +116,7 @@ class Family:
     # -- helpers --------------------------------------------------------------
     def describe(self, point: np.ndarray) -> str:
         """``"speed=3000 rpm, load=0.5"`` for one operating point."""
-        parts = []
-        for axis, value in zip(self.axes, np.atleast_1d(point)):
-            parts.append(f"{axis.name}={float(value):g}" + (f" {axis.unit}" if axis.unit else ""))
-        return ", ".join(parts)
+        return describe_point(self.axes, point)
 
     def _first_bad(self, bad: np.ndarray, points: np.ndarray) -> str:
         index = int(np.flatnonzero(bad)[0])
@@ -245,6 +255,10 @@ class Family:
             dead_time = self._checked(self.plant.dead_time, env_ts, points, "dead time", non_negative=True)
             if self.method != "zoh":
                 self._refuse_fraction(delay + dead_time / ts, self.plant.dead_time.node, points, "dead time plus computation delay")
+        measured = None
+        if self.plant.measured is not None:
+            measured = self.plant.measured.models_at(points, self._first_bad)
+            dead_time = measured[2]
         self._check_delay_samples(delay, dead_time, ts, points)
         if self.prewarp is not None:
             prewarp = self._checked(self.prewarp, env, points, "prewarp frequency", positive=True)
@@ -255,7 +269,7 @@ class Family:
                     f"prewarp frequency {prewarp[index]:g} rad/s is at or above the Nyquist frequency "
                     f"pi/ts = {np.pi / ts[index]:g} rad/s ({0.5 / ts[index]:g} Hz) {self._first_bad(bad, points)}"
                 )
-        num, den = self._plant_coefficients(env, points)
+        num, den = measured[:2] if measured is not None else self._plant_coefficients(env, points)
         plant = Loop(num=num, den=den, dead_time=dead_time)
         return PointModels(points=points, parameters=values, plant=plant, sample_period=ts, delay=delay)
 
@@ -268,8 +282,9 @@ class Family:
             return
         index = int(np.flatnonzero(bad)[0])
         if dead_time[index] > 0:
-            node = self.plant.dead_time.node  # type: ignore[union-attr]
-            detail = f"dead time {dead_time[index]:.3g} s / ts {ts[index]:.3g} s"
+            source = self.plant.dead_time if self.plant.dead_time is not None else self.plant.measured
+            node = source.node  # type: ignore[union-attr]
+            detail = f"{'fitted ' if self.plant.measured is not None else ''}dead time {dead_time[index]:.3g} s / ts {ts[index]:.3g} s"
             detail += f" + computation delay {delay[index]:g}" if delay[index] else ""
         else:
             node = self.delay.node  # type: ignore[union-attr]

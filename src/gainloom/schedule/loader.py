@@ -30,7 +30,10 @@ from .family import (
     ParameterDef,
     PlantRecipe,
     TableDef,
+    describe_point,
 )
+from .filters import check_filter_names, evaluate_filters
+from .measured import read_measured
 from .model import Axis, CodegenSection, Sampling, Schedule
 from .nodes import Node, compose_text
 from .sections import (
@@ -168,14 +171,16 @@ def build_schedule(
     axis_names = tuple(axis.name for axis in axes)
     parameters = _read_parameters(keys.get("parameters"), axis_names)
     known = {a: "variables" for a in axis_names} | {p.name: "parameters" for p in parameters}
-    plant = _read_plant(keys["plant"], known)
+    points = _grid(axes)
+    plant = _read_plant(keys["plant"], known, axes, points)
     method, period, delay, prewarp = _read_sampling(keys["sampling"], known)
+    if plant.measured is not None:
+        _check_measured_use(keys, method)
 
     family = Family(
         file=file, axes=axes, parameters=parameters, plant=plant, period=period, delay=delay, method=method,
         prewarp=prewarp,
     )
-    points = _grid(axes)
     models = family.evaluate(points)
     prewarp_value = None
     if prewarp is not None:
@@ -187,6 +192,8 @@ def build_schedule(
 
     controller = _resolve_output_limits(read_controller(keys["controller"]), family, points, models.parameters,
                                         known)
+    check_filter_names(controller.filters, known, _TS_ONLY)
+    evaluate_filters(family, controller.filters, points, models.parameters, models.plant.den, models.sample_period)
     specs = read_specs(keys.get("specs"), axis_names)
     table_checks = read_table_checks(keys.get("table"), controller.structure)
     tolerances = read_tolerances(keys.get("tolerances"), {p.name: p.independent for p in parameters})
@@ -375,13 +382,18 @@ def _coefficients(node: Node, what: str, known: dict[str, str]) -> tuple[Express
     return tuple(expressions)
 
 
-def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
-    forms = ("transfer_function", "zpk", "state_space")
+def _read_plant(node: Node, known: dict[str, str], axes: tuple[Axis, ...], points: np.ndarray) -> PlantRecipe:
+    forms = ("transfer_function", "zpk", "state_space", "measured")
     keys = node.mapping(forms + ("dead_time",))
     given = [form for form in forms if form in keys]
     if len(given) != 1:
         found = "none" if not given else " and ".join(given)
         raise node.error(f"plant needs exactly one of {', '.join(forms)}; found {found}")
+    if given[0] == "measured":
+        if "dead_time" in keys:
+            raise keys["dead_time"].error("a measured plant's dead time is fitted from its data; remove plant.dead_time")
+        measured = read_measured(keys["measured"], axes, points, lambda point: describe_point(axes, point))
+        return PlantRecipe("measured", measured=measured)
     dead_time = None
     if "dead_time" in keys:
         dead_time = parse_expression(keys["dead_time"], "dead time (s)")
@@ -420,6 +432,17 @@ def _read_plant(node: Node, known: dict[str, str]) -> PlantRecipe:
         gain.check_names(known, _TS_ONLY)
         return PlantRecipe("zpk", zeros=zeros, poles=poles, gain=gain, dead_time=dead_time)
     return _read_state_space(section, known, dead_time)
+
+
+def _check_measured_use(keys: dict[str, Node], method: str) -> None:
+    """A measured plant is judged with the zero-order hold and has no parameters to vary."""
+    if method != "zoh":
+        node = keys["sampling"].mapping()["method"]
+        raise node.error(f"a measured plant needs method 'zoh' (its data are judged with the zero-order hold "
+                         f"of the actuator); found {method!r}")
+    if "tolerances" in keys and not keys["tolerances"].is_null:
+        raise keys["tolerances"].error("tolerances vary parameters of a plant model; a measured plant has none "
+                                       "(measure the spread instead, as more operating points)")
 
 
 def _check_workload(keys: dict[str, Node], axes: tuple[Axis, ...], table_checks, tolerances) -> None:
@@ -568,7 +591,7 @@ def _read_sampling(node: Node, known: dict[str, str]):
 
 
 def _warnings(family: Family, models) -> list[str]:
-    warnings: list[str] = []
+    warnings: list[str] = list(family.plant.measured.warnings) if family.plant.measured is not None else []
     plant = models.plant
     if plant.order > 0:
         poles = batched_roots(plant.den)

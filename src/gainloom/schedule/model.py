@@ -22,6 +22,7 @@ __all__ = [
     "Axis",
     "CodegenSection",
     "ControllerSection",
+    "FilterSection",
     "PointModels",
     "Sampling",
     "Schedule",
@@ -101,6 +102,32 @@ class Sweep:
     count: int
 
 
+@dataclass(frozen=True, eq=False)
+class FilterSection:
+    """One ``controller.filters`` entry: a second-order section after the controller.
+
+    Parameters
+    ----------
+    kind : str
+        ``names.FILTER_KINDS``: ``"notch"`` or ``"low_pass"``.
+    values : dict of str to Expression
+        The section's keys (``names.FILTER_KEYS``) as expressions of the
+        scheduling variables and parameters: frequency rad/s, notch depth
+        dB and width rad/s, low-pass damping ratio.
+    auto : bool
+        A notch placed on the plant's lightly damped pole pair at each point
+        (``notch: auto``); ``values`` then holds only what was written
+        besides the frequency.
+    node : Node
+        Where the section was written, for errors.
+    """
+
+    kind: str
+    values: dict[str, Any]
+    auto: bool
+    node: Any = field(repr=False)
+
+
 @dataclass(frozen=True)
 class ControllerSection:
     """The ``controller`` section, defaults filled.
@@ -108,7 +135,8 @@ class ControllerSection:
     ``objective`` is set only for ``shape-sweep``, ``zero_on`` only for
     ``pole-cancel``, ``sweep`` only for ``shape-sweep`` (defaulted), ``target``
     for ``dominant-pair`` and ``nearest-target``; ``derivative_filter``
-    (seconds) only for ``pd``/``pid``.  ``output_limits`` is ``(low, high)``
+    (seconds) only for ``pd``/``pid``.  ``filters``: second-order sections
+    in cascade after the controller, in the order written.  ``output_limits`` is ``(low, high)``
     in actuator units: numbers, or expressions of the scheduling variables
     and parameters (:class:`~gainloom.schedule.expressions.Expression`)
     when they vary across the schedule; :meth:`Schedule.output_limits_at`
@@ -124,6 +152,7 @@ class ControllerSection:
     sweep: Sweep | None = None
     derivative_filter: float | None = None
     compare_continuous: bool = False
+    filters: tuple[FilterSection, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -339,6 +368,31 @@ class Schedule:
             Bad ``points`` shape or a scale on an unknown or dependent parameter.
         """
         return self.family.evaluate(points, scale)
+
+    def filters_at(self, points: np.ndarray, models: PointModels | None = None):
+        """The ``controller.filters`` sections at operating points, or ``None`` without filters.
+
+        Parameters
+        ----------
+        points : ndarray, shape (Q, n_axes)
+        models : PointModels, optional
+            The nominal evaluation at ``points`` when the caller has it.
+            Filters are always evaluated at nominal parameters: the
+            firmware's filter does not follow a tolerance.
+
+        Returns
+        -------
+        FilterValues or None
+            See :mod:`gainloom.schedule.filters`.
+        """
+        from .filters import evaluate_filters
+
+        if not self.controller.filters:
+            return None
+        if models is None:
+            models = self.evaluate(points)
+        return evaluate_filters(self.family, self.controller.filters, models.points, models.parameters,
+                                models.plant.den, models.sample_period)
 
     def output_limits_at(self, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Output limits ``(low, high)`` at operating points, shape (Q,) each.

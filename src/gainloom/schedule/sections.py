@@ -15,6 +15,7 @@ from typing import Any
 from .. import limits, names
 from ..c_names import prefix_problem
 from .expressions import parse_expression
+from .filters import read_filters
 from .model import (
     CodegenSection,
     ControllerSection,
@@ -28,12 +29,12 @@ from .model import (
 from .nodes import Node
 
 __all__ = [
+    "SPEC_KEYS",
+    "read_codegen",
     "read_controller",
     "read_specs",
     "read_table_checks",
     "read_tolerances",
-    "read_codegen",
-    "SPEC_KEYS",
 ]
 
 CONTROLLER_KEYS = (
@@ -46,6 +47,7 @@ CONTROLLER_KEYS = (
     "derivative_filter",
     "output_limits",
     "compare_continuous",
+    "filters",
 )
 
 #: Default controller-zero sweep of shape-sweep: location in z and count.
@@ -155,6 +157,7 @@ def read_controller(node: Node) -> ControllerSection:
         sweep=sweep,
         derivative_filter=derivative_filter,
         compare_continuous=compare,
+        filters=read_filters(keys["filters"]) if "filters" in keys else (),
     )
 
 

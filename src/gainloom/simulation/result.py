@@ -173,7 +173,7 @@ class SimulationResult:
         else:
             where = f"at limits [{self.output_limits[0]:g}, {self.output_limits[1]:g}]"
         lines.append(f"saturation: {num(m.saturation_time, ' s')} ({m.saturation_fraction * 100:.3g} % of the run) {where}")
-        lines.append(f"stability: {'UNSTABLE (' + m.instability.kind + ')' if not self.stable else 'ok'}: "
+        lines.append(f"stability: {f'UNSTABLE ({m.instability.kind})' if not self.stable else 'ok'}: "
                      f"{m.instability.detail}")
         for check in self.checks:
             mark = "ok" if check.passed else "FAILED"

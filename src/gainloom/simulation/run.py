@@ -28,7 +28,9 @@ _STOP_MAGNITUDE = 1e100
 class ScheduleLike(Protocol):
     """What the simulator needs of a schedule: its axes and batched evaluation."""
 
-    axes: Any
+    @property
+    def axes(self) -> Any:  # pragma: no cover - protocol
+        ...
 
     def evaluate(self, points: np.ndarray, scale: Any = None) -> Any:  # pragma: no cover - protocol
         ...

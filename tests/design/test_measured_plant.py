@@ -1,0 +1,207 @@
+"""Measured plants end to end: the demo data set, the fit, and the data-judged verdict."""
+
+from __future__ import annotations
+
+import importlib.util
+import shutil
+from pathlib import Path
+
+import control as ct
+import numpy as np
+import pytest
+
+import gainloom
+from gainloom.design.measured_check import check_on_data
+from gainloom.design.structures import controller_polynomials
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMO = ROOT / "schedules" / "measured_speed.yaml"
+_SPEC = importlib.util.spec_from_file_location("make_measured_data", ROOT / "examples" / "make_measured_data.py")
+data_maker = importlib.util.module_from_spec(_SPEC)
+_SPEC.loader.exec_module(data_maker)
+TRUTH = data_maker.TRUTH
+LOADS = np.array(data_maker.LOADS)
+
+
+@pytest.fixture(scope="module")
+def demo():
+    return gainloom.load_schedule(DEMO)
+
+
+@pytest.fixture(scope="module")
+def demo_design(demo):
+    return gainloom.design(demo)
+
+
+def test_committed_data_are_what_the_script_writes(tmp_path):
+    for path in data_maker.write(tmp_path):
+        assert path.read_bytes() == (DEMO.parent / "measured_speed" / path.name).read_bytes()
+
+
+def test_fit_recovers_the_known_plant(demo):
+    fit = demo.family.plant.measured.fit
+    assert (fit.poles, fit.zeros) == (2, 0)  # chosen: the simplest order within the 3 % tolerance
+    jm, b, tau = TRUTH["Jm"], TRUTH["B"], TRUTH["tau_i"]
+    for p, load in enumerate(LOADS):
+        # closed form of the invented plant: poles -B/J and -1/tau_i, DC gain Kt/B
+        poles = np.sort(np.roots(fit.den[p]).real)
+        np.testing.assert_allclose(poles, np.sort([-1 / tau, -b / (jm * load)]), rtol=0.03)
+        assert fit.num[p, -1] / fit.den[p, -1] == pytest.approx(TRUTH["Kt"] / b, rel=0.03)
+    np.testing.assert_allclose(fit.dead_time, TRUTH["Td"], atol=3e-6)
+    # the fit error is the sweep's noise: 1 % magnitude and 0.5 deg, about 1.3 % rms
+    assert np.all(fit.rms_error < 0.016)
+
+
+def test_the_three_bad_samples_are_found_and_named(demo):
+    measured = demo.family.plant.measured
+    found = {(float(LOADS[p]), int(k)) for p, k in np.argwhere(measured.fit.outliers)}
+    assert found == {(load, index) for load, index, _ in data_maker.BAD_SAMPLES}
+    # the warnings name file and line: 3 comment/header lines before the samples
+    for load, index, _ in data_maker.BAD_SAMPLES:
+        name = f"{data_maker.file_name(load)}:{index + 4}"
+        assert any(name in w for w in demo.warnings), name
+
+
+def _truth_loop_margins(kp, ki_ts, load, ts, w):
+    """python-control: the known plant's response on the data grid, with the ZOH,
+    one sample of computation delay and the PI, judged by stability_margins on an FRD."""
+    plant = ct.tf([TRUTH["Kt"]], np.polymul([TRUTH["Jm"] * load, TRUTH["B"]], [TRUTH["tau_i"], 1]))
+    response = ct.frequency_response(plant, w)
+    p = response.magnitude * np.exp(1j * response.phase) * np.exp(-1j * w * TRUTH["Td"])
+    pi = ct.tf([kp + ki_ts, -kp], [1, -1], ts)
+    c = np.array([pi(z) for z in np.exp(1j * w * ts)])
+    hold = (1 - np.exp(-1j * w * ts)) / (1j * w * ts)  # zero-order hold, textbook closed form
+    return ct.stability_margins(ct.frd(c * hold * np.exp(-1j * w * ts) * p, w))
+
+
+def test_design_from_data_passes_and_agrees_with_the_known_plant(demo, demo_design):
+    result = demo_design
+    assert result.passed, result.status
+    check = result.data_check
+    assert check is not None and check.passed
+    w = demo.family.plant.measured.w
+    for p, load in enumerate(LOADS):
+        kp, ki_ts = result.table.coefficients["kp"][p], result.table.coefficients["ki_ts"][p]
+        gm, pm, sm, _wpc, wgc, _wms = _truth_loop_margins(kp, ki_ts, load, demo.sampling.period[p], w[p])
+        m = check.margins
+        # noise of 1 % / 0.5 deg on the data: margins within 1 deg, 0.3 dB, 2 % of the truth's
+        assert m.phase_margin[p] == pytest.approx(pm, abs=1.0)
+        assert m.gain_margin_db[p] == pytest.approx(20 * np.log10(gm), abs=0.3)
+        assert m.gain_crossover[p] == pytest.approx(wgc, rel=0.02)
+        assert m.sensitivity_peak[p] == pytest.approx(1 / sm, rel=0.03)
+        # and the design on the model is what the truth gives (the model is the fit)
+        assert result.analysis.phase_margin[p] == pytest.approx(pm, abs=1.0)
+    assert np.all(check.band_error < 0.05)
+
+
+def test_emitted_document_carries_the_data_verdict(demo_design):
+    document = demo_design.as_document()
+    assert document["measured"]["passed"] is True
+    assert len(document["measured"]["points"]) == LOADS.size
+
+
+def _copy_demo(tmp_path: Path) -> Path:
+    shutil.copytree(DEMO.parent / "measured_speed", tmp_path / "measured_speed")
+    target = tmp_path / "measured_speed.yaml"
+    shutil.copy(DEMO, target)
+    return target
+
+
+def _rewrite(path: Path, change) -> None:
+    lines = path.read_text().splitlines()
+    header = next(i for i, line in enumerate(lines) if line.startswith("frequency"))
+    out = lines[: header + 1]
+    for line in lines[header + 1 :]:
+        f, mag, ph = (float(x) for x in line.split(","))
+        mag, ph = change(f, mag, ph)
+        out.append(f"{f:.6g},{mag:.5f},{ph:.4f}")
+    path.write_text("\n".join(out) + "\n")
+
+
+def test_a_point_that_passes_on_the_model_but_fails_on_the_data_fails(tmp_path):
+    # An invented resonance at 320 Hz (poles zeta 0.05 over zeros zeta 0.3: a 15.6 dB
+    # peak, as a compliant coupling gives) at load 2, which a fixed 2-pole fit cannot
+    # follow: on the model the design passes, on the data the peak lifts |L| near
+    # the phase crossover.
+    schedule = _resonant_demo(tmp_path, 0.05, 0.3)
+    result = gainloom.design(schedule)
+    assert not result.passed
+    assert result.status == ("pass", "fail", "pass", "pass")
+    assert result.binding[1] == "measured_data"
+    assert result.analysis.passed[1]  # the model alone passes
+    assert any("passes on the fitted model but fails on the measured data" in n for n in result.notes[1])
+    assert any("on the data" in n for n in result.notes[1])
+
+
+def test_one_file_with_the_variable_as_a_column_equals_one_file_per_point(tmp_path, demo):
+    rows = ["# all loads in one file", "load,frequency [Hz],magnitude [dB],phase [deg]"]
+    for load in LOADS:
+        lines = (DEMO.parent / "measured_speed" / data_maker.file_name(load)).read_text().splitlines()
+        rows += [f"{load:g},{line}" for line in lines if line[:1].isdigit()]
+    (tmp_path / "all.csv").write_text("\n".join(rows) + "\n")
+    text = DEMO.read_text()
+    start, end = text.index("    files:"), text.index("    # units are in")
+    (tmp_path / "one.yaml").write_text(text[:start] + "    file: all.csv\n" + text[end:])
+    one = gainloom.load_schedule(tmp_path / "one.yaml").family.plant.measured
+    each = demo.family.plant.measured
+    np.testing.assert_array_equal(one.w, each.w)
+    np.testing.assert_allclose(one.fit.den, each.fit.den, rtol=1e-12)
+
+
+def test_data_that_stop_below_the_crossover_fail_as_not_judged(demo, demo_design):
+    # only the samples below 50 Hz (314 rad/s): the crossover near 980 rad/s is beyond the data
+    measured = demo.family.plant.measured
+    keep = measured.w < 2 * np.pi * 50
+    short = type(measured)(**{**measured.__dict__, "w": np.where(keep, measured.w, np.nan),
+                              "response": np.where(keep, measured.response, np.nan)})
+    family = type(demo.family)(**{**demo.family.__dict__,
+                                  "plant": type(demo.family.plant)(**{**demo.family.plant.__dict__,
+                                                                       "measured": short})})
+    sched = type(demo)(**{**demo.__dict__, "family": family})
+    check = check_on_data(sched, demo_design.points, "pi", demo_design.table.coefficients,
+                          gainloom.design.engine.limits_at(demo, demo_design.points))
+    assert not check.passed
+    assert all(f[0].startswith("not judged on the data") and "beyond the data" in f[0] for f in check.failed)
+
+
+def test_controller_polynomials_are_the_tables(demo_design):
+    # the data check applies C(z) of the table: kp + ki_ts z/(z - 1) (DEVELOPERS.md, controller forms)
+    num, den = controller_polynomials("pi", demo_design.table.coefficients)
+    z = np.exp(1j * 0.3)
+    kp, ki = demo_design.table.coefficients["kp"], demo_design.table.coefficients["ki_ts"]
+    np.testing.assert_allclose((num[:, 0] * z + num[:, 1]) / (den[:, 0] * z + den[:, 1]), kp + ki * z / (z - 1))
+
+
+def _resonant_demo(tmp_path: Path, pole_zeta: float, zero_zeta: float | None) -> Path:
+    """The demo with an invented 320 Hz resonance at load 2 and a fixed 2-pole fit."""
+    schedule = _copy_demo(tmp_path)
+    text = schedule.read_text().replace("      max_poles: 3", "      poles: 2\n      zeros: 0")
+    schedule.write_text(text.replace("tolerance: 0.03", "tolerance: 0.5"))
+    wr = 2 * np.pi * 320
+
+    def resonance(f, mag, ph):
+        s = 2j * np.pi * f
+        zeros = wr**2 if zero_zeta is None else s**2 + 2 * zero_zeta * wr * s + wr**2
+        r = zeros / (s**2 + 2 * pole_zeta * wr * s + wr**2)
+        return mag + 20 * np.log10(abs(r)), ph + np.degrees(np.angle(r))
+
+    _rewrite(tmp_path / "measured_speed" / "load_2.csv", resonance)
+    return schedule
+
+
+def test_verify_judges_a_table_on_the_data_too(tmp_path, demo_design):
+    # the demo's own table, re-checked against data with the resonance at load 2
+    result = gainloom.verify(_resonant_demo(tmp_path, 0.05, 0.3), demo_design.table)
+    assert result.status == ("pass", "fail", "pass", "pass")
+    assert not result.passed and not result.data_check.passed
+
+
+def test_a_fit_with_right_half_plane_poles_is_refused_at_the_section(tmp_path):
+    # a sharp peak (zeta 0.03, +24 dB) that 2 poles cannot follow: the least squares put
+    # poles in the right half plane, which no plant swept in open loop has
+    schedule = _resonant_demo(tmp_path, 0.03, None)
+    with pytest.raises(gainloom.errors.ScheduleError) as caught:
+        gainloom.load_schedule(schedule)
+    error = caught.value
+    assert error.key_path == "plant.measured" and error.file == str(schedule)
+    assert "right-half-plane pole" in error.message and "load=2" in error.message
