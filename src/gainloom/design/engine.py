@@ -36,6 +36,7 @@ from .fallbacks import (
     strategy_gain_warning,
     target_warnings,
 )
+from .filter_notes import auto_notch_report, resonance_note
 from .measured_check import check_on_data, merge_data_verdict
 from .results import DesignResult, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, choose_gains, objective_values, samples_in
@@ -447,6 +448,11 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
         for p, (name, text) in found.items():
             binding[p] = name
             notes[p].append(text)
+            resonance = resonance_note(analysis, p)
+            if resonance is not None:
+                notes[p].append(resonance)
+    for p, extra in enumerate(auto_notch_report(sched, points)[0]):
+        notes[p].extend(extra)
     for p in range(P):
         if passed[p] and controller.strategy != "dominant-pair":
             params = shapes.params[p, shape_index[p]]
@@ -602,7 +608,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
                                point_design.limits)
     status, notes, binding = merge_data_verdict(point_design.status, point_design.notes, point_design.binding,
                                                 data_check)
-    warnings = list(sched.warnings)
+    warnings = list(sched.warnings) + auto_notch_report(sched, point_design.points)[1]
     warnings += sampling_warnings(sched, point_design.points, point_design.plant, point_design.analysis)
     warnings += list(point_design.analysis.warnings)
     continuous = None
@@ -672,10 +678,10 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
     else:
         table, meta = read_gains(gains)
         gains_path, marked = str(gains), compromise_points(meta)
-    warnings = list(sched.warnings)
     names = tuple(a.name for a in sched.axes)
     if tuple(a.name for a in table.axes) != names:
         raise InputError(f"the gains file's axes {[a.name for a in table.axes]} are not the schedule's {list(names)}")
+    warnings = list(sched.warnings) + auto_notch_report(sched, grid_points([a.values for a in table.axes]))[1]
     if table.structure != sched.controller.structure:
         warnings.append(
             f"gains file structure {table.structure!r} differs from the schedule's {sched.controller.structure!r}; "
