@@ -46,7 +46,7 @@ import numpy as np
 from ..errors import InputError
 from .closed_loop import closed_loop_poles
 from .loop import Loop
-from .polynomials import batched_roots
+from .polynomials import batched_roots, polyval_rows
 
 __all__ = ["Margins", "loop_margins", "frequency_response"]
 
@@ -114,14 +114,6 @@ class Margins:
     warnings: tuple[str, ...] = ()
 
 
-def _horner(coeffs: np.ndarray, x: np.ndarray) -> np.ndarray:
-    """Evaluate (P, n + 1) polynomials at (P, M) points; loops over the order only."""
-    acc = np.broadcast_to(coeffs[:, :1].astype(complex), x.shape).copy()
-    for k in range(1, coeffs.shape[1]):
-        acc = acc * x + coeffs[:, k : k + 1]
-    return acc
-
-
 def frequency_response(loop: Loop, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Numerator and denominator of the loop on the unit circle / imaginary axis.
 
@@ -143,14 +135,14 @@ def frequency_response(loop: Loop, w: np.ndarray) -> tuple[np.ndarray, np.ndarra
     w = np.asarray(w, dtype=float)
     if not loop.is_discrete:
         s = 1j * w
-        num = _horner(loop.num, s) * np.exp(-1j * w * loop.dead_time[:, np.newaxis])
-        return num, _horner(loop.den, s)
+        num = polyval_rows(loop.num, s) * np.exp(-1j * w * loop.dead_time[:, np.newaxis])
+        return num, polyval_rows(loop.den, s)
     ts = loop.ts[:, np.newaxis]
     if loop.delta_den is not None:
         g = np.expm1(1j * w * ts) / ts
-        return _horner(loop.delta_num, g), _horner(loop.delta_den, g)
+        return polyval_rows(loop.delta_num, g), polyval_rows(loop.delta_den, g)
     z = np.exp(1j * w * ts)
-    return _horner(loop.num, z), _horner(loop.den, z)
+    return polyval_rows(loop.num, z), polyval_rows(loop.den, z)
 
 
 def _continuous_equivalent(roots: np.ndarray, ts: np.ndarray | None) -> np.ndarray:
