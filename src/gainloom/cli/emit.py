@@ -12,6 +12,7 @@ from ..codegen.emit import emit_c
 from ..codegen.harness import check_generated_c
 from ..codegen.verdict import table_verdict
 from ..design.gainsfile import compromise_points, provenance_notes, read_gains
+from ..errors import CodegenError
 from ..names import NUMBER_FORMATS
 from ..safety import CAUTION
 from .output import print_json
@@ -82,6 +83,7 @@ def run(args: argparse.Namespace) -> int:
             args.error_full_scale = schedule.codegen.error_full_scale
         if args.output_full_scale is None:
             args.output_full_scale = schedule.codegen.output_full_scale
+    _refuse_filters(metadata, schedule)
     args.number_format = args.number_format or "float32"
     args.prefix = "ctl" if args.prefix is None else args.prefix
     source_sha256 = (metadata.get("schedule") or {}).get("sha256")
@@ -158,6 +160,18 @@ def run(args: argparse.Namespace) -> int:
             print(f"warning: {note}", file=sys.stderr)
         print(CAUTION)
     return code
+
+
+def _refuse_filters(metadata: dict, schedule) -> None:
+    """No C for a table designed with filter sections: the C does not implement them yet."""
+    recorded = (metadata.get("design") or {}).get("filters") or []
+    if recorded or (schedule is not None and schedule.controller.filters):
+        kinds = ", ".join(f["kind"] for f in recorded) if recorded else ", ".join(
+            f.kind for f in schedule.controller.filters)
+        raise CodegenError(
+            f"the table was designed with controller.filters ({kinds}); the generated C does not implement "
+            "them yet, and C without them would be another controller than the one verified"
+        )
 
 
 def _recheck_stored(schedule, table, args: argparse.Namespace) -> dict:
