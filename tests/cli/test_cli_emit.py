@@ -129,6 +129,9 @@ def test_emit_rechecks_the_stored_table_on_the_schedule(tmp_path, capsys):
     assert (tmp_path / "c" / "checked_emit.h").is_file()
     assert report["stored_table"]["passed"] is True
     assert report["stored_table"]["points_passing"] == report["stored_table"]["points"] == 3
+    # the design job's quantisation stage, run on the same table, is the same re-check (one meaning)
+    job_log = json.loads((tmp_path / "verification.json").read_text())
+    assert report["stored_table"]["broken_by_rounding"] == job_log["quantisation"]["broken"] == []
     # design recorded as passed + rounded table re-checked: the header is marked verified
     assert report["verified"] is True
     assert "#define CHECKED_EMIT_VERIFIED (1)" in (tmp_path / "c" / "checked_emit.h").read_text()

@@ -13,6 +13,7 @@ import scipy.signal
 import gainloom
 from gainloom import load_schedule
 from gainloom.design.engine import sampled_plant
+from gainloom.schedule import TableChecks, Tolerances
 
 SCHEDULES = Path(__file__).resolve().parents[2] / "schedules"
 
@@ -123,3 +124,68 @@ def test_design_job_on_the_demo_passes_and_generates_no_c_without_the_filters(tm
     assert stages["C check"].status == stages["simulation"].status == "not checked"
     assert not any(s.failed for s in job.stages)
     assert (tmp_path / "out" / "frequency.png").is_file() and not list((tmp_path / "out").glob("*.c"))
+
+
+def _auto_notch(schedule):
+    from gainloom.schedule.filters import read_filters
+    from gainloom.schedule.nodes import compose_text
+
+    sections = read_filters(compose_text("{notch: auto}", "test.yaml"))
+    return replace(schedule, controller=replace(schedule.controller, filters=sections))
+
+
+def test_auto_notch_sits_on_the_resonance_and_says_where(two_mass):
+    schedule, written = two_mass
+    auto = _auto_notch(schedule)
+    values = auto.filters_at(schedule.points)
+    load = schedule.points[:, 0]
+    # closed form: the two-mass resonance wr = sqrt(k (Jm + JL)/(Jm JL)), damping c (Jm + JL)/(2 wr Jm JL)
+    jm, k, c = 2.0e-4, 474.0, 0.015
+    wr = np.sqrt(k * (1 + load) / (jm * load))
+    np.testing.assert_allclose(values.values[0]["frequency"], wr, rtol=1e-9)
+    np.testing.assert_allclose(values.resonance[0][1], c * (1 + load) / (2 * wr * jm * load), rtol=1e-6)
+    np.testing.assert_allclose(values.values[0]["width"], 0.4 * wr, rtol=1e-9)
+    result = gainloom.design(auto)
+    # the demo's written notch is the same section (centre wr, 20 dB, 0.4 wr): the same design
+    assert result.passed
+    for name, table in written.table.coefficients.items():
+        np.testing.assert_allclose(result.table.coefficients[name], table, rtol=1e-6)
+    warning = next(w for w in result.warnings if "notch auto" in w)
+    assert f"{wr.min() / (2 * np.pi):.4g} Hz to {wr.max() / (2 * np.pi):.4g} Hz" in warning
+    assert any(f"({wr[0] / (2 * np.pi):.4g} Hz)" in n for n in result.notes[0])
+
+
+def test_the_least_damped_pole_is_named_as_the_resonance(two_mass):
+    schedule, result = two_mass
+    # the closed loop keeps the shaft mode lightly damped (the notch lowers the gain there, it adds no damping)
+    assert set(result.analysis.damping_pole_origin) == {"resonance"}
+    assert np.all(result.analysis.damping < 0.1)
+    # asking for damping the PI cannot give fails at that pole, and the note says it is the resonance
+    # (nominal plant only: a design that cannot pass is diagnosed at every corner otherwise, slowly)
+    strict = replace(_without_filters(schedule), specs=replace(schedule.specs, min_damping=0.3),
+                     tolerances=Tolerances(), table_checks=TableChecks())
+    failed = gainloom.design(strict)
+    assert not failed.passed
+    p = failed.status.index("fail")
+    assert failed.binding[p] == "min_damping"
+    assert failed.analysis.damping_pole_origin[p] == "resonance"
+    assert any("comes from the plant's resonance" in n for n in failed.notes[p])
+
+
+def test_emit_refuses_a_table_designed_with_filters(two_mass, tmp_path):
+    import os
+    import subprocess
+    import sys
+
+    from gainloom.design.gainsfile import write_gains
+
+    schedule, result = two_mass
+    gains = write_gains(result, tmp_path / "two_mass.gains.yaml")
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join(p for p in sys.path if p))
+    for extra in ([], ["--schedule", str(schedule.path)]):
+        done = subprocess.run([sys.executable, "-m", "gainloom", "emit", str(gains), "--out", str(tmp_path / "c"), *extra],
+                              env=env, capture_output=True, text=True, check=False)
+        # a located one-line error, exit 2, and no C written
+        assert done.returncode == 2, done.stderr
+        assert "controller.filters (notch)" in done.stderr and "Traceback" not in done.stderr
+        assert not (tmp_path / "c").exists() or not list((tmp_path / "c").glob("*.c"))

@@ -205,23 +205,6 @@ class TableLayout:
                 return item
         raise CodegenError(f"no coefficient {name!r} in a {self.structure} table")
 
-    def stored_table(self) -> GainTable:
-        """The table the firmware holds, back in physical units.
-
-        Breakpoints and coefficients are the stored (rounded) values, so
-        whole-table checks can be repeated on exactly what ships.
-        """
-        axes = tuple(TableAxis(a.name, a.unit, a.stored_physical) for a in self.axes)
-        coefficients = {c.name: c.physical for c in self.coefficients}
-        if self.limit_tables:
-            limits = tuple(item.physical for item in self.limit_tables)
-        elif self.fmt.is_fixed:
-            scale = self.output_full_scale / 2.0**STATE_FRAC
-            limits = (self.limits[0] * scale, self.limits[1] * scale)
-        else:
-            limits = (float(self.limits[0]), float(self.limits[1]))
-        return GainTable(self.structure, axes, coefficients, self.table.sample_period, limits)
-
 
 def _axis_layout(axis: TableAxis, fmt: NumberFormat) -> AxisLayout:
     validate_fragment("axis name", axis.name)

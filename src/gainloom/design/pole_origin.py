@@ -16,13 +16,17 @@ from __future__ import annotations
 import numpy as np
 
 from ..lti.closed_loop import closed_loop_poles
+from ..lti.filters import RESONANCE_DAMPING
 from ..lti.loop import Loop
 from ..lti.polynomials import batched_roots
 
 __all__ = ["ORIGIN_KINDS", "pole_origins"]
 
-#: What a closed-loop pole can come from.
-ORIGIN_KINDS: tuple[str, ...] = ("plant pole", "controller pole", "delay or hold")
+#: What a closed-loop pole can come from.  ``resonance`` is a plant pole of
+#: a lightly damped pair (s-plane damping below
+#: :data:`gainloom.lti.filters.RESONANCE_DAMPING`); the filter sections after
+#: the controller are part of the sampled plant here (the loop's fixed part).
+ORIGIN_KINDS: tuple[str, ...] = ("plant pole", "resonance", "controller pole", "delay or hold")
 
 TRACK_STEPS = 80
 TRACK_DECADES = 12.0
@@ -65,6 +69,7 @@ def pole_origins(loop: Loop, plant: Loop, poles: np.ndarray) -> tuple[tuple[str,
     nearest = np.argmin(np.where(np.isfinite(open_poles), np.abs(open_poles - current[:, None]), np.inf), axis=-1)
     start = np.take_along_axis(open_poles, nearest[:, None], axis=-1)[:, 0]
     to_start = np.abs(start - current)
+    resonant = _lightly_damped(start, loop.ts)
     kinds = []
     for p in range(loop.points):
         if not np.isfinite(poles[p]):
@@ -72,7 +77,19 @@ def pole_origins(loop: Loop, plant: Loop, poles: np.ndarray) -> tuple[tuple[str,
         elif abs(start[p]) <= ZERO_POLE:
             kinds.append("delay or hold")
         elif to_plant[p] <= to_start[p] * (1 + 1e-9) + 1e-12:
-            kinds.append("plant pole")
+            kinds.append("resonance" if resonant[p] else "plant pole")
         else:
             kinds.append("controller pole")
     return tuple(kinds), start
+
+
+def _lightly_damped(z: np.ndarray, ts: np.ndarray | None) -> np.ndarray:
+    """True where the open-loop pole ``z`` is one of a complex pair damped below ``RESONANCE_DAMPING``."""
+    if ts is None:
+        s = np.asarray(z, dtype=complex)
+    else:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            s = np.log(np.asarray(z, dtype=complex)) / np.asarray(ts, float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        damping = -s.real / np.abs(s)
+    return np.isfinite(damping) & (np.abs(s.imag) > 0) & (damping < RESONANCE_DAMPING)

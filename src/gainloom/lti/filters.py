@@ -36,6 +36,7 @@ from .loop import Loop
 from .polynomials import batched_roots, polymul, z_to_delta
 
 __all__ = [
+    "RESONANCE_DAMPING",
     "cascade",
     "lightly_damped_pair",
     "low_pass_continuous",
@@ -44,6 +45,11 @@ __all__ = [
     "tustin_prewarped",
     "with_filter",
 ]
+
+#: A pole pair below this damping ratio is a resonance: ``notch: auto`` may
+#: notch it and the reports name it so (common practice, no source: a pair
+#: this lightly damped peaks by 1/(2 zeta) >= 2.5, i.e. 8 dB or more).
+RESONANCE_DAMPING = 0.2
 
 
 def notch_damping(frequency: np.ndarray, depth_db: np.ndarray, width: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

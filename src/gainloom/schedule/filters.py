@@ -17,6 +17,7 @@ import numpy as np
 
 from .. import names
 from ..lti.filters import (
+    RESONANCE_DAMPING,
     cascade,
     lightly_damped_pair,
     low_pass_continuous,
@@ -37,11 +38,6 @@ __all__ = [
     "evaluate_filters",
     "read_filters",
 ]
-
-#: A plant pole pair below this damping ratio is a resonance that
-#: ``notch: auto`` may notch (common practice, no source: a pair this lightly
-#: damped peaks by 1/(2 zeta) >= 2.5, i.e. 8 dB or more).
-RESONANCE_DAMPING = 0.2
 
 #: Depth of an automatic notch, dB (common practice, no source).
 AUTO_DEPTH_DB = 20.0
