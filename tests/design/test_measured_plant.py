@@ -80,6 +80,7 @@ def test_design_from_data_passes_and_agrees_with_the_known_plant(demo, demo_desi
     assert result.passed, result.status
     check = result.data_check
     assert check is not None and check.passed
+    assert check.warnings == ()  # 25 samples per decade cover every crossover finely
     w = demo.family.plant.measured.w
     for p, load in enumerate(LOADS):
         kp, ki_ts = result.table.coefficients["kp"][p], result.table.coefficients["ki_ts"][p]
@@ -172,6 +173,8 @@ def test_data_that_stop_below_the_crossover_fail_as_not_judged(demo, demo_design
                           gainloom.design.engine.limits_at(demo, demo_design.points))
     assert not check.passed
     assert all(f[0].startswith("not judged on the data") and "beyond the data" in f[0] for f in check.failed)
+    # per point: the crossover beyond the data, and no phase crossover in them
+    assert len(check.warnings) == 8 and sum("beyond the data" in w for w in check.warnings) == 4
 
 
 def test_controller_polynomials_are_the_tables(demo_design):
