@@ -43,6 +43,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from ..errors import InputError
 from ..names import NUMBER_FORMATS, unknown_name_message
 from ..outputs import check_output_folder, write_outputs
@@ -75,7 +77,7 @@ class StageVerdict:
     ----------
     stage : str
         ``design``, ``C code``, ``C check``, ``target``, ``C rules``,
-        ``quantisation``, ``simulation`` or ``log``.
+        ``quantisation``, ``simulation``, ``log`` or ``measured data`` (a measured plant).
     status : str
         ``pass``, ``FAIL``, ``not checked``, ``written`` or ``not generated``.
     detail : str
@@ -158,6 +160,20 @@ class JobResult(StagedOutcome):
     simulation: Any
     scenario: dict[str, Any] | None
     stages: tuple[StageVerdict, ...]
+
+
+def measured_stage(check: Any) -> StageVerdict:
+    """The table judged on the measured data as one stage line, with the worst data-judged margins."""
+    m = check.margins
+    count = len(check.failed)
+    worst = (f"worst on the data: GM {np.nanmin(m.gain_margin_db):.3g} dB, PM {np.nanmin(m.phase_margin):.3g} deg, "
+             f"Ms {np.nanmax(m.sensitivity_peak):.3g}")
+    if check.passed:
+        return StageVerdict("measured data", "pass", f"{count}/{count} points meet the frequency specs on the raw "
+                            f"data; {worst}")
+    failing = [f"{check.labels[i]}: {'; '.join(f)}" for i, f in enumerate(check.failed) if f]
+    return StageVerdict("measured data", "FAIL", f"{len(failing)}/{count} points fail on the raw data ("
+                        + " | ".join(failing[:2]) + (" ..." if len(failing) > 2 else "") + f"); {worst}")
 
 
 def design_stage(result: Any) -> StageVerdict:
@@ -427,6 +443,7 @@ def run_design_job(
 
     stages = (
         design_stage(result),
+        *([] if getattr(result, "data_check", None) is None else [measured_stage(result.data_check)]),
         StageVerdict("C code", "not generated", no_c) if no_c else
         StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix}); "
                      + ("header marked verified" if verdict.verified else
