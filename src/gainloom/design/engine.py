@@ -611,6 +611,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     warnings = list(sched.warnings) + auto_notch_report(sched, point_design.points)[1]
     warnings += sampling_warnings(sched, point_design.points, point_design.plant, point_design.analysis)
     warnings += list(point_design.analysis.warnings)
+    warnings += [] if data_check is None else list(data_check.warnings)
     continuous = None
     if sched.controller.compare_continuous:
         from .continuous import compare_continuous
@@ -729,6 +730,7 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
                                     structure=table.structure)
     warnings += sampling_warnings(sched, points, plant, analysis)
     warnings += list(analysis.warnings)
+    warnings += [] if data_check is None else list(data_check.warnings)
     return VerifyResult(
         table=table,
         analysis=analysis,
