@@ -170,3 +170,22 @@ def test_the_least_damped_pole_is_named_as_the_resonance(two_mass):
     assert failed.binding[p] == "min_damping"
     assert failed.analysis.damping_pole_origin[p] == "resonance"
     assert any("comes from the plant's resonance" in n for n in failed.notes[p])
+
+
+def test_emit_refuses_a_table_designed_with_filters(two_mass, tmp_path):
+    import os
+    import subprocess
+    import sys
+
+    from gainloom.design.gainsfile import write_gains
+
+    schedule, result = two_mass
+    gains = write_gains(result, tmp_path / "two_mass.gains.yaml")
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join(p for p in sys.path if p))
+    for extra in ([], ["--schedule", str(schedule.path)]):
+        done = subprocess.run([sys.executable, "-m", "gainloom", "emit", str(gains), "--out", str(tmp_path / "c"), *extra],
+                              env=env, capture_output=True, text=True, check=False)
+        # a located one-line error, exit 2, and no C written
+        assert done.returncode == 2, done.stderr
+        assert "controller.filters (notch)" in done.stderr and "Traceback" not in done.stderr
+        assert not (tmp_path / "c").exists() or not list((tmp_path / "c").glob("*.c"))

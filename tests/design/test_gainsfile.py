@@ -98,3 +98,16 @@ def test_unreadable_and_non_mapping_files(tmp_path):
     path.write_text("format: [unclosed\n")
     with pytest.raises(ScheduleError, match="not valid"):
         read_gains(path)
+
+
+def test_provenance_notes_say_what_the_record_holds_against_the_file():
+    from gainloom.design.gainsfile import GainsMetadata, compromise_points, provenance_notes
+
+    clean = GainsMetadata({"schedule": {"sha256": "a" * 64}, "passed": True, "points": [{"index": 0}]})
+    assert provenance_notes(clean, "a" * 64) == [] and provenance_notes(clean) == []
+    other = provenance_notes(clean, "b" * 64)
+    assert len(other) == 1 and "different version" in other[0]
+    failed = GainsMetadata({"passed": False, "points": [{"index": 0, "compromise": True}, {"index": 3, "compromise": True}]})
+    assert compromise_points(failed) == [0, 3]
+    notes = provenance_notes(failed, "b" * 64)  # no recorded hash: nothing to compare
+    assert len(notes) == 2 and "did not meet every spec" in notes[0] and "indices 0, 3" in notes[1]

@@ -43,3 +43,20 @@ def test_plot_is_deterministic_png():
     first = plot_frequency(loop, [(0, "first"), (1, "last")], points)
     assert first[:8] == b"\x89PNG\r\n\x1a\n"
     assert first == plot_frequency(loop, [(0, "first"), (1, "last")], points)
+
+
+def test_plot_with_filters_draws_a_fourth_panel_deterministically():
+    from gainloom.lti.filters import notch_continuous, tustin_prewarped
+
+    # invented notch at 400 rad/s, 20 dB deep, on the same two points
+    w0 = np.array([400.0, 400.0])
+    num, den = tustin_prewarped(*notch_continuous(w0, np.full(2, 20.0), 0.4 * w0), w0, np.full(2, TS))
+    filters = (Loop(num=num, den=den, ts=TS), w0[np.newaxis, :])
+    loop = Loop.from_control([SYS, 1.3 * SYS])
+    points = [{"label": "a"}, {"label": "b"}]
+    plain = plot_frequency(loop, [(0, "first"), (1, "last")], points)
+    first = plot_frequency(loop, [(0, "first"), (1, "last")], points, filters)
+    assert first[:8] == b"\x89PNG\r\n\x1a\n" and first != plain
+    assert first == plot_frequency(loop, [(0, "first"), (1, "last")], points, filters)
+    # taller figure: four panels (PNG height in the IHDR chunk, bytes 20-24)
+    assert int.from_bytes(first[20:24], "big") > int.from_bytes(plain[20:24], "big")

@@ -11,7 +11,8 @@ from ..c_names import c_names
 from ..codegen.emit import emit_c
 from ..codegen.harness import check_generated_c
 from ..codegen.verdict import table_verdict
-from ..design.gainsfile import read_gains
+from ..design.gainsfile import compromise_points, provenance_notes, read_gains
+from ..errors import CodegenError
 from ..names import NUMBER_FORMATS
 from ..safety import CAUTION
 from .output import print_json
@@ -82,6 +83,7 @@ def run(args: argparse.Namespace) -> int:
             args.error_full_scale = schedule.codegen.error_full_scale
         if args.output_full_scale is None:
             args.output_full_scale = schedule.codegen.output_full_scale
+    _refuse_filters(metadata, schedule)
     args.number_format = args.number_format or "float32"
     args.prefix = "ctl" if args.prefix is None else args.prefix
     source_sha256 = (metadata.get("schedule") or {}).get("sha256")
@@ -97,8 +99,7 @@ def run(args: argparse.Namespace) -> int:
     # the header's verdict: the design recorded in the gains file and the
     # re-check of the rounded table; either unknown counts as not verified
     recorded = metadata.get("passed")
-    compromises = [entry.get("index") for entry in metadata.get("points") or []
-                   if isinstance(entry, dict) and entry.get("compromise") is True]
+    compromises = compromise_points(metadata)
     report["compromise_points"] = compromises
     if compromises:
         recorded = False  # a best compromise is not a design: never emitted as verified
@@ -125,12 +126,10 @@ def run(args: argparse.Namespace) -> int:
         if result.passed is False:
             code = 1
             print(result.diagnostics, file=sys.stderr)
-    if metadata.get("passed") is False:
-        report["warning"] = "the gains file records a design that did not meet every spec"
+    notes = provenance_notes(metadata, None if schedule is None else schedule.sha256)
     if compromises:
-        report["warning"] = (f"the gains file marks {len(compromises)} point(s) as a best compromise, not a "
-                             f"design (indices {', '.join(str(i) for i in compromises[:10])}"
-                             f"{', ...' if len(compromises) > 10 else ''}); the header is NOT VERIFIED")
+        notes.append("a table with best-compromise points is never emitted as verified: the header is NOT VERIFIED")
+    report["warnings"] = notes
     if args.json:
         print_json(report)
     else:
@@ -157,10 +156,22 @@ def run(args: argparse.Namespace) -> int:
                 f"{c_names(args.prefix).accept_unverified} defined",
                 file=sys.stderr,
             )
-        if "warning" in report:
-            print(f"warning: {report['warning']}", file=sys.stderr)
+        for note in report["warnings"]:
+            print(f"warning: {note}", file=sys.stderr)
         print(CAUTION)
     return code
+
+
+def _refuse_filters(metadata: dict, schedule) -> None:
+    """No C for a table designed with filter sections: the C does not implement them yet."""
+    recorded = (metadata.get("design") or {}).get("filters") or []
+    if recorded or (schedule is not None and schedule.controller.filters):
+        kinds = ", ".join(f["kind"] for f in recorded) if recorded else ", ".join(
+            f.kind for f in schedule.controller.filters)
+        raise CodegenError(
+            f"the table was designed with controller.filters ({kinds}); the generated C does not implement "
+            "them yet, and C without them would be another controller than the one verified"
+        )
 
 
 def _recheck_stored(schedule, table, args: argparse.Namespace) -> dict:

@@ -223,7 +223,7 @@ def build_scenario(args: argparse.Namespace):
 
 def run(args: argparse.Namespace) -> int:
     """Simulate; exit 0 when stable and within every limit, else 1."""
-    from ..design.gainsfile import read_gains
+    from ..design.gainsfile import provenance_notes, read_gains
     from ..schedule import load_schedule
     from ..simulation import run_scenario
 
@@ -243,12 +243,7 @@ def run(args: argparse.Namespace) -> int:
             schedule.codegen.output_full_scale if args.output_full_scale is None else args.output_full_scale
         ),
     )
-    notes = []
-    recorded = (metadata.get("schedule") or {}).get("sha256")
-    if recorded and recorded != schedule.sha256:
-        notes.append("the gains file was designed from a different version of this schedule (SHA-256 differs)")
-    if metadata.get("passed") is False:
-        notes.append("the gains file records a design that did not meet every spec")
+    notes = provenance_notes(metadata, schedule.sha256)
     plots = []
     if args.plot is not None:
         from ..simulation.plots import write_plots

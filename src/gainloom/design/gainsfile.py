@@ -26,7 +26,10 @@ from ..outputs import write_outputs
 from ..plain import to_plain
 from .table import GainTable, TableAxis
 
-__all__ = ["GAINS_FORMAT", "GainsMetadata", "gains_document", "read_gains", "render_gains", "write_gains"]
+__all__ = [
+    "GAINS_FORMAT", "GainsMetadata", "gains_document", "read_gains", "render_gains", "write_gains",
+    "compromise_points", "provenance_notes",
+]
 
 #: Format tag of the gains file.
 GAINS_FORMAT = "gainloom-gains/1"
@@ -414,3 +417,38 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
         }
     )
     return table, metadata
+
+
+def compromise_points(metadata: GainsMetadata) -> list[int]:
+    """Indices of the points a gains file marks as a best compromise (infeasible), not a design."""
+    return [int(entry["index"]) for entry in metadata.get("points") or []
+            if isinstance(entry, dict) and entry.get("compromise") is True and isinstance(entry.get("index"), int)]
+
+
+def provenance_notes(metadata: GainsMetadata, schedule_sha256: str | None = None) -> list[str]:
+    """What a gains file's own record says against using it as it is.
+
+    Parameters
+    ----------
+    metadata : GainsMetadata
+        As read by :func:`read_gains`.
+    schedule_sha256 : str, optional
+        SHA-256 of the schedule it is about to be used with; compared with
+        the one it was designed from.
+
+    Returns
+    -------
+    list of str
+        One sentence per finding (empty when the record raises nothing).
+    """
+    notes = []
+    recorded = (metadata.get("schedule") or {}).get("sha256")
+    if schedule_sha256 is not None and recorded and recorded != schedule_sha256:
+        notes.append("the gains file was designed from a different version of this schedule (SHA-256 differs)")
+    if metadata.get("passed") is False:
+        notes.append("the gains file records a design that did not meet every spec")
+    compromises = compromise_points(metadata)
+    if compromises:
+        notes.append(f"the gains file marks {len(compromises)} point(s) as a best compromise, not a design "
+                     f"(indices {', '.join(str(i) for i in compromises[:10])}{', ...' if len(compromises) > 10 else ''})")
+    return notes

@@ -30,6 +30,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .polynomials import polyval_rows
+
 __all__ = ["COARSE_PHASE", "GAP_RATIO", "DataMargins", "data_margins", "sampled_loop_on_data", "zoh_response"]
 
 #: Phase turn between the two samples around a crossover above which the
@@ -123,12 +125,7 @@ def sampled_loop_on_data(
     w = np.asarray(w, dtype=float)
     ts = np.asarray(ts, dtype=float)
     z = np.exp(1j * w * ts[:, np.newaxis])
-    c_num = np.zeros_like(z)
-    c_den = np.zeros_like(z)
-    for k in range(controller_num.shape[1]):
-        c_num = c_num * z + controller_num[:, k : k + 1]
-    for k in range(controller_den.shape[1]):
-        c_den = c_den * z + controller_den[:, k : k + 1]
+    c_num, c_den = polyval_rows(controller_num, z), polyval_rows(controller_den, z)
     with np.errstate(all="ignore"):  # nan pads stay nan
         delay_factor = np.exp(-1j * w * (ts * np.asarray(delay, float))[:, np.newaxis])
         loop = (c_num / c_den) * zoh_response(w, ts) * delay_factor * plant

@@ -11,7 +11,7 @@ from math import comb
 
 import numpy as np
 
-__all__ = ["as_poly_batch", "batched_roots", "characteristic", "pad_left", "polymul", "z_to_delta"]
+__all__ = ["as_poly_batch", "batched_roots", "characteristic", "pad_left", "polymul", "polyval_rows", "z_to_delta"]
 
 
 def as_poly_batch(coeffs: object) -> np.ndarray:
@@ -125,3 +125,16 @@ def z_to_delta(poly: np.ndarray, ts: np.ndarray) -> np.ndarray:
         total = sum(ascending[..., k] * comb(k, j) for k in range(j, n + 1))
         out[..., j] = total * ts[..., 0] ** j
     return out[..., ::-1]
+
+
+def polyval_rows(coeffs: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """Evaluate (P, n + 1) descending polynomials at (P, M) points, row by row (Horner over the order only).
+
+    Returns
+    -------
+    ndarray of complex, shape (P, M)
+    """
+    acc = np.broadcast_to(np.asarray(coeffs)[:, :1].astype(complex), np.shape(x)).copy()
+    for k in range(1, coeffs.shape[1]):
+        acc = acc * x + coeffs[:, k : k + 1]
+    return acc

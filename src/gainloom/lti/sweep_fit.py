@@ -36,6 +36,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
+from .polynomials import polyval_rows
 
 __all__ = ["ResponseFit", "fit_response", "model_response", "relative_error"]
 
@@ -126,12 +127,7 @@ def _sk_fit(x: np.ndarray, g: np.ndarray, weight: np.ndarray, poles: int, zeros:
 def model_response(num: np.ndarray, den: np.ndarray, dead_time: np.ndarray, w: np.ndarray) -> np.ndarray:
     """``N(jw)/D(jw) exp(-jw tau)`` of (P, n + 1) descending coefficients at ``w`` (P, M), rad/s."""
     s = 1j * np.asarray(w, dtype=float)
-    n_val = np.zeros_like(s)
-    d_val = np.zeros_like(s)
-    for k in range(den.shape[1]):
-        n_val = n_val * s + num[:, k : k + 1]
-        d_val = d_val * s + den[:, k : k + 1]
-    return n_val / d_val * np.exp(-s * np.asarray(dead_time, dtype=float)[:, np.newaxis])
+    return polyval_rows(num, s) / polyval_rows(den, s) * np.exp(-s * np.asarray(dead_time, dtype=float)[:, np.newaxis])
 
 
 def relative_error(model: np.ndarray, data: np.ndarray) -> np.ndarray:

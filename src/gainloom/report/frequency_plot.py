@@ -7,7 +7,10 @@ Three panels, frequency in rad/s up to the Nyquist frequency ``pi/ts``:
 * the phase of ``L`` (unwrapped, degrees) with the -180 deg line and the
   phase margin drawn as a bar at ``wc``;
 * ``|S| = |1/(1 + L)|`` and ``|T| = |L/(1 + L)|`` in dB, the sensitivity
-  peak ``Ms`` and the bandwidth ``wb`` (``|T| = |T(0)|/sqrt(2)``) marked.
+  peak ``Ms`` and the bandwidth ``wb`` (``|T| = |T(0)|/sqrt(2)``) marked;
+* with ``controller.filters``, a fourth panel: ``|F|`` of the filter
+  cascade alone in dB with each section's centre frequency marked (``L``
+  above already includes ``F``).
 
 :func:`frequency_curves` computes (with the functions the log's numbers come
 from: :func:`gainloom.lti.margins.loop_margins` and
@@ -144,42 +147,67 @@ def _draw_point(axes, curves: FrequencyCurves, colour: str, style, label: str, n
                            textcoords="offset points", fontsize=7, color=colour)
 
 
-def plot_frequency(loop: Loop, chosen: list[tuple[int, str]], points: list[dict[str, Any]]) -> bytes:
+def _draw_filter(ax, filters: Loop, centres: np.ndarray, p: int, w: np.ndarray, colour: str, style, n: int) -> None:
+    """``|F|`` of point ``p``'s filter cascade on ``w``, each section's centre marked."""
+    num, den = frequency_response(filters.select(np.array([p])), w[np.newaxis, :])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        level = _db(num[0] / den[0])
+    ax.semilogx(w, level, color=colour, ls=style, lw=1.4)
+    for centre in centres[:, p]:
+        at = float(np.interp(math.log(centre), np.log(w), level))
+        ax.plot([centre], [at], marker="v", ms=5, color=colour)
+        ax.annotate(f"{centre:.4g}", (centre, at), xytext=(6, 2 + 9 * n), textcoords="offset points", fontsize=7,
+                    color=colour)
+
+
+def plot_frequency(loop: Loop, chosen: list[tuple[int, str]], points: list[dict[str, Any]],
+                   filters: tuple[Loop, np.ndarray] | None = None) -> bytes:
     """Frequency response of the sampled loop at the chosen points (see the module docstring).
 
     Parameters
     ----------
     loop : Loop
-        Discrete open loop ``L = C P`` per point (the table's coefficients).
+        Discrete open loop ``L = C F P`` per point (the table's coefficients).
     chosen : list of (int, str)
         Point index and role (first, last, worst).
     points : list of dict
         The log's per-point entries (labels).
+    filters : (Loop, ndarray), optional
+        The filter cascade ``F`` per point and the sections' centre
+        frequencies, shape (sections, P), rad/s: drawn in a fourth panel.
     """
-    figure = new_figure((9.0, 9.6))
-    axes = [figure.add_axes((0.09, 0.70, 0.88, 0.24)), figure.add_axes((0.09, 0.41, 0.88, 0.24)),
-            figure.add_axes((0.09, 0.12, 0.88, 0.24))]
+    figure = new_figure((9.0, 9.6 if filters is None else 12.4))
+    if filters is None:
+        frames = ((0.09, 0.70, 0.88, 0.24), (0.09, 0.41, 0.88, 0.24), (0.09, 0.12, 0.88, 0.24))
+    else:
+        frames = ((0.09, 0.765, 0.88, 0.18), (0.09, 0.545, 0.88, 0.18), (0.09, 0.325, 0.88, 0.18),
+                  (0.09, 0.105, 0.88, 0.18))
+    axes = [figure.add_axes(frame) for frame in frames]
     nyquist = []
     for n, (p, role) in enumerate(chosen):
         curves = frequency_curves(loop, p)
         nyquist.append(curves.nyquist)
-        _draw_point(axes, curves, SERIES[n % len(SERIES)], ("-", (0, (6, 3)), (0, (2, 2)))[n % 3],
-                    f"{role}: {points[p]['label']}", n)
+        colour, style = SERIES[n % len(SERIES)], ("-", (0, (6, 3)), (0, (2, 2)))[n % 3]
+        _draw_point(axes[:3], curves, colour, style, f"{role}: {points[p]['label']}", n)
+        if filters is not None:
+            _draw_filter(axes[3], filters[0], filters[1], p, curves.w, colour, style, n)
     axes[0].axhline(0.0, color=LIMIT, lw=0.9, ls=(0, (5, 3)))
     axes[1].axhline(-180.0, color=LIMIT, lw=0.9, ls=(0, (5, 3)))
     axes[2].axhline(0.0, color="#999999", lw=0.7)
     axes[2].axhline(20 * math.log10(1 / math.sqrt(2)), color="#999999", lw=0.7, ls=(0, (2, 2)))
     titles = ("|L| of the sampled loop [dB]: gain crossover ωc and gain margin (bar) [rad/s]",
               "phase of L [deg]: phase margin (bar) at ωc",
-              "|S| (thick) and |T| (thin) [dB]: sensitivity peak Ms, bandwidth ωb at |T(0)| - 3.01 dB")
+              "|S| (thick) and |T| (thin) [dB]: sensitivity peak Ms, bandwidth ωb at |T(0)| - 3.01 dB",
+              "|F| of the filter sections after the controller [dB]: centre frequencies (triangles) [rad/s]")
     for ax, title in zip(axes, titles):
         for w in sorted(set(nyquist)):
             ax.axvline(w, color="#777777", lw=0.8, ls=(0, (1, 2)))
         ax.set_title(title, fontsize=9, loc="left")
         ax.grid(True, which="both", color="#ececec", lw=0.5)
         ax.tick_params(labelsize=8)
-    axes[2].set_xlabel("frequency ω [rad/s] (dotted: Nyquist π/ts)", fontsize=8.5)
+    axes[-1].set_xlabel("frequency ω [rad/s] (dotted: Nyquist π/ts)", fontsize=8.5)
     figure.legend(loc="lower center", ncol=min(3, max(1, len(chosen))), fontsize=8, frameon=False)
-    figure.suptitle("Frequency response of the sampled loop (hold, delay and controller included)", fontsize=11,
+    included = "hold, delay and controller" if filters is None else "hold, delay, controller and filters"
+    figure.suptitle(f"Frequency response of the sampled loop ({included} included)", fontsize=11,
                     x=0.01, ha="left")
     return png_bytes(figure)

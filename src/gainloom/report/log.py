@@ -40,6 +40,17 @@ def _open_loop(schedule: Any, result: Any, table: Any):
     return open_loop(plant, table.structure, coefficients)
 
 
+def _filter_loop(schedule: Any, result: Any, loop: Any):
+    """The filter cascade ``F`` per point and the sections' centres (rad/s), or ``None`` without filters."""
+    from ..lti.loop import Loop
+
+    values = schedule.filters_at(np.asarray(result.points, dtype=float))
+    if values is None:
+        return None
+    num, den = values.discrete(loop.ts)
+    return Loop(num=num, den=den, ts=loop.ts), np.stack([v["frequency"] for v in values.values])
+
+
 #: File name of the simulation figure in the log folder.
 _SIMULATION_PLOT = "simulation.png"
 #: The measured plant's data and fit (schedules with plant.measured).
@@ -108,7 +119,7 @@ def render_verification(
         images["gains.png"] = drawing.plot_gains(table, tuple(result.status))
         images["margins.png"] = drawing.plot_margins(table, points)
         images["step.png"] = drawing.plot_steps(loop, chosen, points)
-        images["frequency.png"] = plot_frequency(loop, chosen, points)
+        images["frequency.png"] = plot_frequency(loop, chosen, points, _filter_loop(sched, result, loop))
         if sched.family.plant.measured is not None:
             images[MEASURED_PLOT] = _measured_png(sched, result)
         for index, role in chosen:
