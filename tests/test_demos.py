@@ -285,14 +285,14 @@ def test_winding_zero_sits_on_the_electrical_pole(designs):
 
 
 def test_spindle_step_overshoot_comes_from_the_pi_zero(designs):
-    # Every pole is damped at zeta >= 0.8, for which the second-order relation
-    # gives <= 1.5 % overshoot (exp(-pi zeta/sqrt(1 - zeta^2)), closed form),
-    # yet the step overshoots ~20 %: the PI zero's share, which is why the
-    # demo bounds overshoot at 25 % rather than by the damping relation.
+    # Every judged pole is damped at zeta >= 0.75, for which the second-order
+    # relation gives < 3 % overshoot (exp(-pi zeta/sqrt(1 - zeta^2)), closed
+    # form), yet the step overshoots 15-21 %: the PI zero's share, which is why
+    # the demo bounds overshoot at 25 % rather than by the damping relation.
     schedule, result, _ = designs["spindle_speed"]
     zeta = result.analysis.damping
-    assert np.all(zeta >= 0.8)
-    assert math.exp(-math.pi * 0.8 / math.sqrt(1 - 0.8**2)) < 0.016
+    assert np.all(zeta >= 0.75)
+    assert math.exp(-math.pi * 0.75 / math.sqrt(1 - 0.75**2)) < 0.03
     assert np.all(result.analysis.overshoot > 15) and np.all(result.analysis.overshoot <= 25)
 
 

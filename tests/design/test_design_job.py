@@ -26,14 +26,9 @@ from cases import PASSING, STRICT, UNSTABLE
 
 from gainloom.codegen.harness import find_compiler
 from gainloom.outputs import MANIFEST_NAME, OutputConflictError
-from gainloom.report.run import (
-    LOAD_STEP_FRACTION,
-    SIMULATION_MAX_SAMPLES,
-    SIMULATION_SPAN,
-    default_scenario,
-    run_design_job,
-)
+from gainloom.report.run import run_design_job
 from gainloom.report.schema import validate
+from gainloom.simulation.defaults import LOAD_STEP_FRACTION, SIMULATION_MAX_SAMPLES, SIMULATION_SPAN, default_scenario
 
 ROOT = Path(__file__).resolve().parents[2]
 

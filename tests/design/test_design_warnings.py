@@ -126,6 +126,23 @@ def test_infeasible_point_is_a_marked_compromise_everywhere(tmp_path, capsys):
     assert report["compromise_points"] == [0, 1] and report["verified"] is False
     assert any("best compromise" in note for note in report["warnings"])
     assert "#define CTL_VERIFIED (0)" in (tmp_path / "c" / "ctl.h").read_text()  # emit's default prefix
+    # verify keeps the marking: on a schedule relaxed so the compromise now meets every spec
+    # (python-control margins of the same table below), the marked points still count as failing
+    relaxed = _write(tmp_path, "  strategy: pole-cancel", "  min_phase_margin: 50")
+    capsys.readouterr()
+    assert main(["verify", str(relaxed), "--gains", str(tmp_path / "out" / "gains.yaml"), "--json", "--quiet"]) == 1
+    report = json.loads(capsys.readouterr().out)
+    assert report["compromise_points"] == [0, 1] and report["status"] == ["fail", "fail"]
+    assert report["failed_specs"] == [[], []]  # the numbers themselves pass the relaxed specs
+    assert sum("marks this point compromise" in w for w in report["warnings"]) == 2
+    table, _ = gainloom.read_gains(tmp_path / "out" / "gains.yaml")
+    for p, speed in enumerate((0.0, 3000.0)):
+        kp, ki_ts = (float(np.ravel(table.coefficients[k])[p]) for k in ("kp", "ki_ts"))
+        z = control.tf([1, 0], [1], TS)
+        loop = (kp + ki_ts * z / (z - 1)) * _plant(speed)  # DEVELOPERS.md "Discrete controller forms"
+        _gm, pm, _wg, _wp = control.margin(loop)  # python-control
+        assert pm >= 50 - 0.05
+        assert np.all(np.abs(control.feedback(loop, 1).poles()) < 1)
 
 
 STEP_RETRY = """\
@@ -179,3 +196,20 @@ def test_step_retry_warning_quotes_the_overshoot_of_the_objectives_gain(tmp_path
         quoted = _number(r"step overshoot ([0-9.e+-]+) %", text)
         assert quoted == pytest.approx(info["Overshoot"], rel=1e-4)
         assert quoted > 10
+
+
+def test_unreachable_crossover_is_diagnosed_with_its_best_value(tmp_path):
+    # Pole-region objective (pole-cancel, fastest) with a crossover no gain reaches.  The zero
+    # cancels the plant pole, leaving L = K b / (z (z - 1)): stable for K b < 1 (Jury), with
+    # |e^{jθ} - 1| = 2 sin(θ/2) the crossover is θ_c = 2 asin(K b / 2) per sample, so the
+    # largest one any stable gain reaches is 2 asin(1/2) / ts = π / (3 ts) (closed form,
+    # derived here).  Before, the note said every spec was reachable alone.
+    path = _write(tmp_path, "  strategy: pole-cancel", "  min_phase_margin: 10\n  min_crossover: 20000")
+    result = gainloom.design(path)
+    assert result.status == ("fail", "fail")
+    for notes, binding in zip(result.notes, result.binding):
+        assert binding == "min_crossover"
+        note = next(n for n in notes if n.startswith("min_crossover binds"))
+        best = _number(r"gain crossover at most ([0-9.e+-]+) rad/s", note)
+        assert best == pytest.approx(math.pi / (3 * TS), rel=0.02)
+        assert "reachable alone" not in " ".join(notes)

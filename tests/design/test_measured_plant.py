@@ -13,6 +13,7 @@ import pytest
 import gainloom
 from gainloom.design.measured_check import check_on_data
 from gainloom.design.structures import controller_polynomials
+from gainloom.report.run import measured_stage
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "schedules" / "measured_speed.yaml"
@@ -79,6 +80,7 @@ def test_design_from_data_passes_and_agrees_with_the_known_plant(demo, demo_desi
     assert result.passed, result.status
     check = result.data_check
     assert check is not None and check.passed
+    assert check.warnings == ()  # 25 samples per decade cover every crossover finely
     w = demo.family.plant.measured.w
     for p, load in enumerate(LOADS):
         kp, ki_ts = result.table.coefficients["kp"][p], result.table.coefficients["ki_ts"][p]
@@ -92,6 +94,13 @@ def test_design_from_data_passes_and_agrees_with_the_known_plant(demo, demo_desi
         # and the design on the model is what the truth gives (the model is the fit)
         assert result.analysis.phase_margin[p] == pytest.approx(pm, abs=1.0)
     assert np.all(check.band_error < 0.05)
+
+
+def test_the_job_summary_has_a_measured_data_stage(demo_design):
+    stage = measured_stage(demo_design.data_check)
+    assert stage.status == "pass" and stage.detail.startswith("4/4 points meet the frequency specs on the raw data")
+    worst_pm = float(np.min(demo_design.data_check.margins.phase_margin))
+    assert f"PM {worst_pm:.3g} deg" in stage.detail
 
 
 def test_emitted_document_carries_the_data_verdict(demo_design):
@@ -131,6 +140,8 @@ def test_a_point_that_passes_on_the_model_but_fails_on_the_data_fails(tmp_path):
     assert result.analysis.passed[1]  # the model alone passes
     assert any("passes on the fitted model but fails on the measured data" in n for n in result.notes[1])
     assert any("on the data" in n for n in result.notes[1])
+    stage = measured_stage(result.data_check)
+    assert stage.status == "FAIL" and stage.detail.startswith("1/4 points fail on the raw data (load=2")
 
 
 def test_one_file_with_the_variable_as_a_column_equals_one_file_per_point(tmp_path, demo):
@@ -162,6 +173,8 @@ def test_data_that_stop_below_the_crossover_fail_as_not_judged(demo, demo_design
                           gainloom.design.engine.limits_at(demo, demo_design.points))
     assert not check.passed
     assert all(f[0].startswith("not judged on the data") and "beyond the data" in f[0] for f in check.failed)
+    # per point: the crossover beyond the data, and no phase crossover in them
+    assert len(check.warnings) == 8 and sum("beyond the data" in w for w in check.warnings) == 4
 
 
 def test_controller_polynomials_are_the_tables(demo_design):

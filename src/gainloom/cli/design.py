@@ -44,6 +44,13 @@ leaves DIR as it was.  Files in DIR that gainloom did not write are never
 overwritten without --force.  A failing design still writes every file; the
 verdict is in the summary and verification.md, not in the C.
 
+A cascade file (top-level 'loops', docs/cascade.md) designs the loops inner
+first, each outer loop on the inner loop as designed, checks them together
+(outer specs with the inner loop anywhere on its grid, bandwidth
+separation), writes <loop>.gains.yaml per loop, one C module <prefix>.h/.c
+with the calling order in its header, runs a reference step and a load step
+of the cascade at its rates, and logs a 'loops' list and a 'cascade' section.
+
 exit status: 0 every stage passes (a stage 'not checked' is reported, not
 counted as a failure); 1 some spec fails (design, between points,
 tolerances, quantisation, C check, simulation unstable); 2 bad input.

@@ -32,11 +32,13 @@ def run(args: argparse.Namespace) -> int:
             "failed_specs": [result.analysis.failed_specs(p) for p in range(result.analysis.points)],
             "points": point_summaries(result.point_labels, result.analysis, result.status),
             "table_checks": result.table_report.as_document(),
+            "compromise_points": list(result.compromise_points),
             "warnings": list(result.warnings),
         })
         return result.exit_code
     headers, rows = summary_rows(result.point_labels, result.analysis, result.status)
-    rows = [row[:-1] + [", ".join(result.analysis.failed_specs(p))] for p, row in enumerate(rows)]
+    rows = [row[:-1] + [", ".join(result.analysis.failed_specs(p) + (["compromise"] if p in result.compromise_points else []))]
+            for p, row in enumerate(rows)]
     print(format_table(headers[:-1] + ["failed specs"], rows))
     print_table_report(result.table_report, sys.stdout)
     for warning in result.warnings:

@@ -5,9 +5,11 @@ pole-region spec is tried *alone* over the searched family: decay rate and
 pole radius (and damping under ``specs: {poles: all}``) with the exact
 interval solver (so "unreachable" is a proof over all positive gains of
 every searched shape, not a sampling artefact), the natural-frequency band
-(and damping of the dominant poles) on the coarse gain samples.  The first
-spec (in report order) that is unreachable alone is the binding one; its
-best value over the samples is quoted with the gain and shape reaching it.
+(and damping of the dominant poles) on the coarse gain samples, then the
+crossover and bandwidth specs from the frequency response with the exact
+stable intervals (:mod:`gainloom.design.frequency_reach`).  The first spec
+(in that order) that is unreachable alone is the binding one; its best
+value is quoted (for pole specs with the gain and shape reaching it).
 If every spec is reachable alone, they conflict: the binding spec is the one
 that fails at the best compromise design (the sample with the largest
 smallest normalised slack), which also fills the table at that point.
@@ -22,6 +24,7 @@ from ..lti.intervals import spec_gain_intervals, stable_gain_intervals
 from ..lti.regions import SpecRegion
 from .analysis import PointAnalysis, pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
+from .frequency_reach import FREQUENCY_SPECS, frequency_reach
 from .search import Choice, Shapes, shape_loops
 from .specs import SpecLimits
 
@@ -170,6 +173,22 @@ def _best_reachable(
     return float(flat[r, k]), float(gains[r, k]), int(valid[r])
 
 
+def _frequency_binding(plant, shapes: Shapes, p: int, limits: SpecLimits) -> tuple[str, str] | None:
+    """The first frequency spec no stable gain of the family meets alone, with its best value (or None)."""
+    for name in FREQUENCY_SPECS:
+        limit = float(getattr(limits, name)[p])
+        if np.isnan(limit):
+            continue
+        reachable, best = frequency_reach(plant, shapes, p, name, limit)
+        if reachable:
+            continue
+        quantity, best_is, unit = SPEC_WORDS[name]
+        word = "at most" if best_is == "max" else "at least"
+        return (name, f"{name} binds: {quantity} {word} {best:.4g}{unit} over every stable gain of the searched "
+                      f"shapes (needs {limit_text(name, limit)})")
+    return None
+
+
 def diagnose(
     plant,
     shapes: Shapes,
@@ -233,6 +252,8 @@ def diagnose(
                 f"(needs {limit_text(name, limit)}), reached at K = {gain:.6g}{where}",
             )
             break
+        if found is None:
+            found = _frequency_binding(plant, shapes, p, limits)
         if found is None:
             names = analysis.failed_specs(p)
             name = names[0] if names else "min_damping"

@@ -611,6 +611,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     warnings = list(sched.warnings) + auto_notch_report(sched, point_design.points)[1]
     warnings += sampling_warnings(sched, point_design.points, point_design.plant, point_design.analysis)
     warnings += list(point_design.analysis.warnings)
+    warnings += [] if data_check is None else list(data_check.warnings)
     continuous = None
     if sched.controller.compare_continuous:
         from .continuous import compare_continuous
@@ -670,15 +671,15 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
     -------
     VerifyResult
     """
-    from .gainsfile import read_gains
+    from .gainsfile import compromise_points, read_gains
     from .table_checks import run_table_checks
 
     sched = load_for_design(schedule)
     if isinstance(gains, GainTable):
-        table, gains_path = gains, ""
+        table, gains_path, marked = gains, "", []
     else:
-        table, _meta = read_gains(gains)
-        gains_path = str(gains)
+        table, meta = read_gains(gains)
+        gains_path, marked = str(gains), compromise_points(meta)
     names = tuple(a.name for a in sched.axes)
     if tuple(a.name for a in table.axes) != names:
         raise InputError(f"the gains file's axes {[a.name for a in table.axes]} are not the schedule's {list(names)}")
@@ -707,8 +708,17 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
             f"{sched.describe_point(points[p])}: file {stored_ts[p]:.6g} s, schedule {plant.ts[p]:.6g} s; "
             "checked with the schedule's period (the coefficients are per-sample quantities)"
         )
+    # a point the design could not meet is a best compromise, whatever it scores now
+    # (gainloom emit never marks such a table verified either); re-design to clear it
+    marked = sorted(p for p in set(marked) if 0 <= p < points.shape[0])
+    for p in marked:
+        warnings.append(
+            f"{sched.describe_point(points[p])}: the gains file marks this point compromise (its design met no "
+            f"set of gains for every spec); counted as failing whatever the re-check finds "
+            f"({'passes' if analysis.passed[p] else 'fails'} now); design the table again to replace it"
+        )
     data_check = check_on_data(sched, points, table.structure, coefficients, limits)
-    status, _, _ = merge_data_verdict(tuple("pass" if ok else "fail" for ok in analysis.passed),
+    status, _, _ = merge_data_verdict(tuple("pass" if ok and p not in marked else "fail" for p, ok in enumerate(analysis.passed)),
                                       ((),) * points.shape[0], (None,) * points.shape[0], data_check)
     point_design = PointDesign(
         points=points, plant=plant, limits=limits, coefficients=coefficients, analysis=analysis,
@@ -720,6 +730,7 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
                                     structure=table.structure)
     warnings += sampling_warnings(sched, points, plant, analysis)
     warnings += list(analysis.warnings)
+    warnings += [] if data_check is None else list(data_check.warnings)
     return VerifyResult(
         table=table,
         analysis=analysis,
@@ -731,5 +742,6 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
         gains_path=gains_path,
         points=points,
         point_labels=tuple(sched.describe_point(p) for p in points),
+        compromise_points=tuple(marked),
         data_check=data_check,
     )

@@ -69,6 +69,12 @@ class DataCheck:
         """True when every measured point passes on its data."""
         return not any(self.failed)
 
+    @property
+    def warnings(self) -> tuple[str, ...]:
+        """What the data cannot tell or where their grid is coarse, per point (data, not ``warnings.warn``)."""
+        return tuple(f"measured data at {self.labels[i]}: {note}" for i, notes in enumerate(self.margins.coverage)
+                     for note in notes)
+
     def as_document(self) -> dict[str, Any]:
         """Plain data for the gains file (``measured``)."""
         m = self.margins

@@ -273,6 +273,9 @@ class VerifyResult:
     gains_path : str
     points : ndarray
     point_labels : tuple of str
+    compromise_points : tuple of int
+        Flat indices of the points the gains file marks ``compromise``: their
+        status is ``fail`` whatever the re-check finds.
     data_check : DataCheck or None
         With a measured plant: the frequency specs judged on the raw data;
         its failures are in ``status``.
@@ -288,6 +291,7 @@ class VerifyResult:
     gains_path: str
     points: np.ndarray
     point_labels: tuple[str, ...]
+    compromise_points: tuple[int, ...] = ()
     data_check: DataCheck | None = None
 
     @property

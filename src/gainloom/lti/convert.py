@@ -238,26 +238,26 @@ def tf_to_ss(
     D : ndarray, shape (P,)
         Direct feedthrough.
     """
-    num, den = _tf_batch(num, den)
-    lead = den[:, :1]
-    num = num / lead
-    den = den / lead
-    points, width = den.shape
+    num_batch, den_batch = _tf_batch(num, den)
+    lead = den_batch[:, :1]
+    numer = num_batch / lead
+    denom = den_batch / lead
+    points, width = denom.shape
     n = width - 1
-    d = num[:, 0]
+    d = numer[:, 0]
     A = np.zeros((points, n, n))
     if n:
-        A[:, 0, :] = -den[:, 1:]
+        A[:, 0, :] = -denom[:, 1:]
         if n > 1:
             A[:, np.arange(1, n), np.arange(n - 1)] = 1.0
     B = np.zeros((points, n))
     if n:
         B[:, 0] = 1.0
-    C = num[:, 1:] - d[:, np.newaxis] * den[:, 1:]
+    C = numer[:, 1:] - d[:, np.newaxis] * denom[:, 1:]
     if scaled and n:
         powers = np.arange(1, n + 1)
         with np.errstate(divide="ignore"):
-            bound = np.max(np.abs(den[:, 1:]) ** (1.0 / powers), axis=1)
+            bound = np.max(np.abs(denom[:, 1:]) ** (1.0 / powers), axis=1)
         w = np.where(bound > 0, bound, 1.0)
         # T^-1 A T has entries A_ij w^(i - j); B -> T^-1 B, C -> C T.
         exponent = np.arange(n)[:, None] - np.arange(n)[None, :]
@@ -301,12 +301,12 @@ def ss_to_tf(
         den = char_poly(A)
     den = np.asarray(den, dtype=float)
     n = A.shape[-1]
-    markov = [D]
+    parameters = [D]
     vector = B
     for _ in range(n):  # over the order, batched over points
-        markov.append(np.einsum("...i,...i->...", C, vector))
+        parameters.append(np.einsum("...i,...i->...", C, vector))
         vector = np.einsum("...ij,...j->...i", A, vector)
-    markov = np.stack(markov, axis=-1)  # (..., n + 1)
+    markov = np.stack(parameters, axis=-1)  # (..., n + 1)
     num = np.zeros(np.broadcast_shapes(markov.shape, den.shape))
     for i in range(n + 1):
         num[..., i] = np.sum(den[..., : i + 1] * markov[..., i::-1], axis=-1)

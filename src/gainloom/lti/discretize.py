@@ -473,7 +473,7 @@ def discretize_loop(
         sizes = {np.size(ts), np.size(delay)} - {1}
         if len(sizes) == 1:
             plant = plant.select(np.zeros(sizes.pop(), dtype=int))
-    ts, total, prewarp = _validate(plant, ts, method, delay, prewarp)
+    periods, total, prewarp = _validate(plant, ts, method, delay, prewarp)
     num = np.array(plant.num)
     den = np.array(plant.den)
     lead = den[:, :1]
@@ -488,18 +488,18 @@ def discretize_loop(
             raise InputError("method 'impulse' needs a strictly proper plant; got a static gain")
         rational = _Rational(num, den, num, den)
     elif method in ("zoh", "foh", "impulse"):
-        rational = _state_space_hold(num, den, ts, method)
+        rational = _state_space_hold(num, den, periods, method)
     elif method == "tustin":
-        rational = _tustin(num, den, ts, prewarp)
+        rational = _tustin(num, den, periods, prewarp)
     else:
-        rational = _matched(num, den, ts)
+        rational = _matched(num, den, periods)
     # Point i is N_i / (z^k_i D_i) with D_i = z^e_i D_plain_i (e_i = 1 where
     # the modified z-transform added a state).  One width for the batch:
     # den = z^top D_plain, num = N_i z^(top - k_i - e_i); in g, z = ts (g + 1/ts).
     extra = has_frac.astype(int)
     top = int((whole + extra).max(initial=0))
     final_width = width + top
-    inv = 1.0 / ts
+    inv = 1.0 / periods
     zero = np.zeros(points)
     top_all = np.full(points, top)
     num_shift = (top - whole - extra).astype(int)
@@ -516,14 +516,14 @@ def discretize_loop(
     if np.any(has_frac):
         rows = np.flatnonzero(has_frac)
         plain_rows = _Rational(rational.num[rows], rational.den[rows], rational.dnum[rows], rational.dden[rows])
-        modified = _zoh_fractional(num[rows], den[rows], ts[rows], frac[rows], plain_rows)
+        modified = _zoh_fractional(num[rows], den[rows], periods[rows], frac[rows], plain_rows)
         num_z[rows] = _times_linear_power(modified.num, zero[rows], num_shift[rows], final_width)
         num_d[rows] = _times_linear_power(modified.dnum, inv[rows], num_shift[rows], final_width)
-    num_d = num_d * (ts ** -whole)[:, None]
+    num_d = num_d * (periods ** -whole)[:, None]
     return Loop(
         num=num_z,
         den=den_z,
-        ts=ts,
+        ts=periods,
         hold=method,
         delay=total,
         prewarp=prewarp,

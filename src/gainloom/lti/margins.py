@@ -133,14 +133,15 @@ def frequency_response(loop: Loop, w: np.ndarray) -> tuple[np.ndarray, np.ndarra
         present, which avoids the cancellation near ``z = 1``).
     """
     w = np.asarray(w, dtype=float)
-    if not loop.is_discrete:
+    if loop.ts is None:
         s = 1j * w
         num = polyval_rows(loop.num, s) * np.exp(-1j * w * loop.dead_time[:, np.newaxis])
         return num, polyval_rows(loop.den, s)
     ts = loop.ts[:, np.newaxis]
-    if loop.delta_den is not None:
+    delta = loop.delta()
+    if delta is not None:
         g = np.expm1(1j * w * ts) / ts
-        return polyval_rows(loop.delta_num, g), polyval_rows(loop.delta_den, g)
+        return polyval_rows(delta[0], g), polyval_rows(delta[1], g)
     z = np.exp(1j * w * ts)
     return polyval_rows(loop.num, z), polyval_rows(loop.den, z)
 
@@ -180,7 +181,7 @@ def frequency_grid(loop: Loop, gains: np.ndarray) -> np.ndarray:
         # rational features.
         tau = loop.dead_time
         high = np.where(tau > 0, np.maximum(high, 60.0 / np.where(tau > 0, tau, 1.0)), high)
-    if loop.is_discrete:
+    if loop.ts is not None:
         nyquist = np.pi / loop.ts
         high = nyquist
         low = np.minimum(low, nyquist * 1e-6)
@@ -216,7 +217,8 @@ def sign_change_brackets(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(row, column) of every sign change between grid columns j and j + 1."""
     sign = np.signbit(values)
     change = sign[:, 1:] != sign[:, :-1]
-    return np.nonzero(change)
+    rows, columns = np.nonzero(change)
+    return rows, columns
 
 
 def _worst_by_row(points: int, rows: np.ndarray, key: np.ndarray, *values: np.ndarray):
@@ -320,7 +322,7 @@ def loop_margins(loop: Loop, gain: object = 1.0) -> Margins:
 
         # Endpoints where L is real by symmetry: w = 0 and, for discrete loops, Nyquist.
         end_w = [np.zeros(points)]
-        if loop.is_discrete:
+        if loop.ts is not None:
             end_w.append(np.pi / loop.ts)
         for w_end in end_w:
             n_end, d_end = parts(w_end.reshape(points, 1), np.arange(points))

@@ -708,10 +708,10 @@ def trace_locus(
     if need.size:
         flat_end = end_roots.reshape(2 * P, n)
         flat_end[need] = _roots(num[need // 2], den[need // 2], sign * ends.ravel()[need])
-    end_roots = end_roots.reshape(2 * P, n)
+    flat_ends = end_roots.reshape(2 * P, n)
     rows = np.concatenate([np.arange(P), np.repeat(np.arange(P), 2), flat_rows[inside.ravel()]])
     mags = np.concatenate([np.zeros(P), ends.ravel(), scan.ravel()[inside.ravel()]])
-    roots = np.concatenate([poles, end_roots, scan_roots[inside.ravel()]])
+    roots = np.concatenate([poles, flat_ends, scan_roots[inside.ravel()]])
     order = np.lexsort((mags, rows))
     rows, mags, roots = rows[order], mags[order], roots[order]
     keep = np.r_[True, (rows[1:] != rows[:-1]) | (mags[1:] != mags[:-1])]
@@ -866,7 +866,7 @@ def trace_locus(
     crossing_gains = tuple(np.split(signed[by_loop], splits))
     work_roots = branch_roots
 
-    if delta:
+    if delta and ts is not None:
         with np.errstate(invalid="ignore"):
             branch_roots = np.where(
                 np.isfinite(branch_roots), 1.0 + ts[rows][:, np.newaxis] * branch_roots, np.inf + 0j

@@ -99,7 +99,7 @@ def default_cascade_scenario(design: Any) -> Any:
     """The cascade run the full job does: a speed-reference step and a load step.
 
     With ``T`` the outer loop's time scale (as the single-loop job's,
-    :func:`gainloom.report.run.default_scenario`): the outer reference steps
+    :func:`gainloom.simulation.defaults.default_scenario`): the outer reference steps
     at 0 s by 0.1 of the outer error full scale (1 output unit when none is
     set), a load of ``LOAD_STEP_FRACTION`` times the larger outer output
     limit (inner measurement units, at the outer plant part's input) steps
@@ -109,7 +109,7 @@ def default_cascade_scenario(design: Any) -> Any:
     loop's ``inner_at`` and the shared variables.
     """
     from ..simulation.cascade import CascadeScenario
-    from .run import LOAD_STEP_FRACTION, SIMULATION_MAX_SAMPLES, time_scale
+    from ..simulation.defaults import LOAD_STEP_FRACTION, SIMULATION_MAX_SAMPLES, time_scale
 
     inner_sched, outer_sched = design.schedules
     outer_loop = design.cascade.loops[1]
