@@ -614,6 +614,127 @@ def _padded_take(rows: np.ndarray, P: int) -> tuple[np.ndarray, np.ndarray]:
     return start_of[:, np.newaxis] + np.minimum(position, counts[:, np.newaxis] - 1), counts
 
 
+def _refine_samples(
+    num: np.ndarray,
+    den: np.ndarray,
+    sign: float,
+    scale: np.ndarray,
+    floor: np.ndarray,
+    slowest: np.ndarray,
+    limits: tuple[float, int, int],
+    rows: np.ndarray,
+    mags: np.ndarray,
+    roots: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[np.ndarray], list[np.ndarray], bool]:
+    """Split gain intervals until every root moves at most the allowed step and every match is clear.
+
+    ``rows``, ``mags`` (``|K|``) and ``roots`` (``(S, n)``) are the initial samples sorted by loop and gain;
+    ``limits`` is ``(max_step, max_rounds, max_samples)``.  Returns the samples with the new ones appended
+    (unsorted), the left sample index and root permutation of every settled interval, and whether the
+    round limit stopped the refinement.
+    """
+    max_step, max_rounds, max_samples = limits
+    P = scale.size
+    same = rows[1:] == rows[:-1]
+    pend_a = np.flatnonzero(same)
+    pend_b = pend_a + 1
+    settled_a: list[np.ndarray] = []
+    settled_perm: list[np.ndarray] = []
+    hit_cap = False
+    for _ in range(max_rounds):
+        if pend_a.size == 0:
+            break
+        a, b = pend_a, pend_b
+        ra, rb = roots[a], roots[b]
+        allowed = _allowed_step(ra, rb, scale[rows[a]], floor[rows[a]], max_step)
+        # Coincidence is judged on each root's own scale, whatever step_floor:
+        # a coarse step bound must not excuse a swap of distinct slow roots.
+        fine = _allowed_step(ra, rb, scale[rows[a]], slowest[rows[a]], max_step)
+        perm, disp, ambiguous = _match(
+            num[rows[a]], den[rows[a]], sign * mags[a], sign * mags[b], ra, rb, allowed, fine
+        )
+        too_far = np.any(disp > allowed, axis=1)
+        width = mags[b] - mags[a]
+        resolvable = width > 1e-12 * np.maximum(mags[b], 1e-300)
+        split = resolvable & (too_far | ambiguous)
+        counts = np.bincount(rows, minlength=P)
+        split &= counts[rows[a]] < max_samples
+        # Intervals that pass are final, and so is their match.
+        settled_a.append(a[~split])
+        settled_perm.append(perm[~split])
+        # Split into as many pieces as the step excess asks for (geometric in
+        # K), so most intervals settle in one or two rounds; ambiguous
+        # intervals are bisected.
+        excess_step = np.max(np.where(np.isfinite(disp), disp, np.inf) / allowed, axis=1)[split]
+        pieces = np.where(too_far[split], np.clip(np.ceil(1.2 * excess_step), 2, 16), 2).astype(int)
+        a, b = a[split], b[split]
+        if a.size == 0:
+            pend_a = a
+            break
+        lo, hi = mags[a], mags[b]
+        pieces = np.where(lo > 0, pieces, 2)
+        owner = np.repeat(np.arange(a.size), pieces - 1)
+        first = np.r_[0, np.cumsum(pieces - 1)[:-1]]
+        j = np.arange(owner.size) - first[owner] + 1
+        frac = j / pieces[owner]
+        lo_o, hi_o = lo[owner], hi[owner]
+        with np.errstate(divide="ignore"):
+            mid = np.where(lo_o > 0, lo_o * np.exp(frac * np.log(hi_o / np.where(lo_o > 0, lo_o, 1.0))), hi_o / 4.0)
+        new_rows = rows[a][owner]
+        matched_b = np.take_along_axis(roots[b], perm[split], axis=1)
+        with np.errstate(invalid="ignore"):
+            seeds = roots[a][owner] + frac[:, np.newaxis] * (matched_b[owner] - roots[a][owner])
+        new_roots = _roots_from_seeds(num[new_rows], den[new_rows], sign * mid, seeds, scale[new_rows])
+        new_index = rows.size + np.arange(owner.size)
+        rows = np.concatenate([rows, new_rows])
+        mags = np.concatenate([mags, mid])
+        roots = np.concatenate([roots, new_roots])
+        # Chain a -> new_1 -> ... -> new_{q-1} -> b for every split interval.
+        left = np.concatenate([a, new_index])
+        is_last = np.r_[owner[1:] != owner[:-1], True] if owner.size else np.zeros(0, bool)
+        right_of_new = np.where(is_last, b[owner], new_index + 1)
+        right = np.concatenate([new_index[first], right_of_new])
+        pend_a, pend_b = left, right
+    else:
+        hit_cap = pend_a.size > 0
+    if pend_a.size:
+        allowed = _allowed_step(roots[pend_a], roots[pend_b], scale[rows[pend_a]], floor[rows[pend_a]], max_step)
+        settled_a.append(pend_a)
+        settled_perm.append(
+            _match(num[rows[pend_a]], den[rows[pend_a]], sign * mags[pend_a], sign * mags[pend_b],
+                   roots[pend_a], roots[pend_b], allowed)[0]
+        )
+    return rows, mags, roots, settled_a, settled_perm, hit_cap
+
+
+def _compose_branches(
+    rows: np.ndarray,
+    mags: np.ndarray,
+    roots: np.ndarray,
+    settled_a: list[np.ndarray],
+    settled_perm: list[np.ndarray],
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Sort the samples by loop and gain and order each sample's roots along the branches.
+
+    Returns ``rows``, ``mags``, the branch-ordered roots ``(S, n)`` and whether each neighbouring pair of
+    samples belongs to one loop (``(S - 1,)``).
+    """
+    n = roots.shape[1]
+    order = np.lexsort((mags, rows))
+    rows, mags, roots = rows[order], mags[order], roots[order]
+    # Every neighbouring pair of samples is exactly one settled interval.
+    same = rows[1:] == rows[:-1]
+    where_now = np.empty_like(order)
+    where_now[order] = np.arange(order.size)
+    perms = np.tile(np.arange(n), (rows.size - 1, 1))
+    if settled_a:
+        perms[where_now[np.concatenate(settled_a)]] = np.concatenate(settled_perm)
+    starts = np.flatnonzero(np.r_[True, ~same])
+    order = _compose(perms, starts)
+    branch_roots = np.take_along_axis(roots, order, axis=1)
+    return rows, mags, branch_roots, same
+
+
 def trace_locus(
     loop: Loop,
     k_max: object = None,
@@ -776,93 +897,16 @@ def trace_locus(
 
     ts = None if not loop.is_discrete else loop.ts
 
-    # Only intervals created in the previous round are examined: an interval
-    # that passed once is final.
-    same = rows[1:] == rows[:-1]
-    pend_a = np.flatnonzero(same)
-    pend_b = pend_a + 1
-    settled_a: list[np.ndarray] = []
-    settled_perm: list[np.ndarray] = []
-    hit_cap = False
-    for _ in range(max_rounds):
-        if pend_a.size == 0:
-            break
-        a, b = pend_a, pend_b
-        ra, rb = roots[a], roots[b]
-        allowed = _allowed_step(ra, rb, scale[rows[a]], floor[rows[a]], max_step)
-        # Coincidence is judged on each root's own scale, whatever step_floor:
-        # a coarse step bound must not excuse a swap of distinct slow roots.
-        fine = _allowed_step(ra, rb, scale[rows[a]], slowest[rows[a]], max_step)
-        perm, disp, ambiguous = _match(
-            num[rows[a]], den[rows[a]], sign * mags[a], sign * mags[b], ra, rb, allowed, fine
-        )
-        too_far = np.any(disp > allowed, axis=1)
-        width = mags[b] - mags[a]
-        resolvable = width > 1e-12 * np.maximum(mags[b], 1e-300)
-        split = resolvable & (too_far | ambiguous)
-        counts = np.bincount(rows, minlength=P)
-        split &= counts[rows[a]] < max_samples
-        # Intervals that pass are final, and so is their match.
-        settled_a.append(a[~split])
-        settled_perm.append(perm[~split])
-        # Split into as many pieces as the step excess asks for (geometric in
-        # K), so most intervals settle in one or two rounds; ambiguous
-        # intervals are bisected.
-        excess_step = np.max(np.where(np.isfinite(disp), disp, np.inf) / allowed, axis=1)[split]
-        pieces = np.where(too_far[split], np.clip(np.ceil(1.2 * excess_step), 2, 16), 2).astype(int)
-        a, b = a[split], b[split]
-        if a.size == 0:
-            pend_a = a
-            break
-        lo, hi = mags[a], mags[b]
-        pieces = np.where(lo > 0, pieces, 2)
-        owner = np.repeat(np.arange(a.size), pieces - 1)
-        first = np.r_[0, np.cumsum(pieces - 1)[:-1]]
-        j = np.arange(owner.size) - first[owner] + 1
-        frac = j / pieces[owner]
-        lo_o, hi_o = lo[owner], hi[owner]
-        with np.errstate(divide="ignore"):
-            mid = np.where(lo_o > 0, lo_o * np.exp(frac * np.log(hi_o / np.where(lo_o > 0, lo_o, 1.0))), hi_o / 4.0)
-        new_rows = rows[a][owner]
-        matched_b = np.take_along_axis(roots[b], perm[split], axis=1)
-        with np.errstate(invalid="ignore"):
-            seeds = roots[a][owner] + frac[:, np.newaxis] * (matched_b[owner] - roots[a][owner])
-        new_roots = _roots_from_seeds(num[new_rows], den[new_rows], sign * mid, seeds, scale[new_rows])
-        new_index = rows.size + np.arange(owner.size)
-        rows = np.concatenate([rows, new_rows])
-        mags = np.concatenate([mags, mid])
-        roots = np.concatenate([roots, new_roots])
-        # Chain a -> new_1 -> ... -> new_{q-1} -> b for every split interval.
-        left = np.concatenate([a, new_index])
-        is_last = np.r_[owner[1:] != owner[:-1], True] if owner.size else np.zeros(0, bool)
-        right_of_new = np.where(is_last, b[owner], new_index + 1)
-        right = np.concatenate([new_index[first], right_of_new])
-        pend_a, pend_b = left, right
-    else:
-        hit_cap = pend_a.size > 0
-    if pend_a.size:
-        allowed = _allowed_step(roots[pend_a], roots[pend_b], scale[rows[pend_a]], floor[rows[pend_a]], max_step)
-        settled_a.append(pend_a)
-        settled_perm.append(
-            _match(num[rows[pend_a]], den[rows[pend_a]], sign * mags[pend_a], sign * mags[pend_b],
-                   roots[pend_a], roots[pend_b], allowed)[0]
-        )
-    order = np.lexsort((mags, rows))
-    rows, mags, roots = rows[order], mags[order], roots[order]
+    # --- refinement rounds (only intervals created in the previous round are
+    # examined: an interval that passed once is final) ----------------------
+    rows, mags, roots, settled_a, settled_perm, hit_cap = _refine_samples(
+        num, den, sign, scale, floor, slowest, (max_step, max_rounds, max_samples), rows, mags, roots
+    )
     if hit_cap or np.any(np.bincount(rows, minlength=P) >= max_samples):
         warnings.append("refinement limit reached: some steps may exceed max_step")
 
     # --- branch composition -----------------------------------------------
-    # Every neighbouring pair of samples is exactly one settled interval.
-    same = rows[1:] == rows[:-1]
-    where_now = np.empty_like(order)
-    where_now[order] = np.arange(order.size)
-    perms = np.tile(np.arange(n), (rows.size - 1, 1))
-    if settled_a:
-        perms[where_now[np.concatenate(settled_a)]] = np.concatenate(settled_perm)
-    starts = np.flatnonzero(np.r_[True, ~same])
-    order = _compose(perms, starts)
-    branch_roots = np.take_along_axis(roots, order, axis=1)
+    rows, mags, branch_roots, same = _compose_branches(rows, mags, roots, settled_a, settled_perm)
 
     # --- boundary crossings: regula falsi on the crossing branch, then one
     # sample exactly there -------------------------------------------------
