@@ -41,7 +41,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from functools import cached_property
+from functools import cached_property, partial
 
 import numpy as np
 
@@ -530,6 +530,90 @@ def _crossing_gains(num, den, sign, lo, hi, r_lo, r_hi, boundary, rtol):
     return np.where(np.abs(f_lo) <= np.abs(f_hi), lo, hi)
 
 
+def _scan_range(
+    num: np.ndarray, den: np.ndarray, poles: np.ndarray, lead_n: np.ndarray, excess: np.ndarray, scale: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Lowest gain of the scan (``(P,)``) and the number of scan decades of each loop (``(P,)``, int).
+
+    Gain scales of the loop: the gain at which the root leaving pole p has moved by |p| (first order:
+    K |N(p)/D'(p)| = |p|), and the gain at which |K N| and |D| are alike at the plot scale (the
+    asymptotic side).  The scan spans 1e-4 of the smallest to 1e4 of the largest, every 3 decades from a
+    loop's own start to its own end, so a loop's result does not depend on the batch it is in.
+    """
+    with np.errstate(all="ignore"):
+        k_asym = np.abs(den[:, 0]) / np.abs(lead_n) * scale ** excess.astype(float)
+        d_den = _derivative(den)
+        at = np.where(poles != 0, poles, scale[:, np.newaxis])
+        k_pole = np.abs(at) * np.abs(_horner_rows(d_den, poles)) / np.abs(_horner_rows(num, poles))
+        k_pole = np.where(np.isfinite(k_pole) & (k_pole > 0), k_pole, np.nan)
+        k_lo = np.nanmin(np.c_[k_pole, k_asym], axis=1)
+        k_hi = np.nanmax(np.c_[k_pole, k_asym], axis=1)
+    k_asym = np.where(np.isfinite(k_asym) & (k_asym > 0), k_asym, 1.0)
+    k_lo = np.where(np.isfinite(k_lo) & (k_lo > 0), k_lo, k_asym) * 1e-4
+    k_hi = np.where(np.isfinite(k_hi) & (k_hi > 0), k_hi, k_asym) * 1e4
+    own_count = np.clip(np.ceil(np.log10(k_hi / k_lo) / 3.0) + 1, 4, _MAX_SCAN).astype(int)
+    return k_lo, own_count
+
+
+def _scan_at(
+    num: np.ndarray,
+    den: np.ndarray,
+    poles: np.ndarray,
+    zeros: np.ndarray,
+    excess: np.ndarray,
+    scale: np.ndarray,
+    centroid: np.ndarray,
+    slowest: np.ndarray,
+    sign: float,
+    asymptote: tuple[bool, float, float, float],
+    max_step: float,
+    gains_pd: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Roots ``(P, D, n)``, asymptotic flags ``(P, D)`` and "not yet moved" flags ``(P, D)`` at gains ``(P, D)``.
+
+    ``asymptote`` is ``(negative, zero_tol, far_factor, asymptote_tol)`` of :func:`_asymptotic`.
+    """
+    P, width_d = gains_pd.shape
+    rws = np.repeat(np.arange(P), width_d)
+    rts = _roots(num[rws], den[rws], sign * gains_pd.ravel())
+    asy = _asymptotic(rts, zeros[rws], excess[rws], scale[rws], centroid[rws], *asymptote).reshape(P, -1)
+    dist = np.abs(rts[:, :, np.newaxis] - poles[rws][:, np.newaxis, :])
+    dist = np.where(np.isnan(dist), np.inf, dist)
+    nearest = np.take_along_axis(poles[rws], np.argmin(dist, axis=2), axis=1)
+    # "Not moved": every root within a hundredth of its own allowed step
+    # of an open-loop pole.
+    own = 0.01 * max_step * np.clip(np.abs(nearest), slowest[rws][:, np.newaxis], scale[rws][:, np.newaxis])
+    unmoved = np.all(np.min(dist, axis=2) <= own, axis=1).reshape(P, -1)
+    return rts.reshape(P, width_d, -1), asy, unmoved
+
+
+def _boundary(r: np.ndarray, rws: np.ndarray, discrete: bool, delta: bool, ts: np.ndarray | None) -> np.ndarray:
+    """Signed distance-like function of roots ``r`` (first axis: loops ``rws``), >= 0 outside the stability region."""
+    if not discrete:
+        return r.real
+    if delta and ts is not None:
+        # (|1 + ts g|^2 - 1)/ts without the cancellation of forming z.
+        t = ts[rws].reshape((-1,) + (1,) * (r.ndim - 1))
+        return 2.0 * r.real + t * (r.real**2 + r.imag**2)
+    return r.real**2 + r.imag**2 - 1.0
+
+
+def _outside(r: np.ndarray, rws: np.ndarray, discrete: bool, delta: bool, ts: np.ndarray | None) -> np.ndarray:
+    """Whether each root of ``r`` lies on or outside the stability boundary (see :func:`_boundary`)."""
+    with np.errstate(invalid="ignore"):
+        return _boundary(r, rws, discrete, delta, ts) >= 0
+
+
+def _padded_take(rows: np.ndarray, P: int) -> tuple[np.ndarray, np.ndarray]:
+    """Indices ``(P, G)`` into the samples sorted by loop, the last sample of a loop repeated to width ``G``,
+    and the sample count per loop ``(P,)``."""
+    counts = np.bincount(rows, minlength=P)
+    width = int(counts.max())
+    start_of = np.r_[0, np.cumsum(counts)[:-1]]
+    position = np.arange(width)[np.newaxis, :]
+    return start_of[:, np.newaxis] + np.minimum(position, counts[:, np.newaxis] - 1), counts
+
+
 def trace_locus(
     loop: Loop,
     k_max: object = None,
@@ -613,41 +697,14 @@ def trace_locus(
     # has moved by |p| (first order: K |N(p)/D'(p)| = |p|), and the gain at
     # which |K N| and |D| are alike at the plot scale (the asymptotic side).
     # The scan spans 1e-4 of the smallest to 1e4 of the largest.
-    with np.errstate(all="ignore"):
-        k_asym = np.abs(den[:, 0]) / np.abs(lead_n) * scale ** excess.astype(float)
-        at = np.where(poles != 0, poles, scale[:, np.newaxis])
-        d_den = _derivative(den)
-        k_pole = np.abs(at) * np.abs(_horner_rows(d_den, poles)) / np.abs(_horner_rows(num, poles))
-        k_pole = np.where(np.isfinite(k_pole) & (k_pole > 0), k_pole, np.nan)
-        k_lo = np.nanmin(np.c_[k_pole, k_asym], axis=1)
-        k_hi = np.nanmax(np.c_[k_pole, k_asym], axis=1)
-    k_asym = np.where(np.isfinite(k_asym) & (k_asym > 0), k_asym, 1.0)
-    k_lo = np.where(np.isfinite(k_lo) & (k_lo > 0), k_lo, k_asym) * 1e-4
-    k_hi = np.where(np.isfinite(k_hi) & (k_hi > 0), k_hi, k_asym) * 1e4
-    # Every loop is scanned every 3 decades from its own k_lo to its own k_hi
-    # (points past its own end are ignored), so a loop's result does not
-    # depend on the batch it is in.
-    own_count = np.clip(np.ceil(np.log10(k_hi / k_lo) / 3.0) + 1, 4, _MAX_SCAN).astype(int)
+    k_lo, own_count = _scan_range(num, den, poles, lead_n, excess, scale)
     count = int(own_count.max())
     valid = np.arange(count) < own_count[:, np.newaxis]
 
-    def scan_at(gains_pd):
-        """Roots, asymptotic flags and 'not yet moved' flags at gains (P, D)."""
-        width_d = gains_pd.shape[1]
-        rws = np.repeat(np.arange(P), width_d)
-        rts = _roots(num[rws], den[rws], sign * gains_pd.ravel())
-        asy = _asymptotic(
-            rts, zeros[rws], excess[rws], scale[rws], centroid[rws],
-            negative, zero_tol, far_factor, asymptote_tol,
-        ).reshape(P, -1)
-        dist = np.abs(rts[:, :, np.newaxis] - poles[rws][:, np.newaxis, :])
-        dist = np.where(np.isnan(dist), np.inf, dist)
-        nearest = np.take_along_axis(poles[rws], np.argmin(dist, axis=2), axis=1)
-        # "Not moved": every root within a hundredth of its own allowed step
-        # of an open-loop pole.
-        own = 0.01 * max_step * np.clip(np.abs(nearest), slowest[rws][:, np.newaxis], scale[rws][:, np.newaxis])
-        unmoved = np.all(np.min(dist, axis=2) <= own, axis=1).reshape(P, -1)
-        return rts.reshape(P, width_d, n), asy, unmoved
+    scan_at = partial(
+        _scan_at, num, den, poles, zeros, excess, scale, centroid, slowest, sign,
+        (negative, zero_tol, far_factor, asymptote_tol), max_step,
+    )
 
     # Coarse scan, then two points between the first asymptotic gain and its
     # predecessor and two after the last unmoved one.
@@ -718,20 +775,6 @@ def trace_locus(
     rows, mags, roots = rows[keep], mags[keep], roots[keep]
 
     ts = None if not loop.is_discrete else loop.ts
-
-    def boundary(r, rws):
-        """Signed distance-like function, >= 0 outside the stability region."""
-        if not loop.is_discrete:
-            return r.real
-        if delta:
-            # (|1 + ts g|^2 - 1)/ts without the cancellation of forming z.
-            t = ts[rws].reshape((-1,) + (1,) * (r.ndim - 1))
-            return 2.0 * r.real + t * (r.real**2 + r.imag**2)
-        return r.real**2 + r.imag**2 - 1.0
-
-    def outside(r, rws):
-        with np.errstate(invalid="ignore"):
-            return boundary(r, rws) >= 0
 
     # Only intervals created in the previous round are examined: an interval
     # that passed once is final.
@@ -823,7 +866,7 @@ def trace_locus(
 
     # --- boundary crossings: regula falsi on the crossing branch, then one
     # sample exactly there -------------------------------------------------
-    side = outside(branch_roots, rows)
+    side = _outside(branch_roots, rows, loop.is_discrete, delta, ts)
     # A root on the boundary at K = 0 (an integrator, a delay pole at z = 0)
     # is no crossing: only intervals with a > 0 count.
     change = (side[1:] != side[:-1]) & same[:, np.newaxis] & (mags[:-1] > 0)[:, np.newaxis]
@@ -842,7 +885,7 @@ def trace_locus(
         crossing = _crossing_gains(
             num[cross_rows], den[cross_rows], sign, mags[cross_idx], mags[cross_idx + 1],
             branch_roots[cross_idx, branch], branch_roots[cross_idx + 1, branch],
-            lambda r: boundary(r, cross_rows), crossing_rtol,
+            partial(_boundary, rws=cross_rows, discrete=loop.is_discrete, delta=delta, ts=ts), crossing_rtol,
         )
         # A crossing found exactly at an existing sample needs no new sample.
         all_crossing, all_rows = crossing, cross_rows
@@ -873,11 +916,7 @@ def trace_locus(
             )
 
     # --- pad to (P, G) ------------------------------------------------------
-    counts = np.bincount(rows, minlength=P)
-    width = int(counts.max())
-    start_of = np.r_[0, np.cumsum(counts)[:-1]]
-    position = np.arange(width)[np.newaxis, :]
-    take = start_of[:, np.newaxis] + np.minimum(position, counts[:, np.newaxis] - 1)
+    take, counts = _padded_take(rows, P)
     return LocusBranches(
         gains=sign * mags[take],
         roots=branch_roots[take],

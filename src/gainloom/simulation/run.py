@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Any, Protocol
 
 import numpy as np
@@ -12,7 +13,7 @@ from ..errors import InputError
 from ..names import unknown_name_message
 from .controller import SIMULATION_FORMATS, TableController
 from .metrics import measure
-from .plant import sample_plant
+from .plant import SampledPlant, sample_plant
 from .result import SimulationResult, SpecCheck
 from .scenario import Scenario
 from .signals import RunInputs
@@ -96,6 +97,173 @@ def _input_warnings(
     return warnings
 
 
+def _check_arguments(
+    schedule: ScheduleLike, table: GainTable, scenario: Scenario, number_format: str
+) -> tuple[str, ...]:
+    """Refuse arguments that cannot make a run; return the schedule's axis names."""
+    if not isinstance(table, GainTable):
+        raise InputError(f"table must be a GainTable; got {type(table).__name__}")
+    if not isinstance(scenario, Scenario):
+        raise InputError(f"scenario must be a Scenario; got {type(scenario).__name__}")
+    if number_format not in SIMULATION_FORMATS:
+        raise InputError(unknown_name_message("number format", str(number_format), SIMULATION_FORMATS))
+    if getattr(getattr(schedule, "controller", None), "filters", ()):
+        # running the table without its filter sections would simulate another controller
+        raise InputError(
+            "the schedule has controller.filters; the simulation does not run filter sections yet, and "
+            "without them it would simulate another controller than the one designed"
+        )
+    schedule_axes = _axis_names(schedule.axes)
+    unknown = [axis.name for axis in table.axes if axis.name not in schedule_axes]
+    if unknown:
+        raise InputError(
+            f"the gain table is scheduled on {', '.join(unknown)}, which the schedule does not have "
+            f"(schedule axes: {', '.join(schedule_axes)})"
+        )
+    extra = [name for name in scenario.trajectory if name not in schedule_axes]
+    if extra:
+        raise InputError(
+            f"the scenario moves {', '.join(extra)}, which the schedule does not have "
+            f"(schedule axes: {', '.join(schedule_axes)})"
+        )
+    asks_step = scenario.specs.max_overshoot is not None or scenario.specs.max_settling_time is not None
+    if asks_step and not scenario.reference.jumps:
+        raise InputError("overshoot and settling specs need a reference step; the scenario's reference has none")
+    return schedule_axes
+
+
+def _sample_along_path(models: Any, count: int) -> tuple[np.ndarray, SampledPlant]:
+    """Sample period, shape ``(count,)`` (s), and the exact ZOH plant update at each of ``count`` samples."""
+    plant = models.plant
+    if plant.is_discrete:
+        raise InputError("the schedule must give the continuous plant; it gave a discrete loop")
+    if plant.points not in (1, count):
+        raise InputError(f"the schedule gave {plant.points} plants for {count} points")
+    plant = plant if plant.points == count else plant.select(np.zeros(count, dtype=int))
+    period = np.broadcast_to(np.asarray(models.sample_period, dtype=float), (count,))
+    delay = np.broadcast_to(np.asarray(models.delay, dtype=float), (count,))
+    return period, sample_plant(plant, period, delay)
+
+
+def _path_warnings(
+    schedule: ScheduleLike, table: GainTable, table_points: np.ndarray, period: np.ndarray, sampled: SampledPlant
+) -> list[str]:
+    """Where the path leaves the table, the table's period or the delay differ, or the hold is not ZOH.
+
+    ``table_points`` has shape ``(K, n_table_axes)``; ``period`` shape ``(K,)`` (s).
+    """
+    warnings = []
+    for column, axis in enumerate(table.axes):
+        low, high = float(np.min(table_points[:, column])), float(np.max(table_points[:, column]))
+        if low < axis.values[0] or high > axis.values[-1]:
+            warnings.append(
+                f"{axis.name} goes to [{low:g}, {high:g}] {axis.unit}, outside the table's "
+                f"[{axis.values[0]:g}, {axis.values[-1]:g}]: coefficients are clamped at the ends there"
+            )
+    table_period = interpolate_grid(tuple(a.values for a in table.axes), table.sample_period, table_points)
+    mismatch = float(np.max(np.abs(table_period - period) / period))
+    if mismatch > 1e-6:
+        warnings.append(
+            f"the table's sample period differs from the schedule's by up to {mismatch * 100:.3g} % along the path; "
+            "the plant runs at the schedule's period with the table's coefficients"
+        )
+    if np.ptp(sampled.whole_delay) or np.ptp(sampled.fraction_delay / period) > 1e-9:
+        warnings.append(
+            "the loop delay in samples changes along the path; each interval uses the delay of its own point "
+            "(exact at a frozen point, an approximation while it moves)"
+        )
+    method = getattr(getattr(schedule, "sampling", None), "method", "zoh")
+    if method != "zoh":
+        warnings.append(
+            f"the schedule designs with the {method} hold equivalent; the simulation integrates the plant exactly "
+            "under a zero-order hold (what a PWM or DAC output does)"
+        )
+    return warnings
+
+
+@dataclass(eq=False)
+class _Traces:
+    """Per-sample records of one run, shape ``(K,)`` each (``requested`` ``(K, 2)``, ``states`` ``(K, n)``).
+
+    NaN where the run stopped early; ``requested`` is NaN where no run-time limits were asked for.
+    """
+
+    output: np.ndarray
+    control: np.ndarray
+    unsaturated: np.ndarray
+    feedforward: np.ndarray
+    limit_low: np.ndarray
+    limit_high: np.ndarray
+    requested: np.ndarray
+    states: np.ndarray
+
+    @classmethod
+    def empty(cls, count: int, state_count: int) -> _Traces:
+        """All-NaN records for ``count`` samples and ``state_count`` controller states."""
+        output, control, unsaturated, feedforward, limit_low, limit_high = (np.full(count, np.nan) for _ in range(6))
+        requested = np.full((count, 2), np.nan)
+        states = np.full((count, state_count), np.nan)
+        return cls(output, control, unsaturated, feedforward, limit_low, limit_high, requested, states)
+
+
+def _step_loop(
+    controller: TableController,
+    sampled: SampledPlant,
+    inputs: RunInputs,
+    reference: np.ndarray,
+    disturbance: np.ndarray,
+) -> _Traces:
+    """Run controller and plant sample by sample over the ``K`` samples of ``reference``.
+
+    Stops at the first output beyond :data:`_STOP_MAGNITUDE` (or non-finite);
+    a state beyond it marks the rest of the output infinite.
+    """
+    count = reference.size
+    traces = _Traces.empty(count, len(controller.state_names))
+    output, control = traces.output, traces.control
+    phi, late, early, load = sampled.phi, sampled.late, sampled.early, sampled.load
+    c, d, whole = sampled.c, sampled.d, sampled.whole_delay
+    x = np.zeros(sampled.order)
+    previous_input = 0.0
+    for k in range(count):
+        y = float(c[k] @ x + d[k] * previous_input)
+        if not np.isfinite(y) or abs(y) > _STOP_MAGNITUDE:
+            break
+        traces.feedforward[k], limits = inputs.at(k, y)
+        output[k], (control[k], traces.unsaturated[k]) = y, controller.step(
+            k, reference[k], y, traces.feedforward[k], limits
+        )
+        traces.limit_low[k], traces.limit_high[k] = controller.limits_in_force()
+        if limits is not None:
+            traces.requested[k] = limits
+        traces.states[k] = controller.states()
+        lag = k - whole[k]
+        newer = control[lag] if lag >= 0 else 0.0
+        older = control[lag - 1] if lag >= 1 else 0.0
+        x = phi[k] @ x + late[k] * newer + early[k] * older + load[k] * disturbance[k]
+        previous_input = newer + disturbance[k]
+        if not np.all(np.abs(x) < _STOP_MAGNITUDE):
+            output[k + 1:] = np.inf
+            break
+    return traces
+
+
+def _error_scale_warnings(controller: TableController, reference: np.ndarray, output: np.ndarray) -> list[str]:
+    """Fixed point only: where ``|r - y|`` (shape ``(K,)``) went beyond the error full scale."""
+    layout = controller.layout
+    if layout is None or not layout.fmt.is_fixed:
+        return []
+    error = np.abs(reference - output)
+    beyond = np.isfinite(error) & (error > layout.error_full_scale)
+    if not np.any(beyond):
+        return []
+    return [
+        f"|r - y| reached {np.nanmax(error[np.isfinite(error)]):.4g}, beyond the error full scale "
+        f"{layout.error_full_scale:g}, at {np.count_nonzero(beyond)} of {output.size} samples: the controller "
+        "saw a saturated error there (raise --error-full-scale if the firmware scales it otherwise)"
+    ]
+
+
 def run_scenario(
     schedule: ScheduleLike,
     table: GainTable,
@@ -152,119 +320,26 @@ def run_scenario(
     replace functional-safety processes, local codes or licensed
     engineering judgement.
     """
-    if not isinstance(table, GainTable):
-        raise InputError(f"table must be a GainTable; got {type(table).__name__}")
-    if not isinstance(scenario, Scenario):
-        raise InputError(f"scenario must be a Scenario; got {type(scenario).__name__}")
-    if number_format not in SIMULATION_FORMATS:
-        raise InputError(unknown_name_message("number format", str(number_format), SIMULATION_FORMATS))
-    schedule_axes = _axis_names(schedule.axes)
-    table_axes = tuple(axis.name for axis in table.axes)
-    unknown = [name for name in table_axes if name not in schedule_axes]
-    if unknown:
-        raise InputError(
-            f"the gain table is scheduled on {', '.join(unknown)}, which the schedule does not have "
-            f"(schedule axes: {', '.join(schedule_axes)})"
-        )
-    extra = [name for name in scenario.trajectory if name not in schedule_axes]
-    if extra:
-        raise InputError(
-            f"the scenario moves {', '.join(extra)}, which the schedule does not have "
-            f"(schedule axes: {', '.join(schedule_axes)})"
-        )
-    asks_step = scenario.specs.max_overshoot is not None or scenario.specs.max_settling_time is not None
-    if asks_step and not scenario.reference.jumps:
-        raise InputError("overshoot and settling specs need a reference step; the scenario's reference has none")
-
+    schedule_axes = _check_arguments(schedule, table, scenario, number_format)
     times = sample_times(
         scenario.duration, lambda t: schedule.evaluate(scenario.points(schedule_axes, t)).sample_period
     )
-    count = times.size
     points = scenario.points(schedule_axes, times)
     models = schedule.evaluate(points)
-    plant = models.plant
-    if plant.is_discrete:
-        raise InputError("the schedule must give the continuous plant; it gave a discrete loop")
-    if plant.points not in (1, count):
-        raise InputError(f"the schedule gave {plant.points} plants for {count} points")
-    plant = plant if plant.points == count else plant.select(np.zeros(count, dtype=int))
-    period = np.broadcast_to(np.asarray(models.sample_period, dtype=float), (count,))
-    delay = np.broadcast_to(np.asarray(models.delay, dtype=float), (count,))
-    sampled = sample_plant(plant, period, delay)
+    period, sampled = _sample_along_path(models, times.size)
+    table_points = scenario.points(tuple(axis.name for axis in table.axes), times)
+    warnings = _path_warnings(schedule, table, table_points, period, sampled)
 
-    warnings: list[str] = []
-    table_points = scenario.points(table_axes, times)
-    for column, axis in enumerate(table.axes):
-        low, high = float(np.min(table_points[:, column])), float(np.max(table_points[:, column]))
-        if low < axis.values[0] or high > axis.values[-1]:
-            warnings.append(
-                f"{axis.name} goes to [{low:g}, {high:g}] {axis.unit}, outside the table's "
-                f"[{axis.values[0]:g}, {axis.values[-1]:g}]: coefficients are clamped at the ends there"
-            )
-    table_period = interpolate_grid(tuple(a.values for a in table.axes), table.sample_period, table_points)
-    mismatch = float(np.max(np.abs(table_period - period) / period))
-    if mismatch > 1e-6:
-        warnings.append(
-            f"the table's sample period differs from the schedule's by up to {mismatch * 100:.3g} % along the path; "
-            "the plant runs at the schedule's period with the table's coefficients"
-        )
-    if np.ptp(sampled.whole_delay) or np.ptp(sampled.fraction_delay / period) > 1e-9:
-        warnings.append(
-            "the loop delay in samples changes along the path; each interval uses the delay of its own point "
-            "(exact at a frozen point, an approximation while it moves)"
-        )
-
-    method = getattr(getattr(schedule, "sampling", None), "method", "zoh")
-    if method != "zoh":
-        warnings.append(
-            f"the schedule designs with the {method} hold equivalent; the simulation integrates the plant exactly "
-            "under a zero-order hold (what a PWM or DAC output does)"
-        )
     controller = TableController(table, number_format, table_points, error_full_scale, output_full_scale)
     reference = scenario.reference(times)
     disturbance = scenario.disturbance(times)
     inputs = _run_inputs(scenario, schedule_axes, points, models, times, reference)
-    output, control, unsaturated, feedforward, limit_low, limit_high = (np.full(count, np.nan) for _ in range(6))
-    requested = np.full((count, 2), np.nan)  # run-time limits asked for (NaN: none)
-    state_names = controller.state_names
-    states = np.full((count, len(state_names)), np.nan)
+    traces = _step_loop(controller, sampled, inputs, reference, disturbance)
+    warnings += _error_scale_warnings(controller, reference, traces.output)
+    warnings += _input_warnings(controller, times, traces.feedforward, traces.requested)
 
-    phi, late, early, load = sampled.phi, sampled.late, sampled.early, sampled.load
-    c, d, whole = sampled.c, sampled.d, sampled.whole_delay
-    x = np.zeros(sampled.order)
-    previous_input = 0.0
-    for k in range(count):
-        y = float(c[k] @ x + d[k] * previous_input)
-        if not np.isfinite(y) or abs(y) > _STOP_MAGNITUDE:
-            break
-        feedforward[k], limits = inputs.at(k, y)
-        output[k], (control[k], unsaturated[k]) = y, controller.step(k, reference[k], y, feedforward[k], limits)
-        limit_low[k], limit_high[k] = controller.limits_in_force()
-        if limits is not None:
-            requested[k] = limits
-        states[k] = controller.states()
-        lag = k - whole[k]
-        newer = control[lag] if lag >= 0 else 0.0
-        older = control[lag - 1] if lag >= 1 else 0.0
-        x = phi[k] @ x + late[k] * newer + early[k] * older + load[k] * disturbance[k]
-        previous_input = newer + disturbance[k]
-        if not np.all(np.abs(x) < _STOP_MAGNITUDE):
-            output[k + 1:] = np.inf
-            break
-
-    layout = controller.layout
-    if layout is not None and layout.fmt.is_fixed:
-        error = np.abs(reference - output)
-        beyond = np.isfinite(error) & (error > layout.error_full_scale)
-        if np.any(beyond):
-            warnings.append(
-                f"|r - y| reached {np.nanmax(error[np.isfinite(error)]):.4g}, beyond the error full scale "
-                f"{layout.error_full_scale:g}, at {np.count_nonzero(beyond)} of {count} samples: the controller "
-                "saw a saturated error there (raise --error-full-scale if the firmware scales it otherwise)"
-            )
-
-    warnings += _input_warnings(controller, times, feedforward, requested)
-    metrics = measure(times, period, reference, output, unsaturated, (limit_low, limit_high), scenario)
+    limits_in_force = (traces.limit_low, traces.limit_high)
+    metrics = measure(times, period, reference, traces.output, traces.unsaturated, limits_in_force, scenario)
     return SimulationResult(
         number_format=number_format,
         structure=table.structure,
@@ -274,15 +349,15 @@ def run_scenario(
         sample_period=np.array(period),
         points=points,
         reference=reference,
-        output=output,
-        error=reference - output,
-        control=control,
-        unsaturated=unsaturated,
+        output=traces.output,
+        error=reference - traces.output,
+        control=traces.control,
+        unsaturated=traces.unsaturated,
         disturbance=disturbance,
-        feedforward=feedforward,
-        limits_in_force=(limit_low, limit_high),
+        feedforward=traces.feedforward,
+        limits_in_force=limits_in_force,
         gains={name: np.asarray(values, dtype=float) for name, values in controller.gains.items()},
-        states={name: states[:, i] for i, name in enumerate(state_names)},
+        states={name: traces.states[:, i] for i, name in enumerate(controller.state_names)},
         metrics=metrics,
         checks=_check_specs(scenario, metrics),
         warnings=tuple(warnings),
