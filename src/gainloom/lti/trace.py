@@ -735,6 +735,71 @@ def _compose_branches(
     return rows, mags, branch_roots, same
 
 
+def _boundary_crossings(
+    num: np.ndarray,
+    den: np.ndarray,
+    sign: float,
+    scale: np.ndarray,
+    floor: np.ndarray,
+    max_step: float,
+    region: tuple[bool, bool, np.ndarray | None],
+    crossing_rtol: float,
+    samples: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray],
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, tuple[np.ndarray, ...]]:
+    """Gains where a branch crosses the stability boundary, with one sample added exactly at each.
+
+    ``region`` is ``(discrete, delta, ts)`` of :func:`_boundary`; ``samples`` is ``(rows, mags,
+    branch_roots, same)`` from :func:`_compose_branches`.  Returns the samples with the crossings added
+    (sorted by loop and gain, roots in branch order) and the signed crossing gains of each loop, ascending.
+    Regula falsi on the crossing branch (:func:`_crossing_gains`) to ``crossing_rtol``.
+    """
+    discrete, delta, ts = region
+    rows, mags, branch_roots, same = samples
+    P = scale.size
+    side = _outside(branch_roots, rows, discrete, delta, ts)
+    # A root on the boundary at K = 0 (an integrator, a delay pole at z = 0)
+    # is no crossing: only intervals with a > 0 count.
+    change = (side[1:] != side[:-1]) & same[:, np.newaxis] & (mags[:-1] > 0)[:, np.newaxis]
+    # A root of a biproper loop that passes through infinity (K = -d0/n0)
+    # changes side without crossing the boundary: not a crossing here (nor
+    # anything beyond 1e8 plot scales).
+    far_out = 1e8 * scale[rows][:, np.newaxis]
+    with np.errstate(invalid="ignore"):
+        change &= (np.abs(branch_roots[1:]) < far_out[1:]) & (np.abs(branch_roots[:-1]) < far_out[:-1])
+    cross_idx = np.flatnonzero(np.any(change, axis=1))
+    crossing = np.zeros(0)
+    cross_rows = rows[cross_idx]
+    all_crossing, all_rows = crossing, cross_rows
+    if cross_idx.size:
+        branch = np.argmax(change[cross_idx], axis=1)
+        crossing = _crossing_gains(
+            num[cross_rows], den[cross_rows], sign, mags[cross_idx], mags[cross_idx + 1],
+            branch_roots[cross_idx, branch], branch_roots[cross_idx + 1, branch],
+            partial(_boundary, rws=cross_rows, discrete=discrete, delta=delta, ts=ts), crossing_rtol,
+        )
+        # A crossing found exactly at an existing sample needs no new sample.
+        all_crossing, all_rows = crossing, cross_rows
+        fresh = (crossing != mags[cross_idx]) & (crossing != mags[cross_idx + 1])
+        cross_idx, cross_rows, crossing = cross_idx[fresh], cross_rows[fresh], crossing[fresh]
+        frac = (crossing - mags[cross_idx]) / (mags[cross_idx + 1] - mags[cross_idx])
+        seeds = branch_roots[cross_idx] + frac[:, np.newaxis] * (branch_roots[cross_idx + 1] - branch_roots[cross_idx])
+        new_roots = _roots_from_seeds(num[cross_rows], den[cross_rows], sign * crossing, seeds, scale[cross_rows])
+        allowed = _allowed_step(seeds, new_roots, scale[cross_rows], floor[cross_rows], max_step)
+        gains_x = sign * crossing
+        perm = _match(num[cross_rows], den[cross_rows], gains_x, gains_x, seeds, new_roots, allowed)[0]
+        new_roots = np.take_along_axis(new_roots, perm, axis=1)
+        rows = np.concatenate([rows, cross_rows])
+        mags = np.concatenate([mags, crossing])
+        branch_roots = np.concatenate([branch_roots, new_roots])
+        order = np.lexsort((mags, rows))
+        rows, mags, branch_roots = rows[order], mags[order], branch_roots[order]
+    signed = sign * all_crossing
+    by_loop = np.lexsort((signed, all_rows))
+    splits = np.cumsum(np.bincount(all_rows, minlength=P))[:-1]
+    crossing_gains = tuple(np.split(signed[by_loop], splits))
+    return rows, mags, branch_roots, crossing_gains
+
+
 def trace_locus(
     loop: Loop,
     k_max: object = None,
@@ -910,47 +975,10 @@ def trace_locus(
 
     # --- boundary crossings: regula falsi on the crossing branch, then one
     # sample exactly there -------------------------------------------------
-    side = _outside(branch_roots, rows, loop.is_discrete, delta, ts)
-    # A root on the boundary at K = 0 (an integrator, a delay pole at z = 0)
-    # is no crossing: only intervals with a > 0 count.
-    change = (side[1:] != side[:-1]) & same[:, np.newaxis] & (mags[:-1] > 0)[:, np.newaxis]
-    # A root of a biproper loop that passes through infinity (K = -d0/n0)
-    # changes side without crossing the boundary: not a crossing here (nor
-    # anything beyond 1e8 plot scales).
-    far_out = 1e8 * scale[rows][:, np.newaxis]
-    with np.errstate(invalid="ignore"):
-        change &= (np.abs(branch_roots[1:]) < far_out[1:]) & (np.abs(branch_roots[:-1]) < far_out[:-1])
-    cross_idx = np.flatnonzero(np.any(change, axis=1))
-    crossing = np.zeros(0)
-    cross_rows = rows[cross_idx]
-    all_crossing, all_rows = crossing, cross_rows
-    if cross_idx.size:
-        branch = np.argmax(change[cross_idx], axis=1)
-        crossing = _crossing_gains(
-            num[cross_rows], den[cross_rows], sign, mags[cross_idx], mags[cross_idx + 1],
-            branch_roots[cross_idx, branch], branch_roots[cross_idx + 1, branch],
-            partial(_boundary, rws=cross_rows, discrete=loop.is_discrete, delta=delta, ts=ts), crossing_rtol,
-        )
-        # A crossing found exactly at an existing sample needs no new sample.
-        all_crossing, all_rows = crossing, cross_rows
-        fresh = (crossing != mags[cross_idx]) & (crossing != mags[cross_idx + 1])
-        cross_idx, cross_rows, crossing = cross_idx[fresh], cross_rows[fresh], crossing[fresh]
-        frac = (crossing - mags[cross_idx]) / (mags[cross_idx + 1] - mags[cross_idx])
-        seeds = branch_roots[cross_idx] + frac[:, np.newaxis] * (branch_roots[cross_idx + 1] - branch_roots[cross_idx])
-        new_roots = _roots_from_seeds(num[cross_rows], den[cross_rows], sign * crossing, seeds, scale[cross_rows])
-        allowed = _allowed_step(seeds, new_roots, scale[cross_rows], floor[cross_rows], max_step)
-        gains_x = sign * crossing
-        perm = _match(num[cross_rows], den[cross_rows], gains_x, gains_x, seeds, new_roots, allowed)[0]
-        new_roots = np.take_along_axis(new_roots, perm, axis=1)
-        rows = np.concatenate([rows, cross_rows])
-        mags = np.concatenate([mags, crossing])
-        branch_roots = np.concatenate([branch_roots, new_roots])
-        order = np.lexsort((mags, rows))
-        rows, mags, branch_roots = rows[order], mags[order], branch_roots[order]
-    signed = sign * all_crossing
-    by_loop = np.lexsort((signed, all_rows))
-    splits = np.cumsum(np.bincount(all_rows, minlength=P))[:-1]
-    crossing_gains = tuple(np.split(signed[by_loop], splits))
+    rows, mags, branch_roots, crossing_gains = _boundary_crossings(
+        num, den, sign, scale, floor, max_step, (loop.is_discrete, delta, ts), crossing_rtol,
+        (rows, mags, branch_roots, same),
+    )
     work_roots = branch_roots
 
     if delta and ts is not None:
