@@ -189,3 +189,15 @@ def test_emit_refuses_a_table_designed_with_filters(two_mass, tmp_path):
         assert done.returncode == 2, done.stderr
         assert "controller.filters (notch)" in done.stderr and "Traceback" not in done.stderr
         assert not (tmp_path / "c").exists() or not list((tmp_path / "c").glob("*.c"))
+
+
+def test_simulation_refuses_a_schedule_with_filters(two_mass):
+    from gainloom import InputError
+    from gainloom.report.run import default_scenario
+    from gainloom.simulation import run_scenario
+
+    schedule, result = two_mass
+    scenario, _ = default_scenario(schedule, result)
+    # the simulation does not run filter sections yet: refused, not run without them
+    with pytest.raises(InputError, match=r"controller\.filters"):
+        run_scenario(schedule, result.table, scenario, "float32")

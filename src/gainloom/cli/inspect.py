@@ -87,7 +87,8 @@ def inspect_data(schedule: Schedule) -> dict:
         "axes": [{"name": a.name, "unit": a.unit, "values": a.values} for a in schedule.axes],
         "grid_shape": list(schedule.grid_shape),
         "sampling": {"method": sampling.method, "prewarp": sampling.prewarp},
-        "controller": dataclasses.asdict(schedule.controller),
+        "controller": dataclasses.asdict(dataclasses.replace(schedule.controller, filters=()))
+        | {"filters": [section.as_written() for section in schedule.controller.filters]},
         "specs": dataclasses.asdict(schedule.specs),
         "table": dataclasses.asdict(schedule.table_checks),
         "tolerances": dataclasses.asdict(schedule.tolerances),

@@ -583,6 +583,53 @@ def compare_output(program: HarnessProgram, stdout: str) -> OutputComparison:
     )
 
 
+def _build_settings(
+    command: list[str], generated: GeneratedFiles, accept: tuple[str, ...]
+) -> tuple[tuple[str, ...], tuple[str, ...], dict]:
+    """Preprocessor defines, the C99 build flags and the compiler facts every result records.
+
+    Sanitizers join the flags when the compiler supports them.
+    """
+    version, sanitizers = _compiler_facts(tuple(command))
+    defines = (*generated.defines, *(f"-D{c_names(p).accept_unverified}" for p in accept))
+    flags = ("-std=c99", "-O1", *WARNING_FLAGS, *defines) + (SANITIZER_FLAGS if sanitizers else ())
+    common = dict(compiler=" ".join(command), compiler_version=version, flags=flags, sanitizers=sanitizers)
+    return defines, flags, common
+
+
+def _compile_and_run(
+    command: list[str],
+    files: list[Path],
+    program: HarnessProgram,
+    generated: GeneratedFiles,
+    defines: tuple[str, ...],
+    flags: tuple[str, ...],
+    common: dict,
+) -> HarnessResult | subprocess.CompletedProcess:
+    """Check the sources as C11, build them with the harness as C99 and run it, in a temporary folder.
+
+    Returns the finished run, or the failed ``HarnessResult`` of the first step that failed.
+    """
+    sources = [s.name for s in generated.sources]
+    with tempfile.TemporaryDirectory(prefix="gainloom-harness-") as tmp:
+        work = Path(tmp)
+        for f in files:
+            shutil.copyfile(f, work / f.name)
+        (work / "harness.c").write_text(program.source, encoding="utf-8")
+        c11 = _run([*command, "-std=c11", *WARNING_FLAGS, *defines, "-fsyntax-only", *sources], work)
+        if c11.returncode != 0:
+            return HarnessResult("failed", "generated C does not compile as C11", diagnostics=c11.stderr, **common)
+        built = _run([*command, *flags, *sources, "harness.c", "-o", "harness"], work)
+        if built.returncode != 0:
+            return HarnessResult("failed", "generated C does not compile as C99", diagnostics=built.stderr, **common)
+        ran = _run([str(work / "harness")], work, _env())
+        if ran.returncode != 0:
+            return HarnessResult(
+                "failed", f"harness exited with code {ran.returncode}", diagnostics=ran.stderr[-4000:], **common
+            )
+    return ran
+
+
 def check_generated_c(
     files: Iterable[str | os.PathLike],
     table: GainTable,
@@ -644,29 +691,11 @@ def check_generated_c(
         return HarnessResult(
             "no-compiler", "no C compiler found ($CC, cc, gcc, clang): the generated C was NOT checked"
         )
-    version, sanitizers = _compiler_facts(tuple(command))
+    defines, flags, common = _build_settings(command, generated, accept)
     program = harness_program(table, generated, points=points, steps=steps, seed=seed)
-    defines = (*generated.defines, *(f"-D{c_names(p).accept_unverified}" for p in accept))
-    flags = ("-std=c99", "-O1", *WARNING_FLAGS, *defines) + (SANITIZER_FLAGS if sanitizers else ())
-    common = dict(compiler=" ".join(command), compiler_version=version, flags=flags, sanitizers=sanitizers)
-    sources = [s.name for s in generated.sources]
-
-    with tempfile.TemporaryDirectory(prefix="gainloom-harness-") as tmp:
-        work = Path(tmp)
-        for f in files:
-            shutil.copyfile(f, work / f.name)
-        (work / "harness.c").write_text(program.source, encoding="utf-8")
-        c11 = _run([*command, "-std=c11", *WARNING_FLAGS, *defines, "-fsyntax-only", *sources], work)
-        if c11.returncode != 0:
-            return HarnessResult("failed", "generated C does not compile as C11", diagnostics=c11.stderr, **common)
-        built = _run([*command, *flags, *sources, "harness.c", "-o", "harness"], work)
-        if built.returncode != 0:
-            return HarnessResult("failed", "generated C does not compile as C99", diagnostics=built.stderr, **common)
-        ran = _run([str(work / "harness")], work, _env())
-        if ran.returncode != 0:
-            return HarnessResult(
-                "failed", f"harness exited with code {ran.returncode}", diagnostics=ran.stderr[-4000:], **common
-            )
+    ran = _compile_and_run(command, files, program, generated, defines, flags, common)
+    if isinstance(ran, HarnessResult):
+        return ran
     comparison = compare_output(program, ran.stdout)
     return HarnessResult(
         **dataclasses.asdict(comparison),

@@ -36,7 +36,7 @@ from .fallbacks import (
     strategy_gain_warning,
     target_warnings,
 )
-from .filter_notes import auto_notch_report, filter_text, resonance_note
+from .filter_notes import auto_notch_report, resonance_note
 from .measured_check import check_on_data, merge_data_verdict
 from .results import DesignResult, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, choose_gains, objective_values, samples_in
@@ -632,7 +632,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
             "range": list(controller.sweep.range), "count": controller.sweep.count},
         "derivative_filter": controller.derivative_filter,
         "sampling": {"method": sched.sampling.method, "prewarp": sched.sampling.prewarp},
-        "filters": [filter_text(section) for section in controller.filters],
+        "filters": [section.as_written() for section in controller.filters],
     }
     return DesignResult(
         table=table,

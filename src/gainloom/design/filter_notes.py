@@ -15,7 +15,7 @@ import numpy as np
 
 from ..lti.filters import RESONANCE_DAMPING
 
-__all__ = ["auto_notch_report", "filter_text", "resonance_note"]
+__all__ = ["auto_notch_report", "resonance_note"]
 
 
 def auto_notch_report(sched, points: np.ndarray) -> tuple[list[list[str]], list[str]]:
@@ -68,15 +68,6 @@ def resonance_note(analysis, p: int) -> str | None:
         f"{abs(s):.6g} rad/s ({_hz(abs(s))}, open-loop damping {-s.real / abs(s):.3g}); a notch there "
         "(controller.filters) lowers the loop gain at the resonance but does not damp it"
     )
-
-
-def filter_text(section) -> dict[str, str]:
-    """A filter section as written (kind and expressions), for the gains file and the log."""
-    text = {"kind": section.kind}
-    if section.auto:
-        text["frequency"] = "auto"
-    text.update({key: expression.source for key, expression in section.values.items()})
-    return text
 
 
 def _hz(w: float) -> str:

@@ -40,6 +40,7 @@ Conventions (the same as python-control's ``stability_margins``):
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
 
 import numpy as np
 
@@ -253,6 +254,193 @@ def _crossover_ends(grid, num, den, rows, w_gc, discrete: bool) -> tuple[np.ndar
     return first, last
 
 
+def _checked_gains(loop: Loop, gain: object) -> np.ndarray:
+    """The loop gain per point, shape ``(P,)``, refusing a non-Loop, a non-finite or a zero gain."""
+    if not isinstance(loop, Loop):
+        raise InputError(f"expected a gainloom Loop; got {type(loop).__name__}")
+    gains = np.broadcast_to(np.asarray(gain, dtype=float), (loop.points,)).copy()
+    if gains.ndim != 1 or not np.all(np.isfinite(gains)) or np.any(gains == 0):
+        raise InputError(f"gain must be finite and non-zero, scalar or one per point; got {gain!r}")
+    return gains
+
+
+def _scaled_response(loop: Loop, gains: np.ndarray, w: np.ndarray, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``K N(jw)`` and ``D(jw)`` of the points ``rows`` (shape ``(R,)``) at ``w`` (``R * m`` values, rad/s).
+
+    Both come back in the shape of ``w``; row ``i`` of ``w`` reshaped to ``(R, m)`` belongs to ``rows[i]``.
+    """
+    sub = loop.select(rows)
+    num, den = frequency_response(sub, w.reshape(rows.size, -1))
+    return (gains[rows][:, np.newaxis] * num).reshape(w.shape), den.reshape(w.shape)
+
+
+def _log_gain_ratio(loop: Loop, gains: np.ndarray, w: np.ndarray, rows: np.ndarray) -> np.ndarray:
+    """``log|K N| - log|D|`` at ``w``: its sign changes at a gain crossover."""
+    n, d = _scaled_response(loop, gains, w, rows)
+    return np.log(np.abs(n)) - np.log(np.abs(d))
+
+
+def _phase_indicator(loop: Loop, gains: np.ndarray, w: np.ndarray, rows: np.ndarray) -> np.ndarray:
+    """``Im(K N conj D)`` at ``w``: the sign of ``Im L`` without the poles of ``L``."""
+    n, d = _scaled_response(loop, gains, w, rows)
+    return (n * np.conj(d)).imag
+
+
+def _refine_sign_changes(grid: np.ndarray, values: np.ndarray, func) -> tuple[np.ndarray, np.ndarray]:
+    """Rows and frequencies (rad/s) of every sign change of ``values`` (shape ``(P, m)`` on ``grid``),
+    bisected on ``func(w, rows)``."""
+    r, c = sign_change_brackets(values)
+    if r.size == 0:
+        return r, np.zeros(0)
+    return r, bisect_rows(func, grid[r, c], grid[r, c + 1], values[r, c], r)
+
+
+def _phase_crossovers(
+    loop: Loop, gains: np.ndarray, grid: np.ndarray, num: np.ndarray, den: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Rows and frequencies (rad/s) where ``L`` crosses the real axis, the end points where it is real and
+    negative included (``w = 0`` and, for discrete loops, Nyquist)."""
+    p_rows, w_pc = _refine_sign_changes(grid, (num * np.conj(den)).imag, partial(_phase_indicator, loop, gains))
+    points = loop.points
+    end_w = [np.zeros(points)]
+    if loop.ts is not None:
+        end_w.append(np.pi / loop.ts)
+    for w_end in end_w:
+        n_end, d_end = _scaled_response(loop, gains, w_end.reshape(points, 1), np.arange(points))
+        value = (n_end * np.conj(d_end)).real[:, 0]
+        finite = np.abs(d_end[:, 0]) > 0
+        rows = np.flatnonzero(finite & (value < 0))
+        p_rows = np.concatenate([p_rows, rows])
+        w_pc = np.concatenate([w_pc, w_end[rows]])
+    return p_rows, w_pc
+
+
+def _gain_margin(
+    loop: Loop, gains: np.ndarray, p_rows: np.ndarray, w_pc: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Worst gain margin per point (shape ``(P,)``, ``inf`` without a phase crossover) and its frequency.
+
+    Only crossings of the negative real axis count.
+    """
+    if p_rows.size:
+        n_pc, d_pc = _scaled_response(loop, gains, w_pc, p_rows)
+        ratio = n_pc / d_pc
+        negative = ratio.real < 0
+        p_rows, w_pc, ratio = p_rows[negative], w_pc[negative], ratio[negative]
+        gm_each = 1.0 / np.abs(ratio)
+    else:
+        gm_each = np.zeros(0)
+    gm_key, (gm, wpc) = _worst_by_row(loop.points, p_rows, np.abs(np.log(gm_each)), gm_each, w_pc)
+    return np.where(np.isfinite(gm_key), gm, np.inf), wpc
+
+
+def _phase_and_delay_margins(
+    loop: Loop, gains: np.ndarray, g_rows: np.ndarray, w_gc: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Worst phase margin (deg), its crossover (rad/s) and the smallest delay margin (s), each ``(P,)``."""
+    if g_rows.size:
+        n_gc, d_gc = _scaled_response(loop, gains, w_gc, g_rows)
+        phase = np.angle(n_gc / d_gc, deg=True)
+        pm_each = np.remainder(phase, 360.0) - 180.0
+        lag = np.deg2rad(np.remainder(pm_each, 360.0))
+        dm_each = lag / w_gc
+    else:
+        pm_each = dm_each = np.zeros(0)
+    pm_key, (pm, wgc) = _worst_by_row(loop.points, g_rows, np.abs(pm_each), pm_each, w_gc)
+    pm = np.where(np.isfinite(pm_key), pm, np.inf)
+    dm = np.full(loop.points, np.inf)
+    np.minimum.at(dm, g_rows, dm_each)
+    return pm, wgc, dm
+
+
+def _distinct_neighbours(grid: np.ndarray, col: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``log w`` of the nearest grid values below and above ``grid[p, col[p]]`` that differ from it, ``(P,)`` each.
+
+    The grid may repeat values, so the neighbours are those of the run of equal values.
+    """
+    points, m = grid.shape
+    rows = np.arange(points)
+    index = np.broadcast_to(np.arange(m), grid.shape)
+    starts = grid[:, 1:] != grid[:, :-1]
+    run_start = np.maximum.accumulate(np.where(np.c_[np.ones(points, bool), starts], index, 0), axis=1)
+    run_end = m - 1 - np.maximum.accumulate(
+        np.where(np.c_[starts, np.ones(points, bool)][:, ::-1], index, 0), axis=1
+    )[:, ::-1]
+    a = np.log(grid[rows, np.maximum(run_start[rows, col] - 1, 0)])
+    b = np.log(grid[rows, np.minimum(run_end[rows, col] + 1, m - 1)])
+    return a, b
+
+
+def _golden_maximum(func, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Mid-point of the final bracket of a golden-section search for the maximum of ``func`` on ``[a, b]``."""
+    ratio = (np.sqrt(5.0) - 1.0) / 2.0
+    x1 = b - ratio * (b - a)
+    x2 = a + ratio * (b - a)
+    f1, f2 = func(x1), func(x2)
+    for _ in range(_GOLDEN_STEPS):
+        left = f1 >= f2  # maximum lies in [a, x2]
+        b = np.where(left, x2, b)
+        a = np.where(left, a, x1)
+        new = np.where(left, b - ratio * (b - a), a + ratio * (b - a))
+        f_new = func(new)
+        x2, f2, x1, f1 = (
+            np.where(left, x1, new),
+            np.where(left, f1, f_new),
+            np.where(left, new, x2),
+            np.where(left, f_new, f2),
+        )
+    return 0.5 * (a + b)
+
+
+def _sensitivity_at(loop: Loop, gains: np.ndarray, rows: np.ndarray, logw: np.ndarray) -> np.ndarray:
+    """``|S| = |D| / |D + K N|`` of the points ``rows`` at ``log w``."""
+    n, d = _scaled_response(loop, gains, np.exp(logw), rows)
+    return np.abs(d) / np.abs(d + n)
+
+
+def _sensitivity_peak(
+    loop: Loop, gains: np.ndarray, grid: np.ndarray, num: np.ndarray, den: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Peak of ``|S|`` per point and its frequency (rad/s), ``(P,)`` each: grid maximum, then golden section
+    in ``log w`` between its distinct neighbours (kept only where it improves on the grid)."""
+    sens = np.abs(den) / np.abs(den + num)
+    sens = np.where(np.isnan(sens), np.inf, sens)
+    col = np.argmax(sens, axis=1)
+    rows = np.arange(loop.points)
+    a, b = _distinct_neighbours(grid, col)
+    f_sens = partial(_sensitivity_at, loop, gains, rows)
+    w_opt = np.exp(_golden_maximum(f_sens, a, b))
+    ms_opt = f_sens(np.log(w_opt))
+    use_grid = ~(ms_opt > sens[rows, col])
+    return np.where(use_grid, sens[rows, col], ms_opt), np.where(use_grid, grid[rows, col], w_opt)
+
+
+def _stability(
+    loop: Loop, gains: np.ndarray, dm: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, list[str]]:
+    """Closed-loop stability per point from the poles, the delay margin zeroed where unstable, and warnings.
+
+    With continuous dead time the poles are those of the rational part only, so an unstable point with
+    dead time keeps its delay margin and the verdict carries a warning.
+    """
+    poles = closed_loop_poles(loop, gains[:, np.newaxis])[:, 0, :]
+    if loop.is_discrete:
+        stable = np.all(np.abs(poles) < 1.0, axis=1)
+    else:
+        stable = np.all(poles.real < 0.0, axis=1)
+    warnings: list[str] = []
+    has_dead_time = (not loop.is_discrete) and np.any(loop.dead_time > 0)
+    if has_dead_time:
+        warnings.append(
+            "continuous dead time: 'stable' and the zero delay margin of unstable points refer to the "
+            "rational part only; discretise the loop for a pole-based stability verdict"
+        )
+        dm = np.where(stable | (loop.dead_time > 0), dm, 0.0)
+    else:
+        dm = np.where(stable, dm, 0.0)
+    return stable, dm, warnings
+
+
 def loop_margins(loop: Loop, gain: object = 1.0) -> Margins:
     """Gain, phase and delay margins and the sensitivity peak of every point.
 
@@ -281,141 +469,23 @@ def loop_margins(loop: Loop, gain: object = 1.0) -> Margins:
     together than the grid spacing there can be missed (then both are, and
     the margin reported is that of the next crossover).
     """
-    if not isinstance(loop, Loop):
-        raise InputError(f"expected a gainloom Loop; got {type(loop).__name__}")
-    gains = np.broadcast_to(np.asarray(gain, dtype=float), (loop.points,)).copy()
-    if gains.ndim != 1 or not np.all(np.isfinite(gains)) or np.any(gains == 0):
-        raise InputError(f"gain must be finite and non-zero, scalar or one per point; got {gain!r}")
-    points = loop.points
+    gains = _checked_gains(loop, gain)
     grid = frequency_grid(loop, gains)
-    k = gains[:, np.newaxis]
-
-    def parts(w, rows):
-        sub = loop.select(rows)
-        num, den = frequency_response(sub, w.reshape(rows.size, -1))
-        return (gains[rows][:, np.newaxis] * num).reshape(w.shape), den.reshape(w.shape)
-
     num, den = frequency_response(loop, grid)
-    num = k * num
-    warnings: list[str] = []
+    num = gains[:, np.newaxis] * num
 
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        # Gain crossover: sign of log|K N| - log|D|.
-        def f_gain(w, rows):
-            n, d = parts(w, rows)
-            return np.log(np.abs(n)) - np.log(np.abs(d))
-
-        # Phase crossover: Im(K N conj D) has the sign of Im L and no poles.
-        def f_phase(w, rows):
-            n, d = parts(w, rows)
-            return (n * np.conj(d)).imag
-
-        def refine(values, func):
-            r, c = sign_change_brackets(values)
-            if r.size == 0:
-                return r, np.zeros(0)
-            w = bisect_rows(func, grid[r, c], grid[r, c + 1], values[r, c], r)
-            return r, w
-
-        g_rows, w_gc = refine(np.log(np.abs(num)) - np.log(np.abs(den)), f_gain)
-        p_rows, w_pc = refine((num * np.conj(den)).imag, f_phase)
-
-        # Endpoints where L is real by symmetry: w = 0 and, for discrete loops, Nyquist.
-        end_w = [np.zeros(points)]
-        if loop.ts is not None:
-            end_w.append(np.pi / loop.ts)
-        for w_end in end_w:
-            n_end, d_end = parts(w_end.reshape(points, 1), np.arange(points))
-            value = (n_end * np.conj(d_end)).real[:, 0]
-            finite = np.abs(d_end[:, 0]) > 0
-            rows = np.flatnonzero(finite & (value < 0))
-            p_rows = np.concatenate([p_rows, rows])
-            w_pc = np.concatenate([w_pc, w_end[rows]])
-
-        # Phase crossovers are those on the negative real axis.
-        if p_rows.size:
-            n_pc, d_pc = parts(w_pc, p_rows)
-            ratio = n_pc / d_pc
-            negative = ratio.real < 0
-            p_rows, w_pc, ratio = p_rows[negative], w_pc[negative], ratio[negative]
-            gm_each = 1.0 / np.abs(ratio)
-        else:
-            gm_each = np.zeros(0)
-        gm_key, (gm, wpc) = _worst_by_row(points, p_rows, np.abs(np.log(gm_each)), gm_each, w_pc)
-        gm = np.where(np.isfinite(gm_key), gm, np.inf)
-
-        if g_rows.size:
-            n_gc, d_gc = parts(w_gc, g_rows)
-            phase = np.angle(n_gc / d_gc, deg=True)
-            pm_each = np.remainder(phase, 360.0) - 180.0
-            lag = np.deg2rad(np.remainder(pm_each, 360.0))
-            dm_each = lag / w_gc
-        else:
-            pm_each = dm_each = np.zeros(0)
-        pm_key, (pm, wgc) = _worst_by_row(points, g_rows, np.abs(pm_each), pm_each, w_gc)
-        pm = np.where(np.isfinite(pm_key), pm, np.inf)
-        dm = np.full(points, np.inf)
-        np.minimum.at(dm, g_rows, dm_each)
+        g_rows, w_gc = _refine_sign_changes(
+            grid, np.log(np.abs(num)) - np.log(np.abs(den)), partial(_log_gain_ratio, loop, gains)
+        )
+        p_rows, w_pc = _phase_crossovers(loop, gains, grid, num, den)
+        gm, wpc = _gain_margin(loop, gains, p_rows, w_pc)
+        pm, wgc, dm = _phase_and_delay_margins(loop, gains, g_rows, w_gc)
         crossover, last_crossover = _crossover_ends(grid, num, den, g_rows, w_gc, loop.is_discrete)
-
-        # Sensitivity peak: grid maximum, then golden section in log w.
-        sens = np.abs(den) / np.abs(den + num)
-        sens = np.where(np.isnan(sens), np.inf, sens)
-        col = np.argmax(sens, axis=1)
-        rows = np.arange(points)
-        # Bracket by the nearest *distinct* neighbours (the grid may repeat values).
-        m = grid.shape[1]
-        index = np.broadcast_to(np.arange(m), grid.shape)
-        starts = grid[:, 1:] != grid[:, :-1]
-        run_start = np.maximum.accumulate(np.where(np.c_[np.ones(points, bool), starts], index, 0), axis=1)
-        run_end = m - 1 - np.maximum.accumulate(
-            np.where(np.c_[starts, np.ones(points, bool)][:, ::-1], index, 0), axis=1
-        )[:, ::-1]
-        a = np.log(grid[rows, np.maximum(run_start[rows, col] - 1, 0)])
-        b = np.log(grid[rows, np.minimum(run_end[rows, col] + 1, m - 1)])
-
-        def f_sens(logw):
-            n, d = parts(np.exp(logw), rows)
-            return np.abs(d) / np.abs(d + n)
-
-        ratio = (np.sqrt(5.0) - 1.0) / 2.0
-        x1 = b - ratio * (b - a)
-        x2 = a + ratio * (b - a)
-        f1, f2 = f_sens(x1), f_sens(x2)
-        for _ in range(_GOLDEN_STEPS):
-            left = f1 >= f2  # maximum lies in [a, x2]
-            b = np.where(left, x2, b)
-            a = np.where(left, a, x1)
-            new = np.where(left, b - ratio * (b - a), a + ratio * (b - a))
-            f_new = f_sens(new)
-            x2, f2, x1, f1 = (
-                np.where(left, x1, new),
-                np.where(left, f1, f_new),
-                np.where(left, new, x2),
-                np.where(left, f_new, f2),
-            )
-        w_opt = np.exp(0.5 * (a + b))
-        ms_opt = f_sens(np.log(w_opt))
-        use_grid = ~(ms_opt > sens[rows, col])
-        ms = np.where(use_grid, sens[rows, col], ms_opt)
-        wms = np.where(use_grid, grid[rows, col], w_opt)
+        ms, wms = _sensitivity_peak(loop, gains, grid, num, den)
         gm_db = 20.0 * np.log10(gm)
 
-    poles = closed_loop_poles(loop, gains[:, np.newaxis])[:, 0, :]
-    if loop.is_discrete:
-        stable = np.all(np.abs(poles) < 1.0, axis=1)
-    else:
-        stable = np.all(poles.real < 0.0, axis=1)
-    has_dead_time = (not loop.is_discrete) and np.any(loop.dead_time > 0)
-    if has_dead_time:
-        warnings.append(
-            "continuous dead time: 'stable' and the zero delay margin of unstable points refer to the "
-            "rational part only; discretise the loop for a pole-based stability verdict"
-        )
-        dm = np.where(stable | (loop.dead_time > 0), dm, 0.0)
-    else:
-        dm = np.where(stable, dm, 0.0)
-    samples = dm / loop.ts if loop.is_discrete else None
+    stable, dm, warnings = _stability(loop, gains, dm)
     return Margins(
         gain_margin=gm,
         gain_margin_db=gm_db,
@@ -423,7 +493,7 @@ def loop_margins(loop: Loop, gain: object = 1.0) -> Margins:
         phase_margin=pm,
         gain_crossover=wgc,
         delay_margin=dm,
-        delay_margin_samples=samples,
+        delay_margin_samples=dm / loop.ts if loop.is_discrete else None,
         sensitivity_peak=ms,
         sensitivity_peak_frequency=wms,
         stable=stable,

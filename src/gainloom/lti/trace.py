@@ -41,7 +41,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from functools import cached_property
+from functools import cached_property, partial
 
 import numpy as np
 
@@ -530,6 +530,276 @@ def _crossing_gains(num, den, sign, lo, hi, r_lo, r_hi, boundary, rtol):
     return np.where(np.abs(f_lo) <= np.abs(f_hi), lo, hi)
 
 
+def _scan_range(
+    num: np.ndarray, den: np.ndarray, poles: np.ndarray, lead_n: np.ndarray, excess: np.ndarray, scale: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Lowest gain of the scan (``(P,)``) and the number of scan decades of each loop (``(P,)``, int).
+
+    Gain scales of the loop: the gain at which the root leaving pole p has moved by |p| (first order:
+    K |N(p)/D'(p)| = |p|), and the gain at which |K N| and |D| are alike at the plot scale (the
+    asymptotic side).  The scan spans 1e-4 of the smallest to 1e4 of the largest, every 3 decades from a
+    loop's own start to its own end, so a loop's result does not depend on the batch it is in.
+    """
+    with np.errstate(all="ignore"):
+        k_asym = np.abs(den[:, 0]) / np.abs(lead_n) * scale ** excess.astype(float)
+        d_den = _derivative(den)
+        at = np.where(poles != 0, poles, scale[:, np.newaxis])
+        k_pole = np.abs(at) * np.abs(_horner_rows(d_den, poles)) / np.abs(_horner_rows(num, poles))
+        k_pole = np.where(np.isfinite(k_pole) & (k_pole > 0), k_pole, np.nan)
+        k_lo = np.nanmin(np.c_[k_pole, k_asym], axis=1)
+        k_hi = np.nanmax(np.c_[k_pole, k_asym], axis=1)
+    k_asym = np.where(np.isfinite(k_asym) & (k_asym > 0), k_asym, 1.0)
+    k_lo = np.where(np.isfinite(k_lo) & (k_lo > 0), k_lo, k_asym) * 1e-4
+    k_hi = np.where(np.isfinite(k_hi) & (k_hi > 0), k_hi, k_asym) * 1e4
+    own_count = np.clip(np.ceil(np.log10(k_hi / k_lo) / 3.0) + 1, 4, _MAX_SCAN).astype(int)
+    return k_lo, own_count
+
+
+def _scan_at(
+    num: np.ndarray,
+    den: np.ndarray,
+    poles: np.ndarray,
+    zeros: np.ndarray,
+    excess: np.ndarray,
+    scale: np.ndarray,
+    centroid: np.ndarray,
+    slowest: np.ndarray,
+    sign: float,
+    asymptote: tuple[bool, float, float, float],
+    max_step: float,
+    gains_pd: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Roots ``(P, D, n)``, asymptotic flags ``(P, D)`` and "not yet moved" flags ``(P, D)`` at gains ``(P, D)``.
+
+    ``asymptote`` is ``(negative, zero_tol, far_factor, asymptote_tol)`` of :func:`_asymptotic`.
+    """
+    P, width_d = gains_pd.shape
+    rws = np.repeat(np.arange(P), width_d)
+    rts = _roots(num[rws], den[rws], sign * gains_pd.ravel())
+    asy = _asymptotic(rts, zeros[rws], excess[rws], scale[rws], centroid[rws], *asymptote).reshape(P, -1)
+    dist = np.abs(rts[:, :, np.newaxis] - poles[rws][:, np.newaxis, :])
+    dist = np.where(np.isnan(dist), np.inf, dist)
+    nearest = np.take_along_axis(poles[rws], np.argmin(dist, axis=2), axis=1)
+    # "Not moved": every root within a hundredth of its own allowed step
+    # of an open-loop pole.
+    own = 0.01 * max_step * np.clip(np.abs(nearest), slowest[rws][:, np.newaxis], scale[rws][:, np.newaxis])
+    unmoved = np.all(np.min(dist, axis=2) <= own, axis=1).reshape(P, -1)
+    return rts.reshape(P, width_d, -1), asy, unmoved
+
+
+def _boundary(r: np.ndarray, rws: np.ndarray, discrete: bool, delta: bool, ts: np.ndarray | None) -> np.ndarray:
+    """Signed distance-like function of roots ``r`` (first axis: loops ``rws``), >= 0 outside the stability region."""
+    if not discrete:
+        return r.real
+    if delta and ts is not None:
+        # (|1 + ts g|^2 - 1)/ts without the cancellation of forming z.
+        t = ts[rws].reshape((-1,) + (1,) * (r.ndim - 1))
+        return 2.0 * r.real + t * (r.real**2 + r.imag**2)
+    return r.real**2 + r.imag**2 - 1.0
+
+
+def _outside(r: np.ndarray, rws: np.ndarray, discrete: bool, delta: bool, ts: np.ndarray | None) -> np.ndarray:
+    """Whether each root of ``r`` lies on or outside the stability boundary (see :func:`_boundary`)."""
+    with np.errstate(invalid="ignore"):
+        return _boundary(r, rws, discrete, delta, ts) >= 0
+
+
+def _padded_take(rows: np.ndarray, P: int) -> tuple[np.ndarray, np.ndarray]:
+    """Indices ``(P, G)`` into the samples sorted by loop, the last sample of a loop repeated to width ``G``,
+    and the sample count per loop ``(P,)``."""
+    counts = np.bincount(rows, minlength=P)
+    width = int(counts.max())
+    start_of = np.r_[0, np.cumsum(counts)[:-1]]
+    position = np.arange(width)[np.newaxis, :]
+    return start_of[:, np.newaxis] + np.minimum(position, counts[:, np.newaxis] - 1), counts
+
+
+def _refine_samples(
+    num: np.ndarray,
+    den: np.ndarray,
+    sign: float,
+    scale: np.ndarray,
+    floor: np.ndarray,
+    slowest: np.ndarray,
+    limits: tuple[float, int, int],
+    rows: np.ndarray,
+    mags: np.ndarray,
+    roots: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[np.ndarray], list[np.ndarray], bool]:
+    """Split gain intervals until every root moves at most the allowed step and every match is clear.
+
+    ``rows``, ``mags`` (``|K|``) and ``roots`` (``(S, n)``) are the initial samples sorted by loop and gain;
+    ``limits`` is ``(max_step, max_rounds, max_samples)``.  Returns the samples with the new ones appended
+    (unsorted), the left sample index and root permutation of every settled interval, and whether the
+    round limit stopped the refinement.
+    """
+    max_step, max_rounds, max_samples = limits
+    P = scale.size
+    same = rows[1:] == rows[:-1]
+    pend_a = np.flatnonzero(same)
+    pend_b = pend_a + 1
+    settled_a: list[np.ndarray] = []
+    settled_perm: list[np.ndarray] = []
+    hit_cap = False
+    for _ in range(max_rounds):
+        if pend_a.size == 0:
+            break
+        a, b = pend_a, pend_b
+        ra, rb = roots[a], roots[b]
+        allowed = _allowed_step(ra, rb, scale[rows[a]], floor[rows[a]], max_step)
+        # Coincidence is judged on each root's own scale, whatever step_floor:
+        # a coarse step bound must not excuse a swap of distinct slow roots.
+        fine = _allowed_step(ra, rb, scale[rows[a]], slowest[rows[a]], max_step)
+        perm, disp, ambiguous = _match(
+            num[rows[a]], den[rows[a]], sign * mags[a], sign * mags[b], ra, rb, allowed, fine
+        )
+        too_far = np.any(disp > allowed, axis=1)
+        width = mags[b] - mags[a]
+        resolvable = width > 1e-12 * np.maximum(mags[b], 1e-300)
+        split = resolvable & (too_far | ambiguous)
+        counts = np.bincount(rows, minlength=P)
+        split &= counts[rows[a]] < max_samples
+        # Intervals that pass are final, and so is their match.
+        settled_a.append(a[~split])
+        settled_perm.append(perm[~split])
+        # Split into as many pieces as the step excess asks for (geometric in
+        # K), so most intervals settle in one or two rounds; ambiguous
+        # intervals are bisected.
+        excess_step = np.max(np.where(np.isfinite(disp), disp, np.inf) / allowed, axis=1)[split]
+        pieces = np.where(too_far[split], np.clip(np.ceil(1.2 * excess_step), 2, 16), 2).astype(int)
+        a, b = a[split], b[split]
+        if a.size == 0:
+            pend_a = a
+            break
+        lo, hi = mags[a], mags[b]
+        pieces = np.where(lo > 0, pieces, 2)
+        owner = np.repeat(np.arange(a.size), pieces - 1)
+        first = np.r_[0, np.cumsum(pieces - 1)[:-1]]
+        j = np.arange(owner.size) - first[owner] + 1
+        frac = j / pieces[owner]
+        lo_o, hi_o = lo[owner], hi[owner]
+        with np.errstate(divide="ignore"):
+            mid = np.where(lo_o > 0, lo_o * np.exp(frac * np.log(hi_o / np.where(lo_o > 0, lo_o, 1.0))), hi_o / 4.0)
+        new_rows = rows[a][owner]
+        matched_b = np.take_along_axis(roots[b], perm[split], axis=1)
+        with np.errstate(invalid="ignore"):
+            seeds = roots[a][owner] + frac[:, np.newaxis] * (matched_b[owner] - roots[a][owner])
+        new_roots = _roots_from_seeds(num[new_rows], den[new_rows], sign * mid, seeds, scale[new_rows])
+        new_index = rows.size + np.arange(owner.size)
+        rows = np.concatenate([rows, new_rows])
+        mags = np.concatenate([mags, mid])
+        roots = np.concatenate([roots, new_roots])
+        # Chain a -> new_1 -> ... -> new_{q-1} -> b for every split interval.
+        left = np.concatenate([a, new_index])
+        is_last = np.r_[owner[1:] != owner[:-1], True] if owner.size else np.zeros(0, bool)
+        right_of_new = np.where(is_last, b[owner], new_index + 1)
+        right = np.concatenate([new_index[first], right_of_new])
+        pend_a, pend_b = left, right
+    else:
+        hit_cap = pend_a.size > 0
+    if pend_a.size:
+        allowed = _allowed_step(roots[pend_a], roots[pend_b], scale[rows[pend_a]], floor[rows[pend_a]], max_step)
+        settled_a.append(pend_a)
+        settled_perm.append(
+            _match(num[rows[pend_a]], den[rows[pend_a]], sign * mags[pend_a], sign * mags[pend_b],
+                   roots[pend_a], roots[pend_b], allowed)[0]
+        )
+    return rows, mags, roots, settled_a, settled_perm, hit_cap
+
+
+def _compose_branches(
+    rows: np.ndarray,
+    mags: np.ndarray,
+    roots: np.ndarray,
+    settled_a: list[np.ndarray],
+    settled_perm: list[np.ndarray],
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Sort the samples by loop and gain and order each sample's roots along the branches.
+
+    Returns ``rows``, ``mags``, the branch-ordered roots ``(S, n)`` and whether each neighbouring pair of
+    samples belongs to one loop (``(S - 1,)``).
+    """
+    n = roots.shape[1]
+    order = np.lexsort((mags, rows))
+    rows, mags, roots = rows[order], mags[order], roots[order]
+    # Every neighbouring pair of samples is exactly one settled interval.
+    same = rows[1:] == rows[:-1]
+    where_now = np.empty_like(order)
+    where_now[order] = np.arange(order.size)
+    perms = np.tile(np.arange(n), (rows.size - 1, 1))
+    if settled_a:
+        perms[where_now[np.concatenate(settled_a)]] = np.concatenate(settled_perm)
+    starts = np.flatnonzero(np.r_[True, ~same])
+    order = _compose(perms, starts)
+    branch_roots = np.take_along_axis(roots, order, axis=1)
+    return rows, mags, branch_roots, same
+
+
+def _boundary_crossings(
+    num: np.ndarray,
+    den: np.ndarray,
+    sign: float,
+    scale: np.ndarray,
+    floor: np.ndarray,
+    max_step: float,
+    region: tuple[bool, bool, np.ndarray | None],
+    crossing_rtol: float,
+    samples: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray],
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, tuple[np.ndarray, ...]]:
+    """Gains where a branch crosses the stability boundary, with one sample added exactly at each.
+
+    ``region`` is ``(discrete, delta, ts)`` of :func:`_boundary`; ``samples`` is ``(rows, mags,
+    branch_roots, same)`` from :func:`_compose_branches`.  Returns the samples with the crossings added
+    (sorted by loop and gain, roots in branch order) and the signed crossing gains of each loop, ascending.
+    Regula falsi on the crossing branch (:func:`_crossing_gains`) to ``crossing_rtol``.
+    """
+    discrete, delta, ts = region
+    rows, mags, branch_roots, same = samples
+    P = scale.size
+    side = _outside(branch_roots, rows, discrete, delta, ts)
+    # A root on the boundary at K = 0 (an integrator, a delay pole at z = 0)
+    # is no crossing: only intervals with a > 0 count.
+    change = (side[1:] != side[:-1]) & same[:, np.newaxis] & (mags[:-1] > 0)[:, np.newaxis]
+    # A root of a biproper loop that passes through infinity (K = -d0/n0)
+    # changes side without crossing the boundary: not a crossing here (nor
+    # anything beyond 1e8 plot scales).
+    far_out = 1e8 * scale[rows][:, np.newaxis]
+    with np.errstate(invalid="ignore"):
+        change &= (np.abs(branch_roots[1:]) < far_out[1:]) & (np.abs(branch_roots[:-1]) < far_out[:-1])
+    cross_idx = np.flatnonzero(np.any(change, axis=1))
+    crossing = np.zeros(0)
+    cross_rows = rows[cross_idx]
+    all_crossing, all_rows = crossing, cross_rows
+    if cross_idx.size:
+        branch = np.argmax(change[cross_idx], axis=1)
+        crossing = _crossing_gains(
+            num[cross_rows], den[cross_rows], sign, mags[cross_idx], mags[cross_idx + 1],
+            branch_roots[cross_idx, branch], branch_roots[cross_idx + 1, branch],
+            partial(_boundary, rws=cross_rows, discrete=discrete, delta=delta, ts=ts), crossing_rtol,
+        )
+        # A crossing found exactly at an existing sample needs no new sample.
+        all_crossing, all_rows = crossing, cross_rows
+        fresh = (crossing != mags[cross_idx]) & (crossing != mags[cross_idx + 1])
+        cross_idx, cross_rows, crossing = cross_idx[fresh], cross_rows[fresh], crossing[fresh]
+        frac = (crossing - mags[cross_idx]) / (mags[cross_idx + 1] - mags[cross_idx])
+        seeds = branch_roots[cross_idx] + frac[:, np.newaxis] * (branch_roots[cross_idx + 1] - branch_roots[cross_idx])
+        new_roots = _roots_from_seeds(num[cross_rows], den[cross_rows], sign * crossing, seeds, scale[cross_rows])
+        allowed = _allowed_step(seeds, new_roots, scale[cross_rows], floor[cross_rows], max_step)
+        gains_x = sign * crossing
+        perm = _match(num[cross_rows], den[cross_rows], gains_x, gains_x, seeds, new_roots, allowed)[0]
+        new_roots = np.take_along_axis(new_roots, perm, axis=1)
+        rows = np.concatenate([rows, cross_rows])
+        mags = np.concatenate([mags, crossing])
+        branch_roots = np.concatenate([branch_roots, new_roots])
+        order = np.lexsort((mags, rows))
+        rows, mags, branch_roots = rows[order], mags[order], branch_roots[order]
+    signed = sign * all_crossing
+    by_loop = np.lexsort((signed, all_rows))
+    splits = np.cumsum(np.bincount(all_rows, minlength=P))[:-1]
+    crossing_gains = tuple(np.split(signed[by_loop], splits))
+    return rows, mags, branch_roots, crossing_gains
+
+
 def trace_locus(
     loop: Loop,
     k_max: object = None,
@@ -613,41 +883,14 @@ def trace_locus(
     # has moved by |p| (first order: K |N(p)/D'(p)| = |p|), and the gain at
     # which |K N| and |D| are alike at the plot scale (the asymptotic side).
     # The scan spans 1e-4 of the smallest to 1e4 of the largest.
-    with np.errstate(all="ignore"):
-        k_asym = np.abs(den[:, 0]) / np.abs(lead_n) * scale ** excess.astype(float)
-        at = np.where(poles != 0, poles, scale[:, np.newaxis])
-        d_den = _derivative(den)
-        k_pole = np.abs(at) * np.abs(_horner_rows(d_den, poles)) / np.abs(_horner_rows(num, poles))
-        k_pole = np.where(np.isfinite(k_pole) & (k_pole > 0), k_pole, np.nan)
-        k_lo = np.nanmin(np.c_[k_pole, k_asym], axis=1)
-        k_hi = np.nanmax(np.c_[k_pole, k_asym], axis=1)
-    k_asym = np.where(np.isfinite(k_asym) & (k_asym > 0), k_asym, 1.0)
-    k_lo = np.where(np.isfinite(k_lo) & (k_lo > 0), k_lo, k_asym) * 1e-4
-    k_hi = np.where(np.isfinite(k_hi) & (k_hi > 0), k_hi, k_asym) * 1e4
-    # Every loop is scanned every 3 decades from its own k_lo to its own k_hi
-    # (points past its own end are ignored), so a loop's result does not
-    # depend on the batch it is in.
-    own_count = np.clip(np.ceil(np.log10(k_hi / k_lo) / 3.0) + 1, 4, _MAX_SCAN).astype(int)
+    k_lo, own_count = _scan_range(num, den, poles, lead_n, excess, scale)
     count = int(own_count.max())
     valid = np.arange(count) < own_count[:, np.newaxis]
 
-    def scan_at(gains_pd):
-        """Roots, asymptotic flags and 'not yet moved' flags at gains (P, D)."""
-        width_d = gains_pd.shape[1]
-        rws = np.repeat(np.arange(P), width_d)
-        rts = _roots(num[rws], den[rws], sign * gains_pd.ravel())
-        asy = _asymptotic(
-            rts, zeros[rws], excess[rws], scale[rws], centroid[rws],
-            negative, zero_tol, far_factor, asymptote_tol,
-        ).reshape(P, -1)
-        dist = np.abs(rts[:, :, np.newaxis] - poles[rws][:, np.newaxis, :])
-        dist = np.where(np.isnan(dist), np.inf, dist)
-        nearest = np.take_along_axis(poles[rws], np.argmin(dist, axis=2), axis=1)
-        # "Not moved": every root within a hundredth of its own allowed step
-        # of an open-loop pole.
-        own = 0.01 * max_step * np.clip(np.abs(nearest), slowest[rws][:, np.newaxis], scale[rws][:, np.newaxis])
-        unmoved = np.all(np.min(dist, axis=2) <= own, axis=1).reshape(P, -1)
-        return rts.reshape(P, width_d, n), asy, unmoved
+    scan_at = partial(
+        _scan_at, num, den, poles, zeros, excess, scale, centroid, slowest, sign,
+        (negative, zero_tol, far_factor, asymptote_tol), max_step,
+    )
 
     # Coarse scan, then two points between the first asymptotic gain and its
     # predecessor and two after the last unmoved one.
@@ -719,151 +962,23 @@ def trace_locus(
 
     ts = None if not loop.is_discrete else loop.ts
 
-    def boundary(r, rws):
-        """Signed distance-like function, >= 0 outside the stability region."""
-        if not loop.is_discrete:
-            return r.real
-        if delta:
-            # (|1 + ts g|^2 - 1)/ts without the cancellation of forming z.
-            t = ts[rws].reshape((-1,) + (1,) * (r.ndim - 1))
-            return 2.0 * r.real + t * (r.real**2 + r.imag**2)
-        return r.real**2 + r.imag**2 - 1.0
-
-    def outside(r, rws):
-        with np.errstate(invalid="ignore"):
-            return boundary(r, rws) >= 0
-
-    # Only intervals created in the previous round are examined: an interval
-    # that passed once is final.
-    same = rows[1:] == rows[:-1]
-    pend_a = np.flatnonzero(same)
-    pend_b = pend_a + 1
-    settled_a: list[np.ndarray] = []
-    settled_perm: list[np.ndarray] = []
-    hit_cap = False
-    for _ in range(max_rounds):
-        if pend_a.size == 0:
-            break
-        a, b = pend_a, pend_b
-        ra, rb = roots[a], roots[b]
-        allowed = _allowed_step(ra, rb, scale[rows[a]], floor[rows[a]], max_step)
-        # Coincidence is judged on each root's own scale, whatever step_floor:
-        # a coarse step bound must not excuse a swap of distinct slow roots.
-        fine = _allowed_step(ra, rb, scale[rows[a]], slowest[rows[a]], max_step)
-        perm, disp, ambiguous = _match(
-            num[rows[a]], den[rows[a]], sign * mags[a], sign * mags[b], ra, rb, allowed, fine
-        )
-        too_far = np.any(disp > allowed, axis=1)
-        width = mags[b] - mags[a]
-        resolvable = width > 1e-12 * np.maximum(mags[b], 1e-300)
-        split = resolvable & (too_far | ambiguous)
-        counts = np.bincount(rows, minlength=P)
-        split &= counts[rows[a]] < max_samples
-        # Intervals that pass are final, and so is their match.
-        settled_a.append(a[~split])
-        settled_perm.append(perm[~split])
-        # Split into as many pieces as the step excess asks for (geometric in
-        # K), so most intervals settle in one or two rounds; ambiguous
-        # intervals are bisected.
-        excess_step = np.max(np.where(np.isfinite(disp), disp, np.inf) / allowed, axis=1)[split]
-        pieces = np.where(too_far[split], np.clip(np.ceil(1.2 * excess_step), 2, 16), 2).astype(int)
-        a, b = a[split], b[split]
-        if a.size == 0:
-            pend_a = a
-            break
-        lo, hi = mags[a], mags[b]
-        pieces = np.where(lo > 0, pieces, 2)
-        owner = np.repeat(np.arange(a.size), pieces - 1)
-        first = np.r_[0, np.cumsum(pieces - 1)[:-1]]
-        j = np.arange(owner.size) - first[owner] + 1
-        frac = j / pieces[owner]
-        lo_o, hi_o = lo[owner], hi[owner]
-        with np.errstate(divide="ignore"):
-            mid = np.where(lo_o > 0, lo_o * np.exp(frac * np.log(hi_o / np.where(lo_o > 0, lo_o, 1.0))), hi_o / 4.0)
-        new_rows = rows[a][owner]
-        matched_b = np.take_along_axis(roots[b], perm[split], axis=1)
-        with np.errstate(invalid="ignore"):
-            seeds = roots[a][owner] + frac[:, np.newaxis] * (matched_b[owner] - roots[a][owner])
-        new_roots = _roots_from_seeds(num[new_rows], den[new_rows], sign * mid, seeds, scale[new_rows])
-        new_index = rows.size + np.arange(owner.size)
-        rows = np.concatenate([rows, new_rows])
-        mags = np.concatenate([mags, mid])
-        roots = np.concatenate([roots, new_roots])
-        # Chain a -> new_1 -> ... -> new_{q-1} -> b for every split interval.
-        left = np.concatenate([a, new_index])
-        is_last = np.r_[owner[1:] != owner[:-1], True] if owner.size else np.zeros(0, bool)
-        right_of_new = np.where(is_last, b[owner], new_index + 1)
-        right = np.concatenate([new_index[first], right_of_new])
-        pend_a, pend_b = left, right
-    else:
-        hit_cap = pend_a.size > 0
-    if pend_a.size:
-        allowed = _allowed_step(roots[pend_a], roots[pend_b], scale[rows[pend_a]], floor[rows[pend_a]], max_step)
-        settled_a.append(pend_a)
-        settled_perm.append(
-            _match(num[rows[pend_a]], den[rows[pend_a]], sign * mags[pend_a], sign * mags[pend_b],
-                   roots[pend_a], roots[pend_b], allowed)[0]
-        )
-    order = np.lexsort((mags, rows))
-    rows, mags, roots = rows[order], mags[order], roots[order]
+    # --- refinement rounds (only intervals created in the previous round are
+    # examined: an interval that passed once is final) ----------------------
+    rows, mags, roots, settled_a, settled_perm, hit_cap = _refine_samples(
+        num, den, sign, scale, floor, slowest, (max_step, max_rounds, max_samples), rows, mags, roots
+    )
     if hit_cap or np.any(np.bincount(rows, minlength=P) >= max_samples):
         warnings.append("refinement limit reached: some steps may exceed max_step")
 
     # --- branch composition -----------------------------------------------
-    # Every neighbouring pair of samples is exactly one settled interval.
-    same = rows[1:] == rows[:-1]
-    where_now = np.empty_like(order)
-    where_now[order] = np.arange(order.size)
-    perms = np.tile(np.arange(n), (rows.size - 1, 1))
-    if settled_a:
-        perms[where_now[np.concatenate(settled_a)]] = np.concatenate(settled_perm)
-    starts = np.flatnonzero(np.r_[True, ~same])
-    order = _compose(perms, starts)
-    branch_roots = np.take_along_axis(roots, order, axis=1)
+    rows, mags, branch_roots, same = _compose_branches(rows, mags, roots, settled_a, settled_perm)
 
     # --- boundary crossings: regula falsi on the crossing branch, then one
     # sample exactly there -------------------------------------------------
-    side = outside(branch_roots, rows)
-    # A root on the boundary at K = 0 (an integrator, a delay pole at z = 0)
-    # is no crossing: only intervals with a > 0 count.
-    change = (side[1:] != side[:-1]) & same[:, np.newaxis] & (mags[:-1] > 0)[:, np.newaxis]
-    # A root of a biproper loop that passes through infinity (K = -d0/n0)
-    # changes side without crossing the boundary: not a crossing here (nor
-    # anything beyond 1e8 plot scales).
-    far_out = 1e8 * scale[rows][:, np.newaxis]
-    with np.errstate(invalid="ignore"):
-        change &= (np.abs(branch_roots[1:]) < far_out[1:]) & (np.abs(branch_roots[:-1]) < far_out[:-1])
-    cross_idx = np.flatnonzero(np.any(change, axis=1))
-    crossing = np.zeros(0)
-    cross_rows = rows[cross_idx]
-    all_crossing, all_rows = crossing, cross_rows
-    if cross_idx.size:
-        branch = np.argmax(change[cross_idx], axis=1)
-        crossing = _crossing_gains(
-            num[cross_rows], den[cross_rows], sign, mags[cross_idx], mags[cross_idx + 1],
-            branch_roots[cross_idx, branch], branch_roots[cross_idx + 1, branch],
-            lambda r: boundary(r, cross_rows), crossing_rtol,
-        )
-        # A crossing found exactly at an existing sample needs no new sample.
-        all_crossing, all_rows = crossing, cross_rows
-        fresh = (crossing != mags[cross_idx]) & (crossing != mags[cross_idx + 1])
-        cross_idx, cross_rows, crossing = cross_idx[fresh], cross_rows[fresh], crossing[fresh]
-        frac = (crossing - mags[cross_idx]) / (mags[cross_idx + 1] - mags[cross_idx])
-        seeds = branch_roots[cross_idx] + frac[:, np.newaxis] * (branch_roots[cross_idx + 1] - branch_roots[cross_idx])
-        new_roots = _roots_from_seeds(num[cross_rows], den[cross_rows], sign * crossing, seeds, scale[cross_rows])
-        allowed = _allowed_step(seeds, new_roots, scale[cross_rows], floor[cross_rows], max_step)
-        gains_x = sign * crossing
-        perm = _match(num[cross_rows], den[cross_rows], gains_x, gains_x, seeds, new_roots, allowed)[0]
-        new_roots = np.take_along_axis(new_roots, perm, axis=1)
-        rows = np.concatenate([rows, cross_rows])
-        mags = np.concatenate([mags, crossing])
-        branch_roots = np.concatenate([branch_roots, new_roots])
-        order = np.lexsort((mags, rows))
-        rows, mags, branch_roots = rows[order], mags[order], branch_roots[order]
-    signed = sign * all_crossing
-    by_loop = np.lexsort((signed, all_rows))
-    splits = np.cumsum(np.bincount(all_rows, minlength=P))[:-1]
-    crossing_gains = tuple(np.split(signed[by_loop], splits))
+    rows, mags, branch_roots, crossing_gains = _boundary_crossings(
+        num, den, sign, scale, floor, max_step, (loop.is_discrete, delta, ts), crossing_rtol,
+        (rows, mags, branch_roots, same),
+    )
     work_roots = branch_roots
 
     if delta and ts is not None:
@@ -873,11 +988,7 @@ def trace_locus(
             )
 
     # --- pad to (P, G) ------------------------------------------------------
-    counts = np.bincount(rows, minlength=P)
-    width = int(counts.max())
-    start_of = np.r_[0, np.cumsum(counts)[:-1]]
-    position = np.arange(width)[np.newaxis, :]
-    take = start_of[:, np.newaxis] + np.minimum(position, counts[:, np.newaxis] - 1)
+    take, counts = _padded_take(rows, P)
     return LocusBranches(
         gains=sign * mags[take],
         roots=branch_roots[take],

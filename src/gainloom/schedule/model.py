@@ -127,6 +127,14 @@ class FilterSection:
     auto: bool
     node: Any = field(repr=False)
 
+    def as_written(self) -> dict[str, str]:
+        """The section as written: ``kind`` and each key's expression (``frequency: auto`` when automatic)."""
+        text = {"kind": self.kind}
+        if self.auto:
+            text["frequency"] = "auto"
+        text.update({key: expression.source for key, expression in self.values.items()})
+        return text
+
 
 @dataclass(frozen=True)
 class ControllerSection:
