@@ -131,3 +131,22 @@ def test_bad_input_exits_two(tmp_path, schedule, main):
     assert done.returncode == 2 and "bad.yaml:1" in done.stderr
     name = main("design", str(schedule), "--out", str(tmp_path / "o"), "--gains-name", "../x.yaml")
     assert name.returncode == 2
+
+
+def test_the_crossover_column_shows_both_ends_when_the_loop_crosses_0_db_twice():
+    # |L| = 1 at 25 and 7700 rad/s (a loop that dips below 1 and comes back): the column must
+    # not show only the lowest, which max-crossover does not maximise
+    from types import SimpleNamespace
+
+    import numpy as np
+
+    from gainloom.cli.design import summary_rows
+
+    one = np.array([1.0, 1.0])
+    analysis = SimpleNamespace(
+        physical={"kp": one}, damping=one, damping_pole_frequency=one, gain_margin_db=one, phase_margin=one,
+        crossover=np.array([25.0, 400.0]), last_crossover=np.array([7700.0, 401.0]), bandwidth=one, overshoot=one)
+    headers, rows = summary_rows(["a", "b"], analysis, ["pass", "pass"])
+    column = headers.index("wc rad/s")
+    assert rows[0][column] == "25..7700"
+    assert rows[1][column] == 400.0  # within 1 %: one crossover

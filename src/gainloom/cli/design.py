@@ -9,6 +9,7 @@ only parses, shows progress and prints the summary.
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 from pathlib import Path
 
@@ -132,7 +133,10 @@ def summary_rows(labels, analysis, status, binding=None, point_warnings=None):
     """Rows of the per-point summary table.
 
     ``zeta`` and ``wn`` are those of one pole: the least-damped judged pole
-    (``PointAnalysis.damping_pole_s``); ``wc`` is the gain crossover and
+    (``PointAnalysis.damping_pole_s``); ``wc`` is the gain crossover (shown
+    as ``lowest..highest`` when ``|L|`` crosses 1 more than once and they
+    differ by more than 1 %: ``min_crossover`` is judged on the lowest,
+    ``max_crossover`` and the max-crossover objective on the highest) and
     ``wb`` the closed-loop bandwidth; ``!n`` after the status marks a point
     with n warnings (printed below the table).
     """
@@ -147,7 +151,7 @@ def summary_rows(labels, analysis, status, binding=None, point_warnings=None):
             float(analysis.damping_pole_frequency[p]),
             float(analysis.gain_margin_db[p]),
             float(analysis.phase_margin[p]),
-            float(analysis.crossover[p]),
+            _crossover_cell(float(analysis.crossover[p]), float(analysis.last_crossover[p])),
             float(analysis.bandwidth[p]),
             float(analysis.overshoot[p]),
         ]
@@ -156,6 +160,13 @@ def summary_rows(labels, analysis, status, binding=None, point_warnings=None):
     headers = ["point", "status"] + names + [
         "zeta", "wn rad/s", "GM dB", "PM deg", "wc rad/s", "wb rad/s", "OS %", "binding"]
     return headers, rows
+
+
+def _crossover_cell(lowest: float, highest: float) -> float | str:
+    """One crossover, or ``lowest..highest`` when the loop crosses 0 dB at clearly different frequencies."""
+    if math.isfinite(lowest) and math.isfinite(highest) and highest > 1.01 * lowest:
+        return f"{format_number(lowest, 4)}..{format_number(highest, 4)}"
+    return lowest
 
 
 def point_summaries(labels, analysis, status, point_warnings=None) -> list[dict]:
@@ -172,6 +183,7 @@ def point_summaries(labels, analysis, status, point_warnings=None) -> list[dict]
             "gain_margin_db": float(analysis.gain_margin_db[p]),
             "phase_margin_deg": float(analysis.phase_margin[p]),
             "crossover_rad_s": float(analysis.crossover[p]),
+            "last_crossover_rad_s": float(analysis.last_crossover[p]),
             "bandwidth_rad_s": float(analysis.bandwidth[p]),
             "warnings": list(point_warnings[p]) if point_warnings else [],
         })
