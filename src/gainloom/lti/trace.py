@@ -39,7 +39,7 @@ Discrete loops with a delta-operator form are traced in ``g = (z - 1)/ts``
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property, partial
 
@@ -800,6 +800,44 @@ def _boundary_crossings(
     return rows, mags, branch_roots, crossing_gains
 
 
+def _two_pass_scan(
+    scan_at: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
+    k_lo: np.ndarray,
+    own_count: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Scan every loop's gains in decades from ``k_lo`` (``(P,)``), ``own_count`` (``(P,)``) of them, then refine.
+
+    ``scan_at`` is :func:`_scan_at` with the loop's data bound.  Returns the scanned gains ``(P, W)``
+    ascending, their roots ``(P, W, n)``, asymptotic and "not yet moved" flags ``(P, W)``, and whether
+    each loop reached the asymptotic regime within the scan ``(P,)``.
+    """
+    P = k_lo.size
+    count = int(own_count.max())
+    valid = np.arange(count) < own_count[:, np.newaxis]
+    # Coarse scan, then two points between the first asymptotic gain and its
+    # predecessor and two after the last unmoved one.
+    g1 = k_lo[:, np.newaxis] * 10.0 ** (3.0 * np.arange(count))
+    r1, a1, s1 = scan_at(g1)
+    a1 &= valid
+    s1 &= valid
+    reached_scan = a1.any(axis=1)
+    a1[np.arange(P), own_count - 1] |= ~reached_scan  # not reached: stop at the end
+    top1 = np.argmax(a1, axis=1)
+    still1 = s1 & (np.arange(count) < top1[:, np.newaxis])
+    low1 = np.where(still1.any(axis=1), count - 1 - np.argmax(still1[:, ::-1], axis=1), 0)
+    top_g = g1[np.arange(P), top1]
+    low_g = g1[np.arange(P), low1]
+    g2 = np.stack([top_g / 100.0, top_g / 10.0, low_g * 10.0, low_g * 100.0], axis=1)
+    r2, a2, s2 = scan_at(g2)
+    scan = np.concatenate([g1, g2], axis=1)
+    by_gain = np.argsort(scan, axis=1, kind="stable")
+    scan = np.take_along_axis(scan, by_gain, axis=1)
+    scan_roots_pd = np.take_along_axis(np.concatenate([r1, r2], axis=1), by_gain[:, :, np.newaxis], axis=1)
+    asym = np.take_along_axis(np.concatenate([a1, a2], axis=1), by_gain, axis=1)
+    still_all = np.take_along_axis(np.concatenate([s1, s2], axis=1), by_gain, axis=1)
+    return scan, scan_roots_pd, asym, still_all, np.asarray(reached_scan | a2.any(axis=1))
+
+
 def trace_locus(
     loop: Loop,
     k_max: object = None,
@@ -879,47 +917,19 @@ def trace_locus(
     floor = np.maximum(slowest, step_floor * scale)
 
     # --- gain range from a scan (two batched calls) -----------------------
-    # Gain scales of the loop: the gain at which the root leaving pole p
-    # has moved by |p| (first order: K |N(p)/D'(p)| = |p|), and the gain at
-    # which |K N| and |D| are alike at the plot scale (the asymptotic side).
-    # The scan spans 1e-4 of the smallest to 1e4 of the largest.
     k_lo, own_count = _scan_range(num, den, poles, lead_n, excess, scale)
-    count = int(own_count.max())
-    valid = np.arange(count) < own_count[:, np.newaxis]
-
     scan_at = partial(
         _scan_at, num, den, poles, zeros, excess, scale, centroid, slowest, sign,
         (negative, zero_tol, far_factor, asymptote_tol), max_step,
     )
 
-    # Coarse scan, then two points between the first asymptotic gain and its
-    # predecessor and two after the last unmoved one.
-    g1 = k_lo[:, np.newaxis] * 10.0 ** (3.0 * np.arange(count))
-    r1, a1, s1 = scan_at(g1)
-    a1 &= valid
-    s1 &= valid
-    reached_scan = a1.any(axis=1)
-    a1[np.arange(P), own_count - 1] |= ~reached_scan  # not reached: stop at the end
-    top1 = np.argmax(a1, axis=1)
-    still1 = s1 & (np.arange(count) < top1[:, np.newaxis])
-    low1 = np.where(still1.any(axis=1), count - 1 - np.argmax(still1[:, ::-1], axis=1), 0)
-    top_g = g1[np.arange(P), top1]
-    low_g = g1[np.arange(P), low1]
-    g2 = np.stack([top_g / 100.0, top_g / 10.0, low_g * 10.0, low_g * 100.0], axis=1)
-    r2, a2, s2 = scan_at(g2)
-    scan = np.concatenate([g1, g2], axis=1)
-    by_gain = np.argsort(scan, axis=1, kind="stable")
-    scan = np.take_along_axis(scan, by_gain, axis=1)
-    scan_roots_pd = np.take_along_axis(np.concatenate([r1, r2], axis=1), by_gain[:, :, np.newaxis], axis=1)
-    asym = np.take_along_axis(np.concatenate([a1, a2], axis=1), by_gain, axis=1)
-    still_all = np.take_along_axis(np.concatenate([s1, s2], axis=1), by_gain, axis=1)
+    scan, scan_roots_pd, asym, still_all, reached = _two_pass_scan(scan_at, k_lo, own_count)
     width_scan = scan.shape[1]
     flat_rows = np.repeat(np.arange(P), width_scan)
     scan_roots = scan_roots_pd.reshape(-1, n)
     if k_max is None:
         top = np.argmax(asym, axis=1)
         k_top = scan[np.arange(P), top]
-        reached = reached_scan | a2.any(axis=1)
         if not np.all(reached):
             warnings.append(
                 f"asymptotic regime not reached at {int(np.sum(~reached))} point(s) within the gain scan; "
