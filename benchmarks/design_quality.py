@@ -200,7 +200,7 @@ def run_loop(name: str, structure: str, folder: Path, quick: bool, grid: int | N
     """Tool and reference on one loop (``grid``: reference frequency points, default by ``quick``)."""
     sched = loop_schedule(name, structure, folder, quick)
     start = time.perf_counter()
-    result = gainloom.design(sched)
+    result = gainloom.design_table(sched)
     tool_seconds = time.perf_counter() - start
     points = np.asarray(result.points, float)
     shape = tuple(len(a.values) for a in result.table.axes)
@@ -290,7 +290,7 @@ def run_rule(name: str, rule: str, folder: Path, quick: bool) -> RuleResult:
     grid = QUICK_GRID if quick else ref.GRID_POINTS
     ref_wc = np.array([ref.best_design(plant, "pi", pm[p], gm[p], grid).crossover for p, plant in enumerate(plants)])
     tool_sched = loop_schedule(name, "pi", folder, quick, _override_specs(sched, points, pm, gm))
-    result = gainloom.design(tool_sched)
+    result = gainloom.design_table(tool_sched)
     tool_coefs = {k: np.asarray(v, float).ravel() for k, v in result.table.coefficients.items()}
     tool_wc = np.zeros(points.shape[0])
     for p, plant in enumerate(plants):

@@ -99,7 +99,7 @@ def main(argv: list[str] | None = None) -> int:
     with tempfile.TemporaryDirectory() as tmp:
         schedule = Path(tmp) / "scale.yaml"
         schedule.write_text(SCHEDULE.format(points=points, draws=draws), encoding="utf-8")
-        table = gainloom.design(schedule).table
+        table = gainloom.design_table(schedule).table
         loops = points * draws
         print(f"tolerance study: {points} points x {draws} draws = {loops:.3g} loop analyses "
               "(specs: stable, min_damping, natural_frequency, max_pole_radius; normal spread of L and R)")

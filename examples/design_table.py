@@ -20,7 +20,7 @@ schedule_path = Path(sys.argv[1]) if len(sys.argv) > 1 else ROOT / "schedules" /
 out_dir = Path(sys.argv[2]) if len(sys.argv) > 2 else Path(tempfile.mkdtemp(prefix="gainloom-"))
 
 schedule = gainloom.load_schedule(schedule_path)
-result = gainloom.design(schedule)
+result = gainloom.design_table(schedule)
 analysis = result.analysis
 names = result.table.coefficient_names
 print(f"{schedule.name}: {analysis.points} points, {result.table.structure} by {schedule.controller.strategy}")

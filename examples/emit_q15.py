@@ -21,7 +21,7 @@ HERE = Path(__file__).resolve().parent
 out_dir = Path(sys.argv[1]) if len(sys.argv) > 1 else Path(tempfile.mkdtemp(prefix="gainloom-c-"))
 
 schedule = gainloom.load_schedule(HERE / "hand_tuned_current_loop.yaml")
-result = gainloom.design(schedule)
+result = gainloom.design_table(schedule)
 print(f"design: {'PASS' if result.passed else 'FAIL'} at {result.analysis.points} points")
 # The header carries the verdict: design and the re-check of the Q15-rounded
 # table; a table that fails does not compile without FAN_CUR_ACCEPT_UNVERIFIED.

@@ -20,7 +20,7 @@ EXPECTED_PUBLIC_NAMES = {
     "emit_c",
     "check_generated_c",
     "HarnessResult",
-    "design",
+    "design_table",
     "verify",
     "DesignResult",
     "VerifyResult",

@@ -58,7 +58,7 @@ def designs(tmp_path_factory) -> dict:
     folder = tmp_path_factory.mktemp("demo-gains")
     for name in DEMOS:
         schedule = gainloom.load_schedule(SCHEDULES / f"{name}.yaml")
-        result = gainloom.design(schedule)
+        result = gainloom.design_table(schedule)
         path = folder / f"{name}.json"
         gainloom.write_gains(result, path)
         # plain json, not gainloom's reader: the coefficients as the file holds them
@@ -368,7 +368,7 @@ def test_step_retry_that_finds_a_gain_does_not_crash(tmp_path):
     # step retry samples on the same zero pass every spec: taking one crashes.
     path = tmp_path / "retry.yaml"
     path.write_text(RETRY_CRASH)
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert all(s == "pass" for s in result.status)
     assert all(any("step response" in n for n in notes) for notes in result.notes)
 
@@ -427,7 +427,7 @@ def test_light_load_has_a_design_with_damping_above_0_4(tmp_path):
     # Witness for the test below: designed with the bound relaxed to 0.3, the
     # table meets every spec of the 0.4 file at every point -- judged on the
     # python-control path against the 0.4 file's specs.
-    relaxed = gainloom.design(_light_load(tmp_path, 0.3))
+    relaxed = gainloom.design_table(_light_load(tmp_path, 0.3))
     strict = _light_load(tmp_path, 0.4)
     models = strict.evaluate(relaxed.points)
     specs = strict.spec_values(relaxed.points)
@@ -440,5 +440,5 @@ def test_light_load_has_a_design_with_damping_above_0_4(tmp_path):
 
 
 def test_light_load_design_finds_the_feasible_gain(tmp_path):
-    result = gainloom.design(_light_load(tmp_path, 0.4))
+    result = gainloom.design_table(_light_load(tmp_path, 0.4))
     assert all(s == "pass" for s in result.status), result.notes

@@ -6,10 +6,10 @@ package layout and may move.
 
 from __future__ import annotations
 
-from . import design  # the package is callable: gainloom.design(schedule)
 from .codegen import HarnessResult, check_generated_c, emit_c
 from .codegen.quantisation import QuantisationResult, check_quantisation
 from .design.cascade import CascadeDesign, design_cascade
+from .design.engine import design as design_table
 from .design.engine import verify
 from .design.gainsfile import read_gains, write_gains
 from .design.results import DesignResult, VerifyResult
@@ -48,7 +48,7 @@ __all__ = [
     "emit_c",
     "check_generated_c",
     "HarnessResult",
-    "design",
+    "design_table",
     "verify",
     "DesignResult",
     "VerifyResult",

@@ -247,7 +247,7 @@ def test_boost_loop_passes_between_its_loads_by_an_independent_recheck(tmp_path)
     from gainloom.design.between_backoff import LOWEST_FACTOR
 
     sched = bench.loop_schedule("boost_voltage", "pi", tmp_path, quick=False)
-    result = gainloom.design(sched)
+    result = gainloom.design_table(sched)
     assert result.passed and not result.table_report.between
     loads = np.asarray(result.table.axes[0].values, float)
     kp, ki_ts = (np.asarray(result.table.coefficients[k], float) for k in ("kp", "ki_ts"))

@@ -72,7 +72,7 @@ def _write(tmp_path, name: str, extra: str = "") -> str:
 def designed(tmp_path_factory):
     folder = tmp_path_factory.mktemp("quant")
     path = _write(folder, "demo.yaml")
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.passed, result.as_document()["points"]
     return path, result
 
@@ -180,7 +180,7 @@ def test_q15_rounding_of_the_shipped_spindle_demo_breaks_no_spec():
     from pathlib import Path
 
     path = Path(__file__).resolve().parents[2] / "schedules" / "spindle_speed.yaml"
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     quant = check_quantisation(path, result.table, "q15")
     # Whatever the design's own verdict, rounding to Q15 must not turn a
     # passing spec into a failing one anywhere (grid, between, tolerances).

@@ -54,7 +54,7 @@ def test_infeasible_point_has_no_gain_meeting_the_binding_spec(tmp_path):
     # the breakaway region (root-locus fact), so decay binds.
     path = tmp_path / "s.yaml"
     path.write_text(THIRD_ORDER.format(settle=0.5))
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("fail", "fail")
     assert result.binding[0] == "min_decay"
     note = result.notes[0][-1]
@@ -82,7 +82,7 @@ def test_infeasible_point_has_no_gain_meeting_the_binding_spec(tmp_path):
 def test_feasible_version_of_the_same_loop_passes(tmp_path):
     path = tmp_path / "s.yaml"
     path.write_text(THIRD_ORDER.format(settle=8.0))
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("pass", "pass")
     K = result.analysis.coefficients["kp"][0]
     poles = control.feedback(fine_grid_loop(K), 1).poles()
@@ -128,7 +128,7 @@ def test_between_points_catch_a_coarse_grid_and_refinement_fixes_it(tmp_path):
     # there, so damping fails between the points although both ends pass.
     path = tmp_path / "c.yaml"
     path.write_text(COARSE.format(refine=""))
-    coarse = gainloom.design(path)
+    coarse = gainloom.design_table(path)
     assert coarse.points_passed
     assert coarse.table_report.between, "the coarse grid must fail between its points"
     assert all("min_damping" in e["failed"] for e in coarse.table_report.between)
@@ -142,7 +142,7 @@ def test_between_points_catch_a_coarse_grid_and_refinement_fixes_it(tmp_path):
     s = np.log(poles.astype(complex)) / 0.001
     assert np.min(-s.real / np.abs(s)) < 0.7
     path.write_text(COARSE.format(refine="  refine: {max_inserted: 40}"))
-    refined = gainloom.design(path)
+    refined = gainloom.design_table(path)
     assert refined.table_report.inserted
     assert not refined.table_report.between
     assert refined.passed and refined.exit_code == 0
@@ -196,7 +196,7 @@ def test_tolerance_corners_are_checked_and_the_worst_reported(tmp_path):
     path = tmp_path / "t.yaml"
     text = COARSE.format(refine="  refine: {max_inserted: 40}") + "tolerances:\n  parameters: {k: 0.5}\n  samples: corners\n"
     path.write_text(text)
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     report = result.table_report
     assert report.tolerance_corners == 2
     # k raised by 50 % with the nominal kp lowers the damping: the +50 % corner is the worst
@@ -239,7 +239,7 @@ codegen:
 def test_step_limit_moves_gains_and_reports_the_cost(tmp_path):
     path = tmp_path / "s.yaml"
     path.write_text(SMOOTH)
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     report = result.table_report
     assert report.smoothing and "forced a worse design" in report.smoothing[0]
     kp = result.table.coefficients["kp"]
@@ -249,7 +249,7 @@ def test_step_limit_moves_gains_and_reports_the_cost(tmp_path):
         assert step <= 0.3 + 1e-12 or (i,) in reported
     assert result.points_passed  # lowering K of this loop keeps damping
     # without the limit the designed kp rises faster than 30 % per step
-    free = gainloom.design(_write(tmp_path, SMOOTH.replace("  max_relative_step: 0.3\n", "")))
+    free = gainloom.design_table(_write(tmp_path, SMOOTH.replace("  max_relative_step: 0.3\n", "")))
     assert np.max(relative_steps(free.table.coefficients["kp"], 0)) > 0.3
 
 
@@ -262,7 +262,7 @@ def _write(tmp_path, text):
 def test_verify_accepts_a_gain_table_object(tmp_path):
     path = tmp_path / "s.yaml"
     path.write_text(SMOOTH)
-    designed = gainloom.design(path)
+    designed = gainloom.design_table(path)
     check = gainloom.verify(path, designed.table)
     assert check.status == designed.status
     np.testing.assert_allclose(check.analysis.damping, designed.analysis.damping, rtol=1e-12)
@@ -272,7 +272,7 @@ def test_monotone_direction_is_enforced_by_moving_gains(tmp_path):
     # The plant gain falls along x, so the designed kp rises; asking for kp
     # decreasing makes the design lower later gains (slower but still damped).
     text = SMOOTH.replace("  max_relative_step: 0.3\n", "  monotone: {kp: decreasing}\n")
-    result = gainloom.design(_write(tmp_path, text))
+    result = gainloom.design_table(_write(tmp_path, text))
     kp = result.table.coefficients["kp"]
     assert np.all(np.diff(kp) <= 1e-12)  # non-increasing, checked directly
     assert not result.table_report.monotone

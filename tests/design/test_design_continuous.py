@@ -43,7 +43,7 @@ def test_continuous_pi_gains_and_the_loss_on_the_sampled_loop(tmp_path):
     ts = 0.01  # slow sampling (wn ts = 0.4) plus one sample of delay: the trap
     path = tmp_path / "c.yaml"
     path.write_text(SCHEDULE.format(ts=ts))
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     report = result.continuous
     assert report["done"]
     for entry in report["points"]:
@@ -75,7 +75,7 @@ def test_sampling_rate_warning(tmp_path):
     # (the 10x rule is common practice, no source)
     path = tmp_path / "w.yaml"
     path.write_text(SCHEDULE.format(ts=0.02).replace("  compare_continuous: true\n", ""))
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert any("target natural_frequency = 40 rad/s exceeds 0.1 x the sampling rate" in w for w in result.warnings)
     path.write_text(SCHEDULE.format(ts=0.001).replace("  compare_continuous: true\n", ""))
-    assert not any("sampling rate" in w for w in gainloom.design(path).warnings)
+    assert not any("sampling rate" in w for w in gainloom.design_table(path).warnings)

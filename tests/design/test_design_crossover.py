@@ -99,7 +99,7 @@ def brute_force_crossover(L, R, ts, pm, gm, delay=1, table=False):
 def design(tmp_path, objective="max-crossover", extra="", pm=45, gm=6, more="", count=3):
     path = tmp_path / "s.yaml"
     path.write_text(RL.format(objective=objective, extra=extra, pm=pm, gm=gm, more=more, count=count))
-    return gainloom.design(path)
+    return gainloom.design_table(path)
 
 
 def test_max_crossover_pi_meets_margins_and_reaches_the_brute_force_crossover(tmp_path):
@@ -190,7 +190,7 @@ def poly_margins(loop):
 def test_near_integrating_speed_loop_is_feasible(tmp_path):
     path = tmp_path / "s.yaml"
     path.write_text(SPINDLE.format(tolerances=""))
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("pass",) * 3, result.notes
     for p, point in enumerate(result.points):
         c = {k: float(v[p]) for k, v in result.analysis.coefficients.items()}
@@ -202,7 +202,7 @@ def test_near_integrating_speed_loop_is_feasible(tmp_path):
 def test_worst_case_design_passes_at_every_corner(tmp_path):
     path = tmp_path / "s.yaml"
     path.write_text(SPINDLE.format(tolerances="tolerances:\n  parameters: {J: 0.3, Kt: [-0.1, 0.05]}\n  design: worst-case"))
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("pass",) * 3, result.notes
     assert not result.table_report.tolerances, result.table_report.tolerances
     for p, point in enumerate(result.points):
@@ -299,7 +299,7 @@ def test_identical_normalised_problems_get_the_same_design(tmp_path):
     # in proportion (ZOH of 1/(L s + R) scales with 1/R exactly; closed form, from memory)
     path = tmp_path / "s.yaml"
     path.write_text(SCALED)
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("pass",) * 3
     kp = np.asarray(result.analysis.coefficients["kp"])
     ki_ts = np.asarray(result.analysis.coefficients["ki_ts"])
@@ -330,7 +330,7 @@ def test_worst_case_needs_a_crossover_objective(tmp_path):
                      more="tolerances:\n  parameters: {R: 0.2}\n  design: worst-case")
     path.write_text(text)
     with pytest.raises(gainloom.errors.DesignError, match="worst-case needs objective max-crossover"):
-        gainloom.design(path)
+        gainloom.design_table(path)
 
 
 def test_step_specs_fall_back_over_the_whole_space(tmp_path):
@@ -338,7 +338,7 @@ def test_step_specs_fall_back_over_the_whole_space(tmp_path):
     # so the design takes the best-ranked (shape, gain) whose step response passes
     path = tmp_path / "s.yaml"
     path.write_text(SPINDLE.format(tolerances="").replace("  min_gain_margin: 8", "  min_gain_margin: 8\n  max_overshoot: 8"))
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("pass",) * 3, result.notes
     assert all("missed overshoot/settling" in " ".join(n) for n in result.notes), result.notes
     for p, point in enumerate(result.points):
@@ -355,7 +355,7 @@ def test_lead_keeps_low_frequency_gain(tmp_path):
     path = tmp_path / "s.yaml"
     path.write_text(RL.format(objective="max-crossover", extra="", pm=45, gm=6, more="", count=2)
                     .replace("structure: pi", "structure: lead"))
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("pass", "pass"), result.notes
     for p, point in enumerate(result.points):
         c = {k: float(v[p]) for k, v in result.analysis.coefficients.items()}
@@ -375,7 +375,7 @@ def test_worst_case_step_specs_hold_at_every_corner(tmp_path):
     tolerances = "tolerances:\n  parameters: {J: 0.3, Kt: [-0.1, 0.05]}\n  design: worst-case"
     path = tmp_path / "s.yaml"
     path.write_text(SPINDLE.format(tolerances=tolerances).replace("  min_gain_margin: 8", "  min_gain_margin: 8\n  max_overshoot: 15"))
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("pass",) * 3, result.notes
     assert not result.table_report.tolerances, result.table_report.tolerances
     worst = 0.0

@@ -44,7 +44,7 @@ specs:
 def _design(tmp_path, extra: str):
     path = tmp_path / "loop.yaml"
     path.write_text(SCHEDULE.format(extra=extra), encoding="utf-8")
-    return gainloom.design(path)
+    return gainloom.design_table(path)
 
 
 def _reference_loop(result, p: int):

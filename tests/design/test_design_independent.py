@@ -67,7 +67,7 @@ def reference_loop(K, tau, ts, structure, c):
 def design_case(tmp_path, structure, strategy, extra, overshoot):
     path = tmp_path / "s.yaml"
     path.write_text(SCHEDULE.format(structure=structure, strategy=strategy, extra=extra, overshoot=overshoot))
-    return gainloom.design(path)
+    return gainloom.design_table(path)
 
 
 CASES = [

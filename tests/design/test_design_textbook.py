@@ -94,7 +94,7 @@ def dominant(poles, ts):
 def test_lead_on_sampled_servo_lands_on_target(tmp_path):
     path = tmp_path / "lead.yaml"
     path.write_text(LEAD)
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     c = {k: float(v[0]) for k, v in result.analysis.coefficients.items()}
     # the textbook sampled plant (from memory: 0.3679 z + 0.2642 over (z-1)(z-0.3679))
     plant = control.c2d(control.tf([1.0], [1.0, 1.0, 0.0]), 1.0, method="zoh")
@@ -121,7 +121,7 @@ def test_lead_on_sampled_servo_lands_on_target(tmp_path):
 def test_pi_pole_placement_matches_coefficient_matching(tmp_path):
     path = tmp_path / "pi.yaml"
     path.write_text(PI)
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     ts = 0.01
     s_t = complex(-0.7 * 30.0, 30.0 * math.sqrt(1 - 0.49))
     z_t = cmath.exp(s_t * ts)

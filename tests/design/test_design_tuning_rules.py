@@ -75,7 +75,7 @@ T_SIGMA = T2 + 1.5 * TS  # small lag + computation delay + half a sample for the
 
 def test_modulus_optimum_coefficients_are_the_closed_form(tmp_path):
     path = _schedule(tmp_path, "modulus-optimum", [K], [T1 * T2, T1 + T2, 1], TS, 1)
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     kp = T1 / (2 * K * T_SIGMA)  # closed form, from memory
     np.testing.assert_allclose(result.table.coefficients["kp"], kp, rtol=1e-12)
     np.testing.assert_allclose(result.table.coefficients["ki_ts"], kp * TS / T1, rtol=1e-12)  # Ti = T1
@@ -93,7 +93,7 @@ def test_modulus_optimum_textbook_values_continuous_and_sampled(tmp_path):
     # sampled: the designed PI on the true sampled loop stays close to the continuous rule
     # (T1/Tσ = 36; the equivalence of hold + delay to a lag is an approximation)
     path = _schedule(tmp_path, "modulus-optimum", [K], [T1 * T2, T1 + T2, 1], TS, 1)
-    sampled = _sampled_loop(path, gainloom.design(path))
+    sampled = _sampled_loop(path, gainloom.design_table(path))
     _gm, pm_s, wgc_s = _margins(sampled)
     assert pm_s == pytest.approx(65.5, abs=3.0)
     assert wgc_s == pytest.approx(0.455 / T_SIGMA, rel=0.05)
@@ -104,7 +104,7 @@ def test_modulus_optimum_on_dead_time_plant_counts_the_dead_time(tmp_path):
     # R-L plant with a half-sample PWM delay: Tσ = 0.5 ts (dead time) + 1 ts (delay) + 0.5 ts (hold)
     L, R = 2e-3, 0.35
     path = _schedule(tmp_path, "modulus-optimum", [1], [L, R], 62.5e-6, 1, dead_time="0.5 * ts")
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     t_sigma = 2 * 62.5e-6
     np.testing.assert_allclose(result.table.coefficients["kp"], (L / R) / (2 * (1 / R) * t_sigma), rtol=1e-12)
     _gm, pm, _wgc = _margins(_sampled_loop(path, result))
@@ -120,7 +120,7 @@ KT, J, TAU, TS_SPEED = 0.12, 4e-4, 4e-4, 1.25e-4
 def test_symmetric_optimum_coefficients_and_textbook_values(tmp_path):
     # near-integrating speed loop Kt/(J s (tau s + 1)), one sample of delay
     path = _schedule(tmp_path, "symmetric-optimum", [KT], [J * TAU, J, 0], TS_SPEED, 1)
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     t_sigma = TAU + 1.5 * TS_SPEED
     kp = J / (2 * KT * t_sigma)  # 1/(a K_I Tσ), a = 2, K_I = Kt/J; from memory
     np.testing.assert_allclose(result.table.coefficients["kp"], kp, rtol=1e-12)
@@ -141,7 +141,7 @@ def test_symmetric_optimum_coefficients_and_textbook_values(tmp_path):
 def test_symmetric_optimum_takes_the_slow_friction_pole_as_an_integrator(tmp_path):
     B = 2e-5
     path = _schedule(tmp_path, "symmetric-optimum", [KT], [J * TAU, J + B * TAU, B], TS_SPEED, 1)
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     t_sigma = TAU + 1.5 * TS_SPEED
     # K_I = lim (s + B/J) G(s) at s = 0 = Kt/J (the current-loop lag has unit DC gain)
     np.testing.assert_allclose(result.table.coefficients["kp"], J / (2 * KT * t_sigma), rtol=1e-9)
@@ -150,7 +150,7 @@ def test_symmetric_optimum_takes_the_slow_friction_pole_as_an_integrator(tmp_pat
 def test_rule_gain_that_misses_a_spec_is_moved_with_a_note_naming_the_rule(tmp_path):
     path = _schedule(tmp_path, "modulus-optimum", [K], [T1 * T2, T1 + T2, 1], TS, 1,
                      specs="specs:\n  min_gain_margin: 20\n")
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     notes = " ".join(result.notes[0])
     assert "modulus-optimum gain" in notes and "misses a spec" in notes
     assert result.status[0] == "pass"
@@ -161,15 +161,15 @@ def test_rules_refuse_plants_they_do_not_describe(tmp_path):
     # a finite zero
     path = _schedule(tmp_path, "modulus-optimum", [1, 1], [1, 3, 2], TS, 1)
     with pytest.raises(DesignError, match="finite zeros"):
-        gainloom.design(path)
+        gainloom.design_table(path)
     # an integrating plant needs the symmetric optimum
     path = _schedule(tmp_path, "modulus-optimum", [KT], [J * TAU, J, 0], TS_SPEED, 1)
     with pytest.raises(DesignError, match="use symmetric-optimum"):
-        gainloom.design(path)
+        gainloom.design_table(path)
     # complex poles
     path = _schedule(tmp_path, "symmetric-optimum", [1], [1, 0.2, 100], TS, 1)
     with pytest.raises(DesignError, match="poles are"):
-        gainloom.design(path)
+        gainloom.design_table(path)
 
 
 def test_rules_need_structure_pi(tmp_path):

@@ -65,7 +65,7 @@ def _number(pattern: str, text: str) -> float:
 def test_dominant_pair_fallback_names_the_spec_and_the_target_miss(tmp_path):
     path = _write(tmp_path, "  strategy: dominant-pair\n  target: {damping: 0.7, natural_frequency: 1500}",
                   "  min_gain_margin: 16\n  min_phase_margin: 45\n  max_overshoot: 40")
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("pass", "pass")
     for p, texts in enumerate(result.point_warnings):
         own = next(t for t in texts if "magnitude-condition gain" in t)
@@ -180,7 +180,7 @@ def test_step_retry_warning_quotes_the_overshoot_of_the_objectives_gain(tmp_path
     # Invented speed loop whose target pair's gain overshoots more than 10 %.
     path = tmp_path / "retry.yaml"
     path.write_text(STEP_RETRY)
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("pass", "pass")
     plant = control.c2d(control.tf([0.35], [2.5e-3 * 5.0e-4, 2.5e-3 + 2.0e-4 * 5.0e-4, 2.0e-4]), TS) * control.tf(
         [1], [1, 0], TS)
@@ -205,7 +205,7 @@ def test_unreachable_crossover_is_diagnosed_with_its_best_value(tmp_path):
     # largest one any stable gain reaches is 2 asin(1/2) / ts = π / (3 ts) (closed form,
     # derived here).  Before, the note said every spec was reachable alone.
     path = _write(tmp_path, "  strategy: pole-cancel", "  min_phase_margin: 10\n  min_crossover: 20000")
-    result = gainloom.design(path)
+    result = gainloom.design_table(path)
     assert result.status == ("fail", "fail")
     for notes, binding in zip(result.notes, result.binding):
         assert binding == "min_crossover"

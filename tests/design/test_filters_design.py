@@ -21,7 +21,7 @@ SCHEDULES = Path(__file__).resolve().parents[2] / "schedules"
 @pytest.fixture(scope="module")
 def two_mass():
     schedule = load_schedule(SCHEDULES / "two_mass_speed.yaml")
-    return schedule, gainloom.design(schedule)
+    return schedule, gainloom.design_table(schedule)
 
 
 def _reference_loop(load: float, kp: float, ki_ts: float) -> control.TransferFunction:
@@ -104,7 +104,7 @@ def _without_filters(schedule):
 def test_without_the_notch_the_crossover_is_far_lower(two_mass):
     # the point of the notch: the same specs reach a much higher crossover with it
     schedule, result = two_mass
-    bare = gainloom.design(_without_filters(schedule))
+    bare = gainloom.design_table(_without_filters(schedule))
     assert bare.passed
     # each design may insert its own breakpoints; compare on the loads both have
     without = dict(zip(bare.points[:, 0], bare.analysis.crossover))
@@ -145,7 +145,7 @@ def test_auto_notch_sits_on_the_resonance_and_says_where(two_mass):
     np.testing.assert_allclose(values.values[0]["frequency"], wr, rtol=1e-9)
     np.testing.assert_allclose(values.resonance[0][1], c * (1 + load) / (2 * wr * jm * load), rtol=1e-6)
     np.testing.assert_allclose(values.values[0]["width"], 0.4 * wr, rtol=1e-9)
-    result = gainloom.design(auto)
+    result = gainloom.design_table(auto)
     # the demo's written notch is the same section (centre wr, 20 dB, 0.4 wr): the same design
     assert result.passed
     for name, table in written.table.coefficients.items():
@@ -164,7 +164,7 @@ def test_the_least_damped_pole_is_named_as_the_resonance(two_mass):
     # (nominal plant only: a design that cannot pass is diagnosed at every corner otherwise, slowly)
     strict = replace(_without_filters(schedule), specs=replace(schedule.specs, min_damping=0.3),
                      tolerances=Tolerances(), table_checks=TableChecks())
-    failed = gainloom.design(strict)
+    failed = gainloom.design_table(strict)
     assert not failed.passed
     p = failed.status.index("fail")
     assert failed.binding[p] == "min_damping"

@@ -31,7 +31,7 @@ def demo():
 
 @pytest.fixture(scope="module")
 def demo_design(demo):
-    return gainloom.design(demo)
+    return gainloom.design_table(demo)
 
 
 def test_committed_data_are_what_the_script_writes(tmp_path):
@@ -133,7 +133,7 @@ def test_a_point_that_passes_on_the_model_but_fails_on_the_data_fails(tmp_path):
     # follow: on the model the design passes, on the data the peak lifts |L| near
     # the phase crossover.
     schedule = _resonant_demo(tmp_path, 0.05, 0.3)
-    result = gainloom.design(schedule)
+    result = gainloom.design_table(schedule)
     assert not result.passed
     assert result.status == ("pass", "fail", "pass", "pass")
     assert result.binding[1] == "measured_data"

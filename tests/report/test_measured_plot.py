@@ -42,7 +42,7 @@ def test_plot_is_deterministic_png(demo):
 
 
 def test_the_log_of_a_measured_design_has_the_plot(demo):
-    result = gainloom.design(demo)
+    result = gainloom.design_table(demo)
     files = render_verification(schedule=demo, result=result, table=result.table)
     assert MEASURED_PLOT in files
     assert files[MEASURED_PLOT][:8] == b"\x89PNG\r\n\x1a\n"
@@ -53,7 +53,7 @@ def test_the_log_carries_the_data_verdict_and_fits_its_schema(demo):
 
     from gainloom.report.schema import validate
 
-    result = gainloom.design(demo)
+    result = gainloom.design_table(demo)
     files = render_verification(schedule=demo, result=result, table=result.table, plots=False)
     document = json.loads(files["verification.json"])
     assert validate(document) == []

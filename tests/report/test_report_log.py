@@ -83,7 +83,7 @@ def _run(folder: Path, out: str, *, full: bool = True, damping: float = 0.6, ban
     """Design, write the gains file, re-check rounding and write the log."""
     path = _schedule(folder, damping, band)
     schedule = gainloom.load_schedule(path)
-    result = gainloom.design(schedule)
+    result = gainloom.design_table(schedule)
     gains = folder / "gains.yaml"
     gainloom.write_gains(result, gains)
     quant = check_quantisation(schedule, result.table, "q15") if full else None

@@ -58,7 +58,7 @@ def test_limits_following_a_scheduling_variable_are_tabulated(tmp_path):
     # Reference: math.sqrt
     assert np.allclose(high, [24 / math.sqrt(3), 30 / math.sqrt(3), 48 / math.sqrt(3)], rtol=1e-15)
     assert np.array_equal(low, -high)
-    result = gainloom.design(schedule)
+    result = gainloom.design_table(schedule)
     table = result.table
     assert table.limits_vary
     bus = table.axes[0].values

@@ -159,7 +159,7 @@ def point_document(analysis: PointAnalysis, index: int) -> dict[str, Any]:
 
 @dataclass(frozen=True, eq=False)
 class DesignResult:
-    """What :func:`gainloom.design` returns.
+    """What :func:`gainloom.design_table` returns.
 
     Attributes
     ----------

@@ -171,7 +171,7 @@ def write_verification(
     schedule : Schedule or str or Path
         The schedule the table was designed for; its file is hashed.
     result : DesignResult or VerifyResult
-        ``gainloom.design(schedule)`` or ``gainloom.verify(schedule, gains)``.
+        ``gainloom.design_table(schedule)`` or ``gainloom.verify(schedule, gains)``.
     table : GainTable
         The table logged (normally ``result.table``).
     gains_path : path, optional
