@@ -160,7 +160,7 @@ def render_gains(result: Any, name: str | Path = "gains.yaml") -> str:
             result.table,
             schedule_path=Path(str(result.schedule_path)).name,
             schedule_sha256=result.schedule_sha256,
-            design=result.strategy,
+            design=result.strategy.to_dict(),
             body=result.as_document(),
         )
     elif isinstance(result, GainTable):
