@@ -34,7 +34,6 @@ from ..outputs import (
     OutputConflictError,
     check_output_folder,
     find_conflicts,
-    sha256_bytes,
     write_outputs,
 )
 
@@ -114,7 +113,7 @@ class FamilyResult:
 
 def _point_summaries(job) -> list[dict[str, Any]]:
     from ..design.slack import tightest_specs
-    from ..design.specs import SPEC_ORDER
+    from ..spec_registry import SPEC_ORDER
 
     design = job.design
     tightest = tightest_specs(design.analysis, SPEC_ORDER)
@@ -297,8 +296,3 @@ def run_family(
     written += write_outputs(out, index_files, force=force)
     return FamilyResult(out_dir=out, index=json.loads(index_files["family.json"]), files=tuple(written),
                         notes=tuple(notes))
-
-
-def file_digests(files: dict[str, bytes]) -> dict[str, str]:
-    """File name -> SHA-256 of each file, sorted by name."""
-    return {name: sha256_bytes(files[name]) for name in sorted(files)}
