@@ -35,9 +35,9 @@ from typing import Any
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
-from ..design.specs import SPEC_ORDER
 from ..design.table import GainTable, TableAxis
 from ..errors import InputError
+from ..spec_registry import SPEC_ORDER
 from .layout import TableLayout, layout_table
 
 __all__ = ["QuantisationResult", "PointChange", "check_quantisation", "dequantised_table", "pole_shift"]

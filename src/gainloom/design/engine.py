@@ -40,7 +40,7 @@ from .filter_notes import auto_notch_report, resonance_note
 from .measured_check import check_on_data, merge_data_verdict
 from .results import DesignResult, DesignSettings, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, choose_gains, objective_values, samples_in
-from .specs import SAMPLING_FRACTION, SpecLimits
+from .spec_limits import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
 from .structures import LocusForm, coefficients_from_locus
 from .table import GainTable, TableAxis
@@ -328,7 +328,7 @@ def _certified(certified: dict, analysis: PointAnalysis, failed: np.ndarray) -> 
     Points the search certified infeasible carry its note; a point the search
     found feasible that fails the re-check names the first spec it fails.
     """
-    from .specs import SPEC_ORDER
+    from ..spec_registry import SPEC_ORDER
 
     out = {}
     for p in failed:

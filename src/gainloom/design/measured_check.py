@@ -25,7 +25,7 @@ from ..lti.data_margins import DataMargins, data_margins, sampled_loop_on_data
 from ..lti.polynomials import polymul
 from ..lti.sweep_fit import model_response, relative_error
 from ..schedule.measured import grid_index
-from .specs import SpecLimits
+from .spec_limits import SpecLimits
 from .structures import controller_polynomials
 
 __all__ = ["CROSSOVER_BAND", "DataCheck", "check_on_data", "merge_data_verdict"]

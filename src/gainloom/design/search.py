@@ -37,9 +37,10 @@ from ..lti.loop import Loop
 from ..lti.margins import loop_margins
 from ..lti.polynomials import polymul, z_to_delta
 from ..lti.regions import SpecRegion
+from ..spec_registry import spec_info
 from .analysis import pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
-from .specs import SpecLimits
+from .spec_limits import SpecLimits
 
 __all__ = ["OBJECTIVE_TEXT", "Choice", "Shapes", "choose_gains", "objective_values", "shape_loops"]
 
@@ -516,14 +517,14 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S, cancelle
 
 #: Specs judged on the frequency response at a chosen gain (not by the exact
 #: pole-region intervals), with the ``Margins`` field each is read from
-#: (``None``: the closed-loop bandwidth) and whether the value must be at least the limit.
-FREQUENCY_SPECS: dict[str, tuple[str | None, bool]] = {
-    "min_phase_margin": ("phase_margin", True),
-    "min_delay_margin": ("delay_margin", True),
-    "max_sensitivity_peak": ("sensitivity_peak", False),
-    "min_crossover": ("crossover", True),
-    "max_crossover": ("last_crossover", False),
-    "min_bandwidth": (None, True),
+#: (``None``: the closed-loop bandwidth); the kind of bound is the registry's.
+FREQUENCY_SPECS: dict[str, str | None] = {
+    "min_phase_margin": "phase_margin",
+    "min_delay_margin": "delay_margin",
+    "max_sensitivity_peak": "sensitivity_peak",
+    "min_crossover": "crossover",
+    "max_crossover": "last_crossover",
+    "min_bandwidth": None,
 }
 
 
@@ -535,12 +536,12 @@ def frequency_specs_ok(loop: Loop, gains: np.ndarray, limits: SpecLimits, points
     margins = loop_margins(loop, gains)
     bandwidth = closed_loop_bandwidth(loop, gains) if np.any(np.isfinite(limits.min_bandwidth[points])) else None
     ok = np.ones(loop.points, dtype=bool)
-    for name, (field, at_least) in FREQUENCY_SPECS.items():
+    for name, field in FREQUENCY_SPECS.items():
         limit = getattr(limits, name)[points]
         if np.all(np.isnan(limit)):
             continue
         value = np.asarray(bandwidth if field is None else getattr(margins, field), float)
-        ok &= np.isnan(limit) | ((value >= limit) if at_least else (value <= limit))
+        ok &= np.isnan(limit) | ((value >= limit) if spec_info(name).bound == "min" else (value <= limit))
     return ok
 
 
