@@ -24,9 +24,8 @@ def _design(path: Path, out: Path) -> subprocess.CompletedProcess:
 
 
 @pytest.fixture(scope="module")
-def demo(tmp_path_factory):
-    out = tmp_path_factory.mktemp("servo")
-    return _design(SCHEDULES / "servo_cascade.yaml", out), out
+def demo(servo_cascade_design):
+    return servo_cascade_design
 
 
 @pytest.fixture(scope="module")

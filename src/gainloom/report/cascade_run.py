@@ -96,36 +96,16 @@ def cascade_stage(checks: Any) -> StageVerdict:
 
 
 def default_cascade_scenario(design: Any) -> Any:
-    """The cascade run the full job does: a speed-reference step and a load step.
+    """The cascade run the full job does: a speed-reference step and a load step
+    (:func:`gainloom.simulation.cascade_scenario.cascade_scenario` with its
+    defaults, on the outer loop's time scale
+    :func:`gainloom.simulation.defaults.time_scale`)."""
+    from ..simulation.cascade_scenario import cascade_scenario
+    from ..simulation.defaults import time_scale
 
-    With ``T`` the outer loop's time scale (as the single-loop job's,
-    :func:`gainloom.simulation.defaults.default_scenario`): the outer reference steps
-    at 0 s by 0.1 of the outer error full scale (1 output unit when none is
-    set), a load of ``LOAD_STEP_FRACTION`` times the larger outer output
-    limit (inner measurement units, at the outer plant part's input) steps
-    in at ``3 T``, and the run ends at ``6 T`` (at most
-    ``SIMULATION_MAX_SAMPLES`` inner samples).  The outer loop sits at the
-    middle of each of its variables' ranges, the inner loop at the outer
-    loop's ``inner_at`` and the shared variables.
-    """
-    from ..simulation.cascade import CascadeScenario
-    from ..simulation.defaults import LOAD_STEP_FRACTION, SIMULATION_MAX_SAMPLES, time_scale
-
-    inner_sched, outer_sched = design.schedules
-    outer_loop = design.cascade.loops[1]
     scale, _basis = time_scale(design.results[1])
-    base = float(inner_sched.sampling.period[0])
-    scale = min(scale, SIMULATION_MAX_SAMPLES * base / 6.0)
-    outer_point = {a.name: 0.5 * (float(a.values[0]) + float(a.values[-1])) for a in outer_sched.axes}
-    inner_point = {name: outer_point.get(name, (outer_loop.inner_at or {}).get(name, 0.0))
-                   for name in inner_sched.axis_names}
-    full_scale = outer_sched.codegen.error_full_scale
-    limits = design.results[1].table.limit_envelope
-    return CascadeScenario(
-        duration=6.0 * scale, reference_step=0.1 * full_scale if full_scale else 1.0, load_time=3.0 * scale,
-        load_amplitude=LOAD_STEP_FRACTION * max(abs(float(limits[0])), abs(float(limits[1]))),
-        outer_point=outer_point, inner_point=inner_point,
-    )
+    return cascade_scenario(design.schedules, design.cascade.loops[1].inner_at,
+                            design.results[1].table.limit_envelope, scale)
 
 
 def simulation_stage(run: Any) -> StageVerdict:
@@ -270,8 +250,8 @@ def run_cascade_job(
         if simulate:
             from ..simulation.cascade import run_cascade
 
-            run = run_cascade(cascade, design.schedules, design.results, default_cascade_scenario(design),
-                              number_format)
+            run = run_cascade(cascade, design.schedules, tuple(r.table for r in design.results),
+                              default_cascade_scenario(design), number_format)
         stages = _stages(cascade, design, quantisation, harness, number_format, c_texts, run)
         docs, images = _logs(cascade, design, stage_dir, harness, quantisation, number_format, prefix)
     document = _cascade_document(cascade, design, docs, stages, sorted(c_texts))
