@@ -114,7 +114,7 @@ def test_without_the_notch_the_crossover_is_far_lower(two_mass):
 
 
 def test_design_job_on_the_demo_passes_and_generates_no_c_without_the_filters(tmp_path):
-    from gainloom.report.run import run_design_job
+    from gainloom.job.design_job import run_design_job
 
     job = run_design_job(SCHEDULES / "two_mass_speed.yaml", tmp_path / "out", target=False)
     stages = {s.stage: s for s in job.stages}
@@ -193,7 +193,7 @@ def test_emit_refuses_a_table_designed_with_filters(two_mass, tmp_path):
 
 def test_simulation_refuses_a_schedule_with_filters(two_mass):
     from gainloom import InputError
-    from gainloom.report.run import default_scenario
+    from gainloom.job.design_job import default_scenario
     from gainloom.simulation import run_scenario
 
     schedule, result = two_mass

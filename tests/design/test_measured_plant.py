@@ -13,7 +13,7 @@ import pytest
 import gainloom
 from gainloom.design.measured_check import check_on_data
 from gainloom.design.structures import controller_polynomials
-from gainloom.report.run import measured_stage
+from gainloom.job.design_job import measured_stage
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "schedules" / "measured_speed.yaml"

@@ -30,8 +30,8 @@ defines ``<PREFIX>_ACCEPT_UNVERIFIED``.  The verdict rests on the design and
 the re-check of the rounded table only, so the C of a table does not change
 when, say, a simulation setting changes.
 
-This module sits in ``report/`` because it is the last layer and may use all
-the others; the CLI only parses arguments and prints.
+This module is the job layer (:mod:`gainloom.job`): it may use every library
+layer, ``report`` included; the CLI only parses arguments and prints.
 """
 
 from __future__ import annotations
@@ -342,9 +342,9 @@ def run_design_job(
     from ..design.engine import design
     from ..design.gainsfile import render_gains
     from ..outputs import sha256_bytes
+    from ..report.log import render_verification
     from ..schedule import load_schedule
     from ..simulation import run_scenario
-    from .log import render_verification
 
     def step(stage: str, done: int, total: int = 1) -> None:
         if progress is not None:
