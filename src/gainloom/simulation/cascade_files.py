@@ -148,7 +148,7 @@ def simulate_cascade_files(
                          f"{', '.join(gains_file_name(lp.name) for lp in cascade.loops)}); "
                          f"{'found a file' if folder.exists() else 'no such folder'}")
     read = [_read_loop_gains(folder, loop) for loop in cascade.loops]
-    schedules = tuple(loop.schedule for loop in cascade.loops)
+    schedules = (cascade.loops[0].schedule, cascade.loops[1].schedule)
     tables = tuple(table for table, _m, _p in read)
     scale, basis = _outer_scale(tables[1], read[1][1])
     scenario = cascade_scenario(schedules, cascade.loops[1].inner_at, tables[1].limit_envelope, scale,
