@@ -63,11 +63,6 @@ __all__ = [
 
 Progress = Callable[[str, int, int], None]
 
-#: Why a schedule with ``controller.filters`` gets no C (issue 12 item 2 open).
-FILTERS_NOT_IN_C = (
-    "the generated C and the simulation do not implement controller.filters yet; C without the filters "
-    "would be another controller than the one verified, so none is generated"
-)
 
 @dataclass(frozen=True)
 class StageVerdict:
@@ -375,15 +370,9 @@ def run_design_job(
 
     step("emit C", 0)
     verdict = table_verdict(result.passed, quantisation.rounded.passed, number_format)
-    # C without the filter sections would be another controller than the one
-    # verified: none is generated, and nothing that runs it (harness, target,
-    # simulation) is run, until the C carries them
-    no_c = FILTERS_NOT_IN_C if schedule.controller.filters else None
-    not_run = "no C was generated (controller.filters)" if no_c else None
-    c_texts = {} if no_c else render_files(
+    c_texts = render_files(
         result.table, number_format, prefix, str(result.schedule_sha256),
         {"gains_file": gains_name, "gains_sha256": gains_sha256}, verdict=verdict, **scales)
-    compile, simulate = compile and not no_c, simulate and not no_c
     step("emit C", 1)
 
     with tempfile.TemporaryDirectory(prefix="gainloom-job-") as tmp:
@@ -444,15 +433,14 @@ def run_design_job(
     stages = (
         design_stage(result),
         *([] if getattr(result, "data_check", None) is None else [measured_stage(result.data_check)]),
-        StageVerdict("C code", "not generated", no_c) if no_c else
         StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix}); "
                      + ("header marked verified" if verdict.verified else
                         f"header NOT VERIFIED: builds only with {c_names(prefix).accept_unverified} defined")),
-        harness_stage(harness, not_run),
-        _target_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
-        _rules_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
+        harness_stage(harness),
+        _target_stage(target_result, "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
+        _rules_stage(target_result, "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
         quantisation_stage(quantisation, number_format),
-        _simulation_stage(simulation, not_run and "the simulation does not run controller.filters yet"),
+        _simulation_stage(simulation),
         StageVerdict("log", "written", ", ".join(sorted(log_files))),
     )
     return JobResult(
