@@ -242,12 +242,17 @@ def _rules_stage(target: Any, skipped: str) -> StageVerdict:
 
 def quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
     """The re-check of the table as stored in ``number_format`` as one stage line."""
+    warned = getattr(quantisation, "filter_warnings", [])
+    note = f"; {len(warned)} filter warning(s): {warned[0]}" if warned else ""
     if quantisation.passed:
-        return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec")
+        return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec" + (
+            "; filter poles stay inside the unit circle" if getattr(quantisation, "filters", ()) else "") + note)
     broken = quantisation.broken
-    shown = "; ".join(f"{b['spec']} at {b['point']} ({b['where']})" for b in broken[:3])
-    more = f" and {len(broken) - 3} more" if len(broken) > 3 else ""
-    return StageVerdict("quantisation", "FAIL", f"rounding to {number_format} breaks {shown}{more}")
+    shown = "; ".join([f"{b['spec']} at {b['point']} ({b['where']})" for b in broken[:3]]
+                      + quantisation.filter_failures[:2])
+    count = len(broken) + len(quantisation.filter_failures)
+    more = f" and {count - 3} more" if count > 3 else ""
+    return StageVerdict("quantisation", "FAIL", f"rounding to {number_format} breaks {shown}{more}{note}")
 
 
 def _simulation_stage(simulation: Any, skipped: str | None = None) -> StageVerdict:
