@@ -157,7 +157,7 @@ def test_low_notches_in_q15_move_and_then_leave_the_unit_circle():
 
 @pytest.fixture(scope="module")
 def demo_job(tmp_path_factory):
-    from gainloom.report.run import run_design_job
+    from gainloom.job.design_job import run_design_job
 
     out = tmp_path_factory.mktemp("two-mass") / "out"
     return run_design_job(SCHEDULES / "two_mass_speed.yaml", out, number_format="q15")

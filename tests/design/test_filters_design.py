@@ -178,7 +178,7 @@ def test_emit_writes_the_sections_of_a_table_designed_with_filters(two_mass, tmp
 
 def test_simulation_refuses_a_table_without_the_schedules_filters(two_mass):
     from gainloom import InputError
-    from gainloom.report.run import default_scenario
+    from gainloom.job.design_job import default_scenario
     from gainloom.simulation import run_scenario
 
     schedule, result = two_mass

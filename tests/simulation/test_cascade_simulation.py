@@ -13,7 +13,7 @@ import pytest
 from gainloom import design_cascade, load_cascade
 from gainloom.design.cascade import inner_points_at, outer_plant
 from gainloom.design.lookup import interpolate_table
-from gainloom.report.cascade_run import default_cascade_scenario
+from gainloom.job.cascade_job import default_cascade_scenario
 from gainloom.simulation.cascade import run_cascade
 from gainloom.simulation.cascade_plot import plot_cascade
 

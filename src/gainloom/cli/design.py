@@ -2,7 +2,7 @@
 
 Design the gain table, emit the C, compile and check it, re-check the table
 after rounding, run a default scheduled simulation and write the
-verification log (see :func:`gainloom.report.run.run_design_job`).  The CLI
+verification log (see :func:`gainloom.job.design_job.run_design_job`).  The CLI
 only parses, shows progress and prints the summary.
 """
 
@@ -258,7 +258,7 @@ def verdict_line(job) -> str:
 
 def run(args: argparse.Namespace) -> int:
     """Run the whole job, print the summary and the caution."""
-    from ..report.run import run_design_job
+    from ..job.design_job import run_design_job
     from ..schedule.cascade import is_cascade_file
 
     out = check_output_folder(args.out)

@@ -51,7 +51,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from ..errors import InputError
-from .polynomials import polymul
+from .polynomials import batched_roots, polymul
 
 __all__ = [
     "Crossings",
@@ -198,18 +198,31 @@ def _basis(top: np.ndarray, bottom: np.ndarray, n: int) -> np.ndarray:
     return basis
 
 
-def _real_roots(q: np.ndarray) -> np.ndarray:
-    """Real roots (t > 0) of one real polynomial, rounding noise trimmed."""
-    size = float(np.max(np.abs(q))) if q.size else 0.0
-    if size == 0.0:
-        return np.zeros(0)
-    q = np.where(np.abs(q) <= 1e-14 * size, 0.0, q)
-    q = np.trim_zeros(q, "f")
-    if q.size < 2:
-        return np.zeros(0)
-    roots = np.roots(q)
-    keep = (np.abs(roots.imag) <= _REAL_ROOT * np.maximum(1.0, np.abs(roots))) & (roots.real > 0)
-    return np.sort(roots[keep].real)
+def _real_roots_rows(q: np.ndarray) -> list[np.ndarray]:
+    """Real roots (t > 0) of each row of ``q``, rounding noise trimmed.
+
+    Rows are trimmed of leading zeros (after the noise threshold) and of
+    trailing zeros (roots at ``t = 0``, never kept), then grouped by degree
+    so that each group is one batched companion-matrix eigenvalue call: the
+    same matrices ``np.roots`` would build row by row, in one call per
+    degree instead of one per row.
+    """
+    count = q.shape[0]
+    out = [np.zeros(0)] * count
+    size = np.max(np.abs(q), axis=1) if q.shape[1] else np.zeros(count)
+    q = np.where(np.abs(q) <= 1e-14 * size[:, None], 0.0, q)
+    nonzero = q != 0.0
+    first = np.argmax(nonzero, axis=1)
+    last = q.shape[1] - 1 - np.argmax(nonzero[:, ::-1], axis=1)
+    degree = np.where(np.any(nonzero, axis=1) & (size > 0), last - first, 0)
+    for n in np.unique(degree[degree > 0]):
+        rows = np.flatnonzero(degree == n)
+        index = first[rows][:, None] + np.arange(n + 1)[None, :]
+        roots = batched_roots(np.take_along_axis(q[rows], index, axis=1))
+        keep = (np.abs(roots.imag) <= _REAL_ROOT * np.maximum(1.0, np.abs(roots))) & (roots.real > 0)
+        for j, row in enumerate(rows):
+            out[row] = np.sort(roots[j][keep[j]].real)
+    return out
 
 
 def _classify(num: np.ndarray, den: np.ndarray, points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -292,7 +305,7 @@ def _rational_crossings(
     # t = 0 is the curve's real-axis point: there A and B are real, so the
     # constant coefficient is an exact zero; the real point is added exactly.
     q = q[:, :-1]
-    t_lists = [_real_roots(q[p]) for p in range(count)]
+    t_lists = _real_roots_rows(q)
     rows = np.concatenate([np.full(t.size, p) for p, t in enumerate(t_lists)] + [np.zeros(0, dtype=int)]).astype(int)
     t = np.concatenate(t_lists + [np.zeros(0)])
 

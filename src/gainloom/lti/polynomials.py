@@ -38,8 +38,11 @@ def pad_left(coeffs: np.ndarray, length: int) -> np.ndarray:
     extra = length - coeffs.shape[-1]
     if extra < 0:
         raise ValueError(f"cannot pad {coeffs.shape[-1]} coefficients down to {length}")
-    pad = [(0, 0)] * (coeffs.ndim - 1) + [(extra, 0)]
-    return np.pad(coeffs, pad)
+    if extra == 0:
+        return coeffs.copy()
+    # concatenate, not np.pad: this runs in every Loop construction and
+    # np.pad's generality cost more than the padding itself
+    return np.concatenate([np.zeros(coeffs.shape[:-1] + (extra,)), coeffs], axis=-1)
 
 
 def polymul(a: object, b: object) -> np.ndarray:

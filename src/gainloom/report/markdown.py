@@ -278,6 +278,8 @@ def _measured(doc: dict[str, Any]) -> list[str]:
              f"**{'pass' if m['passed'] else 'FAIL'}**: the table's frequency specs judged again on the raw "
              "sweep samples (zero-order hold and computation delay applied on the data's grid); the design "
              "ran on the fitted models.", ""]
+    if m.get("between_points_model"):
+        lines += [f"Between points: {m['between_points_model']}.", ""]
     rows = [[e["index"], e["label"], number(e["gain_margin_db"]), number(e["phase_margin_deg"]),
              number(e["crossover_rad_s"]), number(e["sensitivity_peak"]),
              f"{number(100 * e['fit_error'])} / {number(100 * e['fit_error_near_crossover'])}",

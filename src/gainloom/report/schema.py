@@ -40,6 +40,7 @@ _SPEC = _obj({"value": NUMBER, "limit": NUMBER, "pass": BOOL, "margin": NUMBER})
 
 _MEASURED = _obj({
     "passed": BOOL,
+    "between_points_model": STRING,
     "points": {"list": _obj({
         "index": INT, "label": STRING, "passed": BOOL, "failed": {"list": STRING}, "coverage": {"list": STRING},
         "gain_margin_db": NUMBER, "phase_margin_deg": NUMBER, "crossover_rad_s": NUMBER,

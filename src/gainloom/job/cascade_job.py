@@ -5,7 +5,7 @@ module, checked and logged into one output folder.
 
 1. design the loops inner first (:func:`gainloom.design.design_cascade`),
    with the cascade checks;
-2. per loop, the stages of the single-loop job (:mod:`.run`): the gains
+2. per loop, the stages of the single-loop job (:mod:`.design_job`): the gains
    file ``<loop>.gains.yaml`` and the re-check of the table as stored in
    the number format;
 3. one C module ``<prefix>.h``/``<prefix>.c`` with every loop
@@ -36,7 +36,7 @@ from pathlib import Path
 from typing import Any
 
 from ..outputs import check_output_folder, write_outputs
-from .run import (
+from .design_job import (
     Progress,
     StagedOutcome,
     StageVerdict,
@@ -165,7 +165,7 @@ def _scales(schedule: Any) -> dict[str, Any]:
 def _loop_log(loop: Any, schedule: Any, result: Any, gains_path: Path, harness: Any, quantisation: Any,
               options: dict[str, Any]) -> tuple[dict[str, Any], dict[str, str | bytes]]:
     """One loop's verification document and its plots renamed ``<loop>_*.png``."""
-    from .log import JSON_NAME, MARKDOWN_NAME, render_verification
+    from ..report.log import JSON_NAME, MARKDOWN_NAME, render_verification
 
     files = render_verification(schedule=schedule, result=result, table=result.table, gains_path=gains_path,
                                 harness=harness, quantisation=quantisation, simulation=None, options=options,
@@ -354,8 +354,8 @@ def _logs(cascade: Any, design: Any, stage_dir: Path, harness: tuple, quantisati
 
 
 def _log_files(document: dict[str, Any]) -> dict[str, str]:
-    from .log import JSON_NAME, MARKDOWN_NAME
-    from .markdown_cascade import render_cascade_markdown
+    from ..report.log import JSON_NAME, MARKDOWN_NAME
+    from ..report.markdown_cascade import render_cascade_markdown
 
     text = json.dumps(document, indent=2, sort_keys=True, ensure_ascii=False, allow_nan=False) + "\n"
     return {JSON_NAME: text, MARKDOWN_NAME: render_cascade_markdown(document)}

@@ -30,8 +30,8 @@ defines ``<PREFIX>_ACCEPT_UNVERIFIED``.  The verdict rests on the design and
 the re-check of the rounded table only, so the C of a table does not change
 when, say, a simulation setting changes.
 
-This module sits in ``report/`` because it is the last layer and may use all
-the others; the CLI only parses arguments and prints.
+This module is the job layer (:mod:`gainloom.job`): it may use every library
+layer, ``report`` included; the CLI only parses arguments and prints.
 """
 
 from __future__ import annotations
@@ -242,11 +242,11 @@ def _rules_stage(target: Any, skipped: str) -> StageVerdict:
 
 def quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
     """The re-check of the table as stored in ``number_format`` as one stage line."""
-    warned = getattr(quantisation, "filter_warnings", [])
+    warned = quantisation.filter_warnings
     note = f"; {len(warned)} filter warning(s): {warned[0]}" if warned else ""
     if quantisation.passed:
         return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec" + (
-            "; filter poles stay inside the unit circle" if getattr(quantisation, "filters", ()) else "") + note)
+            "; filter poles stay inside the unit circle" if quantisation.filters else "") + note)
     broken = quantisation.broken
     shown = "; ".join([f"{b['spec']} at {b['point']} ({b['where']})" for b in broken[:3]]
                       + quantisation.filter_failures[:2])
@@ -342,9 +342,9 @@ def run_design_job(
     from ..design.engine import design
     from ..design.gainsfile import render_gains
     from ..outputs import sha256_bytes
+    from ..report.log import render_verification
     from ..schedule import load_schedule
     from ..simulation import run_scenario
-    from .log import render_verification
 
     def step(stage: str, done: int, total: int = 1) -> None:
         if progress is not None:
