@@ -54,6 +54,9 @@ class DataCheck:
         cannot show the margins.
     labels : tuple of str
         The operating point of each row.
+    between_rule : str
+        How the plant between grid points was made (an assumption: nothing
+        was measured there), for the log.
     """
 
     rows: np.ndarray
@@ -63,6 +66,7 @@ class DataCheck:
     band_error: np.ndarray
     failed: tuple[tuple[str, ...], ...]
     labels: tuple[str, ...]
+    between_rule: str
 
     @property
     def passed(self) -> bool:
@@ -89,7 +93,7 @@ class DataCheck:
                 "delay_margin_s": float(self.delay_margin[i]),
                 "fit_error": float(self.fit_error[i]), "fit_error_near_crossover": float(self.band_error[i]),
             })
-        return {"passed": self.passed, "points": points}
+        return {"passed": self.passed, "between_points_model": self.between_rule, "points": points}
 
 
 def _failures(m: DataMargins, delay_margin: np.ndarray, limits: SpecLimits) -> tuple[tuple[str, ...], ...]:
@@ -162,7 +166,7 @@ def check_on_data(sched, points: np.ndarray, structure: str, coefficients: dict[
         rows=rows, margins=margins, delay_margin=delay_margin,
         fit_error=np.max(np.where(used, error, 0.0), axis=1), band_error=band_error,
         failed=_failures(margins, delay_margin, limits.select(rows)),
-        labels=tuple(sched.describe_point(p) for p in sched.points),
+        labels=tuple(sched.describe_point(p) for p in sched.points), between_rule=measured.between_rule,
     )
 
 
