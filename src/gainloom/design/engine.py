@@ -43,7 +43,7 @@ from .search import OBJECTIVE_TEXT, Choice, choose_gains, objective_values, samp
 from .specs import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
 from .structures import LocusForm, coefficients_from_locus
-from .table import GainTable, TableAxis
+from .table import FilterTable, GainTable, TableAxis
 from .tuning_rules import rule_shapes
 
 __all__ = ["PointDesign", "Progress", "design", "design_points", "limits_at", "sampled_plant", "verify"]
@@ -566,13 +566,33 @@ def _table(sched, points_shape, axes_values, coefficients, plant) -> GainTable:
         for axis, values in zip(sched.axes, axes_values)
     )
     shape = tuple(len(v) for v in axes_values)
+    points = grid_points(list(axes_values))
+    ts = np.asarray(plant.ts, float)
     return GainTable(
         structure=sched.controller.structure,
         axes=axes,
         coefficients={k: np.asarray(v, float).reshape(shape) for k, v in coefficients.items()},
-        sample_period=np.asarray(plant.ts, float).reshape(shape),
-        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(grid_points(list(axes_values)))),
+        sample_period=ts.reshape(shape),
+        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(points)),
+        filters=filter_tables(sched, points, ts, shape),
     )
+
+
+def filter_tables(sched, points: np.ndarray, ts: np.ndarray, shape: tuple[int, ...]) -> tuple[FilterTable, ...]:
+    """The ``controller.filters`` sections at the table's grid points, as the C tabulates them.
+
+    The same discrete sections the analysis multiplies into the loop
+    (:func:`sampled_plant`: nominal parameters, Tustin prewarped at each
+    section's centre), split into ``b0, b1, b2, a1, a2`` per section.
+    """
+    values = sched.filters_at(points)
+    if values is None:
+        return ()
+    tables = []
+    for kind, (num, den) in zip(values.kinds, values.sections(ts)):
+        grids = {"b0": num[:, 0], "b1": num[:, 1], "b2": num[:, 2], "a1": den[:, 1], "a2": den[:, 2]}
+        tables.append(FilterTable(kind, {name: grid.reshape(shape) for name, grid in grids.items()}))
+    return tuple(tables)
 
 
 def grid_points(axes_values: list[np.ndarray]) -> np.ndarray:

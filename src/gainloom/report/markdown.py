@@ -225,9 +225,27 @@ def _quantisation(doc: dict[str, Any]) -> list[str]:
     lines += table_lines(["quantity", "worst point", "before", "after", "change (negative: worse)"], rows)
     for b in q["broken"]:
         lines.append(f"- broken by rounding ({b['where']}): {b['spec']} at {b['point']}")
+    lines += _filter_rounding(q.get("filters") or [])
     offsets = ", ".join(f"{k} {number(v)}" for k, v in q["axis_offsets"].items())
     lines.append(f"Stored axis breakpoints differ from the designed ones by at most: {offsets} (axis units).")
     return lines + [""]
+
+
+def _filter_rounding(sections: list[dict[str, Any]]) -> list[str]:
+    """Filter sections' poles and zeros designed and stored (largest radius, largest frequency move)."""
+    if not sections:
+        return []
+    lines = ["", "Filter sections after rounding (largest over the grid; a stored pole at |z| >= 1 fails):", ""]
+    lines += table_lines(
+        ["section", "pole radius designed / stored", "zero radius designed / stored", "pole frequency moved",
+         "zero frequency moved", "stability margin"],
+        [[f"{s['section']} ({s['kind']})", f"{number(s['pole_radius']['designed'], 9)} / "
+          f"{number(s['pole_radius']['stored'], 9)}", f"{number(s['zero_radius']['designed'], 9)} / "
+          f"{number(s['zero_radius']['stored'], 9)}", f"{number(100 * s['pole_frequency_change'])} %",
+          f"{number(100 * s['zero_frequency_change'])} %", number(s["stability_margin"])] for s in sections])
+    for s in sections:
+        lines += [f"- FAIL: {text}" for text in s["failures"]] + [f"- warning: {text}" for text in s["warnings"]]
+    return lines
 
 
 def _c_check(doc: dict[str, Any]) -> list[str]:

@@ -139,7 +139,17 @@ _QUANTISATION = _obj({
     })},
     "worst": {"map": _QUANT_WORST},
     "broken": {"list": _obj({"where": STRING, "point": STRING, "spec": STRING})},
-})
+}, {"filters": {"list": _obj({
+    "section": INT,
+    "kind": STRING,
+    "pole_radius": _obj({"designed": NUMBER, "stored": NUMBER}),
+    "zero_radius": _obj({"designed": NUMBER, "stored": NUMBER}),
+    "pole_frequency_change": NUMBER,
+    "zero_frequency_change": NUMBER,
+    "stability_margin": NUMBER,
+    "failures": {"list": STRING},
+    "warnings": {"list": STRING},
+})}})
 
 _C_CHECK = _obj({
     "status": STRING,
