@@ -32,7 +32,8 @@ import numpy as np
 
 from .polynomials import polyval_rows
 
-__all__ = ["COARSE_PHASE", "GAP_RATIO", "DataMargins", "data_margins", "sampled_loop_on_data", "zoh_response"]
+__all__ = ["COARSE_PHASE", "GAP_RATIO", "DataMargins", "data_margins", "sampled_loop_on_data", "step_deviation_bound",
+           "zoh_response"]
 
 #: Phase turn between the two samples around a crossover above which the
 #: grid is called too coarse there, degrees (common practice, no source).
@@ -132,6 +133,47 @@ def sampled_loop_on_data(
     with np.errstate(invalid="ignore"):
         below_nyquist = w * ts[:, np.newaxis] < np.pi
     return np.where(below_nyquist, loop, np.nan)
+
+
+def step_deviation_bound(w: np.ndarray, loop_a: np.ndarray, loop_b: np.ndarray, ts: np.ndarray) -> np.ndarray:
+    """Largest difference of two sampled loops' unit-step responses that their samples allow.
+
+    For closed loops ``T = L/(1 + L)`` with ``T_a(1) = T_b(1)`` the step
+    responses differ at every sample instant by at most
+
+        (1/pi) int_0^(pi/ts) |T_a - T_b| ts / (2 sin(w ts / 2)) dw
+
+    (the inverse z-transform of ``(T_a - T_b) z/(z - 1)`` on the unit circle,
+    bounded by the integral of its modulus).  The integral is taken over
+    the samples only, by the trapezoidal rule in ``log w``; what lies outside
+    the measured band is not counted, so it is a bound over the band: small
+    below it where both loops have integral action, small above it where
+    both have rolled off.
+
+    Parameters
+    ----------
+    w : ndarray, shape (P, M)
+        Frequencies, rad/s, rising (``nan`` pads).
+    loop_a, loop_b : ndarray of complex, shape (P, M)
+        The two loops' ``L`` at ``w`` (``nan`` where missing, e.g. at or
+        above the Nyquist frequency).
+    ts : ndarray, shape (P,)
+        Sample period, s.
+
+    Returns
+    -------
+    ndarray, shape (P,)
+        Fraction of the step; ``nan`` where fewer than two samples are usable.
+    """
+    w = np.asarray(w, dtype=float)
+    theta = w * np.asarray(ts, dtype=float)[:, np.newaxis]
+    with np.errstate(all="ignore"):
+        difference = np.abs(loop_a / (1 + loop_a) - loop_b / (1 + loop_b)) * (theta / 2) / np.sin(theta / 2)
+        lw = np.log(w)
+    usable = np.isfinite(difference) & np.isfinite(lw)
+    pair = usable[:, 1:] & usable[:, :-1]
+    pieces = np.where(pair, 0.5 * (difference[:, 1:] + difference[:, :-1]) * (lw[:, 1:] - lw[:, :-1]), 0.0)
+    return np.where(np.sum(pair, axis=1) > 0, np.sum(pieces, axis=1) / np.pi, np.nan)
 
 
 def _compress(w: np.ndarray, loop: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
