@@ -9,10 +9,16 @@ values and builders behind these fixtures).
 
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
 from pathlib import Path
 
 import pytest
 from cases import PASSING, UNSTABLE
+
+#: The bundled demo schedules.
+SCHEDULES = Path(__file__).resolve().parents[1] / "schedules"
 
 
 @pytest.fixture
@@ -29,3 +35,20 @@ def unstable_schedule(tmp_path: Path) -> Path:
     path = tmp_path / "beam.yaml"
     path.write_text(UNSTABLE)
     return path
+
+
+@pytest.fixture(scope="session")
+def servo_cascade_design(tmp_path_factory) -> tuple[subprocess.CompletedProcess, Path]:
+    """``gainloom design schedules/servo_cascade.yaml --out DIR --quiet`` run once per session.
+
+    The design folder (gains files, C module, log) is read by the cascade
+    job's tests and by ``gainloom simulate`` on a cascade; designing it costs
+    about half a minute, so it is made once.  Returns the finished process
+    and the folder.
+    """
+    out = tmp_path_factory.mktemp("servo_cascade")
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join(p for p in sys.path if p))
+    done = subprocess.run([sys.executable, "-m", "gainloom", "design", str(SCHEDULES / "servo_cascade.yaml"),
+                           "--out", str(out), "--quiet"], capture_output=True, text=True, env=env, timeout=600,
+                          check=False)
+    return done, out

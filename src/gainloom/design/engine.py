@@ -625,7 +625,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     report, point_design, axes_values = run_table_checks(sched, point_design, axes_values, progress=progress)
     table = _table(sched, None, axes_values, point_design.coefficients, point_design.plant)
     data_check = check_on_data(sched, point_design.points, sched.controller.structure, point_design.coefficients,
-                               point_design.limits)
+                               point_design.limits, point_design.analysis)
     status, notes, binding = merge_data_verdict(point_design.status, point_design.notes, point_design.binding,
                                                 data_check)
     warnings = list(sched.warnings) + auto_notch_report(sched, point_design.points)[1]
@@ -737,7 +737,7 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
             f"set of gains for every spec); counted as failing whatever the re-check finds "
             f"({'passes' if analysis.passed[p] else 'fails'} now); design the table again to replace it"
         )
-    data_check = check_on_data(sched, points, table.structure, coefficients, limits)
+    data_check = check_on_data(sched, points, table.structure, coefficients, limits, analysis)
     status, _, _ = merge_data_verdict(tuple("pass" if ok and p not in marked else "fail" for p, ok in enumerate(analysis.passed)),
                                       ((),) * points.shape[0], (None,) * points.shape[0], data_check)
     point_design = PointDesign(

@@ -270,6 +270,11 @@ def _c_check(doc: dict[str, Any]) -> list[str]:
     return lines
 
 
+def _percent(fraction: Any) -> Any:
+    """A logged fraction in percent; missing and non-finite markers as they are."""
+    return 100 * fraction if isinstance(fraction, (int, float)) and not isinstance(fraction, bool) else fraction
+
+
 def _measured(doc: dict[str, Any]) -> list[str]:
     m = doc.get("measured")
     if m is None:
@@ -279,13 +284,15 @@ def _measured(doc: dict[str, Any]) -> list[str]:
              "sweep samples (zero-order hold and computation delay applied on the data's grid); the design "
              "ran on the fitted models.", ""]
     if m.get("between_points_model"):
-        lines += [f"Between points: {m['between_points_model']}.", ""]
+        rule = m["between_points_model"]
+        lines += [f"{rule[:1].upper()}{rule[1:]}.", ""]
     rows = [[e["index"], e["label"], number(e["gain_margin_db"]), number(e["phase_margin_deg"]),
              number(e["crossover_rad_s"]), number(e["sensitivity_peak"]),
              f"{number(100 * e['fit_error'])} / {number(100 * e['fit_error_near_crossover'])}",
+             number(_percent(e.get("step_deviation_bound"))),
              "pass" if e["passed"] else "FAIL: " + "; ".join(e["failed"])] for e in m["points"]]
     lines += table_lines(["#", "point", "GM [dB]", "PM [deg]", "ωc [rad/s]", "Ms", "fit error % (all / near ωc)",
-                     "on the data"], rows)
+                          "step ± % (data vs model)", "on the data"], rows)
     notes = [f"- {e['label']}: {note}" for e in m["points"] for note in e["coverage"]]
     return lines + (notes + [""] if notes else [])
 

@@ -46,6 +46,7 @@ _MEASURED = _obj({
         "gain_margin_db": NUMBER, "phase_margin_deg": NUMBER, "crossover_rad_s": NUMBER,
         "last_crossover_rad_s": NUMBER, "sensitivity_peak": NUMBER, "bandwidth_rad_s": NUMBER,
         "delay_margin_s": NUMBER, "fit_error": NUMBER, "fit_error_near_crossover": NUMBER,
+        "fit_rms_near_crossover": NUMBER, "step_deviation_bound": NUMBER,
     })},
 })
 
