@@ -315,3 +315,16 @@ def test_pole_specs_are_not_trusted_on_a_model_that_misses_the_crossover_band(tm
     assert check.band_rms[1] > 0.05 and np.all(np.delete(check.band_rms, 1) < 0.05)
     assert [any(f.startswith("min_damping not trusted") for f in found) for found in check.failed] == \
         [False, True, False, False]
+
+
+def test_a_gap_in_a_sweep_is_a_located_warning_at_load(tmp_path):
+    # the samples between 20 and 60 Hz of load 3 deleted (a sweep segment lost): the
+    # neighbours are 19.95 Hz (line 44) and 60.28 Hz (now line 45), 12 log steps apart
+    schedule = _copy_demo(tmp_path)
+    path = tmp_path / "measured_speed" / "load_3.csv"
+    lines = path.read_text().splitlines()
+    path.write_text("\n".join(line for line in lines
+                              if not (line[:1].isdigit() and 20 < float(line.split(",")[0]) < 60)) + "\n")
+    warnings = [w for w in gainloom.load_schedule(schedule).warnings if "gap in the data" in w]
+    assert len(warnings) == 1
+    assert "load_3.csv:44 and line 45 (19.95 .. 60.28 Hz" in warnings[0]
