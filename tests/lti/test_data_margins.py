@@ -127,3 +127,24 @@ def test_step_deviation_bound_holds_for_two_exact_sampled_loops():
     bound = step_deviation_bound(w, loops[0], loops[1], np.array([TS]))[0]
     actual = np.max(np.abs(steps[0] - steps[1]))
     assert actual <= bound <= 3 * actual
+
+
+def test_a_gap_beside_the_sensitivity_peak_is_noted():
+    # Ms of this loop peaks at 105 rad/s, just above the 99 rad/s crossover (dense grid);
+    # samples missing from 101 to 400 rad/s leave the crossover judged but not the peak,
+    # which the samples underestimate (python-control's stability margin on the full
+    # grid is the reference for the peak)
+    w = _grid()
+    loop = _loop(w)
+    reference = 1 / ct.stability_margins(ct.frd(loop[0], w[0]))[2]
+    m = data_margins(w, np.where((w > 101) & (w < 400), np.nan, loop))
+    assert m.judged[0]
+    assert m.sensitivity_peak[0] < reference
+    assert any(note.startswith("a gap in the data borders the sensitivity peak") for note in m.coverage[0])
+
+
+def test_few_samples_near_the_crossover_are_noted():
+    # 30 samples over 3.9 decades: 5 within an octave of the 99 rad/s crossover; 400: 62
+    thin, dense = (data_margins(w, _loop(w)) for w in (_grid(30), _grid(400)))
+    assert any(note.startswith("only 5 samples within an octave of the crossover") for note in thin.coverage[0])
+    assert dense.coverage == ((),)
