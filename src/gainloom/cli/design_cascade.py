@@ -55,7 +55,7 @@ def run_cascade(args: argparse.Namespace, out) -> int:
         raise InputError("a cascade writes one gains file per loop (<loop>.gains.yaml); --gains-name does not apply")
     job = run_cascade_job(args.schedule, out, number_format=args.number_format, prefix=args.prefix,
                           force=args.force, compile=not args.no_compile, simulate=not args.no_simulate,
-                          progress=Counter(enabled=not args.quiet))
+                          target=not args.no_target, progress=Counter(enabled=not args.quiet))
     if args.json:
         print_json(_json(job))
     else:

@@ -83,7 +83,7 @@ def run(args: argparse.Namespace) -> int:
             args.error_full_scale = schedule.codegen.error_full_scale
         if args.output_full_scale is None:
             args.output_full_scale = schedule.codegen.output_full_scale
-    _refuse_filters(metadata, schedule)
+    _check_filters(metadata, table, schedule)
     args.number_format = args.number_format or "float32"
     args.prefix = "ctl" if args.prefix is None else args.prefix
     source_sha256 = metadata.schedule_sha256
@@ -162,15 +162,19 @@ def run(args: argparse.Namespace) -> int:
     return code
 
 
-def _refuse_filters(metadata: GainsMetadata, schedule) -> None:
-    """No C for a table designed with filter sections: the C does not implement them yet."""
+def _check_filters(metadata: GainsMetadata, table, schedule) -> None:
+    """Refuse a table whose tabulated filter sections differ from those it was designed with.
+
+    A gains file written before the C carried filter sections records them
+    under ``design.filters`` but has no ``filters`` tables: C without them
+    would be another controller than the one verified.
+    """
     recorded = (metadata.design or {}).get("filters") or []
-    if recorded or (schedule is not None and schedule.controller.filters):
-        kinds = ", ".join(f["kind"] for f in recorded) if recorded else ", ".join(
-            f.kind for f in schedule.controller.filters)
+    expected = len(schedule.controller.filters) if schedule is not None else len(recorded)
+    if expected != len(table.filters):
         raise CodegenError(
-            f"the table was designed with controller.filters ({kinds}); the generated C does not implement "
-            "them yet, and C without them would be another controller than the one verified"
+            f"the table was designed with {expected} controller.filters section(s) but the gains file "
+            f"tabulates {len(table.filters)}; design it again with this gainloom"
         )
 
 

@@ -43,7 +43,7 @@ from .search import OBJECTIVE_TEXT, Choice, choose_gains, objective_values, samp
 from .spec_limits import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
 from .structures import LocusForm, coefficients_from_locus
-from .table import GainTable, TableAxis
+from .table import FilterTable, GainTable, TableAxis
 from .tuning_rules import rule_shapes
 
 __all__ = ["PointDesign", "Progress", "design", "design_points", "limits_at", "sampled_plant", "verify"]
@@ -566,13 +566,33 @@ def _table(sched, points_shape, axes_values, coefficients, plant) -> GainTable:
         for axis, values in zip(sched.axes, axes_values)
     )
     shape = tuple(len(v) for v in axes_values)
+    points = grid_points(list(axes_values))
+    ts = np.asarray(plant.ts, float)
     return GainTable(
         structure=sched.controller.structure,
         axes=axes,
         coefficients={k: np.asarray(v, float).reshape(shape) for k, v in coefficients.items()},
-        sample_period=np.asarray(plant.ts, float).reshape(shape),
-        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(grid_points(list(axes_values)))),
+        sample_period=ts.reshape(shape),
+        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(points)),
+        filters=filter_tables(sched, points, ts, shape),
     )
+
+
+def filter_tables(sched, points: np.ndarray, ts: np.ndarray, shape: tuple[int, ...]) -> tuple[FilterTable, ...]:
+    """The ``controller.filters`` sections at the table's grid points, as the C tabulates them.
+
+    The same discrete sections the analysis multiplies into the loop
+    (:func:`sampled_plant`: nominal parameters, Tustin prewarped at each
+    section's centre), split into ``b0, b1, b2, a1, a2`` per section.
+    """
+    values = sched.filters_at(points)
+    if values is None:
+        return ()
+    tables = []
+    for kind, (num, den) in zip(values.kinds, values.sections(ts)):
+        grids = {"b0": num[:, 0], "b1": num[:, 1], "b2": num[:, 2], "a1": den[:, 1], "a2": den[:, 2]}
+        tables.append(FilterTable(kind, {name: grid.reshape(shape) for name, grid in grids.items()}))
+    return tuple(tables)
 
 
 def grid_points(axes_values: list[np.ndarray]) -> np.ndarray:
@@ -605,7 +625,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     report, point_design, axes_values = run_table_checks(sched, point_design, axes_values, progress=progress)
     table = _table(sched, None, axes_values, point_design.coefficients, point_design.plant)
     data_check = check_on_data(sched, point_design.points, sched.controller.structure, point_design.coefficients,
-                               point_design.limits)
+                               point_design.limits, point_design.analysis)
     status, notes, binding = merge_data_verdict(point_design.status, point_design.notes, point_design.binding,
                                                 data_check)
     warnings = list(sched.warnings) + auto_notch_report(sched, point_design.points)[1]
@@ -702,7 +722,7 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
             f"set of gains for every spec); counted as failing whatever the re-check finds "
             f"({'passes' if analysis.passed[p] else 'fails'} now); design the table again to replace it"
         )
-    data_check = check_on_data(sched, points, table.structure, coefficients, limits)
+    data_check = check_on_data(sched, points, table.structure, coefficients, limits, analysis)
     status, _, _ = merge_data_verdict(tuple("pass" if ok and p not in marked else "fail" for p, ok in enumerate(analysis.passed)),
                                       ((),) * points.shape[0], (None,) * points.shape[0], data_check)
     point_design = PointDesign(

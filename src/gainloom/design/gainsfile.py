@@ -22,10 +22,16 @@ import yaml
 from ..errors import ScheduleError
 from ..inputs import read_input_file
 from ..limits import MAX_GAINS_BYTES
-from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
+from ..names import (
+    CONTROLLER_COEFFICIENTS,
+    CONTROLLER_STRUCTURES,
+    FILTER_COEFFICIENTS,
+    FILTER_KINDS,
+    unknown_name_message,
+)
 from ..outputs import write_outputs
 from ..plain import to_plain
-from .table import GainTable, TableAxis
+from .table import FilterTable, GainTable, TableAxis
 
 __all__ = [
     "GAINS_FORMAT", "GainsMetadata", "gains_document", "read_gains", "render_gains", "write_gains",
@@ -45,6 +51,7 @@ _KEYS = (
     "coefficients",
     "sample_period",
     "output_limits",
+    "filters",
     "design",
     "passed",
     "points",
@@ -97,6 +104,11 @@ def gains_document(
             else [float(table.output_limits[0]), float(table.output_limits[1])]
         ),
     }
+    if table.filters:
+        # the discrete sections as tabulated (the C interpolates these)
+        doc["filters"] = [{"kind": section.kind,
+                           "coefficients": {name: _grid(section.coefficients[name]) for name in FILTER_COEFFICIENTS}}
+                          for section in table.filters]
     if design is not None:
         doc["design"] = design
     for key, value in (body or {}).items():
@@ -345,6 +357,30 @@ def _restore_nonfinite(value: Any) -> Any:
     return value
 
 
+def _read_filters(reader: _Reader, data: dict, shape: tuple[int, ...]) -> tuple[FilterTable, ...]:
+    """The tabulated filter sections (``filters``), or none when the key is absent."""
+    entries = data.get("filters")
+    if entries is None:
+        return ()
+    if not isinstance(entries, list):
+        raise reader.error("expected a list of filter sections {kind, coefficients}", "filters")
+    sections = []
+    for i, entry in enumerate(entries):
+        where = f"filters[{i}]"
+        kind = reader.get(entry, "kind", where, (str,))
+        if kind not in FILTER_KINDS:
+            raise reader.error(unknown_name_message("filter kind", kind, FILTER_KINDS), f"{where}.kind")
+        grids = reader.get(entry, "coefficients", where, (dict,))
+        unknown = [k for k in grids if k not in FILTER_COEFFICIENTS]
+        if unknown:
+            raise reader.error(f"unknown filter coefficient {unknown[0]!r}; expected {', '.join(FILTER_COEFFICIENTS)}",
+                               f"{where}.coefficients.{unknown[0]}")
+        coefficients = {name: reader.array(reader.get(grids, name, f"{where}.coefficients", (list,)),
+                                           f"{where}.coefficients.{name}", shape) for name in FILTER_COEFFICIENTS}
+        sections.append(FilterTable(kind, coefficients))
+    return tuple(sections)
+
+
 def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
     """Read a gains file.
 
@@ -444,6 +480,7 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
         coefficients=coefficients,
         sample_period=ts,
         output_limits=limit_values,
+        filters=_read_filters(reader, data, shape),
     )
     schedule = data.get("schedule") or {}
     if not isinstance(schedule, dict):

@@ -71,11 +71,6 @@ __all__ = [
 
 Progress = Callable[[str, int, int], None]
 
-#: Why a schedule with ``controller.filters`` gets no C (issue 12 item 2 open).
-FILTERS_NOT_IN_C = (
-    "the generated C and the simulation do not implement controller.filters yet; C without the filters "
-    "would be another controller than the one verified, so none is generated"
-)
 
 @dataclass(frozen=True)
 class StageVerdict:
@@ -255,12 +250,17 @@ def _rules_stage(target: Any, skipped: str) -> StageVerdict:
 
 def quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
     """The re-check of the table as stored in ``number_format`` as one stage line."""
+    warned = quantisation.filter_warnings
+    note = f"; {len(warned)} filter warning(s): {warned[0]}" if warned else ""
     if quantisation.passed:
-        return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec")
+        return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec" + (
+            "; filter poles stay inside the unit circle" if quantisation.filters else "") + note)
     broken = quantisation.broken
-    shown = "; ".join(f"{b['spec']} at {b['point']} ({b['where']})" for b in broken[:3])
-    more = f" and {len(broken) - 3} more" if len(broken) > 3 else ""
-    return StageVerdict("quantisation", "FAIL", f"rounding to {number_format} breaks {shown}{more}")
+    shown = "; ".join([f"{b['spec']} at {b['point']} ({b['where']})" for b in broken[:3]]
+                      + quantisation.filter_failures[:2])
+    count = len(broken) + len(quantisation.filter_failures)
+    more = f" and {count - 3} more" if count > 3 else ""
+    return StageVerdict("quantisation", "FAIL", f"rounding to {number_format} breaks {shown}{more}{note}")
 
 
 def _simulation_stage(simulation: Any, skipped: str | None = None) -> StageVerdict:
@@ -383,15 +383,9 @@ def run_design_job(
 
     step("emit C", 0)
     verdict = table_verdict(result.passed, quantisation.rounded.passed, number_format)
-    # C without the filter sections would be another controller than the one
-    # verified: none is generated, and nothing that runs it (harness, target,
-    # simulation) is run, until the C carries them
-    no_c = FILTERS_NOT_IN_C if schedule.controller.filters else None
-    not_run = "no C was generated (controller.filters)" if no_c else None
-    c_texts = {} if no_c else render_files(
+    c_texts = render_files(
         result.table, number_format, prefix, str(result.schedule_sha256),
         {"gains_file": gains_name, "gains_sha256": gains_sha256}, verdict=verdict, **scales)
-    compile, simulate = compile and not no_c, simulate and not no_c
     step("emit C", 1)
 
     with tempfile.TemporaryDirectory(prefix="gainloom-job-") as tmp:
@@ -452,15 +446,14 @@ def run_design_job(
     stages = (
         design_stage(result),
         *([] if getattr(result, "data_check", None) is None else [measured_stage(result.data_check)]),
-        StageVerdict("C code", "not generated", no_c) if no_c else
         StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix}); "
                      + ("header marked verified" if verdict.verified else
                         f"header NOT VERIFIED: builds only with {c_names(prefix).accept_unverified} defined")),
-        harness_stage(harness, not_run),
-        _target_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
-        _rules_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
+        harness_stage(harness),
+        _target_stage(target_result, "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
+        _rules_stage(target_result, "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
         quantisation_stage(quantisation, number_format),
-        _simulation_stage(simulation, not_run and "the simulation does not run controller.filters yet"),
+        _simulation_stage(simulation),
         StageVerdict("log", "written", ", ".join(sorted(log_files))),
     )
     return JobResult(

@@ -24,6 +24,7 @@ from scipy.interpolate import RegularGridInterpolator
 
 from .. import limits
 from ..errors import InputError, ScheduleError
+from ..lti.data_margins import GAP_RATIO, data_gaps
 from ..lti.polynomials import batched_roots
 from ..lti.root_blend import RootCoordinates, coefficients_at, root_coordinates
 from ..lti.sweep_fit import ResponseFit, fit_response
@@ -348,6 +349,11 @@ def _fit_warnings(plant: MeasuredPlant, points: np.ndarray, describe) -> list[st
             f"measured plant: {which}, so between grid points their coefficients are interpolated linearly instead "
             "of their gain, poles and zeros (docs/schedule-format.md, measured); table.between_points judges that "
             "interpolation")
+    for p, k in np.argwhere(data_gaps(plant.w)):
+        warnings.append(f"measured plant: a gap in the data between {plant.source(int(p), int(k))} and line "
+                        f"{int(plant.lines[p, k + 1])} ({plant.w[p, k] / (2 * np.pi):.4g} .. "
+                        f"{plant.w[p, k + 1] / (2 * np.pi):.4g} Hz, more than {GAP_RATIO:g} times the median step): "
+                        "the fit does not see it, and a crossover or a peak there cannot be judged on the data")
     for p, k in np.argwhere(fit.outliers):
         warnings.append(f"measured plant: sample at {plant.source(int(p), int(k))} ({plant.w[p, k] / (2 * np.pi):.4g} "
                         "Hz) is an isolated outlier, left out of the fit (the data-judged margins still use it; "
