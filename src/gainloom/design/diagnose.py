@@ -26,7 +26,7 @@ from ..spec_registry import spec_info
 from .analysis import PointAnalysis, pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .frequency_reach import FREQUENCY_SPECS, frequency_reach
-from .search import Choice, Shapes, shape_loops
+from .search import Choice, GainSamples, Shapes, shape_loops
 from .spec_limits import SpecLimits
 
 __all__ = ["diagnose", "compromise", "limit_text"]
@@ -60,18 +60,18 @@ def _slack(metrics: dict[str, np.ndarray], limits: SpecLimits, p: int, grid: np.
     return stacked.min(axis=0)
 
 
-def compromise(samples: dict, limits: SpecLimits, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def compromise(samples: GainSamples, limits: SpecLimits, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Shape index and gain of the best compromise sample at each point."""
     shapes = np.zeros(points.size, dtype=int)
     gains = np.zeros(points.size)
     for j, p in enumerate(points):
-        metrics = {k: v[p] for k, v in samples["metrics"].items()}
-        grid = samples["grid"][p]
+        metrics = {k: v[p] for k, v in samples.metrics.items()}
+        grid = samples.grid[p]
         slack = _slack(metrics, limits, p, grid)
-        slack = np.where(samples["valid"][p][:, None], slack, -np.inf)
+        slack = np.where(samples.valid[p][:, None], slack, -np.inf)
         if not np.any(np.isfinite(slack)):
             # nothing stable anywhere: the smallest gain of the first realisable shape
-            s = int(np.argmax(samples["valid"][p])) if np.any(samples["valid"][p]) else 0
+            s = int(np.argmax(samples.valid[p])) if np.any(samples.valid[p]) else 0
             shapes[j], gains[j] = s, float(grid[s, 0])
             continue
         s, k = np.unravel_index(int(np.argmax(slack)), slack.shape)
@@ -195,9 +195,9 @@ def diagnose(
                 f"chosen K = {analysis.gain[p]:.6g}; no searched gain met every spec and this one",
             )
             continue
-        metrics = {k: v[p] for k, v in samples["metrics"].items()}
-        grid = samples["grid"][p]
-        valid = samples["valid"][p][:, None] & np.ones_like(grid, dtype=bool)
+        metrics = {k: v[p] for k, v in samples.metrics.items()}
+        grid = samples.grid[p]
+        valid = samples.valid[p][:, None] & np.ones_like(grid, dtype=bool)
         stable = valid & (metrics["radius"] < 1)
         found = None
         if not _exact_alone(plant, shapes, p, "stable", limits):
