@@ -49,6 +49,7 @@ def test_speed_step_settles_and_the_load_is_rejected(default_run):
     assert done.returncode == 0, done.stdout + done.stderr
     data = json.loads(done.stdout)  # strict JSON: no NaN or Infinity
     assert data["kind"] == "cascade" and data["passed"] is True and data["rate_factors"] == [1, 8]
+    assert data["notes"] == []  # the demo's gains files and log raise nothing
     current, speed = data["loops"]
     reference = data["scenario"]["reference_step"]
     omega = np.array(speed["series"]["output"])
@@ -167,3 +168,16 @@ def test_a_gains_file_of_the_wrong_loop_is_located(folder, tmp_path, capsys):
     shutil.copyfile(folder / "current.gains.yaml", swapped / "current.gains.yaml")
     assert main(["simulate", str(DEMO), "--gains", str(swapped)]) == 2
     assert "no speed.gains.yaml" in capsys.readouterr().err
+
+
+def test_a_failed_cascade_log_is_noted(folder, tmp_path, capsys):
+    # the gains files record each loop's own design; the cascade checks are only in the folder's log
+    for name in ("current.gains.yaml", "speed.gains.yaml"):
+        shutil.copyfile(folder / name, tmp_path / name)
+    log = json.loads((folder / "verification.json").read_text(encoding="utf-8"))
+    assert log["cascade"]["passed"] is True
+    log["cascade"]["passed"] = False
+    (tmp_path / "verification.json").write_text(json.dumps(log), encoding="utf-8")
+    assert main(["simulate", str(DEMO), "--gains", str(tmp_path), "--duration", "0.01"]) == 0
+    assert "note: verification.json: the design folder's log records a cascade that did NOT pass" in (
+        capsys.readouterr().out)

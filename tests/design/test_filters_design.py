@@ -173,7 +173,7 @@ def test_emit_writes_the_sections_of_a_table_designed_with_filters(two_mass, tmp
                            "--schedule", str(schedule.path)], env=env, capture_output=True, text=True, check=False)
     assert done.returncode == 0, done.stderr
     source = (tmp_path / "c" / "tms.c").read_text()
-    assert "tms_f1_b0_table" in source and "tms_filters_run" in source
+    assert "tms_f1_b0_table" in source and "tms_filters_pass" in source
 
 
 def test_simulation_refuses_a_table_without_the_schedules_filters(two_mass):

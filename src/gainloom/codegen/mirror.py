@@ -331,14 +331,15 @@ class FloatStepper:
         return self.dtype(u), self.dtype(unsaturated)
 
     def _filters(self, k: int, value, commit: bool):
-        """The filter sections on ``value``, direct form I, summed left to right as the C;
-        ``commit`` stores the sections' new past inputs and outputs (the trial of the
-        conditional integration does not)."""
+        """The filter sections on ``value``, direct form I, as the C sums them:
+        ``b0 x + (((b1 x1 + b2 x2) - a1 y1) - a2 y2)``; ``commit`` stores the sections'
+        new past inputs and outputs (the trial of the conditional integration does not)."""
         g, state = self.g, self.state
         for n in range(1, self.sections + 1):
             f = f"f{n}_"
-            y = (((g[f + "b0"][k] * value + g[f + "b1"][k] * state[f + "x1"]) + g[f + "b2"][k] * state[f + "x2"])
-                 - g[f + "a1"][k] * state[f + "y1"]) - g[f + "a2"][k] * state[f + "y2"]
+            past = ((g[f + "b1"][k] * state[f + "x1"] + g[f + "b2"][k] * state[f + "x2"])
+                    - g[f + "a1"][k] * state[f + "y1"]) - g[f + "a2"][k] * state[f + "y2"]
+            y = g[f + "b0"][k] * value + past
             if commit:
                 state[f + "x2"], state[f + "x1"] = state[f + "x1"], value
                 state[f + "y2"], state[f + "y1"] = state[f + "y1"], y
@@ -430,7 +431,8 @@ class FixedStepper:
 
     def _filters(self, k: int, value: int, commit: bool) -> int:
         """The filter sections on a Q3.28 value, direct form I: each product rounded to
-        Q3.28, the five summed exactly (64 bits in the C), saturated once to 32 bits."""
+        Q3.28, the five summed exactly (64 bits in the C, where the four of past values are
+        summed once per step), saturated once to 32 bits."""
         state, mul = self.state, self._mul
         for n in range(1, self.sections + 1):
             f = f"f{n}_"

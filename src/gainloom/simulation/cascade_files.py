@@ -45,7 +45,8 @@ class CascadeSimulation:
         The outer loop's time scale ``T`` the defaults are built on, s.
     time_scale_basis : str
     notes : tuple of str
-        What the gains files' own records say against using them as they are.
+        What the gains files' own records, and the folder's log, say against
+        using them as they are.
     """
 
     run: CascadeRun
@@ -106,6 +107,39 @@ def _outer_scale(table: Any, metadata: Any) -> tuple[float, str]:
     return time_scale_of(figure("settling_time_s"), figure("decay"), table.sample_period)
 
 
+#: Largest design log read for its verdict, bytes (the demo's is about 0.5 MB).
+_MAX_LOG_BYTES = 64 * 1024 * 1024
+
+
+def _log_notes(folder: Path, sha256: str) -> list[str]:
+    """What the design folder's log says against the run: a cascade that failed its checks.
+
+    The gains files record each loop's own design; the cascade checks
+    (bandwidth separation, outer specs with the inner loop in place) are
+    only in the folder's ``verification.json``.  A missing or unreadable log
+    gives no note: the gains files are what the run uses.
+    """
+    import json
+
+    from ..inputs import read_input_file
+
+    path = folder / "verification.json"
+    if not path.is_file():
+        return []
+    try:
+        doc = json.loads(read_input_file(path, "design log", _MAX_LOG_BYTES))
+        info = doc["cascade"]
+        recorded, passed = info["sha256"], info["passed"]
+    except (ValueError, KeyError, TypeError, OSError):
+        return []
+    if recorded != sha256:
+        return [f"{path.name}: the design folder's log is of a different version of this cascade file"]
+    if passed is False:
+        return [f"{path.name}: the design folder's log records a cascade that did NOT pass its checks "
+                "(verification.md says why)"]
+    return []
+
+
 def simulate_cascade_files(
     cascade_path: str | os.PathLike,
     gains_folder: str | os.PathLike,
@@ -154,8 +188,8 @@ def simulate_cascade_files(
     scenario = cascade_scenario(schedules, cascade.loops[1].inner_at, tables[1].limit_envelope, scale,
                                 duration=duration, reference_step=reference_step, load=load, point=point)
     run = run_cascade(cascade, schedules, tables, scenario, number_format or cascade.codegen.format)
-    notes = tuple(f"{path.name}: {note}" for _t, metadata, path in read
-                  for note in provenance_notes(metadata, cascade.sha256))
+    notes = tuple([f"{path.name}: {note}" for _t, metadata, path in read
+                   for note in provenance_notes(metadata, cascade.sha256)] + _log_notes(folder, cascade.sha256))
     return CascadeSimulation(run=run, gains_files=tuple(str(p) for _t, _m, p in read),
                              rate_factors=tuple(loop.rate_factor for loop in cascade.loops), time_scale=scale,
                              time_scale_basis=basis, notes=notes)
