@@ -198,9 +198,9 @@ def variant_units(schedule_path: str | os.PathLike, variants_path: str | os.Path
     from ..schedule import load_schedule
     from ..schedule.variants import read_variants, variant_schedule_text
 
-    base = load_schedule(schedule_path)
+    base = load_schedule(os.fspath(schedule_path))
     base_text = read_input_file(schedule_path, "schedule file", MAX_SCHEDULE_BYTES).decode("utf-8")
-    variants = read_variants(variants_path, tuple(base.parameters), base.axis_names)
+    variants = read_variants(os.fspath(variants_path), tuple(base.parameters), base.axis_names)
     schedule_name = Path(schedule_path).name
     taken = {"gains.yaml", "verification.json", "verification.md", f"{base.codegen.prefix}.h",
              f"{base.codegen.prefix}.c"}
