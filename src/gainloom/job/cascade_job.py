@@ -202,7 +202,7 @@ def _cascade_document(cascade: Any, design: Any, docs: list[dict[str, Any]], sta
             "min_crossover_ratio": cascade.cascade.min_crossover_ratio,
             "checks": design.checks.to_dict(), "c_files": c_names_,
             "passed": not any(s.failed for s in stages),
-            "stages": [{"stage": s.stage, "status": s.status, "detail": s.detail} for s in stages],
+            "stages": [s.to_dict() for s in stages],
         },
         "loops": docs,
         "caution": CAUTION,

@@ -91,6 +91,10 @@ class StageVerdict:
     status: str
     detail: str
 
+    def to_dict(self) -> dict[str, str]:
+        """Plain data (the ``stages`` entries of the JSON outputs)."""
+        return {"stage": self.stage, "status": self.status, "detail": self.detail}
+
     @property
     def failed(self) -> bool:
         """True when this stage fails the run."""

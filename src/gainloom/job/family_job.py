@@ -127,7 +127,7 @@ def _job_summary(job) -> dict[str, Any]:
         "design_passed": job.design.passed,
         "number_format": job.number_format,
         "prefix": job.prefix,
-        "stages": [{"stage": s.stage, "status": s.status, "detail": s.detail} for s in job.stages],
+        "stages": [s.to_dict() for s in job.stages],
         "not_checked": list(job.not_checked),
         "points": _point_summaries(job),
     }
