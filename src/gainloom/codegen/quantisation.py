@@ -241,8 +241,8 @@ def _quantities(analysis, p: int) -> dict[str, float]:
 
 
 def _failing_set(report) -> tuple[set, set]:
-    between = {(tuple(sorted(e["point"].items())), spec) for e in report.between for spec in e["failed"]}
-    tolerance = {(tuple(sorted(e["point"].items())), spec) for e in report.tolerances for spec in e["failed"]}
+    between = {(tuple(sorted(e.point.items())), spec) for e in report.between for spec in e.failed}
+    tolerance = {(tuple(sorted(e.point.items())), spec) for e in report.tolerances for spec in e.failed}
     return between, tolerance
 
 
@@ -318,7 +318,7 @@ def check_quantisation(
     # Rounding can also reorder two nearly equal neighbours (monotone) or
     # widen a step past the smoothness limit.
     def keys(report, where):
-        return {(e["coefficient"], e["axis"], tuple(e["index"])) for e in getattr(report, where)}
+        return {(e.coefficient, e.axis, e.index) for e in getattr(report, where)}
 
     for where in ("smoothness", "monotone"):
         for coefficient, axis, index in sorted(keys(rounded.table_report, where) - keys(original.table_report, where)):

@@ -38,7 +38,7 @@ from .fallbacks import (
 )
 from .filter_notes import auto_notch_report, resonance_note
 from .measured_check import check_on_data, merge_data_verdict
-from .results import DesignResult, VerifyResult
+from .results import DesignResult, DesignSettings, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, choose_gains, objective_values, samples_in
 from .specs import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
@@ -654,23 +654,8 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
         from .continuous import compare_continuous
 
         continuous = compare_continuous(sched, point_design)
-    controller = sched.controller
-    strategy = {
-        "structure": controller.structure,
-        "strategy": controller.strategy,
-        "objective": _objective(controller),
-        "objective_meaning": OBJECTIVE_TEXT[_objective(controller)],
-        "zero_on": controller.zero_on,
-        "target": None if controller.target is None else {
-            k: v for k, v in (("damping", controller.target.damping),
-                              ("natural_frequency", controller.target.natural_frequency),
-                              ("crossover", controller.target.crossover)) if v is not None},
-        "sweep": None if controller.sweep is None else {
-            "range": list(controller.sweep.range), "count": controller.sweep.count},
-        "derivative_filter": controller.derivative_filter,
-        "sampling": {"method": sched.sampling.method, "prewarp": sched.sampling.prewarp},
-        "filters": [section.as_written() for section in controller.filters],
-    }
+    objective = _objective(sched.controller)
+    strategy = DesignSettings.of(sched, objective, OBJECTIVE_TEXT[objective])
     return DesignResult(
         table=table,
         analysis=point_design.analysis,

@@ -70,8 +70,9 @@ def time_domain_findings(limits: SpecLimits, step_bound: np.ndarray, band_rms: n
                          f"by up to {bound:.2g} %, not less than the {100 * SETTLING_BAND:g} % settling band")
         asked = [name for name in POLE_SPECS if np.isfinite(getattr(limits, name)[p])]
         if asked and not band_rms[p] <= tolerance:
-            found.append(f"{', '.join(asked)} not trusted: judged on a model that misses the data by "
-                         f"{100 * band_rms[p]:.3g} % rms within an octave of the crossover (fit tolerance "
+            missed = (f"misses the data by {100 * band_rms[p]:.3g} % rms within an octave of the crossover"
+                      if np.isfinite(band_rms[p]) else "cannot be compared with the data near a crossover (none in them)")
+            found.append(f"{', '.join(asked)} not trusted: judged on a model that {missed} (fit tolerance "
                          f"{100 * tolerance:g} %)")
         out.append(tuple(found))
     return tuple(out)
