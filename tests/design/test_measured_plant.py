@@ -246,7 +246,7 @@ def test_between_points_the_model_follows_the_known_plant(demo, demo_design):
     from gainloom.design.engine import limits_at, sampled_plant
 
     assert demo.table_checks.between_points == 3
-    assert demo_design.table_report.between_checked == 9 and demo_design.table_report.between == []
+    assert demo_design.table_report.between_checked == 9 and len(demo_design.table_report.between) == 0
     mids = np.array([1.5, 2.5, 3.5])
     gains = {k: np.interp(mids, LOADS, v) for k, v in demo_design.table.coefficients.items()}
     judged = analyse(sampled_plant(demo, mids[:, np.newaxis]), "pi", gains, limits_at(demo, mids[:, np.newaxis]))
