@@ -21,7 +21,8 @@ and fails the check.
 The filter sections' poles and zeros are compared before and after
 rounding as well (:mod:`.filter_rounding`): a stored pole pair on or outside
 the unit circle fails the check, a notch centre moved beyond the tolerance
-is a warning.
+is a warning.  The rounded table's grid points are verified with its stored
+sections (``verify`` uses a table's own filter sections there).
 
 Only the coefficients are rounded here.  The axis breakpoints the C stores
 may differ from the designed ones by a few LSB of the axis format; the
