@@ -18,7 +18,7 @@ def _pair_lines(pair: dict[str, Any]) -> list[str]:
     corners = pair["corners_checked"]
     where = "every inner breakpoint and midpoint"
     if corners:
-        where += f", nominal and at {corners} tolerance corners of both loops"
+        where += f", nominal and at {corners} corners of the tolerances of both loops"
     checked = pair["pairs_checked"] * (corners + 1)
     lines = [f"### {pair['outer']} around {pair['inner']}", ""]
     lines += table_lines(["check", "result", "measured"], [
