@@ -189,3 +189,32 @@ def test_simulation_refuses_a_table_without_the_schedules_filters(two_mass):
         run_scenario(schedule, bare, scenario, "float32")
     ideal = run_scenario(schedule, result.table, scenario, "float64")
     assert ideal.stable and ideal.passed
+
+
+def test_verify_judges_the_grid_points_with_the_tables_own_sections(two_mass):
+    from gainloom.design.engine import verify
+    from gainloom.design.table import FilterTable
+
+    schedule, result = two_mass
+    table = result.table
+    # the same table with its notch moved to 0.6 x the resonance: the loop at the grid points must
+    # change (the C would run this notch), while the designed sections give the design's numbers
+    (notch,) = table.filters
+    load = table.axes[0].values
+    jm, k = 2.0e-4, 474.0  # schedules/two_mass_speed.yaml
+    wr = np.sqrt(k * (jm + load * jm) / (jm * load * jm))
+    depth, zeta_p = 0.1, 0.4 / (2 * np.sqrt(0.1))
+    moved = []
+    for w in 0.6 * wr:
+        # Tustin prewarped at the centre: scipy.signal.bilinear with fs = w / tan(w ts / 2) / 2
+        b, a = scipy.signal.bilinear([1, 2 * depth * zeta_p * w, w**2], [1, 2 * zeta_p * w, w**2],
+                                     fs=w / np.tan(w * 1.25e-4 / 2) / 2)
+        moved.append(np.concatenate([b / a[0], a[1:] / a[0]]))
+    grid = np.array(moved)
+    shifted = replace(table, filters=(FilterTable("notch", {n: grid[:, i] for i, n in
+                                                            enumerate(("b0", "b1", "b2", "a1", "a2"))}),))
+    as_designed = verify(schedule, table)
+    as_moved = verify(schedule, shifted)
+    np.testing.assert_allclose(as_designed.analysis.phase_margin, result.analysis.phase_margin, rtol=1e-9)
+    assert np.max(np.abs(as_moved.analysis.phase_margin - as_designed.analysis.phase_margin)) > 1.0
+    assert not as_moved.passed and notch.kind == "notch"

@@ -246,7 +246,7 @@ def test_between_points_the_model_follows_the_known_plant(demo, demo_design):
     from gainloom.design.engine import limits_at, sampled_plant
 
     assert demo.table_checks.between_points == 3
-    assert demo_design.table_report.between_checked == 9 and demo_design.table_report.between == []
+    assert demo_design.table_report.between_checked == 9 and len(demo_design.table_report.between) == 0
     mids = np.array([1.5, 2.5, 3.5])
     gains = {k: np.interp(mids, LOADS, v) for k, v in demo_design.table.coefficients.items()}
     judged = analyse(sampled_plant(demo, mids[:, np.newaxis]), "pi", gains, limits_at(demo, mids[:, np.newaxis]))
@@ -357,3 +357,24 @@ def test_model_overshoot_with_the_data_bound_covers_the_known_plant(demo, demo_d
         truth = _truth_step_overshoot(load, c["kp"][p], c["ki_ts"][p], ts)
         model, bound = demo_design.analysis.overshoot[p], 100 * demo_design.data_check.step_bound[p]
         assert abs(truth - model) <= bound
+
+
+def test_a_two_variable_grid_blends_the_four_corners(tmp_path):
+    # the four sweeps as the corners of an invented 2-D grid (load 1, 2 x bench 0, 1):
+    # at the cell centre bilinear interpolation in log gives every pole and the gain as
+    # the geometric mean of the four corners' (closed form of the mean of logs)
+    schedule = _copy_demo(tmp_path)
+    text = schedule.read_text()
+    start, end = text.index("variables:"), text.index("    # units are in")
+    corners = {(1, 0): 1, (2, 0): 2, (1, 1): 3, (2, 1): 4}
+    files = "".join(f"      - {{at: {{load: {a}, bench: {b}}}, file: measured_speed/load_{n}.csv}}\n"
+                    for (a, b), n in corners.items())
+    schedule.write_text(text[:start] + "variables:\n  - name: load\n    values: [1, 2]\n  - name: bench\n"
+                        "    values: [0, 1]\nplant:\n  measured:\n    files:\n" + files + text[end:])
+    sched = gainloom.load_schedule(schedule)
+    fit = sched.family.plant.measured.fit
+    centre = sched.family.evaluate(np.array([[1.5, 0.5]])).plant
+    poles = np.sort(np.roots(centre.den[0]).real)
+    corner_poles = np.sort(np.stack([np.roots(d).real for d in fit.den]), axis=1)
+    np.testing.assert_allclose(poles, -np.exp(np.mean(np.log(-corner_poles), axis=0)), rtol=1e-9)
+    np.testing.assert_allclose(centre.num[0, -1], np.exp(np.mean(np.log(fit.num[:, -1]))), rtol=1e-9)

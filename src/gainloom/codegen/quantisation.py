@@ -21,7 +21,8 @@ and fails the check.
 The filter sections' poles and zeros are compared before and after
 rounding as well (:mod:`.filter_rounding`): a stored pole pair on or outside
 the unit circle fails the check, a notch centre moved beyond the tolerance
-is a warning.
+is a warning.  The rounded table's grid points are verified with its stored
+sections (``verify`` uses a table's own filter sections there).
 
 Only the coefficients are rounded here.  The axis breakpoints the C stores
 may differ from the designed ones by a few LSB of the axis format; the
@@ -240,8 +241,8 @@ def _quantities(analysis, p: int) -> dict[str, float]:
 
 
 def _failing_set(report) -> tuple[set, set]:
-    between = {(tuple(sorted(e["point"].items())), spec) for e in report.between for spec in e["failed"]}
-    tolerance = {(tuple(sorted(e["point"].items())), spec) for e in report.tolerances for spec in e["failed"]}
+    between = {(tuple(sorted(e.point.items())), spec) for e in report.between for spec in e.failed}
+    tolerance = {(tuple(sorted(e.point.items())), spec) for e in report.tolerances for spec in e.failed}
     return between, tolerance
 
 
@@ -317,7 +318,7 @@ def check_quantisation(
     # Rounding can also reorder two nearly equal neighbours (monotone) or
     # widen a step past the smoothness limit.
     def keys(report, where):
-        return {(e["coefficient"], e["axis"], tuple(e["index"])) for e in getattr(report, where)}
+        return {(e.coefficient, e.axis, e.index) for e in getattr(report, where)}
 
     for where in ("smoothness", "monotone"):
         for coefficient, axis, index in sorted(keys(rounded.table_report, where) - keys(original.table_report, where)):

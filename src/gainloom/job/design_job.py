@@ -41,7 +41,7 @@ import tempfile
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -49,6 +49,14 @@ from ..errors import InputError
 from ..names import NUMBER_FORMATS, unknown_name_message
 from ..outputs import check_output_folder, write_outputs
 from ..simulation.defaults import default_scenario
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..codegen.harness import HarnessResult
+    from ..codegen.quantisation import QuantisationResult
+    from ..codegen.target import TargetResult
+    from ..design.results import DesignResult
+    from ..schedule import Schedule
+    from ..simulation.result import SimulationResult
 
 __all__ = [
     "JobResult",
@@ -147,12 +155,12 @@ class JobResult(StagedOutcome):
     c_files: tuple[Path, ...]
     number_format: str
     prefix: str
-    schedule: Any
-    design: Any
-    harness: Any
-    target: Any
-    quantisation: Any
-    simulation: Any
+    schedule: Schedule
+    design: DesignResult
+    harness: HarnessResult | None
+    target: TargetResult | None
+    quantisation: QuantisationResult
+    simulation: SimulationResult | None
     scenario: dict[str, Any] | None
     stages: tuple[StageVerdict, ...]
 

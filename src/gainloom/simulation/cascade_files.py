@@ -15,7 +15,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from ..design.gainsfile import provenance_notes, read_gains
+from ..design.gainsfile import GainsMetadata, provenance_notes, read_gains
 from ..errors import InputError, ScheduleError
 from ..schedule.cascade import load_cascade
 from .cascade import CascadeRun, run_cascade
@@ -98,8 +98,8 @@ def _read_loop_gains(folder: Path, loop: Any) -> tuple[Any, Any, Path]:
     return table, metadata, path
 
 
-def _outer_scale(table: Any, metadata: Any) -> tuple[float, str]:
-    points = [p for p in metadata.get("points") or [] if isinstance(p, dict)]
+def _outer_scale(table: Any, metadata: GainsMetadata) -> tuple[float, str]:
+    points = [p for p in metadata.points or [] if isinstance(p, dict)]
 
     def figure(key: str) -> list[float]:
         return [float(p[key]) if isinstance(p.get(key), (int, float)) else float("nan") for p in points]
