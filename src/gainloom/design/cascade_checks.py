@@ -27,11 +27,11 @@ from typing import Any
 
 import numpy as np
 
+from ..spec_registry import SPEC_ORDER
 from .analysis import PointAnalysis, analyse
 from .cascade import outer_plant, split_scale
 from .engine import limits_at, sampled_plant
 from .lookup import interpolate_table
-from .specs import SPEC_ORDER
 from .table_checks import tolerance_scales
 
 __all__ = ["CascadeChecks", "LoopPairCheck", "check_cascade", "inner_values"]
