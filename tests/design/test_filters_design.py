@@ -218,3 +218,28 @@ def test_verify_judges_the_grid_points_with_the_tables_own_sections(two_mass):
     np.testing.assert_allclose(as_designed.analysis.phase_margin, result.analysis.phase_margin, rtol=1e-9)
     assert np.max(np.abs(as_moved.analysis.phase_margin - as_designed.analysis.phase_margin)) > 1.0
     assert not as_moved.passed and notch.kind == "notch"
+
+
+def test_between_points_judge_the_notch_the_firmware_interpolates(two_mass):
+    from gainloom.design.engine import firmware_filters
+
+    schedule, result = two_mass
+    table = result.table
+    load = table.axes[0].values
+    ts, jm, k = 1.25e-4, 2.0e-4, 474.0  # schedules/two_mass_speed.yaml
+    depth, zeta_p = 0.1, 0.4 / (2 * np.sqrt(0.1))
+
+    def notch_at(x: float) -> np.ndarray:
+        # Tustin prewarped at the resonance: scipy.signal.bilinear with fs = w / tan(w ts / 2) / 2
+        w = np.sqrt(k * (jm + x * jm) / (jm * x * jm))
+        b, a = scipy.signal.bilinear([1, 2 * depth * zeta_p * w, w**2], [1, 2 * zeta_p * w, w**2],
+                                     fs=w / np.tan(w * ts / 2) / 2)
+        return np.concatenate([b, a]) / a[0]
+
+    middle = 0.5 * (load[0] + load[1])
+    num, den = firmware_filters(schedule, [load], table.sample_period.ravel(), np.array([[middle]]))
+    # the C interpolates each stored coefficient linearly (docs/codegen.md), so the section between
+    # two breakpoints is the mean of the neighbours' sections, not the schedule's notch there
+    expected = 0.5 * (notch_at(load[0]) + notch_at(load[1]))
+    np.testing.assert_allclose(np.concatenate([num[0], den[0]]), expected, rtol=1e-12, atol=1e-12)
+    assert np.max(np.abs(expected - notch_at(middle))) > 1e-6

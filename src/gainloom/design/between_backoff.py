@@ -64,9 +64,10 @@ def _scaled(coefficients: dict[str, np.ndarray], factor: np.ndarray) -> dict[str
 class _Cells:
     """The failing cells of one round: their between points and corner breakpoints, in one batch."""
 
-    def __init__(self, sched, cells, shape, owner_rows, between_points, inter, point_design):
-        from .engine import limits_at, sampled_plant
+    def __init__(self, sched, cells, axes_values, owner_rows, between_points, inter, point_design):
+        from .engine import firmware_filters, limits_at, sampled_plant
 
+        shape = tuple(v.size for v in axes_values)
         self.count = len(cells)
         self.corners = [_corners(cell, shape) for cell in cells]
         rows_b = np.concatenate([owner_rows[cell] for cell in cells])
@@ -74,7 +75,8 @@ class _Cells:
         self.of = np.concatenate([np.full(owner_rows[cell].size, c) for c, cell in enumerate(cells)]
                                  + [np.full(idx.size, c) for c, idx in enumerate(self.corners)])
         points = np.concatenate([between_points[rows_b], point_design.points[rows_g]])
-        self.plant, self.limits = sampled_plant(sched, points), limits_at(sched, points)
+        filters = firmware_filters(sched, axes_values, point_design.plant.ts, points)
+        self.plant, self.limits = sampled_plant(sched, points, filters=filters), limits_at(sched, points)
         self.coefficients = {k: np.concatenate([inter[k][rows_b], np.asarray(v, float)[rows_g]])
                              for k, v in point_design.coefficients.items()}
         # overshoot and settling need a step response; skip it where neither is asked
@@ -136,13 +138,14 @@ def back_off_between(sched, point_design, axes_values: list[np.ndarray], structu
     (PointDesign, dict)
         The design with the moved gains, and ``{point: warning}`` per moved point.
     """
-    from .engine import limits_at, sampled_plant
+    from .engine import firmware_filters, limits_at, sampled_plant
 
     shape = tuple(v.size for v in axes_values)
     points, owner = between_points(axes_values, count)
     if points.shape[0] == 0:
         return point_design, {}
-    between = (sampled_plant(sched, points), limits_at(sched, points))
+    filters = firmware_filters(sched, axes_values, point_design.plant.ts, points)
+    between = (sampled_plant(sched, points, filters=filters), limits_at(sched, points))
     members: dict[tuple, list[int]] = {}
     for q, cell in enumerate(owner):
         members.setdefault(tuple(cell), []).append(q)
@@ -158,7 +161,7 @@ def back_off_between(sched, point_design, axes_values: list[np.ndarray], structu
         cells = sorted({tuple(owner[q]) for q in failing})
         if not cells:
             break
-        stacked = _Cells(sched, cells, shape, owner_rows, points, inter, point_design)
+        stacked = _Cells(sched, cells, axes_values, owner_rows, points, inter, point_design)
         lowest = np.array([LOWEST_FACTOR / np.min(factor[idx]) for idx in stacked.corners])
         found = _cell_factors(stacked, structure, lowest)
         step = np.ones_like(factor)

@@ -37,6 +37,7 @@ from .fallbacks import (
     target_warnings,
 )
 from .filter_notes import auto_notch_report, resonance_note
+from .lookup import interpolate_grids
 from .measured_check import check_on_data, merge_data_verdict
 from .results import DesignResult, DesignSettings, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, GainSamples, choose_gains, objective_values, samples_in
@@ -103,12 +104,43 @@ def table_filters(table: GainTable) -> tuple[np.ndarray, np.ndarray] | None:
     """The table's filter sections as one cascade in ``z`` per grid point (grid order), or ``None``."""
     if not table.filters:
         return None
-    sections = []
-    for section in table.filters:
-        c = {name: grid.ravel() for name, grid in section.coefficients.items()}
-        sections.append((np.stack([c["b0"], c["b1"], c["b2"]], axis=-1),
-                         np.stack([np.ones_like(c["a1"]), c["a1"], c["a2"]], axis=-1)))
-    return cascade(sections, int(np.prod(table.shape)))
+    sections = [{name: grid.ravel() for name, grid in section.coefficients.items()} for section in table.filters]
+    return _sections_cascade(sections, int(np.prod(table.shape)))
+
+
+def firmware_filters(sched, axes_values: list[np.ndarray], grid_ts: np.ndarray,
+                     points: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
+    """The filter sections at ``points`` as the firmware forms them, or ``None``.
+
+    The C tabulates ``b0, b1, b2, a1, a2`` at the grid points
+    (:func:`filter_tables`) and interpolates each coefficient like the gains,
+    so between breakpoints its notch is not the schedule's notch at that
+    point; the between-point checks judge this one.
+
+    Parameters
+    ----------
+    sched : Schedule
+    axes_values : list of ndarray
+        Breakpoints of each axis.
+    grid_ts : ndarray
+        Sample period at each grid point (grid order).
+    points : ndarray, shape (K, n_axes)
+        Where the sections are wanted.
+    """
+    shape = tuple(v.size for v in axes_values)
+    tables = filter_tables(sched, grid_points(list(axes_values)), np.asarray(grid_ts, float), shape)
+    if not tables:
+        return None
+    axes = tuple(axes_values)
+    sections = [interpolate_grids(axes, section.coefficients, points) for section in tables]
+    return _sections_cascade(sections, points.shape[0])
+
+
+def _sections_cascade(sections: list[dict[str, np.ndarray]], count: int) -> tuple[np.ndarray, np.ndarray]:
+    """One cascade in ``z`` per row from sections given as ``b0, b1, b2, a1, a2`` rows."""
+    pairs = [(np.stack([c["b0"], c["b1"], c["b2"]], axis=-1),
+              np.stack([np.ones_like(c["a1"]), c["a1"], c["a2"]], axis=-1)) for c in sections]
+    return cascade(pairs, count)
 
 
 def limits_at(sched, points: np.ndarray) -> SpecLimits:

@@ -212,14 +212,14 @@ def _smooth_gains(sched, point_design, shape, structure) -> tuple[dict[str, np.n
     return coefficients, notes, analysis
 
 
-def _between(sched, axes_values, grids, structure, count):
-    from .engine import limits_at, sampled_plant
+def _between(sched, axes_values, grids, structure, count, grid_ts):
+    from .engine import firmware_filters, limits_at, sampled_plant
 
     if count <= 0:
         return [], 0, None
     points, owner = between_points(axes_values, count)
     coefficients = interpolate_grids(tuple(axes_values), grids, points)
-    plant = sampled_plant(sched, points)
+    plant = sampled_plant(sched, points, filters=firmware_filters(sched, axes_values, grid_ts, points))
     limits = limits_at(sched, points)
     analysis = analyse(plant, structure, coefficients, limits)
     failing: list[BetweenFailure] = []
@@ -297,7 +297,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         grids = {k: np.asarray(v).reshape(shape) for k, v in point_design.coefficients.items()}
         if progress is not None:
             progress("between points", 0, 1)
-        failing, checked, detail = _between(sched, axes_values, grids, structure, count)
+        failing, checked, detail = _between(sched, axes_values, grids, structure, count, point_design.plant.ts)
         if progress is not None:
             progress("between points", 1, 1)
         if not failing or budget <= 0:
@@ -335,7 +335,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         point_design = _back_off(sched, point_design, axes_values, structure, count)
         shape = tuple(v.size for v in axes_values)
         grids = {k: np.asarray(v).reshape(shape) for k, v in point_design.coefficients.items()}
-        failing, checked, detail = _between(sched, axes_values, grids, structure, count)
+        failing, checked, detail = _between(sched, axes_values, grids, structure, count, point_design.plant.ts)
     smooth, mono = _check_smoothness(sched, {k: np.asarray(v).reshape(tuple(a.size for a in axes_values))
                                             for k, v in point_design.coefficients.items()}, names)
     if progress is not None:
