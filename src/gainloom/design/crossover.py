@@ -256,14 +256,13 @@ def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, cap: np.ndarray, rows
 def _sampled_region_ok(ctx: _Context, loops: list[Loop], gains: np.ndarray, points: np.ndarray) -> np.ndarray:
     """Pole-region specs the exact sets leave out, judged at the candidate gains (R, C).
 
-    The natural-frequency band of the dominant pole, and under
-    ``poles: dominant`` the damping (:func:`gainloom.design.search.region_ok`),
-    on every plant (nominal and tolerance corners).
+    The natural-frequency band of the dominant pole
+    (:func:`gainloom.design.search.region_ok`), on every plant (nominal and
+    tolerance corners).  The damping is in the exact sets under both pole
+    selections.
     """
     lim = ctx.limits
     names = ["min_natural_frequency", "max_natural_frequency"]
-    if getattr(lim, "poles", "all") != "all":
-        names.append("min_damping")
     if not any(np.any(np.isfinite(getattr(lim, n)[points])) for n in names):
         return np.ones(gains.shape, dtype=bool)
     safe = np.nan_to_num(gains, nan=1.0)
