@@ -473,8 +473,8 @@ def crossover_design(
         x = np.where(found2[:, None], x2, x)
         ctx = replace(ctx, band=None)
     if structure not in ("pi", "pid"):
-        x = _smooth(ctx, x, _later_neighbours(np.asarray(points, float).reshape(P, -1)),
-                    relative=objective == "max-crossover")
+        grid = np.asarray(points, float).reshape(P, -1)
+        x = _smooth(ctx, x, neighbours, _later_neighbours(grid), relative=objective == "max-crossover")
     shapes, score, gain, crossover, sets = _evaluate(ctx, x[:, None, :])
     feasible = np.isfinite(score[:, 0])
     return CrossoverChoice(
@@ -488,30 +488,42 @@ def crossover_design(
 
 
 #: Rounds of the smoothing pass of :func:`_smooth`.
-SMOOTH_ROUNDS = 2
+SMOOTH_ROUNDS = 6
+#: Fractions of the way toward the neighbours' shape tried in each round.
+SMOOTH_STEPS = (1.0, 0.5, 0.25, 0.125, 0.0625)
 
 
-def _smooth(ctx: _Context, x: np.ndarray, later: np.ndarray, relative: bool) -> np.ndarray:
-    """Take the next point's shape where it scores within ``TIE`` of the point's own.
+def _smooth(ctx: _Context, x: np.ndarray, earlier: np.ndarray, later: np.ndarray, relative: bool) -> np.ndarray:
+    """Move each point's shape toward its neighbours' as far as ``TIE`` allows.
 
-    The forward tie-break cannot help the first points of the grid; where the
-    objective is flat over the shapes (a lead's zero and pole trade against
-    each other), the pattern search may settle anywhere in the flat valley.
-    ``later`` indexes the nearest later point (-1 for none).  Not used for
-    pi/pid, whose second pass (integral action) already pins the shape.
+    Where the objective is flat over the shapes (a lead's zero and pole trade
+    against each other) the independent searches settle anywhere in the
+    valley, and neighbouring points get unrelated shapes.  Each round moves
+    every point toward the mean (log rates) of its nearest earlier and
+    later neighbours' shapes, by the largest of ``SMOOTH_STEPS`` that keeps
+    the score within ``TIE`` of the point's own best (the score before
+    smoothing, so the cost does not add up over rounds); all steps of a
+    round are one batched evaluation.  A larger band buys little: on the
+    boost-converter lead benchmark the largest step of the lead pole went
+    0.46 -> 0.17 at 1 %, 0.12 at 2 %, 0.08 at 3 % and 0.06 at 5 %.  Not used
+    for pi/pid, whose second pass (integral action) already pins the shape.
     """
     P = x.shape[0]
-    has = later >= 0
+    _, best, _, _, _ = _evaluate(ctx, x[:, None, :])
+    best = best[:, 0]
+    floor = best - TIE * np.abs(best) if relative else best - TIE
+    idx = np.arange(P)
+    steps = np.asarray(SMOOTH_STEPS)
     for _ in range(SMOOTH_ROUNDS):
-        _, own, _, _, _ = _evaluate(ctx, x[:, None, :])
-        other = x[np.where(has, later, np.arange(P))]
-        _, theirs, _, _, _ = _evaluate(ctx, other[:, None, :])
-        own, theirs = own[:, 0], theirs[:, 0]
-        band = own - TIE * np.abs(own) if relative else own - TIE
-        take = has & np.isfinite(theirs) & (theirs >= band)
-        if not np.any(take & np.any(other != x, axis=1)):
+        target = 0.5 * (x[np.where(earlier >= 0, earlier, idx)] + x[np.where(later >= 0, later, idx)])
+        trial = x[:, None, :] + steps[None, :, None] * (target - x)[:, None, :]  # (P, steps, d)
+        _, score, _, _, _ = _evaluate(ctx, trial)
+        good = np.isfinite(best)[:, None] & (score >= floor[:, None])
+        first = np.argmax(good, axis=1)  # the largest passing step (steps descend)
+        move = np.any(good, axis=1) & np.any(np.abs(target - x) > 1e-6, axis=1)
+        if not np.any(move):
             break
-        x = np.where(take[:, None], other, x)
+        x = np.where(move[:, None], trial[idx, first], x)
     return x
 
 
