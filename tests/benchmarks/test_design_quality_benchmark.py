@@ -183,6 +183,29 @@ def test_goal_coefficient_steps_within_the_references(tmp_path):
 
 
 @pytest.fixture(scope="module")
+def boost_lead(tmp_path_factory):
+    return bench.run_loop("boost_voltage", "lead", tmp_path_factory.mktemp("boost"), quick=False, grid=bench.QUICK_GRID)
+
+
+#: The boost loop's best lead pole moves with the load while the reference's
+#: (a band-pass design) sits at z = 0 throughout: a relative step of 0.
+#: Measured: the tool's pole steps 0.17 after the smoothing pass (0.46 before);
+#: 0.05 would cost about 6 % of crossover (docs/design.md, "Search").
+POLE_FOLLOWS_LOAD = pytest.mark.xfail(
+    strict=True, reason="issue 9 item 6 on boost_voltage lead: the pole's step is 0.17 against a goal of 0.05"
+)
+
+
+@pytest.mark.parametrize("coefficient", ["kc", "zc", pytest.param("pc", marks=POLE_FOLLOWS_LOAD)])
+def test_goal_lead_steps_on_the_boost_loop(boost_lead, coefficient):
+    # issue 9 item 6 on the lead structure, the loop where the steps were furthest off:
+    # at most 1.5 x the independent reference table's own step plus 0.05
+    tool, reference = boost_lead.steps[coefficient]
+    assert tool <= 1.5 * reference + 0.05
+    assert boost_lead.recheck_failed == 0
+
+
+@pytest.fixture(scope="module")
 def rule_results(tmp_path_factory):
     folder = tmp_path_factory.mktemp("rules")
     return [bench.run_rule(name, rule, folder, quick=True) for name, rule in bench.LOOPS.items() if rule]

@@ -498,32 +498,46 @@ def _smooth(ctx: _Context, x: np.ndarray, earlier: np.ndarray, later: np.ndarray
 
     Where the objective is flat over the shapes (a lead's zero and pole trade
     against each other) the independent searches settle anywhere in the
-    valley, and neighbouring points get unrelated shapes.  Each round moves
-    every point toward the mean (log rates) of its nearest earlier and
-    later neighbours' shapes, by the largest of ``SMOOTH_STEPS`` that keeps
-    the score within ``TIE`` of the point's own best (the score before
-    smoothing, so the cost does not add up over rounds); all steps of a
-    round are one batched evaluation.  A larger band buys little: on the
-    boost-converter lead benchmark the largest step of the lead pole went
-    0.46 -> 0.17 at 1 %, 0.12 at 2 %, 0.08 at 3 % and 0.06 at 5 %.  Not used
-    for pi/pid, whose second pass (integral action) already pins the shape.
+    valley, and neighbouring points get unrelated shapes.  Each round offers
+    every point its nearest earlier and later neighbours' shapes and
+    ``SMOOTH_STEPS`` of the way toward their mean (log rates), all in one
+    batched evaluation, and takes the one nearest both neighbours among
+    those scoring within ``TIE`` of the point's own best (the score before
+    smoothing, so the cost does not add up over rounds).  Whole shapes
+    settle a point that sits on another lead of the same crossover (a
+    valley with two arms, where the mean between them is poor); the partial
+    steps follow a best shape that moves with the operating point.  A
+    larger band buys little: on the boost-converter lead benchmark the
+    largest step of the lead pole went 0.46 -> 0.17 at 1 %, 0.12 at 2 %,
+    0.08 at 3 % and 0.06 at 5 %.  Not used for pi/pid, whose second pass
+    (integral action) already pins the shape.
     """
     P = x.shape[0]
     _, best, _, _, _ = _evaluate(ctx, x[:, None, :])
     best = best[:, 0]
     floor = best - TIE * np.abs(best) if relative else best - TIE
     idx = np.arange(P)
+    # a point with one neighbour is pulled toward that one alone
+    a = np.where(earlier >= 0, earlier, np.where(later >= 0, later, idx))
+    b = np.where(later >= 0, later, a)
     steps = np.asarray(SMOOTH_STEPS)
+
+    def distance(shape: np.ndarray, xa: np.ndarray, xb: np.ndarray) -> np.ndarray:
+        return np.sum((shape - xa) ** 2 + (shape - xb) ** 2, axis=-1)
+
     for _ in range(SMOOTH_ROUNDS):
-        target = 0.5 * (x[np.where(earlier >= 0, earlier, idx)] + x[np.where(later >= 0, later, idx)])
-        trial = x[:, None, :] + steps[None, :, None] * (target - x)[:, None, :]  # (P, steps, d)
+        xa, xb = x[a], x[b]
+        target = 0.5 * (xa + xb)
+        ladder = x[:, None, :] + steps[None, :, None] * (target - x)[:, None, :]
+        trial = np.concatenate([xa[:, None, :], xb[:, None, :], ladder], axis=1)  # (P, C, d)
         _, score, _, _, _ = _evaluate(ctx, trial)
         good = np.isfinite(best)[:, None] & (score >= floor[:, None])
-        first = np.argmax(good, axis=1)  # the largest passing step (steps descend)
-        move = np.any(good, axis=1) & np.any(np.abs(target - x) > 1e-6, axis=1)
+        far = np.where(good, distance(trial, xa[:, None, :], xb[:, None, :]), np.inf)
+        pick = np.argmin(far, axis=1)
+        move = far[idx, pick] < distance(x, xa, xb) - 1e-12
         if not np.any(move):
             break
-        x = np.where(move[:, None], trial[idx, first], x)
+        x = np.where(move[:, None], trial[idx, pick], x)
     return x
 
 

@@ -6,7 +6,7 @@ Method (see also docs/exact-intervals.md):
    lies on a boundary curve of the region (imaginary axis or unit circle for
    plain stability; rays, lines, circles, log-spirals and ``wn`` contours for
    specs), solved by :mod:`gainloom.lti.boundary` -- polynomial roots and
-   Newton polishing for lines and circles, bracketing (brentq) for the
+   Newton polishing for lines and circles, bracketing (bisection) for the
    transcendental z-plane curves; never read off a gain grid.  Gains where
    the leading coefficient ``d0 + K n0`` vanishes (a root through infinity)
    are candidates too.
@@ -25,7 +25,7 @@ denominator root in common *on* a boundary curve has a closed-loop root
 pinned there for every gain; it is reported with no intervals.
 
 Cost: one Python pass per loop for the candidate gains (a few numpy calls
-per curve, plus one brentq per crossing of a sampled z-plane curve), then a
+per curve, plus a batched bisection of the sampled z-plane curves), then a
 single batched root computation for every loop together.
 
 Fast sampling: every discrete loop is solved in the delta variable
