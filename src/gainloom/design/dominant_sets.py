@@ -33,6 +33,7 @@ built like the exact intervals of :mod:`gainloom.lti.intervals`:
 from __future__ import annotations
 
 import math
+from typing import cast
 
 import numpy as np
 
@@ -77,8 +78,10 @@ def _edges(loop: Loop, min_damping: float) -> list[np.ndarray | None]:
     """Sorted edges of every row (None: a root pinned to the unit circle or the spiral)."""
     nums, dens, _ = working_polynomials(loop)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        first = region_crossings(loop, None, SpecRegion(min_damping=min_damping, max_pole_radius=1.0 / FAST_FACTOR))
-        second = region_crossings(loop, None, SpecRegion(max_pole_radius=SLOW_EDGE))
+        # a Loop gives one dict per row
+        first = cast(list[dict[str, Crossings]], region_crossings(
+            loop, None, SpecRegion(min_damping=min_damping, max_pole_radius=1.0 / FAST_FACTOR)))
+        second = cast(list[dict[str, Crossings]], region_crossings(loop, None, SpecRegion(max_pole_radius=SLOW_EDGE)))
     out: list[np.ndarray | None] = []
     for i, (a, b) in enumerate(zip(first, second)):
         if a["stability"].fixed or a["damping"].fixed:
