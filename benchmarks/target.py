@@ -34,8 +34,8 @@ from gainloom.codegen.target_build import build_for_core
 from gainloom.codegen.target_run import count_instructions
 from gainloom.codegen.target_tools import CORES, find_target_tools
 from gainloom.design.gainsfile import read_gains
+from gainloom.job.design_job import run_design_job
 from gainloom.names import NUMBER_FORMATS
-from gainloom.report.run import run_design_job
 
 ROOT = Path(__file__).resolve().parents[1]
 DEFAULT_SCHEDULE = ROOT / "schedules" / "spindle_speed.yaml"

@@ -12,9 +12,10 @@ from types import SimpleNamespace
 
 import control
 import numpy as np
+import scipy.signal
 
 from gainloom import Loop
-from gainloom.design.table import GainTable, TableAxis
+from gainloom.design.table import FilterTable, GainTable, TableAxis
 from gainloom.names import CONTROLLER_COEFFICIENTS
 
 # Plausible ranges per coefficient for a small motor-drive speed loop
@@ -45,6 +46,38 @@ def make_table(structure="pi", dims=1, uniform=True, seed=3, limits=(-10.0, 12.0
     rng = np.random.default_rng(seed)
     coefficients = {n: rng.uniform(*_RANGES[n], size=shape) for n in CONTROLLER_COEFFICIENTS[structure]}
     return GainTable(structure, axes, coefficients, 1e-4, limits)
+
+
+def scipy_sections(centres: np.ndarray, ts: float, kinds=("notch", "low_pass")) -> tuple[FilterTable, ...]:
+    """Filter sections built with scipy only: a 20 dB notch of width 0.4 w0 and a
+    low-pass at 3 w0 with damping 0.5, Tustin prewarped at each centre
+    (``scipy.signal.bilinear`` with ``fs = w0 / tan(w0 ts / 2) / 2``)."""
+    sections = []
+    for kind in kinds:
+        rows = []
+        for w0 in np.ravel(centres):
+            if kind == "notch":
+                zeta_p = 0.4 / (2 * np.sqrt(0.1))  # width = 2 w0 sqrt(zeta_z zeta_p), depth zeta_z / zeta_p = 0.1
+                num, den, warp = [1, 2 * 0.1 * zeta_p * w0, w0**2], [1, 2 * zeta_p * w0, w0**2], w0
+            else:
+                warp = 3 * w0
+                num, den = [warp**2], [1, 2 * 0.5 * warp, warp**2]
+            b, a = scipy.signal.bilinear(num, den, fs=warp / np.tan(warp * ts / 2) / 2)
+            b = np.concatenate([np.zeros(3 - b.size), b]) / a[0]
+            rows.append([b[0], b[1], b[2], a[1] / a[0], a[2] / a[0]])
+        grid = np.array(rows).reshape(np.shape(centres) + (5,))
+        sections.append(FilterTable(kind, {name: grid[..., i] for i, name in enumerate(("b0", "b1", "b2", "a1", "a2"))}))
+    return tuple(sections)
+
+
+def filtered_table(structure="pi", dims=1, kinds=("notch", "low_pass")):
+    """:func:`make_table` with filter sections whose notch centre moves along the speed axis
+    (invented: 1,500 to 2,500 rad/s at ts = 1e-4 s)."""
+    table = make_table(structure, dims)
+    centres = np.broadcast_to(np.linspace(1500.0, 2500.0, table.shape[0]).reshape((-1,) + (1,) * (dims - 1)),
+                              table.shape)
+    return GainTable(table.structure, table.axes, table.coefficients, 1e-4, table.output_limits,
+                     scipy_sections(centres, 1e-4, kinds))
 
 
 # Invented: speed loop of a small fan, PI, Q15.  Duty 10..100 %, ts 1 ms.

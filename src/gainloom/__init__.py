@@ -14,6 +14,7 @@ from .design.engine import verify
 from .design.gainsfile import read_gains, write_gains
 from .design.results import DesignResult, VerifyResult
 from .errors import CodegenError, DesignError, GainloomError, InputError, ScheduleError
+from .job.design_job import JobResult, run_design_job
 from .lti.closed_loop import closed_loop_poles
 from .lti.discretize import discretize, discretize_loop
 from .lti.facts import LocusFacts, locus_facts
@@ -24,7 +25,6 @@ from .lti.regions import SpecRegion
 from .lti.stability import jury_test, routh_array
 from .lti.trace import LocusBranches, trace_locus
 from .report import write_verification
-from .report.run import JobResult, run_design_job
 from .schedule import Schedule, load_schedule
 from .schedule.cascade import Cascade, load_cascade
 from .simulation import Feedforward, LimitStep, LoadStep, PiecewiseLinear, Scenario, ScenarioSpecs, SimulationResult, run_scenario

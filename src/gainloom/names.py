@@ -14,6 +14,7 @@ __all__ = [
     "CONTROLLER_STRUCTURES",
     "CROSSOVER_OBJECTIVES",
     "DESIGN_STRATEGIES",
+    "FILTER_COEFFICIENTS",
     "FILTER_KEYS",
     "FILTER_KINDS",
     "HOLD_METHODS",
@@ -99,6 +100,10 @@ FILTER_KEYS: dict[str, tuple[str, ...]] = {
     "notch": ("frequency", "depth", "width"),
     "low_pass": ("frequency", "damping"),
 }
+
+#: Coefficients of one discrete filter section in the table, direct form
+#: ``y = b0 x + b1 x[k-1] + b2 x[k-2] - a1 y[k-1] - a2 y[k-2]`` (``a0 = 1``).
+FILTER_COEFFICIENTS: tuple[str, ...] = ("b0", "b1", "b2", "a1", "a2")
 
 
 def unknown_name_message(kind: str, name: str, known: tuple[str, ...]) -> str:

@@ -85,8 +85,8 @@ def test_design_writes_gains_and_exits_zero(tmp_path, schedule):
     assert "design" in done.stderr  # progress counter on stderr
     table, meta = read_gains(out / "gains.yaml")
     assert table.structure == "p"
-    assert meta["schedule"]["sha256"] and meta["passed"] is True
-    assert len(meta["points"]) == table.shape[0]
+    assert meta.schedule_sha256 and meta.passed is True
+    assert len(meta.points) == table.shape[0]
 
 def test_design_is_deterministic(tmp_path, schedule, main):
     out = tmp_path / "out"

@@ -277,7 +277,7 @@ def fan_jobs(tmp_path_factory):
     """The invented fan schedule of the job tests in float32, run with and without the target stage."""
     from cases import PASSING
 
-    from gainloom.report.run import run_design_job
+    from gainloom.job.design_job import run_design_job
 
     root = tmp_path_factory.mktemp("jobs")
     schedule = root / "fan.yaml"

@@ -16,7 +16,7 @@ from cases import STRICT, UNSTABLE
 
 from gainloom.codegen.harness import find_compiler
 from gainloom.codegen.target_tools import CORES, find_target_tools
-from gainloom.report.run import run_design_job
+from gainloom.job.design_job import run_design_job
 
 TOOLS = find_target_tools()
 COMPILER = find_compiler()

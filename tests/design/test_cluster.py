@@ -22,7 +22,7 @@ from gainloom.cli import main
 from gainloom.design.cluster import CLUSTER_ENVIRONMENT, cluster_address
 from gainloom.design.spread import run_study
 from gainloom.errors import InputError
-from gainloom.report.family import run_family
+from gainloom.job.family_job import run_family
 
 distributed = pytest.importorskip("distributed")
 

@@ -131,10 +131,10 @@ def test_between_points_catch_a_coarse_grid_and_refinement_fixes_it(tmp_path):
     coarse = gainloom.design_table(path)
     assert coarse.points_passed
     assert coarse.table_report.between, "the coarse grid must fail between its points"
-    assert all("min_damping" in e["failed"] for e in coarse.table_report.between)
+    assert all("min_damping" in e.failed for e in coarse.table_report.between)
     # independent re-check of one failing intermediate point with python-control
     entry = coarse.table_report.between[1]
-    x = entry["point"]["x"]
+    x = entry.point["x"]
     kp = np.interp(x, [0.0, 1.0], coarse.table.coefficients["kp"])  # firmware's linear interpolation
     plant = control.c2d(control.tf([1.0 + 9.0 * x], [0.02, 1.0]), 0.001, method="zoh")
     loop = kp * plant * control.tf([1.0], [1.0, 0.0], 0.001)
@@ -200,7 +200,7 @@ def test_tolerance_corners_are_checked_and_the_worst_reported(tmp_path):
     report = result.table_report
     assert report.tolerance_corners == 2
     # k raised by 50 % with the nominal kp lowers the damping: the +50 % corner is the worst
-    assert all(entry["scale"] == {"k": 1.5} for entry in report.tolerance_worst)
+    assert all(entry.scale == {"k": 1.5} for entry in report.tolerance_worst)
     assert report.tolerances  # nominal design sits near the damping bound, +50 % gain breaks it
     assert result.exit_code == 1
 
@@ -244,7 +244,7 @@ def test_step_limit_moves_gains_and_reports_the_cost(tmp_path):
     assert report.smoothing and "forced a worse design" in report.smoothing[0]
     kp = result.table.coefficients["kp"]
     steps = relative_steps(kp, 0)
-    reported = {tuple(e["index"]) for e in report.smoothness}
+    reported = {e.index for e in report.smoothness}
     for i, step in enumerate(steps):
         assert step <= 0.3 + 1e-12 or (i,) in reported
     assert result.points_passed  # lowering K of this loop keeps damping

@@ -117,7 +117,7 @@ def test_whole_table_passes_between_points_after_refinement(tmp_path):
     assert not report.between, report.between
     # refinement only ever adds breakpoints inside the original range
     for entry in report.inserted:
-        assert 0.0 < entry["value"] < 1.0
+        assert 0.0 < entry.value < 1.0
 
 
 def test_cancelling_the_slowest_pole_is_reported_with_its_decay(tmp_path):

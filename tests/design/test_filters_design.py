@@ -113,19 +113,6 @@ def test_without_the_notch_the_crossover_is_far_lower(two_mass):
     assert min(ratio) > 1.5 and np.median(ratio) > 3.0, ratio
 
 
-def test_design_job_on_the_demo_passes_and_generates_no_c_without_the_filters(tmp_path):
-    from gainloom.report.run import run_design_job
-
-    job = run_design_job(SCHEDULES / "two_mass_speed.yaml", tmp_path / "out", target=False)
-    stages = {s.stage: s for s in job.stages}
-    assert stages["design"].status == "pass"
-    # the C does not carry the filters yet: none is generated, nothing that runs it is run
-    assert stages["C code"].status == "not generated" and job.c_files == ()
-    assert stages["C check"].status == stages["simulation"].status == "not checked"
-    assert not any(s.failed for s in job.stages)
-    assert (tmp_path / "out" / "frequency.png").is_file() and not list((tmp_path / "out").glob("*.c"))
-
-
 def _auto_notch(schedule):
     from gainloom.schedule.filters import read_filters
     from gainloom.schedule.nodes import compose_text
@@ -172,7 +159,7 @@ def test_the_least_damped_pole_is_named_as_the_resonance(two_mass):
     assert any("comes from the plant's resonance" in n for n in failed.notes[p])
 
 
-def test_emit_refuses_a_table_designed_with_filters(two_mass, tmp_path):
+def test_emit_writes_the_sections_of_a_table_designed_with_filters(two_mass, tmp_path):
     import os
     import subprocess
     import sys
@@ -182,22 +169,52 @@ def test_emit_refuses_a_table_designed_with_filters(two_mass, tmp_path):
     schedule, result = two_mass
     gains = write_gains(result, tmp_path / "two_mass.gains.yaml")
     env = dict(os.environ, PYTHONPATH=os.pathsep.join(p for p in sys.path if p))
-    for extra in ([], ["--schedule", str(schedule.path)]):
-        done = subprocess.run([sys.executable, "-m", "gainloom", "emit", str(gains), "--out", str(tmp_path / "c"), *extra],
-                              env=env, capture_output=True, text=True, check=False)
-        # a located one-line error, exit 2, and no C written
-        assert done.returncode == 2, done.stderr
-        assert "controller.filters (notch)" in done.stderr and "Traceback" not in done.stderr
-        assert not (tmp_path / "c").exists() or not list((tmp_path / "c").glob("*.c"))
+    done = subprocess.run([sys.executable, "-m", "gainloom", "emit", str(gains), "--out", str(tmp_path / "c"),
+                           "--schedule", str(schedule.path)], env=env, capture_output=True, text=True, check=False)
+    assert done.returncode == 0, done.stderr
+    source = (tmp_path / "c" / "tms.c").read_text()
+    assert "tms_f1_b0_table" in source and "tms_filters_pass" in source
 
 
-def test_simulation_refuses_a_schedule_with_filters(two_mass):
+def test_simulation_refuses_a_table_without_the_schedules_filters(two_mass):
     from gainloom import InputError
-    from gainloom.report.run import default_scenario
+    from gainloom.job.design_job import default_scenario
     from gainloom.simulation import run_scenario
 
     schedule, result = two_mass
     scenario, _ = default_scenario(schedule, result)
-    # the simulation does not run filter sections yet: refused, not run without them
-    with pytest.raises(InputError, match=r"controller\.filters"):
-        run_scenario(schedule, result.table, scenario, "float32")
+    bare = replace(result.table, filters=())
+    # the table's sections are what the C runs: a table without them is another controller
+    with pytest.raises(InputError, match=r"1 controller\.filters section\(s\) and the gain table 0"):
+        run_scenario(schedule, bare, scenario, "float32")
+    ideal = run_scenario(schedule, result.table, scenario, "float64")
+    assert ideal.stable and ideal.passed
+
+
+def test_verify_judges_the_grid_points_with_the_tables_own_sections(two_mass):
+    from gainloom.design.engine import verify
+    from gainloom.design.table import FilterTable
+
+    schedule, result = two_mass
+    table = result.table
+    # the same table with its notch moved to 0.6 x the resonance: the loop at the grid points must
+    # change (the C would run this notch), while the designed sections give the design's numbers
+    (notch,) = table.filters
+    load = table.axes[0].values
+    jm, k = 2.0e-4, 474.0  # schedules/two_mass_speed.yaml
+    wr = np.sqrt(k * (jm + load * jm) / (jm * load * jm))
+    depth, zeta_p = 0.1, 0.4 / (2 * np.sqrt(0.1))
+    moved = []
+    for w in 0.6 * wr:
+        # Tustin prewarped at the centre: scipy.signal.bilinear with fs = w / tan(w ts / 2) / 2
+        b, a = scipy.signal.bilinear([1, 2 * depth * zeta_p * w, w**2], [1, 2 * zeta_p * w, w**2],
+                                     fs=w / np.tan(w * 1.25e-4 / 2) / 2)
+        moved.append(np.concatenate([b / a[0], a[1:] / a[0]]))
+    grid = np.array(moved)
+    shifted = replace(table, filters=(FilterTable("notch", {n: grid[:, i] for i, n in
+                                                            enumerate(("b0", "b1", "b2", "a1", "a2"))}),))
+    as_designed = verify(schedule, table)
+    as_moved = verify(schedule, shifted)
+    np.testing.assert_allclose(as_designed.analysis.phase_margin, result.analysis.phase_margin, rtol=1e-9)
+    assert np.max(np.abs(as_moved.analysis.phase_margin - as_designed.analysis.phase_margin)) > 1.0
+    assert not as_moved.passed and notch.kind == "notch"

@@ -25,7 +25,8 @@ def test_round_trip_is_exact_and_deterministic(tmp_path, suffix):
     second = write_gains(table, tmp_path / f"b{suffix}")
     assert first.read_bytes() == second.read_bytes()
     back, meta = read_gains(first)
-    assert meta["format"] == GAINS_FORMAT
+    assert meta.format == GAINS_FORMAT
+    assert meta.to_dict()["schedule"] == {"path": None, "sha256": None} and meta.path == str(first)
     assert back.structure == "pi" and back.shape == (3, 2)
     for name in ("kp", "ki_ts"):
         # bit-exact: shortest round-trip decimals (Python repr)
@@ -63,6 +64,7 @@ def good_doc(tmp_path):
         (lambda d: d["axes"][0].update(values=[0, 0, 1]), "axes[0].values", "strictly increasing"),
         (lambda d: d.update(output_limits=[1, -1]), "output_limits", "u_min < u_max"),
         (lambda d: d.update(sample_period=[[0, 1]] * 3), "sample_period", "positive"),
+        (lambda d: d.update(design=5), "design", "expected a mapping of design settings"),
     ],
 )
 def test_bad_files_name_file_line_and_key(tmp_path, mutate, key, fragment):
@@ -103,11 +105,11 @@ def test_unreadable_and_non_mapping_files(tmp_path):
 def test_provenance_notes_say_what_the_record_holds_against_the_file():
     from gainloom.design.gainsfile import GainsMetadata, compromise_points, provenance_notes
 
-    clean = GainsMetadata({"schedule": {"sha256": "a" * 64}, "passed": True, "points": [{"index": 0}]})
+    clean = GainsMetadata(schedule_sha256="a" * 64, passed=True, points=[{"index": 0}])
     assert provenance_notes(clean, "a" * 64) == [] and provenance_notes(clean) == []
     other = provenance_notes(clean, "b" * 64)
     assert len(other) == 1 and "different version" in other[0]
-    failed = GainsMetadata({"passed": False, "points": [{"index": 0, "compromise": True}, {"index": 3, "compromise": True}]})
+    failed = GainsMetadata(passed=False, points=[{"index": 0, "compromise": True}, {"index": 3, "compromise": True}])
     assert compromise_points(failed) == [0, 3]
     notes = provenance_notes(failed, "b" * 64)  # no recorded hash: nothing to compare
     assert len(notes) == 2 and "did not meet every spec" in notes[0] and "indices 0, 3" in notes[1]

@@ -105,3 +105,46 @@ def test_points_are_batched_with_padding():
     m = data_margins(w2, np.vstack([loop, loop]))
     assert m.phase_margin[0] == single.phase_margin[0] == m.phase_margin[1]
     assert m.gain_margin_db[0] == single.gain_margin_db[0]
+
+
+def test_step_deviation_bound_holds_for_two_exact_sampled_loops():
+    # Two discrete loops known exactly (python-control ZOH of the invented plant with
+    # one sample of computation delay, and the same plant with 20 % more inertia): the
+    # bound from their responses on the unit circle must hold for the step responses
+    # python-control simulates (inverse z-transform bounded by the integral of its
+    # modulus, textbook inequality), and be within a factor 3 of it on these loops.
+    from gainloom.lti.data_margins import step_deviation_bound
+
+    w = np.geomspace(1e-2, 0.99999 * np.pi / TS, 5000)[np.newaxis, :]
+    pi = ct.tf([KP + KI_TS, -KP], [1, -1], TS)
+    delay = ct.tf([1], [1, 0], TS)
+    loops, steps = [], []
+    for inertia in (J, 1.2 * J):
+        plant = ct.sample_system(ct.tf([KT], np.polymul([inertia, B], [TAU, 1])), TS, method="zoh")
+        loop = pi * delay * plant
+        loops.append(ct.frequency_response(loop, w[0]).complex[np.newaxis, :])
+        steps.append(ct.step_response(ct.feedback(loop, 1), T=np.arange(4000) * TS).outputs)
+    bound = step_deviation_bound(w, loops[0], loops[1], np.array([TS]))[0]
+    actual = np.max(np.abs(steps[0] - steps[1]))
+    assert actual <= bound <= 3 * actual
+
+
+def test_a_gap_beside_the_sensitivity_peak_is_noted():
+    # Ms of this loop peaks at 105 rad/s, just above the 99 rad/s crossover (dense grid);
+    # samples missing from 101 to 400 rad/s leave the crossover judged but not the peak,
+    # which the samples underestimate (python-control's stability margin on the full
+    # grid is the reference for the peak)
+    w = _grid()
+    loop = _loop(w)
+    reference = 1 / ct.stability_margins(ct.frd(loop[0], w[0]))[2]
+    m = data_margins(w, np.where((w > 101) & (w < 400), np.nan, loop))
+    assert m.judged[0]
+    assert m.sensitivity_peak[0] < reference
+    assert any(note.startswith("a gap in the data borders the sensitivity peak") for note in m.coverage[0])
+
+
+def test_few_samples_near_the_crossover_are_noted():
+    # 30 samples over 3.9 decades: 5 within an octave of the 99 rad/s crossover; 400: 62
+    thin, dense = (data_margins(w, _loop(w)) for w in (_grid(30), _grid(400)))
+    assert any(note.startswith("only 5 samples within an octave of the crossover") for note in thin.coverage[0])
+    assert dense.coverage == ((),)

@@ -13,11 +13,15 @@ import pytest
 from gainloom import design_cascade, load_cascade
 from gainloom.design.cascade import inner_points_at, outer_plant
 from gainloom.design.lookup import interpolate_table
-from gainloom.report.cascade_run import default_cascade_scenario
+from gainloom.job.cascade_job import default_cascade_scenario
 from gainloom.simulation.cascade import run_cascade
 from gainloom.simulation.cascade_plot import plot_cascade
 
 DEMO = Path(__file__).resolve().parents[2] / "schedules" / "servo_cascade.yaml"
+
+
+def _tables(design):
+    return tuple(result.table for result in design.results)
 
 
 @pytest.fixture(scope="module")
@@ -31,7 +35,7 @@ def test_small_step_matches_the_lifted_loop_closed_by_python_control(demo):
     # (python-control feedback and step_response; PI as in DEVELOPERS.md,
     # kp + ki_ts z / (z - 1)) with P the lifted plant.
     scenario = replace(default_cascade_scenario(demo), reference_step=1.0, load_time=1.0, duration=0.05)
-    run = run_cascade(demo.cascade, demo.schedules, demo.results, scenario, "float64")
+    run = run_cascade(demo.cascade, demo.schedules, _tables(demo), scenario, "float64")
     speed = run.loops[1]
     assert speed.metrics.saturation_fraction == 0 and run.loops[0].metrics.saturation_fraction == 0
     inner, outer = demo.schedules
@@ -49,7 +53,7 @@ def test_small_step_matches_the_lifted_loop_closed_by_python_control(demo):
 
 def test_demo_run_saturates_recovers_and_rejects_the_load(demo):
     scenario = default_cascade_scenario(demo)
-    run = run_cascade(demo.cascade, demo.schedules, demo.results, scenario, "q15")
+    run = run_cascade(demo.cascade, demo.schedules, _tables(demo), scenario, "q15")
     current, speed = run.loops
     assert run.stable
     # the 70 rad/s step asks more current than the 20 A reference limit: the speed loop saturates

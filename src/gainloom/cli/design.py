@@ -2,7 +2,7 @@
 
 Design the gain table, emit the C, compile and check it, re-check the table
 after rounding, run a default scheduled simulation and write the
-verification log (see :func:`gainloom.report.run.run_design_job`).  The CLI
+verification log (see :func:`gainloom.job.design_job.run_design_job`).  The CLI
 only parses, shows progress and prints the summary.
 """
 
@@ -12,12 +12,16 @@ import argparse
 import math
 import sys
 from pathlib import Path
+from typing import TYPE_CHECKING, TextIO
 
 from ..errors import InputError
 from ..names import NUMBER_FORMATS
 from ..outputs import check_output_folder
 from ..safety import CAUTION
 from .output import format_number, format_table, print_json
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..design.results import TableReport
 
 HELP = "design gains at every operating point, emit and check the C, simulate, and write the verification log"
 
@@ -195,30 +199,31 @@ def _where(values: dict) -> str:
     return ", ".join(f"{name}={format_number(float(value))}" for name, value in values.items())
 
 
-def print_table_report(report, stream) -> None:
+def print_table_report(report: TableReport, stream: TextIO) -> None:
     """Whole-table check lines (the first ten of each kind; the log has all)."""
     print(f"between points: {report.between_checked} checked, {len(report.between)} failing", file=stream)
-    for entry in report.between[:10]:
-        print(f"  interval {entry['interval']} at {_where(entry['point'])}: {', '.join(entry['failed'])}", file=stream)
+    for failure in report.between[:10]:
+        print(f"  interval {list(failure.interval)} at {_where(failure.point)}: {', '.join(failure.failed)}",
+              file=stream)
     if report.tolerance_corners:
         print(
             f"tolerances: {report.tolerance_corners} corner(s)/sample(s) per point, "
             f"{len(report.tolerances)} point(s) failing at their worst corner",
             file=stream,
         )
-        for entry in report.tolerances[:10]:
-            corner = ", ".join(f"{name} x{format_number(float(v))}" for name, v in entry["scale"].items())
-            print(f"  {_where(entry['point'])} worst corner {corner}: {', '.join(entry['failed'])}", file=stream)
-    for entry in report.smoothness[:10]:
-        print(f"smoothness: {entry['coefficient']} step {format_number(entry['step'])} > "
-              f"{format_number(entry['limit'])} along {entry['axis']} at {entry['index']}", file=stream)
-    for entry in report.monotone[:10]:
-        print(f"monotone: {entry['coefficient']} not {entry['direction']} along {entry['axis']} at {entry['index']}",
+        for worst in report.tolerances[:10]:
+            corner = ", ".join(f"{name} x{format_number(float(v))}" for name, v in worst.scale.items())
+            print(f"  {_where(worst.point)} worst corner {corner}: {', '.join(worst.failed)}", file=stream)
+    for step in report.smoothness[:10]:
+        print(f"smoothness: {step.coefficient} step {format_number(step.step)} > "
+              f"{format_number(step.limit)} along {step.axis} at {list(step.index)}", file=stream)
+    for change in report.monotone[:10]:
+        print(f"monotone: {change.coefficient} not {change.direction} along {change.axis} at {list(change.index)}",
               file=stream)
     for note in report.smoothing:
         print(f"smoothing: {note}", file=stream)
-    for entry in report.inserted:
-        print(f"inserted breakpoint {entry['axis']} = {format_number(entry['value'])}", file=stream)
+    for inserted in report.inserted:
+        print(f"inserted breakpoint {inserted.axis} = {format_number(inserted.value)}", file=stream)
 
 
 def print_stages(job, stream) -> None:
@@ -258,7 +263,7 @@ def verdict_line(job) -> str:
 
 def run(args: argparse.Namespace) -> int:
     """Run the whole job, print the summary and the caution."""
-    from ..report.run import run_design_job
+    from ..job.design_job import run_design_job
     from ..schedule.cascade import is_cascade_file
 
     out = check_output_folder(args.out)

@@ -1,5 +1,5 @@
 """``gainloom design CASCADE --out DIR``: the cascade branch of the design
-command (:func:`gainloom.report.cascade_run.run_cascade_job`); the CLI only
+command (:func:`gainloom.job.cascade_job.run_cascade_job`); the CLI only
 parses, shows progress and prints each loop's table and the cascade verdict."""
 
 from __future__ import annotations
@@ -49,13 +49,13 @@ def _json(job) -> dict:
 
 def run_cascade(args: argparse.Namespace, out) -> int:
     """Run the cascade job for ``gainloom design`` and print its summary."""
-    from ..report.cascade_run import run_cascade_job
+    from ..job.cascade_job import run_cascade_job
 
     if args.gains_name != "gains.yaml":
         raise InputError("a cascade writes one gains file per loop (<loop>.gains.yaml); --gains-name does not apply")
     job = run_cascade_job(args.schedule, out, number_format=args.number_format, prefix=args.prefix,
                           force=args.force, compile=not args.no_compile, simulate=not args.no_simulate,
-                          progress=Counter(enabled=not args.quiet))
+                          target=not args.no_target, progress=Counter(enabled=not args.quiet))
     if args.json:
         print_json(_json(job))
     else:

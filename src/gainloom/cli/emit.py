@@ -11,7 +11,7 @@ from ..c_names import c_names
 from ..codegen.emit import emit_c
 from ..codegen.harness import check_generated_c
 from ..codegen.verdict import table_verdict
-from ..design.gainsfile import compromise_points, provenance_notes, read_gains
+from ..design.gainsfile import GainsMetadata, compromise_points, provenance_notes, read_gains
 from ..errors import CodegenError
 from ..names import NUMBER_FORMATS
 from ..safety import CAUTION
@@ -83,10 +83,10 @@ def run(args: argparse.Namespace) -> int:
             args.error_full_scale = schedule.codegen.error_full_scale
         if args.output_full_scale is None:
             args.output_full_scale = schedule.codegen.output_full_scale
-    _refuse_filters(metadata, schedule)
+    _check_filters(metadata, table, schedule)
     args.number_format = args.number_format or "float32"
     args.prefix = "ctl" if args.prefix is None else args.prefix
-    source_sha256 = (metadata.get("schedule") or {}).get("sha256")
+    source_sha256 = metadata.schedule_sha256
     gains_sha256 = hashlib.sha256(gains_path.read_bytes()).hexdigest()
     report: dict = {"format": args.number_format, "prefix": args.prefix}
     code = 0
@@ -98,12 +98,12 @@ def run(args: argparse.Namespace) -> int:
             code = 1
     # the header's verdict: the design recorded in the gains file and the
     # re-check of the rounded table; either unknown counts as not verified
-    recorded = metadata.get("passed")
+    recorded = metadata.passed
     compromises = compromise_points(metadata)
     report["compromise_points"] = compromises
     if compromises:
         recorded = False  # a best compromise is not a design: never emitted as verified
-    verdict = table_verdict(recorded if isinstance(recorded, bool) else None, stored_passed, args.number_format)
+    verdict = table_verdict(recorded, stored_passed, args.number_format)
     report["verified"] = verdict.verified
     report["verdict"] = verdict.basis
     written = emit_c(
@@ -162,15 +162,19 @@ def run(args: argparse.Namespace) -> int:
     return code
 
 
-def _refuse_filters(metadata: dict, schedule) -> None:
-    """No C for a table designed with filter sections: the C does not implement them yet."""
-    recorded = (metadata.get("design") or {}).get("filters") or []
-    if recorded or (schedule is not None and schedule.controller.filters):
-        kinds = ", ".join(f["kind"] for f in recorded) if recorded else ", ".join(
-            f.kind for f in schedule.controller.filters)
+def _check_filters(metadata: GainsMetadata, table, schedule) -> None:
+    """Refuse a table whose tabulated filter sections differ from those it was designed with.
+
+    A gains file written before the C carried filter sections records them
+    under ``design.filters`` but has no ``filters`` tables: C without them
+    would be another controller than the one verified.
+    """
+    recorded = (metadata.design or {}).get("filters") or []
+    expected = len(schedule.controller.filters) if schedule is not None else len(recorded)
+    if expected != len(table.filters):
         raise CodegenError(
-            f"the table was designed with controller.filters ({kinds}); the generated C does not implement "
-            "them yet, and C without them would be another controller than the one verified"
+            f"the table was designed with {expected} controller.filters section(s) but the gains file "
+            f"tabulates {len(table.filters)}; design it again with this gainloom"
         )
 
 

@@ -41,8 +41,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Run the family and print its summary."""
+    from ..job.family_job import run_family
     from ..outputs import check_output_folder
-    from ..report.family import run_family
 
     engine = engine_options(args)
     check_output_folder(args.out)

@@ -39,6 +39,13 @@ schedule's parameters, e.g. "ke * speed" or "-vbus / sqrt(3)"):
   --limit-step TIME:LOW:HIGH   run-time output limits from TIME on; repeatable
   --limit-step TIME:table      the table's limits again from TIME on
 
+a cascade file (top-level 'loops', docs/cascade.md) runs the cascade at its
+rates from its design folder (--gains DIR holding <loop>.gains.yaml), at a
+held operating point (--ramp NAME=VALUE for any loop's variable; default the
+outer loop at the middle of its ranges, the inner at inner_at), with an outer
+reference step (--reference) and one load step (--load-step TIME:AMPLITUDE,
+inner measurement units at the outer plant part's input).
+
 exit status: 0 stable and every --max-* limit holds, 1 otherwise, 2 bad input.
 """
 
@@ -49,9 +56,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
     parser.formatter_class = argparse.RawDescriptionHelpFormatter
     parser.epilog = _EPILOG
-    parser.add_argument("schedule", metavar="SCHEDULE", help="schedule file (YAML)")
-    parser.add_argument("--gains", metavar="FILE", required=True, help="gains file written by gainloom design")
-    parser.add_argument("--duration", metavar="SECONDS", type=float, default=0.5, help="length of the run (default 0.5)")
+    parser.add_argument("schedule", metavar="SCHEDULE", help="schedule or cascade file (YAML)")
+    parser.add_argument("--gains", metavar="FILE", required=True,
+                        help="gains file written by gainloom design (a cascade: its design folder)")
+    parser.add_argument("--duration", metavar="SECONDS", type=float,
+                        help="length of the run (default 0.5; a cascade: 6 times the outer loop's time scale)")
     parser.add_argument(
         "--ramp", metavar="AXIS=START[:END[@T0:T1]]", action="append", default=[],
         help="path of a scheduling variable: held, or a linear ramp (see below); repeatable",
@@ -60,7 +69,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--path", metavar="AXIS=T:V,T:V,...", action="append", default=[],
         help="piecewise-linear path of a scheduling variable by breakpoints; repeatable",
     )
-    parser.add_argument("--reference", metavar="VALUE", type=float, default=1.0, help="reference step size (default 1.0)")
+    parser.add_argument("--reference", metavar="VALUE", type=float,
+                        help="reference step size (default 1.0; a cascade: 0.1 of the outer error full scale)")
     parser.add_argument("--reference-at", metavar="SECONDS", type=float, default=0.0, help="time of the reference step")
     parser.add_argument("--reference-path", metavar="T:V,T:V,...", help="piecewise-linear reference instead of a step")
     parser.add_argument(
@@ -176,9 +186,10 @@ def build_scenario(args: argparse.Namespace):
     )
     from ..simulation.signals import SignalExpression
 
+    duration = 0.5 if args.duration is None else args.duration
     trajectory = {}
     for text in args.ramp:
-        name, path = parse_ramp(text, args.duration)
+        name, path = parse_ramp(text, duration)
         if name in trajectory:
             raise InputError(f"scheduling variable {name!r} has two paths")
         trajectory[name] = path
@@ -194,7 +205,7 @@ def build_scenario(args: argparse.Namespace):
     if args.reference_path:
         reference = _breakpoints(args.reference_path, "--reference-path")
     else:
-        reference = PiecewiseLinear.step(args.reference, args.reference_at)
+        reference = PiecewiseLinear.step(1.0 if args.reference is None else args.reference, args.reference_at)
     loads = tuple(LoadStep(*_pair(text, "--load-step")) for text in args.load_step)
     feedforward = None
     if args.feedforward is not None:
@@ -209,7 +220,7 @@ def build_scenario(args: argparse.Namespace):
         max_saturation_fraction=args.max_saturation,
     )
     return Scenario(
-        args.duration,
+        duration,
         trajectory,
         reference=reference,
         load_steps=loads,
@@ -225,7 +236,13 @@ def run(args: argparse.Namespace) -> int:
     """Simulate; exit 0 when stable and within every limit, else 1."""
     from ..design.gainsfile import provenance_notes, read_gains
     from ..schedule import load_schedule
+    from ..schedule.cascade import is_cascade_file
     from ..simulation import run_scenario
+
+    if is_cascade_file(args.schedule):
+        from .simulate_cascade import run_cascade
+
+        return run_cascade(args)
 
     scenario = build_scenario(args)  # bad options fail before any file is read
     schedule = load_schedule(args.schedule)

@@ -135,6 +135,23 @@ def _comment(lines: list[str]) -> list[str]:
     return out
 
 
+def _drop_repeated_includes(sections: list[str]) -> list[str]:
+    """Each section without the ``#include`` lines an earlier section already has.
+
+    The loops' sections follow each other in one file; an include repeated
+    after the first loop's code would be an include preceded by code (MISRA
+    C:2012 rule 20.1) and adds nothing: the header is already in.
+    """
+    seen: set[str] = set()
+    kept = []
+    for section in sections:
+        lines = section.split("\n")
+        includes = {line for line in lines if line.startswith("#include ")}
+        kept.append("\n".join(line for line in lines if line not in seen))
+        seen |= includes
+    return kept
+
+
 def render_cascade_files(loops: list[CascadeLoopC], prefix: str, number_format: str, sha256: str,
                          options: dict | None = None) -> dict[str, str]:
     """Render the cascade's one header and one source.
@@ -174,8 +191,9 @@ def render_cascade_files(loops: list[CascadeLoopC], prefix: str, number_format: 
     dividers = [f"#define {c_names(lp.prefix).macro('EVERY')} ({lp.rate_factor})  "
                 f"/* base periods per {lp.name} period */" for lp in loops[1:]]
     header = "\n".join(top + ["", f"#ifndef {names.guard}", f"#define {names.guard}", ""] + about + [""]
-                       + dividers + [""]) + "\n" + "\n".join(headers) + f"\n#endif /* {names.guard} */\n"
-    source = "\n".join(top) + "\n\n" + "\n".join(sources)
+                       + dividers + [""]) + "\n" + "\n".join(_drop_repeated_includes(headers)) \
+        + f"\n#endif /* {names.guard} */\n"
+    source = "\n".join(top) + "\n\n" + "\n".join(_drop_repeated_includes(sources))
     return {names.header: header, names.source: source}
 
 

@@ -515,7 +515,7 @@ def _mirror_outputs(program: HarnessProgram) -> tuple[np.ndarray, np.ndarray]:
                       program.feedforward[:clear_at], tuple(v[:clear_at] for v in extras))
     second = run_steps(layout, {n: v[clear_at:] for n, v in step_gains.items()}, program.errors[clear_at:],
                        program.feedforward[clear_at:], tuple(v[clear_at:] for v in extras))
-    fields = state_fields(layout.structure)
+    fields = state_fields(layout.structure, layout.sections)
     mirror_steps = np.column_stack(
         [np.concatenate([first.output, second.output])]
         + [np.concatenate([first.states[f], second.states[f]]) for f in fields]

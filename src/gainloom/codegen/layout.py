@@ -177,6 +177,10 @@ class TableLayout:
         Tabulated limits ``u_min``, ``u_max`` (empty when the limits are
         constant), stored in the output's format (Q15/Q31 of output full
         scale, or float32) and looked up with the coefficients.
+    filter_tables : tuple of CoefficientLayout
+        The filter sections' ``f<n>_b0 .. f<n>_a2`` (:attr:`GainTable.filter_grids`),
+        dimensionless, each array with its own power-of-two scaling like the
+        controller coefficients, looked up with them.
     """
 
     table: GainTable
@@ -187,11 +191,17 @@ class TableLayout:
     output_full_scale: float | None
     limits: tuple
     limit_tables: tuple[CoefficientLayout, ...] = ()
+    filter_tables: tuple[CoefficientLayout, ...] = ()
 
     @property
     def looked_up(self) -> tuple[CoefficientLayout, ...]:
-        """Everything the lookup interpolates: the coefficients, then any tabulated limits."""
-        return self.coefficients + self.limit_tables
+        """Everything the lookup interpolates: the coefficients, the filter sections, then any tabulated limits."""
+        return self.coefficients + self.filter_tables + self.limit_tables
+
+    @property
+    def sections(self) -> int:
+        """Number of filter sections after the controller."""
+        return len(self.table.filters)
 
     @property
     def structure(self) -> str:
@@ -309,8 +319,9 @@ def layout_table(
         if table.limits_vary:
             limit_tables = tuple(CoefficientLayout(name, grid.astype(np.float32), None, 1.0)
                                  for name, grid in zip(LIMIT_TABLES, table.limit_grids))
+        filters = tuple(_coefficient_layout(name, grid, fmt, 1.0) for name, grid in table.filter_grids.items())
         return TableLayout(table, fmt, axes, coefficients, None, None, (np.float32(low), np.float32(high)),
-                           limit_tables)
+                           limit_tables, filters)
     error_fs = 1.0 if error_full_scale is None else float(error_full_scale)
     output_fs = max(abs(low), abs(high)) if output_full_scale is None else float(output_full_scale)
     for label, value in (("error_full_scale", error_fs), ("output_full_scale", output_fs)):
@@ -336,7 +347,8 @@ def layout_table(
                              for name, grid in zip(LIMIT_TABLES, table.limit_grids))
         if not np.all(limit_tables[0].stored < limit_tables[1].stored):
             raise CodegenError(f"tabulated output limits collapse somewhere in {fmt.name} of full scale {output_fs:g}")
-    return TableLayout(table, fmt, axes, coefficients, error_fs, output_fs, limits, limit_tables)
+    filters = tuple(_coefficient_layout(name, grid, fmt, 1.0) for name, grid in table.filter_grids.items())
+    return TableLayout(table, fmt, axes, coefficients, error_fs, output_fs, limits, limit_tables, filters)
 
 
 def _format(name: str) -> NumberFormat:

@@ -54,6 +54,7 @@ __all__ = [
     "lookup_gains",
     "output_code",
     "run_steps",
+    "section_fields",
     "state_fields",
 ]
 
@@ -68,13 +69,30 @@ _STATE_FIELDS = {
 }
 
 
-def state_fields(structure: str) -> tuple[str, ...]:
+#: State fields of one filter section ``n``: its input and output one and two samples back.
+_SECTION_FIELDS = ("x1", "x2", "y1", "y2")
+
+
+def section_fields(sections: int) -> tuple[str, ...]:
+    """State fields of the filter sections: ``f1_x1, f1_x2, f1_y1, f1_y2, f2_x1, ...``."""
+    return tuple(f"f{n + 1}_{name}" for n in range(sections) for name in _SECTION_FIELDS)
+
+
+def state_fields(structure: str, sections: int = 0) -> tuple[str, ...]:
     """Fields of ``<prefix>_state_t`` for a structure, in declaration order.
 
     ``e1`` is the previous error (state format), ``x`` the integrator, ``d``
-    the filtered derivative, ``v``/``v1``/``v2`` the lead/lag section outputs.
+    the filtered derivative, ``v``/``v1``/``v2`` the lead/lag section outputs;
+    then per filter section its past inputs and outputs (:func:`section_fields`).
     """
-    return _STATE_FIELDS[structure]
+    return _STATE_FIELDS[structure] + section_fields(sections)
+
+
+def _section_count(gains: dict) -> int:
+    count = 0
+    while f"f{count + 1}_b0" in gains:
+        count += 1
+    return count
 
 
 def locate(axis: AxisLayout, fmt_is_fixed: bool, interp_frac: int, x) -> tuple[np.ndarray, np.ndarray]:
@@ -253,7 +271,8 @@ class FloatStepper:
     def __init__(self, structure: str, gains: dict[str, np.ndarray], limits: tuple, dtype) -> None:
         self.structure = structure
         self.dtype = dtype
-        self.fields = state_fields(structure)
+        self.sections = _section_count(gains)
+        self.fields = state_fields(structure, self.sections)
         self.g = {name: np.asarray(values).astype(dtype) for name, values in gains.items()}
         self.u_min, self.u_max = dtype(limits[0]), dtype(limits[1])
         self.in_force = (self.u_min, self.u_max)
@@ -269,7 +288,7 @@ class FloatStepper:
         (as the C's optional run-time limits; ``None``: the table's).  The
         limits the step used are left in ``in_force``.
         """
-        g, state, structure, zero = self.g, self.state, self.structure, self.zero
+        g, state, structure, zero, run = self.g, self.state, self.structure, self.zero, self._filters
         e = error if np.isfinite(error) else zero
         f = zero if feedforward is None or not np.isfinite(feedforward) else self.dtype(feedforward)
         u_min, u_max = (g["u_min"][k], g["u_max"][k]) if self.tabulated else (self.u_min, self.u_max)
@@ -278,12 +297,12 @@ class FloatStepper:
         self.in_force = (u_min, u_max)  # read by the simulator (time in saturation)
         if structure in ("lead", "lag"):
             state["v"] = g["pc"][k] * state["v"] + g["kc"][k] * (e - g["zc"][k] * state["e1"])
-            u = state["v"] + f
+            u = run(k, state["v"], True) + f
         elif structure == "leadlag":
             v1 = g["pc1"][k] * state["v1"] + g["kc"][k] * (e - g["zc1"][k] * state["e1"])
             state["v2"] = g["pc2"][k] * state["v2"] + (v1 - g["zc2"][k] * state["v1"])
             state["v1"] = v1
-            u = state["v2"] + f
+            u = run(k, state["v2"], True) + f
         else:
             proportional = g["kp"][k] * e
             if "d" in self.fields:
@@ -294,7 +313,7 @@ class FloatStepper:
                 trial = proportional + candidate
                 if "d" in self.fields:
                     trial = trial + state["d"]
-                trial = trial + f
+                trial = run(k, trial, False) + f
                 if not ((trial > u_max and increment > zero) or (trial < u_min and increment < zero)):
                     state["x"] = candidate
                 u = proportional + state["x"]
@@ -302,7 +321,7 @@ class FloatStepper:
                 u = proportional
             if "d" in self.fields:
                 u = u + state["d"]
-            u = u + f
+            u = run(k, u, True) + f
         state["e1"] = e
         unsaturated = u
         if u > u_max:
@@ -310,6 +329,22 @@ class FloatStepper:
         elif u < u_min:
             u = u_min
         return self.dtype(u), self.dtype(unsaturated)
+
+    def _filters(self, k: int, value, commit: bool):
+        """The filter sections on ``value``, direct form I, as the C sums them:
+        ``b0 x + (((b1 x1 + b2 x2) - a1 y1) - a2 y2)``; ``commit`` stores the sections'
+        new past inputs and outputs (the trial of the conditional integration does not)."""
+        g, state = self.g, self.state
+        for n in range(1, self.sections + 1):
+            f = f"f{n}_"
+            past = ((g[f + "b1"][k] * state[f + "x1"] + g[f + "b2"][k] * state[f + "x2"])
+                    - g[f + "a1"][k] * state[f + "y1"]) - g[f + "a2"][k] * state[f + "y2"]
+            y = g[f + "b0"][k] * value + past
+            if commit:
+                state[f + "x2"], state[f + "x1"] = state[f + "x1"], value
+                state[f + "y2"], state[f + "y1"] = state[f + "y1"], y
+            value = y
+        return value
 
 
 class FixedStepper:
@@ -326,8 +361,9 @@ class FixedStepper:
     def __init__(self, layout, gains: dict[str, np.ndarray]) -> None:
         self.layout = layout
         self.structure = layout.structure
-        self.fields = state_fields(self.structure)
-        self.frac = {c.name: c.frac for c in layout.coefficients}
+        self.sections = layout.sections
+        self.fields = state_fields(self.structure, self.sections)
+        self.frac = {c.name: c.frac for c in layout.coefficients + layout.filter_tables}
         self.g = {name: [int(v) for v in values] for name, values in gains.items()}
         self.u_min, self.u_max = layout.limits
         self.in_force = (self.u_min, self.u_max)
@@ -349,7 +385,7 @@ class FixedStepper:
         the limits apply when ``low <= high``.  The limits the step used
         (Q3.28) are left in ``in_force``.
         """
-        state, structure, mul = self.state, self.structure, self._mul
+        state, structure, mul, run = self.state, self.structure, self._mul, self._filters
         es = self._to_state(error)
         fs = self._to_state(feedforward)
         u_min, u_max = self.u_min, self.u_max
@@ -361,14 +397,14 @@ class FixedStepper:
         if structure in ("lead", "lag"):
             w = saturate(es - mul("zc", k, state["e1"]), 32)
             state["v"] = saturate(mul("pc", k, state["v"]) + mul("kc", k, w), 32)
-            u = saturate(state["v"] + fs, 32)
+            u = saturate(run(k, state["v"], True) + fs, 32)
         elif structure == "leadlag":
             w1 = saturate(es - mul("zc1", k, state["e1"]), 32)
             v1 = saturate(mul("pc1", k, state["v1"]) + mul("kc", k, w1), 32)
             w2 = saturate(v1 - mul("zc2", k, state["v1"]), 32)
             state["v2"] = saturate(mul("pc2", k, state["v2"]) + w2, 32)
             state["v1"] = v1
-            u = saturate(state["v2"] + fs, 32)
+            u = saturate(run(k, state["v2"], True) + fs, 32)
         else:
             proportional = mul("kp", k, es)
             derivative = 0
@@ -378,14 +414,35 @@ class FixedStepper:
             if "x" in self.fields:
                 increment = mul("ki_ts", k, es)
                 candidate = saturate(state["x"] + increment, 32)
-                trial = saturate(proportional + candidate + derivative + fs, 32)
+                trial = self._sum(k, proportional + candidate + derivative, fs, False)
                 if not ((trial > u_max and increment > 0) or (trial < u_min and increment < 0)):
                     state["x"] = candidate
-                u = saturate(proportional + state["x"] + derivative + fs, 32)
+                u = self._sum(k, proportional + state["x"] + derivative, fs, True)
             else:
-                u = saturate(proportional + derivative + fs, 32)
+                u = self._sum(k, proportional + derivative, fs, True)
         state["e1"] = es
         return output_code(self.layout, min(max(u, u_min), u_max)), u
+
+    def _sum(self, k: int, controller: int, fs: int, commit: bool) -> int:
+        """Controller sum, through the filter sections when there are any, plus feedforward (Q3.28)."""
+        if not self.sections:
+            return saturate(controller + fs, 32)  # one saturation of the whole sum, as without filters
+        return saturate(self._filters(k, saturate(controller, 32), commit) + fs, 32)
+
+    def _filters(self, k: int, value: int, commit: bool) -> int:
+        """The filter sections on a Q3.28 value, direct form I: each product rounded to
+        Q3.28, the five summed exactly (64 bits in the C, where the four of past values are
+        summed once per step), saturated once to 32 bits."""
+        state, mul = self.state, self._mul
+        for n in range(1, self.sections + 1):
+            f = f"f{n}_"
+            y = saturate(mul(f + "b0", k, value) + mul(f + "b1", k, state[f + "x1"]) + mul(f + "b2", k, state[f + "x2"])
+                         - mul(f + "a1", k, state[f + "y1"]) - mul(f + "a2", k, state[f + "y2"]), 32)
+            if commit:
+                state[f + "x2"], state[f + "x1"] = state[f + "x1"], value
+                state[f + "y2"], state[f + "y1"] = state[f + "y1"], y
+            value = y
+        return value
 
 
 def _run(stepper, errors, feed, use, low, high, dtype) -> StepTrace:

@@ -18,6 +18,12 @@ verdict.  A spec that held before rounding and fails after it, at a grid
 point, an intermediate point or a tolerance corner, is *broken by rounding*
 and fails the check.
 
+The filter sections' poles and zeros are compared before and after
+rounding as well (:mod:`.filter_rounding`): a stored pole pair on or outside
+the unit circle fails the check, a notch centre moved beyond the tolerance
+is a warning.  The rounded table's grid points are verified with its stored
+sections (``verify`` uses a table's own filter sections there).
+
 Only the coefficients are rounded here.  The axis breakpoints the C stores
 may differ from the designed ones by a few LSB of the axis format; the
 largest such offset is reported (``axis_offsets``) but the plant is
@@ -36,8 +42,9 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 
 from ..design.specs import SPEC_ORDER
-from ..design.table import GainTable, TableAxis
+from ..design.table import FilterTable, GainTable, TableAxis, filter_coefficient_name
 from ..errors import InputError
+from .filter_rounding import SectionRounding, check_filter_rounding
 from .layout import TableLayout, layout_table
 
 __all__ = ["QuantisationResult", "PointChange", "check_quantisation", "dequantised_table", "pole_shift"]
@@ -141,6 +148,8 @@ class QuantisationResult:
         Largest ``|stored - designed|`` per coefficient (physical units).
     full_scale : dict
         ``error_full_scale`` and ``output_full_scale`` used (fixed point).
+    filters : tuple of SectionRounding
+        Each filter section's poles and zeros before and after rounding.
     """
 
     number_format: str
@@ -154,11 +163,22 @@ class QuantisationResult:
     axis_offsets: dict[str, float]
     coefficient_errors: dict[str, float]
     full_scale: dict[str, float | None] = field(default_factory=dict)
+    filters: tuple[SectionRounding, ...] = ()
 
     @property
     def passed(self) -> bool:
-        """True when rounding breaks no spec anywhere."""
-        return not self.broken
+        """True when rounding breaks no spec anywhere and leaves every filter pole inside the unit circle."""
+        return not self.broken and not self.filter_failures
+
+    @property
+    def filter_failures(self) -> list[str]:
+        """Filter pole pairs that rounding puts on or outside the unit circle."""
+        return [text for section in self.filters for text in section.failures]
+
+    @property
+    def filter_warnings(self) -> list[str]:
+        """Notch centres (low-pass pole frequencies) that rounding moves beyond the tolerance."""
+        return [text for section in self.filters for text in section.warnings]
 
     @property
     def max_pole_shift(self) -> float:
@@ -168,7 +188,7 @@ class QuantisationResult:
     def as_document(self) -> dict[str, Any]:
         """Plain data for the verification log."""
         coefficients = []
-        for item in self.layout.coefficients:
+        for item in self.layout.coefficients + self.layout.filter_tables:
             coefficients.append({
                 "name": item.name,
                 "frac": item.frac,
@@ -196,6 +216,7 @@ class QuantisationResult:
             ],
             "worst": self.worst,
             "broken": self.broken,
+            "filters": [section.to_dict() for section in self.filters],
         }
 
 
@@ -207,8 +228,12 @@ def dequantised_table(layout: TableLayout) -> GainTable:
     """
     table = layout.table
     coefficients = {c.name: np.asarray(c.physical, dtype=float) for c in layout.coefficients}
+    stored = {c.name: np.asarray(c.physical, dtype=float) for c in layout.filter_tables}
+    filters = tuple(FilterTable(section.kind, {name: stored[filter_coefficient_name(i, name)]
+                                               for name in section.coefficients})
+                    for i, section in enumerate(table.filters))
     axes = tuple(TableAxis(a.name, a.unit, a.values) for a in table.axes)
-    return GainTable(table.structure, axes, coefficients, table.sample_period, table.output_limits)
+    return GainTable(table.structure, axes, coefficients, table.sample_period, table.output_limits, filters)
 
 
 def _quantities(analysis, p: int) -> dict[str, float]:
@@ -216,8 +241,8 @@ def _quantities(analysis, p: int) -> dict[str, float]:
 
 
 def _failing_set(report) -> tuple[set, set]:
-    between = {(tuple(sorted(e["point"].items())), spec) for e in report.between for spec in e["failed"]}
-    tolerance = {(tuple(sorted(e["point"].items())), spec) for e in report.tolerances for spec in e["failed"]}
+    between = {(tuple(sorted(e.point.items())), spec) for e in report.between for spec in e.failed}
+    tolerance = {(tuple(sorted(e.point.items())), spec) for e in report.tolerances for spec in e.failed}
     return between, tolerance
 
 
@@ -293,7 +318,7 @@ def check_quantisation(
     # Rounding can also reorder two nearly equal neighbours (monotone) or
     # widen a step past the smoothness limit.
     def keys(report, where):
-        return {(e["coefficient"], e["axis"], tuple(e["index"])) for e in getattr(report, where)}
+        return {(e.coefficient, e.axis, e.index) for e in getattr(report, where)}
 
     for where in ("smoothness", "monotone"):
         for coefficient, axis, index in sorted(keys(rounded.table_report, where) - keys(original.table_report, where)):
@@ -326,8 +351,9 @@ def check_quantisation(
     axis_offsets = {
         a.name: float(np.max(np.abs(a.stored_physical - a.values))) for a in layout.axes
     }
+    designed = {**table.coefficients, **table.filter_grids}
     coefficient_errors = {
-        c.name: float(np.max(np.abs(c.physical - table.coefficients[c.name]))) for c in layout.coefficients
+        c.name: float(np.max(np.abs(c.physical - designed[c.name]))) for c in layout.coefficients + layout.filter_tables
     }
     return QuantisationResult(
         number_format=layout.fmt.name,
@@ -341,4 +367,5 @@ def check_quantisation(
         axis_offsets=axis_offsets,
         coefficient_errors=coefficient_errors,
         full_scale={"error_full_scale": layout.error_full_scale, "output_full_scale": layout.output_full_scale},
+        filters=check_filter_rounding(table, layout, list(original.point_labels)),
     )

@@ -215,8 +215,13 @@ def _context(
                     f"round({item.name} * error_full_scale / output_full_scale * 2^{item.frac}), "
                     "ties away from zero"
                 )
+            elif item in layout.filter_tables:
+                recipe = (f"filter section coefficient {item.name} (Tustin prewarped at the section's centre), "
+                          f"round({item.name} * 2^{item.frac}), ties away from zero")
             else:
                 recipe = f"round({item.name} * 2^{item.frac}), ties away from zero"
+        elif item in layout.filter_tables:
+            recipe = f"filter section coefficient {item.name} (Tustin prewarped at the section's centre), float32"
         else:
             recipe = f"{item.name} rounded to nearest float32"
         coefficients.append(
@@ -266,7 +271,9 @@ def _context(
         "to_state_shift": fmt.signal_frac - STATE_FRAC if fmt.is_fixed else 0,
         "structure": layout.structure,
         "structure_doc": structure_doc,
-        "state_fields": list(state_fields(layout.structure)),
+        "state_fields": list(state_fields(layout.structure, layout.sections)),
+        "sections": layout.sections,
+        "section_kinds": [section.kind.replace("_", "-") for section in layout.table.filters],
         "axes": axes,
         "coefficients": coefficients,
         "columns": columns,

@@ -45,7 +45,7 @@ from .target_run import (
 )
 from .target_tools import CORES, TargetCore, TargetTools, find_target_tools
 
-__all__ = ["TargetResult", "check_target"]
+__all__ = ["TargetResult", "check_target", "target_verdict"]
 
 
 @dataclass(frozen=True)
@@ -108,7 +108,8 @@ class TargetResult:
         }
 
 
-def _verdict(builds, runs, counts) -> tuple[str, str]:
+def target_verdict(builds, runs, counts) -> tuple[str, str]:
+    """Status and message of target builds, emulated runs and instruction counts (see the module notes)."""
     problems = []
     for build in builds:
         name = build.core.name
@@ -198,6 +199,6 @@ def check_target(
     builds = [b for b, _, _ in per_core]
     runs = [r for _, r, _ in per_core if r is not None]
     counts = [c for _, _, c in per_core if c is not None]
-    status, message = _verdict(builds, runs, counts)
+    status, message = target_verdict(builds, runs, counts)
     return TargetResult(status, message, generated.number_format, tuple(builds), tuple(runs), tuple(counts),
                         rules=rules, toolchain=tools.versions())

@@ -47,6 +47,7 @@ __all__ = [
     "run_harness",
     "measure_source",
     "parse_trace",
+    "trace_counts",
     "count_instructions",
 ]
 
@@ -147,7 +148,8 @@ class EmulatorRun:
 
 
 def run_harness(
-    tools: TargetTools, build: CoreBuild, program: HarnessProgram, work: Path, host: HarnessResult | None
+    tools: TargetTools, build: CoreBuild, program: HarnessProgram, work: Path, host: HarnessResult | None,
+    program_name: str = "harness",
 ) -> EmulatorRun:
     """Run the harness program on the core's board model and compare its output.
 
@@ -245,20 +247,23 @@ def measure_source(program: HarnessProgram, prefix: str) -> str:
     return render_template("target/measure.c.j2", context)
 
 
-def parse_trace(lines) -> dict[str, list[int]]:
-    """Instructions per measured call from a qemu ``-d exec`` trace of the measurement program.
+def parse_trace(lines, markers: dict[str, str] | None = None) -> dict[str, list[int]]:
+    """Instructions per measured call from a qemu ``-d exec`` trace of a measurement program.
 
-    Between a ``measure_*_begin`` marker and ``measure_end``, every logged
-    instruction whose function is neither a marker nor ``main`` counts.
+    Between a begin marker (``markers``: marker function -> what it starts;
+    default the lookup's and the step's of ``measure.c.j2``) and
+    ``measure_end``, every logged instruction whose function is neither a
+    marker nor ``main`` counts.
     """
-    counts: dict[str, list[int]] = {"lookup": [], "step": []}
+    markers = _MARKERS if markers is None else markers
+    counts: dict[str, list[int]] = {kind: [] for kind in markers.values()}
     current, count = None, 0
     for line in lines:
         if not line.startswith("Trace"):
             continue
         symbol = line.rsplit("]", 1)[-1].strip()
-        if symbol in _MARKERS:
-            current, count = _MARKERS[symbol], 0
+        if symbol in markers:
+            current, count = markers[symbol], 0
         elif symbol == "measure_end":
             if current is not None:
                 counts[current].append(count)
@@ -268,18 +273,32 @@ def parse_trace(lines) -> dict[str, list[int]]:
     return counts
 
 
-def count_instructions(tools: TargetTools, build: CoreBuild, program: HarnessProgram, prefix: str,
-                       work: Path) -> InstructionCounts:
-    """Count instructions per lookup and per step on the core's board model (see the module notes)."""
-    name = build.core.name
-    elf, problem = _link(tools, build, measure_source(program, prefix), "measure", work)
+def trace_counts(tools: TargetTools, build: CoreBuild, source: str, name: str, work: Path,
+                 markers: dict[str, str] | None = None) -> tuple[dict[str, list[int]], str]:
+    """Link a measurement program ``source`` as ``<core>-<name>``, run it traced and count (:func:`parse_trace`).
+
+    Returns the counts and, when nothing could be measured, why (else ``""``).
+    """
+    elf, problem = _link(tools, build, source, name, work)
     if elf is None:
-        return InstructionCounts(name, (), (), f"measurement program does not link: {problem}")
-    trace = work / f"{name}-measure.trace"
+        return {}, f"measurement program does not link: {problem}"
+    trace = work / f"{build.core.name}-{name}.trace"
     ran = _emulate(tools, build.core, elf, trace)
     if ran.returncode != 0 or not trace.exists():
-        return InstructionCounts(name, (), (), f"emulator exited with code {ran.returncode}: {ran.stderr[-500:]}")
+        return {}, f"emulator exited with code {ran.returncode}: {ran.stderr[-500:]}"
     with trace.open(encoding="utf-8", errors="replace") as lines:
-        counts = parse_trace(lines)
+        counts = parse_trace(lines, markers)
     trace.unlink()
-    return InstructionCounts(name, tuple(counts["lookup"]), tuple(counts["step"]))
+    return counts, ""
+
+
+def count_instructions(tools: TargetTools, build: CoreBuild, program: HarnessProgram, prefix: str,
+                       work: Path, program_name: str = "measure") -> InstructionCounts:
+    """Count instructions per lookup and per step on the core's board model (see the module notes).
+
+    ``program_name`` names the program's files in ``work`` (several loops share one folder).
+    """
+    counts, problem = trace_counts(tools, build, measure_source(program, prefix), program_name, work)
+    if problem:
+        return InstructionCounts(build.core.name, (), (), problem)
+    return InstructionCounts(build.core.name, tuple(counts["lookup"]), tuple(counts["step"]))

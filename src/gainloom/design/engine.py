@@ -17,7 +17,7 @@ import numpy as np
 
 from ..errors import DesignError, InputError
 from ..lti.discretize import discretize_loop
-from ..lti.filters import with_filter
+from ..lti.filters import cascade, with_filter
 from ..lti.loop import Loop
 from ..names import (
     CROSSOVER_OBJECTIVES,
@@ -38,12 +38,12 @@ from .fallbacks import (
 )
 from .filter_notes import auto_notch_report, resonance_note
 from .measured_check import check_on_data, merge_data_verdict
-from .results import DesignResult, VerifyResult
+from .results import DesignResult, DesignSettings, VerifyResult
 from .search import OBJECTIVE_TEXT, Choice, choose_gains, objective_values, samples_in
 from .specs import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
 from .structures import LocusForm, coefficients_from_locus
-from .table import GainTable, TableAxis
+from .table import FilterTable, GainTable, TableAxis
 from .tuning_rules import rule_shapes
 
 __all__ = ["PointDesign", "Progress", "design", "design_points", "limits_at", "sampled_plant", "verify"]
@@ -65,7 +65,8 @@ def load_for_design(schedule: Any):
     raise InputError(f"expected a Schedule or a path to a schedule file; got {type(schedule).__name__}")
 
 
-def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = None) -> Loop:
+def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = None,
+                  filters: tuple[np.ndarray, np.ndarray] | None = None) -> Loop:
     """The fixed part of the loop at ``points``: the discretised plant (hold,
     sample period, computation delay) followed by the ``controller.filters``.
 
@@ -75,7 +76,9 @@ def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = No
     nominal parameters whatever ``scale`` says (the firmware's filter does
     not follow a tolerance); the plant is scaled.  A schedule with a
     ``plant_sampler`` (the outer loop of a cascade) gets its plant from it:
-    the inner closed loop as the outer loop samples it.
+    the inner closed loop as the outer loop samples it.  ``filters`` (the
+    cascade ``(num, den)`` in ``z`` per point, :func:`table_filters`)
+    replaces the schedule's sections: the filter as a gain table stores it.
     """
     points = np.asarray(points, dtype=float)
     models = None
@@ -87,11 +90,25 @@ def sampled_plant(sched, points: np.ndarray, scale: dict[str, float] | None = No
             models.plant, models.sample_period, sched.sampling.method, delay=models.delay,
             prewarp=sched.sampling.prewarp,
         )
-    filters = sched.filters_at(points, None if scale else models)
-    if filters is None:
+    if filters is not None:
+        return with_filter(plant, *filters)
+    values = sched.filters_at(points, None if scale else models)
+    if values is None:
         return plant
-    num, den = filters.discrete(plant.ts)
+    num, den = values.discrete(plant.ts)
     return with_filter(plant, num, den)
+
+
+def table_filters(table: GainTable) -> tuple[np.ndarray, np.ndarray] | None:
+    """The table's filter sections as one cascade in ``z`` per grid point (grid order), or ``None``."""
+    if not table.filters:
+        return None
+    sections = []
+    for section in table.filters:
+        c = {name: grid.ravel() for name, grid in section.coefficients.items()}
+        sections.append((np.stack([c["b0"], c["b1"], c["b2"]], axis=-1),
+                         np.stack([np.ones_like(c["a1"]), c["a1"], c["a2"]], axis=-1)))
+    return cascade(sections, int(np.prod(table.shape)))
 
 
 def limits_at(sched, points: np.ndarray) -> SpecLimits:
@@ -566,13 +583,33 @@ def _table(sched, points_shape, axes_values, coefficients, plant) -> GainTable:
         for axis, values in zip(sched.axes, axes_values)
     )
     shape = tuple(len(v) for v in axes_values)
+    points = grid_points(list(axes_values))
+    ts = np.asarray(plant.ts, float)
     return GainTable(
         structure=sched.controller.structure,
         axes=axes,
         coefficients={k: np.asarray(v, float).reshape(shape) for k, v in coefficients.items()},
-        sample_period=np.asarray(plant.ts, float).reshape(shape),
-        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(grid_points(list(axes_values)))),
+        sample_period=ts.reshape(shape),
+        output_limits=tuple(np.reshape(v, shape) for v in sched.output_limits_at(points)),
+        filters=filter_tables(sched, points, ts, shape),
     )
+
+
+def filter_tables(sched, points: np.ndarray, ts: np.ndarray, shape: tuple[int, ...]) -> tuple[FilterTable, ...]:
+    """The ``controller.filters`` sections at the table's grid points, as the C tabulates them.
+
+    The same discrete sections the analysis multiplies into the loop
+    (:func:`sampled_plant`: nominal parameters, Tustin prewarped at each
+    section's centre), split into ``b0, b1, b2, a1, a2`` per section.
+    """
+    values = sched.filters_at(points)
+    if values is None:
+        return ()
+    tables = []
+    for kind, (num, den) in zip(values.kinds, values.sections(ts)):
+        grids = {"b0": num[:, 0], "b1": num[:, 1], "b2": num[:, 2], "a1": den[:, 1], "a2": den[:, 2]}
+        tables.append(FilterTable(kind, {name: grid.reshape(shape) for name, grid in grids.items()}))
+    return tuple(tables)
 
 
 def grid_points(axes_values: list[np.ndarray]) -> np.ndarray:
@@ -605,7 +642,7 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
     report, point_design, axes_values = run_table_checks(sched, point_design, axes_values, progress=progress)
     table = _table(sched, None, axes_values, point_design.coefficients, point_design.plant)
     data_check = check_on_data(sched, point_design.points, sched.controller.structure, point_design.coefficients,
-                               point_design.limits)
+                               point_design.limits, point_design.analysis)
     status, notes, binding = merge_data_verdict(point_design.status, point_design.notes, point_design.binding,
                                                 data_check)
     warnings = list(sched.warnings) + auto_notch_report(sched, point_design.points)[1]
@@ -617,23 +654,8 @@ def design(schedule: Any, progress: Progress | None = None) -> DesignResult:
         from .continuous import compare_continuous
 
         continuous = compare_continuous(sched, point_design)
-    controller = sched.controller
-    strategy = {
-        "structure": controller.structure,
-        "strategy": controller.strategy,
-        "objective": _objective(controller),
-        "objective_meaning": OBJECTIVE_TEXT[_objective(controller)],
-        "zero_on": controller.zero_on,
-        "target": None if controller.target is None else {
-            k: v for k, v in (("damping", controller.target.damping),
-                              ("natural_frequency", controller.target.natural_frequency),
-                              ("crossover", controller.target.crossover)) if v is not None},
-        "sweep": None if controller.sweep is None else {
-            "range": list(controller.sweep.range), "count": controller.sweep.count},
-        "derivative_filter": controller.derivative_filter,
-        "sampling": {"method": sched.sampling.method, "prewarp": sched.sampling.prewarp},
-        "filters": [section.as_written() for section in controller.filters],
-    }
+    objective = _objective(sched.controller)
+    strategy = DesignSettings.of(sched, objective, OBJECTIVE_TEXT[objective])
     return DesignResult(
         table=table,
         analysis=point_design.analysis,
@@ -691,7 +713,14 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
         )
     axes_values = [a.values for a in table.axes]
     points = grid_points(axes_values)
-    plant = sampled_plant(sched, points)
+    # at the grid points the filter sections are judged as the table stores them (the C runs those)
+    plant = sampled_plant(sched, points, filters=table_filters(table))
+    if len(table.filters) != len(sched.controller.filters):
+        warnings.append(
+            f"the gains file tabulates {len(table.filters)} filter section(s), the schedule has "
+            f"{len(sched.controller.filters)}; grid points checked with the gains file's, between points and "
+            "tolerance corners with the schedule's"
+        )
     limits = limits_at(sched, points)
     coefficients = {k: v.ravel() for k, v in table.coefficients.items()}
     if progress is not None:
@@ -717,7 +746,7 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
             f"set of gains for every spec); counted as failing whatever the re-check finds "
             f"({'passes' if analysis.passed[p] else 'fails'} now); design the table again to replace it"
         )
-    data_check = check_on_data(sched, points, table.structure, coefficients, limits)
+    data_check = check_on_data(sched, points, table.structure, coefficients, limits, analysis)
     status, _, _ = merge_data_verdict(tuple("pass" if ok and p not in marked else "fail" for p, ok in enumerate(analysis.passed)),
                                       ((),) * points.shape[0], (None,) * points.shape[0], data_check)
     point_design = PointDesign(

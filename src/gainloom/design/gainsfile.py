@@ -12,6 +12,7 @@ from __future__ import annotations
 import json
 import math
 import re
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -21,10 +22,16 @@ import yaml
 from ..errors import ScheduleError
 from ..inputs import read_input_file
 from ..limits import MAX_GAINS_BYTES
-from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
+from ..names import (
+    CONTROLLER_COEFFICIENTS,
+    CONTROLLER_STRUCTURES,
+    FILTER_COEFFICIENTS,
+    FILTER_KINDS,
+    unknown_name_message,
+)
 from ..outputs import write_outputs
 from ..plain import to_plain
-from .table import GainTable, TableAxis
+from .table import FilterTable, GainTable, TableAxis
 
 __all__ = [
     "GAINS_FORMAT", "GainsMetadata", "gains_document", "read_gains", "render_gains", "write_gains",
@@ -44,6 +51,7 @@ _KEYS = (
     "coefficients",
     "sample_period",
     "output_limits",
+    "filters",
     "design",
     "passed",
     "points",
@@ -96,6 +104,11 @@ def gains_document(
             else [float(table.output_limits[0]), float(table.output_limits[1])]
         ),
     }
+    if table.filters:
+        # the discrete sections as tabulated (the C interpolates these)
+        doc["filters"] = [{"kind": section.kind,
+                           "coefficients": {name: _grid(section.coefficients[name]) for name in FILTER_COEFFICIENTS}}
+                          for section in table.filters]
     if design is not None:
         doc["design"] = design
     for key, value in (body or {}).items():
@@ -160,7 +173,7 @@ def render_gains(result: Any, name: str | Path = "gains.yaml") -> str:
             result.table,
             schedule_path=Path(str(result.schedule_path)).name,
             schedule_sha256=result.schedule_sha256,
-            design=result.strategy,
+            design=result.strategy.to_dict(),
             body=result.as_document(),
         )
     elif isinstance(result, GainTable):
@@ -216,13 +229,59 @@ _Loader.add_implicit_resolver(
 )
 
 
-class GainsMetadata(dict):
-    """Everything in a gains file besides the table (a plain dict subclass).
+@dataclass(frozen=True)
+class GainsMetadata:
+    """Everything in a gains file besides the table, as the file records it.
 
-    Keys: ``format``, ``generator``, ``schedule`` (``path``, ``sha256``),
-    ``design``, ``passed``, ``points``, ``table_checks``, ``warnings``,
-    ``continuous``, ``path`` (the gains file read).
+    Attributes
+    ----------
+    format : str
+        ``gainloom-gains/1``.
+    generator : str or None
+        The gainloom that wrote the file.
+    schedule_path, schedule_sha256 : str or None
+        The schedule it was designed from (file name and SHA-256).
+    design : dict or None
+        The design settings (:meth:`~gainloom.design.results.DesignSettings.to_dict`).
+    passed : bool or None
+        The design's verdict (None when the file records none, or not a bool).
+    points : list
+        Per-point analysis entries as written.
+    table_checks, continuous, measured
+        Those sections as written (None when absent).
+    warnings : tuple of str
+    path : str
+        The gains file read.
     """
+
+    format: str = GAINS_FORMAT
+    generator: Any = None
+    schedule_path: Any = None
+    schedule_sha256: Any = None
+    design: dict[str, Any] | None = None
+    passed: bool | None = None
+    points: list[Any] = field(default_factory=list)
+    table_checks: Any = None
+    warnings: tuple[Any, ...] = ()
+    continuous: Any = None
+    measured: Any = None
+    path: str = ""
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain data, keys in the gains file's order (``path`` last)."""
+        return {
+            "format": self.format,
+            "generator": self.generator,
+            "schedule": {"path": self.schedule_path, "sha256": self.schedule_sha256},
+            "design": self.design,
+            "passed": self.passed,
+            "points": self.points,
+            "table_checks": self.table_checks,
+            "warnings": list(self.warnings),
+            "continuous": self.continuous,
+            "measured": self.measured,
+            "path": self.path,
+        }
 
 
 def _node_at(node: yaml.Node, key: str) -> yaml.Node | None:
@@ -296,6 +355,30 @@ def _restore_nonfinite(value: Any) -> Any:
     if isinstance(value, str) and value in ("inf", "-inf", "nan"):
         return float(value)
     return value
+
+
+def _read_filters(reader: _Reader, data: dict, shape: tuple[int, ...]) -> tuple[FilterTable, ...]:
+    """The tabulated filter sections (``filters``), or none when the key is absent."""
+    entries = data.get("filters")
+    if entries is None:
+        return ()
+    if not isinstance(entries, list):
+        raise reader.error("expected a list of filter sections {kind, coefficients}", "filters")
+    sections = []
+    for i, entry in enumerate(entries):
+        where = f"filters[{i}]"
+        kind = reader.get(entry, "kind", where, (str,))
+        if kind not in FILTER_KINDS:
+            raise reader.error(unknown_name_message("filter kind", kind, FILTER_KINDS), f"{where}.kind")
+        grids = reader.get(entry, "coefficients", where, (dict,))
+        unknown = [k for k in grids if k not in FILTER_COEFFICIENTS]
+        if unknown:
+            raise reader.error(f"unknown filter coefficient {unknown[0]!r}; expected {', '.join(FILTER_COEFFICIENTS)}",
+                               f"{where}.coefficients.{unknown[0]}")
+        coefficients = {name: reader.array(reader.get(grids, name, f"{where}.coefficients", (list,)),
+                                           f"{where}.coefficients.{name}", shape) for name in FILTER_COEFFICIENTS}
+        sections.append(FilterTable(kind, coefficients))
+    return tuple(sections)
 
 
 def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
@@ -397,31 +480,35 @@ def read_gains(path: str | Path) -> tuple[GainTable, GainsMetadata]:
         coefficients=coefficients,
         sample_period=ts,
         output_limits=limit_values,
+        filters=_read_filters(reader, data, shape),
     )
     schedule = data.get("schedule") or {}
     if not isinstance(schedule, dict):
         raise reader.error("expected a mapping with path and sha256", "schedule")
+    design = data.get("design")
+    if design is not None and not isinstance(design, dict):
+        raise reader.error(f"expected a mapping of design settings; found {type(design).__name__}", "design")
+    passed = data.get("passed")
     metadata = GainsMetadata(
-        {
-            "format": fmt,
-            "generator": data.get("generator"),
-            "schedule": {"path": schedule.get("path"), "sha256": schedule.get("sha256")},
-            "design": data.get("design"),
-            "passed": data.get("passed"),
-            "points": _restore_nonfinite(data.get("points", [])),
-            "table_checks": _restore_nonfinite(data.get("table_checks")),
-            "warnings": list(data.get("warnings") or []),
-            "continuous": _restore_nonfinite(data.get("continuous")),
-            "measured": _restore_nonfinite(data.get("measured")),
-            "path": str(path),
-        }
+        format=fmt,
+        generator=data.get("generator"),
+        schedule_path=schedule.get("path"),
+        schedule_sha256=schedule.get("sha256"),
+        design=design,
+        passed=passed if isinstance(passed, bool) else None,
+        points=_restore_nonfinite(data.get("points", [])),
+        table_checks=_restore_nonfinite(data.get("table_checks")),
+        warnings=tuple(data.get("warnings") or []),
+        continuous=_restore_nonfinite(data.get("continuous")),
+        measured=_restore_nonfinite(data.get("measured")),
+        path=str(path),
     )
     return table, metadata
 
 
 def compromise_points(metadata: GainsMetadata) -> list[int]:
     """Indices of the points a gains file marks as a best compromise (infeasible), not a design."""
-    return [int(entry["index"]) for entry in metadata.get("points") or []
+    return [int(entry["index"]) for entry in metadata.points or []
             if isinstance(entry, dict) and entry.get("compromise") is True and isinstance(entry.get("index"), int)]
 
 
@@ -442,10 +529,10 @@ def provenance_notes(metadata: GainsMetadata, schedule_sha256: str | None = None
         One sentence per finding (empty when the record raises nothing).
     """
     notes = []
-    recorded = (metadata.get("schedule") or {}).get("sha256")
+    recorded = metadata.schedule_sha256
     if schedule_sha256 is not None and recorded and recorded != schedule_sha256:
         notes.append("the gains file was designed from a different version of this schedule (SHA-256 differs)")
-    if metadata.get("passed") is False:
+    if metadata.passed is False:
         notes.append("the gains file records a design that did not meet every spec")
     compromises = compromise_points(metadata)
     if compromises:

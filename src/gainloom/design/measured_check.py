@@ -8,7 +8,10 @@ frequency-domain specs are judged again on them.  A point that passes on
 the model but fails on the data fails; so does a point whose margins the
 data cannot show (crossover outside the data, a gap at a crossover).
 Time-domain specs (damping, overshoot, settling) have no meaning on a
-frequency response and stay judged on the model.
+frequency response: they are judged on the model, and kept only where the
+data back them (:mod:`gainloom.design.measured_time`): the data bound how
+far the true step can be from the model's, and the model must meet its fit
+tolerance near the crossover.
 
 The fit error is reported per point over all samples and in the band that
 matters, one octave either side of the data-judged crossover.
@@ -21,10 +24,11 @@ from typing import Any
 
 import numpy as np
 
-from ..lti.data_margins import DataMargins, data_margins, sampled_loop_on_data
+from ..lti.data_margins import DataMargins, data_margins, sampled_loop_on_data, step_deviation_bound
 from ..lti.polynomials import polymul
 from ..lti.sweep_fit import model_response, relative_error
 from ..schedule.measured import grid_index
+from .measured_time import time_domain_findings
 from .specs import SpecLimits
 from .structures import controller_polynomials
 
@@ -49,11 +53,20 @@ class DataCheck:
     fit_error, band_error : ndarray, shape (P,)
         Largest relative fit error over the samples used by the fit, and
         over those within the crossover band (``nan`` without a crossover).
+    band_rms : ndarray, shape (P,)
+        rms relative fit error within the crossover band.
+    step_bound : ndarray, shape (P,)
+        Largest difference between the step responses of the loop on the
+        data and on the model that the samples allow, fraction of the step
+        (:func:`gainloom.lti.data_margins.step_deviation_bound`).
     failed : tuple of tuple of str
         Per point: specs the data fail, and "not judged" where the data
         cannot show the margins.
     labels : tuple of str
         The operating point of each row.
+    between_rule : str
+        How the plant between grid points was made (an assumption: nothing
+        was measured there), for the log.
     """
 
     rows: np.ndarray
@@ -61,8 +74,11 @@ class DataCheck:
     delay_margin: np.ndarray
     fit_error: np.ndarray
     band_error: np.ndarray
+    band_rms: np.ndarray
+    step_bound: np.ndarray
     failed: tuple[tuple[str, ...], ...]
     labels: tuple[str, ...]
+    between_rule: str
 
     @property
     def passed(self) -> bool:
@@ -88,8 +104,9 @@ class DataCheck:
                 "sensitivity_peak": float(m.sensitivity_peak[i]), "bandwidth_rad_s": float(m.bandwidth[i]),
                 "delay_margin_s": float(self.delay_margin[i]),
                 "fit_error": float(self.fit_error[i]), "fit_error_near_crossover": float(self.band_error[i]),
+                "fit_rms_near_crossover": float(self.band_rms[i]), "step_deviation_bound": float(self.step_bound[i]),
             })
-        return {"passed": self.passed, "points": points}
+        return {"passed": self.passed, "between_points_model": self.between_rule, "points": points}
 
 
 def _failures(m: DataMargins, delay_margin: np.ndarray, limits: SpecLimits) -> tuple[tuple[str, ...], ...]:
@@ -116,8 +133,8 @@ def _failures(m: DataMargins, delay_margin: np.ndarray, limits: SpecLimits) -> t
 
 
 def check_on_data(sched, points: np.ndarray, structure: str, coefficients: dict[str, np.ndarray],
-                  limits: SpecLimits) -> DataCheck | None:
-    """Judge the table's frequency specs on the measured samples.
+                  limits: SpecLimits, analysis=None) -> DataCheck | None:
+    """Judge the table's frequency specs on the measured samples, and how far they back its time-domain ones.
 
     Parameters
     ----------
@@ -129,6 +146,10 @@ def check_on_data(sched, points: np.ndarray, structure: str, coefficients: dict[
     coefficients : dict of str to ndarray (Q,)
     limits : SpecLimits
         Specs at ``points``.
+    analysis : PointAnalysis, optional
+        The analysis on the model at ``points``; its step overshoot and
+        settling time are judged with the data's step bound.  Without it
+        only the pole specs' trust is judged.
 
     Returns
     -------
@@ -139,31 +160,47 @@ def check_on_data(sched, points: np.ndarray, structure: str, coefficients: dict[
     if measured is None:
         return None
     rows = grid_index(np.asarray(sched.points, dtype=float), np.asarray(points, dtype=float))
-    # C(z) of the table, then the filter sections: the whole controller acts on the data
-    num, den = controller_polynomials(structure, {k: np.asarray(v, float)[rows] for k, v in coefficients.items()})
     ts = np.asarray(sched.sampling.period, dtype=float)
-    filters = sched.filters_at(sched.points)
-    if filters is not None:  # the controller's filter sections act on the data too
-        fnum, fden = filters.discrete(ts)
-        num, den = polymul(num, fnum), polymul(den, fden)
-    loop = sampled_loop_on_data(measured.w, measured.response, ts, np.asarray(sched.sampling.delay, float), num, den)
+    fit = measured.fit
+    model = model_response(fit.num, fit.den, fit.dead_time, np.nan_to_num(measured.w, nan=1.0))
+    loop, model_loop = (_loop_on(sched, structure, coefficients, rows, ts, plant)
+                        for plant in (measured.response, np.where(np.isfinite(measured.w), model, np.nan)))
     margins = data_margins(measured.w, loop)
     with np.errstate(all="ignore"):
         delay_margin = np.where(np.isfinite(margins.phase_margin),
                                 np.radians(np.mod(margins.phase_margin, 360.0)) / margins.gain_crossover, np.inf)
-    fit = measured.fit
-    error = relative_error(model_response(fit.num, fit.den, fit.dead_time, np.nan_to_num(measured.w, nan=1.0)),
-                           measured.response)
+    error = relative_error(model, measured.response)
     used = np.isfinite(error) & ~fit.outliers
     wc = margins.gain_crossover[:, np.newaxis]
     band = used & (measured.w >= wc / CROSSOVER_BAND) & (measured.w <= wc * CROSSOVER_BAND)
-    band_error = np.where(np.any(band, axis=1), np.max(np.where(band, error, 0.0), axis=1), np.nan)
+    with np.errstate(all="ignore"):
+        band_error = np.where(np.any(band, axis=1), np.max(np.where(band, error, 0.0), axis=1), np.nan)
+        band_rms = np.sqrt(np.sum(np.where(band, error, 0.0) ** 2, axis=1) / np.sum(band, axis=1))
+    step_bound = step_deviation_bound(measured.w, loop, model_loop, ts)
+    selected = limits.select(rows)
+    overshoot = settling = None
+    if analysis is not None:
+        overshoot, settling = (np.asarray(v, float)[rows] for v in (analysis.overshoot, analysis.settling_time))
+    timed = time_domain_findings(selected, step_bound, band_rms, measured.settings.tolerance, overshoot, settling)
+    frequency = _failures(margins, delay_margin, selected)
     return DataCheck(
         rows=rows, margins=margins, delay_margin=delay_margin,
-        fit_error=np.max(np.where(used, error, 0.0), axis=1), band_error=band_error,
-        failed=_failures(margins, delay_margin, limits.select(rows)),
-        labels=tuple(sched.describe_point(p) for p in sched.points),
+        fit_error=np.max(np.where(used, error, 0.0), axis=1), band_error=band_error, band_rms=band_rms,
+        step_bound=step_bound, failed=tuple(f + s for f, s in zip(frequency, timed)),
+        labels=tuple(sched.describe_point(p) for p in sched.points), between_rule=measured.between_rule,
     )
+
+
+def _loop_on(sched, structure: str, coefficients: dict[str, np.ndarray], rows: np.ndarray, ts: np.ndarray,
+             plant: np.ndarray) -> np.ndarray:
+    """The table's whole controller (C(z), then the filter sections) around ``plant`` samples at the grid points."""
+    num, den = controller_polynomials(structure, {k: np.asarray(v, float)[rows] for k, v in coefficients.items()})
+    filters = sched.filters_at(sched.points)
+    if filters is not None:
+        fnum, fden = filters.discrete(ts)
+        num, den = polymul(num, fnum), polymul(den, fden)
+    return sampled_loop_on_data(sched.family.plant.measured.w, plant, ts, np.asarray(sched.sampling.delay, float),
+                                num, den)
 
 
 def merge_data_verdict(status, notes, binding, check: DataCheck | None):

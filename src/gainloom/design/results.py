@@ -8,19 +8,21 @@ form written into the gains file.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from .specs import SPEC_ORDER
 from .table import GainTable
+from .table_findings import BetweenFailure, CornerResult, InsertedBreakpoint, MonotoneFinding, StepFinding
 
 if TYPE_CHECKING:  # pragma: no cover
+    from ..schedule import Schedule
     from .analysis import PointAnalysis
     from .measured_check import DataCheck
 
-__all__ = ["DesignResult", "TableReport", "VerifyResult", "point_document"]
+__all__ = ["DesignResult", "DesignSettings", "TableReport", "VerifyResult", "point_document"]
 
 
 def _float(value: Any) -> Any:
@@ -38,36 +40,37 @@ class TableReport:
 
     Attributes
     ----------
-    smoothness : list of dict
+    smoothness : tuple of StepFinding
         Coefficient steps between neighbours beyond ``max_relative_step``
-        (after smoothing), each ``{coefficient, axis, index, step, limit}``.
-    monotone : list of dict
-        Monotonicity violations ``{coefficient, axis, index, direction}``.
-    smoothing : list of str
+        (after smoothing).
+    monotone : tuple of MonotoneFinding
+        Monotonicity violations.
+    smoothing : tuple of str
         Where the smoothness/monotone limits forced a worse design.
-    between : list of dict
+    between : tuple of BetweenFailure
         Intermediate operating points that fail with the interpolated
-        coefficients: ``{interval, point, failed}``.
+        coefficients.
     between_checked : int
         How many intermediate points were checked.
-    inserted : list of dict
-        Grid points inserted by refinement: ``{axis, value}``.
-    tolerances : list of dict
-        Per grid point with a failing tolerance corner: ``{point, worst_corner,
-        scale, failed}``.
+    inserted : tuple of InsertedBreakpoint
+        Grid points inserted by refinement.
+    tolerances : tuple of CornerResult
+        The grid points with a failing tolerance corner, at their worst corner.
     tolerance_corners : int
         How many corners/samples were checked per point.
+    tolerance_worst : tuple of CornerResult
+        Every grid point at its worst corner.
     """
 
-    smoothness: list[dict[str, Any]] = field(default_factory=list)
-    monotone: list[dict[str, Any]] = field(default_factory=list)
-    smoothing: list[str] = field(default_factory=list)
-    between: list[dict[str, Any]] = field(default_factory=list)
+    smoothness: tuple[StepFinding, ...] = ()
+    monotone: tuple[MonotoneFinding, ...] = ()
+    smoothing: tuple[str, ...] = ()
+    between: tuple[BetweenFailure, ...] = ()
     between_checked: int = 0
-    inserted: list[dict[str, Any]] = field(default_factory=list)
-    tolerances: list[dict[str, Any]] = field(default_factory=list)
+    inserted: tuple[InsertedBreakpoint, ...] = ()
+    tolerances: tuple[CornerResult, ...] = ()
     tolerance_corners: int = 0
-    tolerance_worst: list[dict[str, Any]] = field(default_factory=list)
+    tolerance_worst: tuple[CornerResult, ...] = ()
 
     @property
     def passed(self) -> bool:
@@ -78,16 +81,93 @@ class TableReport:
         """Plain data for the gains file."""
         return {
             "passed": self.passed,
-            "smoothness": self.smoothness,
-            "monotone": self.monotone,
-            "smoothing": self.smoothing,
-            "between_points": {"checked": self.between_checked, "failing": self.between},
-            "inserted": self.inserted,
+            "smoothness": [e.to_dict() for e in self.smoothness],
+            "monotone": [e.to_dict() for e in self.monotone],
+            "smoothing": list(self.smoothing),
+            "between_points": {"checked": self.between_checked, "failing": [e.to_dict() for e in self.between]},
+            "inserted": [e.to_dict() for e in self.inserted],
             "tolerances": {
                 "samples_per_point": self.tolerance_corners,
-                "failing": self.tolerances,
-                "worst": self.tolerance_worst,
+                "failing": [e.to_dict() for e in self.tolerances],
+                "worst": [e.to_dict() for e in self.tolerance_worst],
             },
+        }
+
+
+@dataclass(frozen=True)
+class DesignSettings:
+    """The controller and sampling settings a table was designed with (the gains file's ``design``).
+
+    Attributes
+    ----------
+    structure, strategy : str
+        As in the schedule's ``controller`` section.
+    objective : str
+        The objective the strategy optimised (defaults filled).
+    objective_meaning : str
+        One sentence on what that objective asks for.
+    zero_on : str or None
+        ``pole-cancel`` only: the plant pole the zero cancels.
+    target : dict of str to float or None
+        The ``controller.target`` keys that were given.
+    sweep_range : tuple of float or None
+        ``shape-sweep`` only: the swept shape range and ...
+    sweep_count : int or None
+        ... how many shapes.
+    derivative_filter : float or None
+        Derivative filter time constant (s), ``pd``/``pid`` only.
+    sampling_method : str
+        Hold (discretisation) method.
+    prewarp : float or None
+        Tustin prewarp frequency (rad/s).
+    filters : tuple of dict
+        ``controller.filters`` as written (:meth:`FilterSection.as_written`).
+    """
+
+    structure: str
+    strategy: str
+    objective: str
+    objective_meaning: str
+    zero_on: str | None
+    target: dict[str, float] | None
+    sweep_range: tuple[float, ...] | None
+    sweep_count: int | None
+    derivative_filter: float | None
+    sampling_method: str
+    prewarp: float | None
+    filters: tuple[dict[str, str], ...]
+
+    @classmethod
+    def of(cls, sched: Schedule, objective: str, objective_meaning: str) -> DesignSettings:
+        """The settings of ``sched`` with the objective the engine resolved."""
+        controller = sched.controller
+        target = None if controller.target is None else {
+            k: v for k, v in (("damping", controller.target.damping),
+                              ("natural_frequency", controller.target.natural_frequency),
+                              ("crossover", controller.target.crossover)) if v is not None}
+        sweep = controller.sweep
+        return cls(
+            structure=controller.structure, strategy=controller.strategy, objective=objective,
+            objective_meaning=objective_meaning, zero_on=controller.zero_on, target=target,
+            sweep_range=None if sweep is None else tuple(sweep.range),
+            sweep_count=None if sweep is None else sweep.count,
+            derivative_filter=controller.derivative_filter, sampling_method=sched.sampling.method,
+            prewarp=sched.sampling.prewarp, filters=tuple(section.as_written() for section in controller.filters),
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain data, keys in the gains file's order."""
+        return {
+            "structure": self.structure,
+            "strategy": self.strategy,
+            "objective": self.objective,
+            "objective_meaning": self.objective_meaning,
+            "zero_on": self.zero_on,
+            "target": None if self.target is None else dict(self.target),
+            "sweep": None if self.sweep_range is None else {"range": list(self.sweep_range), "count": self.sweep_count},
+            "derivative_filter": self.derivative_filter,
+            "sampling": {"method": self.sampling_method, "prewarp": self.prewarp},
+            "filters": [dict(f) for f in self.filters],
         }
 
 
@@ -179,8 +259,8 @@ class DesignResult:
     warnings : tuple of str
         Everything the engineer must read (data, not ``warnings.warn``).
     schedule_path, schedule_sha256 : str
-    strategy : dict
-        The controller section used (structure, strategy, objective ...).
+    strategy : DesignSettings
+        The controller and sampling settings used (structure, strategy, objective ...).
     points : ndarray, shape (P, n_axes)
         Operating points (grid order, first axis slowest).
     point_labels : tuple of str
@@ -207,7 +287,7 @@ class DesignResult:
     warnings: tuple[str, ...]
     schedule_path: str
     schedule_sha256: str
-    strategy: dict[str, Any]
+    strategy: DesignSettings
     points: np.ndarray
     point_labels: tuple[str, ...]
     continuous: dict[str, Any] | None = None

@@ -12,9 +12,15 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import InputError
-from ..names import CONTROLLER_COEFFICIENTS, CONTROLLER_STRUCTURES, unknown_name_message
+from ..names import (
+    CONTROLLER_COEFFICIENTS,
+    CONTROLLER_STRUCTURES,
+    FILTER_COEFFICIENTS,
+    FILTER_KINDS,
+    unknown_name_message,
+)
 
-__all__ = ["TableAxis", "GainTable"]
+__all__ = ["FilterTable", "GainTable", "TableAxis", "filter_coefficient_name"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -48,6 +54,40 @@ class TableAxis:
         return bool(np.allclose(steps, steps[0], rtol=1e-9, atol=0.0))
 
 
+def filter_coefficient_name(section: int, coefficient: str) -> str:
+    """Table name of a filter coefficient: ``f<section + 1>_<coefficient>`` (``f1_b0``, ...)."""
+    return f"f{section + 1}_{coefficient}"
+
+
+@dataclass(frozen=True, eq=False)
+class FilterTable:
+    """One discrete filter section after the controller, tabulated on the grid.
+
+    Parameters
+    ----------
+    kind : str
+        One of :data:`gainloom.names.FILTER_KINDS`.
+    coefficients : dict of str to ndarray
+        Exactly :data:`gainloom.names.FILTER_COEFFICIENTS` (``b0, b1, b2,
+        a1, a2`` of ``(b0 z^2 + b1 z + b2) / (z^2 + a1 z + a2)``), each of
+        the grid's shape.
+    """
+
+    kind: str
+    coefficients: dict[str, np.ndarray]
+
+    def __post_init__(self) -> None:
+        if self.kind not in FILTER_KINDS:
+            raise InputError(unknown_name_message("filter kind", self.kind, FILTER_KINDS))
+        if tuple(sorted(self.coefficients)) != tuple(sorted(FILTER_COEFFICIENTS)):
+            raise InputError(f"a filter section has coefficients {', '.join(FILTER_COEFFICIENTS)}; "
+                             f"got {', '.join(self.coefficients)}")
+        arrays = {name: np.asarray(self.coefficients[name], dtype=float) for name in FILTER_COEFFICIENTS}
+        if not all(np.all(np.isfinite(a)) for a in arrays.values()):
+            raise InputError(f"{self.kind} section coefficients must be finite")
+        object.__setattr__(self, "coefficients", arrays)
+
+
 @dataclass(frozen=True, eq=False)
 class GainTable:
     """Controller coefficients on a 1-D or 2-D grid of operating points.
@@ -68,6 +108,9 @@ class GainTable:
         every point: two floats, or two arrays of the grid's shape when the
         limits vary across the table (e.g. ``bus / sqrt(3)``); limits equal
         at every point are stored as floats.
+    filters : tuple of FilterTable
+        Discrete filter sections after the controller (``controller.filters``),
+        in cascade order; empty without filters.
     """
 
     structure: str
@@ -75,6 +118,7 @@ class GainTable:
     coefficients: dict[str, np.ndarray]
     sample_period: np.ndarray
     output_limits: tuple
+    filters: tuple[FilterTable, ...] = ()
 
     def __post_init__(self) -> None:
         if self.structure not in CONTROLLER_STRUCTURES:
@@ -115,6 +159,10 @@ class GainTable:
         else:
             limits = (low.copy(), high.copy())
         object.__setattr__(self, "output_limits", limits)
+        object.__setattr__(self, "filters", tuple(self.filters))
+        for section in self.filters:
+            if any(array.shape != shape for array in section.coefficients.values()):
+                raise InputError(f"{section.kind} section coefficients must have the grid shape {shape}")
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -142,3 +190,9 @@ class GainTable:
     def coefficient_names(self) -> tuple[str, ...]:
         """Coefficient names in table order."""
         return CONTROLLER_COEFFICIENTS[self.structure]
+
+    @property
+    def filter_grids(self) -> dict[str, np.ndarray]:
+        """Every filter coefficient by table name (``f1_b0``, ...), in cascade order."""
+        return {filter_coefficient_name(i, name): section.coefficients[name]
+                for i, section in enumerate(self.filters) for name in FILTER_COEFFICIENTS}

@@ -35,6 +35,7 @@ import numpy as np
 from .analysis import analyse
 from .lookup import interpolate_grids
 from .structures import SHAPE_COEFFICIENTS
+from .table_findings import BetweenFailure, CornerResult, InsertedBreakpoint, MonotoneFinding, StepFinding
 
 __all__ = ["run_table_checks", "relative_steps", "between_points", "tolerance_scales"]
 
@@ -110,28 +111,30 @@ def tolerance_scales(tolerances) -> list[dict[str, float]]:
     return [dict(zip(names, (float(c[k]) for c in columns))) for k in range(count)]
 
 
-def _check_smoothness(sched, grids: dict[str, np.ndarray], names: tuple[str, ...]) -> tuple[list, list]:
+def _check_smoothness(sched, grids: dict[str, np.ndarray], names: tuple[str, ...]
+                      ) -> tuple[list[StepFinding], list[MonotoneFinding]]:
     checks = sched.table_checks
-    smooth, mono = [], []
+    smooth: list[StepFinding] = []
+    mono: list[MonotoneFinding] = []
     for name, grid in grids.items():
         for axis in range(grid.ndim):
             if checks.max_relative_step is not None:
                 steps = relative_steps(grid, axis)
                 for index in zip(*np.nonzero(steps > checks.max_relative_step * (1 + 1e-12))):
-                    smooth.append({
-                        "coefficient": name, "axis": names[axis], "index": [int(i) for i in index],
-                        "step": float(steps[index]), "limit": float(checks.max_relative_step),
-                    })
+                    smooth.append(StepFinding(
+                        coefficient=name, axis=names[axis], index=tuple(int(i) for i in index),
+                        step=float(steps[index]), limit=float(checks.max_relative_step),
+                    ))
         direction = checks.monotone.get(name)
         if direction:
             for axis in range(grid.ndim):
                 diff = np.diff(grid, axis=axis)
                 bad = diff < 0 if direction == "increasing" else diff > 0
                 for index in zip(*np.nonzero(bad)):
-                    mono.append({
-                        "coefficient": name, "axis": names[axis], "index": [int(i) for i in index],
-                        "direction": direction, "change": float(diff[index]),
-                    })
+                    mono.append(MonotoneFinding(
+                        coefficient=name, axis=names[axis], index=tuple(int(i) for i in index),
+                        direction=direction, change=float(diff[index]),
+                    ))
     return smooth, mono
 
 
@@ -219,13 +222,13 @@ def _between(sched, axes_values, grids, structure, count):
     plant = sampled_plant(sched, points)
     limits = limits_at(sched, points)
     analysis = analyse(plant, structure, coefficients, limits)
-    failing = []
+    failing: list[BetweenFailure] = []
     for q in np.flatnonzero(~analysis.passed):
-        failing.append({
-            "interval": [int(i) for i in owner[q]],
-            "point": {a.name: float(v) for a, v in zip(sched.axes, points[q])},
-            "failed": analysis.failed_specs(int(q)),
-        })
+        failing.append(BetweenFailure(
+            interval=tuple(int(i) for i in owner[q]),
+            point={a.name: float(v) for a, v in zip(sched.axes, points[q])},
+            failed=tuple(analysis.failed_specs(int(q))),
+        ))
     return failing, int(points.shape[0]), (points, owner, analysis)
 
 
@@ -247,18 +250,19 @@ def _tolerances(sched, points, structure, coefficients):
         failed_names.append(names)
         fails[c] = [len(n) for n in names]
         damping[c] = analysis.damping
-    failing, worst = [], []
+    failing: list[CornerResult] = []
+    worst: list[CornerResult] = []
     for p in range(P):
         # worst corner: most failed specs, then lowest damping
         order = np.lexsort((damping[:, p], -fails[:, p]))
         c = int(order[0])
-        entry = {
-            "point": {a.name: float(v) for a, v in zip(sched.axes, points[p])},
-            "worst_corner": c,
-            "scale": scales[c],
-            "damping": float(damping[c, p]),
-            "failed": failed_names[c][p],
-        }
+        entry = CornerResult(
+            point={a.name: float(v) for a, v in zip(sched.axes, points[p])},
+            worst_corner=c,
+            scale=scales[c],
+            damping=float(damping[c, p]),
+            failed=tuple(failed_names[c][p]),
+        )
         worst.append(entry)
         if fails[c, p] > 0:
             failing.append(entry)
@@ -281,7 +285,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
     names = tuple(a.name for a in sched.axes)
     axes_values = [np.asarray(v, float) for v in axes_values]
     smoothing_notes: list[str] = []
-    inserted: list[dict[str, Any]] = []
+    inserted: list[InsertedBreakpoint] = []
     if redesign and (sched.table_checks.max_relative_step is not None or sched.table_checks.monotone):
         shape = tuple(v.size for v in axes_values)
         coefficients, smoothing_notes, analysis = _smooth_gains(sched, point_design, shape, structure)
@@ -309,7 +313,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         # within the remaining budget
         counts: dict[tuple, int] = {}
         for entry in failing:
-            counts[tuple(entry["interval"])] = counts.get(tuple(entry["interval"]), 0) + 1
+            counts[entry.interval] = counts.get(entry.interval, 0) + 1
         wanted: list[tuple[int, float]] = []
         for cell in sorted(counts, key=lambda k: (-counts[k], k)):
             axis = 0
@@ -324,7 +328,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         new_axes = [v.copy() for v in axes_values]
         for axis, value in wanted:
             new_axes[axis] = np.sort(np.append(new_axes[axis], value))
-            inserted.append({"axis": names[axis], "value": value})
+            inserted.append(InsertedBreakpoint(axis=names[axis], value=value))
         new_points = grid_points(new_axes)
         # reuse the designs of existing points, design only the new ones
         old_lookup = {tuple(p): q for q, p in enumerate(point_design.points)}
@@ -346,15 +350,15 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
     if progress is not None:
         progress("tolerances", 1, 1)
     report = TableReport(
-        smoothness=smooth,
-        monotone=mono,
-        smoothing=smoothing_notes,
-        between=failing,
+        smoothness=tuple(smooth),
+        monotone=tuple(mono),
+        smoothing=tuple(smoothing_notes),
+        between=tuple(failing),
         between_checked=checked,
-        inserted=inserted,
-        tolerances=tol_fail,
+        inserted=tuple(inserted),
+        tolerances=tuple(tol_fail),
         tolerance_corners=tol_count,
-        tolerance_worst=tol_worst,
+        tolerance_worst=tuple(tol_worst),
     )
     return report, point_design, axes_values
 

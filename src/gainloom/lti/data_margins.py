@@ -26,13 +26,15 @@ Nyquist frequency are dropped.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 
 from .polynomials import polyval_rows
 
-__all__ = ["COARSE_PHASE", "GAP_RATIO", "DataMargins", "data_margins", "sampled_loop_on_data", "zoh_response"]
+__all__ = ["BAND_SAMPLES", "COARSE_PHASE", "GAP_RATIO", "DataMargins", "data_gaps", "data_margins",
+           "sampled_loop_on_data", "step_deviation_bound", "zoh_response"]
 
 #: Phase turn between the two samples around a crossover above which the
 #: grid is called too coarse there, degrees (common practice, no source).
@@ -40,6 +42,10 @@ COARSE_PHASE = 20.0
 #: A step between neighbouring samples this many times the row's median step
 #: (in log w) is a gap in the data (common practice, no source).
 GAP_RATIO = 4.0
+#: Fewest samples within an octave either side of the crossover (four per
+#: octave) below which the grid is called thin there (common practice, no
+#: source: a Bode corner needs a few samples per octave to be seen).
+BAND_SAMPLES = 8
 
 
 @dataclass(frozen=True, eq=False)
@@ -134,6 +140,67 @@ def sampled_loop_on_data(
     return np.where(below_nyquist, loop, np.nan)
 
 
+def step_deviation_bound(w: np.ndarray, loop_a: np.ndarray, loop_b: np.ndarray, ts: np.ndarray) -> np.ndarray:
+    """Largest difference of two sampled loops' unit-step responses that their samples allow.
+
+    For closed loops ``T = L/(1 + L)`` with ``T_a(1) = T_b(1)`` the step
+    responses differ at every sample instant by at most
+
+        (1/pi) int_0^(pi/ts) |T_a - T_b| ts / (2 sin(w ts / 2)) dw
+
+    (the inverse z-transform of ``(T_a - T_b) z/(z - 1)`` on the unit circle,
+    bounded by the integral of its modulus).  The integral is taken over
+    the samples only, by the trapezoidal rule in ``log w``; what lies outside
+    the measured band is not counted, so it is a bound over the band: small
+    below it where both loops have integral action, small above it where
+    both have rolled off.
+
+    Parameters
+    ----------
+    w : ndarray, shape (P, M)
+        Frequencies, rad/s, rising (``nan`` pads).
+    loop_a, loop_b : ndarray of complex, shape (P, M)
+        The two loops' ``L`` at ``w`` (``nan`` where missing, e.g. at or
+        above the Nyquist frequency).
+    ts : ndarray, shape (P,)
+        Sample period, s.
+
+    Returns
+    -------
+    ndarray, shape (P,)
+        Fraction of the step; ``nan`` where fewer than two samples are usable.
+    """
+    w = np.asarray(w, dtype=float)
+    theta = w * np.asarray(ts, dtype=float)[:, np.newaxis]
+    with np.errstate(all="ignore"):
+        difference = np.abs(loop_a / (1 + loop_a) - loop_b / (1 + loop_b)) * (theta / 2) / np.sin(theta / 2)
+        lw = np.log(w)
+    usable = np.isfinite(difference) & np.isfinite(lw)
+    pair = usable[:, 1:] & usable[:, :-1]
+    pieces = np.where(pair, 0.5 * (difference[:, 1:] + difference[:, :-1]) * (lw[:, 1:] - lw[:, :-1]), 0.0)
+    return np.where(np.sum(pair, axis=1) > 0, np.sum(pieces, axis=1) / np.pi, np.nan)
+
+
+def data_gaps(w: np.ndarray) -> np.ndarray:
+    """Neighbouring samples (k, k + 1) farther apart than :data:`GAP_RATIO` times the row's median step in ``log w``.
+
+    Parameters
+    ----------
+    w : ndarray, shape (P, M)
+        Frequencies, rad/s, rising along each row (``nan`` pads).
+
+    Returns
+    -------
+    ndarray of bool, shape (P, M - 1)
+    """
+    with np.errstate(all="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # a row without two samples has no median: no gap
+        lw = np.log(np.asarray(w, dtype=float))
+        step = lw[:, 1:] - lw[:, :-1]
+        median = np.nanmedian(step, axis=1, keepdims=True)
+        return np.isfinite(step) & (step > GAP_RATIO * median)
+
+
 def _compress(w: np.ndarray, loop: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Move each row's valid samples to the front (order kept); pads are ``nan``."""
     valid = np.isfinite(w) & np.isfinite(loop) & (w > 0) & (np.abs(loop) > 0)
@@ -208,10 +275,7 @@ def data_margins(w: np.ndarray, loop: np.ndarray) -> DataMargins:
         lmag = np.log(np.abs(l_c))
     phase = _unwrapped_phase(l_c, valid)
     pair_ok = valid[:, :-1] & valid[:, 1:]
-    step = np.where(pair_ok, lw[:, 1:] - lw[:, :-1], np.nan)
-    with np.errstate(all="ignore"):
-        median = np.nanmedian(np.where(pair_ok, step, np.nan), axis=1, keepdims=True)
-    gap = pair_ok & (step > GAP_RATIO * median)
+    gap = data_gaps(w_c)
 
     gain_pairs = _crossings(lmag, pair_ok)
     lw_gc, phase_gc = _interpolate(lw, lmag, gain_pairs, phase)
@@ -239,6 +303,8 @@ def data_margins(w: np.ndarray, loop: np.ndarray) -> DataMargins:
     w_ms = np.take_along_axis(w_c, peak, axis=1)[:, 0]
     bandwidth = _bandwidth(lw, l_c, pair_ok)
     coverage, judged = _coverage(w_c, valid, lmag, phase, gain_pairs, phase_pairs, gap, gm_db)
+    resolution = _resolution(w_c, valid, phase, gap, peak[:, 0], w_gc)
+    coverage = tuple(a + b for a, b in zip(coverage, resolution))
     return DataMargins(
         gain_margin_db=gm_db, phase_crossover=w_pc, phase_margin=pm, gain_crossover=w_gc,
         crossover=np.where(judged, crossover, np.nan), last_crossover=np.where(judged, last_crossover, np.nan),
@@ -299,3 +365,35 @@ def _coverage(w_c, valid, lmag, phase, gain_pairs, phase_pairs, gap, gm_db):
                          f"(|L| there is {20 * lmag[p, last[p]] / np.log(10):.1f} dB)")
         notes.append(tuple(found))
     return tuple(notes), judged
+
+
+def _resolution(w_c, valid, phase, gap, peak, w_gc):
+    """Per point: where the grid is too thin to trust a value judged on the samples.
+
+    The sensitivity peak is the largest sample of ``|1/(1 + L)|``, a lower
+    bound of the true peak: a gap beside it, or a phase turn of more than
+    :data:`COARSE_PHASE` to a neighbour, is noted; so are fewer than
+    :data:`BAND_SAMPLES` samples within an octave either side of the
+    crossover, the band the margins and the fit error near crossover rest on.
+    """
+    notes = []
+    last = np.sum(valid, axis=1) - 1
+    for p in range(w_c.shape[0]):
+        found = []
+        k = int(peak[p])
+        sides = [j for j in (k - 1, k) if 0 <= j < last[p]]
+        turn = max((abs(phase[p, j + 1] - phase[p, j]) for j in sides), default=0.0)
+        where = f"{w_c[p, k]:.4g} rad/s"
+        if any(gap[p, j] for j in sides):
+            found.append(f"a gap in the data borders the sensitivity peak at {where}: Ms is judged on the samples "
+                         "and may be higher in the gap")
+        elif turn > COARSE_PHASE:
+            found.append(f"the grid is coarse at the sensitivity peak at {where}: the phase turns {turn:.0f} deg to "
+                         f"a neighbour (more than {COARSE_PHASE:g}); Ms is judged on the samples and may be higher")
+        if np.isfinite(w_gc[p]):
+            count = int(np.sum(valid[p] & (w_c[p] >= w_gc[p] / 2) & (w_c[p] <= 2 * w_gc[p])))
+            if count < BAND_SAMPLES:
+                found.append(f"only {count} samples within an octave of the crossover {w_gc[p]:.4g} rad/s (fewer "
+                             f"than {BAND_SAMPLES}): the margins and the fit error there rest on few samples")
+        notes.append(tuple(found))
+    return tuple(notes)

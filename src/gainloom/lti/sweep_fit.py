@@ -181,8 +181,8 @@ def _search_delay(w, h, weight, w0, tau_max, poles, zeros):
 def _isolation(w: np.ndarray, h: np.ndarray) -> np.ndarray:
     """Relative distance of each sample from the log-log line through its two neighbours (0 at the ends)."""
     lw = np.log(w)
-    t = (lw[:, 1:-1] - lw[:, :-2]) / (lw[:, 2:] - lw[:, :-2])
-    with np.errstate(all="ignore"):
+    with np.errstate(all="ignore"):  # padded rows (w = 1 there) give 0/0, set to 0 below
+        t = (lw[:, 1:-1] - lw[:, :-2]) / (lw[:, 2:] - lw[:, :-2])
         log_mag = np.log(np.abs(h))
         # the phase is interpolated as a turn from the left neighbour, so a wrap does no harm
         turn = np.angle(h[:, 2:] / h[:, :-2])

@@ -225,9 +225,27 @@ def _quantisation(doc: dict[str, Any]) -> list[str]:
     lines += table_lines(["quantity", "worst point", "before", "after", "change (negative: worse)"], rows)
     for b in q["broken"]:
         lines.append(f"- broken by rounding ({b['where']}): {b['spec']} at {b['point']}")
+    lines += _filter_rounding(q.get("filters") or [])
     offsets = ", ".join(f"{k} {number(v)}" for k, v in q["axis_offsets"].items())
     lines.append(f"Stored axis breakpoints differ from the designed ones by at most: {offsets} (axis units).")
     return lines + [""]
+
+
+def _filter_rounding(sections: list[dict[str, Any]]) -> list[str]:
+    """Filter sections' poles and zeros designed and stored (largest radius, largest frequency move)."""
+    if not sections:
+        return []
+    lines = ["", "Filter sections after rounding (largest over the grid; a stored pole at |z| >= 1 fails):", ""]
+    lines += table_lines(
+        ["section", "pole radius designed / stored", "zero radius designed / stored", "pole frequency moved",
+         "zero frequency moved", "stability margin"],
+        [[f"{s['section']} ({s['kind']})", f"{number(s['pole_radius']['designed'], 9)} / "
+          f"{number(s['pole_radius']['stored'], 9)}", f"{number(s['zero_radius']['designed'], 9)} / "
+          f"{number(s['zero_radius']['stored'], 9)}", f"{number(100 * s['pole_frequency_change'])} %",
+          f"{number(100 * s['zero_frequency_change'])} %", number(s["stability_margin"])] for s in sections])
+    for s in sections:
+        lines += [f"- FAIL: {text}" for text in s["failures"]] + [f"- warning: {text}" for text in s["warnings"]]
+    return lines
 
 
 def _c_check(doc: dict[str, Any]) -> list[str]:
@@ -252,6 +270,11 @@ def _c_check(doc: dict[str, Any]) -> list[str]:
     return lines
 
 
+def _percent(fraction: Any) -> Any:
+    """A logged fraction in percent; missing and non-finite markers as they are."""
+    return 100 * fraction if isinstance(fraction, (int, float)) and not isinstance(fraction, bool) else fraction
+
+
 def _measured(doc: dict[str, Any]) -> list[str]:
     m = doc.get("measured")
     if m is None:
@@ -260,12 +283,16 @@ def _measured(doc: dict[str, Any]) -> list[str]:
              f"**{'pass' if m['passed'] else 'FAIL'}**: the table's frequency specs judged again on the raw "
              "sweep samples (zero-order hold and computation delay applied on the data's grid); the design "
              "ran on the fitted models.", ""]
+    if m.get("between_points_model"):
+        rule = m["between_points_model"]
+        lines += [f"{rule[:1].upper()}{rule[1:]}.", ""]
     rows = [[e["index"], e["label"], number(e["gain_margin_db"]), number(e["phase_margin_deg"]),
              number(e["crossover_rad_s"]), number(e["sensitivity_peak"]),
              f"{number(100 * e['fit_error'])} / {number(100 * e['fit_error_near_crossover'])}",
+             number(_percent(e.get("step_deviation_bound"))),
              "pass" if e["passed"] else "FAIL: " + "; ".join(e["failed"])] for e in m["points"]]
     lines += table_lines(["#", "point", "GM [dB]", "PM [deg]", "ωc [rad/s]", "Ms", "fit error % (all / near ωc)",
-                     "on the data"], rows)
+                          "step ± % (data vs model)", "on the data"], rows)
     notes = [f"- {e['label']}: {note}" for e in m["points"] for note in e["coverage"]]
     return lines + (notes + [""] if notes else [])
 

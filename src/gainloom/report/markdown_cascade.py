@@ -7,6 +7,7 @@ from __future__ import annotations
 from typing import Any
 
 from .markdown import number, render_markdown, table_lines
+from .markdown_cascade_target import cascade_target_section
 
 __all__ = ["render_cascade_markdown"]
 
@@ -59,6 +60,8 @@ def render_cascade_markdown(doc: dict[str, Any]) -> str:
                           number(r["metrics"]["load_responses"][0]["peak_deviation"]
                                  if r["metrics"]["load_responses"] else None)]
                          for r in simulation["loops"]])
+    if "target" in info:
+        lines += cascade_target_section(info["target"])
     for loop in doc["loops"]:
         lines += [f"## Loop {loop['loop']['name']}", ""]
         lines += _demoted(render_markdown(loop))

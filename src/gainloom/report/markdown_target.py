@@ -10,16 +10,16 @@ from .markdown import (
     table_lines,  # the one Markdown table writer of the log
 )
 
-__all__ = ["target_section"]
+__all__ = ["function_rows", "helpers_text", "rules_lines", "spread_text", "target_section"]
 
 
-def _spread(spread: dict[str, Any] | None) -> str:
+def spread_text(spread: dict[str, Any] | None) -> str:
     if not spread or not spread["calls"]:
         return "-"
     return f"{spread['min']} / {number(spread['median'])} / {spread['max']}"
 
 
-def _helpers(function: dict[str, Any]) -> str:
+def helpers_text(function: dict[str, Any]) -> str:
     if not function["helpers"]:
         return "none"
     kinds: dict[tuple[str, bool], list[str]] = {}
@@ -29,6 +29,12 @@ def _helpers(function: dict[str, Any]) -> str:
                      for (kind, allowed), symbols in kinds.items())
 
 
+def function_rows(core: dict[str, Any]) -> list[list[Any]]:
+    """One table row per public function of a core's build: code and stack bytes, helpers called."""
+    return [[core["core"], f["name"], f["code_bytes"], "-" if f["stack_bytes"] is None else f["stack_bytes"],
+             helpers_text(f)] for f in core["build"]["functions"]]
+
+
 def _cores(target: dict[str, Any]) -> list[str]:
     rows, functions = [], []
     for core in target["cores"]:
@@ -36,12 +42,10 @@ def _cores(target: dict[str, Any]) -> list[str]:
         compiled = ", ".join(f"{std} {'clean' if ok else 'FAILS'}" for std, ok in build["compiled"].items())
         rows.append([
             core["label"], core["machine"], compiled, build["flash_bytes"], build["ram_bytes"], build["table_bytes"],
-            _spread(counts["lookup"]) if counts else "-", _spread(counts["step"]) if counts else "-",
+            spread_text(counts["lookup"]) if counts else "-", spread_text(counts["step"]) if counts else "-",
             "-" if run is None else f"{run['status']}: {run['message']}",
         ])
-        for f in build["functions"]:
-            stack = "-" if f["stack_bytes"] is None else f["stack_bytes"]
-            functions.append([core["core"], f["name"], f["code_bytes"], stack, _helpers(f)])
+        functions += function_rows(core)
     lines = table_lines(["core", "emulated on", "build", "flash B", "RAM B", "tables B",
                          "instructions per lookup (min / median / max)", "per step (min / median / max)",
                          "emulated run"], rows)
@@ -52,7 +56,7 @@ def _cores(target: dict[str, Any]) -> list[str]:
     return lines
 
 
-def _rules(rules: dict[str, Any] | None) -> list[str]:
+def rules_lines(rules: dict[str, Any] | None) -> list[str]:
     lines = ["### Coding rules: cppcheck and MISRA C:2012", ""]
     if rules is None:
         return lines + ["Not checked in this run.", ""]
@@ -79,4 +83,4 @@ def target_section(doc: dict[str, Any]) -> list[str]:
     else:
         lines += [f"Status **{target['status']}** ({target['number_format']}): {target['message']}", ""]
         lines += _cores(target)
-    return lines + _rules(target["rules"])
+    return lines + rules_lines(target["rules"])

@@ -40,11 +40,13 @@ _SPEC = _obj({"value": NUMBER, "limit": NUMBER, "pass": BOOL, "margin": NUMBER})
 
 _MEASURED = _obj({
     "passed": BOOL,
+    "between_points_model": STRING,
     "points": {"list": _obj({
         "index": INT, "label": STRING, "passed": BOOL, "failed": {"list": STRING}, "coverage": {"list": STRING},
         "gain_margin_db": NUMBER, "phase_margin_deg": NUMBER, "crossover_rad_s": NUMBER,
         "last_crossover_rad_s": NUMBER, "sensitivity_peak": NUMBER, "bandwidth_rad_s": NUMBER,
         "delay_margin_s": NUMBER, "fit_error": NUMBER, "fit_error_near_crossover": NUMBER,
+        "fit_rms_near_crossover": NUMBER, "step_deviation_bound": NUMBER,
     })},
 })
 
@@ -137,7 +139,17 @@ _QUANTISATION = _obj({
     })},
     "worst": {"map": _QUANT_WORST},
     "broken": {"list": _obj({"where": STRING, "point": STRING, "spec": STRING})},
-})
+}, {"filters": {"list": _obj({
+    "section": INT,
+    "kind": STRING,
+    "pole_radius": _obj({"designed": NUMBER, "stored": NUMBER}),
+    "zero_radius": _obj({"designed": NUMBER, "stored": NUMBER}),
+    "pole_frequency_change": NUMBER,
+    "zero_frequency_change": NUMBER,
+    "stability_margin": NUMBER,
+    "failures": {"list": STRING},
+    "warnings": {"list": STRING},
+})}})
 
 _C_CHECK = _obj({
     "status": STRING,

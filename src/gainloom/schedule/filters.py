@@ -127,8 +127,9 @@ class FilterValues:
     values: tuple[dict[str, np.ndarray], ...]
     resonance: tuple[tuple[np.ndarray, np.ndarray] | None, ...]
 
-    def discrete(self, ts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """The cascade in ``z``: each section Tustin-prewarped at its frequency; shape (Q, 2 n + 1)."""
+    def sections(self, ts: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
+        """Each section in ``z``, Tustin-prewarped at its frequency: ``(num, den)`` of shape (Q, 3),
+        ``den[:, 0] = 1`` (the table's ``b0, b1, b2`` and ``1, a1, a2``)."""
         ts = np.asarray(ts, dtype=float)
         sections = []
         for kind, values in zip(self.kinds, self.values):
@@ -137,7 +138,12 @@ class FilterValues:
             else:
                 num, den = low_pass_continuous(values["frequency"], values["damping"])
             sections.append(tustin_prewarped(num, den, values["frequency"], ts))
-        return cascade(sections, ts.shape[0])
+        return sections
+
+    def discrete(self, ts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """The cascade in ``z``: each section Tustin-prewarped at its frequency; shape (Q, 2 n + 1)."""
+        ts = np.asarray(ts, dtype=float)
+        return cascade(self.sections(ts), ts.shape[0])
 
 
 def evaluate_filters(family, sections: tuple[FilterSection, ...], points: np.ndarray,

@@ -5,8 +5,11 @@ columns include every scheduling variable (``file``); paths are relative to
 the schedule file.  At load time every point's data are read, checked and
 fitted with a rational model with dead time
 (:func:`gainloom.lti.sweep_fit.fit_response`); the fitted models are the
-plant the design works on, and between grid points their coefficients are
-interpolated linearly (like a tabulated parameter, no extrapolation).  The
+plant the design works on.  Between grid points the models are interpolated
+(no extrapolation) through their gain, poles and zeros on log scales
+(:mod:`gainloom.lti.root_blend`), the dead time linearly; where the models'
+structures differ (a pole pair real at one point and complex at another)
+their coefficients are interpolated linearly instead, with a warning.  The
 raw data stay with the schedule so that the design can be re-judged on them
 (:mod:`gainloom.design.measured_check`).
 """
@@ -21,7 +24,9 @@ from scipy.interpolate import RegularGridInterpolator
 
 from .. import limits
 from ..errors import InputError, ScheduleError
+from ..lti.data_margins import GAP_RATIO, data_gaps
 from ..lti.polynomials import batched_roots
+from ..lti.root_blend import RootCoordinates, coefficients_at, root_coordinates
 from ..lti.sweep_fit import ResponseFit, fit_response
 from .model import Axis
 from .nodes import Node
@@ -75,6 +80,10 @@ class MeasuredPlant:
     settings : FitSettings
     axes_values : tuple of ndarray
         The grid the models are interpolated over.
+    blend : RootCoordinates or None
+        The models in log gain/root coordinates, interpolated between grid
+        points; ``None`` where their structures differ (coefficients are
+        interpolated then).
     warnings : tuple of str
     """
 
@@ -86,6 +95,7 @@ class MeasuredPlant:
     fit: ResponseFit
     settings: FitSettings
     axes_values: tuple[np.ndarray, ...]
+    blend: RootCoordinates | None
     warnings: tuple[str, ...]
 
     def summary(self) -> dict:
@@ -101,6 +111,15 @@ class MeasuredPlant:
         return {"poles": fit.poles, "zeros": fit.zeros, "dead_time": self.settings.dead_time, "order": "given" if self.settings.poles is not None
                 else "chosen", "tolerance": self.settings.tolerance, "points": points}
 
+    @property
+    def between_rule(self) -> str:
+        """The assumption that makes the plant between grid points, in words (for the log)."""
+        made = ("the fitted models' gain, poles and zeros interpolated on log scales (Bode asymptotes in dB, "
+                "corner frequencies on a log axis)" if self.blend is not None else
+                "the fitted models' coefficients interpolated linearly (their root structures differ)")
+        return f"between grid points the plant is an assumption, nothing was measured there: {made}, the dead " \
+               "time linearly"
+
     def source(self, point: int, sample: int) -> str:
         """``file:line`` of one sample."""
         return f"{self.files[point]}:{int(self.lines[point, sample])}"
@@ -108,20 +127,30 @@ class MeasuredPlant:
     def models_at(self, points: np.ndarray, where) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Fitted ``num``, ``den`` (descending in ``s``) and dead time at ``points`` (Q, n_axes).
 
-        ``where(bad, points)`` describes the first point outside the grid for
-        the error message.
+        Between grid points: the gain, poles and zeros interpolated on log
+        scales (``blend``), or the coefficients where the structures differ;
+        the dead time linearly.  ``where(bad, points)`` describes the first
+        point outside the grid for the error message.
         """
-        shape = tuple(v.size for v in self.axes_values)
-        values = np.concatenate([self.fit.num, self.fit.den, self.fit.dead_time[:, np.newaxis]], axis=1)
-        table = RegularGridInterpolator(self.axes_values, values.reshape(shape + (values.shape[1],)),
-                                        bounds_error=False, fill_value=np.nan)
-        out = table(points)
+        fit = self.fit
+        models = self.blend.values if self.blend is not None else np.concatenate([fit.num, fit.den], axis=1)
+        out = self._interpolate(np.concatenate([models, fit.dead_time[:, np.newaxis]], axis=1), points)
         bad = ~np.all(np.isfinite(out), axis=1)
         if np.any(bad):
             raise self.node.error(f"measured data cover only the grid; a model is asked for {where(bad, points)} "
                                   "(no extrapolation)")
-        order = self.fit.poles + 1
+        if self.blend is not None:
+            num, den = coefficients_at(self.blend, out[:, :-1])
+            return num, den, out[:, -1]
+        order = fit.poles + 1
         return out[:, :order], out[:, order : 2 * order], out[:, -1]
+
+    def _interpolate(self, values: np.ndarray, points: np.ndarray) -> np.ndarray:
+        """Rows of ``values`` (one per grid point) interpolated (multi)linearly at ``points``, ``nan`` outside."""
+        shape = tuple(v.size for v in self.axes_values)
+        table = RegularGridInterpolator(self.axes_values, values.reshape(shape + (values.shape[1],)),
+                                        bounds_error=False, fill_value=np.nan)
+        return table(points)
 
 
 def read_measured(node: Node, axes: tuple[Axis, ...], points: np.ndarray, describe) -> MeasuredPlant:
@@ -172,7 +201,8 @@ def read_measured(node: Node, axes: tuple[Axis, ...], points: np.ndarray, descri
     for array in (w_all, h_all, lines):
         array.setflags(write=False)
     plant = MeasuredPlant(node=node, files=files, w=w_all, response=h_all, lines=lines, fit=fit, settings=settings,
-                          axes_values=tuple(a.values for a in axes), warnings=())
+                          axes_values=tuple(a.values for a in axes), blend=root_coordinates(fit.num, fit.den),
+                          warnings=())
     return replace(plant, warnings=tuple(_fit_warnings(plant, points, describe)))
 
 
@@ -310,6 +340,20 @@ def _fit_warnings(plant: MeasuredPlant, points: np.ndarray, describe) -> list[st
             f"by more than the tolerance {100 * settings.tolerance:g} % (rms relative) at {poor.size} point(s), "
             f"worst {100 * fit.rms_error[p]:.1f} % at {describe(points[p])}; the design on the model is re-judged "
             "on the data, but a better order (plant.measured.fit) gives a better design")
+    if plant.blend is None and points.shape[0] > 1:
+        other = next((p for p in range(1, points.shape[0])
+                      if root_coordinates(fit.num[[0, p]], fit.den[[0, p]]) is None), 0)
+        which = (f"the fitted models at {describe(points[0])} and {describe(points[other])} differ in structure "
+                 "(real and complex roots, or their signs)" if other else "a fitted model has a root at the origin")
+        warnings.append(
+            f"measured plant: {which}, so between grid points their coefficients are interpolated linearly instead "
+            "of their gain, poles and zeros (docs/schedule-format.md, measured); table.between_points judges that "
+            "interpolation")
+    for p, k in np.argwhere(data_gaps(plant.w)):
+        warnings.append(f"measured plant: a gap in the data between {plant.source(int(p), int(k))} and line "
+                        f"{int(plant.lines[p, k + 1])} ({plant.w[p, k] / (2 * np.pi):.4g} .. "
+                        f"{plant.w[p, k + 1] / (2 * np.pi):.4g} Hz, more than {GAP_RATIO:g} times the median step): "
+                        "the fit does not see it, and a crossover or a peak there cannot be judged on the data")
     for p, k in np.argwhere(fit.outliers):
         warnings.append(f"measured plant: sample at {plant.source(int(p), int(k))} ({plant.w[p, k] / (2 * np.pi):.4g} "
                         "Hz) is an isolated outlier, left out of the fit (the data-judged margins still use it; "

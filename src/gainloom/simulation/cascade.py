@@ -31,7 +31,7 @@ from .metrics import SimulationMetrics, measure
 from .plant import split_delay
 from .scenario import LoadStep, PiecewiseLinear, Scenario
 
-__all__ = ["CascadeScenario", "LoopRun", "CascadeRun", "run_cascade"]
+__all__ = ["CascadeScenario", "LoopRun", "CascadeRun", "held_signal", "run_cascade"]
 
 #: A run whose signals pass this magnitude has diverged and is stopped.
 _STOP_MAGNITUDE = 1e100
@@ -82,6 +82,10 @@ class LoopRun:
     limits : tuple of float
         Output limits in force (physical units, as the format holds them).
     metrics : SimulationMetrics
+    step_window : float or None
+        Length of the window the reference step's overshoot and settling are
+        measured in (to the next event: a later reference change or the load
+        step, or the end of the run), s; ``None`` without a step.
     """
 
     name: str
@@ -92,11 +96,22 @@ class LoopRun:
     unsaturated: np.ndarray
     limits: tuple[float, float]
     metrics: SimulationMetrics
+    step_window: float | None = None
 
-    def to_dict(self) -> dict[str, Any]:
-        """Plain data for the log: metrics and the limits."""
-        return {"name": self.name, "samples": int(self.time.size), "output_limits": list(self.limits),
-                "metrics": self.metrics.to_dict()}
+    def to_dict(self, series: bool = False) -> dict[str, Any]:
+        """Plain data for the log: metrics and the limits (``series``: every sample too)."""
+        data: dict[str, Any] = {"name": self.name, "samples": int(self.time.size),
+                                "output_limits": list(self.limits), "metrics": self.metrics.to_dict(),
+                                "step_window_s": self.step_window}
+        if series:
+            data["series"] = {key: _finite_list(getattr(self, key))
+                              for key in ("time", "reference", "output", "control", "unsaturated")}
+        return data
+
+
+def _finite_list(values: np.ndarray) -> list[float | None]:
+    """Samples as floats, ``None`` where a diverged run left no number (strict JSON)."""
+    return [float(v) if np.isfinite(v) else None for v in values]
 
 
 @dataclass(frozen=True, eq=False)
@@ -112,10 +127,10 @@ class CascadeRun:
         """No loop shows divergence, growth or a saturated oscillation."""
         return not any(loop.metrics.instability.detected for loop in self.loops)
 
-    def to_dict(self) -> dict[str, Any]:
-        """Plain data for the log."""
+    def to_dict(self, series: bool = False) -> dict[str, Any]:
+        """Plain data for the log (``series``: every sample of every loop too)."""
         return {"number_format": self.number_format, "scenario": self.scenario.to_dict(), "stable": self.stable,
-                "loops": [loop.to_dict() for loop in self.loops]}
+                "loops": [loop.to_dict(series) for loop in self.loops]}
 
 
 def _state_space(loop: Any, what: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -167,12 +182,28 @@ def _point(schedule: Any, values: dict[str, float]) -> np.ndarray:
     return np.array([[float(values[name]) for name in schedule.axis_names]])
 
 
-def _controller(result: Any, schedule: Any, values: dict[str, float], count: int, number_format: str) -> Any:
+def _controller(table: Any, schedule: Any, values: dict[str, float], count: int, number_format: str) -> Any:
     points = np.repeat(_point(schedule, values), count, axis=0)
     codegen = schedule.codegen
     fixed = number_format in ("q15", "q31")
-    return TableController(result.table, number_format, points,
+    return TableController(table, number_format, points,
                            codegen.error_full_scale if fixed else None, codegen.output_full_scale if fixed else None)
+
+
+def held_signal(times: np.ndarray, values: np.ndarray) -> PiecewiseLinear:
+    """A sampled signal held between its changes, as a :class:`PiecewiseLinear` with a jump at each change.
+
+    The inner loop's reference is the outer loop's held output: its changes
+    are the events its overshoot and settling are measured between.
+    """
+    finite = np.isfinite(values)
+    times, values = times[finite], values[finite]
+    if values.size == 0:
+        return PiecewiseLinear.constant(0.0)
+    changes = np.flatnonzero(np.diff(values) != 0) + 1
+    breaks_t = [float(times[0])] + [float(t) for k in changes for t in (times[k], times[k])]
+    breaks_v = [float(values[0])] + [float(v) for k in changes for v in (values[k - 1], values[k])]
+    return PiecewiseLinear(np.array(breaks_t), np.array(breaks_v))
 
 
 def _loop_run(name: str, schedule: Any, time: np.ndarray, period: float, signals: dict[str, np.ndarray],
@@ -182,19 +213,24 @@ def _loop_run(name: str, schedule: Any, time: np.ndarray, period: float, signals
                         reference=reference, load_steps=loads)
     metrics = measure(time, np.full(time.size, period), signals["reference"], signals["output"],
                       signals["unsaturated"], limits, scenario)
-    return LoopRun(name=name, time=time, limits=limits, metrics=metrics, **signals)
+    window = None
+    if metrics.step_time is not None:
+        later = [t for t in scenario.event_times if t > metrics.step_time]
+        window = (later[0] if later else float(time[-1]) + period) - metrics.step_time
+    return LoopRun(name=name, time=time, limits=limits, metrics=metrics, step_window=window, **signals)
 
 
-def run_cascade(cascade: Any, schedules: tuple[Any, ...], results: tuple[Any, ...], scenario: CascadeScenario,
+def run_cascade(cascade: Any, schedules: tuple[Any, ...], tables: tuple[Any, ...], scenario: CascadeScenario,
                 number_format: str = "float32") -> CascadeRun:
     """Simulate a designed two-loop cascade (module docstring).
 
     Parameters
     ----------
     cascade : Cascade
-    schedules, results : tuple
-        Each loop's schedule and design result, inner first (as in
-        :class:`gainloom.design.cascade.CascadeDesign`).
+    schedules, tables : tuple
+        Each loop's schedule and gain table, inner first (as in
+        :class:`gainloom.design.cascade.CascadeDesign`, or read from the
+        design folder's gains files).
     scenario : CascadeScenario
     number_format : str
         Controller arithmetic (:data:`gainloom.simulation.SIMULATION_FORMATS`);
@@ -213,8 +249,8 @@ def run_cascade(cascade: Any, schedules: tuple[Any, ...], results: tuple[Any, ..
     update = _series_update(inner_models.plant, outer_models.plant, ts, float(inner_models.delay[0]))
     count = int(np.floor(scenario.duration / ts + 1e-9)) + 1
     outer_count = (count - 1) // factor + 1
-    inner_ctl = _controller(results[0], inner_sched, scenario.inner_point, count, number_format)
-    outer_ctl = _controller(results[1], outer_sched, scenario.outer_point, outer_count, number_format)
+    inner_ctl = _controller(tables[0], inner_sched, scenario.inner_point, count, number_format)
+    outer_ctl = _controller(tables[1], outer_sched, scenario.outer_point, outer_count, number_format)
     outer_delay = round(float(outer_models.delay[0]))
     inner = {k: np.full(count, np.nan) for k in ("reference", "output", "control", "unsaturated")}
     outer = {k: np.full(outer_count, np.nan) for k in ("reference", "output", "control", "unsaturated")}
@@ -240,7 +276,7 @@ def run_cascade(cascade: Any, schedules: tuple[Any, ...], results: tuple[Any, ..
     outer_times = times[::factor][:outer_count]
     loads = (LoadStep(scenario.load_time, scenario.load_amplitude),)
     runs = (
-        _loop_run(inner_loop.name, inner_sched, times, ts, inner, inner_ctl.limits, PiecewiseLinear.constant(0.0),
+        _loop_run(inner_loop.name, inner_sched, times, ts, inner, inner_ctl.limits, held_signal(times, inner["reference"]),
                   ()),
         _loop_run(outer_loop.name, outer_sched, outer_times, factor * ts, outer, outer_ctl.limits,
                   PiecewiseLinear.step(scenario.reference_step), loads),

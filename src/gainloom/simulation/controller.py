@@ -34,7 +34,7 @@ import numpy as np
 from ..codegen.layout import LIMIT_TABLES, layout_table
 from ..codegen.mirror import FixedStepper, FloatStepper, lookup_gains, state_fields
 from ..codegen.qformat import STATE_FRAC, dequantize, quantize
-from ..design.lookup import interpolate_grid, interpolate_table
+from ..design.lookup import interpolate_grid, interpolate_grids, interpolate_table
 from ..design.table import GainTable
 from ..errors import InputError
 from ..names import NUMBER_FORMATS, unknown_name_message
@@ -56,7 +56,8 @@ STATE_NAMES: dict[str, str] = {
 
 
 def recorded_fields(structure: str) -> tuple[str, ...]:
-    """Mirror state fields recorded per sample (the previous error is left out)."""
+    """Mirror state fields recorded per sample (the previous error and the filter sections' past
+    values are left out: the controller's own states are what a firmware engineer traces)."""
     return tuple(name for name in state_fields(structure) if name != "e1")
 
 
@@ -104,8 +105,10 @@ class TableController:
             gains = interpolate_table(table, points, np.float64)
             self.layout = None
             stepped = dict(gains)
+            axes_values = tuple(axis.values for axis in table.axes)
+            # the filter sections' coefficients are interpolated like the gains, as the C does
+            stepped.update(interpolate_grids(axes_values, table.filter_grids, points, np.float64))
             if table.limits_vary:  # looked up per sample with the coefficients, as the C does
-                axes_values = tuple(axis.values for axis in table.axes)
                 for name, grid in zip(LIMIT_TABLES, table.limit_grids):
                     stepped[name] = interpolate_grid(axes_values, grid, points, np.float64)
             self.stepper = FloatStepper(table.structure, stepped, table.limit_envelope, np.float64)

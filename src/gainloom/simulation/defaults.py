@@ -14,7 +14,7 @@ import numpy as np
 
 from .scenario import LoadStep, PiecewiseLinear, Scenario
 
-__all__ = ["LOAD_STEP_FRACTION", "SIMULATION_MAX_SAMPLES", "SIMULATION_SPAN", "time_scale", "default_scenario"]
+__all__ = ["LOAD_STEP_FRACTION", "SIMULATION_MAX_SAMPLES", "SIMULATION_SPAN", "time_scale", "time_scale_of", "default_scenario"]
 
 #: Default simulation timeline in units of the loop's time scale ``T``:
 #: hold (reference step settles), ramp of the first variable, hold at its top.
@@ -34,16 +34,37 @@ _MIN_SCALE_SAMPLES = 20.0
 
 
 def time_scale(result: Any) -> tuple[float, str]:
-    """The loop's slowest time scale in seconds, and where it came from."""
+    """The loop's slowest time scale in seconds, and where it came from (:func:`time_scale_of`)."""
     analysis = result.analysis
-    periods = np.asarray(result.table.sample_period, dtype=float)
-    floor = _MIN_SCALE_SAMPLES * float(np.max(periods))
-    settling = np.asarray(analysis.settling_time, dtype=float)
+    return time_scale_of(analysis.settling_time, analysis.decay, result.table.sample_period)
+
+
+def time_scale_of(settling: Any, decay: Any, periods: Any) -> tuple[float, str]:
+    """The slowest time scale of a designed table from its per-point figures.
+
+    Parameters
+    ----------
+    settling, decay : array_like
+        Designed 2 % settling time (s) and slowest closed-loop decay rate
+        (1/s) per grid point; non-finite or non-positive entries are ignored.
+    periods : array_like
+        Sample period per grid point, s.
+
+    Returns
+    -------
+    scale : float
+        The largest settling time; else ``4 / smallest decay``; at least
+        20 sample periods.
+    basis : str
+        Which of these it is, for the log.
+    """
+    floor = _MIN_SCALE_SAMPLES * float(np.max(np.asarray(periods, dtype=float)))
+    settling = np.asarray(settling, dtype=float)
     settling = settling[np.isfinite(settling) & (settling > 0)]
     if settling.size:
         scale, basis = float(np.max(settling)), "largest designed 2 % settling time over the grid points"
     else:
-        decay = np.asarray(analysis.decay, dtype=float)
+        decay = np.asarray(decay, dtype=float)
         decay = decay[np.isfinite(decay) & (decay > 0)]
         if decay.size:
             # 2 % of a first-order decay: ln(50) ~ 3.9 time constants (closed form)

@@ -107,11 +107,12 @@ def _check_arguments(
         raise InputError(f"scenario must be a Scenario; got {type(scenario).__name__}")
     if number_format not in SIMULATION_FORMATS:
         raise InputError(unknown_name_message("number format", str(number_format), SIMULATION_FORMATS))
-    if getattr(getattr(schedule, "controller", None), "filters", ()):
-        # running the table without its filter sections would simulate another controller
+    written = len(getattr(getattr(schedule, "controller", None), "filters", ()))
+    if written != len(table.filters):
+        # the table's sections are what the C runs: without them it would simulate another controller
         raise InputError(
-            "the schedule has controller.filters; the simulation does not run filter sections yet, and "
-            "without them it would simulate another controller than the one designed"
+            f"the schedule has {written} controller.filters section(s) and the gain table {len(table.filters)}; "
+            "design the table again from this schedule"
         )
     schedule_axes = _axis_names(schedule.axes)
     unknown = [axis.name for axis in table.axes if axis.name not in schedule_axes]

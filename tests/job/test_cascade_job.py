@@ -13,6 +13,11 @@ from pathlib import Path
 import pytest
 
 from gainloom.codegen.harness import WARNING_FLAGS, find_compiler
+from gainloom.codegen.target_tools import find_target_tools
+
+TOOLS = find_target_tools()
+needs_target = pytest.mark.skipif(
+    not (TOOLS.can_run and TOOLS.cppcheck), reason=f"missing {', '.join(TOOLS.missing('gcc', 'nm', 'size', 'readelf', 'qemu', 'cppcheck'))}")
 
 SCHEDULES = Path(__file__).resolve().parents[2] / "schedules"
 
@@ -24,9 +29,8 @@ def _design(path: Path, out: Path) -> subprocess.CompletedProcess:
 
 
 @pytest.fixture(scope="module")
-def demo(tmp_path_factory):
-    out = tmp_path_factory.mktemp("servo")
-    return _design(SCHEDULES / "servo_cascade.yaml", out), out
+def demo(servo_cascade_design):
+    return servo_cascade_design
 
 
 @pytest.fixture(scope="module")
@@ -126,3 +130,39 @@ def test_failed_cascade_does_not_build_without_accepting_it(fast, tmp_path):
     accepted = _compile(out, "servo_fast", tmp_path, "-DSERVO_FAST_CURRENT_ACCEPT_UNVERIFIED",
                         "-DSERVO_FAST_SPEED_ACCEPT_UNVERIFIED")
     assert accepted.returncode == 0, accepted.stderr
+
+
+@needs_target
+def test_target_stage_runs_the_module_on_both_cores(demo):
+    done, out = demo
+    doc = json.loads((out / "verification.json").read_text(encoding="utf-8"))
+    stages = {s["stage"]: s for s in doc["cascade"]["stages"]}
+    assert stages["target"]["status"] == "pass" and stages["C rules"]["status"] == "pass", stages
+    assert "per base period on average" in stages["target"]["detail"]
+    target = doc["cascade"]["target"]
+    assert [c["core"] for c in target["cores"]] == ["cortex-m0plus", "cortex-m4f"]
+    for core in target["cores"]:
+        assert core["build"]["compiled"] == {"c99": True, "c11": True}
+        names = {f["name"] for f in core["build"]["functions"]}
+        assert {"servo_current_update", "servo_speed_update", "servo_current_lookup", "servo_speed_lookup"} <= names
+        for loop in core["loops"]:  # the harness vectors on the emulated core: the host build's bytes, bit-exact
+            assert loop["emulated_run"]["identical_to_host"] is True, loop
+            assert loop["emulated_run"]["worst_step_error"] == 0 and loop["instructions"]["step"]["calls"] > 0
+        interrupt = core["interrupt"]
+        # the documented calling order: the speed step in 1 of every 8 interrupts
+        assert interrupt["rate_factor"] == 8 and interrupt["with_outer"]["calls"] * 7 == interrupt["inner_only"]["calls"]
+        # a period that also steps the outer loop runs more instructions than one that does not
+        assert interrupt["with_outer"]["median"] > interrupt["inner_only"]["median"]
+        mean = interrupt["mean_per_base_period"]
+        assert interrupt["inner_only"]["min"] <= mean <= interrupt["with_outer"]["max"]
+    assert target["rules"]["undocumented"] == []
+    assert "Target cores" in (out / "verification.md").read_text(encoding="utf-8")
+    assert "per base period on average" in done.stdout
+
+
+@needs_target
+def test_failed_cascade_module_is_still_checked_on_the_target(fast):
+    _done, out = fast
+    stages = {s["stage"]: s for s in json.loads((out / "verification.json").read_text(encoding="utf-8"))["cascade"]["stages"]}
+    # the checks build it as an integrator who accepted the unverified tables would
+    assert stages["target"]["status"] == "pass" and stages["C rules"]["status"] == "pass", stages

@@ -5,7 +5,7 @@ module, checked and logged into one output folder.
 
 1. design the loops inner first (:func:`gainloom.design.design_cascade`),
    with the cascade checks;
-2. per loop, the stages of the single-loop job (:mod:`.run`): the gains
+2. per loop, the stages of the single-loop job (:mod:`.design_job`): the gains
    file ``<loop>.gains.yaml`` and the re-check of the table as stored in
    the number format;
 3. one C module ``<prefix>.h``/``<prefix>.c`` with every loop
@@ -21,8 +21,13 @@ module, checked and logged into one output folder.
    a reference step and a load step, in the number format of the C, with
    ``cascade_simulation.png``.
 
-The target build of a cascade module is not built yet: that stage says
-"not checked".  Files are written once, at the end,
+7. the module on the target cores (:mod:`gainloom.codegen.target_cascade`):
+   one build per core, every loop's harness run emulated against its host
+   run, instructions per lookup and step and of the base-period interrupt
+   in the documented calling order, cppcheck with the MISRA addon; "not
+   checked" without the tools.
+
+Files are written once, at the end,
 as by the single-loop job.
 """
 
@@ -36,17 +41,18 @@ from pathlib import Path
 from typing import Any
 
 from ..outputs import check_output_folder, write_outputs
-from .run import (
+from .design_job import (
     Progress,
     StagedOutcome,
     StageVerdict,
+    _rules_stage,
     design_stage,
     harness_stage,
     quantisation_stage,
     resolve_format,
 )
 
-__all__ = ["CascadeJobResult", "cascade_stage", "run_cascade_job"]
+__all__ = ["CascadeJobResult", "cascade_stage", "cascade_target_stage", "run_cascade_job"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -66,6 +72,8 @@ class CascadeJobResult(StagedOutcome):
     design : CascadeDesign
     quantisation, harness : tuple
         Per loop, inner first (harness entries None when not compiled).
+    target : CascadeTargetResult or None
+        The module on the target cores (None when not asked for).
     stages : tuple of StageVerdict
         Per-loop stages (named ``<loop>: <stage>``), then the cascade's.
     """
@@ -79,6 +87,7 @@ class CascadeJobResult(StagedOutcome):
     design: Any
     quantisation: tuple[Any, ...]
     harness: tuple[Any, ...]
+    target: Any
     stages: tuple[StageVerdict, ...]
 
 
@@ -96,36 +105,39 @@ def cascade_stage(checks: Any) -> StageVerdict:
 
 
 def default_cascade_scenario(design: Any) -> Any:
-    """The cascade run the full job does: a speed-reference step and a load step.
+    """The cascade run the full job does: a speed-reference step and a load step
+    (:func:`gainloom.simulation.cascade_scenario.cascade_scenario` with its
+    defaults, on the outer loop's time scale
+    :func:`gainloom.simulation.defaults.time_scale`)."""
+    from ..simulation.cascade_scenario import cascade_scenario
+    from ..simulation.defaults import time_scale
 
-    With ``T`` the outer loop's time scale (as the single-loop job's,
-    :func:`gainloom.simulation.defaults.default_scenario`): the outer reference steps
-    at 0 s by 0.1 of the outer error full scale (1 output unit when none is
-    set), a load of ``LOAD_STEP_FRACTION`` times the larger outer output
-    limit (inner measurement units, at the outer plant part's input) steps
-    in at ``3 T``, and the run ends at ``6 T`` (at most
-    ``SIMULATION_MAX_SAMPLES`` inner samples).  The outer loop sits at the
-    middle of each of its variables' ranges, the inner loop at the outer
-    loop's ``inner_at`` and the shared variables.
-    """
-    from ..simulation.cascade import CascadeScenario
-    from ..simulation.defaults import LOAD_STEP_FRACTION, SIMULATION_MAX_SAMPLES, time_scale
-
-    inner_sched, outer_sched = design.schedules
-    outer_loop = design.cascade.loops[1]
     scale, _basis = time_scale(design.results[1])
-    base = float(inner_sched.sampling.period[0])
-    scale = min(scale, SIMULATION_MAX_SAMPLES * base / 6.0)
-    outer_point = {a.name: 0.5 * (float(a.values[0]) + float(a.values[-1])) for a in outer_sched.axes}
-    inner_point = {name: outer_point.get(name, (outer_loop.inner_at or {}).get(name, 0.0))
-                   for name in inner_sched.axis_names}
-    full_scale = outer_sched.codegen.error_full_scale
-    limits = design.results[1].table.limit_envelope
-    return CascadeScenario(
-        duration=6.0 * scale, reference_step=0.1 * full_scale if full_scale else 1.0, load_time=3.0 * scale,
-        load_amplitude=LOAD_STEP_FRACTION * max(abs(float(limits[0])), abs(float(limits[1]))),
-        outer_point=outer_point, inner_point=inner_point,
-    )
+    return cascade_scenario(design.schedules, design.cascade.loops[1].inner_at,
+                            design.results[1].table.limit_envelope, scale)
+
+
+def _interrupt_text(core: dict[str, Any]) -> str:
+    build, interrupt = core["build"], core["interrupt"]
+    stack = max((f["stack_bytes"] or 0 for f in build["functions"]), default=0)
+    text = f"{core['core']}: {build['flash_bytes']} B flash, {build['ram_bytes']} B RAM, stack <= {stack} B"
+    if interrupt and interrupt["mean_per_base_period"] is not None:
+        inner, outer = interrupt["inner_only"], interrupt["with_outer"]
+        text += (f", interrupt {inner['min']}..{inner['max']} instructions (inner step only), "
+                 f"{outer['min']}..{outer['max']} (with the outer step), "
+                 f"{interrupt['mean_per_base_period']:.0f} per base period on average")
+    return text
+
+
+def cascade_target_stage(target: Any, skipped: str) -> StageVerdict:
+    """The cascade module on the target cores as one stage line: per core sizes and interrupt instructions."""
+    if target is None:
+        return StageVerdict("target", "not checked", f"not checked: {skipped}")
+    if target.passed is None:
+        return StageVerdict("target", "not checked", target.message)
+    if not target.passed:
+        return StageVerdict("target", "FAIL", target.message)
+    return StageVerdict("target", "pass", "; ".join(_interrupt_text(c) for c in target.to_dict()["cores"]))
 
 
 def simulation_stage(run: Any) -> StageVerdict:
@@ -163,12 +175,12 @@ def _scales(schedule: Any) -> dict[str, Any]:
 
 
 def _loop_log(loop: Any, schedule: Any, result: Any, gains_path: Path, harness: Any, quantisation: Any,
-              options: dict[str, Any]) -> tuple[dict[str, Any], dict[str, str | bytes]]:
+              options: dict[str, Any], target: Any) -> tuple[dict[str, Any], dict[str, str | bytes]]:
     """One loop's verification document and its plots renamed ``<loop>_*.png``."""
-    from .log import JSON_NAME, MARKDOWN_NAME, render_verification
+    from ..report.log import JSON_NAME, MARKDOWN_NAME, render_verification
 
     files = render_verification(schedule=schedule, result=result, table=result.table, gains_path=gains_path,
-                                harness=harness, quantisation=quantisation, simulation=None, options=options,
+                                harness=harness, quantisation=quantisation, simulation=None, options=options, target=target,
                                 plots=True)
     doc = json.loads(files.pop(JSON_NAME))
     files.pop(MARKDOWN_NAME)
@@ -206,6 +218,7 @@ def run_cascade_job(
     force: bool = False,
     compile: bool = True,
     simulate: bool = True,
+    target: bool = True,
     progress: Progress | None = None,
 ) -> CascadeJobResult:
     """Design, emit, check and log a cascade into one output folder (module docstring).
@@ -228,6 +241,9 @@ def run_cascade_job(
     simulate : bool
         Run the cascade at its rates (:func:`default_cascade_scenario`) in
         the number format, with a plot ``cascade_simulation.png``.
+    target : bool
+        With ``compile``: the module on the target cores
+        (:func:`gainloom.codegen.target_cascade.check_cascade_target`).
     progress : callable, optional
 
     Returns
@@ -235,7 +251,7 @@ def run_cascade_job(
     CascadeJobResult
     """
     from ..c_names import validate_prefix
-    from ..codegen.cascade import cascade_verdict, render_cascade_files
+    from ..codegen.cascade import cascade_verdict, harness_header, render_cascade_files
     from ..codegen.quantisation import check_quantisation
     from ..codegen.verdict import table_verdict
     from ..design.cascade import design_cascade
@@ -264,17 +280,27 @@ def run_cascade_job(
         stage_dir = Path(tmp)
         for name, text in texts.items():
             (stage_dir / name).write_text(text, encoding="utf-8")
-        harness = tuple(_harness(stage_dir, c_texts, lc, loops_c, prefix, number_format, cascade.sha256)
-                        if compile else None for lc in loops_c)
+        stand_ins = [harness_header(lc, prefix, number_format, cascade.sha256, {"cascade": "harness"})
+                     for lc in loops_c]
+        harness = tuple(_harness(stage_dir, c_texts, lc, stand_in, loops_c) if compile else None
+                        for lc, stand_in in zip(loops_c, stand_ins))
+        target_result = None
+        if compile and target:
+            from ..codegen.target_cascade import check_cascade_target
+
+            target_result = check_cascade_target(c_texts, loops_c, stand_ins, list(harness), number_format)
         run = None
         if simulate:
             from ..simulation.cascade import run_cascade
 
-            run = run_cascade(cascade, design.schedules, design.results, default_cascade_scenario(design),
-                              number_format)
-        stages = _stages(cascade, design, quantisation, harness, number_format, c_texts, run)
-        docs, images = _logs(cascade, design, stage_dir, harness, quantisation, number_format, prefix)
+            run = run_cascade(cascade, design.schedules, tuple(r.table for r in design.results),
+                              default_cascade_scenario(design), number_format)
+        skipped = "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"
+        stages = _stages(cascade, design, quantisation, harness, number_format, c_texts, run,
+                         (target_result, skipped))
+        docs, images = _logs(cascade, design, stage_dir, harness, quantisation, number_format, prefix, target_result)
     document = _cascade_document(cascade, design, docs, stages, sorted(c_texts))
+    document["cascade"]["target"] = None if target_result is None else target_result.to_dict()
     files: dict[str, str | bytes] = dict(texts)
     if run is not None:
         from ..simulation.cascade_plot import PLOT_FILE, plot_cascade
@@ -288,7 +314,7 @@ def run_cascade_job(
         out_dir=out, files=tuple(written), c_files=tuple(out / n for n in c_texts),
         gains_paths=tuple(out / f"{loop.name}.gains.yaml" for loop in cascade.loops),
         number_format=number_format, prefix=prefix, design=design, quantisation=quantisation, harness=harness,
-        stages=tuple(stages),
+        target=target_result, stages=tuple(stages),
     )
 
 
@@ -305,13 +331,12 @@ def _with_prefix(cascade: Any, prefix: str, number_format: str) -> Any:
     return replace(cascade, loops=loops, codegen=codegen)
 
 
-def _harness(stage_dir: Path, c_texts: dict[str, str], loop_c: Any, loops_c: list[Any], prefix: str,
-             number_format: str, sha256: str) -> Any:
+def _harness(stage_dir: Path, c_texts: dict[str, str], loop_c: Any, stand_in: tuple[str, str],
+             loops_c: list[Any]) -> Any:
     """Run one loop's host harness on the cascade module (through its stand-in header)."""
-    from ..codegen.cascade import harness_header
     from ..codegen.harness import check_generated_c
 
-    name, text = harness_header(loop_c, prefix, number_format, sha256, {"cascade": "harness"})
+    name, text = stand_in
     loop_dir = stage_dir / f"harness_{loop_c.name}"
     loop_dir.mkdir()
     (loop_dir / name).write_text(text, encoding="utf-8")
@@ -324,7 +349,7 @@ def _harness(stage_dir: Path, c_texts: dict[str, str], loop_c: Any, loops_c: lis
 
 
 def _stages(cascade: Any, design: Any, quantisation: tuple, harness: tuple, number_format: str,
-            c_texts: dict[str, str], run: Any) -> list[StageVerdict]:
+            c_texts: dict[str, str], run: Any, target: tuple[Any, str]) -> list[StageVerdict]:
     stages: list[StageVerdict] = []
     for loop, result, quant, check in zip(cascade.loops, design.results, quantisation, harness):
         for stage in (design_stage(result), quantisation_stage(quant, number_format), harness_stage(check)):
@@ -332,14 +357,14 @@ def _stages(cascade: Any, design: Any, quantisation: tuple, harness: tuple, numb
     stages.append(cascade_stage(design.checks))
     stages.append(StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, one module "
                                f"for {', '.join(loop.name for loop in cascade.loops)})"))
-    stages.append(StageVerdict("target", "not checked", "not checked: the target build of a cascade module is "
-                               "not built yet"))
+    stages.append(cascade_target_stage(*target))
+    stages.append(_rules_stage(*target))
     stages.append(simulation_stage(run))
     return stages
 
 
 def _logs(cascade: Any, design: Any, stage_dir: Path, harness: tuple, quantisation: tuple, number_format: str,
-          prefix: str) -> tuple[list[dict[str, Any]], dict[str, str | bytes]]:
+          prefix: str, target: Any) -> tuple[list[dict[str, Any]], dict[str, str | bytes]]:
     docs, images = [], {}
     for loop, sched, result, check, quant in zip(cascade.loops, design.schedules, design.results, harness,
                                                  quantisation):
@@ -347,15 +372,15 @@ def _logs(cascade: Any, design: Any, stage_dir: Path, harness: tuple, quantisati
                    "gains_file": f"{loop.name}.gains.yaml",
                    **{k: v for k, v in _scales(sched).items() if v is not None}}
         doc, loop_images = _loop_log(loop, sched, result, stage_dir / f"{loop.name}.gains.yaml", check, quant,
-                                     options)
+                                     options, None if target is None else target.for_loop(loop.name))
         docs.append(doc)
         images.update(loop_images)
     return docs, images
 
 
 def _log_files(document: dict[str, Any]) -> dict[str, str]:
-    from .log import JSON_NAME, MARKDOWN_NAME
-    from .markdown_cascade import render_cascade_markdown
+    from ..report.log import JSON_NAME, MARKDOWN_NAME
+    from ..report.markdown_cascade import render_cascade_markdown
 
     text = json.dumps(document, indent=2, sort_keys=True, ensure_ascii=False, allow_nan=False) + "\n"
     return {JSON_NAME: text, MARKDOWN_NAME: render_cascade_markdown(document)}

@@ -141,7 +141,7 @@ def run_variant(options: dict[str, Any], unit: VariantUnit) -> VariantOutcome:
     ----------
     options : dict
         ``number_format``, ``compile``, ``target``, ``simulate`` (as
-        :func:`~gainloom.report.run.run_design_job`) and ``inner_workers``:
+        :func:`~gainloom.job.design_job.run_design_job`) and ``inner_workers``:
         the design's own processes (1 when variants already run in parallel),
         or None for its default.
     unit : VariantUnit
@@ -150,7 +150,7 @@ def run_variant(options: dict[str, Any], unit: VariantUnit) -> VariantOutcome:
     -------
     VariantOutcome
     """
-    from .run import run_design_job
+    from .design_job import run_design_job
 
     inner = options.get("inner_workers")
     saved = os.environ.get("GAINLOOM_WORKERS")
@@ -248,7 +248,7 @@ def run_family(
     out_dir : path
         Family folder: ``<variant>/`` folders, ``family.json``, ``family.md``.
     number_format, compile, target, simulate
-        As :func:`~gainloom.report.run.run_design_job`, for every variant.
+        As :func:`~gainloom.job.design_job.run_design_job`, for every variant.
     force : bool
         Overwrite files gainloom did not write or that were edited.
     workers : int, optional
@@ -271,7 +271,7 @@ def run_family(
     """
     from ..design.engine import worker_count
     from ..design.pool import map_units
-    from .family_index import render_family_index
+    from ..report.family_index import render_family_index
 
     out = check_output_folder(out_dir)
     units, base, variants = variant_units(schedule_path, variants_path, out)

@@ -30,8 +30,8 @@ defines ``<PREFIX>_ACCEPT_UNVERIFIED``.  The verdict rests on the design and
 the re-check of the rounded table only, so the C of a table does not change
 when, say, a simulation setting changes.
 
-This module sits in ``report/`` because it is the last layer and may use all
-the others; the CLI only parses arguments and prints.
+This module is the job layer (:mod:`gainloom.job`): it may use every library
+layer, ``report`` included; the CLI only parses arguments and prints.
 """
 
 from __future__ import annotations
@@ -41,7 +41,7 @@ import tempfile
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -49,6 +49,14 @@ from ..errors import InputError
 from ..names import NUMBER_FORMATS, unknown_name_message
 from ..outputs import check_output_folder, write_outputs
 from ..simulation.defaults import default_scenario
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..codegen.harness import HarnessResult
+    from ..codegen.quantisation import QuantisationResult
+    from ..codegen.target import TargetResult
+    from ..design.results import DesignResult
+    from ..schedule import Schedule
+    from ..simulation.result import SimulationResult
 
 __all__ = [
     "JobResult",
@@ -63,11 +71,6 @@ __all__ = [
 
 Progress = Callable[[str, int, int], None]
 
-#: Why a schedule with ``controller.filters`` gets no C (issue 12 item 2 open).
-FILTERS_NOT_IN_C = (
-    "the generated C and the simulation do not implement controller.filters yet; C without the filters "
-    "would be another controller than the one verified, so none is generated"
-)
 
 @dataclass(frozen=True)
 class StageVerdict:
@@ -152,12 +155,12 @@ class JobResult(StagedOutcome):
     c_files: tuple[Path, ...]
     number_format: str
     prefix: str
-    schedule: Any
-    design: Any
-    harness: Any
-    target: Any
-    quantisation: Any
-    simulation: Any
+    schedule: Schedule
+    design: DesignResult
+    harness: HarnessResult | None
+    target: TargetResult | None
+    quantisation: QuantisationResult
+    simulation: SimulationResult | None
     scenario: dict[str, Any] | None
     stages: tuple[StageVerdict, ...]
 
@@ -247,12 +250,17 @@ def _rules_stage(target: Any, skipped: str) -> StageVerdict:
 
 def quantisation_stage(quantisation: Any, number_format: str) -> StageVerdict:
     """The re-check of the table as stored in ``number_format`` as one stage line."""
+    warned = quantisation.filter_warnings
+    note = f"; {len(warned)} filter warning(s): {warned[0]}" if warned else ""
     if quantisation.passed:
-        return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec")
+        return StageVerdict("quantisation", "pass", f"rounding to {number_format} breaks no spec" + (
+            "; filter poles stay inside the unit circle" if quantisation.filters else "") + note)
     broken = quantisation.broken
-    shown = "; ".join(f"{b['spec']} at {b['point']} ({b['where']})" for b in broken[:3])
-    more = f" and {len(broken) - 3} more" if len(broken) > 3 else ""
-    return StageVerdict("quantisation", "FAIL", f"rounding to {number_format} breaks {shown}{more}")
+    shown = "; ".join([f"{b['spec']} at {b['point']} ({b['where']})" for b in broken[:3]]
+                      + quantisation.filter_failures[:2])
+    count = len(broken) + len(quantisation.filter_failures)
+    more = f" and {count - 3} more" if count > 3 else ""
+    return StageVerdict("quantisation", "FAIL", f"rounding to {number_format} breaks {shown}{more}{note}")
 
 
 def _simulation_stage(simulation: Any, skipped: str | None = None) -> StageVerdict:
@@ -342,9 +350,9 @@ def run_design_job(
     from ..design.engine import design
     from ..design.gainsfile import render_gains
     from ..outputs import sha256_bytes
+    from ..report.log import render_verification
     from ..schedule import load_schedule
     from ..simulation import run_scenario
-    from .log import render_verification
 
     def step(stage: str, done: int, total: int = 1) -> None:
         if progress is not None:
@@ -375,15 +383,9 @@ def run_design_job(
 
     step("emit C", 0)
     verdict = table_verdict(result.passed, quantisation.rounded.passed, number_format)
-    # C without the filter sections would be another controller than the one
-    # verified: none is generated, and nothing that runs it (harness, target,
-    # simulation) is run, until the C carries them
-    no_c = FILTERS_NOT_IN_C if schedule.controller.filters else None
-    not_run = "no C was generated (controller.filters)" if no_c else None
-    c_texts = {} if no_c else render_files(
+    c_texts = render_files(
         result.table, number_format, prefix, str(result.schedule_sha256),
         {"gains_file": gains_name, "gains_sha256": gains_sha256}, verdict=verdict, **scales)
-    compile, simulate = compile and not no_c, simulate and not no_c
     step("emit C", 1)
 
     with tempfile.TemporaryDirectory(prefix="gainloom-job-") as tmp:
@@ -444,15 +446,14 @@ def run_design_job(
     stages = (
         design_stage(result),
         *([] if getattr(result, "data_check", None) is None else [measured_stage(result.data_check)]),
-        StageVerdict("C code", "not generated", no_c) if no_c else
         StageVerdict("C code", "written", f"{', '.join(sorted(c_texts))} ({number_format}, prefix {prefix}); "
                      + ("header marked verified" if verdict.verified else
                         f"header NOT VERIFIED: builds only with {c_names(prefix).accept_unverified} defined")),
-        harness_stage(harness, not_run),
-        _target_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
-        _rules_stage(target_result, not_run or "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
+        harness_stage(harness),
+        _target_stage(target_result, "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
+        _rules_stage(target_result, "skipped on request (" + ("--no-compile" if not compile else "--no-target") + ")"),
         quantisation_stage(quantisation, number_format),
-        _simulation_stage(simulation, not_run and "the simulation does not run controller.filters yet"),
+        _simulation_stage(simulation),
         StageVerdict("log", "written", ", ".join(sorted(log_files))),
     )
     return JobResult(

@@ -21,8 +21,8 @@ import yaml
 
 from gainloom.cli import main
 from gainloom.errors import ScheduleError
+from gainloom.job.family_job import run_family
 from gainloom.outputs import OutputConflictError, sha256_bytes
-from gainloom.report.family import run_family
 
 TS = 1.0e-3
 SPEEDS = (0.0, 500.0, 1000.0)

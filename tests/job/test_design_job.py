@@ -1,4 +1,4 @@
-"""The full run (``gainloom.report.run.run_design_job``): every file, one write,
+"""The full run (``gainloom.job.design_job.run_design_job``): every file, one write,
 determinism, failure paths, the default simulation.
 
 Outside references: the host C compiler itself (its ``--version`` line and a
@@ -25,8 +25,8 @@ import pytest
 from cases import PASSING, STRICT, UNSTABLE
 
 from gainloom.codegen.harness import find_compiler
+from gainloom.job.design_job import run_design_job
 from gainloom.outputs import MANIFEST_NAME, OutputConflictError
-from gainloom.report.run import run_design_job
 from gainloom.report.schema import validate
 from gainloom.simulation.defaults import LOAD_STEP_FRACTION, SIMULATION_MAX_SAMPLES, SIMULATION_SPAN, default_scenario
 
