@@ -305,10 +305,6 @@ def _exact_group(loop: Loop, limits: SpecLimits, points: np.ndarray) -> list[lis
             )
         for row, intervals in zip(rows, found):
             spec[row] = [(iv.low, iv.high) for iv in intervals]
-    for zeta, rows in _dominant_damping_groups(limits, points).items():
-        found = dominant_damping_sets(loop.select(rows), zeta)
-        for row, intervals in zip(rows, found):
-            spec[row] = _intersect(spec[row], intervals)
     out = []
     for row, p in enumerate(points):
         gm = limits.min_gain_margin[p]
@@ -325,6 +321,15 @@ def _exact_group(loop: Loop, limits: SpecLimits, points: np.ndarray) -> list[lis
         top = limits.max_gain[p]
         cap = [(0.0, math.inf if np.isnan(top) else float(top) * (1 + 1e-15))]
         out.append(_intersect(_intersect(spec[row], band), cap))
+    # last, and only where the other specs leave gains: the dominant damping
+    # set is the costliest one (the damping spiral and two more circles)
+    for zeta, rows in _dominant_damping_groups(limits, points).items():
+        rows = rows[[bool(out[r]) for r in rows]]
+        if rows.size == 0:
+            continue
+        found = dominant_damping_sets(loop.select(rows), zeta)
+        for row, intervals in zip(rows, found):
+            out[row] = _intersect(out[row], intervals)
     return out
 
 
