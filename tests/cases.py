@@ -206,3 +206,29 @@ def controller_tf(structure, ts, **c):
 
 
 SECOND_ORDER = ([0.0, 0.0, 900.0], [1.0, 18.0, 900.0])  # wn = 30 rad/s, zeta = 0.3
+
+
+def small_servo_cascade(current_tolerances: str = "", speed_tolerances: str = "") -> str:
+    """The servo cascade demo on a 2 x 2 grid per loop, with ``tolerances`` sections added.
+
+    ``current_tolerances`` / ``speed_tolerances`` are the YAML flow mappings
+    of each loop's ``tolerances`` (e.g. ``"parameters: {L: 0.4}"``), empty
+    for none.  Invented demo data, as the demo file itself.
+    """
+    from pathlib import Path
+
+    text = (Path(__file__).resolve().parents[1] / "schedules" / "servo_cascade.yaml").read_text(encoding="utf-8")
+    edits = {
+        "        values: [0, 10, 20, 30]\n": "        values: [0, 30]\n",
+        "        values: [-20, 40, 100]\n": "        values: [40, 100]\n",
+        "        values: [0, 2000, 4000, 6000]\n": "        values: [0, 6000]\n",
+        "        values: [1, 3, 10] ": "        values: [1, 10] ",
+    }
+    for loop, tolerances in (("40", current_tolerances), ("700", speed_tolerances)):
+        if tolerances:
+            marker = f"    codegen:\n      error_full_scale: {loop}"
+            edits[marker] = f"    tolerances: {{{tolerances}}}\n{marker}"
+    for old, new in edits.items():
+        assert text.count(old) == 1, old
+        text = text.replace(old, new)
+    return text

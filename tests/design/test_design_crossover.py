@@ -243,7 +243,7 @@ def test_back_off_never_makes_a_point_infeasible(tmp_path):
     first = design(tmp_path, pm=60, count=2, more="  max_pole_radius: 0.6")
     best = max(best_value(n) for n in first.notes)
     # a radius bound just outside the best reachable one: met, though the back-off
-    # (design/specs.py: 2 % of 1 - radius further in) may not be
+    # (design/spec_limits.py: 2 % of 1 - radius further in) may not be
     radius = best + 0.005 * (1 - best)
     result = design(tmp_path, pm=60, count=2, more=f"  max_pole_radius: {radius:.6g}")
     assert result.status == ("pass", "pass"), result.notes

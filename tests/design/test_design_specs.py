@@ -8,7 +8,7 @@ import pytest
 
 from gainloom import Loop
 from gainloom.design.analysis import step_metrics
-from gainloom.design.specs import SpecLimits, decay_from_settling, overshoot_from_damping
+from gainloom.design.spec_limits import SpecLimits, decay_from_settling, overshoot_from_damping
 from gainloom.schedule import overshoot_to_damping
 
 

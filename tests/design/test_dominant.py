@@ -10,7 +10,7 @@ import pytest
 from gainloom import Loop
 from gainloom.design.analysis import analyse, pole_metrics
 from gainloom.design.dominant import DOMINANCE_RATIO, FAST_FACTOR, judged_poles
-from gainloom.design.specs import SpecLimits
+from gainloom.design.spec_limits import SpecLimits
 
 TS = 1e-4
 # Invented sampled plant: a slow pole at z = 0.99, two samples of delay

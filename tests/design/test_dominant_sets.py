@@ -8,7 +8,7 @@ import pytest
 from gainloom import Loop
 from gainloom.design.dominant_sets import SLOW_EDGE, dominant_damping_sets
 from gainloom.design.search import exact_feasible
-from gainloom.design.specs import SpecLimits
+from gainloom.design.spec_limits import SpecLimits
 from gainloom.lti.intervals import spec_gain_intervals
 from gainloom.lti.regions import SpecRegion
 

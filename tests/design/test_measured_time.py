@@ -3,7 +3,7 @@
 import numpy as np
 
 from gainloom.design.measured_time import time_domain_findings
-from gainloom.design.specs import SpecLimits
+from gainloom.design.spec_limits import SpecLimits
 
 
 def _limits(**given):

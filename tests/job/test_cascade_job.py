@@ -62,6 +62,11 @@ def test_log_has_loops_inner_first_and_a_cascade_section(demo):
     checks = doc["cascade"]["checks"]
     assert checks["passed"] is True
     assert checks["pairs"][0]["bandwidth_separation"]["required"] == 4
+    # the demo has no tolerances: the pairs are checked on the nominal plants only,
+    # each speed point still reports where its outer specs are tightest
+    assert checks["pairs"][0]["corners_checked"] == 0
+    worst = checks["pairs"][0]["outer_specs_with_inner"]["worst_per_point"]
+    assert len(worst) == 12 and all(w["corner"] == {} and not w["failed_specs"] for w in worst)
     markdown = (out / "verification.md").read_text(encoding="utf-8")
     assert "## Cascade checks" in markdown and "## Loop current" in markdown and "## Loop speed" in markdown
     assert "**Verdict: PASS.**" in markdown

@@ -296,7 +296,7 @@ def run(args: argparse.Namespace) -> int:
             "files": [str(p) for p in job.files],
             "number_format": job.number_format,
             "prefix": job.prefix,
-            "stages": [{"stage": s.stage, "status": s.status, "detail": s.detail} for s in job.stages],
+            "stages": [s.to_dict() for s in job.stages],
             "not_checked": list(job.not_checked),
             "status": list(result.status),
             "binding": list(result.binding),

@@ -22,6 +22,21 @@ def _print_loops(job) -> None:
         print()
 
 
+def _print_corners(job) -> None:
+    """Per outer point, the inner point and tolerance corner where the outer specs are worst."""
+    for pair in job.design.checks.pairs:
+        if not pair.corners:
+            continue
+        print(f"== {pair.outer} around {pair.inner}: worst inner point and corner per {pair.outer} point "
+              f"({pair.corners} tolerance corners and nominal)")
+        for w in pair.worst_per_point:
+            failing = f"  FAILS {', '.join(w['failed_specs'])}" if w["failed_specs"] else ""
+            print(f"  {w['outer_point']}: inner at {w['inner_point']}, {w['corner_label']}; "
+                  f"{w['binding_spec'] or 'no spec'} binds ({100 * w['binding_slack']:+.3g} %), "
+                  f"GM {w['gain_margin_db']:.3g} dB, PM {w['phase_margin_deg']:.3g} deg{failing}")
+        print()
+
+
 def _json(job) -> dict:
     loops = []
     for loop, result in zip(job.design.cascade.loops, job.design.results):
@@ -42,7 +57,7 @@ def _json(job) -> dict:
         "files": [str(p) for p in job.files],
         "number_format": job.number_format,
         "prefix": job.prefix,
-        "stages": [{"stage": s.stage, "status": s.status, "detail": s.detail} for s in job.stages],
+        "stages": [s.to_dict() for s in job.stages],
         "not_checked": list(job.not_checked),
     }
 
@@ -60,6 +75,7 @@ def run_cascade(args: argparse.Namespace, out) -> int:
         print_json(_json(job))
     else:
         _print_loops(job)
+        _print_corners(job)
         print_stages(job, sys.stdout)
         print()
         print(f"cascade {verdict_line(job)}")

@@ -41,9 +41,9 @@ from typing import Any
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
-from ..design.specs import SPEC_ORDER
 from ..design.table import FilterTable, GainTable, TableAxis, filter_coefficient_name
 from ..errors import InputError
+from ..spec_registry import SPEC_ORDER
 from .filter_rounding import SectionRounding, check_filter_rounding
 from .layout import TableLayout, layout_table
 

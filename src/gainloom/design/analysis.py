@@ -35,10 +35,11 @@ from ..lti.closed_loop import closed_loop_poles
 from ..lti.loop import Loop
 from ..lti.margins import loop_margins
 from ..lti.poles import damping_and_frequency
+from ..spec_registry import SPEC_ORDER, SPECS
 from .cancel import cancelled_zeros, mask_cancelled
 from .dominant import judged_poles
 from .pole_origin import pole_origins
-from .specs import SPEC_ORDER, SpecLimits
+from .spec_limits import SpecLimits
 from .structures import locus_from_coefficients, open_loop, physical_from_coefficients
 
 __all__ = ["SETTLING_BAND", "PointAnalysis", "analyse", "integrator_count", "judge", "pole_metrics", "step_metrics"]
@@ -313,28 +314,16 @@ def judge(values: dict[str, np.ndarray], limits: SpecLimits, *, step: bool = Tru
     (``step=False``) overshoot and settling are not judged.  A NaN value
     fails a required spec.
     """
-    stable = values["stable"] < 1
-    return {
-        "stable": stable,
-        "min_damping": _at_least(values["min_damping"], limits.min_damping),
-        "min_decay": _at_least(values["min_decay"], limits.min_decay),
-        "min_natural_frequency": _at_least(values["min_natural_frequency"], limits.min_natural_frequency),
-        "max_natural_frequency": _at_most(values["max_natural_frequency"], limits.max_natural_frequency),
-        "max_pole_radius": _at_most(values["max_pole_radius"], limits.max_pole_radius),
-        "min_gain_margin": _at_least(values["min_gain_margin"], limits.min_gain_margin),
-        "min_phase_margin": _at_least(values["min_phase_margin"], limits.min_phase_margin),
-        "min_delay_margin": _at_least(values["min_delay_margin"], limits.min_delay_margin),
-        "max_sensitivity_peak": _at_most(values["max_sensitivity_peak"], limits.max_sensitivity_peak),
-        "min_crossover": _at_least(values["min_crossover"], limits.min_crossover),
-        "max_crossover": _at_most(values["max_crossover"], limits.max_crossover),
-        "min_bandwidth": _at_least(values["min_bandwidth"], limits.min_bandwidth),
-        "max_gain": _at_most(values["max_gain"], limits.max_gain),
-        "system_type": _at_least(values["system_type"], limits.system_type),
-        "max_overshoot": _at_most(values["max_overshoot"], limits.max_overshoot)
-        | (np.isnan(values["max_overshoot"]) & (not step)),
-        "max_settling_time": _at_most(values["max_settling_time"], limits.max_settling_time)
-        | (np.isnan(values["max_settling_time"]) & (not step)),
-    }
+    verdicts = {"stable": values["stable"] < 1}
+    for spec in SPECS:
+        if spec.limit_key is None:
+            continue
+        value, limit = values[spec.name], getattr(limits, spec.limit_key)
+        verdicts[spec.name] = _at_least(value, limit) if spec.bound == "min" else _at_most(value, limit)
+    if not step:
+        for name in ("max_overshoot", "max_settling_time"):
+            verdicts[name] = verdicts[name] | np.isnan(values[name])
+    return verdicts
 
 
 def analyse(

@@ -30,8 +30,6 @@ where the curvature is (our reasoning, measured on the benchmark loop).
 
 from __future__ import annotations
 
-from dataclasses import replace
-
 import numpy as np
 
 from .analysis import analyse
@@ -175,8 +173,7 @@ def back_off_between(sched, point_design, axes_values: list[np.ndarray], structu
         factor *= step
         coefficients = _scaled({k: np.asarray(v, float) for k, v in point_design.coefficients.items()}, step)
         analysis = analyse(point_design.plant, structure, coefficients, point_design.limits)
-        point_design = replace(point_design, coefficients=coefficients, analysis=analysis,
-                               status=tuple("pass" if ok else "fail" for ok in analysis.passed))
+        point_design = point_design.reanalysed(coefficients, analysis)
     return point_design, _warnings(original, point_design, factor, restored)
 
 

@@ -22,6 +22,13 @@ Then ``W/R = C G_wv / (1 + C G_iv)``.  The poles of ``G_wv`` are those of
 which :func:`gainloom.lti.multirate.lift` takes to the outer period
 ``N ts``; the outer loop's computation delay then multiplies by ``z^-d``.
 Derivation: docs/cascade.md.
+
+Under the inner loop's ``tolerances`` the inner plant is scaled at each
+corner while the inner gains stay those of the table (the firmware does not
+know the unit's inductance).  The outer schedule carries the inner
+tolerances beside its own, named ``<inner loop>.<parameter>``
+(:func:`with_inner_tolerances`), so its table check, its worst-case design
+and the cascade check see every combination of inner and outer corners.
 """
 
 from __future__ import annotations
@@ -38,12 +45,14 @@ from ..lti.discretize import discretize_loop
 from ..lti.loop import Loop
 from ..lti.multirate import lift
 from ..lti.polynomials import batched_roots, pad_left, polymul
+from ..schedule.model import Tolerances
 from .engine import Progress, design
 from .lookup import interpolate_table
 from .structures import controller_polynomials
 from .table import GainTable
 
-__all__ = ["CascadeDesign", "design_cascade", "inner_points_at", "outer_plant", "with_inner_loop"]
+__all__ = ["CascadeDesign", "design_cascade", "inner_points_at", "outer_plant", "split_scale", "with_inner_loop",
+           "with_inner_tolerances"]
 
 #: Relative agreement asked of ``A_w`` and ``A_i A_o`` (the same poles
 #: computed two ways); a miss is a bug, not bad input.
@@ -85,7 +94,7 @@ def _with_delay(num: np.ndarray, den: np.ndarray, delay: np.ndarray) -> tuple[np
 
 def outer_plant(outer_sched: Any, inner_sched: Any, inner_table: GainTable, factor: int,
                 outer_points: np.ndarray, inner_points: np.ndarray,
-                scale: dict[str, Any] | None = None) -> Loop:
+                scale: dict[str, Any] | None = None, inner_scale: dict[str, Any] | None = None) -> Loop:
     """The outer loop's sampled plant with the inner loop closed (module docstring).
 
     Parameters
@@ -102,6 +111,9 @@ def outer_plant(outer_sched: Any, inner_sched: Any, inner_table: GainTable, fact
         Where each of the ``Q`` outer plants sees the inner loop.
     scale : dict, optional
         Tolerance factors of the outer loop's parameters.
+    inner_scale : dict, optional
+        Tolerance factors of the inner loop's parameters (its own names):
+        the inner plant at that corner, closed by the table's gains.
 
     Returns
     -------
@@ -110,7 +122,7 @@ def outer_plant(outer_sched: Any, inner_sched: Any, inner_table: GainTable, fact
         outer loop's computation delay (outer samples).
     """
     outer = outer_sched.evaluate(outer_points, scale=scale)
-    inner = inner_sched.evaluate(inner_points)
+    inner = inner_sched.evaluate(inner_points, scale=inner_scale)
     ts = np.asarray(inner.sample_period, dtype=float)
     g_iv = discretize_loop(inner.plant, ts, "zoh", delay=inner.delay)
     g_wv = discretize_loop(_series(inner.plant, outer.plant), ts, "zoh", delay=inner.delay)
@@ -130,7 +142,47 @@ def outer_plant(outer_sched: Any, inner_sched: Any, inner_table: GainTable, fact
     return Loop(num=num, den=den, ts=factor * ts, hold="zoh", delay=delay)
 
 
-def with_inner_loop(outer_loop: Any, inner_sched: Any, inner_table: GainTable) -> Any:
+def split_scale(scale: dict[str, Any] | None, inner_name: str) -> tuple[dict[str, Any] | None, dict[str, Any] | None]:
+    """Tolerance factors of an outer schedule split into the outer loop's and the inner loop's.
+
+    Parameters
+    ----------
+    scale : dict or None
+        Factors by parameter name; the inner loop's are named
+        ``<inner_name>.<parameter>`` (:func:`with_inner_tolerances`).
+    inner_name : str
+        The inner loop's name.
+
+    Returns
+    -------
+    outer, inner : dict or None
+        The outer loop's factors and the inner loop's (by its own names);
+        None where there are none.
+    """
+    if not scale:
+        return None, None
+    prefix = f"{inner_name}."
+    outer = {k: v for k, v in scale.items() if not k.startswith(prefix)}
+    inner = {k[len(prefix):]: v for k, v in scale.items() if k.startswith(prefix)}
+    return outer or None, inner or None
+
+
+def with_inner_tolerances(outer: Tolerances, inner_name: str, inner: Tolerances) -> Tolerances:
+    """The outer loop's tolerances with the inner loop's beside them.
+
+    The inner parameters are named ``<inner_name>.<parameter>`` (a dot
+    cannot occur in a parameter name, so no name can clash); the outer
+    loop's ``samples``, ``design`` and study settings apply to the whole
+    box, so its corners are every combination of inner and outer corners.
+    """
+    if not inner.parameters:
+        return outer
+    merged = dict(outer.parameters)
+    merged.update({f"{inner_name}.{name}": bounds for name, bounds in inner.parameters.items()})
+    return replace(outer, parameters=merged)
+
+
+def with_inner_loop(outer_loop: Any, inner_sched: Any, inner_table: GainTable, inner_name: str) -> Any:
     """The outer loop's schedule whose sampled plant has the inner loop in place.
 
     Parameters
@@ -140,22 +192,29 @@ def with_inner_loop(outer_loop: Any, inner_sched: Any, inner_table: GainTable) -
     inner_sched : Schedule
     inner_table : GainTable
         The inner loop's designed table.
+    inner_name : str
+        The inner loop's name (prefix of its tolerance parameters).
 
     Returns
     -------
     Schedule
         The outer schedule with ``plant_sampler`` set: every stage that
         samples its plant (design, between points, tolerances, quantisation,
-        the log) sees the inner loop closed at ``inner_at``.
+        the log) sees the inner loop closed at ``inner_at``; its tolerances
+        hold the inner loop's too (:func:`with_inner_tolerances`), so the
+        plant at a corner has the inner plant at its corner.
     """
     sched = outer_loop.schedule
     outer_axes, inner_axes = sched.axis_names, inner_sched.axis_names
 
     def sampler(points: np.ndarray, scale: dict[str, Any] | None) -> Loop:
         inner_points = inner_points_at(points, outer_axes, inner_axes, outer_loop.inner_at)
-        return outer_plant(sched, inner_sched, inner_table, outer_loop.rate_factor, points, inner_points, scale)
+        outer_scale, inner_scale = split_scale(scale, inner_name)
+        return outer_plant(sched, inner_sched, inner_table, outer_loop.rate_factor, points, inner_points,
+                           outer_scale, inner_scale)
 
-    return replace(sched, plant_sampler=sampler)
+    tolerances = with_inner_tolerances(sched.tolerances, inner_name, inner_sched.tolerances)
+    return replace(sched, plant_sampler=sampler, tolerances=tolerances)
 
 
 @dataclass(frozen=True, eq=False)
@@ -203,8 +262,8 @@ def design_cascade(cascade: Any, progress: Progress | None = None) -> CascadeDes
 
     schedules = [cascade.loops[0].schedule]
     results = [design(schedules[0], progress=_named(progress, cascade.loops[0].name))]
-    for loop in cascade.loops[1:]:
-        sched = with_inner_loop(loop, schedules[-1], results[-1].table)
+    for inner, loop in zip(cascade.loops, cascade.loops[1:]):
+        sched = with_inner_loop(loop, schedules[-1], results[-1].table, inner.name)
         schedules.append(sched)
         results.append(design(sched, progress=_named(progress, loop.name)))
     checks = check_cascade(cascade, tuple(schedules), tuple(results))

@@ -71,7 +71,7 @@ from ..lti.closed_loop import closed_loop_poles
 from ..lti.loop import Loop
 from ..lti.polynomials import batched_roots
 from .search import Shapes, exact_feasible, region_ok, shape_loops
-from .specs import SpecLimits
+from .spec_limits import SpecLimits
 from .strategies import LEAD_RATIO, pack_shapes
 from .structures import filter_pole
 

@@ -16,16 +16,16 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..lti.loop import Loop
+from ..spec_registry import spec_info
 from .crossover import CrossoverChoice, crossover_design, ranked_alternatives, shape_space
-from .diagnose import SPEC_WORDS
 from .search import Shapes
-from .specs import SpecLimits
+from .spec_limits import SpecLimits
 
 __all__ = ["CrossoverRun", "choose_by_crossover", "uses_crossover", "crossover_target", "step_fallback", "tightened_limits",
            "tolerance_plants", "step_verdicts"]
 
 #: Margin back-off of the crossover objectives (dB, deg), smaller than the
-#: general one (design/specs.py BACKOFF: 0.5 dB, 0.5 deg).  These objectives
+#: general one (design/spec_limits.py BACKOFF: 0.5 dB, 0.5 deg).  These objectives
 #: put a margin on its bound at every point by design, so the back-off costs
 #: crossover one for one (0.5 dB of gain margin is 6 % of loop gain; on the
 #: benchmark current loop the general back-off cost 3.5 % of crossover).  Our
@@ -40,21 +40,22 @@ MARGIN_BACKOFF = (0.1, 0.1)
 CERTIFY_STEPS = 7
 
 #: Specs the certificate relaxes, with the relaxed end of their range:
-#: "at least" specs go down to ``low``; "at most" specs up to ``factor``
-#: times the written limit (``max_pole_radius`` up to 1).
-_RELAX = (
-    ("min_gain_margin", "at least", 0.0),
-    ("min_phase_margin", "at least", 0.0),
-    ("min_delay_margin", "at least", 0.0),
-    ("max_sensitivity_peak", "at most", 100.0),
-    ("min_crossover", "at least", 0.0),
-    ("max_crossover", "at most", 100.0),
-    ("min_bandwidth", "at least", 0.0),
-    ("min_damping", "at least", 0.0),
-    ("min_decay", "at least", 0.0),
-    ("max_pole_radius", "at most", None),
-    ("max_gain", "at most", 100.0),
+#: lower bounds ("at least") go down to ``low``; upper bounds ("at most") up
+#: to ``factor`` times the written limit (``max_pole_radius`` up to 1).
+_RELAX_ENDS = (
+    ("min_gain_margin", 0.0),
+    ("min_phase_margin", 0.0),
+    ("min_delay_margin", 0.0),
+    ("max_sensitivity_peak", 100.0),
+    ("min_crossover", 0.0),
+    ("max_crossover", 100.0),
+    ("min_bandwidth", 0.0),
+    ("min_damping", 0.0),
+    ("min_decay", 0.0),
+    ("max_pole_radius", None),
+    ("max_gain", 100.0),
 )
+_RELAX = tuple((name, "at least" if spec_info(name).bound == "min" else "at most", end) for name, end in _RELAX_ENDS)
 
 
 def crossover_target(controller) -> float | None:
@@ -285,11 +286,12 @@ def _midpoint(good: np.ndarray, bad: np.ndarray, kind: str, name: str) -> np.nda
 
 
 def _text(name: str, kind: str, best: float, written: float, structure: str, space: str) -> str:
-    quantity, _, unit = SPEC_WORDS.get(name, (name.replace("_", " "), "", ""))
+    spec = spec_info(name)
+    unit = spec.unit_suffix
     relation = ">=" if kind == "at least" else "<="
     return (
         f"no {structure} in the whole searched space ({space}) meets every spec; {name} is binding: "
-        f"with every other spec met, the best {quantity} over that space is {best:.4g}{unit} "
+        f"with every other spec met, the best {spec.label} over that space is {best:.4g}{unit} "
         f"(spec {relation} {written:.6g}{unit}); the table holds that compromise (infeasible)"
     )
 

@@ -22,34 +22,14 @@ import numpy as np
 from ..lti.closed_loop import closed_loop_poles
 from ..lti.intervals import spec_gain_intervals, stable_gain_intervals
 from ..lti.regions import SpecRegion
+from ..spec_registry import spec_info
 from .analysis import PointAnalysis, pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .frequency_reach import FREQUENCY_SPECS, frequency_reach
-from .search import Choice, Shapes, shape_loops
-from .specs import SpecLimits
+from .search import Choice, GainSamples, Shapes, shape_loops
+from .spec_limits import SpecLimits
 
-__all__ = ["diagnose", "compromise", "SPEC_WORDS", "limit_text"]
-
-#: Plain words for each spec in the notes: (quantity, best is "max"/"min", unit).
-SPEC_WORDS = {
-    "stable": ("pole radius", "min", ""),
-    "min_damping": ("damping", "max", ""),
-    "min_decay": ("decay rate", "max", " 1/s"),
-    "min_natural_frequency": ("dominant natural frequency", "max", " rad/s"),
-    "max_natural_frequency": ("dominant natural frequency", "min", " rad/s"),
-    "max_pole_radius": ("pole radius", "min", ""),
-    "min_gain_margin": ("gain margin", "max", " dB"),
-    "min_phase_margin": ("phase margin", "max", " deg"),
-    "min_delay_margin": ("delay margin", "max", " s"),
-    "max_sensitivity_peak": ("sensitivity peak", "min", ""),
-    "min_crossover": ("gain crossover", "max", " rad/s"),
-    "max_crossover": ("highest gain crossover", "min", " rad/s"),
-    "min_bandwidth": ("closed-loop bandwidth", "max", " rad/s"),
-    "max_gain": ("controller gain", "min", ""),
-    "system_type": ("system type", "max", ""),
-    "max_overshoot": ("step overshoot", "min", " %"),
-    "max_settling_time": ("2 % settling time", "min", " s"),
-}
+__all__ = ["diagnose", "compromise", "limit_text"]
 
 _SAMPLED = {
     "min_damping": "damping",
@@ -80,18 +60,18 @@ def _slack(metrics: dict[str, np.ndarray], limits: SpecLimits, p: int, grid: np.
     return stacked.min(axis=0)
 
 
-def compromise(samples: dict, limits: SpecLimits, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def compromise(samples: GainSamples, limits: SpecLimits, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Shape index and gain of the best compromise sample at each point."""
     shapes = np.zeros(points.size, dtype=int)
     gains = np.zeros(points.size)
     for j, p in enumerate(points):
-        metrics = {k: v[p] for k, v in samples["metrics"].items()}
-        grid = samples["grid"][p]
+        metrics = {k: v[p] for k, v in samples.metrics.items()}
+        grid = samples.grid[p]
         slack = _slack(metrics, limits, p, grid)
-        slack = np.where(samples["valid"][p][:, None], slack, -np.inf)
+        slack = np.where(samples.valid[p][:, None], slack, -np.inf)
         if not np.any(np.isfinite(slack)):
             # nothing stable anywhere: the smallest gain of the first realisable shape
-            s = int(np.argmax(samples["valid"][p])) if np.any(samples["valid"][p]) else 0
+            s = int(np.argmax(samples.valid[p])) if np.any(samples.valid[p]) else 0
             shapes[j], gains[j] = s, float(grid[s, 0])
             continue
         s, k = np.unravel_index(int(np.argmax(slack)), slack.shape)
@@ -101,11 +81,10 @@ def compromise(samples: dict, limits: SpecLimits, points: np.ndarray) -> tuple[n
 
 def limit_text(name: str, limit: float) -> str:
     """``">= 45 deg"``-style text of a spec's bound."""
-    quantity, best, unit = SPEC_WORDS[name]
-    relation = ">=" if best == "max" else "<="
     if name == "stable":
         return "|z| < 1"
-    return f"{relation} {limit:.6g}{unit}"
+    spec = spec_info(name)
+    return f"{spec.relation} {limit:.6g}{spec.unit_suffix}"
 
 
 def _exact_alone(plant, shapes: Shapes, p: int, name: str, limits: SpecLimits) -> bool:
@@ -182,9 +161,9 @@ def _frequency_binding(plant, shapes: Shapes, p: int, limits: SpecLimits) -> tup
         reachable, best = frequency_reach(plant, shapes, p, name, limit)
         if reachable:
             continue
-        quantity, best_is, unit = SPEC_WORDS[name]
-        word = "at most" if best_is == "max" else "at least"
-        return (name, f"{name} binds: {quantity} {word} {best:.4g}{unit} over every stable gain of the searched "
+        spec = spec_info(name)
+        word = "at most" if spec.better == "higher" else "at least"
+        return (name, f"{name} binds: {spec.label} {word} {best:.4g}{spec.unit_suffix} over every stable gain of the searched "
                       f"shapes (needs {limit_text(name, limit)})")
     return None
 
@@ -209,16 +188,16 @@ def diagnose(
             name = names[0]
             value = analysis.values[name][p]
             limit = 1.0 if name == "stable" else float(getattr(limits, name)[p])
-            quantity = SPEC_WORDS[name][0]
+            spec = spec_info(name)
             out[p] = (
                 name,
-                f"{name} fails: {quantity} {value:.6g}{SPEC_WORDS[name][2]} (needs {limit_text(name, limit)}) at the "
+                f"{name} fails: {spec.label} {value:.6g}{spec.unit_suffix} (needs {limit_text(name, limit)}) at the "
                 f"chosen K = {analysis.gain[p]:.6g}; no searched gain met every spec and this one",
             )
             continue
-        metrics = {k: v[p] for k, v in samples["metrics"].items()}
-        grid = samples["grid"][p]
-        valid = samples["valid"][p][:, None] & np.ones_like(grid, dtype=bool)
+        metrics = {k: v[p] for k, v in samples.metrics.items()}
+        grid = samples.grid[p]
+        valid = samples.valid[p][:, None] & np.ones_like(grid, dtype=bool)
         stable = valid & (metrics["radius"] < 1)
         found = None
         if not _exact_alone(plant, shapes, p, "stable", limits):
@@ -236,19 +215,19 @@ def diagnose(
             if exact:
                 reachable = _exact_alone(plant, shapes, p, name, limits)
             else:
-                ok = values >= limit if SPEC_WORDS[name][1] == "max" else values <= limit
+                ok = values >= limit if spec_info(name).better == "higher" else values <= limit
                 reachable = bool(np.any(ok))
             if reachable:
                 continue
-            best_is_max = SPEC_WORDS[name][1] == "max"
+            spec = spec_info(name)
+            best_is_max = spec.better == "higher"
             value, gain, s_best = _best_reachable(plant, shapes, p, key, best_is_max, limits.poles)
-            quantity, _, unit = SPEC_WORDS[name]
             word = "at most" if best_is_max else "at least"
             params = shapes.params[p, s_best]
             where = f" with zero(s) at z = {', '.join(f'{v:.6g}' for v in np.ravel(params))}" if params.size else ""
             found = (
                 name,
-                f"{name} binds: {quantity} {word} {value:.6g}{unit} over the searched gains "
+                f"{name} binds: {spec.label} {word} {value:.6g}{spec.unit_suffix} over the searched gains "
                 f"(needs {limit_text(name, limit)}), reached at K = {gain:.6g}{where}",
             )
             break
@@ -262,7 +241,7 @@ def diagnose(
             found = (
                 name,
                 f"every spec is reachable alone but not together; at the best compromise K = {analysis.gain[p]:.6g} "
-                f"{SPEC_WORDS[name][0]} is {value:.6g}{SPEC_WORDS[name][2]} (needs {limit_text(name, limit)})"
+                f"{spec_info(name).label} is {value:.6g}{spec_info(name).unit_suffix} (needs {limit_text(name, limit)})"
                 + (f"; also failing: {', '.join(names[1:])}" if len(names) > 1 else ""),
             )
         out[p] = found

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -39,8 +39,8 @@ from .fallbacks import (
 from .filter_notes import auto_notch_report, resonance_note
 from .measured_check import check_on_data, merge_data_verdict
 from .results import DesignResult, DesignSettings, VerifyResult
-from .search import OBJECTIVE_TEXT, Choice, choose_gains, objective_values, samples_in
-from .specs import SAMPLING_FRACTION, SpecLimits
+from .search import OBJECTIVE_TEXT, Choice, GainSamples, choose_gains, objective_values, samples_in
+from .spec_limits import SAMPLING_FRACTION, SpecLimits
 from .strategies import make_shapes
 from .structures import LocusForm, coefficients_from_locus
 from .table import FilterTable, GainTable, TableAxis
@@ -133,7 +133,11 @@ def _target(controller) -> tuple[float, float] | None:
 
 @dataclass(frozen=True, eq=False)
 class PointDesign:
-    """Per-point design at arbitrary operating points (before table checks)."""
+    """Per-point design at arbitrary operating points (before table checks).
+
+    ``status`` follows from ``analysis``, so a design given new coefficients
+    (:meth:`reanalysed`) cannot keep the verdict of the old ones.
+    """
 
     points: np.ndarray
     plant: Loop
@@ -141,7 +145,6 @@ class PointDesign:
     coefficients: dict[str, np.ndarray]
     analysis: PointAnalysis
     feasible: np.ndarray
-    status: tuple[str, ...]
     binding: tuple[str | None, ...]
     notes: tuple[tuple[str, ...], ...]
     intervals: list
@@ -150,6 +153,15 @@ class PointDesign:
     #: for (:mod:`gainloom.design.fallbacks`; targets, back-off and compromises
     #: are added on the final table by :func:`design`)
     warnings: tuple[tuple[str, ...], ...] = ()
+
+    @property
+    def status(self) -> tuple[str, ...]:
+        """``"pass"`` or ``"fail"`` per point, from the analysis."""
+        return tuple("pass" if ok else "fail" for ok in self.analysis.passed)
+
+    def reanalysed(self, coefficients: dict[str, np.ndarray], analysis: PointAnalysis) -> PointDesign:
+        """The same design with other coefficients and their analysis (everything else kept)."""
+        return replace(self, coefficients=coefficients, analysis=analysis)
 
 
 def _coefficients(structure: str, shapes, shape_index: np.ndarray, gain: np.ndarray) -> dict[str, np.ndarray]:
@@ -282,13 +294,7 @@ def _merge_choice(first: Choice, second: Choice, rows: np.ndarray) -> Choice:
         notes[r] = list(second.notes[r])
         if second.feasible[r]:
             notes[r].append("met the specs only without the design back-off (on the spec boundary)")
-    samples = dict(first.samples)
-    samples["grid"] = first.samples["grid"].copy()
-    samples["metrics"] = {k: v.copy() for k, v in first.samples["metrics"].items()}
-    for r in rows:
-        samples["grid"][r] = second.samples["grid"][r]
-        for k in samples["metrics"]:
-            samples["metrics"][k][r] = second.samples["metrics"][k][r]
+    samples = first.samples.with_rows(second.samples, rows)
     return Choice(shape=shape, gain=gain, feasible=feasible, intervals=intervals, notes=notes, samples=samples)
 
 
@@ -310,11 +316,7 @@ def _sweep_choice(plant, shapes, limits, objective, target, controller, notes, p
         feasible=np.concatenate([c.feasible for c in choices]),
         intervals=[item for c in choices for item in c.intervals],
         notes=[item for c in choices for item in c.notes],
-        samples={
-            "grid": np.concatenate([c.samples["grid"] for c in choices]),
-            "metrics": {k: np.concatenate([c.samples["metrics"][k] for c in choices]) for k in choices[0].samples["metrics"]},
-            "valid": np.concatenate([c.samples["valid"] for c in choices]),
-        },
+        samples=GainSamples.concatenate([c.samples for c in choices]),
     )
     for p in range(P):
         notes[p].extend(choice.notes[p])
@@ -345,7 +347,7 @@ def _certified(certified: dict, analysis: PointAnalysis, failed: np.ndarray) -> 
     Points the search certified infeasible carry its note; a point the search
     found feasible that fails the re-check names the first spec it fails.
     """
-    from .specs import SPEC_ORDER
+    from ..spec_registry import SPEC_ORDER
 
     out = {}
     for p in failed:
@@ -405,7 +407,7 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
         shape_index = np.zeros(P, dtype=int)
         gain = run.gain
         choice = Choice(shape=shape_index, gain=np.where(run.feasible, gain, np.nan), feasible=run.feasible,
-                        intervals=run.intervals, notes=run.notes, samples={})
+                        intervals=run.intervals, notes=run.notes, samples=GainSamples.empty(P))
         for p in range(P):
             notes[p].extend(run.notes[p])
             # a rule of the search dropped to meet the specs: the choice is not what the rules ask for
@@ -484,7 +486,6 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
                     f"(decay {rate:.6g} 1/s): it is not in the reference response but load disturbances "
                     "decay at that rate; it is left out of the pole-region specs"
                 )
-    status = tuple("pass" if ok else "fail" for ok in passed)
     return PointDesign(
         points=points,
         plant=plant,
@@ -492,7 +493,6 @@ def design_points(sched, points: np.ndarray, progress: Progress | None = None) -
         coefficients=coefficients,
         analysis=analysis,
         feasible=choice.feasible,
-        status=status,
         binding=tuple(binding),
         notes=tuple(tuple(n) for n in notes),
         intervals=choice.intervals,
@@ -751,7 +751,7 @@ def verify(schedule: Any, gains: Any, progress: Progress | None = None) -> Verif
                                       ((),) * points.shape[0], (None,) * points.shape[0], data_check)
     point_design = PointDesign(
         points=points, plant=plant, limits=limits, coefficients=coefficients, analysis=analysis,
-        feasible=analysis.passed, status=status, binding=tuple([None] * points.shape[0]),
+        feasible=analysis.passed, binding=tuple([None] * points.shape[0]),
         notes=tuple(() for _ in range(points.shape[0])), intervals=[[] for _ in range(points.shape[0])],
         shape_params=np.zeros((points.shape[0], 0)),
     )

@@ -25,9 +25,10 @@ import math
 
 import numpy as np
 
+from ..spec_registry import SPEC_ORDER, spec_info
 from .analysis import PointAnalysis, judge
-from .diagnose import SPEC_WORDS, limit_text
-from .specs import SPEC_ORDER, SpecLimits
+from .diagnose import limit_text
+from .spec_limits import SpecLimits
 
 __all__ = ["TARGET_TOLERANCE", "shortfall", "compromise_warnings", "boundary_warnings", "target_warnings",
            "strategy_gain_warning"]
@@ -41,9 +42,10 @@ def shortfall(analysis: PointAnalysis, p: int, names: list[str] | None = None, w
     names = analysis.failed_specs(p) if names is None else names
     parts = []
     for name in names:
-        quantity, _, unit = SPEC_WORDS[name]
+        spec = spec_info(name)
         limit = 1.0 if name == "stable" else float(getattr(analysis.limits, name)[p])
-        parts.append(f"{name}: {quantity} {analysis.values[name][p]:.6g}{unit} ({word} {limit_text(name, limit)})")
+        parts.append(f"{name}: {spec.label} {analysis.values[name][p]:.6g}{spec.unit_suffix} "
+                     f"({word} {limit_text(name, limit)})")
     return "; ".join(parts)
 
 

@@ -29,7 +29,7 @@ from ..lti.polynomials import polymul
 from ..lti.sweep_fit import model_response, relative_error
 from ..schedule.measured import grid_index
 from .measured_time import time_domain_findings
-from .specs import SpecLimits
+from .spec_limits import SpecLimits
 from .structures import controller_polynomials
 
 __all__ = ["CROSSOVER_BAND", "DataCheck", "check_on_data", "merge_data_verdict"]

@@ -26,7 +26,7 @@ from __future__ import annotations
 import numpy as np
 
 from .analysis import SETTLING_BAND
-from .specs import SpecLimits
+from .spec_limits import SpecLimits
 
 __all__ = ["POLE_SPECS", "time_domain_findings"]
 

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from .specs import SPEC_ORDER
+from ..spec_registry import SPEC_ORDER, spec_info
 from .table import GainTable
 from .table_findings import BetweenFailure, CornerResult, InsertedBreakpoint, MonotoneFinding, StepFinding
 
@@ -176,27 +176,8 @@ def point_document(analysis: PointAnalysis, index: int) -> dict[str, Any]:
     p = index
     specs = {}
     limits = analysis.limits.as_dict()
-    limit_keys = {
-        "stable": None,
-        "min_damping": "min_damping",
-        "min_decay": "min_decay",
-        "min_natural_frequency": "min_natural_frequency",
-        "max_natural_frequency": "max_natural_frequency",
-        "max_pole_radius": "max_pole_radius",
-        "min_gain_margin": "min_gain_margin",
-        "min_phase_margin": "min_phase_margin",
-        "min_delay_margin": "min_delay_margin",
-        "max_sensitivity_peak": "max_sensitivity_peak",
-        "min_crossover": "min_crossover",
-        "max_crossover": "max_crossover",
-        "min_bandwidth": "min_bandwidth",
-        "max_gain": "max_gain",
-        "system_type": "system_type",
-        "max_overshoot": "max_overshoot",
-        "max_settling_time": "max_settling_time",
-    }
     for name in SPEC_ORDER:
-        key = limit_keys[name]
+        key = spec_info(name).limit_key
         limit = 1.0 if key is None else float(limits[key][p])
         if key is not None and np.isnan(limit):
             continue

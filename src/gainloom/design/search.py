@@ -39,12 +39,13 @@ from ..lti.loop import Loop
 from ..lti.margins import loop_margins
 from ..lti.polynomials import polymul, z_to_delta
 from ..lti.regions import SpecRegion
+from ..spec_registry import spec_info
 from .analysis import pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
 from .dominant_sets import dominant_damping_sets
-from .specs import SpecLimits
+from .spec_limits import SpecLimits
 
-__all__ = ["OBJECTIVE_TEXT", "Choice", "Shapes", "choose_gains", "objective_values", "shape_loops"]
+__all__ = ["OBJECTIVE_TEXT", "Choice", "GainSamples", "Shapes", "choose_gains", "objective_values", "shape_loops"]
 
 #: Coarse gain samples per shape (ranking only).
 COARSE_SAMPLES = 30
@@ -176,6 +177,46 @@ def region_ok(poles: np.ndarray, ts: np.ndarray, limits: SpecLimits, rows: np.nd
 
 
 @dataclass(frozen=True, eq=False)
+class GainSamples:
+    """The coarse gain samples of every shape, kept for the report on points no gain meets.
+
+    Attributes
+    ----------
+    grid : ndarray, shape (P, S, G)
+        Sampled loop gains per point and shape.
+    metrics : dict of str to ndarray, each shape (P, S, G)
+        Pole metrics (:func:`gainloom.design.analysis.pole_metrics`) at each sample.
+    valid : ndarray of bool, shape (P, S)
+        Shapes that exist at each point.
+    """
+
+    grid: np.ndarray
+    metrics: dict[str, np.ndarray]
+    valid: np.ndarray
+
+    @classmethod
+    def empty(cls, points: int) -> GainSamples:
+        """No samples at ``points`` points (a crossover design samples no gain grid)."""
+        return cls(grid=np.zeros((points, 0, 0)), metrics={}, valid=np.zeros((points, 0), dtype=bool))
+
+    @classmethod
+    def concatenate(cls, parts: list[GainSamples]) -> GainSamples:
+        """The samples of consecutive chunks of points as one."""
+        return cls(grid=np.concatenate([s.grid for s in parts]),
+                   metrics={k: np.concatenate([s.metrics[k] for s in parts]) for k in parts[0].metrics},
+                   valid=np.concatenate([s.valid for s in parts]))
+
+    def with_rows(self, other: GainSamples, rows: np.ndarray) -> GainSamples:
+        """These samples with the points ``rows`` taken from ``other`` (same points, same shapes)."""
+        grid = self.grid.copy()
+        grid[rows] = other.grid[rows]
+        metrics = {k: v.copy() for k, v in self.metrics.items()}
+        for k, values in metrics.items():
+            values[rows] = other.metrics[k][rows]
+        return GainSamples(grid=grid, metrics=metrics, valid=self.valid)
+
+
+@dataclass(frozen=True, eq=False)
 class Choice:
     """The chosen shape and gain at every point.
 
@@ -189,8 +230,9 @@ class Choice:
     intervals : list of list of (float, float)
         Exact feasible gain intervals of the chosen shape per point.
     notes : list of list of str
-    samples : dict
-        Sampled data kept for the infeasibility report.
+    samples : GainSamples
+        Sampled data kept for the infeasibility report (empty for a
+        crossover design, which samples no gain grid).
     """
 
     shape: np.ndarray
@@ -198,7 +240,7 @@ class Choice:
     feasible: np.ndarray
     intervals: list
     notes: list
-    samples: dict
+    samples: GainSamples
 
 
 def _coarse_grid(loop: Loop) -> np.ndarray:
@@ -412,11 +454,8 @@ def choose_gains(
     reach = np.where(stable, metrics["damping"], -np.inf).max(axis=-1).reshape(P, S)
     order = np.lexsort((-reach, -best_per_shape), axis=-1)
     take = min(exact_shapes, S)
-    samples = {
-        "grid": grid.reshape(P, S, -1),
-        "metrics": {k: v.reshape(P, S, -1) for k, v in metrics.items()},
-        "valid": shapes.valid,
-    }
+    samples = GainSamples(grid=grid.reshape(P, S, -1), metrics={k: v.reshape(P, S, -1) for k, v in metrics.items()},
+                          valid=shapes.valid)
 
     result_gain = np.full(P, np.nan)
     result_shape = order[:, 0].copy()
@@ -539,14 +578,14 @@ def _resolve(loops, shapes, limits, objective, target, points, cols, S, cancelle
 
 #: Specs judged on the frequency response at a chosen gain (not by the exact
 #: pole-region intervals), with the ``Margins`` field each is read from
-#: (``None``: the closed-loop bandwidth) and whether the value must be at least the limit.
-FREQUENCY_SPECS: dict[str, tuple[str | None, bool]] = {
-    "min_phase_margin": ("phase_margin", True),
-    "min_delay_margin": ("delay_margin", True),
-    "max_sensitivity_peak": ("sensitivity_peak", False),
-    "min_crossover": ("crossover", True),
-    "max_crossover": ("last_crossover", False),
-    "min_bandwidth": (None, True),
+#: (``None``: the closed-loop bandwidth); the kind of bound is the registry's.
+FREQUENCY_SPECS: dict[str, str | None] = {
+    "min_phase_margin": "phase_margin",
+    "min_delay_margin": "delay_margin",
+    "max_sensitivity_peak": "sensitivity_peak",
+    "min_crossover": "crossover",
+    "max_crossover": "last_crossover",
+    "min_bandwidth": None,
 }
 
 
@@ -558,12 +597,12 @@ def frequency_specs_ok(loop: Loop, gains: np.ndarray, limits: SpecLimits, points
     margins = loop_margins(loop, gains)
     bandwidth = closed_loop_bandwidth(loop, gains) if np.any(np.isfinite(limits.min_bandwidth[points])) else None
     ok = np.ones(loop.points, dtype=bool)
-    for name, (field, at_least) in FREQUENCY_SPECS.items():
+    for name, field in FREQUENCY_SPECS.items():
         limit = getattr(limits, name)[points]
         if np.all(np.isnan(limit)):
             continue
         value = np.asarray(bandwidth if field is None else getattr(margins, field), float)
-        ok &= np.isnan(limit) | ((value >= limit) if at_least else (value <= limit))
+        ok &= np.isnan(limit) | ((value >= limit) if spec_info(name).bound == "min" else (value <= limit))
     return ok
 
 

@@ -44,10 +44,10 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
+from ..spec_registry import SPEC_ORDER
 from .analysis import analyse
 from .confidence import CONFIDENCE, clopper_pearson
 from .slack import spec_badness, spec_limit
-from .specs import SPEC_ORDER
 
 __all__ = [
     "DRAW_BLOCK",

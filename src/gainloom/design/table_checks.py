@@ -278,7 +278,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
         The report, the (possibly smoothed/refined) point design, and the
         (possibly refined) axis values.
     """
-    from .engine import PointDesign, design_points, grid_points
+    from .engine import design_points, grid_points
     from .results import TableReport
 
     structure = structure or sched.controller.structure
@@ -289,13 +289,7 @@ def run_table_checks(sched, point_design, axes_values, progress=None, redesign: 
     if redesign and (sched.table_checks.max_relative_step is not None or sched.table_checks.monotone):
         shape = tuple(v.size for v in axes_values)
         coefficients, smoothing_notes, analysis = _smooth_gains(sched, point_design, shape, structure)
-        point_design = PointDesign(
-            points=point_design.points, plant=point_design.plant, limits=point_design.limits,
-            coefficients=coefficients, analysis=analysis, feasible=point_design.feasible,
-            status=tuple("pass" if ok else "fail" for ok in analysis.passed), binding=point_design.binding,
-            notes=point_design.notes, intervals=point_design.intervals, shape_params=point_design.shape_params,
-            warnings=point_design.warnings,
-        )
+        point_design = point_design.reanalysed(coefficients, analysis)
     count = int(sched.table_checks.between_points)
     budget = int(sched.table_checks.refine_max_inserted) if redesign else 0
     while True:
@@ -401,7 +395,6 @@ def _merge_designs(old, fresh, new_points, is_new, old_lookup, structure):
         coefficients=coefficients,
         analysis=analysis,
         feasible=pick(old.feasible, fresh.feasible),
-        status=tuple("pass" if ok else "fail" for ok in analysis.passed),
         binding=tuple(fresh.binding[j] if kind == "new" else old.binding[j] for kind, j in source),
         notes=tuple(fresh.notes[j] if kind == "new" else old.notes[j] for kind, j in source),
         intervals=[fresh.intervals[j] if kind == "new" else old.intervals[j] for kind, j in source],

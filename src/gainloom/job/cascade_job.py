@@ -99,9 +99,21 @@ def cascade_stage(checks: Any) -> StageVerdict:
         if pair.required_ratio is not None:
             ratio += f" (needs {pair.required_ratio:g}{'' if pair.separation_passed else ': FAILS'})"
         failing = f", {pair.failed_pairs} failing" if pair.failed_pairs else ""
-        parts.append(f"{pair.outer} around {pair.inner}: {pair.pairs} point pairs{failing}, {ratio}, "
-                     f"min GM {pair.min_gain_margin_db:.3g} dB, min PM {pair.min_phase_margin:.3g} deg")
+        corners = f" x {pair.corners + 1} (nominal and tolerance corners)" if pair.corners else ""
+        parts.append(f"{pair.outer} around {pair.inner}: {pair.pairs} point pairs{corners}{failing}, {ratio}, "
+                     f"min GM {pair.min_gain_margin_db:.3g} dB, min PM {pair.min_phase_margin:.3g} deg"
+                     f"{_worst_corner_text(pair)}")
     return StageVerdict("cascade", "pass" if checks.passed else "FAIL", "; ".join(parts))
+
+
+def _worst_corner_text(pair: Any) -> str:
+    """Where the outer specs are worst over every outer point (``""`` without tolerance corners)."""
+    if not pair.corners or not pair.worst_per_point:
+        return ""
+    w = min(pair.worst_per_point, key=lambda e: (-len(e["failed_specs"]), e["binding_slack"]))
+    failing = f", fails {', '.join(w['failed_specs'])}" if w["failed_specs"] else ""
+    return (f"; worst at {w['outer_point']} with the inner loop at {w['inner_point']}, {w['corner_label']}: "
+            f"{w['binding_spec'] or 'no spec'} binds{failing}")
 
 
 def default_cascade_scenario(design: Any) -> Any:
@@ -202,7 +214,7 @@ def _cascade_document(cascade: Any, design: Any, docs: list[dict[str, Any]], sta
             "min_crossover_ratio": cascade.cascade.min_crossover_ratio,
             "checks": design.checks.to_dict(), "c_files": c_names_,
             "passed": not any(s.failed for s in stages),
-            "stages": [{"stage": s.stage, "status": s.status, "detail": s.detail} for s in stages],
+            "stages": [s.to_dict() for s in stages],
         },
         "loops": docs,
         "caution": CAUTION,

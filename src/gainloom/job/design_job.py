@@ -91,6 +91,10 @@ class StageVerdict:
     status: str
     detail: str
 
+    def to_dict(self) -> dict[str, str]:
+        """Plain data (the ``stages`` entries of the JSON outputs)."""
+        return {"stage": self.stage, "status": self.status, "detail": self.detail}
+
     @property
     def failed(self) -> bool:
         """True when this stage fails the run."""
@@ -362,7 +366,7 @@ def run_design_job(
     if name.name != gains_name or name.suffix.lower() not in (".yaml", ".yml", ".json"):
         raise InputError(f"gains file name must be a plain file name ending .yaml, .yml or .json; got {gains_name!r}")
     out = check_output_folder(out_dir)  # a bad output path is bad input, found before the design
-    schedule = load_schedule(schedule_path)
+    schedule = load_schedule(os.fspath(schedule_path))
     number_format = resolve_format(schedule, number_format)
     prefix = schedule.codegen.prefix if prefix is None else prefix
     validate_prefix(prefix)  # before the design: a bad prefix is bad input, found at once
@@ -373,7 +377,7 @@ def run_design_job(
 
     # Physical full scales of the fixed-point error and output (codegen
     # section); every stage that rounds uses the same ones.
-    scales = {
+    scales: dict[str, Any] = {
         "error_full_scale": schedule.codegen.error_full_scale,
         "output_full_scale": schedule.codegen.output_full_scale,
     }

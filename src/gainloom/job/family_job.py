@@ -34,7 +34,6 @@ from ..outputs import (
     OutputConflictError,
     check_output_folder,
     find_conflicts,
-    sha256_bytes,
     write_outputs,
 )
 
@@ -114,7 +113,7 @@ class FamilyResult:
 
 def _point_summaries(job) -> list[dict[str, Any]]:
     from ..design.slack import tightest_specs
-    from ..design.specs import SPEC_ORDER
+    from ..spec_registry import SPEC_ORDER
 
     design = job.design
     tightest = tightest_specs(design.analysis, SPEC_ORDER)
@@ -128,7 +127,7 @@ def _job_summary(job) -> dict[str, Any]:
         "design_passed": job.design.passed,
         "number_format": job.number_format,
         "prefix": job.prefix,
-        "stages": [{"stage": s.stage, "status": s.status, "detail": s.detail} for s in job.stages],
+        "stages": [s.to_dict() for s in job.stages],
         "not_checked": list(job.not_checked),
         "points": _point_summaries(job),
     }
@@ -199,9 +198,9 @@ def variant_units(schedule_path: str | os.PathLike, variants_path: str | os.Path
     from ..schedule import load_schedule
     from ..schedule.variants import read_variants, variant_schedule_text
 
-    base = load_schedule(schedule_path)
+    base = load_schedule(os.fspath(schedule_path))
     base_text = read_input_file(schedule_path, "schedule file", MAX_SCHEDULE_BYTES).decode("utf-8")
-    variants = read_variants(variants_path, tuple(base.parameters), base.axis_names)
+    variants = read_variants(os.fspath(variants_path), tuple(base.parameters), base.axis_names)
     schedule_name = Path(schedule_path).name
     taken = {"gains.yaml", "verification.json", "verification.md", f"{base.codegen.prefix}.h",
              f"{base.codegen.prefix}.c"}
@@ -297,8 +296,3 @@ def run_family(
     written += write_outputs(out, index_files, force=force)
     return FamilyResult(out_dir=out, index=json.loads(index_files["family.json"]), files=tuple(written),
                         notes=tuple(notes))
-
-
-def file_digests(files: dict[str, bytes]) -> dict[str, str]:
-    """File name -> SHA-256 of each file, sorted by name."""
-    return {name: sha256_bytes(files[name]) for name in sorted(files)}

@@ -23,9 +23,9 @@ from typing import Any
 import numpy as np
 
 from ..design.results import point_document
-from ..design.specs import SPEC_ORDER
 from ..plain import to_plain
 from ..safety import CAUTION_POINTS
+from ..spec_registry import SPEC_ORDER
 
 __all__ = [
     "VERIFICATION_FORMAT",

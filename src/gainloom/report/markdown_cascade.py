@@ -15,21 +15,36 @@ __all__ = ["render_cascade_markdown"]
 def _pair_lines(pair: dict[str, Any]) -> list[str]:
     outer, separation = pair["outer_specs_with_inner"], pair["bandwidth_separation"]
     worst = separation["worst"]
+    corners = pair["corners_checked"]
+    where = "every inner breakpoint and midpoint"
+    if corners:
+        where += f", nominal and at {corners} corners of the tolerances of both loops"
+    checked = pair["pairs_checked"] * (corners + 1)
     lines = [f"### {pair['outer']} around {pair['inner']}", ""]
     lines += table_lines(["check", "result", "measured"], [
-        ["outer specs with the inner loop at every inner breakpoint and midpoint",
+        [f"outer specs with the inner loop at {where}",
          "pass" if outer["passed"] else "FAIL",
-         (f"{outer['failed_pairs']} of {pair['pairs_checked']} point pairs fail; min GM "
+         (f"{outer['failed_pairs']} of {checked} point pairs{' and corners' if corners else ''} fail; min GM "
          f"{number(outer['min_gain_margin_db'])} dB, min PM {number(outer['min_phase_margin_deg'])} deg")],
         ["bandwidth separation (inner / outer crossover)",
          "pass" if separation["passed"] else "FAIL",
          (f"min {number(separation['min_crossover_ratio'])}, required {number(separation['required'])}; at "
-         f"{worst['outer_point']} with the inner loop at {worst['inner_point']} "
+         f"{worst['outer_point']} with the inner loop at {worst['inner_point']}, {worst['corner']} "
          f"({number(worst['inner_crossover'])} / {number(worst['outer_crossover'])} rad/s)")],
     ])
+    if corners:
+        lines += ["Worst inner point and corner per outer grid point (most failing specs, then the least "
+                  "relative slack; the binding spec is the one with that slack):", ""]
+        lines += table_lines(["outer point", "inner point", "corner", "binding spec", "slack %", "GM dB", "PM deg",
+                              "failing specs"],
+                             [[w["outer_point"], w["inner_point"], w["corner_label"], w["binding_spec"] or "-",
+                               number(100 * w["binding_slack"]), number(w["gain_margin_db"]),
+                               number(w["phase_margin_deg"]), ", ".join(w["failed_specs"]) or "-"]
+                              for w in outer["worst_per_point"]])
     if outer["failures"]:
-        lines += table_lines(["outer point", "inner point", "failing specs"],
-                        [[f["outer_point"], f["inner_point"], ", ".join(f["failed_specs"])] for f in outer["failures"]])
+        lines += table_lines(["outer point", "inner point", "corner", "failing specs"],
+                             [[f["outer_point"], f["inner_point"], f["corner"], ", ".join(f["failed_specs"])]
+                              for f in outer["failures"]])
     return lines
 
 

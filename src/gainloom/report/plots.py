@@ -50,6 +50,7 @@ from ..lti.closed_loop import closed_loop_poles
 from ..lti.facts import locus_facts
 from ..lti.loop import Loop
 from ..lti.regions import SpecRegion
+from ..spec_registry import spec_info
 
 __all__ = [
     "plot_gains",
@@ -122,17 +123,17 @@ def plot_gains(table: Any, status: tuple[str, ...]) -> bytes:
     return png_bytes(figure)
 
 
-#: Panels of ``margins.png``: (point key, spec names (lower, upper), title, unit, log y).
+#: Panels of ``margins.png``: (point key, spec names (lower, upper), title, log y); the unit is the
+#: registry's (:mod:`gainloom.spec_registry`).
 _MARGIN_PANELS = (
-    ("damping", ("min_damping", None), "smallest damping ratio ζ (judged poles)", "", False),
-    ("natural_frequency", ("min_natural_frequency", "max_natural_frequency"),
-     "dominant natural frequency ωn", "rad/s", True),
-    ("gain_margin_db", ("min_gain_margin", None), "gain margin", "dB", False),
-    ("phase_margin_deg", ("min_phase_margin", None), "phase margin", "deg", False),
-    ("delay_margin_s", ("min_delay_margin", None), "delay margin", "s", True),
-    ("sensitivity_peak", (None, "max_sensitivity_peak"), "sensitivity peak Ms", "", False),
-    ("crossover_rad_s", ("min_crossover", "max_crossover"), "gain crossover ωc", "rad/s", True),
-    ("bandwidth_rad_s", ("min_bandwidth", None), "closed-loop bandwidth ωb", "rad/s", True),
+    ("damping", ("min_damping", None), "smallest damping ratio ζ (judged poles)", False),
+    ("natural_frequency", ("min_natural_frequency", "max_natural_frequency"), "dominant natural frequency ωn", True),
+    ("gain_margin_db", ("min_gain_margin", None), "gain margin", False),
+    ("phase_margin_deg", ("min_phase_margin", None), "phase margin", False),
+    ("delay_margin_s", ("min_delay_margin", None), "delay margin", True),
+    ("sensitivity_peak", (None, "max_sensitivity_peak"), "sensitivity peak Ms", False),
+    ("crossover_rad_s", ("min_crossover", "max_crossover"), "gain crossover ωc", True),
+    ("bandwidth_rad_s", ("min_bandwidth", None), "closed-loop bandwidth ωb", True),
 )
 
 
@@ -151,7 +152,8 @@ def plot_margins(table: Any, points: list[dict[str, Any]]) -> bytes:
     """
     figure = new_figure((9.0, 11.0))
     shape = table.shape
-    for k, (key, (low, high), title, unit, log) in enumerate(_MARGIN_PANELS):
+    for k, (key, (low, high), title, log) in enumerate(_MARGIN_PANELS):
+        unit = spec_info(low or high).unit
         ax = figure.add_subplot(4, 2, k + 1)
         values = np.array([_as_float(e[key]) for e in points]).reshape(shape)
         # limits of all lines, grouped: lines that share a limit share one

@@ -18,7 +18,7 @@ from .model import (
     Target,
     Tolerances,
 )
-from .specs import overshoot_to_damping
+from .spec_values import overshoot_to_damping
 
 __all__ = [
     "load_schedule",

@@ -434,7 +434,7 @@ class Schedule:
             where a spec is not required.
         """
         from ..errors import InputError
-        from .specs import resolve_specs
+        from .spec_values import resolve_specs
 
         points = np.asarray(points, dtype=float)
         if points.ndim == 1 and len(self.axes) == 1:

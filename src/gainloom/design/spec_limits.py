@@ -6,7 +6,7 @@ pole-region bounds for the design (the verification re-checks both on a
 discrete step response, because zeros and extra poles move the real values):
 
 * percent overshoot -> damping ratio (exact for an underdamped second-order
-  system without zeros; computed by ``schedule.specs.overshoot_to_damping``
+  system without zeros; computed by ``schedule.spec_values.overshoot_to_damping``
   when the schedule resolves its specs)::
 
       zeta = -ln(OS) / sqrt(pi**2 + ln(OS)**2),   OS = overshoot / 100
@@ -33,7 +33,6 @@ __all__ = [
     "SETTLING_CONSTANT",
     "SAMPLING_FRACTION",
     "SpecLimits",
-    "SPEC_ORDER",
 ]
 
 #: Constant of the 2 % settling approximation ``T_s ~ 4 / (zeta wn)``.
@@ -51,27 +50,6 @@ SAMPLING_FRACTION = 0.1
 #: Points that meet the specs only on the boundary are designed there and
 #: say so in their notes.
 BACKOFF = {"damping": 0.01, "relative": 0.02, "gain_margin_db": 0.5, "phase_margin_deg": 0.5}
-
-#: Every spec a point is judged on, in report order.
-SPEC_ORDER: tuple[str, ...] = (
-    "stable",
-    "min_damping",
-    "min_decay",
-    "min_natural_frequency",
-    "max_natural_frequency",
-    "max_pole_radius",
-    "min_gain_margin",
-    "min_phase_margin",
-    "min_delay_margin",
-    "max_sensitivity_peak",
-    "min_crossover",
-    "max_crossover",
-    "min_bandwidth",
-    "max_gain",
-    "system_type",
-    "max_overshoot",
-    "max_settling_time",
-)
 
 
 def overshoot_from_damping(zeta: np.ndarray | float) -> np.ndarray:
@@ -174,7 +152,7 @@ class SpecLimits:
             decay = decay_from_settling(settle)
         overshoot = _array(values, "max_overshoot", count)
         # spec_values already gives the stricter of min_damping and the
-        # damping implied by max_overshoot (schedule.specs.overshoot_to_damping)
+        # damping implied by max_overshoot (schedule.spec_values.overshoot_to_damping)
         damping = _array(values, "min_damping", count)
         return cls(
             min_damping=damping,

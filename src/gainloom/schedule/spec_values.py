@@ -6,28 +6,13 @@ import math
 
 import numpy as np
 
+from ..spec_registry import SPECS
 from .model import SpecSection
 
 __all__ = ["resolve_specs", "overshoot_to_damping", "SPEC_VALUE_KEYS"]
 
-#: Keys of :meth:`Schedule.spec_values`, in a fixed order.
-SPEC_VALUE_KEYS: tuple[str, ...] = (
-    "min_damping",
-    "max_overshoot",
-    "max_settling_time",
-    "min_natural_frequency",
-    "max_natural_frequency",
-    "max_pole_radius",
-    "min_gain_margin",
-    "min_phase_margin",
-    "min_delay_margin",
-    "max_sensitivity_peak",
-    "system_type",
-    "max_gain",
-    "min_crossover",
-    "max_crossover",
-    "min_bandwidth",
-)
+#: Keys of :meth:`Schedule.spec_values`: the registry's specs that a schedule states.
+SPEC_VALUE_KEYS: tuple[str, ...] = tuple(spec.name for spec in SPECS if spec.scheduled)
 
 
 def overshoot_to_damping(overshoot_percent: float | np.ndarray) -> np.ndarray:
