@@ -183,6 +183,23 @@ def test_goal_coefficient_steps_within_the_references(tmp_path):
 
 
 @pytest.fixture(scope="module")
+def boost_lead(tmp_path_factory):
+    return bench.run_loop("boost_voltage", "lead", tmp_path_factory.mktemp("boost"), quick=False, grid=bench.QUICK_GRID)
+
+
+@pytest.mark.parametrize("coefficient", ["kc", "zc"])
+def test_goal_lead_steps_on_the_boost_loop(boost_lead, coefficient):
+    # issue 9 item 6 on the lead structure, the loop where the steps were furthest off:
+    # at most 1.5 x the independent reference table's own step plus 0.05.  The pole
+    # (pc) is left out: the reference's pole sits at z = 0 on the full grid (step 0,
+    # the tool's is 0.17, DEVELOPERS.md "Benchmarks") but not on this test's coarse
+    # grid, so a check here would measure the grid, not the tool
+    tool, reference = boost_lead.steps[coefficient]
+    assert tool <= 1.5 * reference + 0.05
+    assert boost_lead.recheck_failed == 0
+
+
+@pytest.fixture(scope="module")
 def rule_results(tmp_path_factory):
     folder = tmp_path_factory.mktemp("rules")
     return [bench.run_rule(name, rule, folder, quick=True) for name, rule in bench.LOOPS.items() if rule]

@@ -256,14 +256,13 @@ def _gain_sets(ctx: _Context, plant: Loop, shapes: Shapes, cap: np.ndarray, rows
 def _sampled_region_ok(ctx: _Context, loops: list[Loop], gains: np.ndarray, points: np.ndarray) -> np.ndarray:
     """Pole-region specs the exact sets leave out, judged at the candidate gains (R, C).
 
-    The natural-frequency band of the dominant pole, and under
-    ``poles: dominant`` the damping (:func:`gainloom.design.search.region_ok`),
-    on every plant (nominal and tolerance corners).
+    The natural-frequency band of the dominant pole
+    (:func:`gainloom.design.search.region_ok`), on every plant (nominal and
+    tolerance corners).  The damping is in the exact sets under both pole
+    selections.
     """
     lim = ctx.limits
     names = ["min_natural_frequency", "max_natural_frequency"]
-    if getattr(lim, "poles", "all") != "all":
-        names.append("min_damping")
     if not any(np.any(np.isfinite(getattr(lim, n)[points])) for n in names):
         return np.ones(gains.shape, dtype=bool)
     safe = np.nan_to_num(gains, nan=1.0)
@@ -474,8 +473,8 @@ def crossover_design(
         x = np.where(found2[:, None], x2, x)
         ctx = replace(ctx, band=None)
     if structure not in ("pi", "pid"):
-        x = _smooth(ctx, x, _later_neighbours(np.asarray(points, float).reshape(P, -1)),
-                    relative=objective == "max-crossover")
+        grid = np.asarray(points, float).reshape(P, -1)
+        x = _smooth(ctx, x, neighbours, _later_neighbours(grid), relative=objective == "max-crossover")
     shapes, score, gain, crossover, sets = _evaluate(ctx, x[:, None, :])
     feasible = np.isfinite(score[:, 0])
     return CrossoverChoice(
@@ -489,30 +488,56 @@ def crossover_design(
 
 
 #: Rounds of the smoothing pass of :func:`_smooth`.
-SMOOTH_ROUNDS = 2
+SMOOTH_ROUNDS = 6
+#: Fractions of the way toward the neighbours' shape tried in each round.
+SMOOTH_STEPS = (1.0, 0.5, 0.25, 0.125, 0.0625)
 
 
-def _smooth(ctx: _Context, x: np.ndarray, later: np.ndarray, relative: bool) -> np.ndarray:
-    """Take the next point's shape where it scores within ``TIE`` of the point's own.
+def _smooth(ctx: _Context, x: np.ndarray, earlier: np.ndarray, later: np.ndarray, relative: bool) -> np.ndarray:
+    """Move each point's shape toward its neighbours' as far as ``TIE`` allows.
 
-    The forward tie-break cannot help the first points of the grid; where the
-    objective is flat over the shapes (a lead's zero and pole trade against
-    each other), the pattern search may settle anywhere in the flat valley.
-    ``later`` indexes the nearest later point (-1 for none).  Not used for
-    pi/pid, whose second pass (integral action) already pins the shape.
+    Where the objective is flat over the shapes (a lead's zero and pole trade
+    against each other) the independent searches settle anywhere in the
+    valley, and neighbouring points get unrelated shapes.  Each round offers
+    every point its nearest earlier and later neighbours' shapes and
+    ``SMOOTH_STEPS`` of the way toward their mean (log rates), all in one
+    batched evaluation, and takes the one nearest both neighbours among
+    those scoring within ``TIE`` of the point's own best (the score before
+    smoothing, so the cost does not add up over rounds).  Whole shapes
+    settle a point that sits on another lead of the same crossover (a
+    valley with two arms, where the mean between them is poor); the partial
+    steps follow a best shape that moves with the operating point.  A
+    larger band buys little: on the boost-converter lead benchmark the
+    largest step of the lead pole went 0.46 -> 0.17 at 1 %, 0.12 at 2 %,
+    0.08 at 3 % and 0.06 at 5 %.  Not used for pi/pid, whose second pass
+    (integral action) already pins the shape.
     """
     P = x.shape[0]
-    has = later >= 0
+    _, best, _, _, _ = _evaluate(ctx, x[:, None, :])
+    best = best[:, 0]
+    floor = best - TIE * np.abs(best) if relative else best - TIE
+    idx = np.arange(P)
+    # a point with one neighbour is pulled toward that one alone
+    a = np.where(earlier >= 0, earlier, np.where(later >= 0, later, idx))
+    b = np.where(later >= 0, later, a)
+    steps = np.asarray(SMOOTH_STEPS)
+
+    def distance(shape: np.ndarray, xa: np.ndarray, xb: np.ndarray) -> np.ndarray:
+        return np.sum((shape - xa) ** 2 + (shape - xb) ** 2, axis=-1)
+
     for _ in range(SMOOTH_ROUNDS):
-        _, own, _, _, _ = _evaluate(ctx, x[:, None, :])
-        other = x[np.where(has, later, np.arange(P))]
-        _, theirs, _, _, _ = _evaluate(ctx, other[:, None, :])
-        own, theirs = own[:, 0], theirs[:, 0]
-        band = own - TIE * np.abs(own) if relative else own - TIE
-        take = has & np.isfinite(theirs) & (theirs >= band)
-        if not np.any(take & np.any(other != x, axis=1)):
+        xa, xb = x[a], x[b]
+        target = 0.5 * (xa + xb)
+        ladder = x[:, None, :] + steps[None, :, None] * (target - x)[:, None, :]
+        trial = np.concatenate([xa[:, None, :], xb[:, None, :], ladder], axis=1)  # (P, C, d)
+        _, score, _, _, _ = _evaluate(ctx, trial)
+        good = np.isfinite(best)[:, None] & (score >= floor[:, None])
+        far = np.where(good, distance(trial, xa[:, None, :], xb[:, None, :]), np.inf)
+        pick = np.argmin(far, axis=1)
+        move = far[idx, pick] < distance(x, xa, xb) - 1e-12
+        if not np.any(move):
             break
-        x = np.where(take[:, None], other, x)
+        x = np.where(move[:, None], trial[idx, pick], x)
     return x
 
 

@@ -17,9 +17,11 @@ every candidate shape this module
    best samples where they fail.
 
 Exact boundary gains (a pole reaching the damping spiral, the decay circle,
-the radius circle, the unit circle) therefore come from the interval solver,
-never from the grid.  The natural-frequency band on the dominant pole and the
-margins other than the gain margin are judged on samples.
+the radius circle, the unit circle; under ``poles: dominant`` the damping of
+the dominant poles, :mod:`gainloom.design.dominant_sets`) therefore come
+from the interval solver, never from the grid.  The natural-frequency band
+on the dominant pole and the margins other than the gain margin are judged
+on samples.
 """
 
 from __future__ import annotations
@@ -40,6 +42,7 @@ from ..lti.regions import SpecRegion
 from ..spec_registry import spec_info
 from .analysis import pole_metrics
 from .cancel import cancelled_zeros, deflate, mask_cancelled
+from .dominant_sets import dominant_damping_sets
 from .spec_limits import SpecLimits
 
 __all__ = ["OBJECTIVE_TEXT", "Choice", "GainSamples", "Shapes", "choose_gains", "objective_values", "shape_loops"]
@@ -250,9 +253,9 @@ def _coarse_grid(loop: Loop) -> np.ndarray:
 def _region_groups(limits: SpecLimits, points: np.ndarray, ts: np.ndarray):
     """Rows grouped by identical exact-region specs (one solver call per group).
 
-    Under ``poles: dominant`` the damping bound is left to the samples
-    (:func:`region_ok`): the exact solver bounds every pole, and a fast pole
-    the dominant selection ignores would cut the feasible set.
+    Under ``poles: dominant`` the damping bound is not part of the region
+    (it would bound every pole, and cut the feasible set at a fast pole the
+    dominant selection ignores): :func:`_dominant_damping_groups` solves it.
     """
     keys = {}
     exact_damping = limits.poles == "all"
@@ -264,6 +267,17 @@ def _region_groups(limits: SpecLimits, points: np.ndarray, ts: np.ndarray):
         )
         keys.setdefault(key, []).append(row)
     return keys
+
+
+def _dominant_damping_groups(limits: SpecLimits, points: np.ndarray) -> dict[float, np.ndarray]:
+    """Rows by ``min_damping`` judged on the dominant poles (:mod:`gainloom.design.dominant_sets`)."""
+    if limits.poles == "all":
+        return {}
+    zeta = limits.min_damping[points]
+    groups: dict[float, list[int]] = {}
+    for row in np.flatnonzero(np.isfinite(zeta) & (zeta > 0)):
+        groups.setdefault(float(zeta[row]), []).append(int(row))
+    return {z: np.asarray(rows) for z, rows in groups.items()}
 
 
 def _intersect(a: list[tuple[float, float]], b: list[tuple[float, float]]) -> list[tuple[float, float]]:
@@ -349,6 +363,15 @@ def _exact_group(loop: Loop, limits: SpecLimits, points: np.ndarray) -> list[lis
         top = limits.max_gain[p]
         cap = [(0.0, math.inf if np.isnan(top) else float(top) * (1 + 1e-15))]
         out.append(_intersect(_intersect(spec[row], band), cap))
+    # last, and only where the other specs leave gains: the dominant damping
+    # set is the costliest one (the damping spiral and two more circles)
+    for zeta, rows in _dominant_damping_groups(limits, points).items():
+        rows = rows[[bool(out[r]) for r in rows]]
+        if rows.size == 0:
+            continue
+        found = dominant_damping_sets(loop.select(rows), zeta)
+        for row, intervals in zip(rows, found):
+            out[row] = _intersect(out[row], intervals)
     return out
 
 

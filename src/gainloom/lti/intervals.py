@@ -6,7 +6,7 @@ Method (see also docs/exact-intervals.md):
    lies on a boundary curve of the region (imaginary axis or unit circle for
    plain stability; rays, lines, circles, log-spirals and ``wn`` contours for
    specs), solved by :mod:`gainloom.lti.boundary` -- polynomial roots and
-   Newton polishing for lines and circles, bracketing (brentq) for the
+   Newton polishing for lines and circles, bracketing (bisection) for the
    transcendental z-plane curves; never read off a gain grid.  Gains where
    the leading coefficient ``d0 + K n0`` vanishes (a root through infinity)
    are candidates too.
@@ -25,7 +25,7 @@ denominator root in common *on* a boundary curve has a closed-loop root
 pinned there for every gain; it is reported with no intervals.
 
 Cost: one Python pass per loop for the candidate gains (a few numpy calls
-per curve, plus one brentq per crossing of a sampled z-plane curve), then a
+per curve, plus a batched bisection of the sampled z-plane curves), then a
 single batched root computation for every loop together.
 
 Fast sampling: every discrete loop is solved in the delta variable
@@ -201,8 +201,25 @@ def _wn_grid(wn: float, ts: np.ndarray, from_s) -> tuple[np.ndarray, np.ndarray]
     return grid, ends
 
 
-def _candidates(num: np.ndarray, den: np.ndarray, crossings: list[Crossings], sign: float) -> np.ndarray | None:
-    """Sorted distinct candidate gains of one sign (as positive numbers), or None if pinned."""
+def candidate_gains(num: np.ndarray, den: np.ndarray, crossings: list[Crossings], sign: float) -> np.ndarray | None:
+    """Sorted distinct candidate gains of one sign (as positive numbers), or None if pinned.
+
+    Parameters
+    ----------
+    num, den : ndarray, shape (n + 1,)
+        One loop in the variable its crossings were solved in
+        (:func:`working_polynomials`).
+    crossings : list of Crossings
+        The loop's crossings of every boundary curve that splits the gains.
+    sign : float
+        ``1.0`` for positive gains, ``-1.0`` for negative ones.
+
+    Returns
+    -------
+    ndarray or None
+        The crossing gains and the gain where ``d0 + K n0`` vanishes, of
+        that sign, as magnitudes; None when a root is pinned to a curve.
+    """
     if any(c.fixed for c in crossings):
         return None
     gains = np.concatenate([c.gains for c in crossings] + [np.zeros(0)]) * sign
@@ -216,15 +233,43 @@ def _candidates(num: np.ndarray, den: np.ndarray, crossings: list[Crossings], si
     return gains
 
 
-def _test_gains(edges: np.ndarray, scale: float) -> np.ndarray:
-    """One interior gain per sub-interval of (0, e1, ..., em, inf)."""
+def interior_gains(edges: np.ndarray, scale: float) -> np.ndarray:
+    """One interior gain per sub-interval of (0, e1, ..., em, inf).
+
+    Parameters
+    ----------
+    edges : ndarray
+        Sorted positive candidate gains (:func:`candidate_gains`).
+    scale : float
+        Gain tested when there is no edge.
+
+    Returns
+    -------
+    ndarray, shape (m + 1,)
+        Midpoints, and twice the last edge beyond it.
+    """
     if edges.size == 0:
         return np.array([scale])
     bounds = np.concatenate([[0.0], edges])
     return np.concatenate([0.5 * (bounds[:-1] + bounds[1:]), [2.0 * edges[-1]]])
 
 
-def _merge(edges: np.ndarray, member: np.ndarray, sign: float) -> list[GainInterval]:
+def merge_members(edges: np.ndarray, member: np.ndarray, sign: float) -> list[GainInterval]:
+    """Open intervals from sub-interval memberships, adjacent members merged.
+
+    Parameters
+    ----------
+    edges : ndarray, shape (m,)
+        Sorted positive edges splitting ``(0, inf)``.
+    member : ndarray of bool, shape (m + 1,)
+        Membership of each sub-interval.
+    sign : float
+        ``-1.0`` maps the intervals to negative gains.
+
+    Returns
+    -------
+    list of GainInterval
+    """
     bounds = np.concatenate([[0.0], edges, [math.inf]])
     intervals: list[tuple[float, float]] = []
     start = None
@@ -289,7 +334,7 @@ def _shift_to_delta(poly: np.ndarray, ts: float) -> np.ndarray:
     return np.array([float(v) for v in reversed(ascending[: poly.size])])
 
 
-def _working_polynomials(loop: Loop) -> tuple[np.ndarray, np.ndarray, bool]:
+def working_polynomials(loop: Loop) -> tuple[np.ndarray, np.ndarray, bool]:
     """Polynomials to solve in: ``s``; or ``g`` for every discrete loop.
 
     A given delta form is used as it is (its coefficients carry digits the
@@ -310,7 +355,7 @@ def _working_polynomials(loop: Loop) -> tuple[np.ndarray, np.ndarray, bool]:
 def _intervals(
     loop: Loop, region: SpecRegion, signs: tuple[float, ...]
 ) -> list[list[GainInterval]]:
-    nums, dens, use_delta = _working_polynomials(loop)
+    nums, dens, use_delta = working_polynomials(loop)
     plans = []  # (loop index, sign, edges) per searched side
     rows, gains = [], []
     per_curve = _curve_crossings(nums, dens, region, None if loop.ts is None else np.asarray(loop.ts), use_delta)
@@ -318,11 +363,11 @@ def _intervals(
         crossings = [curve[i] for curve in per_curve.values()]
         scale = float(np.max(np.abs(dens[i])) / max(float(np.max(np.abs(nums[i]))), 1e-300))
         for sign in signs:
-            edges = _candidates(nums[i], dens[i], crossings, sign)
+            edges = candidate_gains(nums[i], dens[i], crossings, sign)
             plans.append((i, sign, edges))
             if edges is None:
                 continue
-            tests = _test_gains(edges, scale) * sign
+            tests = interior_gains(edges, scale) * sign
             rows.append(np.full(tests.size, i))
             gains.append(tests)
     member_all = np.zeros(0, dtype=bool)
@@ -350,7 +395,7 @@ def _intervals(
         if edges is None:
             continue
         count = edges.size + 1
-        results[i].extend(_merge(edges, member_all[offset : offset + count], sign))
+        results[i].extend(merge_members(edges, member_all[offset : offset + count], sign))
         offset += count
     for intervals in results:
         intervals.sort(key=lambda interval: interval.low)
@@ -494,7 +539,7 @@ def region_crossings(
         Gains of any sign; points in ``s`` or ``z``.
     """
     loop, single, region = _prepare_spec(num, den, region, ts, delta)
-    nums, dens, use_delta = _working_polynomials(loop)
+    nums, dens, use_delta = working_polynomials(loop)
     per_curve = _curve_crossings(nums, dens, region, None if loop.ts is None else np.asarray(loop.ts), use_delta)
     out = []
     for i in range(loop.points):
