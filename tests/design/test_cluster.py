@@ -12,6 +12,7 @@ where it ran.
 from __future__ import annotations
 
 import os
+import re
 import signal
 import sys
 
@@ -137,7 +138,11 @@ def test_a_killed_worker_does_not_change_the_result(study, local):
                            **CHUNKS)
     assert killed
     _same(local, remote)
-    assert len(notes) == 1 and "1 worker(s) left during the run" in notes[0] and "run again" in notes[0]
+    # at least the killed worker left; on a loaded machine a second one may miss its heartbeat and
+    # be dropped too, which must not change the result either
+    (note,) = notes
+    left = re.search(r"(\d+) worker\(s\) left during the run", note)
+    assert left and int(left.group(1)) >= 1 and "run again" in note
 
 
 def test_family_on_the_cluster_writes_the_same_files(cluster, tmp_path):
