@@ -7,7 +7,7 @@ from __future__ import annotations
 from typing import Any
 
 from .markdown import number, table_lines
-from .markdown_target import function_rows, rules_lines, spread_text
+from .markdown_target import function_rows, spread_text, target_lines
 
 __all__ = ["cascade_target_section"]
 
@@ -38,15 +38,12 @@ def _loop_rows(target: dict[str, Any]) -> list[list[Any]]:
 
 def cascade_target_section(target: dict[str, Any] | None) -> list[str]:
     """Markdown lines of a cascade's target section (``target`` as in verification.json, may be null)."""
-    lines = ["## Target cores", ""]
-    if target is None:
-        return lines + ["Not checked in this run.", ""]
-    if target["status"] == "not-checked":
-        lines += [f"Not checked: {target['message'].removeprefix('not checked: ')}. This is neither a pass nor "
-                  "a failure: build and run the module with your firmware toolchain before use.", ""]
-        return lines + rules_lines(target["rules"])
-    lines += [f"Status **{target['status']}** ({target['number_format']}): {target['message']}", ""]
-    lines += ["The interrupt at the base period, in the calling order of the header: every period the inner "
+    return target_lines(target, "the module", _checked_lines)
+
+
+def _checked_lines(target: dict[str, Any]) -> list[str]:
+    """The module's builds, interrupt, loops and functions per core, after a check."""
+    lines = ["The interrupt at the base period, in the calling order of the header: every period the inner "
               "loop's lookup and step; every N-th period the outer loop's first.  Instructions of the functions "
               "called (the interrupt's own entry and branching not counted); stack: the deepest of those "
               "functions (they are called one after the other), without the interrupt's own frame.", ""]
@@ -60,4 +57,4 @@ def cascade_target_section(target: dict[str, Any] | None) -> list[str]:
     tools = target["toolchain"]
     lines += [f"Instruction counts: {target['instruction_method']}.  Built with {tools['gcc']}; "
               f"emulated with {tools['qemu']}.", ""]
-    return lines + rules_lines(target["rules"])
+    return lines

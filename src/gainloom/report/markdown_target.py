@@ -3,6 +3,7 @@ emulated runs and instruction counts per core, and the coding-rule check."""
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any
 
 from .markdown import (
@@ -10,7 +11,7 @@ from .markdown import (
     table_lines,  # the one Markdown table writer of the log
 )
 
-__all__ = ["function_rows", "helpers_text", "rules_lines", "spread_text", "target_section"]
+__all__ = ["function_rows", "helpers_text", "rules_lines", "spread_text", "target_lines", "target_section"]
 
 
 def spread_text(spread: dict[str, Any] | None) -> str:
@@ -71,16 +72,26 @@ def rules_lines(rules: dict[str, Any] | None) -> list[str]:
     return lines
 
 
-def target_section(doc: dict[str, Any]) -> list[str]:
-    """Markdown lines of the target section (``doc["target"]`` may be null)."""
-    target = doc.get("target")
+def target_lines(target: dict[str, Any] | None, subject: str,
+                 body: Callable[[dict[str, Any]], list[str]]) -> list[str]:
+    """Markdown lines of a "Target cores" section: not run, not checked (tools missing) or
+    checked (status line, then ``body(target)``), and the coding rules last.
+
+    ``subject`` names what the firmware team must build themselves when the
+    tools were missing ("the generated C", "the module").
+    """
     lines = ["## Target cores", ""]
     if target is None:
         return lines + ["Not checked in this run.", ""]
     if target["status"] == "not-checked":
         lines += [f"Not checked: {target['message'].removeprefix('not checked: ')}. This is neither a pass nor "
-                  "a failure: build and run the generated C with your firmware toolchain before use.", ""]
+                  f"a failure: build and run {subject} with your firmware toolchain before use.", ""]
     else:
         lines += [f"Status **{target['status']}** ({target['number_format']}): {target['message']}", ""]
-        lines += _cores(target)
+        lines += body(target)
     return lines + rules_lines(target["rules"])
+
+
+def target_section(doc: dict[str, Any]) -> list[str]:
+    """Markdown lines of the target section (``doc["target"]`` may be null)."""
+    return target_lines(doc.get("target"), "the generated C", _cores)
